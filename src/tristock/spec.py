@@ -1,0 +1,239 @@
+"""The engineer's targets: one pydantic model shared by the CLI, the library and the HTTP API.
+
+A spec is read from TOML or JSON. Unknown keys are errors: a typo must never silently change the
+answer. Every default is stated on its field.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import tomllib
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+
+from tristock.eseries import parse_series
+
+#: Design-practice bounds on a timing or threshold resistor (ohm). Below about 1 kΩ the op amp's
+#: output current and the resistor's power become the limit; above about 1 MΩ bias currents,
+#: leakage and board contamination start to matter.
+DEFAULT_RESISTANCE_MIN_OHM = 1_000.0
+DEFAULT_RESISTANCE_MAX_OHM = 1_000_000.0
+
+#: Dielectrics allowed in the integrator when the spec names none: class I ceramic and films.
+DEFAULT_DIELECTRICS = ("C0G", "NP0", "PP", "PET", "PPS", "PEN", "PS")
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class SupplySpec(_Section):
+    """Supply rails (V). ``negative_v = 0`` means a single supply with a reference node."""
+
+    positive_v: float = Field(gt=0, le=60, description="positive rail (V)")
+    negative_v: float = Field(le=0, ge=-60, description="negative rail (V); 0 = single supply")
+    tolerance_pct: float = Field(0.0, ge=0, le=20, description="rail tolerance, ± % (default 0)")
+    reference_v: float | None = Field(
+        None, description="single supply only: reference node (V); default mid-rail"
+    )
+
+    @model_validator(mode="after")
+    def _reference_inside_rails(self) -> SupplySpec:
+        if self.reference_v is not None:
+            if self.negative_v != 0:
+                raise ValueError("reference_v is for a single supply (negative_v = 0) only")
+            if not 0 < self.reference_v < self.positive_v:
+                raise ValueError(
+                    f"reference_v {self.reference_v} V must lie between the rails "
+                    f"(0 V and {self.positive_v} V)"
+                )
+        return self
+
+    @property
+    def reference(self) -> float:
+        """Reference node (V): ground for split rails, the given or mid-rail for a single supply."""
+        if self.negative_v < 0:
+            return 0.0
+        return self.reference_v if self.reference_v is not None else self.positive_v / 2
+
+    @property
+    def span_v(self) -> float:
+        return self.positive_v - self.negative_v
+
+
+class FrequencySpec(_Section):
+    """Target frequency (Hz) and the acceptance band, ± % around it."""
+
+    target_hz: float = Field(gt=0, le=10e6, description="target frequency (Hz)")
+    tolerance_pct: float = Field(gt=0, le=50, description="acceptance band, ± %")
+
+
+class TriangleSpec(_Section):
+    """Target triangle peak-to-peak amplitude (V) and its band, ± %."""
+
+    amplitude_vpp: float = Field(gt=0, description="triangle peak-to-peak (V)")
+    tolerance_pct: float = Field(gt=0, le=50, description="acceptance band, ± %")
+
+
+class EnvironmentSpec(_Section):
+    """Operating temperature range (°C); default 25..25 (bench)."""
+
+    temp_min_c: float = Field(25.0, ge=-60, le=200)
+    temp_max_c: float = Field(25.0, ge=-60, le=200)
+
+    @model_validator(mode="after")
+    def _ordered(self) -> EnvironmentSpec:
+        if self.temp_min_c > self.temp_max_c:
+            raise ValueError(
+                f"temp_min_c ({self.temp_min_c}) is above temp_max_c ({self.temp_max_c})"
+            )
+        return self
+
+
+class BuildSpec(_Section):
+    """Build quantity: stock must cover ``boards`` x the uses of each part on a board."""
+
+    boards: int = Field(1, ge=1, le=10_000_000)
+
+
+Guarantee = Literal["nominal", "worst_case", "yield"]
+RankBy = Literal["balanced", "frequency_error", "cost", "yield"]
+
+
+class LimitsSpec(_Section):
+    """Optional limits on the choice. Defaults: any series, class I and film dielectrics,
+    1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99."""
+
+    max_cost: float | None = Field(None, gt=0, description="per board, the catalog's currency")
+    resistor_series: tuple[str, ...] | None = Field(
+        None, description="allowed E-series of R1..R3; default any (non-standard values included)"
+    )
+    dielectrics: tuple[str, ...] = Field(
+        DEFAULT_DIELECTRICS, description="allowed C1 dielectrics; default class I and films"
+    )
+    resistance_min_ohm: float = Field(DEFAULT_RESISTANCE_MIN_OHM, gt=0)
+    resistance_max_ohm: float = Field(DEFAULT_RESISTANCE_MAX_OHM, gt=0)
+    opamps: tuple[str, ...] | None = Field(None, description="restrict U1 to these ids")
+    guarantee: Guarantee = "nominal"
+    min_yield: float = Field(0.99, gt=0, le=1)
+
+    @field_validator("resistor_series")
+    @classmethod
+    def _known_series(cls, names: tuple[str, ...] | None) -> tuple[str, ...] | None:
+        if names is None:
+            return None
+        return tuple(parse_series(n) for n in names)
+
+    @field_validator("dielectrics")
+    @classmethod
+    def _known_dielectrics(cls, names: tuple[str, ...]) -> tuple[str, ...]:
+        from tristock.parts import KNOWN_DIELECTRICS
+
+        out = tuple(n.strip().upper() for n in names)
+        unknown = [n for n in out if n not in KNOWN_DIELECTRICS]
+        if unknown:
+            raise ValueError(
+                f"unknown dielectric {unknown[0]!r}; known: {', '.join(sorted(KNOWN_DIELECTRICS))}"
+            )
+        if not out:
+            raise ValueError("at least one dielectric is needed")
+        return out
+
+    @model_validator(mode="after")
+    def _ordered(self) -> LimitsSpec:
+        if self.resistance_min_ohm >= self.resistance_max_ohm:
+            raise ValueError(
+                f"resistance_min_ohm ({self.resistance_min_ohm}) is not below "
+                f"resistance_max_ohm ({self.resistance_max_ohm})"
+            )
+        return self
+
+
+class RankingSpec(_Section):
+    """How candidates are ordered (see README, "Ranking") and how many are returned."""
+
+    by: RankBy = "balanced"
+    top: int = Field(10, ge=1, le=100)
+
+
+class Spec(_Section):
+    """A whole design request."""
+
+    supply: SupplySpec
+    frequency: FrequencySpec
+    triangle: TriangleSpec
+    environment: EnvironmentSpec = EnvironmentSpec()
+    build: BuildSpec = BuildSpec()
+    limits: LimitsSpec = LimitsSpec()
+    ranking: RankingSpec = RankingSpec()
+
+    @model_validator(mode="after")
+    def _amplitude_fits_rails(self) -> Spec:
+        span = self.supply.span_v
+        if self.triangle.amplitude_vpp >= span:
+            raise ValueError(
+                f"triangle.amplitude_vpp {self.triangle.amplitude_vpp} V does not fit inside the "
+                f"{span:g} V between the rails"
+            )
+        return self
+
+    @property
+    def frequency_band_ln(self) -> tuple[float, float]:
+        """The frequency band as ln(f/f_target) bounds."""
+        t = self.frequency.tolerance_pct / 100
+        return math.log1p(-t), math.log1p(t)
+
+    @property
+    def amplitude_band_ln(self) -> tuple[float, float]:
+        t = self.triangle.tolerance_pct / 100
+        return math.log1p(-t), math.log1p(t)
+
+
+class SpecError(ValueError):
+    """A spec that cannot be used: each line names the field path and the reason."""
+
+    def __init__(self, lines: list[str]):
+        self.lines = lines
+        super().__init__("; ".join(lines))
+
+
+def _describe(err: ValidationError) -> list[str]:
+    lines = []
+    for e in err.errors():
+        path = ".".join(str(p) for p in e["loc"]) or "spec"
+        msg = e["msg"].removeprefix("Value error, ")
+        if e["type"] == "extra_forbidden":
+            msg = "unknown key (check the spelling)"
+        lines.append(f"{path}: {msg}")
+    return lines
+
+
+def parse_spec(data: dict[str, Any]) -> Spec:
+    """Validate a spec given as a mapping; raise SpecError naming every bad field."""
+    try:
+        return Spec.model_validate(data)
+    except ValidationError as err:
+        raise SpecError(_describe(err)) from None
+
+
+def read_mapping(path: Path) -> dict[str, Any]:
+    """Read a TOML (``.toml``) or JSON (anything else) file into a mapping."""
+    text = path.read_text(encoding="utf-8")
+    try:
+        if path.suffix.lower() == ".toml":
+            data: Any = tomllib.loads(text)
+        else:
+            data = json.loads(text)
+    except (tomllib.TOMLDecodeError, json.JSONDecodeError) as err:
+        raise SpecError([f"{path}: not valid {path.suffix.lstrip('.') or 'JSON'}: {err}"]) from None
+    if not isinstance(data, dict):
+        raise SpecError([f"{path}: the top level must be a table/object"])
+    return data
+
+
+def load_spec(path: Path) -> Spec:
+    """Load and validate a spec file (TOML or JSON)."""
+    return parse_spec(read_mapping(path))
