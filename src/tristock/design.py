@@ -57,12 +57,8 @@ class Design:
     @property
     def cost_per_board(self) -> float:
         """Σ unit_cost x pieces per board, the catalog's currency."""
-        return sum(
-            self.u1.cost_per_board
-            if pid == self.u1.id
-            else next(p for p in self.parts().values() if p.id == pid).unit_cost * count
-            for pid, count in self.uses().items()
-        )
+        passives = (self.r1, self.r2, self.r3, self.c1)
+        return self.u1.cost_per_board + sum(p.unit_cost for p in passives)
 
     @property
     def bom_lines(self) -> int:
