@@ -1,0 +1,271 @@
+"""Generate oscillator netlists, run them in ngspice (batch mode) and read the .meas results.
+
+The netlists follow the reference runs (ngspice 39): the integrator is a linear VCVS of gain
+1e6 (its + input at the reference plus Vos1, a bias current source on its - pin); the
+comparator is one of
+
+- ``"ideal"``: a tanh decision of gain 1e6 with a 1 ns output pole,
+- ``"slew"``: the tanh decision, a transport delay (matched lossless line, started full) and
+  a linear slew limiter with separate rise and fall rates,
+- ``"macro"``: an op-amp macromodel, a current-limited gm stage into an integrating node
+  (finite GBW, slew SR = IMAX/CN, open-loop gain AOL) with a soft clamp at the rails.
+
+Pitfalls handled (reference/NOTES.md): ``uic`` with IC= on every state; a pole or slew state
+in the positive-feedback loop; gain 1e6; a small maximum step; ``method=gear``; the delay
+line starts full; ngspice always runs under a subprocess timeout; ``.meas`` values carry 6
+significant digits.
+
+Import from tests as ``from ngspice_harness import ...`` (pytest puts tests/ on sys.path for
+test modules in a directory without __init__.py).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import shutil
+import subprocess
+import tempfile
+from collections.abc import Mapping
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal
+
+import pytest
+
+Comparator = Literal["ideal", "slew", "macro"]
+
+#: Measurements every run reports (see ``netlist``).
+MEASURES = ("per", "duty", "dutyref", "vtmax", "vtmin")
+
+
+class NgspiceError(RuntimeError):
+    """ngspice failed, timed out, or did not report a measurement."""
+
+
+def ngspice_path() -> str | None:
+    """The ngspice binary on PATH, or None."""
+    return shutil.which("ngspice")
+
+
+def ngspice_available() -> bool:
+    return ngspice_path() is not None
+
+
+def require_ngspice() -> str:
+    """The ngspice binary; skip the test when it is absent and CI is unset, fail under CI."""
+    path = ngspice_path()
+    if path is None:
+        if os.environ.get("CI"):
+            pytest.fail("ngspice is not installed, and CI is set: ngspice tests must run in CI")
+        pytest.skip("ngspice is not installed")
+    return path
+
+
+@dataclass(frozen=True)
+class SimCase:
+    """One transient run. Square levels ``v_high``/``v_low`` and ``v_ref`` are absolute (V).
+
+    ``period_guess_s`` sizes the run: start-up is skipped for 1.5 guesses, then ``periods``
+    periods are measured. Ohm, farad, V, V/s, s, Hz, A.
+    """
+
+    r1: float
+    r2: float
+    r3: float
+    c1: float
+    v_high: float
+    v_low: float
+    period_guess_s: float
+    v_ref: float = 0.0
+    comparator: Comparator = "ideal"
+    delay_s: float = 0.0
+    slew_rise: float = math.inf
+    slew_fall: float = math.inf
+    gbw_hz: float = math.inf
+    aol: float = 1e5
+    vos1: float = 0.0
+    ib1: float = 0.0
+    vos2: float = 0.0
+    ib2: float = 0.0
+    periods: int = 4
+    max_step_s: float = 10e-9
+
+    def __post_init__(self) -> None:
+        if self.comparator == "slew" and not (
+            math.isfinite(self.slew_rise) and math.isfinite(self.slew_fall)
+        ):
+            raise ValueError("slew_rise/slew_fall: the slew comparator needs finite slew rates")
+        if self.comparator == "macro" and not (
+            math.isfinite(self.gbw_hz) and self.slew_rise == self.slew_fall
+        ):
+            raise ValueError("gbw_hz: the macromodel needs a finite GBW and one slew rate")
+        if not self.v_low < self.v_ref < self.v_high:
+            raise ValueError("v_ref: must lie between v_low and v_high")
+
+
+def _comparator_lines(case: SimCase, vmid: float, vamp: float) -> list[str]:
+    decision = f"B2 d 0 V = {vmid!r} + {vamp!r}*tanh(1e6*(v(p)-v(ref2)))"
+    if case.comparator == "ideal":
+        return [
+            decision.replace("B2 d", "B2 c"),
+            "* 1 ns output pole: breaks the algebraic positive-feedback loop; IC sets the start",
+            "Ro c x 1k",
+            f"Co x 0 1p IC={case.v_high!r}",
+            "E2 vs 0 x 0 1",
+        ]
+    if case.comparator == "slew":
+        sra = (case.slew_rise + case.slew_fall) / 2.0
+        srd = (case.slew_rise - case.slew_fall) / 2.0
+        lines = [decision]
+        if case.delay_s > 0.0:
+            vh = case.v_high
+            lines += [
+                "* matched lossless line = pure delay, started full at the high level",
+                "Ed da 0 d 0 1",
+                f"T1 da 0 db 0 Z0=1k TD={case.delay_s!r} "
+                f"IC={vh!r},{vh / 1e3!r},{vh!r},{-vh / 1e3!r}",
+                "Rtl db 0 1k",
+            ]
+        else:
+            lines.append("Ed db 0 d 0 1")
+        lines += [
+            "* dx/dt = SR*tanh(u), u = (target - x)/1 mV; SR = rise rate up, fall rate down",
+            f"Bsl 0 x I = 1n*({sra!r} + {srd!r}*tanh((v(db)-v(x))/1m))*tanh((v(db)-v(x))/1m)",
+            f"Cs x 0 1n IC={case.v_high!r}",
+            "E2 vs 0 x 0 1",
+        ]
+        return lines
+    cn = 1e-9
+    gm = 2.0 * math.pi * case.gbw_hz * cn
+    imax = case.slew_rise * cn
+    rn = case.aol / gm
+    vsc, gcl = 1e-3, 10.0
+    hi, lo = case.v_high, case.v_low
+    clamp = (
+        f"{gcl * vsc!r}*(uramp((v(x)-{hi!r})/{vsc!r}) + ln(1+exp(-abs((v(x)-{hi!r})/{vsc!r})))"
+        f" - uramp(({lo!r}-v(x))/{vsc!r}) - ln(1+exp(-abs(({lo!r}-v(x))/{vsc!r}))))"
+    )
+    return [
+        "* gm stage (SR = IMAX/CN, GBW = GM/(2 pi CN), AOL = GM*RN), soft clamp at the rails",
+        f"Bg 0 x I = {imax!r}*tanh({gm / imax!r}*(v(p)-v(ref2)))",
+        f"Cn x 0 {cn!r} IC={hi!r}",
+        f"Rn x ref {rn!r}",
+        f"Bcl x 0 I = {clamp}",
+        "E2 vs 0 x 0 1",
+    ]
+
+
+def netlist(case: SimCase) -> str:
+    """The netlist text for ``case``, with .meas lines for MEASURES (absolute voltages)."""
+    vmid = (case.v_high + case.v_low) / 2.0
+    vamp = (case.v_high - case.v_low) / 2.0
+    t = case.period_guess_s
+    td = 1.5 * t
+    t_stop = td + (case.periods + 2.0) * t
+    n = case.periods
+    lines = [
+        f"* triangle/square oscillator, {case.comparator} comparator (generated by the tests)",
+        f"Vref ref 0 {case.v_ref!r}",
+        "* A1: inverting integrator, VCVS gain 1e6; + input at ref + VOS1; IB1 into its - pin",
+        f"Vos1 ref1 ref {case.vos1!r}",
+        f"Ib1 inm 0 {case.ib1!r}",
+        f"RT vs inm {case.r3!r}",
+        f"CT inm vt {case.c1!r} IC=0",
+        "E1 vt 0 ref1 inm 1e6",
+        "* A2: non-inverting Schmitt trigger; - input at ref + VOS2; IB2 into its + pin",
+        f"Vos2 ref2 ref {case.vos2!r}",
+        f"Ib2 p 0 {case.ib2!r}",
+        f"RA vt p {case.r1!r}",
+        f"RB vs p {case.r2!r}",
+        *_comparator_lines(case, vmid, vamp),
+        ".options reltol=1e-4 method=gear",
+        f".tran {case.max_step_s!r} {t_stop!r} 0 {case.max_step_s!r} uic",
+        f".meas tran tr1 WHEN v(vs)={vmid!r} TD={td!r} RISE=1",
+        f".meas tran tr2 WHEN v(vs)={vmid!r} TD={td!r} RISE={n + 1}",
+        f".meas tran tf1 WHEN v(vs)={vmid!r} TD={td!r} FALL=1",
+        f".meas tran tf2 WHEN v(vs)={vmid!r} TD={td!r} FALL=2",
+        f".meas tran per PARAM='(tr2-tr1)/{n}'",
+        ".meas tran duty PARAM='(tf1>tr1 ? tf1-tr1 : tf2-tr1)/per'",
+        f".meas tran tz1 WHEN v(vs)={case.v_ref!r} TD={td!r} RISE=1",
+        f".meas tran tzf1 WHEN v(vs)={case.v_ref!r} TD={td!r} FALL=1",
+        f".meas tran tzf2 WHEN v(vs)={case.v_ref!r} TD={td!r} FALL=2",
+        ".meas tran dutyref PARAM='(tzf1>tz1 ? tzf1-tz1 : tzf2-tz1)/per'",
+        f".meas tran vtmax MAX v(vt) FROM={td!r} TO={t_stop!r}",
+        f".meas tran vtmin MIN v(vt) FROM={td!r} TO={t_stop!r}",
+        ".end",
+    ]
+    return "\n".join(lines) + "\n"
+
+
+_MEAS_LINE = re.compile(r"^\s*([A-Za-z_]\w*)\s*=\s*([-+]?\d+(?:\.\d*)?(?:[eE][-+]?\d+)?)")
+
+
+def parse_measurements(log: str) -> dict[str, float]:
+    """``name = value`` lines of an ngspice batch log (the .meas results), lower-case names."""
+    out: dict[str, float] = {}
+    for line in log.splitlines():
+        m = _MEAS_LINE.match(line)
+        if m:
+            out[m.group(1).lower()] = float(m.group(2))
+    return out
+
+
+def run_ngspice(text: str, *, timeout_s: float = 60.0) -> dict[str, float]:
+    """Run ``text`` with ``ngspice -b`` in a temporary directory; its measurements by name."""
+    exe = ngspice_path()
+    if exe is None:
+        raise NgspiceError("ngspice is not on PATH")
+    with tempfile.TemporaryDirectory(prefix="tristock-ngspice-") as tmp:
+        cir = Path(tmp) / "osc.cir"
+        cir.write_text(text, encoding="utf-8")
+        try:
+            proc = subprocess.run(
+                [exe, "-b", str(cir)],
+                cwd=tmp,
+                capture_output=True,
+                text=True,
+                timeout=timeout_s,
+                check=False,
+            )
+        except subprocess.TimeoutExpired as exc:
+            raise NgspiceError(f"ngspice did not finish within {timeout_s} s") from exc
+    if proc.returncode != 0:
+        raise NgspiceError(f"ngspice exited {proc.returncode}:\n{proc.stdout[-2000:]}")
+    return parse_measurements(proc.stdout)
+
+
+def simulate(case: SimCase, *, timeout_s: float = 60.0) -> dict[str, float]:
+    """Run ``case``; MEASURES plus vtpp and vtmid (relative to the reference)."""
+    meas = run_ngspice(netlist(case), timeout_s=timeout_s)
+    missing = [name for name in MEASURES if name not in meas]
+    if missing:
+        raise NgspiceError(f"ngspice reported no {', '.join(missing)} (got {sorted(meas)})")
+    out = {name: meas[name] for name in MEASURES}
+    out["vtmax"] -= case.v_ref
+    out["vtmin"] -= case.v_ref
+    out["vtpp"] = out["vtmax"] - out["vtmin"]
+    out["vtmid"] = (out["vtmax"] + out["vtmin"]) / 2.0
+    return out
+
+
+def simulate_many(
+    cases: Mapping[str, SimCase], *, workers: int | None = None, timeout_s: float = 60.0
+) -> dict[str, dict[str, float] | NgspiceError]:
+    """Run ``cases`` concurrently (one ngspice process per case, ``workers`` at a time).
+
+    A failed case maps to its NgspiceError so that the other cases still report.
+    """
+    n = workers or max(2, os.cpu_count() or 2)
+
+    def one(case: SimCase) -> dict[str, float] | NgspiceError:
+        try:
+            return simulate(case, timeout_s=timeout_s)
+        except NgspiceError as exc:
+            return exc
+
+    with ThreadPoolExecutor(max_workers=n) as pool:
+        futures = {name: pool.submit(one, case) for name, case in cases.items()}
+        return {name: fut.result() for name, fut in futures.items()}

@@ -1,0 +1,193 @@
+"""The circuit model against ngspice transient runs (reference: ngspice, Debian package).
+
+Every netlist is generated from the parts under test (tests/ngspice_harness.py); the runs go
+concurrently in one module-scoped fixture. Each test prints its measured model-vs-ngspice
+errors (``pytest -s`` shows them) and records them as user properties.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import pytest
+
+from ngspice_harness import NgspiceError, SimCase, require_ngspice, simulate_many
+from tristock.circuit import OpAmpModel, Oscillator, Rails, square_levels
+
+pytestmark = pytest.mark.ngspice
+
+
+@dataclass(frozen=True)
+class Run:
+    osc: Oscillator
+    case: SimCase
+
+
+def _run(osc: Oscillator, comparator: str, **extra: float) -> Run:
+    """A SimCase built from the oscillator's own values, rails and op-amp model."""
+    vh, vl = square_levels(osc.rails, osc.opamp)
+    ref = osc.rails.reference_v
+    m = osc.opamp
+    case = SimCase(
+        r1=osc.r1,
+        r2=osc.r2,
+        r3=osc.r3,
+        c1=osc.c1,
+        v_high=ref + vh,
+        v_low=ref - vl,
+        v_ref=ref,
+        period_guess_s=osc.period_s,
+        comparator=comparator,  # type: ignore[arg-type]
+        delay_s=m.delay_s,
+        slew_rise=m.slew_rise_v_per_s,
+        slew_fall=m.slew_fall_v_per_s,
+        gbw_hz=m.gbw_hz,
+        vos1=m.offset_v,
+        ib1=m.bias_a,
+        vos2=m.comparator_offset_v,
+        ib2=m.comparator_bias_a,
+        **extra,
+    )
+    return Run(osc, case)
+
+
+def _ideal_amp(swing_pos: float, swing_neg: float, **kw: float) -> OpAmpModel:
+    return OpAmpModel(swing_pos, swing_neg, math.inf, math.inf, 0.0, math.inf, **kw)
+
+
+RUNS: dict[str, Run] = {
+    # split ±12 V, equal headroom: the textbook case
+    "ideal": _run(
+        Oscillator(12e3, 33e3, 15e3, 4.7e-9, _ideal_amp(1.0, 1.0), Rails(12.0, -12.0)), "ideal"
+    ),
+    # unequal rails and headroom: VH = 13.5 V, VL = 11 V
+    "asymmetric": _run(
+        Oscillator(8.2e3, 22e3, 12e3, 6.8e-9, _ideal_amp(1.5, 1.0), Rails(15.0, -12.0)), "ideal"
+    ),
+    # single 10 V supply, mid-rail reference, rail-to-rail-ish output: VH = 4.2 V, VL = 4.7 V
+    "single_supply": _run(
+        Oscillator(10e3, 22e3, 22e3, 2.2e-9, _ideal_amp(0.8, 0.3), Rails(10.0, 0.0)), "ideal"
+    ),
+    # comparator with 2 µs delay and unequal slew (2 V/µs up, 3 V/µs down), asymmetric swing
+    "slew_delay": _run(
+        Oscillator(
+            10e3,
+            27e3,
+            10e3,
+            10e-9,
+            OpAmpModel(0.5, 1.5, 2e6, 3e6, 2e-6, math.inf),
+            Rails(12.0, -12.0),
+        ),
+        "slew",
+    ),
+    # integrator offset and bias (Ve = 0.25 V + 10 µA·20 kΩ = 0.45 V), comparator offset/bias
+    "offset_bias": _run(
+        Oscillator(
+            10e3,
+            30e3,
+            20e3,
+            3.3e-9,
+            _ideal_amp(
+                1.0,
+                1.0,
+                offset_v=0.25,
+                bias_a=10e-6,
+                comparator_offset_v=0.1,
+                comparator_bias_a=5e-6,
+            ),
+            Rails(12.0, -12.0),
+        ),
+        "ideal",
+    ),
+    # finite GBW (1.5 MHz) and slew (4 V/µs) in a gm-stage macromodel comparator
+    "gbw_macro": _run(
+        Oscillator(
+            10e3,
+            27e3,
+            10e3,
+            10e-9,
+            OpAmpModel(0.0, 0.0, 4e6, 4e6, 0.0, 1.5e6),
+            Rails(12.0, -12.0),
+        ),
+        "macro",
+    ),
+}
+
+
+@pytest.fixture(scope="module")
+def measured() -> dict[str, dict[str, float] | NgspiceError]:
+    require_ngspice()
+    return simulate_many({name: run.case for name, run in RUNS.items()})
+
+
+def _errors(
+    name: str,
+    measured: dict[str, dict[str, float] | NgspiceError],
+    record: Callable[[str, object], None],
+) -> tuple[dict[str, float], dict[str, float]]:
+    got = measured[name]
+    if isinstance(got, NgspiceError):
+        pytest.fail(f"ngspice run {name!r} failed: {got}")
+    p = RUNS[name].osc.prediction()
+    err = {
+        "period_rel": (float(p.period_s) - got["per"]) / got["per"],
+        "duty_abs": float(p.duty_high) - got["duty"],
+        "vpp_rel": (float(p.amplitude_vpp) - got["vtpp"]) / got["vtpp"],
+        "peak_high_v": float(p.peak_high_v) - got["vtmax"],
+        "peak_low_v": float(p.peak_low_v) - got["vtmin"],
+        "midpoint_v": float(p.offset_v) - got["vtmid"],
+    }
+    print(f"\n{name}: model - ngspice: " + ", ".join(f"{k} {v:+.2e}" for k, v in err.items()))
+    for key, value in err.items():
+        record(f"{name}_{key}", value)
+    return got, err
+
+
+def test_ideal_symmetric(measured, record_property) -> None:
+    got, err = _errors("ideal", measured, record_property)
+    assert abs(err["period_rel"]) < 2e-3
+    assert abs(got["duty"] - 0.5) < 2e-3
+    assert abs(err["vpp_rel"]) < 2e-3
+    assert abs(got["vtmid"]) < 0.01
+
+
+def test_asymmetric_swing(measured, record_property) -> None:
+    _got, err = _errors("asymmetric", measured, record_property)
+    assert abs(err["period_rel"]) < 2e-3
+    assert abs(err["duty_abs"]) < 2e-3
+    assert abs(err["vpp_rel"]) < 2e-3
+    assert abs(err["midpoint_v"]) < 0.01
+
+
+def test_single_supply_reference(measured, record_property) -> None:
+    _got, err = _errors("single_supply", measured, record_property)
+    assert abs(err["period_rel"]) < 2e-3
+    assert abs(err["duty_abs"]) < 2e-3
+    assert abs(err["vpp_rel"]) < 2e-3
+    assert abs(err["midpoint_v"]) < 0.01
+
+
+def test_slew_and_delay(measured, record_property) -> None:
+    _got, err = _errors("slew_delay", measured, record_property)
+    assert abs(err["period_rel"]) < 1e-2
+    assert abs(err["duty_abs"]) < 5e-3
+    assert abs(err["vpp_rel"]) < 1e-2
+    assert abs(err["peak_high_v"]) < 0.02
+    assert abs(err["peak_low_v"]) < 0.02
+
+
+def test_integrator_offset_and_bias(measured, record_property) -> None:
+    _got, err = _errors("offset_bias", measured, record_property)
+    assert abs(err["period_rel"]) < 2e-3
+    assert abs(err["duty_abs"]) < 2e-3
+    assert abs(err["vpp_rel"]) < 2e-3
+    assert abs(err["midpoint_v"]) < 0.01
+
+
+def test_gbw_macromodel(measured, record_property) -> None:
+    _got, err = _errors("gbw_macro", measured, record_property)
+    assert abs(err["period_rel"]) < 1e-2
+    assert abs(err["duty_abs"]) < 2e-3
+    assert abs(err["vpp_rel"]) < 2e-2
