@@ -334,7 +334,7 @@ class WorstCase:
     ``corners`` maps "<metric>_lo"/"<metric>_hi" (metric one of frequency_hz, amplitude_vpp,
     duty_high) to the setting of every spread variable there, as text ({"R1": "9.9 kΩ
     (-1 %)", "T": "85 °C", ...}). ``method`` is "corners" (all 2^n corners evaluated) or
-    "local_search" (per-variable extremes, then single-variable flips until none improves);
+    "local_search" (per-variable extremes, then single and pair flips until none improves);
     either way the non-monotone variables (offsets, bias) are then scanned inside their range.
     """
 
@@ -371,20 +371,24 @@ class _Search:
         return _evaluate(self.board, self.variables, z)
 
     def local_search(self, metric: int, sign: float) -> FloatArray:
-        """Maximise sign·metric: each variable to its better end, then single flips."""
+        """Maximise sign·metric: each variable to its better end (one-at-a-time probes from
+        the centre), then the best of all single and pair flips while one improves it."""
         n = len(self.variables)
         probes = np.vstack([-np.eye(n), np.eye(n)])
         vals = sign * self(probes)[:, metric]
         z = np.where(vals[n:] >= vals[:n], 1.0, -1.0)
         best = float(sign * self(z[None, :])[0, metric])
+        i_idx, j_idx = np.triu_indices(n)  # i == j: single flip; i < j: pair flip
+        moves = np.ones((len(i_idx), n))
+        moves[np.arange(len(i_idx)), i_idx] = -1.0
+        moves[np.arange(len(i_idx)), j_idx] = -1.0
         for _ in range(4 * n):
-            flips = np.tile(z, (n, 1))
-            flips[np.arange(n), np.arange(n)] *= -1.0
-            vals = sign * self(flips)[:, metric]
-            i = int(np.argmax(vals))
-            if not vals[i] > best + 1e-15 * abs(best):
+            trial = moves * z[None, :]
+            vals = sign * self(trial)[:, metric]
+            k = int(np.argmax(vals))
+            if not vals[k] > best + 1e-15 * abs(best):
                 break
-            z, best = flips[i], float(vals[i])
+            z, best = trial[k], float(vals[k])
         return z
 
     def refine(self, starts: FloatArray, metric: int, sign: float) -> tuple[FloatArray, float]:
@@ -429,7 +433,7 @@ def worst_case(
 
     With n spread variables: n <= ``max_corner_variables`` evaluates all 2^n corners at once;
     otherwise each extreme starts from every variable at its better end (one-at-a-time probe)
-    and flips single variables while that improves it. The model is monotone in every part
+    and takes the best single or pair flip while one improves it. The model is monotone in every part
     value; f is not monotone in the integrator error Ve = Vos1 + Ib·R3 (it peaks at
     Ve = (VH - VL)/2), so the 16 best corners of each extreme are then scanned along the
     offset and bias variables.

@@ -44,7 +44,7 @@ from __future__ import annotations
 import math
 from collections import deque
 from dataclasses import dataclass
-from typing import Any, NamedTuple
+from typing import Any, Literal, NamedTuple
 
 import numpy as np
 
@@ -413,7 +413,8 @@ def _run(loop: _Loop, periods: int, settle_periods: int) -> _Trace:
             if t + u > t:
                 segments.append(_Segment(t, t + u, vt, a1, a2, vs, slope_vs))
             vs_end = target if u == u_square else vs + slope_vs * u
-            note_crossing(t + u, vs, vs_end)
+            if slope_vs != 0:
+                note_crossing(t + min(max((mid - vs) / slope_vs, 0.0), u), vs, vs_end)
             t += u
             vt = min(max(vt + a1 * u + a2 * u * u, loop.v_low), loop.v_high)
             vs = vs_end
@@ -500,7 +501,7 @@ def _sample(
         times = np.linspace(t_a, t_b, max_points // 2)
         corners = np.empty(0)
 
-    def evaluate(at: np.ndarray, side: str) -> tuple[np.ndarray, np.ndarray]:
+    def evaluate(at: np.ndarray, side: Literal["left", "right"]) -> tuple[np.ndarray, np.ndarray]:
         k = np.clip(np.searchsorted(starts, at, side=side) - 1, 0, len(segs) - 1)
         u = at - starts[k]
         c = coeffs[k]

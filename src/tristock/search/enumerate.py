@@ -60,6 +60,16 @@ class _Pairs:
         return _Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
 
 
+def _ranges(
+    lo: NDArray[np.int64], hi: NDArray[np.int64]
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Flatten index ranges [lo[n], hi[n]): (n for each element, the element's index)."""
+    counts = np.maximum(hi - lo, 0)
+    which = np.repeat(np.arange(len(counts), dtype=np.int64), counts)
+    offsets = np.repeat(np.cumsum(counts) - counts, counts)
+    return which, (np.repeat(lo, counts) + np.arange(len(which)) - offsets).astype(np.int64)
+
+
 def _products(model: SearchModel) -> _Products:
     res, cap = model.resistors, model.capacitors
     i3 = np.repeat(np.arange(len(res), dtype=np.int64), len(cap))
@@ -81,10 +91,7 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
     for o in model.opamps:
         lo = np.searchsorted(ln_r, ln_r - o.ln_k_target - ab - 1e-12, side="left")
         hi = np.searchsorted(ln_r, ln_r - o.ln_k_target - aa + 1e-12, side="right")
-        counts = np.maximum(hi - lo, 0)
-        i1 = np.repeat(np.arange(len(ln_r), dtype=np.int64), counts)
-        offsets = np.repeat(np.cumsum(counts) - counts, counts)
-        i2 = (np.repeat(lo, counts) + np.arange(len(i1)) - offsets).astype(np.int64)
+        i1, i2 = _ranges(lo, hi)
         e_a = ln_r[i1] - ln_r[i2] - o.ln_k_target
         base = (
             model.opamp_term(o)
