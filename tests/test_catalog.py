@@ -304,7 +304,7 @@ def test_demo_files_start_with_the_stock_room_name() -> None:
 # Stock updates
 
 ODD_TABLE = (
-    b"# odd but valid: CRLF, quotes, blanks, comments\r\n"
+    b"\xef\xbb\xbf# odd but valid: byte-order mark, CRLF, quotes, blanks, comments\r\n"
     b"\r\n"
     b" id , value_ohm ,tolerance_pct,tempco_ppm,series,power_w,package,unit_cost, stock \r\n"
     b'"Q-1" ,  1k ,1,100,E96,0.1,"0603",0.004,  "250"  \r\n'

@@ -3,7 +3,9 @@
 A catalog is a directory with ``resistors.csv``, ``capacitors.csv``, ``opamps.csv`` and,
 optionally, ``pots.csv``. Each file has one header row and one part per row; columns may come in
 any order. Empty lines and lines whose first non-blank character is ``#`` are skipped, but line
-numbers in messages always count every physical line of the file.
+numbers in messages always count every physical line of the file. Cells may be quoted
+(``"0603"``, a doubled quote inside stands for one) but may not span lines; blanks around a cell
+are ignored; a UTF-8 byte-order mark is allowed.
 
 Loading is all-or-nothing: every problem in every file is collected, then raised once as a
 :class:`CatalogError` whose issues print as ``file:line: column: message``.
