@@ -138,7 +138,7 @@ def _yield_bound(
 
 
 def _open(
-    model: SearchModel, products: _Products, pairs: _Pairs, theta: int | None
+    model: SearchModel, products: _Products, pairs: _Pairs, theta: int | None, coupled: bool
 ) -> tuple[Rows, int]:
     """Rows of the pairs' windows that can still score ``theta`` or better, and how many
     rows were scored."""
@@ -173,13 +173,24 @@ def _open(
         keep = pairs.base[which] + products.term[idx] - credit <= theta
         which, idx = which[keep], idx[keep]
     rows = evaluate(
-        model, pairs.u[which], pairs.i1[which], pairs.i2[which], products.i3[idx], products.j[idx]
+        model,
+        pairs.u[which],
+        pairs.i1[which],
+        pairs.i2[which],
+        products.i3[idx],
+        products.j[idx],
+        coupled=coupled,
     )
     return rows, len(which)
 
 
-def enumerate_top(model: SearchModel, top: int, time_limit_s: float) -> EngineResult:
+def enumerate_top(
+    model: SearchModel, top: int, time_limit_s: float, *, coupled: bool = True
+) -> EngineResult:
     """The ``top`` best combinations, exact within the search model.
+
+    ``coupled=False`` ignores stock shared between positions and the cost cap (the CP-SAT
+    engine lists its table this way and enforces those itself).
 
     In the yield mode the pair bound is an upper bound on the yield estimate (see
     ``_yield_bound``) and windows are not narrowed.
@@ -193,7 +204,9 @@ def enumerate_top(model: SearchModel, top: int, time_limit_s: float) -> EngineRe
     proven = True
     m = max(16, 2 * top)
     while True:
-        rows, scored = _open(model, products, pairs.take(np.arange(min(m, len(pairs.u)))), None)
+        rows, scored = _open(
+            model, products, pairs.take(np.arange(min(m, len(pairs.u)))), None, coupled
+        )
         evaluated += scored
         found = best(model, rows, top)
         if len(found) >= top or m >= len(pairs.u):
@@ -211,7 +224,7 @@ def enumerate_top(model: SearchModel, top: int, time_limit_s: float) -> EngineRe
                 proven = False
                 break
             sel = np.arange(start, min(start + chunk, len(todo.u)))
-            rows, scored = _open(model, products, todo.take(sel), theta)
+            rows, scored = _open(model, products, todo.take(sel), theta, coupled)
             evaluated += scored
             found = best(model, Rows.concat([found, rows]), top)
             theta = int(found.primary[-1])

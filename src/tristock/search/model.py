@@ -508,25 +508,6 @@ def frequency_error(
     return np.asarray(np.log((x + d) / (np.exp(ln_p) + d)), dtype=float)
 
 
-def r3_window(
-    model: SearchModel, u: NDArray[np.int64], ln_kc: NDArray[np.float64]
-) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """ln R3 bounds that put e_f inside the frequency band, for ln(k·C1) = ``ln_kc``.
-
-    From e_f = ln((X + d)/(P + d)): P = (X + d)·exp(-e_f) - d, so the band [a, b] on e_f maps
-    to P in [(X + d)e^(-b) - d, (X + d)e^(-a) - d].
-    """
-    a, b = model.band_f
-    x = np.array([o.x for o in model.opamps])[u]
-    d = np.array([o.d for o in model.opamps])[u]
-    p_lo = (x + d) * math.exp(-b) - d
-    p_hi = (x + d) * math.exp(-a) - d
-    with np.errstate(divide="ignore", invalid="ignore"):
-        lo = np.where(p_lo > 0, np.log(np.maximum(p_lo, 1e-300)), -np.inf) - ln_kc
-    hi = np.log(p_hi) - ln_kc
-    return lo, hi
-
-
 def evaluate(
     model: SearchModel,
     u: NDArray[np.int64],
@@ -534,11 +515,14 @@ def evaluate(
     i2: NDArray[np.int64],
     i3: NDArray[np.int64],
     j: NDArray[np.int64],
+    *,
+    coupled: bool = True,
 ) -> Rows:
     """Score combinations and keep those meeting every constraint of the spec.
 
-    Constraints: frequency and amplitude bands under the spec's guarantee, stock x boards with
-    a stock code used in two positions counted twice, cost per board, capacitor voltage.
+    Constraints: frequency and amplitude bands under the spec's guarantee, capacitor voltage,
+    and (when ``coupled``) stock x boards with a stock code used in two positions counted
+    twice and the cost per board. ``coupled=False`` leaves those two to the CP-SAT engine.
     """
     spec, res, cap = model.spec, model.resistors, model.capacitors
     ops = model.opamps
@@ -557,13 +541,14 @@ def evaluate(
     uses1 = 1 + same12 + same13
     uses2 = 1 + same12 + same23
     uses3 = 1 + same13 + same23
-    ok &= (res.stock[i1] >= boards * uses1) & (res.stock[i2] >= boards * uses2)
-    ok &= res.stock[i3] >= boards * uses3
+    if coupled:
+        ok &= (res.stock[i1] >= boards * uses1) & (res.stock[i2] >= boards * uses2)
+        ok &= res.stock[i3] >= boards * uses3
     lines = (3 + ~same12 + (~same13 & ~same23)).astype(np.int64)
 
     u_cost = np.array([o.part.cost_per_board for o in ops])[u]
     cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j]
-    if spec.limits.max_cost is not None:
+    if coupled and spec.limits.max_cost is not None:
         ok &= cost <= spec.limits.max_cost + 1e-12
     peak = np.array([o.peak_v for o in ops])[u]
     ok &= cap.voltage[j] >= peak * (1 + spec.triangle.tolerance_pct / 100)
