@@ -433,8 +433,8 @@ def worst_case(
 
     With n spread variables: n <= ``max_corner_variables`` evaluates all 2^n corners at once;
     otherwise each extreme starts from every variable at its better end (one-at-a-time probe)
-    and takes the best single or pair flip while one improves it. The model is monotone in every part
-    value; f is not monotone in the integrator error Ve = Vos1 + Ib·R3 (it peaks at
+    and takes the best single or pair flip while one improves it. The model is monotone in
+    every part value; f is not monotone in the integrator error Ve = Vos1 + Ib·R3 (it peaks at
     Ve = (VH - VL)/2), so the 16 best corners of each extreme are then scanned along the
     offset and bias variables.
     """
