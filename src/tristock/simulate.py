@@ -322,27 +322,29 @@ def _integrator_piece(
 
 
 def _stuck_message(loop: _Loop, t: float, vt: float, vs: float) -> str:
+    """Why the loop stopped: the triangle is held at a swing limit short of a threshold beyond
+    it, or the integrator runs away from the threshold (its error voltage beats the swing)."""
     trip = loop.trip_level(vs)
+    rate = loop.rate(vs)
     state = "high" if vs >= loop.v_mid else "low"
     where = (
         f"at t = {format_value(t, 's', 4)} the square is {state} ({vs:.4g} V) and the comparator "
         f"flips only when the triangle reaches {trip:.4g} V"
     )
-    tol = loop.tolerance_v
-    if vt >= loop.v_high - tol or vt <= loop.v_low + tol:
-        side = "upper" if vt >= loop.v_high - tol else "lower"
+    if rate != 0 and (rate > 0) == (trip > vt):
+        side = "upper" if rate > 0 else "lower"
         return (
-            f"the loop does not oscillate: {where}, but the integrator output is held at its "
+            f"the loop does not oscillate: {where}, but the integrator output stops at its "
             f"{side} swing limit {vt:.4g} V (output range {loop.v_low:.4g} V to "
-            f"{loop.v_high:.4g} V). The thresholds lie beyond the integrator's swing: reduce "
+            f"{loop.v_high:.4g} V): the thresholds lie beyond the integrator's swing. Reduce "
             f"R1/R2 (now {loop.r1 / loop.r2:.4g}) or widen the swing."
         )
-    rate = loop.rate(vs)
     return (
-        f"the loop does not oscillate: {where}, but the triangle is at {vt:.4g} V moving at "
-        f"{rate:.4g} V/s, away from it: the integrator's error voltage Vos1 + Ib1·R3 = "
-        f"{loop.vos1 + loop.ib1 * loop.r3:.4g} V cancels the square's swing about the "
-        f"reference {loop.v_ref:.4g} V."
+        f"the loop does not oscillate: {where}, but the triangle sits at {vt:.4g} V with the "
+        f"integrator driven at {rate:.4g} V/s, away from that level: its error voltage "
+        f"Vos1 + Ib1·R3 = {loop.vos1 + loop.ib1 * loop.r3:.4g} V lies outside the square's "
+        f"swing about the reference ({loop.v_low - loop.v_ref:.4g} V to "
+        f"{loop.v_high - loop.v_ref:.4g} V)."
     )
 
 
