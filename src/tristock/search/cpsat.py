@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from ortools.sat.python import cp_model
 
-from tristock.search.enumerate import EngineResult, enumerate_top
+from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import COST_RESOLUTION, SECONDARY_SPAN, Rows, SearchModel, rank_key
 
 

@@ -1,0 +1,87 @@
+"""Result models shared by the CLI's ``--json`` and the HTTP API (same field names)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from pydantic import BaseModel, ConfigDict
+
+from tristock.spec import Spec
+
+
+class _Out(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class PartOut(_Out):
+    """One designator's part: stock code, value in SI units, and what the BOM needs."""
+
+    id: str
+    kind: str
+    value: float | None
+    display: str
+    tolerance_pct: float | None = None
+    unit_cost: float
+    pieces_per_board: int
+    stock: int
+
+
+class Predicted(_Out):
+    frequency_hz: float
+    amplitude_vpp: float
+    duty_high: float
+    offset_v: float
+    square_high_v: float
+    square_low_v: float
+
+
+class ErrorOut(_Out):
+    """Nominal prediction against the target, percent."""
+
+    frequency_pct: float
+    amplitude_pct: float
+
+
+class WarningOut(_Out):
+    code: str
+    severity: str
+    message: str
+
+
+class Candidate(_Out):
+    rank: int
+    parts: dict[str, PartOut]
+    predicted: Predicted
+    error: ErrorOut
+    worst_case: dict[str, Any]
+    yield_fraction: float
+    yield_detail: dict[str, Any]
+    sensitivity: dict[str, dict[str, float]]
+    drift: dict[str, float]
+    cost: float
+    bom_lines: int
+    score: int
+    warnings: list[WarningOut]
+
+
+class Infeasible(_Out):
+    reasons: list[str]
+
+
+class SearchInfo(_Out):
+    engine: str
+    proven_optimal: bool
+    elapsed_s: float
+    combinations: int
+    evaluated: int
+    score_resolution: float
+    dropped_by_full_model: int
+    time_limit_s: float
+
+
+class DesignResult(_Out):
+    spec: Spec
+    candidates: list[Candidate]
+    infeasible: Infeasible | None
+    search: SearchInfo
+    cautions: list[str]

@@ -1,0 +1,117 @@
+"""Plain-words reasons why a spec has no answer in a catalog.
+
+Each reason names the constraint that binds, with numbers: what the spec needs, what the
+catalog offers, and the nearest it comes.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+
+from tristock.catalog import Catalog
+from tristock.search.enumeration import enumerate_top
+from tristock.search.model import SearchModel, build_model
+from tristock.units import format_value
+
+
+def _series_text(model: SearchModel) -> str:
+    names = model.spec.limits.resistor_series
+    return "/".join(names) if names else "any series"
+
+
+def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:
+    """Why ``model`` has no candidate, most basic cause first."""
+    spec = model.spec
+    lim = spec.limits
+    boards = spec.build.boards
+    reasons: list[str] = []
+    r_lo = format_value(lim.resistance_min_ohm, "Ω")
+    r_hi = format_value(lim.resistance_max_ohm, "Ω")
+
+    if not model.opamps:
+        for e in model.exclusions:
+            if e.designator == "U1":
+                reasons.append(f"op amp {e.part_id}: {e.reason}")
+        if lim.opamps is not None:
+            missing = [i for i in lim.opamps if i not in {o.id for o in catalog.opamps}]
+            if missing:
+                reasons.append(f"limits.opamps names ids not in the catalog: {', '.join(missing)}")
+        reasons.insert(0, "no op amp in the catalog can be used:")
+        return reasons
+    if len(model.resistors) == 0:
+        return [
+            f"no resistor in {_series_text(model)} between {r_lo} and {r_hi} "
+            f"with stock for {boards} boards"
+        ]
+    if len(model.capacitors) == 0:
+        short = Counter(e.reason.split(" ")[0] for e in model.exclusions if e.designator == "C1")
+        return [
+            f"no {'/'.join(lim.dielectrics)} capacitor in stock x {boards} boards "
+            f"with a voltage rating above the triangle peak"
+            + (f" ({sum(short.values())} excluded by stock or rating)" if short else "")
+        ]
+
+    ln_r = model.resistors.ln_value
+    aa, ab = model.band_a
+    any_pair = False
+    for o in model.opamps:
+        k = math.exp(o.ln_k_target)
+        ratios = ln_r[:, None] - ln_r[None, :]
+        ok = (ratios - o.ln_k_target >= aa) & (ratios - o.ln_k_target <= ab)
+        if ok.any():
+            any_pair = True
+            continue
+        nearest = float(math.exp(ratios.flat[abs(ratios - o.ln_k_target).argmin()]))
+        reasons.append(
+            f"{spec.triangle.amplitude_vpp:g} Vpp needs k = R1/R2 = {k:.4g} with the "
+            f"+{o.vh:.2f}/-{o.vl:.2f} V swing of {o.part.id}; no R1/R2 pair in "
+            f"{_series_text(model)} within ±{spec.triangle.tolerance_pct:g} % "
+            f"(nearest {nearest:.4g})"
+        )
+    if not any_pair:
+        return reasons
+
+    nominal = spec.model_copy(update={"limits": lim.model_copy(update={"guarantee": "nominal"})})
+    relaxed = enumerate_top(build_model(nominal, catalog), 1, 2.0, coupled=False)
+    if len(relaxed.rows) == 0:
+        return [
+            f"no R3·C1 product from {_series_text(model)} resistors ({r_lo}..{r_hi}) and "
+            f"{'/'.join(lim.dielectrics)} capacitors puts the frequency within "
+            f"±{spec.frequency.tolerance_pct:g} % of {format_value(spec.frequency.target_hz, 'Hz')}"
+            " with any usable op amp and R1/R2 pair"
+        ]
+    if lim.guarantee != "nominal":
+        strict = enumerate_top(model, 1, 2.0, coupled=False)
+        if len(strict.rows) == 0:
+            what = (
+                "at every corner of tolerance, rails and temperature"
+                if lim.guarantee == "worst_case"
+                else f"with an estimated yield of at least {lim.min_yield:.1%}"
+            )
+            return [
+                f"combinations meet the nominal bands, but none holds them {what}; "
+                "widen the bands, choose tighter parts or relax limits.guarantee"
+            ]
+    coupled = enumerate_top(model, 1, 2.0, coupled=True)
+    if len(coupled.rows) == 0:
+        cheapest = float(relaxed.rows.cost.min())
+        out = []
+        if lim.max_cost is not None:
+            out.append(
+                f"combinations meet the bands, but max_cost {lim.max_cost:g} per board or "
+                f"stock for {boards} boards rules them all out (one that meets the bands "
+                f"costs {cheapest:.4g})"
+            )
+        else:
+            out.append(
+                f"combinations meet the bands, but stock for {boards} boards rules them out "
+                "(a part used in two positions needs twice the pieces)"
+            )
+        return out
+    if dropped:
+        return [
+            f"the search found {dropped} combination(s), but the full circuit model "
+            "(offset, bias current, GBW) puts each outside the spec"
+        ]
+    return ["no combination meets the spec within the time limit"]
