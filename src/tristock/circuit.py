@@ -509,7 +509,7 @@ class Oscillator:
             f"{_signed(float(p.offset_v), 'V')}; peaks {_signed(float(p.peak_high_v), 'V')} / "
             f"{_signed(float(p.peak_low_v), 'V')}, thresholds "
             f"{_signed(float(p.threshold_high_v), 'V')} / {_signed(float(p.threshold_low_v), 'V')}",
-            f"  slope {_fmt(float(p.slope_v_per_s) * 1e-6, 'V/µs')}, effective switching delay "
+            f"  slope {float(p.slope_v_per_s) * 1e-6:.3g} V/µs, effective switching delay "
             f"{_fmt(float(p.effective_delay_s), 's')}",
         ]
         return "\n".join(lines)
