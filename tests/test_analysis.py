@@ -317,6 +317,28 @@ def test_vectorised_corners_agree_with_the_oscillator_path(
     assert wc.frequency_hz[0] < f_nom < wc.frequency_hz[1]
 
 
+def test_interior_frequency_maximum_in_the_integrator_error_is_found() -> None:
+    # T = R3·C1·k·(VH + VL)²/((VH - Ve)(VL + Ve)) (DESIGN.md): f peaks where VH - Ve = VL + Ve,
+    # at f = 1/(4·k·R3·C1) (AM-GM, common practice). Here Ve = Ib·R3 runs over 0..0.2 V (bias
+    # 0..2 µA into 100 kΩ) and the peak Ve = (VH - VL)/2 = 0.11725 V lies inside: no corner.
+    u1 = opamp(swing_neg_v=1.2345, bias_a=1e-6)
+    design = Design(
+        u1,
+        resistor("RT-1", 10e3),
+        resistor("RT-2", 20e3),
+        resistor("RT-3", 100e3),
+        capacitor(1e-9),
+    )
+    wc = worst_case(design, make_spec())
+    assert wc.variables == ("U1.bias",)
+    assert wc.frequency_hz[1] == pytest.approx(1 / (4 * 0.5 * 100e3 * 1e-9), rel=1e-12)
+    vh, vl = 11.0, 12 - 1.2345
+    corner_f = [(vh - ve) * (vl + ve) / (100e-6 * 0.5 * (vh + vl) ** 2) for ve in (0.0, 0.2)]
+    assert wc.frequency_hz[0] == pytest.approx(min(corner_f), rel=1e-12)
+    assert wc.frequency_hz[1] > max(corner_f) * (1 + 1e-6)
+    assert wc.corners["frequency_hz_hi"]["U1.bias"] == "1.17 µA"
+
+
 def test_tracking_resistors_give_no_amplitude_spread_over_temperature() -> None:
     # R1, R2 from one series with equal tempco: k = R1/R2 is the same at every temperature
     # (value(T) = value·(1 + tc·(T - 25 °C)), DESIGN.md), so A = (VH + VL)·k cannot move.

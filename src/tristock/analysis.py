@@ -51,6 +51,8 @@ from tristock.units import format_value
 
 FloatArray = npt.NDArray[np.float64]
 Distribution = Literal["normal", "uniform"]
+#: A float, or an array of floats once deviations are applied.
+Value = float | FloatArray
 
 #: Comparator slew-rate spread, ± fraction of the catalogued value.
 SLEW_SPREAD = 0.20
@@ -84,22 +86,22 @@ _METRICS = ("frequency_hz", "amplitude_vpp", "duty_high")
 class _Point:
     """Every argument of ``predict`` plus the rails; floats or broadcastable arrays."""
 
-    r1: Any
-    r2: Any
-    r3: Any
-    c1: Any
-    v_pos: Any
-    v_neg: Any
-    swing_pos: Any
-    swing_neg: Any
-    slew_rise: Any
-    slew_fall: Any
-    delay: Any
-    gbw: Any
-    vos1: Any
-    ib1: Any
-    vos2: Any
-    ib2: Any
+    r1: Value
+    r2: Value
+    r3: Value
+    c1: Value
+    v_pos: Value
+    v_neg: Value
+    swing_pos: Value
+    swing_neg: Value
+    slew_rise: Value
+    slew_fall: Value
+    delay: Value
+    gbw: Value
+    vos1: Value
+    ib1: Value
+    vos2: Value
+    ib2: Value
 
 
 @dataclass(frozen=True)
