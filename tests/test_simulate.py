@@ -242,7 +242,7 @@ def test_integrator_error_beyond_the_swing_raises() -> None:
 def test_bad_arguments_name_the_field(field: str, kwargs: dict[str, object]) -> None:
     osc = _osc(10e3, 27e3, 10e3, 10e-9, Rails(12.0, -12.0))
     with pytest.raises(ValueError, match=field):
-        simulate(osc, **kwargs)  # type: ignore[arg-type]
+        simulate(osc, **kwargs)
 
 
 # --- waveforms and JSON ------------------------------------------------------------------------
@@ -375,7 +375,7 @@ def valid_oscillators(draw: st.DrawFn) -> Oscillator:
     return osc
 
 
-@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.filter_too_much])
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.filter_too_much])
 @given(valid_oscillators())
 def test_simulation_agrees_with_the_closed_form(osc: Oscillator) -> None:
     # tristock.circuit.predict with gbw = inf (the simulation has no GBW term): within its

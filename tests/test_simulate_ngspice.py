@@ -1,0 +1,177 @@
+"""The time-domain simulation against ngspice transient runs (reference: ngspice 39, Debian
+package), netlists generated from the values under test by tests/ngspice_harness.py.
+
+The ngspice comparator is a tanh decision (gain 1e6), a matched lossless line as pure delay
+and a linear slew limiter with separate rise and fall rates; the integrator a VCVS of gain
+1e6 with Vos1 at its + input and current sources for Ib1 and Ib2 on the pins. That is the
+model simulate() solves exactly, so the differences are ngspice's: its time step (10 ns here;
+reference/NOTES.md reports about 1e-4 on the period at that step), the 1 mV soft landing of
+the slew limiter and the 6 significant digits of .meas. The three runs go concurrently; each
+test prints its measured errors (pytest -s) and records them as user properties.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import pytest
+
+from ngspice_harness import NgspiceError, SimCase, require_ngspice, simulate_many
+from tristock.circuit import OpAmpModel, Oscillator, Rails, square_levels
+from tristock.simulate import Measured, simulate
+
+pytestmark = pytest.mark.ngspice
+
+#: Agreement asked of every run (relative on frequency and amplitude, absolute on duty, volts
+#: on the midpoint). Tighter than the 0.2 % / 1 % aim because ngspice allows it: the measured
+#: differences were at most 1.2e-5 (frequency), 1.2e-4 (amplitude), 4e-5 (duty) and 0.1 mV
+#: (midpoint), and NOTES.md puts the 10 ns step's error near 1e-4.
+FREQUENCY_REL = 5e-4
+AMPLITUDE_REL = 2e-3
+DUTY_ABS = 5e-4
+MIDPOINT_V = 0.005
+
+
+@dataclass(frozen=True)
+class Run:
+    osc: Oscillator
+    sim: Measured
+    case: SimCase
+
+
+def _run(osc: Oscillator) -> Run:
+    """simulate() on ``osc`` and the ngspice case built from the same values."""
+    sim = simulate(osc, periods=6)
+    vh, vl = square_levels(osc.rails, osc.opamp)
+    ref = osc.rails.reference_v
+    m = osc.opamp
+    case = SimCase(
+        r1=osc.r1,
+        r2=osc.r2,
+        r3=osc.r3,
+        c1=osc.c1,
+        v_high=ref + vh,
+        v_low=ref - vl,
+        v_ref=ref,
+        period_guess_s=sim.measured.period_s,
+        comparator="slew",
+        delay_s=m.delay_s,
+        slew_rise=m.slew_rise_v_per_s,
+        slew_fall=m.slew_fall_v_per_s,
+        vos1=m.offset_v,
+        ib1=m.bias_a,
+        vos2=m.comparator_offset_v,
+        ib2=m.comparator_bias_a,
+        periods=6,
+        max_step_s=10e-9,
+    )
+    return Run(osc, sim.measured, case)
+
+
+def _amp(
+    swing: tuple[float, float], rise: float, fall: float, delay: float, **errors: float
+) -> OpAmpModel:
+    return OpAmpModel(swing[0], swing[1], rise, fall, delay, math.inf, **errors)
+
+
+RUNS: dict[str, Run] = {
+    # single 12 V supply, mid-rail reference, VH = 5.5 V, VL = 4.5 V; rise 2 V/µs, fall
+    # 4 V/µs (τ = 5 µs and 2.5 µs), 1.5 µs delay: the reference slew-delay pattern, moved
+    "single_supply_slew": _run(
+        Oscillator(10e3, 27e3, 10e3, 10e-9, _amp((0.5, 1.5), 2e6, 4e6, 1.5e-6), Rails(12.0, 0.0))
+    ),
+    # single 10 V supply with its own 4 V reference: VH = 5.7 V, VL = 3.7 V; rise 3 V/µs,
+    # fall 1.5 V/µs, 0.8 µs delay
+    "own_reference_slew": _run(
+        Oscillator(
+            8.2e3,
+            22e3,
+            15e3,
+            6.8e-9,
+            _amp((0.3, 0.3), 3e6, 1.5e6, 0.8e-6),
+            Rails(10.0, 0.0, v_ref=4.0),
+        )
+    ),
+    # split ±15 V with every error source: Ve = 0.15 V + 5 µA·22 kΩ = 0.26 V, comparator
+    # threshold shift (1 + k)·(50 mV + 20 µA·(R1 ∥ R2)) ≈ 0.47 V, slew 5 V/µs, 1 µs delay
+    "errors_slew": _run(
+        Oscillator(
+            20e3,
+            51e3,
+            22e3,
+            4.7e-9,
+            _amp(
+                (1.2, 0.8),
+                5e6,
+                5e6,
+                1e-6,
+                offset_v=0.15,
+                bias_a=5e-6,
+                comparator_offset_v=0.05,
+                comparator_bias_a=20e-6,
+            ),
+            Rails(15.0, -15.0),
+        )
+    ),
+}
+
+
+@pytest.fixture(scope="module")
+def spice() -> dict[str, dict[str, float] | NgspiceError]:
+    require_ngspice()
+    return simulate_many({name: run.case for name, run in RUNS.items()}, timeout_s=60.0)
+
+
+def _errors(
+    name: str,
+    spice: dict[str, dict[str, float] | NgspiceError],
+    record: Callable[[str, object], None],
+) -> dict[str, float]:
+    got = spice[name]
+    if isinstance(got, NgspiceError):
+        pytest.fail(f"ngspice run {name!r} failed: {got}")
+    m = RUNS[name].sim
+    err = {
+        "frequency_rel": m.frequency_hz * got["per"] - 1.0,
+        "amplitude_rel": m.amplitude_vpp / got["vtpp"] - 1.0,
+        "duty_abs": m.duty_high - got["duty"],
+        "peak_high_v": m.peak_high_v - got["vtmax"],
+        "peak_low_v": m.peak_low_v - got["vtmin"],
+        "midpoint_v": m.offset_v - got["vtmid"],
+    }
+    print(f"\n{name}: simulate - ngspice: " + ", ".join(f"{k} {v:+.2e}" for k, v in err.items()))
+    for key, value in err.items():
+        record(f"{name}_{key}", value)
+    return err
+
+
+@pytest.mark.parametrize("name", sorted(RUNS))
+def test_simulation_matches_ngspice(
+    name: str,
+    spice: dict[str, dict[str, float] | NgspiceError],
+    record_property: Callable[[str, object], None],
+) -> None:
+    err = _errors(name, spice, record_property)
+    assert abs(err["frequency_rel"]) < FREQUENCY_REL
+    assert abs(err["amplitude_rel"]) < AMPLITUDE_REL
+    assert abs(err["duty_abs"]) < DUTY_ABS
+    assert abs(err["midpoint_v"]) < MIDPOINT_V
+
+
+def test_comparator_bias_sign_is_seen_by_ngspice(
+    spice: dict[str, dict[str, float] | NgspiceError],
+) -> None:
+    # The errors run carries a comparator bias current whose threshold shift, (1 + k)·Ib2·(R1 ∥ R2)
+    # ≈ 0.40 V, is eighty times the midpoint tolerance: the opposite sign would miss by 0.8 V.
+    run = RUNS["errors_slew"]
+    got = spice["errors_slew"]
+    if isinstance(got, NgspiceError):
+        pytest.fail(f"ngspice run failed: {got}")
+    osc = run.osc
+    k = osc.r1 / osc.r2
+    term = (1.0 + k) * osc.opamp.comparator_bias_a * osc.r1 * osc.r2 / (osc.r1 + osc.r2)
+    assert term > 20 * MIDPOINT_V
+    assert abs(run.sim.offset_v - got["vtmid"]) < MIDPOINT_V
+    assert abs(run.sim.offset_v - 2.0 * term - got["vtmid"]) > 40 * MIDPOINT_V
