@@ -142,7 +142,7 @@ def _predict(point: _Point, v_ref: float | None) -> Prediction:
     v_pos = np.asarray(point.v_pos, dtype=float)
     v_neg = np.asarray(point.v_neg, dtype=float)
     if v_ref is not None:
-        ref: Any = v_ref
+        ref: Value = v_ref
     else:
         ref = np.where(v_neg < 0.0, 0.0, (v_pos + v_neg) / 2.0)
     vh = v_pos - point.swing_pos - ref
