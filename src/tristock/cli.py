@@ -1,0 +1,446 @@
+"""The ``tristock`` command: design, analyse, simulate and keep the part tables.
+
+Exit codes: 0 done; 1 the work failed (catalog errors, no oscillation); 2 bad input (arguments,
+spec or design file), always as one line on stderr and never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from importlib import resources
+from pathlib import Path
+from typing import Any, NoReturn
+
+from tristock import __version__
+from tristock.analysis import analyse
+from tristock.catalog import Catalog, CatalogError, StockError, load_catalog, set_stock
+from tristock.checks import check
+from tristock.design import Design, rails_from_supply
+from tristock.designfile import load_design
+from tristock.results import DesignResult
+from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design, part_out
+from tristock.spec import Spec, SpecError, load_spec
+from tristock.units import format_value
+
+
+class UsageError(Exception):
+    """Bad input from the user: reported as one line, exit 2."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> NoReturn:
+        raise UsageError(f"{self.prog}: {message} (see --help)")
+
+
+def demo_catalog_dir() -> Path:
+    """The bundled demo stock room: inside the installed package, else the source tree."""
+    packaged = resources.files("tristock") / "demo_catalog"
+    if packaged.is_dir():
+        return Path(str(packaged))
+    return Path(__file__).resolve().parents[2] / "catalogs" / "demo"
+
+
+def example_spec_path() -> Path:
+    return Path(str(resources.files("tristock") / "examples" / "demo.toml"))
+
+
+def _catalog(path: str | None, example: bool = False) -> Catalog:
+    directory = demo_catalog_dir() if (path is None and example) else path
+    if directory is None:
+        raise UsageError("--catalog DIR is required")
+    return load_catalog(directory)
+
+
+def _dump(data: Any) -> None:
+    print(json.dumps(data, indent=2, ensure_ascii=False))
+
+
+# ---- design -----------------------------------------------------------------------------
+
+
+def _spec_lines(spec: Spec) -> list[str]:
+    s, f, t, e = spec.supply, spec.frequency, spec.triangle, spec.environment
+    rails = (
+        f"±{s.positive_v:g} V"
+        if s.negative_v == -s.positive_v
+        else f"{s.negative_v:g}/{s.positive_v:g} V (reference {s.reference:g} V)"
+    )
+    lim = spec.limits
+    return [
+        f"target    {format_value(f.target_hz, 'Hz')} ±{f.tolerance_pct:g} %, "
+        f"{t.amplitude_vpp:g} Vpp ±{t.tolerance_pct:g} %",
+        f"rails     {rails} ±{s.tolerance_pct:g} %, {e.temp_min_c:g}..{e.temp_max_c:g} °C, "
+        f"{spec.build.boards} boards",
+        f"limits    guarantee {lim.guarantee}, series {'/'.join(lim.resistor_series or ['any'])}, "
+        f"C1 {'/'.join(lim.dielectrics)}, "
+        f"R {format_value(lim.resistance_min_ohm, 'Ω')}..{format_value(lim.resistance_max_ohm, 'Ω')}"
+        + (f", max cost {lim.max_cost:g}" if lim.max_cost else ""),
+        f"ranking   {spec.ranking.by}, top {spec.ranking.top}",
+    ]
+
+
+def render_design(result: DesignResult) -> str:
+    lines = ["tristock design", *("  " + x for x in _spec_lines(result.spec)), ""]
+    if result.infeasible:
+        lines.append("No design meets the spec:")
+        lines += [f"  - {r}" for r in result.infeasible.reasons]
+    else:
+        head = (
+            f"{'#':>2}  {'U1':<9} {'R1':>9} {'R2':>9} {'R3':>9} {'C1':>14}  "
+            f"{'f':>10} {'err':>7} {'Vpp':>6} {'worst-case f':>17} {'yield':>6} {'cost':>6}"
+        )
+        lines += [head, "-" * len(head)]
+        for c in result.candidates:
+            p = c.parts
+            wc = c.worst_case["frequency_hz"]
+            cap = p["C1"].display.replace(" %", "%")
+            lines.append(
+                f"{c.rank:>2}  {p['U1'].id:<9} "
+                f"{format_value(p['R1'].value or 0, 'Ω'):>9} "
+                f"{format_value(p['R2'].value or 0, 'Ω'):>9} "
+                f"{format_value(p['R3'].value or 0, 'Ω'):>9} {cap:>14}  "
+                f"{format_value(c.predicted.frequency_hz, 'Hz', 5):>10} "
+                f"{c.error.frequency_pct:>+6.2f}% {c.predicted.amplitude_vpp:>6.3f} "
+                f"{format_value(wc[0], '', 4):>8}..{format_value(wc[1], 'Hz', 4):<8} "
+                f"{c.yield_fraction:>6.1%} {c.cost:>6.3f}"
+            )
+        lines.append("")
+        best = result.candidates[0]
+        lines.append("Rank 1 parts: " + ", ".join(f"{k} {v.id}" for k, v in best.parts.items()))
+        for w in best.warnings:
+            lines.append(f"  {w.severity}: {w.message}")
+    s = result.search
+    lines += [
+        "",
+        f"search: {s.engine}, {'proven optimal' if s.proven_optimal else 'NOT proven (time limit)'}"
+        f" within the search model, {s.combinations:,} combinations, {s.evaluated:,} rows "
+        f"scored, {s.elapsed_s:.2f} s, score resolution {s.score_resolution:g}",
+        "",
+        "Cautions:",
+        *(f"  - {c}" for c in CAUTIONS),
+    ]
+    return "\n".join(lines)
+
+
+def cmd_design(args: argparse.Namespace) -> int:
+    if args.example:
+        spec_path = example_spec_path()
+    elif args.spec is None:
+        raise UsageError("design: give a SPEC file or --example")
+    else:
+        spec_path = Path(args.spec)
+    spec = load_spec(spec_path)
+    ranking = spec.ranking.model_copy(
+        update={k: v for k, v in (("top", args.top), ("by", args.by)) if v is not None}
+    )
+    spec = spec.model_validate({**spec.model_dump(), "ranking": ranking.model_dump()})
+    catalog = _catalog(args.catalog, example=args.example)
+    result = design(spec, catalog, engine=args.engine, time_limit_s=args.time_limit)
+    if args.json:
+        _dump(result.model_dump(mode="json"))
+    else:
+        print(render_design(result))
+    return 0
+
+
+# ---- analyse and simulate ---------------------------------------------------------------
+
+
+def analysis_dict(spec: Spec, d: Design, samples: int, seed: int, dist: str) -> dict[str, Any]:
+    result = analyse(d, spec, samples=samples, seed=seed, distribution=dist)  # type: ignore[arg-type]
+    osc = d.oscillator(rails_from_supply(spec.supply))
+    warnings = check(
+        osc, capacitor=d.c1, resistors={"R1": d.r1, "R2": d.r2, "R3": d.r3}, opamp_part=d.u1
+    )
+    uses = d.uses()
+    return {
+        "parts": {
+            k: part_out(p, uses[p.id] if k == "U1" else 1).model_dump()
+            for k, p in d.parts().items()
+        },
+        **result.to_dict(),
+        "cost": round(d.cost_per_board, 6),
+        "bom_lines": d.bom_lines,
+        "warnings": [
+            {"code": w.code, "severity": w.severity, "message": w.message} for w in warnings
+        ],
+    }
+
+
+def render_analysis(spec: Spec, d: Design, data: dict[str, Any]) -> str:
+    osc = d.oscillator(rails_from_supply(spec.supply))
+    p, wc = data["predicted"], data["worst_case"]
+    y = data["yield"]
+    lines = [
+        "tristock analyse",
+        "  parts     "
+        + ", ".join(f"{k} {v['id']} ({v['display']})" for k, v in data["parts"].items()),
+        *("  " + x for x in _spec_lines(spec)[:2]),
+        "",
+        str(osc),
+        "",
+        f"predicted   {format_value(p['frequency_hz'], 'Hz', 5)}, {p['amplitude_vpp']:.4g} Vpp, "
+        f"duty {p['duty_high']:.2%}, offset {format_value(p['offset_v'], 'V')}",
+        f"worst case  f {format_value(wc['frequency_hz'][0], 'Hz', 4)} .. "
+        f"{format_value(wc['frequency_hz'][1], 'Hz', 4)}, "
+        f"A {wc['amplitude_vpp'][0]:.4g} .. {wc['amplitude_vpp'][1]:.4g} Vpp ({wc['method']})",
+        f"yield       {data['yield_fraction']:.2%} into both bands "
+        f"({y.get('samples')} samples, {y.get('distribution')}, seed {y.get('seed')})",
+        f"drift       f {data['drift']['frequency_ppm_per_c']:+.1f} ppm/°C, "
+        f"A {data['drift']['amplitude_ppm_per_c']:+.1f} ppm/°C",
+        "sensitivity (x/f)(df/dx): "
+        + ", ".join(f"{k} {v:+.3g}" for k, v in data["sensitivity"]["frequency"].items()),
+        "sensitivity (x/A)(dA/dx): "
+        + ", ".join(f"{k} {v:+.3g}" for k, v in data["sensitivity"]["amplitude"].items()),
+    ]
+    if data["warnings"]:
+        lines += ["", "Warnings:"] + [
+            f"  {w['severity']}: {w['message']}" for w in data["warnings"]
+        ]
+    lines += ["", "Cautions:", *(f"  - {c}" for c in CAUTIONS)]
+    return "\n".join(lines)
+
+
+def cmd_analyse(args: argparse.Namespace) -> int:
+    catalog = _catalog(args.catalog)
+    spec, d = load_design(Path(args.design), catalog)
+    data = analysis_dict(spec, d, args.samples, args.seed, args.distribution)
+    if args.json:
+        _dump(data)
+    else:
+        print(render_analysis(spec, d, data))
+    return 0
+
+
+def cmd_simulate(args: argparse.Namespace) -> int:
+    from tristock.simulate import SimulationError, simulate
+
+    catalog = _catalog(args.catalog)
+    spec, d = load_design(Path(args.design), catalog)
+    osc = d.oscillator(rails_from_supply(spec.supply))
+    try:
+        result = simulate(osc, periods=args.periods)
+    except SimulationError as err:
+        print(f"tristock simulate: {err}", file=sys.stderr)
+        return 1
+    if args.plot:
+        from tristock.plot import plot_waveforms
+
+        plot_waveforms(result, Path(args.plot), title=f"{d.u1.id}: R3 {d.r3.id}, C1 {d.c1.id}")
+    predicted = osc.prediction()
+    m = result.measured
+    if args.json:
+        data = result.to_dict()
+        data["predicted"] = {
+            "frequency_hz": float(predicted.frequency_hz),
+            "amplitude_vpp": float(predicted.amplitude_vpp),
+            "duty_high": float(predicted.duty_high),
+        }
+        _dump(data)
+    else:
+
+        def row(name: str, meas: float, pred: float, unit: str) -> str:
+            return (
+                f"  {name:<10} {format_value(meas, unit, 6):>14} {format_value(pred, unit, 6):>14}"
+                f" {100 * (meas / pred - 1):>+9.4f} %"
+            )
+
+        print(
+            f"tristock simulate (time domain, settled, {result.periods_measured} periods measured)"
+        )
+        print(f"  {'':<10} {'simulated':>14} {'model':>14} {'difference':>11}")
+        print(row("frequency", m.frequency_hz, float(predicted.frequency_hz), "Hz"))
+        print(row("amplitude", m.amplitude_vpp, float(predicted.amplitude_vpp), "Vpp"))
+        print(row("duty high", m.duty_high, float(predicted.duty_high), ""))
+        if args.plot:
+            print(f"plot written to {args.plot}")
+    return 0
+
+
+# ---- catalog ----------------------------------------------------------------------------
+
+
+def cmd_catalog_check(args: argparse.Namespace) -> int:
+    catalog = load_catalog(args.dir)
+    print(f"ok: {catalog!r}")
+    return 0
+
+
+def cmd_catalog_generate(args: argparse.Namespace) -> int:
+    from tristock.catalog import parse_number
+    from tristock.tablegen import generate_capacitors, generate_resistors, write_table
+
+    def num(text: str, what: str) -> float:
+        try:
+            return parse_number(text)
+        except ValueError as err:
+            raise UsageError(f"--{what}: {err}") from None
+
+    low, high = num(args.low, "from"), num(args.high, "to")
+    try:
+        if args.kind == "resistor":
+            text = generate_resistors(
+                args.series,
+                low,
+                high,
+                args.tolerance,
+                args.tempco or 100.0,
+                args.power,
+                args.package or "0603",
+                args.cost,
+                args.stock,
+                args.prefix or "R",
+            )
+        else:
+            if not args.dielectric:
+                raise UsageError("--dielectric is required for --kind capacitor")
+            text = generate_capacitors(
+                args.series,
+                low,
+                high,
+                args.dielectric,
+                args.tolerance,
+                args.tempco,
+                args.temp_band,
+                args.voltage,
+                args.package or "0805",
+                args.cost,
+                args.stock,
+                args.prefix or "C",
+            )
+    except (ValueError, CatalogError) as err:
+        raise UsageError(f"catalog generate: {err}") from None
+    if args.output:
+        try:
+            write_table(args.output, text, overwrite=args.force)
+        except FileExistsError:
+            raise UsageError(f"{args.output} exists (use --force to replace it)") from None
+        print(f"wrote {args.output}")
+    else:
+        sys.stdout.write(text)
+    return 0
+
+
+def cmd_catalog_set_stock(args: argparse.Namespace) -> int:
+    old = set_stock(args.dir, args.id, args.count)
+    print(f"{args.id}: stock {old} -> {args.count}")
+    return 0
+
+
+# ---- parser -----------------------------------------------------------------------------
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(
+        prog="tristock",
+        description="Pick stock-room parts for an op-amp triangle/square oscillator.",
+    )
+    p.add_argument("--version", action="version", version=f"tristock {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    d = sub.add_parser("design", help="search the catalog for the best designs for a spec")
+    d.add_argument("spec", nargs="?", help="spec file (TOML or JSON)")
+    d.add_argument("--example", action="store_true", help="bundled demo spec and catalog")
+    d.add_argument("--catalog", help="catalog folder (default with --example: the demo)")
+    d.add_argument("--top", type=int, help="how many designs (overrides ranking.top)")
+    d.add_argument(
+        "--by",
+        choices=["balanced", "frequency_error", "cost", "yield"],
+        help="ranking (overrides ranking.by)",
+    )
+    d.add_argument(
+        "--engine",
+        choices=["cpsat", "enumerate"],
+        default="cpsat",
+        help="search engine (default cpsat; both are exact)",
+    )
+    d.add_argument(
+        "--time-limit",
+        type=float,
+        default=DEFAULT_TIME_LIMIT_S,
+        help=f"seconds for the whole search (default {DEFAULT_TIME_LIMIT_S:g})",
+    )
+    d.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    d.set_defaults(func=cmd_design)
+
+    for name, helptext, func in (
+        ("analyse", "nominal, worst case, yield, sensitivities of one design", cmd_analyse),
+        ("simulate", "time-domain simulation of one design against the model", cmd_simulate),
+    ):
+        a = sub.add_parser(name, help=helptext)
+        a.add_argument("design", help="DESIGN file (TOML or JSON): spec + parts")
+        a.add_argument("--catalog", required=True, help="catalog folder")
+        a.add_argument("--json", action="store_true", help="one JSON object on stdout")
+        if name == "analyse":
+            a.add_argument("--samples", type=int, default=20000, help="Monte Carlo samples")
+            a.add_argument("--seed", type=int, default=0, help="Monte Carlo seed")
+            a.add_argument(
+                "--distribution",
+                choices=["normal", "uniform"],
+                default="normal",
+                help="part spread: normal (tolerance = 3σ, truncated) or uniform",
+            )
+        else:
+            a.add_argument("--plot", help="write the waveforms to FILE (.png or .svg)")
+            a.add_argument("--periods", type=int, default=10, help="periods to measure")
+        a.set_defaults(func=func)
+
+    c = sub.add_parser("catalog", help="check, generate or update part tables")
+    csub = c.add_subparsers(dest="catalog_command", required=True, parser_class=_Parser)
+    ck = csub.add_parser("check", help="validate every table of a catalog folder")
+    ck.add_argument("dir")
+    ck.set_defaults(func=cmd_catalog_check)
+    g = csub.add_parser("generate", help="write a resistor or capacitor table for an E-series")
+    g.add_argument("--kind", choices=["resistor", "capacitor"], required=True)
+    g.add_argument("--series", required=True, help="E6 .. E192")
+    g.add_argument("--from", dest="low", required=True, help="lowest value (e.g. 10, 4k7, 10p)")
+    g.add_argument("--to", dest="high", required=True, help="highest value (e.g. 1M, 10u)")
+    g.add_argument("--tolerance", type=float, required=True, help="± %%")
+    g.add_argument("--tempco", type=float, help="ppm/°C")
+    g.add_argument("--temp-band", type=float, help="class II: ± %% over temperature")
+    g.add_argument("--dielectric", help="capacitors: C0G, PP, PET, X7R, ...")
+    g.add_argument("--voltage", type=float, default=50.0, help="capacitors: rated V")
+    g.add_argument("--power", type=float, default=0.1, help="resistors: rated W")
+    g.add_argument("--package", help="package name")
+    g.add_argument("--cost", type=float, default=0.0, help="unit cost")
+    g.add_argument("--stock", type=int, default=0, help="pieces on hand")
+    g.add_argument("--prefix", help="stock-code prefix")
+    g.add_argument("--output", "-o", help="file to write (default: stdout)")
+    g.add_argument("--force", action="store_true", help="replace an existing file")
+    g.set_defaults(func=cmd_catalog_generate)
+    ss = csub.add_parser("set-stock", help="set the pieces on hand of one part (atomic)")
+    ss.add_argument("dir")
+    ss.add_argument("id")
+    ss.add_argument("count", type=int)
+    ss.set_defaults(func=cmd_catalog_set_stock)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    try:
+        args = build_parser().parse_args(argv)
+        return int(args.func(args))
+    except UsageError as err:
+        print(str(err), file=sys.stderr)
+        return 2
+    except SpecError as err:
+        print("tristock: " + "; ".join(err.lines), file=sys.stderr)
+        return 2
+    except CatalogError as err:
+        for issue in err.errors:
+            print(str(issue), file=sys.stderr)
+        return 1
+    except StockError as err:
+        print(f"tristock: {err}", file=sys.stderr)
+        return 2
+    except (FileNotFoundError, IsADirectoryError, PermissionError) as err:
+        print(f"tristock: {err.filename}: {err.strerror}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())
