@@ -24,7 +24,7 @@ an estimate (about 15 % on td_GBW itself).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import cached_property
 from typing import NamedTuple
 
@@ -294,7 +294,9 @@ def predict(
     - period T = t_H + t_L = (VH + VL)·[k·(VH + VL)·RC/(a·b) + d_r/a + d_f/b]
       (ideal switch: T0 = RC·k·(VH + VL)²/(VH·VL); symmetric: T0 + 4·td + 2·τ)
     - duty_high = t_H/T at mid-swing; VL/(VH + VL) when Ve = 0 and d_r = d_f
-    - thresholds +VL·k + s and -VH·k + s with s = (1 + k)·(Vos2 + Ib2·(R1 ∥ R2))
+    - thresholds +VL·k + s and -VH·k + s with s = (1 + k)·(Vos2 + Ib2·(R1 ∥ R2)); Ib2 flows
+      into the + pin, pulling it Ib2·(R1 ∥ R2) below the divider voltage, so it adds to Vos2
+      (the comparator's - input sits at ref + Vos2); period and duty are unchanged
     - overshoot top (b/RC)·(td + td_GBW,r + b/(2·SR_rise)),
       bottom (a/RC)·(td + td_GBW,f + a/(2·SR_fall)) (the triangle ramps on until the square
       crosses the integrator's virtual ground at Ve)
@@ -406,9 +408,6 @@ class Oscillator:
     c1: float
     opamp: OpAmpModel
     rails: Rails
-    _cache: dict[str, Prediction] = field(
-        default_factory=dict, init=False, repr=False, compare=False, hash=False
-    )
 
     def __post_init__(self) -> None:
         for name, unit in (("r1", "ohm"), ("r2", "ohm"), ("r3", "ohm"), ("c1", "F")):
@@ -423,26 +422,28 @@ class Oscillator:
 
     def prediction(self) -> Prediction:
         """The full non-ideal prediction (see ``predict``); computed once."""
-        if "p" not in self._cache:
-            vh, vl = square_levels(self.rails, self.opamp)
-            m = self.opamp
-            self._cache["p"] = predict(
-                self.r1,
-                self.r2,
-                self.r3,
-                self.c1,
-                vh,
-                vl,
-                slew_rise=m.slew_rise_v_per_s,
-                slew_fall=m.slew_fall_v_per_s,
-                delay=m.delay_s,
-                gbw=m.gbw_hz,
-                vos1=m.offset_v,
-                ib1=m.bias_a,
-                vos2=m.comparator_offset_v,
-                ib2=m.comparator_bias_a,
-            )
-        return self._cache["p"]
+        return self._prediction
+
+    @cached_property
+    def _prediction(self) -> Prediction:
+        vh, vl = square_levels(self.rails, self.opamp)
+        m = self.opamp
+        return predict(
+            self.r1,
+            self.r2,
+            self.r3,
+            self.c1,
+            vh,
+            vl,
+            slew_rise=m.slew_rise_v_per_s,
+            slew_fall=m.slew_fall_v_per_s,
+            delay=m.delay_s,
+            gbw=m.gbw_hz,
+            vos1=m.offset_v,
+            ib1=m.bias_a,
+            vos2=m.comparator_offset_v,
+            ib2=m.comparator_bias_a,
+        )
 
     def _get(self, name: str) -> float:
         return float(getattr(self.prediction(), name))
