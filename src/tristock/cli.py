@@ -72,10 +72,11 @@ def _spec_lines(spec: Spec) -> list[str]:
         f"target    {format_value(f.target_hz, 'Hz')} ±{f.tolerance_pct:g} %, "
         f"{t.amplitude_vpp:g} Vpp ±{t.tolerance_pct:g} %",
         f"rails     {rails} ±{s.tolerance_pct:g} %, {e.temp_min_c:g}..{e.temp_max_c:g} °C, "
-        f"{spec.build.boards} boards",
+        f"{spec.build.boards} board{'s' if spec.build.boards != 1 else ''}",
         f"limits    guarantee {lim.guarantee}, series {'/'.join(lim.resistor_series or ['any'])}, "
         f"C1 {'/'.join(lim.dielectrics)}, "
-        f"R {format_value(lim.resistance_min_ohm, 'Ω')}..{format_value(lim.resistance_max_ohm, 'Ω')}"
+        f"R {format_value(lim.resistance_min_ohm, 'Ω')}.."
+        f"{format_value(lim.resistance_max_ohm, 'Ω')}"
         + (f", max cost {lim.max_cost:g}" if lim.max_cost else ""),
         f"ranking   {spec.ranking.by}, top {spec.ranking.top}",
     ]
@@ -253,7 +254,10 @@ def cmd_simulate(args: argparse.Namespace) -> int:
         print(f"  {'':<10} {'simulated':>14} {'model':>14} {'difference':>11}")
         print(row("frequency", m.frequency_hz, float(predicted.frequency_hz), "Hz"))
         print(row("amplitude", m.amplitude_vpp, float(predicted.amplitude_vpp), "Vpp"))
-        print(row("duty high", m.duty_high, float(predicted.duty_high), ""))
+        print(
+            f"  {'duty high':<10} {m.duty_high:>14.4%} {float(predicted.duty_high):>14.4%}"
+            f" {100 * (m.duty_high - float(predicted.duty_high)):>+9.4f} pt"
+        )
         if args.plot:
             print(f"plot written to {args.plot}")
     return 0

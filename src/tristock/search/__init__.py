@@ -79,10 +79,10 @@ def _design_of(model: SearchModel, rows: Rows, n: int) -> Design:
     res, cap = model.resistors.parts, model.capacitors.parts
     return Design(
         u1=model.opamps[rows.u[n]].part,
-        r1=res[rows.i1[n]],  # type: ignore[arg-type]
-        r2=res[rows.i2[n]],  # type: ignore[arg-type]
-        r3=res[rows.i3[n]],  # type: ignore[arg-type]
-        c1=cap[rows.j[n]],  # type: ignore[arg-type]
+        r1=res[rows.i1[n]],
+        r2=res[rows.i2[n]],
+        r3=res[rows.i3[n]],
+        c1=cap[rows.j[n]],
     )
 
 

@@ -26,13 +26,14 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 from scipy.special import ndtr
 
 from tristock.catalog import Catalog
-from tristock.circuit import OpAmpModel, predict, square_levels
+from tristock.circuit import OpAmpModel, Prediction, predict, square_levels
 from tristock.design import rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.spec import Spec
@@ -61,7 +62,7 @@ _TRUNCATED_NORMAL_VAR = 0.9733
 
 
 def _q(x: NDArray[np.float64] | float) -> NDArray[np.int64]:
-    return np.rint(np.asarray(x, dtype=float) / SCORE_RESOLUTION).astype(np.int64)
+    return np.rint(np.asarray(x, dtype=np.float64) / SCORE_RESOLUTION).astype(np.int64)
 
 
 @dataclass(frozen=True)
@@ -97,7 +98,7 @@ class Exclusion:
 class PartTable:
     """Eligible parts of one kind as arrays, sorted by value."""
 
-    parts: list[Resistor] | list[Capacitor]
+    parts: list[Any]  # Resistor or Capacitor rows, sorted by value
     ln_value: NDArray[np.float64]
     tol: NDArray[np.float64]  # fraction
     tempco: NDArray[np.float64]  # ppm/°C
@@ -108,24 +109,21 @@ class PartTable:
 
     @classmethod
     def of(cls, parts: Sequence[Resistor] | Sequence[Capacitor]) -> PartTable:
-        items = sorted(parts, key=lambda p: (p.value, p.id))
-        tempco = [
-            p.tempco_ppm if (p.tempco_ppm is not None) else 0.0  # type: ignore[union-attr]
-            for p in items
-        ]
+        items: list[Any] = sorted(parts, key=lambda p: (p.value, p.id))
+        tempco = [p.tempco_ppm if p.tempco_ppm is not None else 0.0 for p in items]
         band = [
             (p.temp_band_pct or 0.0) / 100 if isinstance(p, Capacitor) and p.is_class_ii else 0.0
             for p in items
         ]
         return cls(
-            parts=items,  # type: ignore[arg-type]
-            ln_value=np.log(np.array([p.value for p in items], dtype=float)),
-            tol=np.array([p.tolerance_pct / 100 for p in items], dtype=float),
-            tempco=np.array(tempco, dtype=float),
-            extra_band=np.array(band, dtype=float),
-            cost=np.array([p.unit_cost for p in items], dtype=float),
+            parts=items,
+            ln_value=np.log(np.array([p.value for p in items], dtype=np.float64)),
+            tol=np.array([p.tolerance_pct / 100 for p in items], dtype=np.float64),
+            tempco=np.array(tempco, dtype=np.float64),
+            extra_band=np.array(band, dtype=np.float64),
+            cost=np.array([p.unit_cost for p in items], dtype=np.float64),
             stock=np.array([p.stock for p in items], dtype=np.int64),
-            voltage=np.array([getattr(p, "voltage_v", math.inf) for p in items], dtype=float),
+            voltage=np.array([getattr(p, "voltage_v", math.inf) for p in items], dtype=np.float64),
         )
 
     def __len__(self) -> int:
@@ -219,7 +217,7 @@ class SearchModel:
 
     def frequency_budget(self, budget: NDArray[np.int64]) -> NDArray[np.float64]:
         """Largest |e_f| whose frequency term is at most ``budget`` (inverse of the above)."""
-        slack = (np.asarray(budget, dtype=float) + 0.5) * SCORE_RESOLUTION * (1 + 1e-9)
+        slack = (np.asarray(budget, dtype=np.float64) + 0.5) * SCORE_RESOLUTION * (1 + 1e-9)
         if self.mode == "balanced":
             return slack * self.band_f[1] / BALANCED_WEIGHTS["frequency_error"]
         if self.mode == "frequency_error":
@@ -265,12 +263,12 @@ class SearchModel:
         sf, sa = np.sqrt(np.maximum(var_f, 1e-30)), np.sqrt(np.maximum(var_a, 1e-30))
         yf = ndtr((fb - e_f) / sf) - ndtr((fa - e_f) / sf)
         ya = ndtr((ab - e_a) / sa) - ndtr((aa - e_a) / sa)
-        return np.asarray(yf * ya, dtype=float)
+        return np.asarray(yf * ya, dtype=np.float64)
 
     @staticmethod
     def variance(tol: NDArray[np.float64]) -> NDArray[np.float64]:
         """Variance of ln(value) for a tolerance: normal, tolerance = 3σ, truncated at it."""
-        return np.asarray((np.log1p(tol) / 3) ** 2 * _TRUNCATED_NORMAL_VAR, dtype=float)
+        return np.asarray((np.log1p(tol) / 3) ** 2 * _TRUNCATED_NORMAL_VAR, dtype=np.float64)
 
 
 # ---- building the model ------------------------------------------------------------------
@@ -368,7 +366,8 @@ def _predict_at(
     p: float,
     slew_scale: float = 1.0,
     delay_scale: float = 1.0,
-) -> object:
+) -> Prediction:
+    """The full model at k, R3 and P = k·R3·C1 (R2 = 100 kΩ; only k matters)."""
     c1 = p / (k * r3)
     return predict(
         k * 100e3,
@@ -385,21 +384,21 @@ def _predict_at(
 
 
 def _rail_spread(
-    part: OpAmp, spec: Spec, k: float, r3: float, p: float, nominal: object
+    part: OpAmp, spec: Spec, k: float, r3: float, p: float, nominal: Prediction
 ) -> tuple[tuple[float, float], tuple[float, float]]:
     """ln spreads (down, up) of f and A over rail tolerance and op-amp slew/delay spread."""
     t = spec.supply.tolerance_pct / 100
     model = OpAmpModel.from_part(part)
-    f0 = float(nominal.frequency_hz)  # type: ignore[attr-defined]
-    a0 = float(nominal.amplitude_vpp)  # type: ignore[attr-defined]
+    f0 = float(nominal.frequency_hz)
+    a0 = float(nominal.amplitude_vpp)
     lf, la = [0.0], [0.0]
     for scale in (1 - t, 1 + t):
         vh, vl = square_levels(rails_from_supply(spec.supply, scale), model)
         for s in (1 - SLEW_SPREAD, 1 + SLEW_SPREAD):
             for dl in (1 - DELAY_SPREAD, 1 + DELAY_SPREAD):
                 pr = _predict_at(model, vh, vl, k, r3, p, s, dl)
-                lf.append(math.log(float(pr.frequency_hz) / f0))  # type: ignore[attr-defined]
-                la.append(math.log(float(pr.amplitude_vpp) / a0))  # type: ignore[attr-defined]
+                lf.append(math.log(float(pr.frequency_hz) / f0))
+                la.append(math.log(float(pr.amplitude_vpp) / a0))
     return (-min(lf), max(lf)), (-min(la), max(la))
 
 
@@ -505,7 +504,7 @@ def frequency_error(
     """e_f = ln((X + d)/(P + d)) for op amps ``u`` at ln P = ln(k·R3·C1)."""
     x = np.array([o.x for o in model.opamps])[u]
     d = np.array([o.d for o in model.opamps])[u]
-    return np.asarray(np.log((x + d) / (np.exp(ln_p) + d)), dtype=float)
+    return np.asarray(np.log((x + d) / (np.exp(ln_p) + d)), dtype=np.float64)
 
 
 def evaluate(
