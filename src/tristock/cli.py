@@ -14,13 +14,12 @@ from pathlib import Path
 from typing import Any, NoReturn
 
 from tristock import __version__
-from tristock.analysis import analyse
 from tristock.catalog import Catalog, CatalogError, StockError, load_catalog, set_stock
-from tristock.checks import check
 from tristock.design import Design, rails_from_supply
 from tristock.designfile import load_design
+from tristock.report import analysis_report, simulation_report
 from tristock.results import DesignResult
-from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design, part_out
+from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design
 from tristock.spec import Spec, SpecError, load_spec
 from tristock.units import format_value
 
@@ -149,27 +148,6 @@ def cmd_design(args: argparse.Namespace) -> int:
 # ---- analyse and simulate ---------------------------------------------------------------
 
 
-def analysis_dict(spec: Spec, d: Design, samples: int, seed: int, dist: str) -> dict[str, Any]:
-    result = analyse(d, spec, samples=samples, seed=seed, distribution=dist)  # type: ignore[arg-type]
-    osc = d.oscillator(rails_from_supply(spec.supply))
-    warnings = check(
-        osc, capacitor=d.c1, resistors={"R1": d.r1, "R2": d.r2, "R3": d.r3}, opamp_part=d.u1
-    )
-    uses = d.uses()
-    return {
-        "parts": {
-            k: part_out(p, uses[p.id] if k == "U1" else 1).model_dump()
-            for k, p in d.parts().items()
-        },
-        **result.to_dict(),
-        "cost": round(d.cost_per_board, 6),
-        "bom_lines": d.bom_lines,
-        "warnings": [
-            {"code": w.code, "severity": w.severity, "message": w.message} for w in warnings
-        ],
-    }
-
-
 def render_analysis(spec: Spec, d: Design, data: dict[str, Any]) -> str:
     osc = d.oscillator(rails_from_supply(spec.supply))
     p, wc = data["predicted"], data["worst_case"]
@@ -207,7 +185,9 @@ def render_analysis(spec: Spec, d: Design, data: dict[str, Any]) -> str:
 def cmd_analyse(args: argparse.Namespace) -> int:
     catalog = _catalog(args.catalog)
     spec, d = load_design(Path(args.design), catalog)
-    data = analysis_dict(spec, d, args.samples, args.seed, args.distribution)
+    data = analysis_report(
+        spec, d, samples=args.samples, seed=args.seed, distribution=args.distribution
+    )
     if args.json:
         _dump(data)
     else:
@@ -233,13 +213,7 @@ def cmd_simulate(args: argparse.Namespace) -> int:
     predicted = osc.prediction()
     m = result.measured
     if args.json:
-        data = result.to_dict()
-        data["predicted"] = {
-            "frequency_hz": float(predicted.frequency_hz),
-            "amplitude_vpp": float(predicted.amplitude_vpp),
-            "duty_high": float(predicted.duty_high),
-        }
-        _dump(data)
+        _dump(simulation_report(spec, d, periods=args.periods))
     else:
 
         def row(name: str, meas: float, pred: float, unit: str) -> str:

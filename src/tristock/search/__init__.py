@@ -13,9 +13,9 @@ from typing import Literal
 
 from tristock.analysis import Analysis, analyse
 from tristock.catalog import Catalog
-from tristock.checks import check
-from tristock.design import Design, rails_from_supply
+from tristock.design import Design
 from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
+from tristock.report import parts_report, warnings_for
 from tristock.results import (
     Candidate,
     DesignResult,
@@ -110,18 +110,8 @@ def passes(spec: Spec, result: Analysis) -> bool:
 def candidate(spec: Spec, design: Design, result: Analysis, rank: int, score: int) -> Candidate:
     """One design as reported: parts, prediction, errors, spread, cost and warnings."""
     d = result.to_dict()
-    uses = design.uses()
-    parts = {
-        name: part_out(part, uses[part.id] if name == "U1" else 1)
-        for name, part in design.parts().items()
-    }
-    osc = design.oscillator(rails_from_supply(spec.supply))
-    warnings = check(
-        osc,
-        capacitor=design.c1,
-        resistors={"R1": design.r1, "R2": design.r2, "R3": design.r3},
-        opamp_part=design.u1,
-    )
+    parts = parts_report(design)
+    warnings = warnings_for(design, spec)
     p = d["predicted"]
     return Candidate(
         rank=rank,
