@@ -564,8 +564,8 @@ def evaluate(
     s_f = -(res.tempco[i1] - res.tempco[i2] + res.tempco[i3] + cap.tempco[j]) * 1e-6 * gain
     s_a = (res.tempco[i1] - res.tempco[i2]) * 1e-6
     dts = (env.temp_min_c - 25.0, env.temp_max_c - 25.0)
-    rail_f = np.array([o.rail_f for o in ops])[u]
-    rail_a = np.array([o.rail_a for o in ops])[u]
+    rail_f = np.array([o.rail_f for o in ops], dtype=float).reshape(-1, 2)[u]
+    rail_a = np.array([o.rail_a for o in ops], dtype=float).reshape(-1, 2)[u]
     var_f = var_f + (rail_f.sum(axis=1) ** 2) / 12 + (s_f * (dts[1] - dts[0])) ** 2 / 12
     var_a = var_a + (rail_a.sum(axis=1) ** 2) / 12 + (s_a * (dts[1] - dts[0])) ** 2 / 12
 
