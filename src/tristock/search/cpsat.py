@@ -2,8 +2,10 @@
 
 A plain CP-SAT model over one-hot part choices finds good answers but cannot prove them (the
 closest-product problem gives it a weak bound). So the rows come from the exact lister (the
-enumeration engine with the coupled constraints switched off): the best M rows by score, plus
-the score of row M+1 as a bound on every row left out. CP-SAT then chooses one row with the
+enumeration engine, every constraint applied): the best M feasible rows by score, plus the
+score of feasible row M+1 as a bound on every feasible row left out. (Listing without the cost
+cap and shared stock let a low max_cost rule out every listed row, so M grew until the time
+limit ran out.) CP-SAT then chooses one row with the
 constraints that couple positions and parts: stock x boards summed over every position a stock
 code fills, cost per board, BOM lines, and the objective built from the part choices. Top-k
 comes from k solves, each excluding the rows already returned. If the k-th answer scores
@@ -29,7 +31,7 @@ class _Table:
 
 
 def _list_rows(model: SearchModel, m: int, time_limit_s: float) -> tuple[_Table, bool]:
-    listed = enumerate_top(model, m + 1, time_limit_s, coupled=False)
+    listed = enumerate_top(model, m + 1, time_limit_s, coupled=True)
     rows = listed.rows
     if len(rows) <= m:
         return _Table(rows, None), listed.proven_optimal
