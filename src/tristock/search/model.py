@@ -300,13 +300,18 @@ def _opamp_terms(index: int, part: OpAmp, spec: Spec) -> tuple[OpAmpTerms | None
         )
     r3 = 10e3
     p = t_target / c
-    # Fixed point on (P, k): the full model's period and amplitude at the target.
-    for _ in range(6):
+    # Fixed point on (P, k): the full model's period and amplitude at the target. Each step
+    # shrinks the error by about the timing share c·d/T, so iterate to convergence.
+    for _ in range(200):
         pr = _predict_at(model, vh, vl, k, r3, p)
-        p *= t_target / float(pr.period_s)
-        k *= amp / float(pr.amplitude_vpp)
+        step_p = t_target / float(pr.period_s)
+        step_k = amp / float(pr.amplitude_vpp)
+        p *= step_p
+        k *= step_k
         if not (math.isfinite(p) and p > 0 and 0 < k < 1):
             return None, "the model has no operating point at this frequency and amplitude"
+        if abs(step_p - 1) < 1e-13 and abs(step_k - 1) < 1e-13:
+            break
     pr = _predict_at(model, vh, vl, k, r3, p)
     x = p
     d = t_target / c - x
