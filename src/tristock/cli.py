@@ -18,7 +18,7 @@ from tristock.catalog import Catalog, CatalogError, StockError, load_catalog, se
 from tristock.design import Design, rails_from_supply
 from tristock.designfile import load_design
 from tristock.report import analysis_report, simulation_report
-from tristock.results import DesignResult
+from tristock.results import DesignResult, ReoptimiseResult
 from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design
 from tristock.spec import Spec, SpecError, load_spec
 from tristock.units import format_value
@@ -237,6 +237,69 @@ def cmd_simulate(args: argparse.Namespace) -> int:
     return 0
 
 
+# ---- reoptimise -------------------------------------------------------------------------
+
+
+def render_reoptimise(result: ReoptimiseResult) -> str:
+    o = result.original
+    lines = [
+        "tristock reoptimise",
+        "  design    " + ", ".join(f"{k} {v}" for k, v in o.parts.items()),
+        f"  status    {'passes the spec, nothing to change' if o.passes else 'needs changes'}",
+        *(f"            - {r}" for r in o.reasons),
+    ]
+    if result.shortfall:
+        lines.append(f"  shortfall for {result.spec.build.boards} boards:")
+        lines += [
+            f"            {s.designator} {s.id}: need {s.needed}, have {s.stock}, short {s.short}"
+            for s in result.shortfall
+        ]
+    lines.append("")
+    if result.infeasible:
+        lines.append("No design meets the spec, even with every position free:")
+        lines += [f"  - {r}" for r in result.infeasible.reasons]
+    for c in result.candidates:
+        lines.append(
+            f"{c.rank:>2}. {len(c.changed)} change(s): "
+            f"{format_value(c.predicted.frequency_hz, 'Hz', 5)} ({c.error.frequency_pct:+.2f} %), "
+            f"{c.predicted.amplitude_vpp:.4g} Vpp, yield {c.yield_fraction:.1%}, cost {c.cost:.3f}"
+        )
+        for ch in c.changes:
+            lines.append(f"      {ch.designator}: {ch.from_id} -> {ch.to_id}  ({ch.why})")
+    s = result.search
+    lines += [
+        "",
+        f"search: fewest changes proven by exhaustive search of each smaller count; "
+        f"{'proven' if s.proven_optimal else 'NOT proven (time limit)'}, {s.elapsed_s:.2f} s",
+    ]
+    return "\n".join(lines)
+
+
+def cmd_reoptimise(args: argparse.Namespace) -> int:
+    from tristock.designfile import part_ids
+    from tristock.reoptimise import reoptimise
+    from tristock.spec import parse_spec, read_mapping
+
+    catalog = _catalog(args.catalog)
+    data = read_mapping(Path(args.design))
+    spec = parse_spec(data.get("spec", {}))
+    current = part_ids(data.get("parts"))
+    result = reoptimise(
+        spec,
+        catalog,
+        current,
+        without=args.without or (),
+        boards=args.boards,
+        top=args.top,
+        time_limit_s=args.time_limit,
+    )
+    if args.json:
+        _dump(result.model_dump(mode="json"))
+    else:
+        print(render_reoptimise(result))
+    return 0
+
+
 # ---- catalog ----------------------------------------------------------------------------
 
 
@@ -364,6 +427,21 @@ def build_parser() -> argparse.ArgumentParser:
             a.add_argument("--plot", help="write the waveforms to FILE (.png or .svg)")
             a.add_argument("--periods", type=int, default=10, help="periods to measure")
         a.set_defaults(func=func)
+
+    r = sub.add_parser("reoptimise", help="fewest part changes that bring a design back in spec")
+    r.add_argument("design", help="DESIGN file (TOML or JSON): spec + parts")
+    r.add_argument("--catalog", required=True, help="catalog folder")
+    r.add_argument("--without", action="append", metavar="ID", help="part now unavailable")
+    r.add_argument("--boards", type=int, help="planned build (overrides build.boards)")
+    r.add_argument("--top", type=int, help="how many designs (overrides ranking.top)")
+    r.add_argument(
+        "--time-limit",
+        type=float,
+        default=DEFAULT_TIME_LIMIT_S,
+        help=f"seconds for the whole search (default {DEFAULT_TIME_LIMIT_S:g})",
+    )
+    r.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    r.set_defaults(func=cmd_reoptimise)
 
     c = sub.add_parser("catalog", help="check, generate or update part tables")
     csub = c.add_subparsers(dest="catalog_command", required=True, parser_class=_Parser)

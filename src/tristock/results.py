@@ -85,3 +85,41 @@ class DesignResult(_Out):
     infeasible: Infeasible | None
     search: SearchInfo
     cautions: list[str]
+
+
+class Change(_Out):
+    designator: str
+    from_id: str
+    to_id: str
+    why: str
+
+
+class ReoptimisedCandidate(Candidate):
+    changed: list[str]
+    changes: list[Change]
+
+
+class Shortfall(_Out):
+    """A part of the design whose stock does not cover the planned build."""
+
+    designator: str
+    id: str
+    needed: int
+    stock: int
+    short: int
+
+
+class OriginalDesign(_Out):
+    parts: dict[str, str]
+    passes: bool
+    reasons: list[str]
+    predicted: Predicted | None
+
+
+class ReoptimiseResult(_Out):
+    spec: Spec
+    original: OriginalDesign
+    candidates: list[ReoptimisedCandidate]
+    infeasible: Infeasible | None
+    shortfall: list[Shortfall]
+    search: SearchInfo

@@ -74,6 +74,8 @@ def _products(model: SearchModel) -> _Products:
     res, cap = model.resistors, model.capacitors
     i3 = np.repeat(np.arange(len(res), dtype=np.int64), len(cap))
     j = np.tile(np.arange(len(cap), dtype=np.int64), len(res))
+    keep = model.allows("R3", len(res))[i3] & model.allows("C1", len(cap))[j]
+    i3, j = i3[keep], j[keep]
     ln = res.ln_value[i3] + cap.ln_value[j]
     term = model.resistor_term(i3) + model.capacitor_term(j)
     order = np.argsort(ln, kind="stable")
@@ -88,10 +90,17 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
     credit = model.shared_line_credit()
     floor = int(products.term.min()) - credit if len(products.term) else 0
     parts: list[_Pairs] = []
+    use_u1 = model.allows("U1", len(model.opamps))
+    use_r1 = model.allows("R1", len(ln_r))
+    use_r2 = model.allows("R2", len(ln_r))
     for o in model.opamps:
+        if not use_u1[o.index]:
+            continue
         lo = np.searchsorted(ln_r, ln_r - o.ln_k_target - ab - 1e-12, side="left")
         hi = np.searchsorted(ln_r, ln_r - o.ln_k_target - aa + 1e-12, side="right")
         i1, i2 = _ranges(lo, hi)
+        keep = use_r1[i1] & use_r2[i2]
+        i1, i2 = i1[keep], i2[keep]
         e_a = ln_r[i1] - ln_r[i2] - o.ln_k_target
         base = (
             model.opamp_term(o)

@@ -139,6 +139,14 @@ class SearchModel:
     capacitors: PartTable
     opamps: list[OpAmpTerms]
     exclusions: list[Exclusion] = field(default_factory=list)
+    #: Optional per-designator masks (True = this part may fill the position), used to pin or
+    #: free positions when re-optimising. Keys U1 (over ``opamps``), R1, R2, R3 (over
+    #: ``resistors``), C1 (over ``capacitors``); a missing key allows every part.
+    allowed: dict[str, NDArray[np.bool_]] = field(default_factory=dict)
+
+    def allows(self, designator: str, size: int) -> NDArray[np.bool_]:
+        mask = self.allowed.get(designator)
+        return np.ones(size, dtype=bool) if mask is None else mask
 
     # ---- scoring -------------------------------------------------------------------------
     @property
