@@ -57,6 +57,8 @@ SETTLE_TOLERANCE = 1e-9
 MAX_EXTRA_SETTLE_PERIODS = 100
 #: Event budget per simulated period (a healthy loop needs about ten).
 EVENTS_PER_PERIOD = 200
+#: Transitions that may turn back before mid-swing in a row before the loop is declared broken.
+MAX_UNFINISHED_TRANSITIONS = 8
 #: Fewest waveform samples accepted for ``max_points``.
 MIN_POINTS = 16
 
@@ -259,20 +261,24 @@ def _loop_from(osc: Oscillator) -> _Loop:
     )
 
 
-def _first_fall_below(c0: float, c1: float, c2: float, tol: float) -> float:
+def _first_fall_below(c0: float, c1: float, c2: float, tol: float, slope_tol: float) -> float:
     """Earliest u >= 0 at which p(u) = c0 + c1·u + c2·u² goes below zero (inf if never).
 
-    p within ``tol`` of zero at u = 0 counts as zero: it falls now if it is heading down, and a
-    root it is just leaving upward is skipped. Tangent touches (double roots) are not crossings.
+    A p within ``tol`` of zero at u = 0 is taken as exactly zero, and a slope within
+    ``slope_tol`` as zero: p then falls now if it heads down, else at its return -c1/c2. Such
+    rounding-level values occur right after every event; treating them exactly keeps the event
+    loop from taking steps of zero length. Tangent touches (double roots) are not crossings.
     """
     if c0 < -tol:
         return 0.0
-    if abs(c0) <= tol and (c1 < 0 or (c1 == 0 and c2 < 0)):
-        return 0.0
-    if c2 == 0:
-        if c1 < 0:
-            return max(0.0, -c0 / c1)
+    if abs(c0) <= tol:
+        if c1 < -slope_tol or (abs(c1) <= slope_tol and c2 < 0):
+            return 0.0
+        if c1 > slope_tol and c2 < 0:
+            return -c1 / c2
         return math.inf
+    if c2 == 0:
+        return -c0 / c1 if c1 < 0 else math.inf
     disc = c1 * c1 - 4.0 * c2 * c0
     if disc <= 0:
         return math.inf
@@ -311,8 +317,8 @@ def _integrator_piece(
         return -down, 0.0, min(until_zero(-down - r0, -r1), (vt - loop.v_low) / down)
     a2 = 0.5 * r1
     ends = [
-        _first_fall_below(loop.v_high - vt, -r0, -a2, tol),
-        _first_fall_below(vt - loop.v_low, r0, a2, tol),
+        _first_fall_below(loop.v_high - vt, -r0, -a2, tol, rate_tol),
+        _first_fall_below(vt - loop.v_low, r0, a2, tol, rate_tol),
     ]
     if r1 > 0 and math.isfinite(up):
         ends.append((up - r0) / r1)
@@ -348,6 +354,30 @@ def _stuck_message(loop: _Loop, t: float, vt: float, vs: float) -> str:
     )
 
 
+def _slew_text(rate: float) -> str:
+    return "infinite" if math.isinf(rate) else format_value(rate, "V/s", 3)
+
+
+def _unfinished_message(loop: _Loop, t: float, turns: list[float]) -> str:
+    distinct = sorted({f"{v:.4g} V" for v in turns})
+    levels = (
+        " and ".join(distinct)
+        if len(distinct) <= 2
+        else f"{min(turns):.4g} V to {max(turns):.4g} V"
+    )
+    return (
+        f"the loop does not oscillate properly: by t = {format_value(t, 's', 4)} the square has "
+        f"turned back {len(turns)} times without crossing its mid-swing level "
+        f"{loop.v_mid:.4g} V (it reverses at {levels}, its levels are {loop.v_low:.4g} V and "
+        f"{loop.v_high:.4g} V): each comparator transition "
+        f"(slew {_slew_text(loop.slew_rise)} up, "
+        f"{_slew_text(loop.slew_fall)} down, delay "
+        f"{format_value(loop.delay, 's', 3)}) lasts longer than the triangle takes to cross "
+        f"back over its threshold. Widen the hysteresis (R1/R2 = {loop.r1 / loop.r2:.4g}), "
+        "slow the ramp (R3·C1) or use a faster comparator."
+    )
+
+
 def _run(loop: _Loop, periods: int, settle_periods: int) -> _Trace:
     """Event-driven integration until ``periods`` settled periods have been seen."""
     tol = loop.tolerance_v
@@ -370,15 +400,23 @@ def _run(loop: _Loop, periods: int, settle_periods: int) -> _Trace:
     start: int | None = None
     events = 0
 
+    unfinished: list[float] = []  # square levels where a transition turned back short of mid
+
     def note_crossing(time: float, before: float, after: float) -> None:
         if before < mid <= after:
             rises.append(time)
+            unfinished.clear()
         elif before >= mid > after:
             falls.append(time)
+            unfinished.clear()
 
     def apply_target(time: float, level: float) -> float:
         """Set the output's new level; returns vs after (a step if the slew is infinite)."""
         nonlocal target
+        if vs != target and level != target:
+            unfinished.append(vs)
+            if len(unfinished) > MAX_UNFINISHED_TRANSITIONS:
+                raise SimulationError(_unfinished_message(loop, t, unfinished))
         target = level
         rate = loop.slew_rise if level > vs else loop.slew_fall
         if level != vs and math.isinf(rate):
@@ -404,7 +442,9 @@ def _run(loop: _Loop, periods: int, settle_periods: int) -> _Trace:
         g0 = a_g * vt + b_g * vs + c_g
         g1 = a_g * a1 + b_g * slope_vs
         g2 = a_g * a2
-        u_decision = _first_fall_below(decision * g0, decision * g1, decision * g2, tol)
+        u_decision = _first_fall_below(
+            decision * g0, decision * g1, decision * g2, tol, tol / (loop.r3 * loop.c1)
+        )
         u_pending = pending[0][0] - t if pending else math.inf
         u = min(u_square, u_integrator, u_decision, u_pending)
         if math.isinf(u):
