@@ -12,6 +12,7 @@ import json
 import math
 import xml.etree.ElementTree as ET
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -165,8 +166,8 @@ def test_integrator_slew_limited() -> None:
     assert m.amplitude_vpp == pytest.approx(2.0 * (k * v + overshoot), rel=EXACT)
     # the free-running closed form (no integrator clamp) would be far off: the clamp matters
     free = predict(osc.r1, osc.r2, osc.r3, osc.c1, v, v, slew_rise=sr, slew_fall=sr, delay=delay)
-    assert abs(m.frequency_hz / free.frequency_hz - 1.0) > 0.02
-    assert abs(m.amplitude_vpp / free.amplitude_vpp - 1.0) > 0.02
+    assert abs(m.frequency_hz / float(free.frequency_hz) - 1.0) > 0.02
+    assert abs(m.amplitude_vpp / float(free.amplitude_vpp) - 1.0) > 0.02
 
 
 # --- offsets and bias currents -----------------------------------------------------------------
@@ -239,7 +240,7 @@ def test_integrator_error_beyond_the_swing_raises() -> None:
         ("periods", {"periods": 2.5}),
     ],
 )
-def test_bad_arguments_name_the_field(field: str, kwargs: dict[str, object]) -> None:
+def test_bad_arguments_name_the_field(field: str, kwargs: dict[str, Any]) -> None:
     osc = _osc(10e3, 27e3, 10e3, 10e-9, Rails(12.0, -12.0))
     with pytest.raises(ValueError, match=field):
         simulate(osc, **kwargs)
