@@ -577,7 +577,7 @@ def monte_carlo(
     z = _deviations(rng, variables, samples, distribution)
     vals = _evaluate(board, variables, z)
     f, amp = vals[:, 0], vals[:, 1]
-    ft, tf = spec.frequency.target_hz, spec.frequency.tolerance_pct / 100
+    ft, tf = spec.target.target_hz, spec.target.tolerance_pct / 100
     at, ta = spec.triangle.amplitude_vpp, spec.triangle.tolerance_pct / 100
     ok = (
         (f >= ft * (1 - tf))

@@ -67,9 +67,19 @@ def _spec_lines(spec: Spec) -> list[str]:
         else f"{s.negative_v:g}/{s.positive_v:g} V (reference {s.reference:g} V)"
     )
     lim = spec.limits
+    if spec.tuning is not None:
+        tu = spec.tuning
+        target = (
+            f"tuned {format_value(tu.low_hz, 'Hz')}..{format_value(tu.high_hz, 'Hz')} "
+            f"({tu.control} control, ranges {tu.ranges}, overlap {tu.overlap_pct:g} %)"
+        )
+    else:
+        assert f is not None
+        target = f"{format_value(f.target_hz, 'Hz')} ±{f.tolerance_pct:g} %"
+        if spec.trimmed:
+            target += " (trimmed)"
     return [
-        f"target    {format_value(f.target_hz, 'Hz')} ±{f.tolerance_pct:g} %, "
-        f"{t.amplitude_vpp:g} Vpp ±{t.tolerance_pct:g} %",
+        f"target    {target}, {t.amplitude_vpp:g} Vpp ±{t.tolerance_pct:g} %",
         f"rails     {rails} ±{s.tolerance_pct:g} %, {e.temp_min_c:g}..{e.temp_max_c:g} °C, "
         f"{spec.build.boards} board{'s' if spec.build.boards != 1 else ''}",
         f"limits    guarantee {lim.guarantee}, series {'/'.join(lim.resistor_series or ['any'])}, "

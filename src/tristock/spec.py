@@ -159,16 +159,79 @@ class RankingSpec(_Section):
     top: int = Field(10, ge=1, le=100)
 
 
+class TrimSpec(_Section):
+    """A trimmer (RV1, from pots.csv, kind trimmer) in series with R3 sets the frequency.
+
+    Every board, at every corner of tolerance, rails, op-amp spread and temperature, must
+    reach the target with the wiper inside [margin, 1 - margin] of its travel.
+    """
+
+    enabled: bool = True
+    margin_pct: float = Field(10.0, ge=0, lt=50, description="travel kept free at each end, %")
+    drift_after_trim_pct: float | None = Field(
+        None, gt=0, le=50, description="allowed drift over temperature after trimming at 25 °C, ±%"
+    )
+
+
+class TuningSpec(_Section):
+    """A front-panel pot tunes low_hz..high_hz, with one timing capacitor per range."""
+
+    low_hz: float = Field(gt=0, le=10e6)
+    high_hz: float = Field(gt=0, le=10e6)
+    control: Literal["series", "divider"] = Field(
+        "series",
+        description="series: pot in series with R3; divider: pot as a divider feeding R3, "
+        "with an end-stop resistor R4",
+    )
+    ranges: Literal["auto"] | int = Field("auto", description='"auto" (fewest) or a count 1..8')
+    overlap_pct: float = Field(5.0, ge=0, le=50, description="overlap of neighbouring ranges, %")
+
+    @field_validator("ranges")
+    @classmethod
+    def _count(cls, n: Literal["auto"] | int) -> Literal["auto"] | int:
+        if n != "auto" and not 1 <= n <= 8:
+            raise ValueError(f"ranges must be 'auto' or 1..8, got {n}")
+        return n
+
+    @model_validator(mode="after")
+    def _ordered(self) -> TuningSpec:
+        if self.low_hz >= self.high_hz:
+            raise ValueError(f"low_hz ({self.low_hz}) is not below high_hz ({self.high_hz})")
+        return self
+
+
 class Spec(_Section):
-    """A whole design request."""
+    """A whole design request: [frequency] for a fixed or trimmed design, or [tuning]."""
 
     supply: SupplySpec
-    frequency: FrequencySpec
+    frequency: FrequencySpec | None = None
     triangle: TriangleSpec
     environment: EnvironmentSpec = EnvironmentSpec()
     build: BuildSpec = BuildSpec()
     limits: LimitsSpec = LimitsSpec()
     ranking: RankingSpec = RankingSpec()
+    trim: TrimSpec | None = None
+    tuning: TuningSpec | None = None
+
+    @model_validator(mode="after")
+    def _one_kind_of_design(self) -> Spec:
+        if self.tuning is not None:
+            if self.trim is not None and self.trim.enabled:
+                raise ValueError("trim and tuning cannot be combined: choose one")
+        elif self.frequency is None:
+            raise ValueError("frequency: missing (a [frequency] section, or a [tuning] section)")
+        return self
+
+    @property
+    def target(self) -> FrequencySpec:
+        """The frequency target; a tuned spec has none (ValueError)."""
+        if self.frequency is None:
+            raise ValueError("this spec has no [frequency] target (it is a tuned design)")
+        return self.frequency
+
+    @property
+    def trimmed(self) -> bool:
+        return self.trim is not None and self.trim.enabled
 
     @model_validator(mode="after")
     def _amplitude_fits_rails(self) -> Spec:
@@ -183,7 +246,7 @@ class Spec(_Section):
     @property
     def frequency_band_ln(self) -> tuple[float, float]:
         """The frequency band as ln(f/f_target) bounds."""
-        t = self.frequency.tolerance_pct / 100
+        t = self.target.tolerance_pct / 100
         return math.log1p(-t), math.log1p(t)
 
     @property

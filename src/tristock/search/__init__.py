@@ -89,7 +89,7 @@ def _design_of(model: SearchModel, rows: Rows, n: int) -> Design:
 def passes(spec: Spec, result: Analysis) -> bool:
     """The full model's verdict on the spec's guarantee."""
     (fa, fb), (aa, ab) = spec.frequency_band_ln, spec.amplitude_band_ln
-    f0, a0 = spec.frequency.target_hz, spec.triangle.amplitude_vpp
+    f0, a0 = spec.target.target_hz, spec.triangle.amplitude_vpp
 
     def inside(f: float, a: float) -> bool:
         return fa <= math.log(f / f0) <= fb and aa <= math.log(a / a0) <= ab
@@ -118,7 +118,7 @@ def candidate(spec: Spec, design: Design, result: Analysis, rank: int, score: in
         parts=parts,
         predicted=Predicted(**p),
         error=ErrorOut(
-            frequency_pct=100 * (p["frequency_hz"] / spec.frequency.target_hz - 1),
+            frequency_pct=100 * (p["frequency_hz"] / spec.target.target_hz - 1),
             amplitude_pct=100 * (p["amplitude_vpp"] / spec.triangle.amplitude_vpp - 1),
         ),
         worst_case=d["worst_case"],

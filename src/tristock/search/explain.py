@@ -78,7 +78,7 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
         return [
             f"no R3·C1 product from {_series_text(model)} resistors ({r_lo}..{r_hi}) and "
             f"{'/'.join(lim.dielectrics)} capacitors puts the frequency within "
-            f"±{spec.frequency.tolerance_pct:g} % of {format_value(spec.frequency.target_hz, 'Hz')}"
+            f"±{spec.target.tolerance_pct:g} % of {format_value(spec.target.target_hz, 'Hz')}"
             " with any usable op amp and R1/R2 pair"
         ]
     if lim.guarantee != "nominal":

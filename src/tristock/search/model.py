@@ -298,7 +298,7 @@ def _opamp_terms(index: int, part: OpAmp, spec: Spec) -> tuple[OpAmpTerms | None
     if vh <= 0 or vl <= 0:
         return None, "its output cannot swing both sides of the reference on these rails"
     c = (vh + vl) ** 2 / (vh * vl)
-    t_target = 1.0 / spec.frequency.target_hz
+    t_target = 1.0 / spec.target.target_hz
     amp = spec.triangle.amplitude_vpp
     k = amp / (vh + vl)
     if k >= 0.95:
