@@ -1,0 +1,512 @@
+"""The log-space search model (tristock.search.model) against the full circuit model.
+
+Outside references, named beside each check:
+- the full closed-form model ``tristock.circuit.predict`` (itself checked against ngspice and
+  an event simulation in test_circuit.py), run here on the same part values with the
+  integrator and comparator offsets and bias currents set to zero;
+- the textbook result for the ideal op amp, f = R2/(4·R1·R3·C1) and a triangle of
+  2·V·R1/R2 peak to peak for a square of ±V (Sedra & Smith, *Microelectronic Circuits*,
+  bistable multivibrator with integrator; from memory);
+- for unequal square levels, the integrator's constant slope V/(R3·C1) over the threshold
+  span k·(VH + VL), which gives T = k·R3·C1·(VH + VL)·(1/VH + 1/VL) (derived here, common
+  practice);
+- distinct-stock-code counts from ``tristock.design.Design`` (a plain Counter of ids).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import re
+from functools import cache
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.typing import NDArray
+
+from tristock.catalog import Catalog, load_catalog
+from tristock.circuit import OpAmpModel, predict, square_levels
+from tristock.design import Design, rails_from_supply
+from tristock.parts import Capacitor, OpAmp, Resistor
+from tristock.search import design
+from tristock.search import model as search_model
+from tristock.search.cpsat import cpsat_top
+from tristock.search.enumeration import enumerate_top
+from tristock.search.model import (
+    BALANCED_WEIGHTS,
+    COST_RESOLUTION,
+    SCORE_RESOLUTION,
+    Rows,
+    SearchModel,
+    build_model,
+    evaluate,
+)
+from tristock.spec import Spec, parse_spec
+
+REPO = Path(__file__).resolve().parent.parent
+DEMO = REPO / "catalogs" / "demo"
+I64 = np.int64
+
+
+@cache
+def demo() -> Catalog:
+    return load_catalog(DEMO)
+
+
+def demo_opamp_ids() -> list[str]:
+    return [o.id for o in demo().opamps]
+
+
+def supply_for(part: OpAmp) -> dict[str, float]:
+    """Rails inside the part's rated span: 5 V single supply, ±5 V or ±12 V."""
+    if part.supply_max_v <= 5.5:
+        return {"positive_v": 5.0, "negative_v": 0.0}
+    if part.supply_max_v <= 12:
+        return {"positive_v": 5.0, "negative_v": -5.0}
+    return {"positive_v": 12.0, "negative_v": -12.0}
+
+
+def spec_of(data: dict[str, object]) -> Spec:
+    return parse_spec(data)
+
+
+def with_parts(
+    catalog: Catalog,
+    *,
+    resistors: tuple[Resistor, ...] | None = None,
+    capacitors: tuple[Capacitor, ...] | None = None,
+    opamps: tuple[OpAmp, ...] | None = None,
+) -> Catalog:
+    return Catalog(
+        catalog.path,
+        catalog.resistors if resistors is None else resistors,
+        catalog.capacitors if capacitors is None else capacitors,
+        catalog.opamps if opamps is None else opamps,
+    )
+
+
+def random_rows(model: SearchModel, n: int, seed: int) -> Rows:
+    """``n`` random combinations through ``evaluate``; only those meeting the spec come back."""
+    rng = np.random.default_rng(seed)
+    nr, nc, nu = len(model.resistors), len(model.capacitors), len(model.opamps)
+    return evaluate(
+        model,
+        rng.integers(0, nu, n),
+        rng.integers(0, nr, n),
+        rng.integers(0, nr, n),
+        rng.integers(0, nr, n),
+        rng.integers(0, nc, n),
+    )
+
+
+def values(model: SearchModel, rows: Rows) -> tuple[NDArray[np.float64], ...]:
+    """(R1, R2, R3, C1) in ohm and farad for every row."""
+    res, cap = model.resistors.parts, model.capacitors.parts
+    return (
+        np.array([res[i].value for i in rows.i1]),
+        np.array([res[i].value for i in rows.i2]),
+        np.array([res[i].value for i in rows.i3]),
+        np.array([cap[j].value for j in rows.j]),
+    )
+
+
+def ideal_opamp(
+    op_id: str = "TU-IDEAL",
+    *,
+    swing_pos: float = 0.0,
+    swing_neg: float = 0.0,
+    channels: int = 2,
+    stock: int = 10_000,
+) -> OpAmp:
+    """An ideal op amp: no delay, infinite slew rate and GBW, no offset or bias."""
+    return OpAmp(
+        id=op_id,
+        channels=channels,
+        supply_min_v=0.0,
+        supply_max_v=100.0,
+        swing_pos_v=swing_pos,
+        swing_neg_v=swing_neg,
+        slew_v_per_us=math.inf,
+        gbw_hz=math.inf,
+        delay_s=0.0,
+        offset_v=0.0,
+        bias_a=0.0,
+        output_a=1.0,
+        unit_cost=0.5,
+        stock=stock,
+    )
+
+
+def resistor(rid: str, ohm: float, *, stock: int = 10_000, cost: float = 0.004) -> Resistor:
+    return Resistor(rid, ohm, 1.0, 100.0, "E24", 0.1, "0603", cost, stock)
+
+
+def capacitor(cid: str, farad: float, *, stock: int = 10_000, cost: float = 0.05) -> Capacitor:
+    return Capacitor(cid, farad, "C0G", 5.0, 0.0, None, 50.0, "0603", cost, stock)
+
+
+# --------------------------------------------------------------------------------------------
+# Search model against the full model, demo op amps
+
+
+def _one_opamp_model(op_id: str) -> tuple[SearchModel, OpAmp, Spec]:
+    part = dataclasses.replace(next(o for o in demo().opamps if o.id == op_id), stock=10**6)
+    sup = supply_for(part)
+    span = sup["positive_v"] - sup["negative_v"]
+    spec = spec_of(
+        {
+            "supply": sup,
+            "frequency": {"target_hz": 1000.0, "tolerance_pct": 5.0},
+            "triangle": {"amplitude_vpp": 0.4 * span, "tolerance_pct": 10.0},
+        }
+    )
+    model = build_model(spec, with_parts(demo(), opamps=(part,)))
+    assert [o.part.id for o in model.opamps] == [op_id], model.exclusions
+    return model, part, spec
+
+
+def _full(
+    model: SearchModel, part: OpAmp, spec: Spec, rows: Rows
+) -> tuple[NDArray[np.float64], ...]:
+    """ln(f/f_target) and ln(A/A_target) from ``predict``, offsets and bias at zero."""
+    m = OpAmpModel.from_part(part)
+    vh, vl = square_levels(rails_from_supply(spec.supply), m)
+    r1, r2, r3, c1 = values(model, rows)
+    p = predict(
+        r1,
+        r2,
+        r3,
+        c1,
+        vh,
+        vl,
+        slew_rise=m.slew_rise_v_per_s,
+        slew_fall=m.slew_fall_v_per_s,
+        delay=m.delay_s,
+        gbw=m.gbw_hz,
+    )
+    f = np.asarray(p.frequency_hz)
+    a = np.asarray(p.amplitude_vpp)
+    return np.log(f / spec.frequency.target_hz), np.log(a / spec.triangle.amplitude_vpp)
+
+
+@pytest.mark.parametrize("op_id", demo_opamp_ids())
+def test_errors_match_the_full_model_within_the_first_order_bound(op_id: str) -> None:
+    """e_f and e_a agree with ``predict`` on the same parts, to a bound derived from the model.
+
+    The search model evaluates the comparator's effective delay d and the overshoot ε once, at
+    the target (P = k·R3·C1 = X, k = k_target). In the full model only the GBW part of d moves
+    with the parts (through ρ ∝ P and β = k/(1 + k), log-derivatives each below 1), and ε falls
+    as 1/P. So for a combination at ΔlnP = ln(P/X), Δlnk = e_a:
+        |e_f(full) - e_f| ≲ s·(|ΔlnP| + |Δlnk|),   s = c·d/T (the op amp's timing share)
+        |e_A(full) - e_a| ≲ ε·(|ΔlnP| + |Δlnk|)
+    The amplitude bound gets 25 % for second order (e^x - 1 ≤ 1.06·x for x ≤ 0.1 here).
+    Measured at 1 kHz, bands ±5 % / ±10 %, every demo op amp: the frequency residual reaches
+    0.3 of its bound (at most 7e-4 absolute, 3.9e-3 for the 0.025 V/µs part whose timing
+    share is 45 %), the amplitude residual 0.97 of its bound (at most 7e-3, 3e-2 for that
+    part).
+    """
+    model, part, spec = _one_opamp_model(op_id)
+    rows = random_rows(model, 400_000, seed=7)
+    assert len(rows) >= 30
+    ef_full, ea_full = _full(model, part, spec, rows)
+    o = model.opamps[0]
+    r1, r2, r3, c1 = values(model, rows)
+    spread = np.abs(np.log(r1 / r2 * r3 * c1 / o.x)) + np.abs(rows.e_a)
+    assert np.all(np.abs(ef_full - rows.e_f) <= o.timing_share * spread + 1e-12)
+    assert np.all(np.abs(ea_full - rows.e_a) <= 1.25 * o.overshoot * spread + 1e-12)
+    # The residual is small against the bands: the exact re-check rarely has to drop a row.
+    assert np.max(np.abs(ef_full - rows.e_f)) < 0.1 * model.band_f[1]
+
+
+@pytest.mark.parametrize("op_id", demo_opamp_ids())
+def test_constants_reproduce_the_target_exactly(op_id: str) -> None:
+    """At P = X and k = k_target the full model gives the target frequency and amplitude,
+    however P is split between R3 and C1 and k between R1 and R2 (ρ and β depend on P and k
+    only)."""
+    model, part, spec = _one_opamp_model(op_id)
+    o = model.opamps[0]
+    m = OpAmpModel.from_part(part)
+    kt = math.exp(o.ln_k_target)
+    for r2, r3 in ((100e3, 10e3), (33e3, 470e3)):
+        p = predict(
+            kt * r2,
+            r2,
+            r3,
+            o.x / (kt * r3),
+            o.vh,
+            o.vl,
+            slew_rise=m.slew_rise_v_per_s,
+            slew_fall=m.slew_fall_v_per_s,
+            delay=m.delay_s,
+            gbw=m.gbw_hz,
+        )
+        assert float(p.frequency_hz) == pytest.approx(spec.frequency.target_hz, rel=1e-9)
+        assert float(p.amplitude_vpp) == pytest.approx(spec.triangle.amplitude_vpp, rel=1e-9)
+
+
+# --------------------------------------------------------------------------------------------
+# Ideal op amp: the textbook forms, exactly
+
+
+def _e24_catalog(op: OpAmp) -> Catalog:
+    from tristock import eseries
+
+    res = tuple(resistor(f"TR-{n:03d}", v) for n, v in enumerate(eseries.values("E24", 1e3, 1e6)))
+    caps = tuple(
+        capacitor(f"TC-{n:03d}", v) for n, v in enumerate(eseries.values("E12", 1e-9, 1e-6))
+    )
+    return Catalog(Path("<memory>"), res, caps, (op,))
+
+
+def test_ideal_symmetric_frequency_is_the_textbook_formula() -> None:
+    """f = R2/(4·R1·R3·C1), triangle 2·V·R1/R2 Vpp for a ±V square (Sedra & Smith, from
+    memory). With no delay the model's log form is exact, so agreement is to rounding."""
+    spec = spec_of(
+        {
+            "supply": {"positive_v": 10.0, "negative_v": -10.0},
+            "frequency": {"target_hz": 2000.0, "tolerance_pct": 50.0},
+            "triangle": {"amplitude_vpp": 6.0, "tolerance_pct": 50.0},
+        }
+    )
+    model = build_model(spec, _e24_catalog(ideal_opamp()))
+    rows = random_rows(model, 300_000, seed=3)
+    assert len(rows) > 200
+    r1, r2, r3, c1 = values(model, rows)
+    textbook_f = r2 / (4 * r1 * r3 * c1)
+    textbook_a = 2 * 10.0 * r1 / r2
+    np.testing.assert_allclose(rows.e_f, np.log(textbook_f / 2000.0), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(rows.e_a, np.log(textbook_a / 6.0), rtol=0, atol=1e-12)
+
+
+def test_ideal_unequal_levels_follow_the_slope_argument() -> None:
+    """Single 10 V supply, headroom 1.0 V high and 0.2 V low: VH = 4.0 V, VL = 4.8 V from the
+    mid-rail reference. T = k·R3·C1·(VH + VL)·(1/VH + 1/VL) and A = k·(VH + VL) (slope
+    argument, common practice)."""
+    spec = spec_of(
+        {
+            "supply": {"positive_v": 10.0, "negative_v": 0.0},
+            "frequency": {"target_hz": 500.0, "tolerance_pct": 50.0},
+            "triangle": {"amplitude_vpp": 3.0, "tolerance_pct": 50.0},
+        }
+    )
+    model = build_model(spec, _e24_catalog(ideal_opamp(swing_pos=1.0, swing_neg=0.2)))
+    assert (model.opamps[0].vh, model.opamps[0].vl) == pytest.approx((4.0, 4.8))
+    rows = random_rows(model, 300_000, seed=4)
+    assert len(rows) > 200
+    r1, r2, r3, c1 = values(model, rows)
+    k = r1 / r2
+    period = k * r3 * c1 * (4.0 + 4.8) * (1 / 4.0 + 1 / 4.8)
+    np.testing.assert_allclose(rows.e_f, np.log(1 / period / 500.0), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(rows.e_a, np.log(k * 8.8 / 3.0), rtol=0, atol=1e-12)
+
+
+# --------------------------------------------------------------------------------------------
+# Score quantisation
+
+
+def test_resolution_is_documented_and_reported() -> None:
+    """The module docstring states the resolution (1e-6 of a score unit, 1 ppm of frequency)
+    and every design result carries it."""
+    doc = search_model.__doc__ or ""
+    stated = re.search(r"SCORE_RESOLUTION``\s*=\s*([0-9.eE+-]+)", doc)
+    assert stated is not None and float(stated.group(1)) == SCORE_RESOLUTION
+    assert "1 ppm" in doc
+    spec = spec_of(
+        {
+            "supply": {"positive_v": 12.0, "negative_v": -12.0},
+            "frequency": {"target_hz": 1000.0, "tolerance_pct": 2.0},
+            "triangle": {"amplitude_vpp": 5.0, "tolerance_pct": 5.0},
+            "ranking": {"top": 1},
+        }
+    )
+    result = design(spec, demo(), samples=200)
+    assert result.search.score_resolution == SCORE_RESOLUTION
+
+
+def _mode_model(mode: str) -> tuple[SearchModel, Rows]:
+    spec = spec_of(
+        {
+            "supply": {"positive_v": 12.0, "negative_v": -12.0},
+            "frequency": {"target_hz": 1000.0, "tolerance_pct": 2.0},
+            "triangle": {"amplitude_vpp": 5.0, "tolerance_pct": 5.0},
+            "environment": {"temp_min_c": -20.0, "temp_max_c": 70.0},
+            "ranking": {"by": mode},
+        }
+    )
+    model = build_model(spec, demo())
+    rows = random_rows(model, 2_000_000, seed=11)
+    assert len(rows) > 100
+    return model, rows
+
+
+def test_frequency_error_score_counts_whole_ppm() -> None:
+    """frequency_error mode: primary = round(|ln f/f_target| / 1 ppm), nothing else."""
+    _, rows = _mode_model("frequency_error")
+    np.testing.assert_array_equal(rows.primary, np.rint(np.abs(rows.e_f) / 1e-6))
+    # the tie-breaker is the cost per board in steps of COST_RESOLUTION
+    np.testing.assert_array_equal(rows.secondary, np.rint(rows.cost / COST_RESOLUTION))
+
+
+def test_balanced_score_is_the_weighted_sum_to_half_a_step_per_term() -> None:
+    """balanced mode: primary·resolution equals the unquantised weighted sum (weights as
+    documented in BALANCED_WEIGHTS, computed here from the part records) to within half a
+    step for each of the 7 separately rounded terms."""
+    model, rows = _mode_model("balanced")
+    w = BALANCED_WEIGHTS
+    res, cap = model.resistors.parts, model.capacitors.parts
+    band_f, band_a = model.band_f[1], model.band_a[1]
+    scale = model.cost_scale
+    total = w["frequency_error"] * np.abs(rows.e_f) / band_f
+    total = total + w["amplitude_error"] * np.abs(rows.e_a) / band_a
+    for n in range(len(rows)):
+        u = model.opamps[rows.u[n]]
+        passives = [res[rows.i1[n]], res[rows.i2[n]], res[rows.i3[n]], cap[rows.j[n]]]
+        tol = [p.tolerance_pct / 100 for p in passives]
+        c1 = passives[3]
+        assert isinstance(c1, Capacitor)
+        if c1.is_class_ii:
+            tol[3] += (c1.temp_band_pct or 0.0) / 100
+        lines = len({p.id for p in passives}) + 1
+        total[n] += (
+            sum(w["tolerance_spread"] * t / band_f for t in tol)
+            + sum(w["cost"] * p.unit_cost / scale for p in passives)
+            + w["cost"] * u.part.cost_per_board / scale
+            + w["sensitivity"] * u.timing_share
+            + w["bom_lines"] * lines
+        )
+    assert np.all(np.abs(rows.primary * SCORE_RESOLUTION - total) <= 3.5 * SCORE_RESOLUTION)
+    assert np.ptp(rows.primary) > 1000  # the check spans many distinct scores
+
+
+def test_cost_score_is_cost_in_steps() -> None:
+    _, rows = _mode_model("cost")
+    assert np.all(np.abs(rows.primary * COST_RESOLUTION - rows.cost) <= 2.5 * COST_RESOLUTION)
+
+
+def test_yield_score_is_one_minus_the_estimate_in_steps() -> None:
+    _, rows = _mode_model("yield")
+    np.testing.assert_array_equal(rows.primary, np.rint((1 - rows.yield_estimate) / 1e-6))
+    assert np.all((rows.yield_estimate >= 0) & (rows.yield_estimate <= 1))
+
+
+# --------------------------------------------------------------------------------------------
+# Shared stock codes: BOM lines and stock x boards
+
+# Three resistors (two of one value under different stock codes) and one capacitor. With the
+# ideal op amp on ±10 V every one of the 27 (R1, R2, R3) combinations lands in the wide bands
+# below: f = R2/(4·R1·R3·C1) spans 694..1200 Hz around 900 Hz, k spans 0.83..1.2 around 0.9.
+SHARED_IDS = ("TR-A10K", "TR-B10K", "TR-C12K")
+
+
+def shared_catalog(*, stock_a: int = 10_000, op: OpAmp | None = None) -> Catalog:
+    res = (
+        resistor("TR-A10K", 10e3, stock=stock_a),
+        resistor("TR-B10K", 10e3),
+        resistor("TR-C12K", 12e3),
+    )
+    return Catalog(Path("<memory>"), res, (capacitor("TC-25N", 25e-9),), (op or ideal_opamp(),))
+
+
+def shared_spec(boards: int = 1, by: str = "balanced") -> Spec:
+    return spec_of(
+        {
+            "supply": {"positive_v": 10.0, "negative_v": -10.0},
+            "frequency": {"target_hz": 900.0, "tolerance_pct": 50.0},
+            "triangle": {"amplitude_vpp": 18.0, "tolerance_pct": 50.0},
+            "build": {"boards": boards},
+            "ranking": {"by": by, "top": 27},
+        }
+    )
+
+
+def every_combination(model: SearchModel, *, coupled: bool = True) -> Rows:
+    n = len(model.resistors)
+    grid = np.indices((1, n, n, n, len(model.capacitors))).reshape(5, -1).astype(I64)
+    return evaluate(model, *grid, coupled=coupled)
+
+
+def ids(model: SearchModel, rows: Rows, n: int) -> tuple[str, str, str]:
+    res = model.resistors.parts
+    return (res[rows.i1[n]].id, res[rows.i2[n]].id, res[rows.i3[n]].id)
+
+
+def test_bom_lines_count_distinct_stock_codes() -> None:
+    """A stock code in two or three positions is one BOM line (U1 and C1 are one each)."""
+    model = build_model(shared_spec(), shared_catalog())
+    rows = every_combination(model)
+    assert len(rows) == 27
+    by_ids = {ids(model, rows, n): int(rows.lines[n]) for n in range(len(rows))}
+    assert by_ids[("TR-A10K", "TR-B10K", "TR-C12K")] == 5
+    assert by_ids[("TR-A10K", "TR-B10K", "TR-A10K")] == 4  # R1 = R3
+    assert by_ids[("TR-A10K", "TR-C12K", "TR-C12K")] == 4  # R2 = R3
+    assert by_ids[("TR-B10K", "TR-B10K", "TR-C12K")] == 4  # R1 = R2
+    assert by_ids[("TR-C12K", "TR-C12K", "TR-C12K")] == 3
+    cat = shared_catalog()
+    res = {r.id: r for r in cat.resistors}
+    for (a, b, c), lines in by_ids.items():
+        d = Design(cat.opamps[0], res[a], res[b], res[c], cat.capacitors[0])
+        assert lines == d.bom_lines
+
+
+def test_balanced_score_credits_each_saved_line() -> None:
+    """Same values, same errors: R3 sharing R1's stock code scores one bom_lines weight less
+    than R3 from a second code of the same value (tolerance and cost equal)."""
+    model = build_model(shared_spec(), shared_catalog())
+    rows = every_combination(model)
+    score = {ids(model, rows, n): int(rows.primary[n]) for n in range(len(rows))}
+    shared = score[("TR-A10K", "TR-C12K", "TR-A10K")]
+    separate = score[("TR-A10K", "TR-C12K", "TR-B10K")]
+    assert separate - shared == round(BALANCED_WEIGHTS["bom_lines"] / SCORE_RESOLUTION)
+
+
+@pytest.mark.parametrize(
+    ("combo", "uses"),
+    [
+        (("TR-A10K", "TR-C12K", "TR-A10K"), 2),  # R1 and R3
+        (("TR-C12K", "TR-A10K", "TR-A10K"), 2),  # R2 and R3
+        (("TR-A10K", "TR-A10K", "TR-C12K"), 2),  # R1 and R2
+        (("TR-A10K", "TR-A10K", "TR-A10K"), 3),
+        (("TR-A10K", "TR-B10K", "TR-C12K"), 1),
+    ],
+)
+def test_stock_covers_boards_times_positions(combo: tuple[str, str, str], uses: int) -> None:
+    """A stock code in n positions takes n pieces per board: with 30 on hand it survives
+    30 // n boards and no more. Without coupling (left to CP-SAT) it always survives."""
+    limit = 30 // uses
+    for boards, expected in ((limit, True), (limit + 1, False)):
+        model = build_model(shared_spec(boards), shared_catalog(stock_a=30))
+        got = {ids(model, r, n) for r in [every_combination(model)] for n in range(len(r))}
+        assert (combo in got) is expected, (boards, combo)
+        if boards <= 30:  # beyond that the code is out of the model altogether
+            loose = every_combination(model, coupled=False)
+            assert combo in {ids(model, loose, n) for n in range(len(loose))}
+
+
+@pytest.mark.parametrize("by", ["balanced", "frequency_error", "cost", "yield"])
+def test_engines_respect_shared_stock(by: str) -> None:
+    """Both engines leave out a code used twice when 2 x boards exceeds its stock, and keep
+    it when it fits: 30 pieces of TR-A10K, 15 boards fit two positions, 16 do not."""
+    for boards in (15, 16):
+        model = build_model(shared_spec(boards, by), shared_catalog(stock_a=30))
+        for found in (enumerate_top(model, 27, 30.0), cpsat_top(model, 27, 30.0)):
+            assert found.proven_optimal
+            combos = [ids(model, found.rows, n) for n in range(len(found.rows))]
+            twice = [c for c in combos if c.count("TR-A10K") >= 2]
+            if boards == 15:
+                assert len(twice) == 6  # 3 pairs of positions x 2 codes for the third
+                assert not any(c.count("TR-A10K") == 3 for c in twice)
+            else:
+                assert twice == []
+            assert len(combos) == len(every_combination(model))
+
+
+def test_single_channel_opamp_needs_two_packages_per_board() -> None:
+    """U1 from a single-channel part takes two packages a board: 15 in stock cover 7 boards."""
+    op = ideal_opamp("TU-SINGLE", channels=1, stock=15)
+    assert [o.part.id for o in build_model(shared_spec(7), shared_catalog(op=op)).opamps] == [
+        "TU-SINGLE"
+    ]
+    model = build_model(shared_spec(8), shared_catalog(op=op))
+    assert model.opamps == []
+    assert any(e.part_id == "TU-SINGLE" and "16" in e.reason for e in model.exclusions)
