@@ -35,8 +35,11 @@ ramp, integrator reaching or leaving a rate or swing limit) is found as an exact
 result has only floating-point error (about 1e-13 relative), no step-size error.
 
 Start state: triangle at the reference, square high (and the delay line full of "high"). The
-first ``settle_periods`` periods are discarded, and more until two successive periods agree to
-1e-9; then ``periods`` periods are measured between rising mid-swing crossings of the square.
+first max(``settle_periods``, 2) periods (counted between rising mid-swing crossings of the
+square) are discarded, and more until two successive periods agree to 1e-9; then ``periods``
+periods are measured between rising mid-swing crossings. A loop that never settles, whose square
+keeps turning back before mid-swing, or that stops (the triangle held at a swing limit short of
+its threshold) raises SimulationError; the work is bounded by an event budget.
 """
 
 from __future__ import annotations
