@@ -230,6 +230,17 @@ def test_integrator_error_beyond_the_swing_raises() -> None:
     assert "11.5 V" in str(info.value)
 
 
+def test_transitions_that_never_reach_mid_swing_raise() -> None:
+    # k = 0.05 and a slow comparator with the reference far from mid-swing (levels +4/-17 V,
+    # mid -6.5 V): the integrator turns as the square passes 0 V and the triangle re-crosses
+    # its threshold before the square reaches mid-swing (ngspice shows the same in
+    # test_simulate_ngspice.py)
+    osc = _osc(150.0, 3e3, 3e3, 15e-9, Rails(5.0, -18.0), slew=(0.3e6, 0.3e6))
+    with pytest.raises(SimulationError, match="turned back") as info:
+        simulate(osc)
+    assert "mid-swing level -6.5 V" in str(info.value)
+
+
 @pytest.mark.parametrize(
     ("field", "kwargs"),
     [

@@ -13,14 +13,23 @@ test prints its measured errors (pytest -s) and records them as user properties.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import pytest
 
-from ngspice_harness import NgspiceError, SimCase, require_ngspice, simulate_many
+from ngspice_harness import (
+    NgspiceError,
+    SimCase,
+    netlist,
+    require_ngspice,
+    run_ngspice,
+    simulate_many,
+)
 from tristock.circuit import OpAmpModel, Oscillator, Rails, square_levels
-from tristock.simulate import Measured, simulate
+from tristock.simulate import Measured, SimulationError, simulate
 
 pytestmark = pytest.mark.ngspice
 
@@ -118,10 +127,42 @@ RUNS: dict[str, Run] = {
 }
 
 
+#: A broken loop (k = 0.05, slow comparator, square levels +4/-17 V about a 0 V reference):
+#: each falling transition turns back before mid-swing (-6.5 V).
+BROKEN = Oscillator(150.0, 3e3, 3e3, 15e-9, _amp((1.0, 1.0), 0.3e6, 0.3e6, 0.0), Rails(5.0, -18.0))
+BROKEN_CASE = SimCase(
+    r1=BROKEN.r1,
+    r2=BROKEN.r2,
+    r3=BROKEN.r3,
+    c1=BROKEN.c1,
+    v_high=4.0,
+    v_low=-17.0,
+    v_ref=0.0,
+    period_guess_s=60e-6,
+    comparator="slew",
+    slew_rise=0.3e6,
+    slew_fall=0.3e6,
+)
+
+
 @pytest.fixture(scope="module")
 def spice() -> dict[str, dict[str, float] | NgspiceError]:
     require_ngspice()
-    return simulate_many({name: run.case for name, run in RUNS.items()}, timeout_s=60.0)
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        broken = pool.submit(run_ngspice, _broken_netlist(), timeout_s=60.0)
+        runs = simulate_many({name: run.case for name, run in RUNS.items()}, timeout_s=60.0)
+        try:
+            runs["broken"] = broken.result()
+        except NgspiceError as exc:
+            runs["broken"] = exc
+    return runs
+
+
+def _broken_netlist() -> str:
+    """The harness's slew netlist for BROKEN, measuring the square's range after start-up."""
+    window = ".meas tran vsmin MIN v(vs) FROM=200u TO=600u\n"
+    window += ".meas tran vsmax MAX v(vs) FROM=200u TO=600u\n"
+    return netlist(BROKEN_CASE).replace(".end\n", window + ".end\n")
 
 
 def _errors(
@@ -175,3 +216,21 @@ def test_comparator_bias_sign_is_seen_by_ngspice(
     assert term > 20 * MIDPOINT_V
     assert abs(run.sim.offset_v - got["vtmid"]) < MIDPOINT_V
     assert abs(run.sim.offset_v - 2.0 * term - got["vtmid"]) > 40 * MIDPOINT_V
+
+
+def test_unfinished_transitions_agree_with_ngspice(
+    spice: dict[str, dict[str, float] | NgspiceError],
+) -> None:
+    got = spice["broken"]
+    if isinstance(got, NgspiceError):
+        pytest.fail(f"ngspice run failed: {got}")
+    with pytest.raises(SimulationError, match="turned back") as info:
+        simulate(BROKEN)
+    found = re.search(r"reverses at (-?\d+(?:\.\d+)?) V", str(info.value))
+    assert found is not None
+    mid = (BROKEN_CASE.v_high + BROKEN_CASE.v_low) / 2.0
+    # ngspice: the square never reaches mid-swing, reaches its high level, and turns back
+    # where the simulation says (0.01 V: 4-digit message, 1 mV slew-limiter landing)
+    assert got["vsmin"] > mid + 0.5
+    assert got["vsmax"] == pytest.approx(BROKEN_CASE.v_high, abs=0.01)
+    assert float(found.group(1)) == pytest.approx(got["vsmin"], abs=0.01)
