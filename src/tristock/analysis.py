@@ -44,8 +44,8 @@ import numpy as np
 import numpy.typing as npt
 from scipy import special, stats
 
-from tristock.circuit import Oscillator, Prediction, predict
-from tristock.design import Design, rails_from_supply
+from tristock.circuit import Oscillator, Prediction, Rails, predict, timing_network
+from tristock.design import Design, rails_from_supply, value_at
 from tristock.spec import Spec
 from tristock.units import format_value
 
@@ -102,23 +102,36 @@ class _Point:
     ib1: Value
     vos2: Value
     ib2: Value
+    rv: Value = 0.0  # RV1 end to end (Ω); 0 without a pot
+    r4: Value = 0.0  # divider end stop (Ω)
+    alpha: Value = 0.0  # wiper position
 
 
 @dataclass(frozen=True)
 class _Board:
-    """A point plus how the reference node follows the rails."""
+    """A point plus how the reference node follows the rails and how a pot is wired."""
 
     point: _Point
     v_ref: float | None
+    control: str = "series"
 
     @classmethod
-    def of(cls, osc: Oscillator) -> _Board:
+    def of(cls, design: Design, rails: Rails, temp_c: float) -> _Board:
+        """The design's values at ``temp_c``; R3, RV1, R4 and the selected range capacitor
+        are kept apart (``_predict`` combines them through ``circuit.timing_network``)."""
+        osc = design.oscillator(rails, temp_c)
         m = osc.opamp
+        cap = design.timing_capacitor
+        c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
+        rv, r4 = design.rv1, design.r4
         point = _Point(
             r1=osc.r1,
             r2=osc.r2,
-            r3=osc.r3,
-            c1=osc.c1,
+            r3=value_at(design.r3.value_ohm, design.r3.tempco_ppm, temp_c),
+            c1=value_at(cap.value_f, c_tc, temp_c),
+            rv=value_at(rv.value_ohm, rv.tempco_ppm, temp_c) if rv else 0.0,
+            r4=value_at(r4.value_ohm, r4.tempco_ppm, temp_c) if r4 else 0.0,
+            alpha=design.wiper if rv else 0.0,
             v_pos=osc.rails.v_pos,
             v_neg=osc.rails.v_neg,
             swing_pos=m.swing_pos_v,
@@ -132,10 +145,10 @@ class _Board:
             vos2=m.comparator_offset_v,
             ib2=m.comparator_bias_a,
         )
-        return cls(point, osc.rails.v_ref)
+        return cls(point, osc.rails.v_ref, design.control)
 
 
-def _predict(point: _Point, v_ref: float | None) -> Prediction:
+def _predict(point: _Point, v_ref: float | None, control: str = "series") -> Prediction:
     """``predict`` at ``point``, with the square levels of ``square_levels`` vectorised:
     VH = V+ - swing_pos - Vref, VL = Vref - (V- + swing_neg); Vref is the fixed reference,
     else 0 V for split rails and (V+ + V-)/2 for a single supply (V- = 0)."""
@@ -147,11 +160,12 @@ def _predict(point: _Point, v_ref: float | None) -> Prediction:
         ref = np.where(v_neg < 0.0, 0.0, (v_pos + v_neg) / 2.0)
     vh = v_pos - point.swing_pos - ref
     vl = ref - (v_neg + point.swing_neg)
+    r_eff, beta = timing_network(point.r3, point.rv, point.alpha, control, point.r4)
     return predict(
         point.r1,
         point.r2,
-        point.r3,
-        point.c1,
+        r_eff,
+        np.asarray(point.c1) / beta,
         vh,
         vl,
         slew_rise=point.slew_rise,
@@ -224,12 +238,15 @@ def _tolerance_variable(name: str, field: str, value: float, tol: float, unit: s
 
 def _temperature_variable(design: Design, t_min: float, t_max: float) -> _Variable:
     mid, half = (t_min + t_max) / 2.0, (t_max - t_min) / 2.0
-    c_tc = design.c1.tempco_ppm if design.c1.tempco_ppm is not None else 0.0
+    cap = design.timing_capacitor
+    c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
     tempcos = {
         "r1": design.r1.tempco_ppm,
         "r2": design.r2.tempco_ppm,
         "r3": design.r3.tempco_ppm,
         "c1": c_tc,
+        "rv": design.rv1.tempco_ppm if design.rv1 else 0.0,
+        "r4": design.r4.tempco_ppm if design.r4 else 0.0,
     }
 
     def apply(p: _Point, z: FloatArray) -> _Point:
@@ -246,26 +263,34 @@ def _spread_board(design: Design, spec: Spec) -> tuple[_Board, list[_Variable]]:
     env = spec.environment
     ranged = env.temp_max_c > env.temp_min_c
     rails = rails_from_supply(spec.supply)
-    osc = design.oscillator(rails, 25.0 if ranged else env.temp_min_c)
     u1 = design.u1
-    board = _Board.of(osc)
+    board = _Board.of(design, rails, 25.0 if ranged else env.temp_min_c)
     board = replace(
         board, point=replace(board.point, vos1=0.0, vos2=0.0, ib1=u1.bias_a, ib2=u1.bias_a)
     )
 
+    cap = design.timing_capacitor
+    cap_name = f"C{design.selected + 1}"
     variables: list[_Variable] = []
-    for name, field, part_value, tol_pct, unit in (
+    spread_parts = [
         ("R1", "r1", design.r1.value_ohm, design.r1.tolerance_pct, "Ω"),
         ("R2", "r2", design.r2.value_ohm, design.r2.tolerance_pct, "Ω"),
         ("R3", "r3", design.r3.value_ohm, design.r3.tolerance_pct, "Ω"),
-        ("C1", "c1", design.c1.value_f, design.c1.tolerance_pct, "F"),
-    ):
+        (cap_name, "c1", cap.value_f, cap.tolerance_pct, "F"),
+    ]
+    if design.rv1 is not None:
+        spread_parts.append(("RV1", "rv", design.rv1.value_ohm, design.rv1.tolerance_pct, "Ω"))
+    if design.r4 is not None:
+        spread_parts.append(("R4", "r4", design.r4.value_ohm, design.r4.tolerance_pct, "Ω"))
+    for name, field, part_value, tol_pct, unit in spread_parts:
         if tol_pct > 0:
             variables.append(_tolerance_variable(name, field, part_value, tol_pct / 100, unit))
-    band_pct = design.c1.temp_band_pct
-    if design.c1.is_class_ii and band_pct is not None and band_pct > 0:
+    band_pct = cap.temp_band_pct
+    if cap.is_class_ii and band_pct is not None and band_pct > 0:
         band = band_pct / 100
-        variables.append(_Variable("C1.temp", _scaled(("c1",), band), lambda z: _pct(band * z)))
+        variables.append(
+            _Variable(f"{cap_name}.temp", _scaled(("c1",), band), lambda z: _pct(band * z))
+        )
     tol_v = spec.supply.tolerance_pct / 100
     if tol_v > 0:
         for name, field, v in (("V+", "v_pos", rails.v_pos), ("V-", "v_neg", rails.v_neg)):
@@ -322,7 +347,7 @@ def _evaluate(board: _Board, variables: list[_Variable], z: FloatArray) -> Float
     point = board.point
     for i, var in enumerate(variables):
         point = var.apply(point, z[:, i])
-    return _metrics(_predict(point, board.v_ref), z.shape[0])
+    return _metrics(_predict(point, board.v_ref, board.control), z.shape[0])
 
 
 # --------------------------------------------------------------------------------------------
@@ -657,7 +682,7 @@ def sensitivities(design: Design, spec: Spec) -> Sensitivity:
     infinite one (slew or GBW = inf) has S = 0 in the limit and comes out as 0.0.
     """
     _check_inputs(design, spec)
-    board = _Board.of(_nominal(design, spec))
+    board = _Board.of(design, rails_from_supply(spec.supply), 25.0)
     names = list(_SENSITIVITY_FIELDS)
     rows = 2 * len(names)
     factors = {f: np.ones(rows) for f in _Point.__dataclass_fields__}
@@ -666,7 +691,7 @@ def sensitivities(design: Design, spec: Spec) -> Sensitivity:
             factors[f][2 * i] = math.exp(SENSITIVITY_STEP)
             factors[f][2 * i + 1] = math.exp(-SENSITIVITY_STEP)
     point = replace(board.point, **{f: getattr(board.point, f) * factors[f] for f in factors})
-    vals = _metrics(_predict(point, board.v_ref), rows)
+    vals = _metrics(_predict(point, board.v_ref, board.control), rows)
     with np.errstate(invalid="ignore"):
         logs = np.log(vals[:, :2])
     slopes = (logs[0::2] - logs[1::2]) / (2 * SENSITIVITY_STEP)

@@ -514,3 +514,36 @@ class Oscillator:
             f"{_fmt(float(p.effective_delay_s), 's')}",
         ]
         return "\n".join(lines)
+
+
+def timing_network(
+    r3: FloatArray | float,
+    rv: FloatArray | float,
+    alpha: FloatArray | float,
+    control: str = "series",
+    r4: FloatArray | float = 0.0,
+) -> tuple[FloatArray | float, FloatArray | float]:
+    """Effective integrator resistance (Ω) and drive fraction β of a pot in the timing path.
+
+    - ``series``: RV1 as a variable resistor in series with R3; ``alpha`` in [0, 1] is the added
+      fraction of RV1: R_eff = R3 + α·RV, β = 1, so f(α) = f0 / (1 + α·RV/R3).
+    - ``divider``: RV1 across the square output (top) and the end-stop resistor R4 to the
+      reference (bottom), its wiper driving R3; ``alpha`` is the wiper's fraction of travel from
+      the bottom. Thévenin: β = (R4 + α·RV)/(R4 + RV), R_th = (1-α)·RV ∥ (R4 + α·RV), so
+      R_eff = R3 + R_th and the ramp slope scales by β: f ∝ β/R_eff, linear in β when R3 ≫ RV.
+
+    The integrator then behaves as one with R3 → R_eff and C1 → C1/β (same ramp slope). Exact for
+    an ideal square source; the op amp's output resistance (tens of Ω) is neglected.
+    """
+    a = np.asarray(alpha, dtype=float)
+    if np.any((a < 0) | (a > 1)):
+        raise ValueError("alpha: wiper position must lie in [0, 1]")
+    if control == "series":
+        return r3 + a * rv, np.ones_like(a) if np.ndim(a) else 1.0
+    if control == "divider":
+        bottom = r4 + a * rv
+        top = (1.0 - a) * rv
+        beta = bottom / (r4 + rv)
+        r_th = top * bottom / (r4 + rv)
+        return r3 + r_th, beta
+    raise ValueError(f"control: expected 'series' or 'divider', got {control!r}")

@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import dataclasses
+import math
 from typing import Any
 
 from tristock.analysis import Distribution, analyse
 from tristock.checks import Warning, check
+from tristock.circuit import Oscillator, Prediction
 from tristock.design import Design, rails_from_supply
 from tristock.results import PartOut
 from tristock.spec import Spec
@@ -59,15 +62,26 @@ def simulation_report(
     spec: Spec, design: Design, *, periods: int = 10, max_points: int = 4000
 ) -> dict[str, Any]:
     """Measured values and sampled waveforms of the time-domain simulation, with the model's
-    prediction beside them. Raises ``SimulationError`` when the loop does not oscillate."""
+    prediction beside them: ``predicted`` is the full model; ``predicted_same_physics`` leaves
+    out the finite-GBW delay, which the simulation does not model, so it is the like-for-like
+    comparison. Raises ``SimulationError`` when the loop does not oscillate."""
     from tristock.simulate import simulate
 
     osc = design.oscillator(rails_from_supply(spec.supply))
     data = simulate(osc, periods=periods, max_points=max_points).to_dict()
-    p = osc.prediction()
-    data["predicted"] = {
+    data["predicted"] = _headline(osc.prediction())
+    data["predicted_same_physics"] = _headline(same_physics(osc).prediction())
+    return data
+
+
+def same_physics(osc: Oscillator) -> Oscillator:
+    """The oscillator with the comparator's finite-GBW delay removed (what ``simulate`` models)."""
+    return dataclasses.replace(osc, opamp=dataclasses.replace(osc.opamp, gbw_hz=math.inf))
+
+
+def _headline(p: Prediction) -> dict[str, float]:
+    return {
         "frequency_hz": float(p.frequency_hz),
         "amplitude_vpp": float(p.amplitude_vpp),
         "duty_high": float(p.duty_high),
     }
-    return data
