@@ -384,6 +384,16 @@ def cmd_catalog_set_stock(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_serve(args: argparse.Namespace) -> int:
+    from tristock.serve import serve
+
+    try:
+        serve(args.host, args.port, args.catalog, args.workers, args.allow_open_writes)
+    except ValueError as err:
+        raise UsageError(f"serve: {err}") from None
+    return 0
+
+
 # ---- parser -----------------------------------------------------------------------------
 
 
@@ -485,6 +495,17 @@ def build_parser() -> argparse.ArgumentParser:
     ss.add_argument("id")
     ss.add_argument("count", type=int)
     ss.set_defaults(func=cmd_catalog_set_stock)
+    sv = sub.add_parser("serve", help="run the HTTP API (loopback only by default)")
+    sv.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
+    sv.add_argument("--port", type=int, default=8000, help="port (default 8000)")
+    sv.add_argument("--catalog", help="catalog folder (default: the bundled demo)")
+    sv.add_argument("--workers", type=int, default=1, help="server processes (default 1)")
+    sv.add_argument(
+        "--allow-open-writes",
+        action="store_true",
+        help="allow stock writes without a token when TRISTOCK_TOKEN is not set",
+    )
+    sv.set_defaults(func=cmd_serve)
     return p
 
 
