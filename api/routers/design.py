@@ -1,0 +1,88 @@
+"""``POST /v1/design`` and ``POST /v1/reoptimise``: the searches, run in the threadpool."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+
+from api.deps import CatalogDep, SettingsDep, SlotsDep
+from api.errors import FieldProblem
+from api.jsonout import StrictJSON, answer
+from api.routers import COMPUTE_ERRORS
+from api.schemas import DesignRequest, ReoptimiseRequest
+from api.settings import Settings
+from tristock.designfile import part_ids
+from tristock.reoptimise import reoptimise
+from tristock.results import DesignResult, ReoptimiseResult
+from tristock.search import design
+from tristock.spec import Spec
+
+router = APIRouter(prefix="/v1", tags=["design"])
+
+
+def _time_limit(settings: Settings, asked: float | None) -> float:
+    """The request's time limit, or the default, cut to the server's cap (seconds)."""
+    return min(
+        asked if asked is not None else settings.default_time_limit_s, settings.max_time_limit_s
+    )
+
+
+def _check_top(settings: Settings, top: int, loc: list[str]) -> None:
+    if top > settings.max_top:
+        raise FieldProblem([(loc, f"at most {settings.max_top} designs per request")], "too_large")
+
+
+def _headers(proven: bool) -> dict[str, str]:
+    return {"X-Search": "proven-optimal" if proven else "cut-by-time-limit"}
+
+
+@router.post(
+    "/design",
+    response_model=DesignResult,
+    responses=COMPUTE_ERRORS,
+    summary="Best designs for a spec",
+    description="The same answer as `tristock design SPEC --json`. An infeasible spec is a 200 "
+    "with `infeasible.reasons`; a search cut by its time limit has "
+    "`search.proven_optimal: false` (and the header `X-Search: cut-by-time-limit`).",
+)
+def post_design(
+    body: DesignRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
+) -> StrictJSON:
+    spec = body.spec
+    overrides = {k: v for k, v in (("top", body.top), ("by", body.by)) if v is not None}
+    if overrides:
+        ranking = spec.ranking.model_copy(update=overrides)
+        spec = Spec.model_validate({**spec.model_dump(), "ranking": ranking.model_dump()})
+    where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
+    _check_top(settings, spec.ranking.top, where)
+    limit = _time_limit(settings, body.time_limit_s)
+    with slots.slot(), FieldProblem.from_value_errors(["body", "spec"]):
+        result = design(spec, catalog, engine=body.engine, time_limit_s=limit)
+    return answer(result.model_dump(mode="json"), headers=_headers(result.search.proven_optimal))
+
+
+@router.post(
+    "/reoptimise",
+    response_model=ReoptimiseResult,
+    responses=COMPUTE_ERRORS,
+    summary="Fewest part changes that bring a design back in spec",
+    description="The same answer as `tristock reoptimise DESIGN --json`.",
+)
+def post_reoptimise(
+    body: ReoptimiseRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
+) -> StrictJSON:
+    current = part_ids(body.parts)
+    top = body.top if body.top is not None else body.spec.ranking.top
+    where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
+    _check_top(settings, top, where)
+    limit = _time_limit(settings, body.time_limit_s)
+    with slots.slot(), FieldProblem.from_value_errors(["body"]):
+        result = reoptimise(
+            body.spec,
+            catalog,
+            current,
+            without=body.without,
+            boards=body.boards,
+            top=body.top,
+            time_limit_s=limit,
+        )
+    return answer(result.model_dump(mode="json"), headers=_headers(result.search.proven_optimal))

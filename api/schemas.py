@@ -1,0 +1,136 @@
+"""Request bodies (pydantic, unknown keys rejected) and the small response shapes of the API.
+
+Results themselves are the library's: ``tristock.results.DesignResult`` and the dicts of
+``tristock.report``; part items are the ``tristock.parts`` dataclasses, field for field the
+columns of the tables.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Literal, TypeAlias
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from api.settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TIME_LIMIT_S, MAX_TOP
+from tristock.parts import Capacitor, OpAmp, Pot, Resistor
+from tristock.spec import RankBy, Spec
+
+Kind = Literal["resistors", "capacitors", "opamps", "pots"]
+Engine = Literal["cpsat", "enumerate"]
+#: A designator's part: a stock code, or an object with an ``id`` (a candidate's part as the
+#: design answer gives it).
+PartRef: TypeAlias = str | dict[str, Any]
+
+
+class _Body(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class DesignRequest(_Body):
+    """``POST /v1/design``: a spec; ``top`` and ``by`` override ``spec.ranking``."""
+
+    spec: Spec
+    top: int | None = Field(None, ge=1, le=MAX_TOP, description="designs wanted")
+    by: RankBy | None = Field(None, description="ranking (overrides spec.ranking.by)")
+    engine: Engine = Field("cpsat", description="search engine; both are exact")
+    time_limit_s: float | None = Field(
+        None,
+        gt=0,
+        le=MAX_TIME_LIMIT_S,
+        description="seconds for the whole search (default 5; the server may cap it lower)",
+    )
+
+
+class DesignBody(_Body):
+    """A design: the spec and the stock code of each designator U1, R1, R2, R3, C1."""
+
+    spec: Spec
+    parts: dict[str, PartRef] = Field(
+        description="designator -> stock code (or an object with an id)"
+    )
+
+
+class AnalyseRequest(DesignBody):
+    """``POST /v1/analyse``: a design, with the Monte Carlo settings of ``tristock analyse``."""
+
+    samples: int = Field(20000, ge=1, le=MAX_SAMPLES, description="Monte Carlo samples")
+    seed: int = Field(0, ge=0, le=2**32 - 1, description="Monte Carlo seed")
+    distribution: Literal["normal", "uniform"] = "normal"
+
+
+class SimulateRequest(DesignBody):
+    """``POST /v1/simulate``: a design, the periods to measure and the waveform sample cap."""
+
+    periods: int = Field(10, ge=1, le=MAX_PERIODS, description="settled periods to measure")
+    max_points: int = Field(4000, ge=16, le=MAX_POINTS, description="samples per waveform")
+
+
+class ReoptimiseRequest(DesignBody):
+    """``POST /v1/reoptimise``: a design, the stock codes now unavailable, and the build."""
+
+    without: list[str] = Field(
+        default_factory=list, max_length=1000, description="stock codes that may not be used"
+    )
+    boards: int | None = Field(None, ge=1, le=10_000_000, description="boards to build")
+    top: int | None = Field(None, ge=1, le=MAX_TOP, description="designs wanted")
+    time_limit_s: float | None = Field(None, gt=0, le=MAX_TIME_LIMIT_S)
+
+
+class StockPatch(_Body):
+    """``PATCH /v1/catalog/{kind}/{id}``: exactly one of ``stock`` (set) or ``stock_delta``
+    (add; negative takes pieces, never below zero)."""
+
+    stock: int | None = Field(None, ge=0, le=MAX_STOCK, description="pieces on hand")
+    stock_delta: int | None = Field(
+        None, ge=-MAX_STOCK, le=MAX_STOCK, description="pieces to add (negative: take)"
+    )
+
+    @model_validator(mode="after")
+    def _exactly_one(self) -> StockPatch:
+        if (self.stock is None) == (self.stock_delta is None):
+            raise ValueError("give exactly one of stock or stock_delta")
+        return self
+
+
+Item: TypeAlias = Resistor | Capacitor | OpAmp | Pot
+
+
+class Page(BaseModel):
+    """One page of a table: the matching parts from ``offset`` and how many match in all."""
+
+    items: list[Item]
+    total: int
+    offset: int
+    limit: int
+
+
+class ErrorBody(BaseModel):
+    """Every non-validation error: a message meant for a person."""
+
+    detail: str
+
+
+class FieldError(BaseModel):
+    """One validation problem: ``loc`` is the path (``["body", "spec", "frequency",
+    "target_hz"]``), ``field`` the same path without its first element, dotted."""
+
+    loc: list[str | int]
+    field: str
+    msg: str
+    type: str
+
+
+class ValidationBody(BaseModel):
+    detail: list[FieldError]
+
+
+class Health(BaseModel):
+    status: Literal["ok", "degraded", "unavailable"]
+    version: str
+    catalog: str
+    counts: dict[str, int]
+    reloads: int
+    loaded_at: float | None
+    last_reload_error: list[str] | None
+    last_reload_error_at: float | None
+    writes: Literal["token", "open", "disabled"]
