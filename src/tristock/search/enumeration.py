@@ -25,7 +25,15 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.model import OpAmpTerms, Rows, SearchModel, best, evaluate
+from tristock.search.model import (
+    SCORE_RESOLUTION,
+    OpAmpTerms,
+    Rows,
+    SearchModel,
+    best,
+    evaluate,
+    pair_spread,
+)
 
 
 @dataclass
@@ -55,6 +63,8 @@ class _Pairs:
     i2: NDArray[np.int64]
     base: NDArray[np.int64]  # exact score terms of U1, R1, R2 and the amplitude error
     bound: NDArray[np.int64]  # base + the best (R3, C1) term
+    margin_lo: NDArray[np.float64]  # e_f must stay this far above the band's floor ...
+    margin_hi: NDArray[np.float64]  # ... and this far below its ceiling (worst case)
 
     def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> _Pairs:
         return _Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
@@ -110,13 +120,22 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
             + model.amplitude_term(e_a)
         )
         u = np.full(len(i1), o.index, dtype=np.int64)
-        if model.mode == "yield":
-            parts.append(_Pairs(u, i1, i2, base, _yield_bound(model, o, i1, i2, e_a)))
-        else:
-            parts.append(_Pairs(u, i1, i2, base, base + floor))
+        margin_lo = margin_hi = np.zeros(len(i1))
+        keep = np.ones(len(i1), dtype=bool)
+        guarantee = model.spec.limits.guarantee
+        if guarantee == "worst_case":
+            margin_lo, margin_hi, dn_a, up_a = pair_spread(model, u, i1, i2)
+            keep = (e_a + up_a <= ab) & (e_a - dn_a >= aa)
+        y_bound = _yield_bound(model, o, i1, i2, e_a)
+        if guarantee == "yield":
+            keep &= 1.0 - y_bound * SCORE_RESOLUTION >= model.spec.limits.min_yield - SCORE_RESOLUTION
+        bound = y_bound if model.mode == "yield" else base + floor
+        pairs = _Pairs(u, i1, i2, base, bound, margin_lo, margin_hi)
+        parts.append(pairs.take(keep))
     if not parts:
         empty = np.zeros(0, dtype=np.int64)
-        return _Pairs(empty, empty, empty, empty, empty)
+        none = np.zeros(0)
+        return _Pairs(empty, empty, empty, empty, empty, none, none)
     return _Pairs(
         **{n: np.concatenate([getattr(p, n) for p in parts]) for n in _Pairs.__dataclass_fields__}
     )
@@ -143,7 +162,7 @@ def _yield_bound(
     var_f = o.gain**2 * (v12 + v3c) + sum(o.rail_f) ** 2 / 12
     var_a = v12 + sum(o.rail_a) ** 2 / 12
     y = model.yield_estimate(centre, e_a, var_f, var_a)
-    return np.asarray(np.rint((1.0 - y) / 1e-6), dtype=np.int64)
+    return np.asarray(np.rint((1.0 - y) / SCORE_RESOLUTION), dtype=np.int64)
 
 
 def _open(
@@ -161,8 +180,8 @@ def _open(
         e_max = np.full(len(pairs.u), np.inf)
     else:
         e_max = model.frequency_budget(theta - pairs.bound)
-    e_hi = np.minimum(fb, e_max)
-    e_lo = np.maximum(fa, -e_max)
+    e_hi = np.minimum(fb - pairs.margin_hi, e_max)
+    e_lo = np.maximum(fa + pairs.margin_lo, -e_max)
     ln_k = model.resistors.ln_value[pairs.i1] - model.resistors.ln_value[pairs.i2]
     p_small = (x + d) * np.exp(-e_hi) - d
     p_large = (x + d) * np.exp(-e_lo) - d
@@ -171,13 +190,7 @@ def _open(
         ln_hi = np.where(p_large > 0, np.log(np.maximum(p_large, 1e-300)), -np.inf) - ln_k
     lo = np.searchsorted(products.ln, ln_lo - 1e-12, side="left")
     hi = np.searchsorted(products.ln, ln_hi + 1e-12, side="right")
-    counts = np.maximum(hi - lo, 0)
-    which = np.repeat(np.arange(len(counts)), counts)
-    idx = (
-        np.repeat(lo, counts)
-        + np.arange(len(which))
-        - np.repeat(np.cumsum(counts) - counts, counts)
-    )
+    which, idx = _ranges(lo, hi)
     if theta is not None and model.mode != "yield":
         keep = pairs.base[which] + products.term[idx] - credit <= theta
         which, idx = which[keep], idx[keep]

@@ -520,6 +520,29 @@ def frequency_error(
     return np.asarray(np.log((x + d) / (np.exp(ln_p) + d)), dtype=np.float64)
 
 
+def pair_spread(
+    model: SearchModel, u: NDArray[np.int64], i1: NDArray[np.int64], i2: NDArray[np.int64]
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """Worst-case ln spreads (f down, f up, A down, A up) from U1, R1 and R2 alone.
+
+    Exact for the amplitude (R3 and C1 do not move it); for the frequency a floor that R3, C1
+    and temperature only add to. Rails and op-amp spread enter through ``OpAmpTerms``.
+    """
+    res, ops = model.resistors, model.opamps
+    t1, t2 = res.tol[i1], res.tol[i2]
+    gain = np.array([o.gain for o in ops])[u]
+    rail_f = np.array([o.rail_f for o in ops]).reshape(-1, 2)[u]
+    rail_a = np.array([o.rail_a for o in ops]).reshape(-1, 2)[u]
+    env = model.spec.environment
+    s_a = (res.tempco[i1] - res.tempco[i2]) * 1e-6
+    ends = (s_a * (env.temp_min_c - 25.0), s_a * (env.temp_max_c - 25.0))
+    up_f = gain * (-np.log1p(-t1) + np.log1p(t2)) + rail_f[:, 1]
+    dn_f = gain * (np.log1p(t1) - np.log1p(-t2)) + rail_f[:, 0]
+    up_a = np.log1p(t1) - np.log1p(-t2) + np.maximum(0, np.maximum(*ends)) + rail_a[:, 1]
+    dn_a = -np.log1p(-t1) + np.log1p(t2) + np.maximum(0, -np.minimum(*ends)) + rail_a[:, 0]
+    return dn_f, up_f, dn_a, up_a
+
+
 def evaluate(
     model: SearchModel,
     u: NDArray[np.int64],
@@ -583,14 +606,11 @@ def evaluate(
     var_a = var_a + (rail_a.sum(axis=1) ** 2) / 12 + (s_a * (dts[1] - dts[0])) ** 2 / 12
 
     if spec.limits.guarantee == "worst_case":
-        up_f = gain * (-np.log1p(-t1) + np.log1p(t2) - np.log1p(-t3) - np.log1p(-c_tol))
-        dn_f = gain * (np.log1p(t1) - np.log1p(-t2) + np.log1p(t3) + np.log1p(c_tol))
-        up_f += np.maximum(0, np.maximum(s_f * dts[0], s_f * dts[1])) + rail_f[:, 1]
-        dn_f += np.maximum(0, -np.minimum(s_f * dts[0], s_f * dts[1])) + rail_f[:, 0]
-        up_a = np.log1p(t1) - np.log1p(-t2)
-        dn_a = -np.log1p(-t1) + np.log1p(t2)
-        up_a += np.maximum(0, np.maximum(s_a * dts[0], s_a * dts[1])) + rail_a[:, 1]
-        dn_a += np.maximum(0, -np.minimum(s_a * dts[0], s_a * dts[1])) + rail_a[:, 0]
+        dn_f, up_f, dn_a, up_a = pair_spread(model, u, i1, i2)
+        up_f = up_f + gain * (-np.log1p(-t3) - np.log1p(-c_tol))
+        dn_f = dn_f + gain * (np.log1p(t3) + np.log1p(c_tol))
+        up_f += np.maximum(0, np.maximum(s_f * dts[0], s_f * dts[1]))
+        dn_f += np.maximum(0, -np.minimum(s_f * dts[0], s_f * dts[1]))
         ok &= (e_f + up_f <= fb) & (e_f - dn_f >= fa) & (e_a + up_a <= ab) & (e_a - dn_a >= aa)
 
     y = model.yield_estimate(e_f, e_a, var_f, var_a)
