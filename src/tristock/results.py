@@ -48,6 +48,33 @@ class WarningOut(_Out):
     message: str
 
 
+class TrimOut(_Out):
+    """A trimmed design: RV1 in series with R3; wiper 0 adds no resistance."""
+
+    wiper_nominal: float
+    range_hz: list[float]  # nominal frequency at wiper 1 and 0 (full travel)
+    reach_hz: list[float]  # every corner reaches at least this span inside the margins
+    margin_pct: float
+    resolution_pct_per_pct: float  # % of frequency per % of travel at the target
+    drift_after_trim_pct: float  # over the temperature range, wiper fixed after trimming
+
+
+class RangeOut(_Out):
+    capacitor: str
+    low_hz: float
+    high_hz: float
+    guaranteed_low_hz: float
+    guaranteed_high_hz: float
+
+
+class TuningOut(_Out):
+    """A panel-tuned design: one capacitor per range, ranges from low to high frequency."""
+
+    control: str
+    ranges: list[RangeOut]
+    dial_law: dict[str, list[float]]  # "wiper" and one list of frequencies per range capacitor
+
+
 class Candidate(_Out):
     rank: int
     parts: dict[str, PartOut]
@@ -62,6 +89,8 @@ class Candidate(_Out):
     bom_lines: int
     score: int
     warnings: list[WarningOut]
+    trim: TrimOut | None = None
+    tuning: TuningOut | None = None
 
 
 class Infeasible(_Out):

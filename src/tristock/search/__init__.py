@@ -150,7 +150,19 @@ def design(
     samples: int = 4000,
     seed: int = 0,
 ) -> DesignResult:
-    """Best ``spec.ranking.top`` designs from ``catalog``, each checked by the full model."""
+    """Best ``spec.ranking.top`` designs from ``catalog``, each checked by the full model.
+
+    A spec with ``[trim]`` is searched by ``tristock.trim``, one with ``[tuning]`` by
+    ``tristock.tuning``; both return the same result model.
+    """
+    if spec.trimmed:
+        from tristock.trim import design_trimmed
+
+        return design_trimmed(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
+    if spec.tuning is not None:
+        from tristock.tuning import design_tuned
+
+        return design_tuned(spec, catalog, time_limit_s=time_limit_s)
     t0 = time.perf_counter()
     model = build_model(spec, catalog)
     top = spec.ranking.top
