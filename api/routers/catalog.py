@@ -149,7 +149,12 @@ def get_part(kind: Kind, part_id: str, catalog: CatalogDep) -> StrictJSON:
 def patch_part(
     kind: Kind, part_id: str, body: StockPatch, request: Request, store: StoreDep
 ) -> StrictJSON:
-    part = _find(store.current(), kind, part_id)
+    # A write needs only the part's table and columns, not a fresh catalog: re-reading the
+    # tables after every write (this server's own included) would cost a full load per write.
+    loaded = store.peek()
+    if loaded is None or part_id not in loaded:
+        loaded = store.current()
+    part = _find(loaded, kind, part_id)
     try:
         with _write_lock:
             if body.stock is not None:
