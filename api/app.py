@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import logging
 import sys
 from pathlib import Path
 from typing import Any
@@ -49,7 +50,9 @@ def create_app(settings: Settings) -> FastAPI:
 
 
 def app_from_env() -> FastAPI:
-    """Factory for uvicorn (``--factory``): settings from the environment."""
+    """Factory for uvicorn (``--factory``): settings from the environment; the service's own
+    log lines (catalog loads and reload errors) go to stderr beside uvicorn's."""
+    logging.basicConfig(level=logging.INFO, format="%(levelname)s:     %(name)s: %(message)s")
     return create_app(Settings.from_env())
 
 

@@ -224,6 +224,14 @@ def test_analyse_part_errors_name_the_designator(
     assert "samples" in problems(api.post("/v1/analyse", json={**demo_design, "samples": 0}))
 
 
+def test_samples_above_the_server_cap_is_422(
+    catalog_copy: Path, demo_design: dict[str, Any]
+) -> None:
+    with client(catalog_copy, max_samples=1000) as c:
+        found = problems(c.post("/v1/analyse", json={**demo_design, "samples": 1001}))
+    assert found == {"samples": "at most 1000"}
+
+
 def test_simulate_matches_cli_json(
     capsys: pytest.CaptureFixture[str],
     api: TestClient,

@@ -6,7 +6,7 @@ from typing import Any
 
 from fastapi import APIRouter
 
-from api.deps import CatalogDep, SlotsDep
+from api.deps import CatalogDep, SettingsDep, SlotsDep
 from api.errors import FieldProblem
 from api.jsonout import StrictJSON, answer
 from api.routers import COMPUTE_ERRORS
@@ -25,7 +25,11 @@ router = APIRouter(prefix="/v1", tags=["design"])
     summary="Nominal, worst case, yield, sensitivities and checks of one design",
     description="The same object as `tristock analyse DESIGN --json`.",
 )
-def post_analyse(body: AnalyseRequest, catalog: CatalogDep, slots: SlotsDep) -> StrictJSON:
+def post_analyse(
+    body: AnalyseRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
+) -> StrictJSON:
+    if body.samples > settings.max_samples:
+        raise FieldProblem([(["body", "samples"], f"at most {settings.max_samples}")], "too_large")
     d = resolve(part_ids(body.parts), catalog)
     with slots.slot(), FieldProblem.from_value_errors(["body"]):
         data = analysis_report(
