@@ -72,8 +72,8 @@ SENSITIVITY_STEP = 1e-4
 CONFIDENCE = 0.95
 
 #: Corners refined along the non-monotone variables (offsets, bias) per extreme.
-_REFINE_CORNERS = 16
-_REFINE_POINTS = 41
+_REFINE_CORNERS = 4
+_REFINE_POINTS = 17
 _REFINE_ZOOMS = 4
 _METRICS = ("frequency_hz", "amplitude_vpp", "duty_high")
 
@@ -418,38 +418,65 @@ class _Search:
             z, best = trial[k], float(vals[k])
         return z
 
-    def refine(self, starts: FloatArray, metric: int, sign: float) -> tuple[FloatArray, float]:
+    def refine(
+        self, starts: FloatArray, metric: npt.NDArray[np.int64], sign: FloatArray
+    ) -> tuple[FloatArray, FloatArray]:
         """From each start row, scan every non-monotone variable over [-1, 1] (zooming grid,
-        coordinate-wise, twice); return the best row and its sign·metric."""
+        coordinate-wise, twice) to maximise that row's sign·metric; every row is refined in
+        the same batched evaluations. Returns the refined rows and their sign·metric."""
         idx = [i for i, v in enumerate(self.variables) if v.non_monotone]
         rows = starts.copy()
-        vals = sign * self(rows)[:, metric]
+        n = len(rows)
+        at = np.arange(n)
+
+        def objective(values: FloatArray, repeat: int) -> FloatArray:
+            cols = np.repeat(metric, repeat)
+            return np.asarray(np.repeat(sign, repeat) * values[np.arange(len(cols)), cols])
+
+        vals = objective(self(rows), 1)
         if idx:
             for _ in range(2):
                 for i in idx:
-                    lo = np.full(len(rows), -1.0)
-                    hi = np.full(len(rows), 1.0)
+                    lo = np.full(n, -1.0)
+                    hi = np.full(n, 1.0)
                     for _ in range(_REFINE_ZOOMS):
                         grid = np.linspace(0.0, 1.0, _REFINE_POINTS)
                         trial_z = lo[:, None] + (hi - lo)[:, None] * grid[None, :]
                         trial = np.repeat(rows, _REFINE_POINTS, axis=0)
                         trial[:, i] = trial_z.ravel()
-                        tv = (sign * self(trial)[:, metric]).reshape(len(rows), _REFINE_POINTS)
+                        tv = objective(self(trial), _REFINE_POINTS).reshape(n, _REFINE_POINTS)
                         j = np.argmax(tv, axis=1)
-                        better = tv[np.arange(len(rows)), j] > vals
-                        rows[better, i] = trial_z[np.arange(len(rows)), j][better]
-                        vals = np.where(better, tv[np.arange(len(rows)), j], vals)
+                        better = tv[at, j] > vals
+                        rows[better, i] = trial_z[at, j][better]
+                        vals = np.where(better, tv[at, j], vals)
                         step = (hi - lo) / (_REFINE_POINTS - 1)
                         lo = np.maximum(rows[:, i] - step, -1.0)
                         hi = np.minimum(rows[:, i] + step, 1.0)
-        best = int(np.argmax(vals))
-        return rows[best], float(vals[best])
+        return rows, vals
 
 
 def _corners(n: int) -> FloatArray:
     """All 2^n sign vectors, (2^n, n)."""
     bits = (np.arange(2**n)[:, None] >> np.arange(n)[None, :]) & 1
     return np.asarray(bits * 2.0 - 1.0, dtype=float)
+
+
+def corner_extremes(design: Design, spec: Spec) -> dict[str, tuple[float, float]]:
+    """(min, max) of frequency, amplitude and duty over every corner (each spread variable at
+    an end), evaluated by brute force: 2^n full-model evaluations, n <= 16.
+
+    Cheaper than ``worst_case`` (no interior scan of the offset and bias variables, whose
+    effect on frequency is second order); used to prove trim and tuning coverage.
+    """
+    _check_inputs(design, spec)
+    board, variables = _spread_board(design, spec)
+    if len(variables) > 16:
+        raise ValueError(f"corner_extremes: {len(variables)} spread variables (at most 16)")
+    vals = _evaluate(board, variables, _corners(len(variables)))
+    return {
+        metric: (float(vals[:, m].min()), float(vals[:, m].max()))
+        for m, metric in enumerate(_METRICS)
+    }
 
 
 def worst_case(
@@ -477,22 +504,34 @@ def worst_case(
     if method == "corners":
         all_z = _corners(n)
         all_vals = search(all_z)
+    groups = [
+        (m, side, sign) for m in range(len(_METRICS)) for side, sign in (("lo", -1.0), ("hi", 1.0))
+    ]
+    starts = []
+    for m, _, sign in groups:
+        if method == "corners":
+            order = np.argsort(-sign * all_vals[:, m], kind="stable")[:_REFINE_CORNERS]
+            starts.append(all_z[order])
+        else:
+            starts.append(search.local_search(m, sign)[None, :])
+    sizes = [len(st) for st in starts]
+    metric_of = np.repeat([g[0] for g in groups], sizes)
+    sign_of = np.repeat([g[2] for g in groups], sizes).astype(float)
+    rows, vals = search.refine(np.vstack(starts), metric_of, sign_of)
     bounds: dict[str, tuple[float, float]] = {}
     corners: dict[str, dict[str, str]] = {}
-    for m, metric in enumerate(_METRICS):
-        ends: list[float] = []
-        for side, sign in (("lo", -1.0), ("hi", 1.0)):
-            if method == "corners":
-                order = np.argsort(-sign * all_vals[:, m], kind="stable")[:_REFINE_CORNERS]
-                starts = all_z[order]
-            else:
-                starts = search.local_search(m, sign)[None, :]
-            z, val = search.refine(starts, m, sign)
-            ends.append(sign * val)
-            corners[f"{metric}_{side}"] = {
-                v.name: v.describe(float(z[i])) for i, v in enumerate(variables)
-            }
-        bounds[metric] = (ends[0], ends[1])
+    ends: dict[str, float] = {}
+    first = 0
+    for (m, side, sign), size in zip(groups, sizes, strict=True):
+        k = first + int(np.argmax(vals[first : first + size]))
+        first += size
+        metric = _METRICS[m]
+        ends[f"{metric}_{side}"] = sign * float(vals[k])
+        corners[f"{metric}_{side}"] = {
+            v.name: v.describe(float(rows[k, i])) for i, v in enumerate(variables)
+        }
+    for metric in _METRICS:
+        bounds[metric] = (ends[f"{metric}_lo"], ends[f"{metric}_hi"])
     return WorstCase(
         frequency_hz=bounds["frequency_hz"],
         amplitude_vpp=bounds["amplitude_vpp"],

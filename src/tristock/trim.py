@@ -20,7 +20,7 @@ from the parts' tempcos: S = -(tc1 - tc2 + tc_Reff + tc_C)·ΔT (op-amp drift is
 
 Ranking (for every ``ranking.by``): resolution, then post-trim drift, then cost, then stock
 codes. Exact within the search model; each answer is re-checked by brute force over the full
-model's corners (``analysis.worst_case``) at both margins and dropped if it fails.
+model's corners (``analysis.corner_extremes``) at both margins and dropped if it fails.
 """
 
 from __future__ import annotations
@@ -32,7 +32,7 @@ import time
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import analyse, worst_case
+from tristock.analysis import analyse, corner_extremes
 from tristock.catalog import Catalog
 from tristock.design import Design, rails_from_supply
 from tristock.parts import Pot
@@ -285,14 +285,14 @@ def _best(model: SearchModel, pots: list[Pot], rows: _Trimmed, top: int) -> _Tri
 
 
 def coverage(design: Design, spec: Spec) -> tuple[float, float]:
-    """(lowest f any corner reaches at wiper 1 - m, highest f every corner reaches at wiper m):
-    brute force over the full model's corners (``analysis.worst_case``). The design covers the
-    target when the first is <= target <= the second."""
+    """(highest f any corner has at wiper 1 - m, lowest f any corner has at wiper m): brute
+    force over the full model's corners (``analysis.corner_extremes``). Every board can be
+    trimmed to the target when the first is <= target <= the second."""
     assert spec.trim is not None
     m = spec.trim.margin_pct / 100
-    at_m = worst_case(dataclasses.replace(design, wiper=m), spec)
-    at_far = worst_case(dataclasses.replace(design, wiper=1 - m), spec)
-    return at_far.frequency_hz[1], at_m.frequency_hz[0]
+    at_m = corner_extremes(dataclasses.replace(design, wiper=m), spec)["frequency_hz"]
+    at_far = corner_extremes(dataclasses.replace(design, wiper=1 - m), spec)["frequency_hz"]
+    return at_far[1], at_m[0]
 
 
 def design_trimmed(

@@ -128,7 +128,9 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
             keep = (e_a + up_a <= ab) & (e_a - dn_a >= aa)
         y_bound = _yield_bound(model, o, i1, i2, e_a)
         if guarantee == "yield":
-            keep &= 1.0 - y_bound * SCORE_RESOLUTION >= model.spec.limits.min_yield - SCORE_RESOLUTION
+            keep &= (
+                1.0 - y_bound * SCORE_RESOLUTION >= model.spec.limits.min_yield - SCORE_RESOLUTION
+            )
         bound = y_bound if model.mode == "yield" else base + floor
         pairs = _Pairs(u, i1, i2, base, bound, margin_lo, margin_hi)
         parts.append(pairs.take(keep))
