@@ -121,10 +121,10 @@ def _combos(spec: Spec, model: SearchModel, pots: list[Pot]) -> _Combos:
         p1, p2 = _best_pairs(model, o.index)
         for a, b in zip(p1, p2, strict=True):
             for pot_index, pot in enumerate(pots):
-                rv = pot.value_ohm
+                rv_ohm = pot.value_ohm
                 if divider:
-                    r3s = np.flatnonzero(e12 & (values >= 10 * rv))
-                    r4s = np.flatnonzero(e12 & (values >= rv / 49) & (values <= 2 * rv))
+                    r3s = np.flatnonzero(e12 & (values >= 10 * rv_ohm))
+                    r4s = np.flatnonzero(e12 & (values >= rv_ohm / 49) & (values <= 2 * rv_ohm))
                 else:
                     r3s = np.arange(len(res))
                     r4s = np.array([-1])
@@ -292,7 +292,7 @@ def _choose_caps(
     status = solver.solve(model)
     if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
         return None
-    return [int(solver.value(x)) for x in slot], int(round(solver.objective_value))
+    return [int(solver.value(x)) for x in slot], round(solver.objective_value)
 
 
 def _range_ends(design: Design, spec: Spec) -> list[tuple[float, float, float, float]]:
@@ -375,7 +375,7 @@ def design_tuned(spec: Spec, catalog: Catalog, *, time_limit_s: float) -> Design
                 total = float(pool.shared_cost[m]) + sum(float(cap.cost[j]) for j in caps)
                 found.append((round(total * 1e4), score % _BIG, int(m), caps))
         found.sort(key=lambda f: (f[0], f[1], f[2]))
-        for total_q, excess, m, caps in found:
+        for total_q, _excess, m, caps in found:
             if len(candidates) >= spec.ranking.top:
                 break
             d = _design(model, pots, pool, m, caps, tu.control)
