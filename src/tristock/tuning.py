@@ -17,9 +17,11 @@ gh(Ci) >= gl(Ci+1)·(1 + o) for every neighbour.
 Search: for every op amp, its best amplitude pairs (R1, R2), every R3 and panel pot (divider:
 R3 and R4 from the E12 members on the shelf, R3 at least 10x RV so the dial stays near
 linear), and every capacitor, the fewest ranges that cover is found by the greedy interval
-chain (optimal for interval cover), vectorised over all combinations. For the most promising
-combinations CP-SAT then chooses exactly n capacitors jointly: a chain of allowed neighbour
-transitions, minimising cost and then the largest excess overlap (evenness). Every answer is
+chain (optimal for interval cover), vectorised over all combinations; the cheapest chain of
+exactly n capacitors per combination comes from a dynamic programme, walked in order of a cost
+bound until no combination can be cheaper. For the finalists CP-SAT chooses the n capacitors
+jointly: a chain of allowed neighbour transitions, minimising cost and then the largest excess
+overlap (evenness). Every answer is
 re-checked against the full model's corners (``analysis.corner_extremes``) at both ends of
 every range and dropped if a range or an overlap fails.
 """
@@ -233,6 +235,29 @@ def _fewest_ranges(combos: _Combos, low: float, high: float, overlap: float) -> 
     return count
 
 
+def _cheapest_chain(
+    gl: NDArray[np.float64],
+    gh: NDArray[np.float64],
+    cost: NDArray[np.float64],
+    n: int,
+    low: float,
+    high: float,
+    overlap: float,
+) -> float:
+    """Cost of the cheapest chain of exactly ``n`` capacitors that covers (inf if none):
+    best[s][j] = cost[j] + min over allowed predecessors i of best[s-1][i]."""
+    use = np.flatnonzero(np.isfinite(gl) & (gh >= low) & (gl <= high))
+    if len(use) == 0:
+        return math.inf
+    a_gl, a_gh, a_cost = gl[use], gh[use], cost[use]
+    allowed = (a_gh[None, :] > a_gh[:, None]) & (a_gh[:, None] >= a_gl[None, :] * (1 + overlap))
+    best = np.where(a_gl <= low, a_cost, np.inf)
+    for _ in range(n - 1):
+        best = np.where(allowed, best[:, None], np.inf).min(axis=0) + a_cost
+    final = np.where(a_gh >= high, best, np.inf).min()
+    return float(final)
+
+
 def _choose_caps(
     gl: NDArray[np.float64],
     gh: NDArray[np.float64],
@@ -242,10 +267,13 @@ def _choose_caps(
     high: float,
     overlap: float,
     time_limit_s: float,
+    max_cost: float,
 ) -> tuple[list[int], int] | None:
     """CP-SAT: exactly ``n`` capacitors (indices, lowest range first) forming a covering
-    chain, minimising cost and then the largest excess overlap. None if there is none."""
-    usable = [j for j in range(len(gl)) if math.isfinite(gl[j])]
+    chain that costs at most ``max_cost`` (the dynamic programme's optimum), minimising cost
+    and then the largest excess overlap. None if there is none."""
+    # A capacitor whose guaranteed range lies wholly outside low..high cannot help a chain.
+    usable = [j for j in range(len(gl)) if math.isfinite(gl[j]) and gh[j] >= low and gl[j] <= high]
     if not usable:
         return None
     model = cp_model.CpModel()
@@ -280,6 +308,7 @@ def _choose_caps(
         c_s = model.new_int_var(0, max(cents), f"cost_{s}")
         model.add_element(slot[s], cents, c_s)
         slot_cost.append(c_s)
+    model.add(sum(slot_cost) <= round(max_cost / 1e-4) + n)  # per-part rounding slack
     worst = model.new_int_var(0, excess_hi, "largest_excess_overlap")
     if excess:
         model.add_max_equality(worst, excess)
@@ -288,7 +317,7 @@ def _choose_caps(
     model.minimize(_BIG * sum(slot_cost) + worst)
     solver = cp_model.CpSolver()
     solver.parameters.max_time_in_seconds = max(time_limit_s, 0.05)
-    solver.parameters.num_workers = 2
+    solver.parameters.num_workers = 1
     status = solver.solve(model)
     if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
         return None
@@ -354,26 +383,44 @@ def design_tuned(spec: Spec, catalog: Catalog, *, time_limit_s: float) -> Design
         cheapest = np.sort(np.where(np.isfinite(pool.gl), cap.cost[None, :], np.inf), axis=1)
         bound = pool.shared_cost + cheapest[:, :n].sum(axis=1)
         order = np.argsort(bound, kind="stable")
-        found: list[tuple[int, int, int, list[int]]] = []
+        # Exact cheapest chain per combination (dynamic programming), in order of the cost
+        # bound, until the bound passes the top-th cheapest design found.
+        costed: list[tuple[int, int]] = []
+        chains: dict[int, float] = {}
         for m in order:
-            kth = (
-                sorted(f[0] for f in found)[spec.ranking.top - 1]
-                if len(found) >= spec.ranking.top
-                else None
-            )
-            if kth is not None and round(float(bound[m]) * 1e4) > kth:
-                break
-            left = time_limit_s - (time.perf_counter() - t0)
-            if left <= 0:
+            if len(costed) >= spec.ranking.top:
+                kth = sorted(c for c, _ in costed)[spec.ranking.top - 1]
+                if round(float(bound[m]) * 1e4) > kth:
+                    break
+            if time.perf_counter() - t0 > time_limit_s:
                 proven = False
                 break
+            chain = _cheapest_chain(
+                pool.gl[m], pool.gh[m], cap.cost, n, tu.low_hz, tu.high_hz, overlap
+            )
+            if math.isfinite(chain):
+                costed.append((round((float(pool.shared_cost[m]) + chain) * 1e4), int(m)))
+                chains[int(m)] = chain
+        costed.sort()
+        # CP-SAT chooses each finalist's capacitors jointly: the same cost, then evenness.
+        found: list[tuple[int, int, int, list[int]]] = []
+        for _, m in costed[: spec.ranking.top]:
+            left = max(time_limit_s - (time.perf_counter() - t0), 0.2)
             chosen = _choose_caps(
-                pool.gl[m], pool.gh[m], cap.cost, n, tu.low_hz, tu.high_hz, overlap, left / 4
+                pool.gl[m],
+                pool.gh[m],
+                cap.cost,
+                n,
+                tu.low_hz,
+                tu.high_hz,
+                overlap,
+                left / 4,
+                chains[m] + 1e-9,
             )
             if chosen is not None:
                 caps, score = chosen
                 total = float(pool.shared_cost[m]) + sum(float(cap.cost[j]) for j in caps)
-                found.append((round(total * 1e4), score % _BIG, int(m), caps))
+                found.append((round(total * 1e4), score % _BIG, m, caps))
         found.sort(key=lambda f: (f[0], f[1], f[2]))
         for total_q, _excess, m, caps in found:
             if len(candidates) >= spec.ranking.top:
