@@ -18,7 +18,7 @@ from tristock.catalog import Catalog, CatalogError, StockError, load_catalog, se
 from tristock.design import Design, rails_from_supply
 from tristock.designfile import load_design
 from tristock.report import analysis_report, same_physics, simulation_report
-from tristock.results import DesignResult, ReoptimiseResult
+from tristock.results import Candidate, DesignResult, ReoptimiseResult
 from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design
 from tristock.spec import Spec, SpecError, load_spec
 from tristock.units import format_value
@@ -41,8 +41,14 @@ def demo_catalog_dir() -> Path:
     return Path(__file__).resolve().parents[2] / "catalogs" / "demo"
 
 
-def example_spec_path() -> Path:
-    return Path(str(resources.files("tristock") / "examples" / "demo.toml"))
+EXAMPLES = ("demo", "trimmed", "tuned")
+
+
+def example_spec_path(name: str = "demo") -> Path:
+    """A bundled example spec: demo (fixed parts), trimmed, tuned."""
+    if name not in EXAMPLES:
+        raise UsageError(f"--example: unknown example {name!r} (choose {', '.join(EXAMPLES)})")
+    return Path(str(resources.files("tristock") / "examples" / f"{name}.toml"))
 
 
 def _catalog(path: str | None, example: bool = False) -> Catalog:
@@ -91,31 +97,88 @@ def _spec_lines(spec: Spec) -> list[str]:
     ]
 
 
+def _fixed_table(result: DesignResult) -> list[str]:
+    head = (
+        f"{'#':>2}  {'U1':<9} {'R1':>9} {'R2':>9} {'R3':>9} {'C1':>14}  "
+        f"{'f':>10} {'err':>7} {'Vpp':>6} {'worst-case f':>17} {'yield':>6} {'cost':>6}"
+    )
+    lines = [head, "-" * len(head)]
+    for c in result.candidates:
+        p = c.parts
+        wc = c.worst_case["frequency_hz"]
+        lines.append(
+            f"{c.rank:>2}  {p['U1'].id:<9} {_ohms(c, 'R1'):>9} {_ohms(c, 'R2'):>9} "
+            f"{_ohms(c, 'R3'):>9} {p['C1'].display.replace(' %', '%'):>14}  "
+            f"{format_value(c.predicted.frequency_hz, 'Hz', 5):>10} "
+            f"{c.error.frequency_pct:>+6.2f}% {c.predicted.amplitude_vpp:>6.3f} "
+            f"{format_value(wc[0], '', 4):>8}..{format_value(wc[1], 'Hz', 4):<8} "
+            f"{c.yield_fraction:>6.1%} {c.cost:>6.3f}"
+        )
+    return lines
+
+
+def _ohms(c: Candidate, designator: str) -> str:
+    return format_value(c.parts[designator].value or 0.0, "Ω")
+
+
+def _trim_table(result: DesignResult) -> list[str]:
+    head = (
+        f"{'#':>2}  {'U1':<9} {'R1':>9} {'R2':>9} {'R3':>9} {'RV1':>9} {'C1':>14}  "
+        f"{'wiper':>6} {'trim span':>21} {'res %/%':>8} {'drift':>7} {'cost':>6}"
+    )
+    lines = [head, "-" * len(head)]
+    for c in result.candidates:
+        t = c.trim
+        assert t is not None
+        lines.append(
+            f"{c.rank:>2}  {c.parts['U1'].id:<9} {_ohms(c, 'R1'):>9} {_ohms(c, 'R2'):>9} "
+            f"{_ohms(c, 'R3'):>9} {_ohms(c, 'RV1'):>9} "
+            f"{c.parts['C1'].display.replace(' %', '%'):>14}  {t.wiper_nominal:>6.1%} "
+            f"{format_value(t.range_hz[0], '', 4):>9}..{format_value(t.range_hz[1], 'Hz', 4):<10}"
+            f" {t.resolution_pct_per_pct:>8.3f} {t.drift_after_trim_pct:>6.3f}% {c.cost:>6.3f}"
+        )
+    best = result.candidates[0].trim
+    assert best is not None
+    lines.append(
+        f"\nEvery corner reaches {format_value(best.reach_hz[0], 'Hz', 5)}.."
+        f"{format_value(best.reach_hz[1], 'Hz', 5)} inside the wiper margins of "
+        f"{best.margin_pct:g} % (rank 1)."
+    )
+    return lines
+
+
+def _tuning_table(result: DesignResult) -> list[str]:
+    lines = []
+    for c in result.candidates:
+        t = c.tuning
+        assert t is not None
+        shared = ", ".join(
+            f"{k} {v.id}" for k, v in c.parts.items() if not (k.startswith("C") and k[1:].isdigit())
+        )
+        lines.append(f"{c.rank:>2}. {len(t.ranges)} ranges, cost {c.cost:.3f}: {shared}")
+        for r in t.ranges:
+            lines.append(
+                f"      {r.capacitor} {c.parts[r.capacitor].display:<16} "
+                f"nominal {format_value(r.low_hz, 'Hz', 4):>9}.."
+                f"{format_value(r.high_hz, 'Hz', 4):<9}"
+                f"  guaranteed {format_value(r.guaranteed_low_hz, 'Hz', 4):>9}.."
+                f"{format_value(r.guaranteed_high_hz, 'Hz', 4)}"
+            )
+    return lines
+
+
 def render_design(result: DesignResult) -> str:
     lines = ["tristock design", *("  " + x for x in _spec_lines(result.spec)), ""]
     if result.infeasible:
         lines.append("No design meets the spec:")
         lines += [f"  - {r}" for r in result.infeasible.reasons]
     else:
-        head = (
-            f"{'#':>2}  {'U1':<9} {'R1':>9} {'R2':>9} {'R3':>9} {'C1':>14}  "
-            f"{'f':>10} {'err':>7} {'Vpp':>6} {'worst-case f':>17} {'yield':>6} {'cost':>6}"
-        )
-        lines += [head, "-" * len(head)]
-        for c in result.candidates:
-            p = c.parts
-            wc = c.worst_case["frequency_hz"]
-            cap = p["C1"].display.replace(" %", "%")
-            lines.append(
-                f"{c.rank:>2}  {p['U1'].id:<9} "
-                f"{format_value(p['R1'].value or 0, 'Ω'):>9} "
-                f"{format_value(p['R2'].value or 0, 'Ω'):>9} "
-                f"{format_value(p['R3'].value or 0, 'Ω'):>9} {cap:>14}  "
-                f"{format_value(c.predicted.frequency_hz, 'Hz', 5):>10} "
-                f"{c.error.frequency_pct:>+6.2f}% {c.predicted.amplitude_vpp:>6.3f} "
-                f"{format_value(wc[0], '', 4):>8}..{format_value(wc[1], 'Hz', 4):<8} "
-                f"{c.yield_fraction:>6.1%} {c.cost:>6.3f}"
-            )
+        if result.spec.tuning is not None:
+            lines += _tuning_table(result)
+        elif result.spec.trimmed:
+            lines += _trim_table(result)
+        else:
+            lines += _fixed_table(result)
         lines.append("")
         best = result.candidates[0]
         lines.append("Rank 1 parts: " + ", ".join(f"{k} {v.id}" for k, v in best.parts.items()))
@@ -136,7 +199,7 @@ def render_design(result: DesignResult) -> str:
 
 def cmd_design(args: argparse.Namespace) -> int:
     if args.example:
-        spec_path = example_spec_path()
+        spec_path = example_spec_path(args.example)
     elif args.spec is None:
         raise UsageError("design: give a SPEC file or --example")
     else:
@@ -148,11 +211,34 @@ def cmd_design(args: argparse.Namespace) -> int:
     spec = spec.model_validate({**spec.model_dump(), "ranking": ranking.model_dump()})
     catalog = _catalog(args.catalog, example=args.example)
     result = design(spec, catalog, engine=args.engine, time_limit_s=args.time_limit)
+    if args.plot:
+        _plot_design(result, Path(args.plot))
     if args.json:
         _dump(result.model_dump(mode="json"))
     else:
         print(render_design(result))
+        if args.plot and result.candidates:
+            print(f"plot written to {args.plot}")
     return 0
+
+
+def _plot_design(result: DesignResult, path: Path) -> None:
+    """Rank 1's dial law (tuned) or its frequency against trimmer travel (trimmed)."""
+    from tristock.plot import plot_dial_law
+
+    if not result.candidates:
+        return
+    best = result.candidates[0]
+    if best.tuning is not None:
+        law = best.tuning.dial_law
+    elif best.trim is not None:
+        raise UsageError("--plot: trimmed designs have no dial law; use simulate --plot")
+    else:
+        raise UsageError("--plot: only tuned designs have a dial law; use simulate --plot")
+    try:
+        plot_dial_law(law, path, title=f"dial law, {best.parts['RV1'].id}")
+    except ValueError as err:
+        raise UsageError(str(err)) from None
 
 
 # ---- analyse and simulate ---------------------------------------------------------------
@@ -407,7 +493,14 @@ def build_parser() -> argparse.ArgumentParser:
 
     d = sub.add_parser("design", help="search the catalog for the best designs for a spec")
     d.add_argument("spec", nargs="?", help="spec file (TOML or JSON)")
-    d.add_argument("--example", action="store_true", help="bundled demo spec and catalog")
+    d.add_argument(
+        "--example",
+        nargs="?",
+        const="demo",
+        choices=EXAMPLES,
+        help="a bundled example spec on the demo catalog: demo (default), trimmed, tuned",
+    )
+    d.add_argument("--plot", help="tuned designs: write rank 1's dial law to FILE (.png/.svg)")
     d.add_argument("--catalog", help="catalog folder (default with --example: the demo)")
     d.add_argument("--top", type=int, help="how many designs (overrides ranking.top)")
     d.add_argument(

@@ -1,4 +1,4 @@
-"""Waveform plot of a time-domain simulation: triangle and square on one time axis.
+"""Plots: the waveforms of a time-domain simulation, and the dial law of a tuned design.
 
 Drawn with matplotlib's Agg canvas (no screen needed) and written atomically: the figure goes to
 a temporary file in the target directory, is flushed to disk, then renamed over ``path``.
@@ -50,16 +50,7 @@ def plot_waveforms(result: SimulationResult, path: Path, *, title: str | None = 
 
     Raises ValueError for a suffix other than .png or .svg, or a directory that does not exist.
     """
-    path = Path(path)
-    fmt = FORMATS.get(path.suffix.lower())
-    if fmt is None:
-        raise ValueError(
-            f"path: {str(path)!r} has suffix {path.suffix!r}; the plot is written as "
-            f"{' or '.join(FORMATS)} only"
-        )
-    directory = path.parent if str(path.parent) else Path(".")
-    if not directory.is_dir():
-        raise ValueError(f"path: directory {str(directory)!r} does not exist")
+    path, fmt, directory = _target(path)
     if result.t_s.size < 2:
         raise ValueError("result: the waveform has fewer than two samples")
 
@@ -97,7 +88,49 @@ def plot_waveforms(result: SimulationResult, path: Path, *, title: str | None = 
         f"duty {100.0 * m.duty_high:.2f} % ({result.periods_measured} periods)"
     )
     ax.set_title(f"{title}\n{summary}" if title else summary)
+    return _write(fig, path, fmt, directory)
 
+
+def plot_dial_law(law: dict[str, list[float]], path: Path, *, title: str | None = None) -> Path:
+    """Frequency (log axis) against wiper position, one curve per range capacitor.
+
+    ``law`` holds "wiper" (0..1) and one list of frequencies (Hz) per range ("C1", ...), as in
+    ``TuningOut.dial_law``. Raises ValueError for a bad suffix or a missing directory.
+    """
+    path, fmt, directory = _target(path)
+    wiper = [100.0 * w for w in law["wiper"]]
+    fig = Figure(figsize=(7.5, 4.8), layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    for name, freqs in law.items():
+        if name != "wiper":
+            ax.plot(wiper, freqs, marker="o", markersize=3, linewidth=1.4, label=f"range {name}")
+    ax.set_yscale("log")
+    ax.set_xlim(0.0, 100.0)
+    ax.set_xlabel("pot rotation (% of travel)")
+    ax.set_ylabel("frequency (Hz)")
+    ax.grid(True, which="both", color="#e5e7eb", linewidth=0.8)
+    ax.legend(fontsize="small", frameon=False)
+    ax.set_title(title or "dial law (nominal)")
+    return _write(fig, path, fmt, directory)
+
+
+def _target(path: Path) -> tuple[Path, str, Path]:
+    path = Path(path)
+    fmt = FORMATS.get(path.suffix.lower())
+    if fmt is None:
+        raise ValueError(
+            f"path: {str(path)!r} has suffix {path.suffix!r}; the plot is written as "
+            f"{' or '.join(FORMATS)} only"
+        )
+    directory = path.parent if str(path.parent) else Path(".")
+    if not directory.is_dir():
+        raise ValueError(f"path: directory {str(directory)!r} does not exist")
+    return path, fmt, directory
+
+
+def _write(fig: Figure, path: Path, fmt: str, directory: Path) -> Path:
+    """Write ``fig`` atomically: temporary file in ``directory``, fsync, rename."""
     handle, temp_name = tempfile.mkstemp(
         prefix=f".{path.name}.", suffix=f".tmp{path.suffix}", dir=directory
     )
