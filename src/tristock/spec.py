@@ -109,7 +109,9 @@ class LimitsSpec(_Section):
 
     max_cost: float | None = Field(None, gt=0, description="per board, the catalog's currency")
     resistor_series: tuple[str, ...] | None = Field(
-        None, description="allowed E-series of R1..R3; default any (non-standard values included)"
+        None,
+        description="R1..R3 values must belong to one of these E-series (a part labelled with the "
+        "series, or whose value is a member); default any, non-standard values included",
     )
     dielectrics: tuple[str, ...] = Field(
         DEFAULT_DIELECTRICS, description="allowed C1 dielectrics; default class I and films"

@@ -95,13 +95,17 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
             ]
     coupled = enumerate_top(model, 1, 2.0, coupled=True)
     if len(coupled.rows) == 0:
-        cheapest = float(relaxed.rows.cost.min())
+        by_cost = nominal.model_copy(
+            update={"ranking": nominal.ranking.model_copy(update={"by": "cost"})}
+        )
+        cheapest_row = enumerate_top(build_model(by_cost, catalog), 1, 2.0, coupled=False)
+        cheapest = float(cheapest_row.rows.cost.min()) if len(cheapest_row.rows) else math.nan
         out = []
         if lim.max_cost is not None:
             out.append(
                 f"combinations meet the bands, but max_cost {lim.max_cost:g} per board or "
-                f"stock for {boards} boards rules them all out (one that meets the bands "
-                f"costs {cheapest:.4g})"
+                f"stock for {boards} boards rules them all out (the cheapest that meets the "
+                f"bands costs {cheapest:.4g})"
             )
         else:
             out.append(

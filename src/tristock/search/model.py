@@ -35,6 +35,7 @@ from scipy.special import ndtr
 from tristock.catalog import Catalog
 from tristock.circuit import OpAmpModel, Prediction, predict, square_levels
 from tristock.design import rails_from_supply
+from tristock.eseries import is_member
 from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.spec import Spec
 
@@ -415,6 +416,12 @@ def _rail_spread(
     return (-min(lf), max(lf)), (-min(la), max(la))
 
 
+def in_series(r: Resistor, names: Sequence[str]) -> bool:
+    """A resistor is "in" a series when its drawer says so or its value is a member: an E96
+    drawer's 10 kΩ is an E24 value too."""
+    return r.series in names or any(is_member(s, r.value_ohm) for s in names)
+
+
 def build_model(spec: Spec, catalog: Catalog) -> SearchModel:
     """Eligible parts and per-op-amp constants for ``spec``; exclusions say why parts dropped."""
     lim = spec.limits
@@ -425,7 +432,7 @@ def build_model(spec: Spec, catalog: Catalog) -> SearchModel:
     for r in catalog.resistors:
         if not lim.resistance_min_ohm <= r.value_ohm <= lim.resistance_max_ohm:
             continue
-        if lim.resistor_series is not None and r.series not in lim.resistor_series:
+        if lim.resistor_series is not None and not in_series(r, lim.resistor_series):
             continue
         if r.stock < boards:
             excl.append(Exclusion("R", r.id, f"stock {r.stock} < {boards} boards"))
