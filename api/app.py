@@ -18,6 +18,7 @@ from typing import Any
 from fastapi import FastAPI
 
 from api import errors
+from api.cache import AnswerCache
 from api.errors import CatchAll
 from api.limits import BodyLimit, ComputeSlots
 from api.routers import analysis, catalog, design, health
@@ -41,6 +42,7 @@ def create_app(settings: Settings) -> FastAPI:
     app.state.settings = settings
     app.state.store = CatalogStore(settings.catalog_dir)
     app.state.slots = ComputeSlots(settings.max_searches, settings.search_wait_s)
+    app.state.cache = AnswerCache(settings.cache_size)
     errors.install(app)
     for r in (design.router, analysis.router, catalog.router, health.router):
         app.include_router(r)

@@ -8,6 +8,7 @@ from typing import Annotated
 from fastapi import Depends, HTTPException, Request
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 
+from api.cache import AnswerCache
 from api.limits import ComputeSlots
 from api.settings import Settings
 from api.store import CatalogStore
@@ -29,6 +30,16 @@ def store_of(request: Request) -> CatalogStore:
 def catalog_of(request: Request) -> Catalog:
     """The current catalog (reloaded first if its files changed); 503 if none has loaded."""
     return store_of(request).current()
+
+
+def versioned_catalog_of(request: Request) -> tuple[Catalog, int]:
+    """The current catalog and its generation (for cache keys)."""
+    return store_of(request).current_versioned()
+
+
+def cache_of(request: Request) -> AnswerCache:
+    cache: AnswerCache = request.app.state.cache
+    return cache
 
 
 def slots_of(request: Request) -> ComputeSlots:
@@ -67,3 +78,5 @@ SettingsDep = Annotated[Settings, Depends(settings_of)]
 StoreDep = Annotated[CatalogStore, Depends(store_of)]
 CatalogDep = Annotated[Catalog, Depends(catalog_of)]
 SlotsDep = Annotated[ComputeSlots, Depends(slots_of)]
+VersionedCatalogDep = Annotated[tuple[Catalog, int], Depends(versioned_catalog_of)]
+CacheDep = Annotated[AnswerCache, Depends(cache_of)]

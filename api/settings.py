@@ -41,6 +41,8 @@ class Settings:
     busy waits up to ``search_wait_s`` seconds, then gets 503.
     ``default_time_limit_s`` / ``max_time_limit_s``: per-request search time (s); a larger
     request is cut to the cap (the answer's ``search.time_limit_s`` shows the limit used).
+    ``cache_size``: design/reoptimise answers kept per worker for repeated requests on the
+    same catalog (0 turns the cache off).
     """
 
     catalog_dir: Path
@@ -54,6 +56,7 @@ class Settings:
     search_wait_s: float = 2.0
     max_samples: int = MAX_SAMPLES
     max_page: int = MAX_PAGE
+    cache_size: int = 256
 
     def __post_init__(self) -> None:
         checks = (
@@ -65,6 +68,7 @@ class Settings:
             ("search_wait_s", self.search_wait_s >= 0),
             ("max_samples", 1 <= self.max_samples <= MAX_SAMPLES),
             ("max_page", 1 <= self.max_page <= MAX_PAGE),
+            ("cache_size", self.cache_size >= 0),
         )
         for name, ok in checks:
             if not ok:

@@ -73,17 +73,23 @@ class CatalogStore:
 
         Raises CatalogUnavailable when no load has ever succeeded.
         """
+        return self.current_versioned()[0]
+
+    def current_versioned(self) -> tuple[Catalog, int]:
+        """The current catalog and its generation (1 for the first load, +1 per reload),
+        read together so a cache keyed by the generation never mixes catalogs."""
         sig = signature(self.directory)
         if sig != self._signature:
             with self._lock:
                 if sig != self._signature:  # another thread may have reloaded meanwhile
                     self._reload(sig)
-        catalog = self._catalog
+        with self._lock:
+            catalog, generation = self._catalog, self.reloads
         if catalog is None:
             error = self._error
             why = "; ".join(error.errors) if error else "not loaded"
             raise CatalogUnavailable(f"catalog {self.directory} is not available: {why}")
-        return catalog
+        return catalog, generation
 
     def peek(self) -> Catalog | None:
         """The loaded catalog without checking the files (None if none loaded)."""
@@ -109,7 +115,7 @@ class CatalogStore:
         else:
             self._catalog = catalog
             self._error = None
-            self.reloads += 1
+            self.reloads += 1  # under self._lock (the caller holds it)
             self.loaded_at = time.time()
             log.info("catalog loaded: %r", catalog)
         self._signature = sig

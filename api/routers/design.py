@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from api.deps import CatalogDep, SettingsDep, SlotsDep
+from api.deps import CacheDep, CatalogDep, SettingsDep, SlotsDep, VersionedCatalogDep
 from api.errors import FieldProblem
 from api.jsonout import StrictJSON, answer
 from api.routers import COMPUTE_ERRORS
@@ -45,8 +45,13 @@ def _headers(proven: bool) -> dict[str, str]:
     "`search.proven_optimal: false` (and the header `X-Search: cut-by-time-limit`).",
 )
 def post_design(
-    body: DesignRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
+    body: DesignRequest,
+    settings: SettingsDep,
+    versioned: VersionedCatalogDep,
+    slots: SlotsDep,
+    cache: CacheDep,
 ) -> StrictJSON:
+    catalog, generation = versioned
     spec = body.spec
     overrides = {k: v for k, v in (("top", body.top), ("by", body.by)) if v is not None}
     if overrides:
@@ -55,9 +60,19 @@ def post_design(
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, spec.ranking.top, where)
     limit = _time_limit(settings, body.time_limit_s)
-    with slots.slot(), FieldProblem.from_value_errors(["body", "spec"]):
-        result = design(spec, catalog, engine=body.engine, time_limit_s=limit)
-    return answer(result.model_dump(mode="json"), headers=_headers(result.search.proven_optimal))
+    key = cache.key("design", generation, [spec.model_dump(mode="json"), body.engine, limit])
+    data = cache.get(key)
+    if data is None:
+        with slots.slot(), FieldProblem.from_value_errors(["body", "spec"]):
+            result = design(spec, catalog, engine=body.engine, time_limit_s=limit)
+        data = result.model_dump(mode="json")
+        if result.search.proven_optimal:  # an answer cut by time may improve on a retry
+            cache.put(key, data)
+        hit = "miss"
+    else:
+        hit = "hit"
+    headers = {**_headers(data["search"]["proven_optimal"]), "X-Cache": hit}
+    return answer(data, headers=headers)
 
 
 @router.post(
