@@ -3,6 +3,9 @@ and latency for the bundled demo spec with N concurrent clients against a real s
 
     python tests/benchmark_api.py [--clients 2] [--workers 2] [--seconds 20] [--max-requests 400]
 
+Two runs: one spec repeated (served from the per-worker answer cache after the first search)
+and distinct specs (every request a cold search).
+
 Starts ``tristock serve`` on a free 127.0.0.1 port with a private copy of the demo catalog,
 warms it up, then runs the clients for ``--seconds`` (or until ``--max-requests``), and prints
 requests/s, p50/p99 latency and the answer codes. Then it times one design in-process and
@@ -68,7 +71,11 @@ def percentile(values: list[float], q: float) -> float:
     return ordered[rank - 1]
 
 
-def load(base: str, body: dict[str, Any], clients: int, seconds: float, cap: int) -> None:
+def load(
+    base: str, body: dict[str, Any], clients: int, seconds: float, cap: int, distinct: bool
+) -> None:
+    """Run the clients. ``distinct``: every request moves the target frequency by a few ppm,
+    so none is answered from the server's answer cache (cold searches)."""
     latencies: list[float] = []
     codes: Counter[int | str] = Counter()
     lock = threading.Lock()
@@ -80,9 +87,16 @@ def load(base: str, body: dict[str, Any], clients: int, seconds: float, cap: int
                 with lock:
                     if sum(codes.values()) >= cap:
                         return
+                    n = sum(codes.values()) + 1
+                sent = body
+                if distinct:
+                    spec = dict(body["spec"])
+                    freq = dict(spec["frequency"])
+                    freq["target_hz"] = freq["target_hz"] * (1 + 3e-6 * n)
+                    sent = {**body, "spec": {**spec, "frequency": freq}}
                 t0 = time.perf_counter()
                 try:
-                    code: int | str = http.post("/v1/design", json=body).status_code
+                    code: int | str = http.post("/v1/design", json=sent).status_code
                 except httpx.TransportError as err:
                     code = type(err).__name__
                 dt = time.perf_counter() - t0
@@ -99,7 +113,10 @@ def load(base: str, body: dict[str, Any], clients: int, seconds: float, cap: int
         t.join()
     wall = time.perf_counter() - t0
     ok = len(latencies)
-    print(f"{clients} clients, {wall:.1f} s: {ok} designs answered 200, codes {dict(codes)}")
+    kind = "distinct specs (cold)" if distinct else "one repeated spec (answer cache)"
+    print(
+        f"{kind}, {clients} clients, {wall:.1f} s: {ok} designs answered 200, codes {dict(codes)}"
+    )
     if ok:
         print(f"  sustained    {ok / wall:.2f} requests/s")
         print(
@@ -162,7 +179,8 @@ def main() -> int:
             print(f"server: {args.workers} worker(s) on {base}, {os.cpu_count()} CPUs")
             for _ in range(args.workers * 2):  # warm every worker
                 httpx.post(f"{base}/v1/design", json=body, timeout=120)
-            load(base, body, args.clients, args.seconds, args.max_requests)
+            load(base, body, args.clients, args.seconds, args.max_requests, distinct=False)
+            load(base, body, args.clients, args.seconds, args.max_requests, distinct=True)
         finally:
             proc.send_signal(signal.SIGINT)
             try:

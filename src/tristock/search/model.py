@@ -309,17 +309,18 @@ def _opamp_terms(index: int, part: OpAmp, spec: Spec) -> tuple[OpAmpTerms | None
         )
     r3 = 10e3
     p = t_target / c
-    # Fixed point on (P, k): the full model's period and amplitude at the target. Each step
-    # shrinks the error by about the timing share c·d/T, so iterate to convergence.
+    # Solve for (P, k) where the full model hits the target period and amplitude. T(P) is
+    # c·(P + d) with d nearly constant, so a Newton step on P uses the slope c; A is nearly
+    # proportional to k, so k takes a ratio step. A few steps reach 1e-13.
     for _ in range(200):
         pr = _predict_at(model, vh, vl, k, r3, p)
-        step_p = t_target / float(pr.period_s)
+        period = float(pr.period_s)
         step_k = amp / float(pr.amplitude_vpp)
-        p *= step_p
+        p += (t_target - period) / c
         k *= step_k
         if not (math.isfinite(p) and p > 0 and 0 < k < 1):
             return None, "the model has no operating point at this frequency and amplitude"
-        if abs(step_p - 1) < 1e-13 and abs(step_k - 1) < 1e-13:
+        if abs(period / t_target - 1) < 1e-13 and abs(step_k - 1) < 1e-13:
             break
     pr = _predict_at(model, vh, vl, k, r3, p)
     x = p
