@@ -38,6 +38,7 @@ from tristock.design import Design, rails_from_supply
 from tristock.parts import Pot
 from tristock.results import Candidate, DesignResult, Infeasible, SearchInfo, TrimOut
 from tristock.search import CAUTIONS, candidate
+from tristock.search.explain import opamp_exclusions
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model, pair_spread
 from tristock.spec import Spec
 
@@ -369,12 +370,7 @@ def _reasons(spec: Spec, model: SearchModel, pots: list[Pot], dropped: int) -> l
     if not pots:
         return [f"no trimmer (pots.csv, kind trimmer) with stock for {spec.build.boards} boards"]
     if not model.opamps:
-        return [
-            "no op amp in the catalog can be used: "
-            + "; ".join(
-                f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"
-            )
-        ]
+        return ["no op amp in the catalog can be used: " + opamp_exclusions(model)]
     if dropped:
         return [
             f"{dropped} combination(s) covered the target in the search model, but the full "

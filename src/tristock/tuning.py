@@ -51,6 +51,7 @@ from tristock.results import (
     TuningOut,
 )
 from tristock.search import CAUTIONS, candidate
+from tristock.search.explain import opamp_exclusions
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model, pair_spread
 from tristock.spec import FrequencySpec, Spec
 
@@ -524,11 +525,7 @@ def _reasons(
         return [f"no panel pot (pots.csv, kind panel) with stock for {spec.build.boards} boards"]
     if not model.opamps:
         return [
-            "no op amp in the catalog can be used at "
-            + f"{tu.high_hz:g} Hz: "
-            + "; ".join(
-                f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"
-            )
+            f"no op amp in the catalog can be used at {tu.high_hz:g} Hz: " + opamp_exclusions(model)
         ]
     if dropped:
         return [

@@ -20,6 +20,11 @@ def _series_text(model: SearchModel) -> str:
     return "/".join(names) if names else "any series"
 
 
+def opamp_exclusions(model: SearchModel) -> str:
+    """Why each op amp was left out, one clause per part."""
+    return "; ".join(f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1")
+
+
 def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:
     """Why ``model`` has no candidate, most basic cause first."""
     spec = model.spec
