@@ -36,7 +36,7 @@ from tristock.search import _design_of, candidate, passes, search_space
 from tristock.search.enumeration import enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, Rows, SearchModel, build_model, rank_key
-from tristock.spec import Spec, SpecError
+from tristock.spec import Spec, SpecError, parse_spec
 
 _POSITION_TABLE = {
     "U1": "opamps",
@@ -98,10 +98,14 @@ def reoptimise(
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``."""
     t0 = time.perf_counter()
-    if boards is not None:
-        spec = spec.model_copy(update={"build": spec.build.model_copy(update={"boards": boards})})
-    if top is not None:
-        spec = spec.model_copy(update={"ranking": spec.ranking.model_copy(update={"top": top})})
+    if boards is not None or top is not None:
+        # Validated again (model_copy would not): a bad override is named like a bad spec field.
+        data = spec.model_dump()
+        if boards is not None:
+            data["build"]["boards"] = boards
+        if top is not None:
+            data["ranking"]["top"] = top
+        spec = parse_spec(data)
     missing = [d for d in DESIGNATORS if d not in current]
     if missing:
         raise SpecError([f"parts.{d}: missing" for d in missing])
@@ -112,6 +116,9 @@ def reoptimise(
 
     short = {s.id: s for s in shortfall(catalog, current, n_boards)}
     blocked: dict[str, str] = {}
+    # Short only because the code fills several positions: one position may keep it, and the
+    # search's shared-stock constraint decides which (so these positions are not forced).
+    shared: dict[str, str] = {}
     for name, pid in current.items():
         if pid in without:
             blocked[name] = f"{pid} is marked unavailable"
@@ -119,18 +126,26 @@ def reoptimise(
             blocked[name] = f"{pid} is no longer in the catalog"
         elif pid in short:
             s = short[pid]
-            blocked[name] = f"{pid}: stock {s.stock} < {s.needed} needed for {n_boards} boards"
+            positions = [d for d in DESIGNATORS if current[d] == pid]
+            alone = s.needed // len(positions)
+            if s.stock < alone:
+                blocked[name] = f"{pid}: stock {s.stock} < {alone} needed for {n_boards} boards"
+            else:
+                shared[name] = (
+                    f"{pid}: stock {s.stock} < {s.needed} needed for {n_boards} boards "
+                    f"in {' and '.join(positions)}"
+                )
 
-    reasons = list(blocked.values())
+    reasons = list(dict.fromkeys([*blocked.values(), *shared.values()]))
     predicted = None
-    original_passes = False
+    full_model_passes = False
     if all(pid in catalog for pid in current.values()):
         original = resolve(current, catalog)
         result = analyse(original, spec, samples=samples)
         p = result.to_dict()["predicted"]
         predicted = Predicted(**p)
         if passes(spec, result):
-            original_passes = not blocked
+            full_model_passes = True
         else:
             reasons.append(
                 f"the full model puts it outside the spec ({p['frequency_hz']:.5g} Hz, "
@@ -174,9 +189,20 @@ def reoptimise(
             if len(found.rows):
                 batches.append((frozenset(changed), found.rows))
         model.allowed = {}
-        kept = _finish(spec, model, batches, current, blocked, outside, samples)
+        kept = _finish(spec, model, batches, current, {**shared, **blocked}, outside, samples)
         if kept or time.perf_counter() - t0 > time_limit_s:
             break
+
+    # The original passes when it is itself the 0-change answer: the full model alone does not
+    # see the spec's limits, the cost cap or the stock.
+    original_passes = bool(kept) and not kept[0].changed
+    if full_model_passes and not original_passes and not blocked and not shared:
+        reasons += [f"{current[d]} is outside the spec's limits or stock" for d in sorted(outside)]
+        if not outside:
+            reasons.append(
+                "the search model rejects this combination (cost cap, capacitor voltage, or "
+                "its tolerance estimate under the spec's guarantee)"
+            )
 
     infeasible = None
     if not kept:
