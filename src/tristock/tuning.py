@@ -224,13 +224,15 @@ def _fewest_ranges(combos: _Combos, low: float, high: float, overlap: float) -> 
     gl, gh = combos.gl, combos.gh
     n = len(combos.u)
     count = np.full(n, MAX_RANGES + 1, dtype=np.int64)
-    first = np.where(gl <= low, gh, -np.inf).max(axis=1) if gl.size else np.zeros(n)
-    reach = first
+    # initial=-inf: with no usable capacitor (zero columns) no combination has a range
+    reach = np.where(gl <= low, gh, -np.inf).max(axis=1, initial=-np.inf)
     alive = np.isfinite(reach)
     for step in range(1, MAX_RANGES + 1):
         done = alive & (reach >= high) & (count > MAX_RANGES)
         count[done] = step
-        nxt = np.where(gl * (1 + overlap) <= reach[:, None], gh, -np.inf).max(axis=1)
+        nxt = np.where(gl * (1 + overlap) <= reach[:, None], gh, -np.inf).max(
+            axis=1, initial=-np.inf
+        )
         alive &= nxt > reach
         reach = np.where(alive, nxt, reach)
     return count
@@ -526,6 +528,12 @@ def _reasons(
     if not model.opamps:
         return [
             f"no op amp in the catalog can be used at {tu.high_hz:g} Hz: " + opamp_exclusions(model)
+        ]
+    if len(model.capacitors) == 0:
+        return [
+            "no range capacitor (capacitors.csv) of the allowed dielectrics "
+            f"({', '.join(spec.limits.dielectrics)}) with stock for {spec.build.boards} boards "
+            "and a voltage rating above the triangle peak"
         ]
     if dropped:
         return [
