@@ -588,11 +588,6 @@ def test_shared_code_short_for_two_positions_changes_one() -> None:
     assert [ids_of(c.parts) for c in result.candidates] == expected.best
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="reoptimise lists at most 2·top + 5 rows per set of changed designators and does "
-    "not ask for more when the full model drops them all",
-)
 def test_more_rows_when_the_full_model_drops_the_first_ones() -> None:
     """Eight cheap R3 codes sit where the search model is inside the band, the full one not.
 

@@ -163,33 +163,37 @@ def reoptimise(
     must_change = {d for d in DESIGNATORS if d in blocked or pinned[d] is None}
     outside = {d for d in must_change if d not in blocked}
 
-    want = spec.ranking.top * 2 + 5
     proven = True
     evaluated = 0
     kept: list[ReoptimisedCandidate] = []
     for n in range(len(DESIGNATORS) + 1):
-        batches: list[tuple[frozenset[str], Rows]] = []
-        for changed in combinations(DESIGNATORS, n):
-            if not must_change <= set(changed):
-                continue
+        want = spec.ranking.top * 2 + 5
+        while True:
+            batches: list[tuple[frozenset[str], Rows]] = []
+            capped = False
+            for changed in combinations(DESIGNATORS, n):
+                if not must_change <= set(changed):
+                    continue
+                model.allowed = _masks(model, changed, pinned)
+                remaining = max(time_limit_s - (time.perf_counter() - t0), 0.0)
+                found = enumerate_top(model, want, remaining)
+                proven &= found.proven_optimal
+                evaluated += found.evaluated
+                capped |= len(found.rows) >= want
+                if len(found.rows):
+                    batches.append((frozenset(changed), found.rows))
             model.allowed = {}
-            for d in DESIGNATORS:
-                mask = np.zeros(_size(model, d), dtype=bool)
-                if d in changed:
-                    mask[:] = True
-                    if pinned[d] is not None:
-                        mask[pinned[d]] = False
-                else:
-                    mask[pinned[d]] = True
-                model.allowed[d] = mask
-            remaining = max(time_limit_s - (time.perf_counter() - t0), 0.0)
-            found = enumerate_top(model, want, remaining)
-            proven &= found.proven_optimal
-            evaluated += found.evaluated
-            if len(found.rows):
-                batches.append((frozenset(changed), found.rows))
-        model.allowed = {}
-        kept = _finish(spec, model, batches, current, {**shared, **blocked}, outside, samples)
+            kept, consumed = _finish(
+                spec, model, batches, current, {**shared, **blocked}, outside, samples
+            )
+            # A capped set's unseen rows rank after its want-th row; they can matter only if
+            # the full model dropped so many rows that the merge went that deep.
+            thin = len(kept) < spec.ranking.top or consumed > want
+            if not (capped and thin) or time.perf_counter() - t0 > time_limit_s:
+                if capped and thin:
+                    proven = False
+                break
+            want *= 4
         if kept or time.perf_counter() - t0 > time_limit_s:
             break
 
@@ -228,6 +232,23 @@ def reoptimise(
     )
 
 
+def _masks(
+    model: SearchModel, changed: tuple[str, ...], pinned: dict[str, int | None]
+) -> dict[str, np.ndarray]:
+    """Positions outside ``changed`` keep their part; positions in it must take another."""
+    masks = {}
+    for d in DESIGNATORS:
+        mask = np.zeros(_size(model, d), dtype=bool)
+        if d in changed:
+            mask[:] = True
+            if pinned[d] is not None:
+                mask[pinned[d]] = False
+        else:
+            mask[pinned[d]] = True
+        masks[d] = mask
+    return masks
+
+
 def _finish(
     spec: Spec,
     model: SearchModel,
@@ -236,8 +257,9 @@ def _finish(
     blocked: dict[str, str],
     outside: set[str],
     samples: int,
-) -> list[ReoptimisedCandidate]:
-    """Merge the batches of one change count in rank order; keep those the full model passes."""
+) -> tuple[list[ReoptimisedCandidate], int]:
+    """Merge the batches of one change count in rank order; keep those the full model passes.
+    Also returns how many merged rows were consumed (kept or dropped)."""
     ranked = []
     for changed, rows in batches:
         for n in range(len(rows)):
@@ -247,9 +269,11 @@ def _finish(
             )
     ranked.sort(key=lambda item: item[0])
     out: list[ReoptimisedCandidate] = []
+    consumed = 0
     for _, changed, rows, n in ranked:
         if len(out) >= spec.ranking.top:
             break
+        consumed += 1
         d = _design_of(model, rows, n)
         result = analyse(d, spec, samples=samples)
         if not passes(spec, result):
@@ -268,4 +292,4 @@ def _finish(
                 why = f"re-chosen with {others} to bring the design back into spec"
             changes.append(Change(designator=x, from_id=current[x], to_id=new_ids[x], why=why))
         out.append(ReoptimisedCandidate(**base.model_dump(), changed=names, changes=changes))
-    return out
+    return out, consumed
