@@ -438,10 +438,9 @@ def test_results_are_ordered_by_resolution_then_drift_then_cost(case: str) -> No
     # cost is the catalog's own prices (U1 packages x unit cost + one of every other part)
     for c in result.candidates:
         d = design_of(c, catalog)
-        parts = [d.r1, d.r2, d.r3, d.c1, d.rv1]
-        expected = d.u1.unit_cost * d.u1.packages_per_board + sum(
-            p.unit_cost for p in parts if p is not None
-        )
+        assert d.rv1 is not None
+        parts: list[Resistor | Capacitor | Pot] = [d.r1, d.r2, d.r3, d.c1, d.rv1]
+        expected = d.u1.unit_cost * d.u1.packages_per_board + sum(p.unit_cost for p in parts)
         assert c.cost == pytest.approx(expected, abs=1e-9)
 
 
