@@ -150,8 +150,10 @@ def corner_frequencies(
         slew_fall=at_end("slew", u1.slew_v_per_s),
         delay=at_end("delay", u1.delay_s),
         gbw=u1.gbw_hz,
-        vos1=at_end("vos1", 0.0),
-        ib1=bias,
+        # the integrator's error voltage works against β·V: Ve/β in the C1/β equivalent
+        # (Thévenin, common practice)
+        vos1=at_end("vos1", 0.0) / beta,
+        ib1=bias / beta,
         vos2=at_end("vos2", 0.0),
         ib2=bias,
     )

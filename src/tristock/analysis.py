@@ -172,8 +172,8 @@ def _predict(point: _Point, v_ref: float | None, control: str = "series") -> Pre
         slew_fall=point.slew_fall,
         delay=point.delay,
         gbw=point.gbw,
-        vos1=point.vos1,
-        ib1=point.ib1,
+        vos1=np.asarray(point.vos1) / beta,
+        ib1=np.asarray(point.ib1) / beta,
         vos2=point.vos2,
         ib2=point.ib2,
     )

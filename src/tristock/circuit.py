@@ -532,8 +532,9 @@ def timing_network(
       the bottom. Thévenin: β = (R4 + α·RV)/(R4 + RV), R_th = (1-α)·RV ∥ (R4 + α·RV), so
       R_eff = R3 + R_th and the ramp slope scales by β: f ∝ β/R_eff, linear in β when R3 ≫ RV.
 
-    The integrator then behaves as one with R3 → R_eff and C1 → C1/β (same ramp slope). Exact for
-    an ideal square source; the op amp's output resistance (tens of Ω) is neglected.
+    The integrator then behaves as one with R3 → R_eff and C1 → C1/β (same ramp slope) and its
+    error voltage Ve → Ve/β (it works against β·V). Exact for an ideal square source; the op
+    amp's output resistance (tens of Ω) is neglected.
     """
     a = np.asarray(alpha, dtype=float)
     if np.any((a < 0) | (a > 1)):

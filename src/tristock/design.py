@@ -7,6 +7,7 @@ C1 integrator capacitor, U1 the op amp (one dual, or a single-channel part used 
 
 from __future__ import annotations
 
+import dataclasses
 from collections import Counter
 from dataclasses import dataclass
 from typing import Literal
@@ -112,16 +113,22 @@ class Design:
         c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
         r3 = value_at(self.r3.value_ohm, self.r3.tempco_ppm, temp_c)
         c1 = value_at(cap.value_f, c_tc, temp_c)
+        opamp = OpAmpModel.from_part(self.u1)
         if self.rv1 is not None:
             rv = value_at(self.rv1.value_ohm, self.rv1.tempco_ppm, temp_c)
             r4 = value_at(self.r4.value_ohm, self.r4.tempco_ppm, temp_c) if self.r4 else 0.0
             r_eff, beta = timing_network(r3, rv, self.wiper, self.control, r4)
             r3, c1 = float(r_eff), c1 / float(beta)
+            # The integrator's error voltage works against β·V, so in the equivalent (V, C1/β)
+            # it is Ve/β: scale the integrator's offset and bias current by 1/β.
+            opamp = dataclasses.replace(
+                opamp, offset_v=opamp.offset_v / float(beta), bias_a=opamp.bias_a / float(beta)
+            )
         return Oscillator(
             r1=value_at(self.r1.value_ohm, self.r1.tempco_ppm, temp_c),
             r2=value_at(self.r2.value_ohm, self.r2.tempco_ppm, temp_c),
             r3=r3,
             c1=c1,
-            opamp=OpAmpModel.from_part(self.u1),
+            opamp=opamp,
             rails=rails,
         )
