@@ -474,13 +474,6 @@ def test_tuned_json_fields(case: str) -> None:
     assert costs == sorted(costs)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    raises=AssertionError,
-    reason="bug: the tuned search fits R1/R2 to the amplitude at high_hz only, where the "
-    "comparator overshoot is largest; the demo answer's triangle is 6.56 Vpp (-18 %) at the "
-    "bottom of the dial against 8 Vpp ±10 %",
-)
 def test_triangle_amplitude_stays_in_band_across_every_range() -> None:
     spec = example_spec()
     tu = spec.tuning

@@ -80,25 +80,47 @@ class _Combos:
         return _Combos(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
 
 
-def _proxy_spec(spec: Spec) -> Spec:
-    """The spec with a frequency target at high_hz, so the op-amp constants and checks of the
-    search model are taken where the op amp is most stretched."""
+def _proxy_spec(spec: Spec, at_hz: float | None = None) -> Spec:
+    """The spec with a frequency target (default high_hz), so the op-amp constants and checks
+    of the search model are taken where the op amp is most stretched."""
     assert spec.tuning is not None
-    freq = FrequencySpec(target_hz=spec.tuning.high_hz, tolerance_pct=1.0)
+    freq = FrequencySpec(target_hz=at_hz or spec.tuning.high_hz, tolerance_pct=1.0)
     return spec.model_copy(update={"frequency": freq, "tuning": None, "trim": None})
 
 
-def _best_pairs(model: SearchModel, u_index: int) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """The PAIRS_PER_OPAMP best (R1, R2) in the amplitude band: smallest amplitude error, then
-    tolerance, then cost (a pair only scales every range by k)."""
+def _amplitude_targets(
+    model: SearchModel, low_model: SearchModel
+) -> dict[int, tuple[float, float]]:
+    """Per op amp: the ln k that centres the triangle amplitude between low_hz and high_hz,
+    and the half-spread h of ln A over that span (the comparator overshoot grows with
+    frequency). A = k·(VH + VL)·(1 + ε(f)), so the k for the target at each end differs by
+    ln((1 + ε_high)/(1 + ε_low)); the centre halves it."""
+    lows = {o.part.id: o for o in low_model.opamps}
+    out = {}
+    for o in model.opamps:
+        lo = lows.get(o.part.id)
+        if lo is not None:
+            out[o.index] = (
+                0.5 * (o.ln_k_target + lo.ln_k_target),
+                0.5 * abs(lo.ln_k_target - o.ln_k_target),
+            )
+    return out
+
+
+def _best_pairs(
+    model: SearchModel, u_index: int, ln_k_target: float, half_spread: float
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """The PAIRS_PER_OPAMP best (R1, R2) whose amplitude stays in its band over the whole
+    span: |ln k - centre| + h inside the band; smallest error, then tolerance, then cost (a pair
+    only scales every range by k)."""
     res = model.resistors
     ln_r = res.ln_value
     aa, ab = model.band_a
-    o = model.opamps[u_index]
+    aa, ab = aa + half_spread, ab - half_spread
     n = len(ln_r)
     i1 = np.repeat(np.arange(n, dtype=np.int64), n)
     i2 = np.tile(np.arange(n, dtype=np.int64), n)
-    e_a = ln_r[i1] - ln_r[i2] - o.ln_k_target
+    e_a = ln_r[i1] - ln_r[i2] - ln_k_target
     keep = (e_a >= aa) & (e_a <= ab)
     if model.spec.limits.guarantee == "worst_case":
         u = np.full(len(i1), u_index, dtype=np.int64)
@@ -111,7 +133,9 @@ def _best_pairs(model: SearchModel, u_index: int) -> tuple[NDArray[np.int64], ND
     return i1[order].astype(np.int64), i2[order].astype(np.int64)
 
 
-def _combos(spec: Spec, model: SearchModel, pots: list[Pot]) -> _Combos:
+def _combos(
+    spec: Spec, model: SearchModel, pots: list[Pot], targets: dict[int, tuple[float, float]]
+) -> _Combos:
     assert spec.tuning is not None
     res, cap = model.resistors, model.capacitors
     divider = spec.tuning.control == "divider"
@@ -121,7 +145,9 @@ def _combos(spec: Spec, model: SearchModel, pots: list[Pot]) -> _Combos:
     e12 = np.array([is_member("E12", float(x)) for x in values])
     blocks: list[tuple[int, int, int, int, NDArray[np.int64], NDArray[np.int64]]] = []
     for o in model.opamps:
-        p1, p2 = _best_pairs(model, o.index)
+        if o.index not in targets:
+            continue
+        p1, p2 = _best_pairs(model, o.index, *targets[o.index])
         for a, b in zip(p1, p2, strict=True):
             for pot_index, pot in enumerate(pots):
                 rv_ohm = pot.value_ohm
@@ -327,8 +353,12 @@ def _choose_caps(
     return [int(solver.value(x)) for x in slot], round(solver.objective_value)
 
 
-def _range_ends(design: Design, spec: Spec) -> list[tuple[float, float, float, float]]:
-    """Per range (C1 first): nominal low/high and corner-guaranteed low/high (Hz)."""
+def _range_checks(
+    design: Design, spec: Spec
+) -> list[tuple[float, float, float, float, float, float]]:
+    """Per range (C1 first): nominal low/high, corner-guaranteed low/high (Hz), and the lowest
+    and highest triangle amplitude (Vpp) at the two ends of the dial (nominal, or over the
+    corners when the spec guarantees the worst case)."""
     lo_end, hi_end = (1.0, 0.0) if design.control == "series" else (0.0, 1.0)
     rails = rails_from_supply(spec.supply)
     out = []
@@ -336,12 +366,21 @@ def _range_ends(design: Design, spec: Spec) -> list[tuple[float, float, float, f
         at = dataclasses.replace(design, selected=s)
         lo = dataclasses.replace(at, wiper=lo_end)
         hi = dataclasses.replace(at, wiper=hi_end)
+        lo_c, hi_c = corner_extremes(lo, spec), corner_extremes(hi, spec)
+        osc_lo, osc_hi = lo.oscillator(rails), hi.oscillator(rails)
+        amps: tuple[float, ...]
+        if spec.limits.guarantee == "worst_case":
+            amps = (*lo_c["amplitude_vpp"], *hi_c["amplitude_vpp"])
+        else:
+            amps = (float(osc_lo.amplitude_vpp), float(osc_hi.amplitude_vpp))
         out.append(
             (
-                float(lo.oscillator(rails).frequency_hz),
-                float(hi.oscillator(rails).frequency_hz),
-                corner_extremes(lo, spec)["frequency_hz"][1],
-                corner_extremes(hi, spec)["frequency_hz"][0],
+                float(osc_lo.frequency_hz),
+                float(osc_hi.frequency_hz),
+                lo_c["frequency_hz"][1],
+                hi_c["frequency_hz"][0],
+                min(amps),
+                max(amps),
             )
         )
     return out
@@ -367,16 +406,17 @@ def design_tuned(spec: Spec, catalog: Catalog, *, time_limit_s: float) -> Design
     tu = spec.tuning
     overlap = tu.overlap_pct / 100
     model = build_model(_proxy_spec(spec), catalog)
+    targets = _amplitude_targets(model, build_model(_proxy_spec(spec, tu.low_hz), catalog))
     pots = sorted(
         (p for p in catalog.pots if p.kind == "panel" and p.stock >= spec.build.boards),
         key=lambda p: (p.value_ohm, p.id),
     )
-    combos = _combos(spec, model, pots)
+    combos = _combos(spec, model, pots, targets)
     count = _fewest_ranges(combos, tu.low_hz, tu.high_hz, overlap)
     feasible = count <= (MAX_RANGES if tu.ranges == "auto" else tu.ranges)
     reasons: list[str] = []
     candidates: list[Candidate] = []
-    dropped = 0
+    dropped = amplitude_drops = 0
     proven = True
     if feasible.any():
         n = int(count[feasible].min()) if tu.ranges == "auto" else int(tu.ranges)
@@ -391,8 +431,8 @@ def design_tuned(spec: Spec, catalog: Catalog, *, time_limit_s: float) -> Design
         costed: list[tuple[int, int]] = []
         chains: dict[int, float] = {}
         for m in order:
-            if len(costed) >= spec.ranking.top:
-                kth = sorted(c for c, _ in costed)[spec.ranking.top - 1]
+            if len(costed) >= 4 * spec.ranking.top:
+                kth = sorted(c for c, _ in costed)[4 * spec.ranking.top - 1]
                 if round(float(bound[m]) * 1e4) > kth:
                     break
             if time.perf_counter() - t0 > time_limit_s:
@@ -405,55 +445,68 @@ def design_tuned(spec: Spec, catalog: Catalog, *, time_limit_s: float) -> Design
                 costed.append((round((float(pool.shared_cost[m]) + chain) * 1e4), int(m)))
                 chains[int(m)] = chain
         costed.sort()
-        # CP-SAT chooses each finalist's capacitors jointly: the same cost, then evenness.
-        found: list[tuple[int, int, int, list[int]]] = []
-        for _, m in costed[: spec.ranking.top]:
-            left = max(time_limit_s - (time.perf_counter() - t0), 0.2)
-            chosen = _choose_caps(
-                pool.gl[m],
-                pool.gh[m],
-                cap.cost,
-                n,
-                tu.low_hz,
-                tu.high_hz,
-                overlap,
-                left / 4,
-                chains[m] + 1e-9,
-            )
-            if chosen is not None:
-                caps, score = chosen
-                total = float(pool.shared_cost[m]) + sum(float(cap.cost[j]) for j in caps)
-                found.append((round(total * 1e4), score % _BIG, m, caps))
-        found.sort(key=lambda f: (f[0], f[1], f[2]))
-        for total_q, _excess, m, caps in found:
+        # CP-SAT chooses each finalist's capacitors jointly (at that cost, then evenness), a
+        # batch at a time in cost order, until ``top`` designs pass the full-model checks.
+        a0, ta = spec.triangle.amplitude_vpp, spec.triangle.tolerance_pct / 100
+        batch = spec.ranking.top
+        for start in range(0, len(costed), batch):
             if len(candidates) >= spec.ranking.top:
                 break
-            d = _design(model, pots, pool, m, caps, tu.control)
-            ends = _range_ends(d, spec)
-            if not _covers(ends, tu.low_hz, tu.high_hz, overlap):
-                dropped += 1
-                continue
-            proxy = _proxy_at(spec, d)
-            result = analyse(d, proxy, samples=2000)
-            c = candidate(proxy, d, result, len(candidates) + 1, total_q)
-            c.tuning = TuningOut(
-                control=tu.control,
-                ranges=[
-                    RangeOut(
-                        capacitor=f"C{s + 1}",
-                        low_hz=lo,
-                        high_hz=hi,
-                        guaranteed_low_hz=glo,
-                        guaranteed_high_hz=ghi,
-                    )
-                    for s, (lo, hi, glo, ghi) in enumerate(ends)
-                ],
-                dial_law=dial_law(d, spec),
-            )
-            candidates.append(c)
+            if time.perf_counter() - t0 > time_limit_s:
+                proven = False
+                break
+            found: list[tuple[int, int, int, list[int]]] = []
+            for _, m in costed[start : start + batch]:
+                left = max(time_limit_s - (time.perf_counter() - t0), 0.2)
+                chosen = _choose_caps(
+                    pool.gl[m],
+                    pool.gh[m],
+                    cap.cost,
+                    n,
+                    tu.low_hz,
+                    tu.high_hz,
+                    overlap,
+                    left / 4,
+                    chains[m] + 1e-9,
+                )
+                if chosen is not None:
+                    caps, score = chosen
+                    total = float(pool.shared_cost[m]) + sum(float(cap.cost[j]) for j in caps)
+                    found.append((round(total * 1e4), score % _BIG, m, caps))
+            found.sort(key=lambda f: (f[0], f[1], f[2]))
+            for total_q, _excess, m, caps in found:
+                if len(candidates) >= spec.ranking.top:
+                    break
+                d = _design(model, pots, pool, m, caps, tu.control)
+                checks = _range_checks(d, spec)
+                ends = [c[:4] for c in checks]
+                if not _covers(ends, tu.low_hz, tu.high_hz, overlap):
+                    dropped += 1
+                    continue
+                if not all(a0 * (1 - ta) <= c[4] and c[5] <= a0 * (1 + ta) for c in checks):
+                    amplitude_drops += 1
+                    continue
+                proxy = _proxy_at(spec, d)
+                result = analyse(d, proxy, samples=2000)
+                c = candidate(proxy, d, result, len(candidates) + 1, total_q)
+                c.tuning = TuningOut(
+                    control=tu.control,
+                    ranges=[
+                        RangeOut(
+                            capacitor=f"C{s + 1}",
+                            low_hz=lo,
+                            high_hz=hi,
+                            guaranteed_low_hz=glo,
+                            guaranteed_high_hz=ghi,
+                        )
+                        for s, (lo, hi, glo, ghi) in enumerate(ends)
+                    ],
+                    dial_law=dial_law(d, spec),
+                )
+                candidates.append(c)
     infeasible = None
     if not candidates:
-        reasons = _reasons(spec, model, pots, combos, count, dropped)
+        reasons = _reasons(spec, model, pots, combos, count, dropped, amplitude_drops)
         infeasible = Infeasible(reasons=reasons)
     return DesignResult(
         spec=spec,
@@ -520,6 +573,7 @@ def _reasons(
     combos: _Combos,
     count: NDArray[np.int64],
     dropped: int,
+    amplitude_drops: int = 0,
 ) -> list[str]:
     assert spec.tuning is not None
     tu = spec.tuning
@@ -535,11 +589,22 @@ def _reasons(
             f"({', '.join(spec.limits.dielectrics)}) with stock for {spec.build.boards} boards "
             "and a voltage rating above the triangle peak"
         ]
-    if dropped:
-        return [
-            f"{dropped} capacitor set(s) covered the span in the search model, but the full "
-            "model's corners open a gap between ranges"
-        ]
+    if dropped or amplitude_drops:
+        out = []
+        if amplitude_drops:
+            a = spec.triangle
+            out.append(
+                f"{amplitude_drops} design(s) covered the span, but the triangle leaves "
+                f"{a.amplitude_vpp:g} Vpp ±{a.tolerance_pct:g} % somewhere on the dial (the "
+                "comparator's overshoot grows with frequency): widen the amplitude band, narrow "
+                "the span or allow a faster op amp"
+            )
+        if dropped:
+            out.append(
+                f"{dropped} capacitor set(s) covered the span in the search model, but the full "
+                "model's corners open a gap between ranges"
+            )
+        return out
     best = int(count.min()) if len(count) else MAX_RANGES + 1
     want = "any number of" if tu.ranges == "auto" else str(tu.ranges)
     ratio = tu.high_hz / tu.low_hz
