@@ -9,7 +9,7 @@ Prints, as compact tables:
     ``model.evaluate`` in chunks) on a cut-down catalog, its time against each engine on that
     catalog, and whether the answers agree;
 (c) the combinations in each search space and the rows each engine scored;
-(d) peak resident memory (``ru_maxrss`` from ``os.wait4``) of a subprocess running
+(d) peak resident memory (``ru_maxrss`` from ``os.wait4`` in a small launcher) of a subprocess running
     ``tristock design --example --json``, or a subprocess calling ``design()`` on the demo
     when that command is not available.
 
@@ -18,7 +18,6 @@ Wall-clock figures depend on the machine; the run takes about a minute and a hal
 
 from __future__ import annotations
 
-import os
 import shutil
 import statistics
 import subprocess
@@ -149,11 +148,21 @@ def peak_memory() -> tuple[str, float, int]:
     return _rss([sys.executable, "-c", code], "python -c 'design(...)' on the demo")
 
 
+#: A small launcher runs the command: a child forked straight from this (large) process would
+#: count this process's pages in its peak RSS until it execs.
+_LAUNCHER = (
+    "import os, subprocess, sys\n"
+    "p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)\n"
+    "_, status, usage = os.wait4(p.pid, 0)\n"
+    "print(usage.ru_maxrss, os.waitstatus_to_exitcode(status))\n"
+)
+
+
 def _rss(argv: list[str], label: str) -> tuple[str, float, int]:
-    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    _, status, usage = os.wait4(proc.pid, 0)
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    return label, usage.ru_maxrss / 1024, proc.returncode  # ru_maxrss is KiB on Linux
+    out = subprocess.run(
+        [sys.executable, "-c", _LAUNCHER, *argv], capture_output=True, text=True, check=True
+    ).stdout.split()
+    return label, int(out[0]) / 1024, int(out[1])  # ru_maxrss is KiB on Linux
 
 
 def main() -> None:
