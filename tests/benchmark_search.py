@@ -9,7 +9,7 @@ Prints, as compact tables:
     ``model.evaluate`` in chunks) on a cut-down catalog, its time against each engine on that
     catalog, and whether the answers agree;
 (c) the combinations in each search space and the rows each engine scored;
-(d) peak resident memory (``ru_maxrss`` from ``os.wait4`` in a small launcher) of a subprocess running
+(d) peak resident memory (``ru_maxrss`` from ``os.wait4`` in a small launcher) of a process running
     ``tristock design --example --json``, or a subprocess calling ``design()`` on the demo
     when that command is not available.
 
