@@ -32,7 +32,7 @@ from tristock.results import (
     SearchInfo,
     Shortfall,
 )
-from tristock.search import _design_of, candidate, passes, search_space
+from tristock.search import candidate, design_of, passes, search_space
 from tristock.search.enumeration import enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, Rows, SearchModel, build_model, rank_key
@@ -274,7 +274,7 @@ def _finish(
         if len(out) >= spec.ranking.top:
             break
         consumed += 1
-        d = _design_of(model, rows, n)
+        d = design_of(model, rows, n)
         result = analyse(d, spec, samples=samples)
         if not passes(spec, result):
             continue

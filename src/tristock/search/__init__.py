@@ -75,7 +75,8 @@ def part_out(part: Part, pieces: int) -> PartOut:
     )
 
 
-def _design_of(model: SearchModel, rows: Rows, n: int) -> Design:
+def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
+    """The Design of row ``n`` (indices into the model's tables)."""
     res, cap = model.resistors.parts, model.capacitors.parts
     return Design(
         u1=model.opamps[rows.u[n]].part,
@@ -178,7 +179,7 @@ def design(
         proven = found.proven_optimal
         kept, dropped = [], 0
         for n in range(len(found.rows)):
-            d = _design_of(model, found.rows, n)
+            d = design_of(model, found.rows, n)
             result = analyse(d, spec, samples=samples, seed=seed)
             if passes(spec, result):
                 kept.append((d, result, int(found.rows.primary[n])))

@@ -1,15 +1,16 @@
-"""CP-SAT engine: a table of candidate rows, the coupled constraints in the solver.
+"""CP-SAT engine: a table of candidate rows, the part choices and their coupling in the solver.
 
 A plain CP-SAT model over one-hot part choices finds good answers but cannot prove them (the
 closest-product problem gives it a weak bound). So the rows come from the exact lister (the
-enumeration engine, every constraint applied): the best M feasible rows by score, plus the
-score of feasible row M+1 as a bound on every feasible row left out. (Listing without the cost
-cap and shared stock let a low max_cost rule out every listed row, so M grew until the time
-limit ran out.) CP-SAT then chooses one row with the
-constraints that couple positions and parts: stock x boards summed over every position a stock
-code fills, cost per board, BOM lines, and the objective built from the part choices. Top-k
-comes from k solves, each excluding the rows already returned. If the k-th answer scores
-above the bound, a left-out row might beat it: M grows and the search repeats.
+enumeration engine): the best M feasible rows by score, and the score of row M+1 as a bound on
+every row left out. CP-SAT then chooses one row through a model stated over the parts: a
+Boolean per row, each part's uses as sums of those Booleans, stock x boards summed over every
+position a stock code fills, cost per board, BOM lines, and the objective built from the part
+choices. (The lister applies the same limits, so that a low max_cost cannot leave a table of
+rows that all fail it; the solver's constraints are the statement the answer is checked
+against.) Top-k comes from k solves, each excluding the rows already returned, with ties at the
+k-th score collected. If the k-th answer scores above the bound, a left-out row might beat it:
+M grows and the search repeats.
 """
 
 from __future__ import annotations

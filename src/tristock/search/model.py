@@ -246,16 +246,6 @@ class SearchModel:
             s = np.rint(np.abs(e_f) / SCORE_RESOLUTION)
         return np.minimum(s, SECONDARY_SPAN - 1).astype(np.int64)
 
-    def yield_term(
-        self,
-        e_f: NDArray[np.float64],
-        e_a: NDArray[np.float64],
-        var_f: NDArray[np.float64],
-        var_a: NDArray[np.float64],
-    ) -> NDArray[np.int64]:
-        """Primary score of the yield mode: 1 - Y, Y the Gaussian estimate (integer)."""
-        return _q(1.0 - self.yield_estimate(e_f, e_a, var_f, var_a))
-
     def yield_estimate(
         self,
         e_f: NDArray[np.float64],
