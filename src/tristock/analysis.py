@@ -107,6 +107,9 @@ class _Point:
     alpha: Value = 0.0  # wiper position
 
 
+_POINT_FIELDS = tuple(_Point.__dataclass_fields__)
+
+
 @dataclass(frozen=True)
 class _Board:
     """A point plus how the reference node follows the rails and how a pot is wired."""
@@ -194,7 +197,7 @@ class _Variable:
     """One spread variable: how a deviation z in [-1, 1] moves the point, and its text."""
 
     name: str
-    apply: Callable[[_Point, FloatArray], _Point]
+    apply: Callable[[dict[str, Any], FloatArray], None]  # moves the named fields in place
     describe: Callable[[float], str]
     temperature: bool = False
     non_monotone: bool = False
@@ -209,21 +212,27 @@ def _signed(value: float, unit: str) -> str:
     return text if text.startswith("-") or value == 0 else "+" + text
 
 
-def _scaled(fields: tuple[str, ...], spread: float) -> Callable[[_Point, FloatArray], _Point]:
+#: A point's fields by name while spread variables are applied (one _Point is built after).
+_Values = dict[str, Any]
+
+
+def _scaled(fields: tuple[str, ...], spread: float) -> Callable[[_Values, FloatArray], None]:
     """z -> every field x·(1 + spread·z)."""
 
-    def apply(p: _Point, z: FloatArray) -> _Point:
+    def apply(p: _Values, z: FloatArray) -> None:
         factor = 1.0 + spread * z
-        return replace(p, **{f: getattr(p, f) * factor for f in fields})
+        for f in fields:
+            p[f] = p[f] * factor
 
     return apply
 
 
-def _added(fields: tuple[str, ...], bound: float) -> Callable[[_Point, FloatArray], _Point]:
+def _added(fields: tuple[str, ...], bound: float) -> Callable[[_Values, FloatArray], None]:
     """z -> every field x + bound·z."""
 
-    def apply(p: _Point, z: FloatArray) -> _Point:
-        return replace(p, **{f: getattr(p, f) + bound * z for f in fields})
+    def apply(p: _Values, z: FloatArray) -> None:
+        for f in fields:
+            p[f] = p[f] + bound * z
 
     return apply
 
@@ -249,11 +258,10 @@ def _temperature_variable(design: Design, t_min: float, t_max: float) -> _Variab
         "r4": design.r4.tempco_ppm if design.r4 else 0.0,
     }
 
-    def apply(p: _Point, z: FloatArray) -> _Point:
+    def apply(p: _Values, z: FloatArray) -> None:
         dt = mid + half * z - 25.0
-        return replace(
-            p, **{f: getattr(p, f) * (1.0 + tc * 1e-6 * dt) for f, tc in tempcos.items()}
-        )
+        for f, tc in tempcos.items():
+            p[f] = p[f] * (1.0 + tc * 1e-6 * dt)
 
     return _Variable("T", apply, lambda z: f"{mid + half * z:.4g} °C", temperature=True)
 
@@ -344,10 +352,10 @@ def _spread_board(design: Design, spec: Spec) -> tuple[_Board, list[_Variable]]:
 
 def _evaluate(board: _Board, variables: list[_Variable], z: FloatArray) -> FloatArray:
     """Metrics (rows, 3) at the deviations ``z`` (rows, n)."""
-    point = board.point
+    values: _Values = {f: getattr(board.point, f) for f in _POINT_FIELDS}
     for i, var in enumerate(variables):
-        point = var.apply(point, z[:, i])
-    return _metrics(_predict(point, board.v_ref, board.control), z.shape[0])
+        var.apply(values, z[:, i])
+    return _metrics(_predict(_Point(**values), board.v_ref, board.control), z.shape[0])
 
 
 # --------------------------------------------------------------------------------------------
