@@ -160,6 +160,13 @@ def test_gbw_delay(gbw, severity) -> None:
     assert "15 %" in w.message
 
 
+def test_cap_small() -> None:
+    # a few pF of board and pin capacitance matter against tens of pF (common practice)
+    small = Capacitor("CX-47P", 47e-12, "C0G", 5.0, 0.0, None, 50.0, "0603", 0.01, 100)
+    assert codes(check(osc(), capacitor=small))["cap_small"] == "caution"
+    assert "cap_small" not in codes(check(osc(), capacitor=cap()))
+
+
 def test_warning_is_frozen_and_codes_are_stable() -> None:
     w = Warning("gbw_delay", "caution", "text")
     with pytest.raises(dataclasses.FrozenInstanceError):

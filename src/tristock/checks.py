@@ -5,7 +5,8 @@ code, a severity ("caution": works, with less margin than common practice asks; 
 out of rating or outside what the model can predict) and a plain message with numbers.
 
 Codes: slew_integrator, swing_integrator, supply_range, load_comparator, load_integrator,
-cap_voltage, resistor_power, cap_class_ii, cap_polarised, transition_time, gbw_delay.
+cap_voltage, resistor_power, cap_class_ii, cap_polarised, cap_small, transition_time,
+gbw_delay.
 The margins (2x slew, 50 % of a current or power rating, 2x capacitor voltage, 10 % swing
 headroom, 2 %/20 % of the period) are common practice, not taken from a standard.
 """
@@ -30,6 +31,8 @@ SWING_MARGIN = 0.10  # fraction of the available swing kept free beyond each tri
 CAP_VOLTAGE_MARGIN = 2.0  # rated voltage / peak voltage, at least
 TIME_CAUTION = 0.02  # fraction of the period
 TIME_ERROR = 0.20
+#: Below this an integrator capacitor is comparable with board and pin capacitance (a few pF).
+SMALL_CAPACITOR_F = 100e-12
 
 
 @dataclass(frozen=True)
@@ -175,6 +178,16 @@ def check(
                 out.append(w)
 
     # the capacitor
+    if capacitor is not None and capacitor.value_f < SMALL_CAPACITOR_F:
+        out.append(
+            Warning(
+                "cap_small",
+                "caution",
+                f"C1 {capacitor.id} is {_v(capacitor.value_f, 'F')}: board and op-amp input "
+                "capacitance (a few pF) add to it and shift the frequency; keep the layout "
+                "around the integrator's inverting input small",
+            )
+        )
     if capacitor is not None:
         v_cap = max(abs(peak_hi - m.offset_v), abs(peak_lo - m.offset_v))
         rated = capacitor.voltage_v
