@@ -31,9 +31,11 @@ from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Literal
+from typing import Any, Literal
 
 import pytest
+
+from tristock.circuit import Oscillator, square_levels
 
 Comparator = Literal["ideal", "slew", "macro"]
 
@@ -104,6 +106,34 @@ class SimCase:
             raise ValueError("gbw_hz: the macromodel needs a finite GBW and one slew rate")
         if not self.v_low < self.v_ref < self.v_high:
             raise ValueError("v_ref: must lie between v_low and v_high")
+
+
+def case_from(osc: Oscillator, comparator: str, **extra: Any) -> SimCase:
+    """A SimCase with the oscillator's own values, rails and op-amp model (square levels from
+    its swing headroom, delay, slew, GBW, offsets and bias); ``extra`` sets any other field."""
+    vh, vl = square_levels(osc.rails, osc.opamp)
+    ref = osc.rails.reference_v
+    m = osc.opamp
+    fields: dict[str, Any] = {
+        "r1": osc.r1,
+        "r2": osc.r2,
+        "r3": osc.r3,
+        "c1": osc.c1,
+        "v_high": ref + vh,
+        "v_low": ref - vl,
+        "v_ref": ref,
+        "period_guess_s": osc.period_s,
+        "comparator": comparator,
+        "delay_s": m.delay_s,
+        "slew_rise": m.slew_rise_v_per_s,
+        "slew_fall": m.slew_fall_v_per_s,
+        "gbw_hz": m.gbw_hz,
+        "vos1": m.offset_v,
+        "ib1": m.bias_a,
+        "vos2": m.comparator_offset_v,
+        "ib2": m.comparator_bias_a,
+    }
+    return SimCase(**{**fields, **extra})
 
 
 def _comparator_lines(case: SimCase, vmid: float, vamp: float) -> list[str]:

@@ -16,11 +16,12 @@ import pytest
 from ngspice_harness import (
     NgspiceError,
     SimCase,
+    case_from,
     parse_measurements,
     require_ngspice,
     simulate_many,
 )
-from tristock.circuit import OpAmpModel, Oscillator, Rails, square_levels
+from tristock.circuit import OpAmpModel, Oscillator, Rails
 
 pytestmark = pytest.mark.ngspice
 
@@ -33,30 +34,7 @@ class Run:
 
 def _run(osc: Oscillator, comparator: str, **extra: float) -> Run:
     """A SimCase built from the oscillator's own values, rails and op-amp model."""
-    vh, vl = square_levels(osc.rails, osc.opamp)
-    ref = osc.rails.reference_v
-    m = osc.opamp
-    case = SimCase(
-        r1=osc.r1,
-        r2=osc.r2,
-        r3=osc.r3,
-        c1=osc.c1,
-        v_high=ref + vh,
-        v_low=ref - vl,
-        v_ref=ref,
-        period_guess_s=osc.period_s,
-        comparator=comparator,  # type: ignore[arg-type]
-        delay_s=m.delay_s,
-        slew_rise=m.slew_rise_v_per_s,
-        slew_fall=m.slew_fall_v_per_s,
-        gbw_hz=m.gbw_hz,
-        vos1=m.offset_v,
-        ib1=m.bias_a,
-        vos2=m.comparator_offset_v,
-        ib2=m.comparator_bias_a,
-        **extra,
-    )
-    return Run(osc, case)
+    return Run(osc, case_from(osc, comparator, **extra))
 
 
 def _ideal_amp(swing_pos: float, swing_neg: float, **kw: float) -> OpAmpModel:

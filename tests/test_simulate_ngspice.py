@@ -23,12 +23,13 @@ import pytest
 from ngspice_harness import (
     NgspiceError,
     SimCase,
+    case_from,
     netlist,
     require_ngspice,
     run_ngspice,
     simulate_many,
 )
-from tristock.circuit import OpAmpModel, Oscillator, Rails, square_levels
+from tristock.circuit import OpAmpModel, Oscillator, Rails
 from tristock.simulate import Measured, SimulationError, simulate
 
 pytestmark = pytest.mark.ngspice
@@ -53,29 +54,7 @@ class Run:
 def _run(osc: Oscillator) -> Run:
     """simulate() on ``osc`` and the ngspice case built from the same values."""
     sim = simulate(osc, periods=6)
-    vh, vl = square_levels(osc.rails, osc.opamp)
-    ref = osc.rails.reference_v
-    m = osc.opamp
-    case = SimCase(
-        r1=osc.r1,
-        r2=osc.r2,
-        r3=osc.r3,
-        c1=osc.c1,
-        v_high=ref + vh,
-        v_low=ref - vl,
-        v_ref=ref,
-        period_guess_s=sim.measured.period_s,
-        comparator="slew",
-        delay_s=m.delay_s,
-        slew_rise=m.slew_rise_v_per_s,
-        slew_fall=m.slew_fall_v_per_s,
-        vos1=m.offset_v,
-        ib1=m.bias_a,
-        vos2=m.comparator_offset_v,
-        ib2=m.comparator_bias_a,
-        periods=6,
-        max_step_s=10e-9,
-    )
+    case = case_from(osc, "slew", period_guess_s=sim.measured.period_s, periods=6, max_step_s=10e-9)
     return Run(osc, sim.measured, case)
 
 
