@@ -167,8 +167,10 @@ def design(
     t0 = time.perf_counter()
     model = build_model(spec, catalog)
     top = spec.ranking.top
-    want = top
+    # The yield mode searches on an estimate; a wider shortlist lets the Monte Carlo re-rank.
+    want = 3 * top if spec.ranking.by == "yield" else top
     kept: list[tuple[Design, Analysis, int]] = []
+    analysed: dict[tuple[str, ...], Analysis] = {}  # a retry re-uses the re-checks done
     dropped = 0
     proven = True
     evaluated = 0
@@ -179,8 +181,13 @@ def design(
         proven = found.proven_optimal
         kept, dropped = [], 0
         for n in range(len(found.rows)):
+            if len(kept) >= top and spec.ranking.by != "yield":
+                break
             d = design_of(model, found.rows, n)
-            result = analyse(d, spec, samples=samples, seed=seed)
+            ids = tuple(p.id for p in d.parts().values())
+            if ids not in analysed:
+                analysed[ids] = analyse(d, spec, samples=samples, seed=seed)
+            result = analysed[ids]
             if passes(spec, result):
                 kept.append((d, result, int(found.rows.primary[n])))
             else:
