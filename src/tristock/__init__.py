@@ -2,16 +2,16 @@
 
 The library is organised one idea per module:
 
-- ``units``: parse and format component values (SI prefixes, IEC 60062 codes).
-- ``eseries``: IEC 60063 preferred-number series E6 to E192.
-- ``parts``: what a resistor, capacitor, op amp or potentiometer row is.
-- ``catalog``: load, validate and update the CSV part tables of a stock room.
+- ``units``, ``eseries``: component values (SI prefixes, IEC 60062 codes) and IEC 60063 series.
+- ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables, table generation.
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API).
-- ``circuit``: the oscillator's physics with non-ideal op amps.
-- ``analysis``: worst case, Monte Carlo yield, sensitivities, drift.
-- ``simulate``: time-domain verification of the two-op-amp loop.
-- ``search``: exact enumeration and CP-SAT search, ranking.
-- ``cli``: the ``tristock`` command.
+- ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
+- ``design``, ``designfile``: the parts of one board, and DESIGN files.
+- ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
+  time-domain verification; plots; JSON reports.
+- ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.
+- ``results``: result models shared by ``--json`` and the HTTP API.
+- ``cli``, ``serve``: the ``tristock`` command and the HTTP server entry.
 """
 
 __version__ = "0.1.0"
