@@ -46,7 +46,12 @@ class DesignBody(_Body):
 
     spec: Spec
     parts: dict[str, PartRef] = Field(
-        description="designator -> stock code (or an object with an id)"
+        description="designator -> stock code (or an object with an id); trimmed and tuned "
+        "designs add RV1, R4 and C2..Cn"
+    )
+    wiper: float = Field(0.0, ge=0.0, le=1.0, description="pot wiper position (RV1), 0..1")
+    range: str = Field(
+        "C1", pattern=r"^C[1-8]$", description="tuned designs: the range capacitor in use"
     )
 
 

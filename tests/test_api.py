@@ -194,6 +194,29 @@ def test_analyse_matches_cli_json(
     assert r.json() == expected
 
 
+def test_analyse_of_a_tuned_range_matches_cli_json(
+    capsys: pytest.CaptureFixture[str], api: TestClient, ro_catalog: Path, tmp_path: Path
+) -> None:
+    """A tuned design with a wiper and a selected range: the API and the CLI (DESIGN file with
+    ``wiper`` and ``range``) analyse the same board."""
+    spec = tomllib.loads(cli.example_spec_path("tuned").read_text(encoding="utf-8"))
+    found = api.post("/v1/design", json={"spec": spec, "top": 1})
+    assert found.status_code == 200, found.text
+    parts = {k: v["id"] for k, v in found.json()["candidates"][0]["parts"].items()}
+    assert "RV1" in parts and "C2" in parts
+    design = {"spec": spec, "parts": parts, "wiper": 0.3, "range": "C2"}
+    path = tmp_path / "tuned.json"
+    path.write_text(json.dumps(design), encoding="utf-8")
+    expected = run_cli(
+        capsys, "analyse", str(path), "--catalog", str(ro_catalog), "--json", "--samples", "1000"
+    )
+    r = api.post("/v1/analyse", json={**design, "samples": 1000})
+    assert r.status_code == 200, r.text
+    assert r.json() == expected
+    bad = api.post("/v1/simulate", json={**design, "range": "C9"})
+    assert "range" in problems(bad)
+
+
 def test_analyse_takes_parts_as_objects(api: TestClient, demo_design: dict[str, Any]) -> None:
     ids = demo_design["parts"]
     as_objects = {k: {"id": v, "display": "copied from a design answer"} for k, v in ids.items()}

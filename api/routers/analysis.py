@@ -11,7 +11,7 @@ from api.errors import FieldProblem
 from api.jsonout import StrictJSON, answer
 from api.routers import COMPUTE_ERRORS
 from api.schemas import AnalyseRequest, SimulateRequest
-from tristock.designfile import part_ids, resolve
+from tristock.designfile import design_for
 from tristock.report import analysis_report, simulation_report
 from tristock.simulate import SimulationError
 
@@ -30,7 +30,7 @@ def post_analyse(
 ) -> StrictJSON:
     if body.samples > settings.max_samples:
         raise FieldProblem([(["body", "samples"], f"at most {settings.max_samples}")], "too_large")
-    d = resolve(part_ids(body.parts), catalog)
+    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
     with slots.slot(), FieldProblem.from_value_errors(["body"]):
         data = analysis_report(
             body.spec, d, samples=body.samples, seed=body.seed, distribution=body.distribution
@@ -48,7 +48,7 @@ def post_analyse(
     "most `max_points` each). A loop that does not oscillate is a 422 saying why.",
 )
 def post_simulate(body: SimulateRequest, catalog: CatalogDep, slots: SlotsDep) -> StrictJSON:
-    d = resolve(part_ids(body.parts), catalog)
+    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
     with slots.slot(), FieldProblem.from_value_errors(["body"]):
         try:
             data = simulation_report(body.spec, d, periods=body.periods, max_points=body.max_points)

@@ -95,25 +95,42 @@ def resolve(
         raise SpecError([str(err)]) from None
 
 
+def design_for(
+    spec: Spec, parts: Any, catalog: Catalog, *, wiper: Any = 0.0, selected: Any = "C1"
+) -> Design:
+    """The Design of ``parts`` (designator -> stock code) for ``spec``, with the pot's
+    ``wiper`` (0..1) and the ``selected`` range capacitor ("C1".."C8"); errors name the field."""
+    if isinstance(wiper, bool) or not isinstance(wiper, int | float) or not 0 <= wiper <= 1:
+        raise SpecError([f"wiper: expected a number in [0, 1], got {wiper!r}"])
+    if not (isinstance(selected, str) and selected[:1] == "C" and selected[1:].isdigit()):
+        raise SpecError([f"range: expected a capacitor designator like 'C2', got {selected!r}"])
+    control = spec.tuning.control if spec.tuning is not None else "series"
+    return resolve(
+        part_ids(parts),
+        catalog,
+        wiper=float(wiper),
+        control=control,
+        selected=int(selected[1:]) - 1,
+    )
+
+
 def parse_design(data: dict[str, Any], catalog: Catalog) -> tuple[Spec, Design]:
-    """Spec and Design from a mapping with ``spec`` and ``parts``."""
+    """Spec and Design from a mapping with ``spec``, ``parts`` and optionally ``wiper`` and
+    ``range``."""
     unknown = [k for k in data if k not in ("spec", "parts", "wiper", "range")]
     if unknown:
         raise SpecError([f"{k}: unknown key (expected spec, parts, wiper, range)" for k in unknown])
     if "spec" not in data:
         raise SpecError(["spec: missing"])
     spec = parse_spec(data["spec"])
-    wiper = data.get("wiper", 0.0)
-    if isinstance(wiper, bool) or not isinstance(wiper, int | float) or not 0 <= wiper <= 1:
-        raise SpecError([f"wiper: expected a number in [0, 1], got {wiper!r}"])
-    selected = data.get("range", "C1")
-    if not (isinstance(selected, str) and selected[:1] == "C" and selected[1:].isdigit()):
-        raise SpecError([f"range: expected a capacitor designator like 'C2', got {selected!r}"])
-    control = spec.tuning.control if spec.tuning is not None else "series"
-    ids = part_ids(data.get("parts"))
-    return spec, resolve(
-        ids, catalog, wiper=float(wiper), control=control, selected=int(selected[1:]) - 1
+    design = design_for(
+        spec,
+        data.get("parts"),
+        catalog,
+        wiper=data.get("wiper", 0.0),
+        selected=data.get("range", "C1"),
     )
+    return spec, design
 
 
 def load_design(path: Path, catalog: Catalog) -> tuple[Spec, Design]:
