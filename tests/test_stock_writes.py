@@ -21,11 +21,13 @@ import pytest
 
 from tristock.catalog import (
     JOURNAL_NAME,
+    KINDS,
     LOCK_NAME,
     STOCK_MAX,
     CatalogBusy,
     CatalogError,
     CatalogWriteError,
+    FileStamp,
     KeyReused,
     PreconditionFailed,
     RequestKey,
@@ -415,3 +417,16 @@ def test_the_lock_of_a_read_only_catalog_lives_in_the_state_directory(
     monkeypatch.setattr(os, "access", lambda path, mode: False)  # as for a read-only folder
     path = lock_path(small)
     assert path.parent == tmp_path / "state" / "tristock" / "locks" and path.suffix == ".lock"
+
+
+def test_a_write_returns_the_catalog_and_stamps_now_on_disk(small: Path) -> None:
+    first = update_stock(small, "TR-2K20", delta=3)
+    second = update_stock(small, "TC-4N70", delta=-1)  # validated from the first's memory
+    for write in (first, second):
+        assert write.catalog is not None and write.stamps is not None
+    assert second.catalog == load_catalog(small)
+    stamps = [
+        FileStamp.of(os.stat(small / f"{kind}.csv")) if (small / f"{kind}.csv").exists() else None
+        for kind in KINDS
+    ]
+    assert list(second.stamps or ()) == stamps

@@ -21,7 +21,9 @@ from __future__ import annotations
 
 import dataclasses
 import os
+import threading
 import time
+from collections import OrderedDict
 from collections.abc import Collection
 from contextlib import suppress
 from dataclasses import dataclass
@@ -45,6 +47,12 @@ from tristock.stock.journal import JOURNAL_NAME, KEY_LIFETIME_S, FileStamp, Writ
 from tristock.stock.locking import LOCK_TIMEOUT_S, catalog_lock
 from tristock.stock.snapshot import Snapshot, read_settled, sha256_hex
 from tristock.stock.tables import Catalog, parse_catalog, part_version
+
+#: Catalogs validated from exact table bytes, by (directory, SHA-256 of each table): the same
+#: bytes always validate the same way, so a write after our own write need not parse again.
+_VALIDATED: OrderedDict[tuple[str, tuple[str | None, ...]], Catalog] = OrderedDict()
+_VALIDATED_SIZE: Final[int] = 8
+_validated_lock = threading.Lock()
 
 _PART_TYPES: Final[dict[str, type[Part]]] = {
     "resistors": Resistor,
@@ -192,7 +200,7 @@ def _locked_update(
         snapshot = read_settled(
             directory, journal.own_stamp, quiet_s=policy.quiet_s, deadline=deadline
         )
-        catalog = parse_catalog(directory, snapshot.contents())
+        catalog = _validated(snapshot)
         write = _apply(catalog, part_id, stock, delta, kind, expect_versions)
         done = _write_table(snapshot, catalog, write, journal, request_key)
         if done is not None:
@@ -202,6 +210,30 @@ def _locked_update(
         f"the tables changed under the write {policy.attempts} times",
         retry_after_s=float(max(1.0, policy.quiet_s)),
     )
+
+
+def _table_hashes(snapshot: Snapshot) -> tuple[str | None, ...]:
+    return tuple(snapshot.tables[kind].sha for kind in KINDS)
+
+
+def _remember(directory: Path, hashes: tuple[str | None, ...], catalog: Catalog) -> None:
+    with _validated_lock:
+        _VALIDATED[(str(directory), hashes)] = catalog
+        while len(_VALIDATED) > _VALIDATED_SIZE:
+            _VALIDATED.popitem(last=False)
+
+
+def _validated(snapshot: Snapshot) -> Catalog:
+    """The catalog as read (CatalogError if it does not validate), parsed at most once per
+    exact content of the tables."""
+    hashes = _table_hashes(snapshot)
+    with _validated_lock:
+        known = _VALIDATED.get((str(snapshot.directory), hashes))
+    if known is not None:
+        return known
+    catalog = parse_catalog(snapshot.directory, snapshot.contents())
+    _remember(snapshot.directory, hashes, catalog)
+    return catalog
 
 
 def _sha_of(path: Path) -> str | None:
@@ -291,7 +323,10 @@ def _write_table(
     with suppress(OSError):  # the table is written; a lost stamp costs a quiet wait, no more
         journal.finish(write_id, table.path.name, stamp, sha)
     stamps = tuple(stamp if kind == write.kind else snapshot.tables[kind].stamp for kind in KINDS)
-    return dataclasses.replace(write, catalog=catalog.with_part(write.part), stamps=stamps)
+    written = catalog.with_part(write.part)
+    hashes = tuple(sha if kind == write.kind else snapshot.tables[kind].sha for kind in KINDS)
+    _remember(snapshot.directory, hashes, written)
+    return dataclasses.replace(write, catalog=written, stamps=stamps)
 
 
 class _TableChanged(Exception):
