@@ -10,7 +10,9 @@ from __future__ import annotations
 import errno
 import multiprocessing
 import os
+import resource
 import shutil
+import signal
 import subprocess
 import sys
 import textwrap
@@ -19,6 +21,7 @@ from pathlib import Path
 
 import pytest
 
+from tristock import cli
 from tristock.catalog import (
     JOURNAL_NAME,
     KINDS,
@@ -430,3 +433,49 @@ def test_a_write_returns_the_catalog_and_stamps_now_on_disk(small: Path) -> None
         for kind in KINDS
     ]
     assert list(second.stamps or ()) == stamps
+
+
+# ---------------------------------------------------------------------------------------------
+# The CLI: a write that cannot be done exits 1 with one line
+
+
+def test_cli_set_stock_on_a_full_disk_exits_1_with_one_line(
+    small: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    before = tables(small)
+    _fail_fsync(errno.ENOSPC, monkeypatch)
+    code = cli.main(["catalog", "set-stock", str(small), "TR-2K20", "12"])
+    monkeypatch.undo()
+    err = capsys.readouterr().err
+    assert code == 1
+    assert err.count("\n") == 1 and "cannot write: No space left on device" in err
+    assert tables(small) == before
+
+
+def _limit_file_size() -> None:
+    """In the child: files may not grow past 2 KiB (writes beyond fail with EFBIG)."""
+    signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+    resource.setrlimit(resource.RLIMIT_FSIZE, (2048, 2048))
+
+
+def test_cli_set_stock_under_a_real_file_size_limit_exits_1(small: Path) -> None:
+    """Not simulated: the kernel refuses the write (RLIMIT_FSIZE, EFBIG) part-way through the
+    temporary file of a 2.3 KiB table."""
+    table = small / "resistors.csv"
+    table.write_bytes(table.read_bytes() + b"# " + b"padding " * 200 + b"\n")
+    age(table)
+    before = tables(small)
+    assert len(before["resistors.csv"]) > 2048
+    proc = subprocess.run(
+        [sys.executable, "-m", "tristock.cli", "catalog", "set-stock", str(small), "TR-2K20", "9"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        preexec_fn=_limit_file_size,
+        check=False,
+    )
+    assert proc.returncode == 1, proc.stderr
+    assert proc.stderr.count("\n") == 1 and "cannot write: File too large" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert tables(small) == before
+    assert not [n for n in names(small) if n.endswith(".tmp")]
