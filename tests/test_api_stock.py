@@ -137,7 +137,10 @@ def test_a_repeated_idempotency_key_returns_the_first_answer(catalog: Path) -> N
         assert again.status_code == 200 and again.headers["Idempotent-Replayed"] == "true"
         assert (again.json(), again.headers["ETag"]) == (first.json(), first.headers["ETag"])
         other = c.patch(url, json={"stock_delta": -3}, headers=key)
-        assert other.status_code == 422 and "different request" in other.json()["detail"]
+        assert other.status_code == 422
+        [problem] = other.json()["detail"]
+        assert problem["loc"] == ["header", "idempotency-key"]
+        assert "different request" in problem["msg"]
         quoted = c.patch(url, json={"stock_delta": -2}, headers={"Idempotency-Key": '"q-1"'})
         assert quoted.status_code == 200
         for bad in ("", "x" * 256, "two words", b"na\xefve"):

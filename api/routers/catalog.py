@@ -218,6 +218,8 @@ def get_part(
 
 #: Idempotency keys: 1 to 255 visible ASCII characters, optionally in double quotes.
 KEY_MAX_LENGTH: Final[int] = 255
+#: Where a 422 about the key points (the validation shape of every other 422).
+_KEY_LOC: Final[tuple[str, str]] = ("header", "idempotency-key")
 
 
 def _request_key(
@@ -229,9 +231,8 @@ def _request_key(
     if len(key) >= 2 and key[0] == key[-1] == '"':
         key = key[1:-1]
     if not 1 <= len(key) <= KEY_MAX_LENGTH or not all("!" <= ch <= "~" for ch in key):
-        raise HTTPException(
-            status_code=422,
-            detail=f"Idempotency-Key: 1 to {KEY_MAX_LENGTH} visible ASCII characters expected",
+        raise FieldProblem(
+            [(_KEY_LOC, f"1 to {KEY_MAX_LENGTH} visible ASCII characters expected")], "value_error"
         )
     request = {"kind": kind, "id": part_id, "body": body.model_dump(exclude_none=True)}
     text = json.dumps(request, sort_keys=True, separators=(",", ":"))
@@ -273,7 +274,7 @@ def _write(
         etag = _etag(err.current_version)
         raise HTTPException(status_code=412, detail=str(err), headers={"ETag": etag}) from None
     except KeyReused as err:
-        raise HTTPException(status_code=422, detail=f"Idempotency-Key: {err}") from None
+        raise FieldProblem([(_KEY_LOC, str(err))], "key_reused") from None
     except UnknownPart as err:
         raise HTTPException(status_code=404, detail=str(err)) from None
     except StockError as err:
