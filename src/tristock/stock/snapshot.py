@@ -77,9 +77,14 @@ def _stamp(path: Path) -> FileStamp | None:
         return None
 
 
+#: Reads of a table that keeps changing while being read, before the last one is kept (its
+#: stamp then differs from the file's, so the check before the rename starts over).
+_READ_TRIES = 20
+
+
 def _read(path: Path) -> TableRead:
     """Read ``path`` with the stamp it had throughout the read (re-read if it changed)."""
-    while True:
+    for _ in range(_READ_TRIES):
         try:
             with path.open("rb") as handle:
                 before = FileStamp.of(os.fstat(handle.fileno()))
@@ -90,7 +95,8 @@ def _read(path: Path) -> TableRead:
         except OSError as exc:
             return TableRead(path, exc, None, None)
         if before == after:
-            return TableRead(path, data, after, sha256_hex(data))
+            break
+    return TableRead(path, data, before, sha256_hex(data))
 
 
 def read_settled(
