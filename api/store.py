@@ -3,7 +3,12 @@
 Each request asks :meth:`CatalogStore.current`, which compares a cheap signature of the table
 files (``os.stat``: mtime in ns, size, inode, one call per file) with the one the loaded catalog
 came from. On a change the catalog is reloaded; a reload that fails validation keeps the last
-good catalog and records the errors (``last_error``, logged, reported at ``/health``).
+good catalog and records the errors (``last_error``, logged, reported at ``/health``); while
+it serves that last good catalog, :attr:`CatalogStore.stale` is True.
+
+Stock writes validate the whole catalog as they write it; :meth:`CatalogStore.adopt` installs
+that catalog with the stamps of the files it came from, so reads after a write agree with the
+write's answer without reloading. ``write_policy`` sets how long writes wait for other programs.
 """
 
 from __future__ import annotations
@@ -15,7 +20,16 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from tristock.catalog import KINDS, Catalog, CatalogError, load_catalog
+from tristock.catalog import (
+    DEFAULT_POLICY,
+    KINDS,
+    Catalog,
+    CatalogError,
+    FileStamp,
+    StockWrite,
+    WritePolicy,
+    load_catalog,
+)
 
 log = logging.getLogger("tristock.api")
 
@@ -54,8 +68,9 @@ def signature(directory: Path) -> Signature:
 class CatalogStore:
     """Thread-safe holder of the current catalog of one directory."""
 
-    def __init__(self, directory: Path) -> None:
+    def __init__(self, directory: Path, write_policy: WritePolicy = DEFAULT_POLICY) -> None:
         self.directory = Path(directory)
+        self.write_policy = write_policy
         self._lock = threading.Lock()
         self._catalog: Catalog | None = None
         self._signature: Signature | None = None
@@ -67,6 +82,11 @@ class CatalogStore:
     def last_error(self) -> ReloadError | None:
         """The errors of the last failed load; cleared by the next successful one."""
         return self._error
+
+    @property
+    def stale(self) -> bool:
+        """True while the files on disk do not load and the last good catalog is served."""
+        return self._catalog is not None and self._error is not None
 
     def current(self) -> Catalog:
         """The catalog, reloaded first if its files changed since it was read.
@@ -95,6 +115,21 @@ class CatalogStore:
         """The loaded catalog without checking the files (None if none loaded)."""
         return self._catalog
 
+    def adopt(self, write: StockWrite) -> None:
+        """Serve the catalog a stock write validated and wrote (a replay carries none).
+
+        Its signature is the stamps the files had when read (the written table's as written),
+        so any change by another program since makes the next request reload."""
+        if write.catalog is None or write.stamps is None:
+            return
+        sig = tuple(_as_signature(stamp) for stamp in write.stamps)
+        with self._lock:
+            self._catalog = write.catalog
+            self._signature = sig
+            self._error = None
+            self.reloads += 1
+            self.loaded_at = time.time()
+
     def _reload(self, sig: Signature) -> None:
         # The signature is taken before reading: a write during the load changes the files
         # again, so the next request sees a new signature and reloads once more.
@@ -119,3 +154,7 @@ class CatalogStore:
             self.loaded_at = time.time()
             log.info("catalog loaded: %r", catalog)
         self._signature = sig
+
+
+def _as_signature(stamp: FileStamp | None) -> tuple[int, int, int] | None:
+    return None if stamp is None else (stamp.mtime_ns, stamp.size, stamp.ino)

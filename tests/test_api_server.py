@@ -148,3 +148,26 @@ def test_sigkill_during_writes_leaves_a_valid_catalog(catalog_copy: Path, tmp_pa
     assert part.stock + acked <= stock <= part.stock + sent
     changed = [p.id for p in after if p != before.get(p.id)]
     assert changed == [part.id]
+
+
+def test_an_idempotency_key_survives_a_kill_9_restart(catalog_copy: Path, tmp_path: Path) -> None:
+    """A PATCH with an Idempotency-Key, the server killed with SIGKILL, a new server on the same
+    catalog: the repeat returns the first answer and the delta is applied once (the key is on
+    disk beside the catalog, fsynced before the table's rename)."""
+    part = load_catalog(catalog_copy).capacitors[0]
+    url_path = f"/v1/catalog/capacitors/{part.id}"
+    key = {"Idempotency-Key": "restock-2024-000017"}
+    with server(catalog_copy, tmp_path / "first.log", "--allow-open-writes") as (proc, base):
+        first = httpx.patch(base + url_path, json={"stock_delta": 3}, headers=key, timeout=30)
+        assert first.status_code == 200, first.text
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+    with server(catalog_copy, tmp_path / "second.log", "--allow-open-writes") as (_, base):
+        again = httpx.patch(base + url_path, json={"stock_delta": 3}, headers=key, timeout=30)
+        other = httpx.patch(base + url_path, json={"stock_delta": 4}, headers=key, timeout=30)
+        now = httpx.get(base + url_path, timeout=30)
+    assert again.status_code == 200 and again.headers["Idempotent-Replayed"] == "true"
+    assert (again.json(), again.headers["ETag"]) == (first.json(), first.headers["ETag"])
+    assert other.status_code == 422
+    assert first.json()["stock"] == now.json()["stock"] == part.stock + 3
+    assert load_catalog(catalog_copy).get(part.id).stock == part.stock + 3

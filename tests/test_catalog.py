@@ -1,25 +1,23 @@
-"""Tests for the catalog layer: loading, validation messages, atomic and serialised stock writes."""
+"""Tests for the catalog layer: loading, validation messages, stale temporary files.
+
+Stock writes are tested in test_stock_writes.py."""
 
 from __future__ import annotations
 
-import multiprocessing
 import os
 import shutil
+import time
 from pathlib import Path
 
 import pytest
 
 from tristock import eseries
 from tristock.catalog import (
-    LOCK_NAME,
     Catalog,
     CatalogError,
     CatalogIssue,
-    StockError,
-    adjust_stock,
     load_catalog,
     read_table,
-    set_stock,
 )
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 
@@ -301,116 +299,22 @@ def test_demo_files_start_with_the_stock_room_name() -> None:
 
 
 # ---------------------------------------------------------------------------------------------
-# Stock updates
-
-ODD_TABLE = (
-    b"\xef\xbb\xbf# odd but valid: byte-order mark, CRLF, quotes, blanks, comments\r\n"
-    b"\r\n"
-    b" id , value_ohm ,tolerance_pct,tempco_ppm,series,power_w,package,unit_cost, stock \r\n"
-    b'"Q-1" ,  1k ,1,100,E96,0.1,"0603",0.004,  "250"  \r\n'
-    b"# a comment between rows\r\n"
-    b"Q-2,4k7,5,200,E24,0.125,0805,0.003,1k\r\n"
-    b"Q-3,\t10k\t,5,200,E24,0.125,0805,0.003,\t0\r\n"
-)
+# Temporary files left by killed writes
 
 
-def _odd_catalog(directory: Path) -> Path:
-    shutil.copytree(SMALL, directory)
-    (directory / "resistors.csv").write_bytes(ODD_TABLE)
-    return directory
-
-
-def test_set_stock_changes_only_that_field(tmp_path: Path) -> None:
-    catalog = _odd_catalog(tmp_path / "odd")
-    assert load_catalog(catalog).get("Q-1").stock == 250
-    assert set_stock(catalog, "Q-1", 7) == 250
-    assert (catalog / "resistors.csv").read_bytes() == ODD_TABLE.replace(b'"250"', b'"7"')
-    assert set_stock(catalog, "Q-2", 1500) == 1000
-    assert adjust_stock(catalog, "Q-3", 12) == 12
-    expected = (ODD_TABLE.replace(b'"250"', b'"7"').replace(b",1k\r\n", b",1500\r\n")).replace(
-        b",\t0\r\n", b",\t12\r\n"
-    )
-    assert (catalog / "resistors.csv").read_bytes() == expected
-    reloaded = load_catalog(catalog)
-    assert [reloaded.get(i).stock for i in ("Q-1", "Q-2", "Q-3")] == [7, 1500, 12]
-    assert sorted(p.name for p in catalog.iterdir()) == sorted(
-        [*(p.name for p in SMALL.iterdir()), LOCK_NAME]
-    )
-
-
-def test_other_tables_are_left_alone(small: Path) -> None:
-    before = {f.name: f.read_bytes() for f in small.iterdir()}
-    assert adjust_stock(small, "TU-CM1", -300) == 0
-    after = {f.name: f.read_bytes() for f in small.iterdir() if f.name != LOCK_NAME}
-    changed = {name for name in before if before[name] != after[name]}
-    assert changed == {"opamps.csv"}
-    assert after["opamps.csv"] == before["opamps.csv"].replace(b",0.35,300\n", b",0.35,0\n")
-
-
-def test_adjust_refuses_to_go_below_zero(small: Path) -> None:
-    before = (small / "pots.csv").read_bytes()
-    with pytest.raises(StockError, match="cannot take 41 of 'TP-10K0': only 40 on hand"):
-        adjust_stock(small, "TP-10K0", -41)
-    assert (small / "pots.csv").read_bytes() == before
-    assert adjust_stock(small, "TP-10K0", -40) == 0
-
-
-@pytest.mark.parametrize("count", [-1, 2.5, True, "3"])
-def test_bad_counts_are_refused_before_any_file_is_touched(small: Path, count: object) -> None:
-    with pytest.raises(StockError, match="stock count"):
-        set_stock(small, "TR-1K00", count)  # type: ignore[arg-type]
-    assert not (small / LOCK_NAME).exists()
-    assert (small / "resistors.csv").read_bytes() == (SMALL / "resistors.csv").read_bytes()
-
-
-def test_unknown_and_ambiguous_ids(small: Path) -> None:
-    with pytest.raises(StockError, match="no part with id 'NOPE'"):
-        set_stock(small, "NOPE", 1)
-    with (small / "pots.csv").open("a") as fh:
-        fh.write("TR-1K00,1k,10,100,trimmer,0.45,1\n")
-    with pytest.raises(StockError, match="'TR-1K00' appears more than once"):
-        adjust_stock(small, "TR-1K00", 1)
-
-
-@pytest.mark.parametrize("broken", ["replace", "fsync"])
-def test_failed_write_keeps_old_file_and_leaves_no_temp(
-    small: Path, monkeypatch: pytest.MonkeyPatch, broken: str
-) -> None:
-    before = {f.name: f.read_bytes() for f in small.iterdir()}
-
-    def fail(*args: object, **kwargs: object) -> None:
-        raise OSError(f"simulated {broken} failure")
-
-    monkeypatch.setattr(os, broken, fail)
-    with pytest.raises(OSError, match=f"simulated {broken} failure"):
-        adjust_stock(small, "TC-4N70", 5)
-    monkeypatch.undo()
-    after = {f.name: f.read_bytes() for f in small.iterdir() if f.name != LOCK_NAME}
-    assert after == before
-    assert load_catalog(small).get("TC-4N70").stock == 800
-
-
-def _add_one_fifty_times(catalog_dir: str, part_id: str, start: object) -> None:
-    start.wait()  # type: ignore[attr-defined]
-    for _ in range(50):
-        adjust_stock(catalog_dir, part_id, 1)
-
-
-def test_two_processes_never_lose_an_update(small: Path) -> None:
-    ctx = multiprocessing.get_context("spawn")
-    start = ctx.Event()
-    workers = [
-        ctx.Process(target=_add_one_fifty_times, args=(str(small), "TR-2K20", start))
-        for _ in range(2)
+def test_load_removes_stale_temporary_files_only(small: Path) -> None:
+    old = time.time() - 120.0
+    stale = [small / ".resistors.csv.a1b2c3d4.tmp", small / ".pots.csv.x_9Yz0Qw.tmp"]
+    fresh = small / ".capacitors.csv.0f0f0f0f.tmp"  # another writer's, still in progress
+    foreign = [
+        small / ".notes.csv.a1b2c3d4.tmp",  # not one of our tables
+        small / ".resistors.csv.tmp",  # not our name pattern
+        small / "resistors.csv.a1b2c3d4.tmp",  # no leading dot
     ]
-    for worker in workers:
-        worker.start()
-    start.set()
-    for worker in workers:
-        worker.join()
-    assert [w.exitcode for w in workers] == [0, 0]
-    assert load_catalog(small).get("TR-2K20").stock == 4000 + 100
-    original = (SMALL / "resistors.csv").read_bytes()
-    assert (small / "resistors.csv").read_bytes() == original.replace(
-        b"TR-2K20,2.2k,1,100,E12,0.1,0603,0.004,4000", b"TR-2K20,2.2k,1,100,E12,0.1,0603,0.004,4100"
-    )
+    for path in [*stale, fresh, *foreign]:
+        path.write_bytes(b"half a table")
+    for path in [*stale, *foreign]:
+        os.utime(path, (old, old))
+    load_catalog(small)
+    assert not any(p.exists() for p in stale)
+    assert fresh.exists() and all(p.exists() for p in foreign)

@@ -1,27 +1,61 @@
 """``/v1/catalog/{kind}``: list (filters, paging), one part, and stock updates.
 
-Items are the ``tristock.parts`` rows as parsed: the table's columns, values in SI units.
-Stock writes go through ``tristock.catalog.set_stock``/``adjust_stock`` (file lock, atomic
-replace), one at a time in this process as well.
+Items are the ``tristock.parts`` rows as parsed: the table's columns, values in SI units. An
+item's ``ETag`` is its ``tristock.catalog.part_version`` (strong: it changes with any field).
+Stock writes go through ``tristock.catalog.update_stock`` (lock, quiet wait, validation of the
+catalog as it is on disk, a check that nothing changed before the rename, idempotency keys);
+this module only maps its outcomes to HTTP statuses.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import threading
-from typing import Annotated, Any
+import hashlib
+import json
+import math
+from typing import Annotated, Any, Final
 
-from fastapi import APIRouter, Depends, HTTPException, Query, Request
+from fastapi import APIRouter, Depends, Header, HTTPException, Query, Response
 
-from api.deps import CatalogDep, SettingsDep, StoreDep, require_writer
+from api.deps import SettingsDep, StoreDep, require_writer
 from api.errors import FieldProblem
 from api.jsonout import StrictJSON, answer
 from api.schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
 from api.settings import MAX_PAGE, MAX_STOCK
-from tristock.catalog import Catalog, StockError, adjust_stock, set_stock
+from api.store import CatalogStore
+from tristock.catalog import (
+    Catalog,
+    CatalogBusy,
+    CatalogError,
+    CatalogWriteError,
+    KeyReused,
+    PreconditionFailed,
+    RequestKey,
+    StockError,
+    StockWrite,
+    UnknownPart,
+    part_version,
+    update_stock,
+)
 from tristock.parts import Capacitor, Part, Pot, PotKind, Resistor
 
 router = APIRouter(prefix="/v1/catalog", tags=["catalog"])
+
+#: Headers of item answers, as OpenAPI declares them.
+_ETAG_HEADER: Final[dict[str, Any]] = {
+    "description": "strong version tag of the part (changes with any of its fields)",
+    "schema": {"type": "string"},
+}
+_STALE_HEADER: Final[dict[str, Any]] = {
+    "description": "`stale` while the table files do not load and the last good catalog is "
+    "served (see /health)",
+    "schema": {"type": "string", "enum": ["stale"]},
+}
+_RETRY_HEADER: Final[dict[str, Any]] = {
+    "description": "seconds to wait before retrying",
+    "schema": {"type": "integer"},
+}
+_ITEM_HEADERS: Final[dict[str, Any]] = {"ETag": _ETAG_HEADER, "X-Catalog": _STALE_HEADER}
 
 _READ_ERRORS: dict[int | str, dict[str, Any]] = {
     404: {"model": ErrorBody, "description": "no part with this id in this table"},
@@ -34,11 +68,24 @@ _WRITE_ERRORS: dict[int | str, dict[str, Any]] = {
     400: {"model": ErrorBody, "description": "malformed request"},
     401: {"model": ErrorBody, "description": "a token is configured and none was given"},
     403: {"model": ErrorBody, "description": "wrong token, or writes are disabled"},
-    409: {"model": ErrorBody, "description": "refused: the stock would go below zero"},
+    409: {
+        "model": ErrorBody,
+        "description": "refused, nothing written: the stock would leave 0..1e9, or the catalog "
+        "on disk does not validate (the detail names each file:line)",
+    },
+    412: {
+        "model": ErrorBody,
+        "description": "If-Match names none of the part's current version",
+        "headers": {"ETag": _ETAG_HEADER},
+    },
     413: {"model": ErrorBody, "description": "request body too large"},
+    503: {
+        "model": ErrorBody,
+        "description": "no catalog has loaded; another program keeps writing the tables; or "
+        "the write failed (read-only folder, disk full). The tables are unchanged.",
+        "headers": {"Retry-After": _RETRY_HEADER},
+    },
 }
-
-_write_lock = threading.Lock()
 
 
 def _table(catalog: Catalog, kind: Kind) -> tuple[Part, ...]:
@@ -66,18 +113,18 @@ def _only_for(kinds: tuple[str, ...], kind: str, name: str, given: object) -> No
 
 def _value(part: Part) -> float:
     assert isinstance(part, Resistor | Capacitor | Pot)
-    return part.value
+    return float(part.value)
 
 
 @router.get(
     "/{kind}",
     response_model=Page,
-    responses=_READ_ERRORS,
+    responses={200: {"headers": {"X-Catalog": _STALE_HEADER}}, **_READ_ERRORS},
     summary="Parts of one table, filtered and paged (table order)",
 )
 def list_parts(
     kind: Kind,
-    catalog: CatalogDep,
+    store: StoreDep,
     settings: SettingsDep,
     min_value: Annotated[float | None, Query(gt=0, description="value ≥ this (Ω or F)")] = None,
     max_value: Annotated[float | None, Query(gt=0, description="value ≤ this (Ω or F)")] = None,
@@ -97,6 +144,7 @@ def list_parts(
     _only_for(("pots",), kind, "pot_kind", pot_kind)
     if limit > settings.max_page:
         raise FieldProblem([(["query", "limit"], f"at most {settings.max_page}")], "too_large")
+    catalog = store.current()
     parts: list[Part] = list(_table(catalog, kind))
     if min_value is not None:
         parts = [p for p in parts if _value(p) >= min_value]
@@ -116,8 +164,22 @@ def list_parts(
         parts = [p for p in parts if p.stock >= min_stock]
     page = parts[offset : offset + limit]
     return answer(
-        {"items": [item(p) for p in page], "total": len(parts), "offset": offset, "limit": limit}
+        {"items": [item(p) for p in page], "total": len(parts), "offset": offset, "limit": limit},
+        headers=_stale_header(store),
     )
+
+
+def _stale_header(store: CatalogStore) -> dict[str, str]:
+    return {"X-Catalog": "stale"} if store.stale else {}
+
+
+def _etag(version: str) -> str:
+    return f'"{version}"'
+
+
+def _tags(header: str) -> list[str]:
+    """The entity tags of an If-Match / If-None-Match header, ``W/`` kept, quotes kept."""
+    return [t.strip() for t in header.split(",") if t.strip()]
 
 
 def _find(catalog: Catalog, kind: Kind, part_id: str) -> Part:
@@ -129,40 +191,143 @@ def _find(catalog: Catalog, kind: Kind, part_id: str) -> Part:
 @router.get(
     "/{kind}/{part_id}",
     response_model=Item,
-    responses=_READ_ERRORS,
+    responses={
+        200: {"headers": _ITEM_HEADERS},
+        304: {"description": "If-None-Match holds the current ETag", "headers": _ITEM_HEADERS},
+        **_READ_ERRORS,
+    },
     summary="One part by its stock code",
 )
-def get_part(kind: Kind, part_id: str, catalog: CatalogDep) -> StrictJSON:
-    return answer(item(_find(catalog, kind, part_id)))
+def get_part(
+    kind: Kind,
+    part_id: str,
+    store: StoreDep,
+    if_none_match: Annotated[
+        str | None, Header(description="ETags held: 304 if one is current (weak comparison)")
+    ] = None,
+) -> Response:
+    part = _find(store.current(), kind, part_id)
+    etag = _etag(part_version(part))
+    headers = {"ETag": etag, **_stale_header(store)}
+    if if_none_match is not None:
+        held = {t.removeprefix("W/") for t in _tags(if_none_match)}
+        if "*" in held or etag in held:
+            return Response(status_code=304, headers=headers)
+    return answer(item(part), headers=headers)
+
+
+#: Idempotency keys: 1 to 255 visible ASCII characters, optionally in double quotes.
+KEY_MAX_LENGTH: Final[int] = 255
+#: Where a 422 about the key points (the validation shape of every other 422).
+_KEY_LOC: Final[tuple[str, str]] = ("header", "idempotency-key")
+
+
+def _request_key(
+    header: str | None, kind: str, part_id: str, body: StockPatch
+) -> RequestKey | None:
+    if header is None:
+        return None
+    key = header.strip()
+    if len(key) >= 2 and key[0] == key[-1] == '"':
+        key = key[1:-1]
+    if not 1 <= len(key) <= KEY_MAX_LENGTH or not all("!" <= ch <= "~" for ch in key):
+        raise FieldProblem(
+            [(_KEY_LOC, f"1 to {KEY_MAX_LENGTH} visible ASCII characters expected")], "value_error"
+        )
+    request = {"kind": kind, "id": part_id, "body": body.model_dump(exclude_none=True)}
+    text = json.dumps(request, sort_keys=True, separators=(",", ":"))
+    return RequestKey(key, hashlib.sha256(text.encode("utf-8")).hexdigest())
+
+
+def _expected_versions(if_match: str | None) -> list[str] | None:
+    """The versions If-Match accepts (strong comparison: weak tags match nothing); None for
+    no header or ``*`` (the part exists, or the write answers 404)."""
+    if if_match is None:
+        return None
+    tags = _tags(if_match)
+    if "*" in tags:
+        return None
+    return [t[1:-1] for t in tags if len(t) >= 2 and t[0] == t[-1] == '"']
+
+
+def _write(
+    store: CatalogStore,
+    kind: Kind,
+    part_id: str,
+    body: StockPatch,
+    expect_versions: list[str] | None,
+    request_key: RequestKey | None,
+) -> StockWrite:
+    """``update_stock`` with its refusals as HTTP errors (the tables are unchanged in each)."""
+    try:
+        return update_stock(
+            store.directory,
+            part_id,
+            stock=body.stock,
+            delta=body.stock_delta,
+            kind=kind,
+            expect_versions=expect_versions,
+            request_key=request_key,
+            policy=store.write_policy,
+        )
+    except PreconditionFailed as err:
+        etag = _etag(err.current_version)
+        raise HTTPException(status_code=412, detail=str(err), headers={"ETag": etag}) from None
+    except KeyReused as err:
+        raise FieldProblem([(_KEY_LOC, str(err))], "key_reused") from None
+    except UnknownPart as err:
+        raise HTTPException(status_code=404, detail=str(err)) from None
+    except StockError as err:
+        raise HTTPException(status_code=409, detail=str(err)) from None
+    except CatalogBusy as err:
+        retry = str(max(1, math.ceil(err.retry_after_s)))
+        detail = f"{err.errors[0]}; nothing was written"
+        raise HTTPException(
+            status_code=503, detail=detail, headers={"Retry-After": retry}
+        ) from None
+    except CatalogWriteError as err:
+        raise HTTPException(status_code=503, detail=str(err.errors[0])) from None
+    except CatalogError as err:
+        lines = [str(issue) for issue in err.errors]
+        shown = "; ".join(lines[:20]) + (
+            f"; ... ({len(lines) - 20} more)" if len(lines) > 20 else ""
+        )
+        detail = f"the catalog on disk does not validate, so nothing was written: {shown}"
+        raise HTTPException(status_code=409, detail=detail) from None
 
 
 @router.patch(
     "/{kind}/{part_id}",
     response_model=Item,
-    responses=_WRITE_ERRORS,
+    responses={200: {"headers": _ITEM_HEADERS}, **_WRITE_ERRORS},
     summary="Set (`stock`) or adjust (`stock_delta`) the pieces on hand of one part",
-    description="Atomic on disk and serialised. Needs `Authorization: Bearer TOKEN` when the "
-    "server has a token; refused when it has none unless started with open writes allowed. "
-    "A delta that would take the stock below zero is refused with 409 and changes nothing.",
+    description="Atomic on disk and serialised; waits (up to 5 s) until no other program is "
+    "writing the tables, validates the whole catalog as it is on disk and refuses (409) to "
+    "write over one that does not validate. `If-Match` makes the write conditional (412); an "
+    "`Idempotency-Key` repeated within 24 h returns the first answer and changes nothing. "
+    "Needs `Authorization: Bearer TOKEN` when the server has a token; refused when it has "
+    "none unless started with open writes allowed. The stock stays within 0..1e9 (409).",
     dependencies=[Depends(require_writer)],
 )
 def patch_part(
-    kind: Kind, part_id: str, body: StockPatch, request: Request, store: StoreDep
+    kind: Kind,
+    part_id: str,
+    body: StockPatch,
+    store: StoreDep,
+    if_match: Annotated[
+        str | None, Header(description="write only if the part's ETag is one of these")
+    ] = None,
+    idempotency_key: Annotated[
+        str | None,
+        Header(description="a repeat within 24 h returns the first answer, changing nothing"),
+    ] = None,
 ) -> StrictJSON:
-    # A write needs only the part's table and columns, not a fresh catalog: re-reading the
-    # tables after every write (this server's own included) would cost a full load per write.
-    loaded = store.peek()
-    if loaded is None or part_id not in loaded:
-        loaded = store.current()
-    part = _find(loaded, kind, part_id)
-    try:
-        with _write_lock:
-            if body.stock is not None:
-                set_stock(store.directory, part_id, body.stock)
-                new = body.stock
-            else:
-                assert body.stock_delta is not None
-                new = adjust_stock(store.directory, part_id, body.stock_delta)
-    except StockError as err:
-        raise HTTPException(status_code=409, detail=str(err)) from None
-    return answer(item(dataclasses.replace(part, stock=new)))
+    key = _request_key(idempotency_key, kind, part_id, body)
+    write = _write(store, kind, part_id, body, _expected_versions(if_match), key)
+    headers = {"ETag": _etag(write.version)}
+    if write.replayed:
+        headers["Idempotent-Replayed"] = "true"
+        headers.update(_stale_header(store))
+    else:
+        store.adopt(write)
+    return answer(item(write.part), headers=headers)

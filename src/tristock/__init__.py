@@ -3,7 +3,9 @@
 The library is organised one idea per module:
 
 - ``units``, ``eseries``: component values (SI prefixes, IEC 60062 codes) and IEC 60063 series.
-- ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables, table generation.
+- ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables (``catalog`` gathers
+  the ``stock`` package: columns, CSV dialect, rows, tables, safe stock writes, write
+  journal, lock), table generation; ``atomicio``: the one atomic file writer.
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API).
 - ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.

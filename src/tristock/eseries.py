@@ -14,6 +14,7 @@ arrive through floating-point arithmetic.
 
 from __future__ import annotations
 
+import functools
 import math
 from bisect import bisect_left
 
@@ -120,9 +121,11 @@ def _member(figure: int, digits: int, decade: int) -> float:
     return figure / 10**-shift
 
 
-def _decade_members(series: str, decade: int) -> list[float]:
+@functools.lru_cache(maxsize=4096)
+def _decade_members(series: str, decade: int) -> tuple[float, ...]:
+    """The members of ``series`` in one decade (kept: a catalog load asks for them per row)."""
     figures, digits = _FIGURES[series]
-    return [_member(figure, digits, decade) for figure in figures]
+    return tuple(_member(figure, digits, decade) for figure in figures)
 
 
 def _check_positive(value: float, what: str) -> None:
@@ -199,7 +202,9 @@ def is_member(series: str, value: float, tolerance: float = DEFAULT_TOLERANCE) -
         raise ValueError(f"tolerance {tolerance!r}: must be a finite number >= 0")
     if value <= 0:
         return False
-    return any(abs(m - value) <= tolerance * value for m in _neighbourhood(name, value))
+    around = _neighbourhood(name, value)  # ascending: the nearest member is beside the cut
+    i = bisect_left(around, value)
+    return any(abs(m - value) <= tolerance * value for m in around[max(0, i - 1) : i + 1])
 
 
 def series_of(value: float, tolerance: float = DEFAULT_TOLERANCE) -> list[str]:

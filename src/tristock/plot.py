@@ -1,20 +1,18 @@
 """Plots: the waveforms of a time-domain simulation, and the dial law of a tuned design.
 
-Drawn with matplotlib's Agg canvas (no screen needed) and written atomically: the figure goes to
-a temporary file in the target directory, is flushed to disk, then renamed over ``path``.
+Drawn with matplotlib's Agg canvas (no screen needed) and written atomically
+(:func:`tristock.atomicio.write_atomic`: temporary file in the target directory, fsync, rename).
 The format follows the suffix: ``.png`` (raster, 150 dpi) or ``.svg``.
 """
 
 from __future__ import annotations
 
-import contextlib
-import os
-import tempfile
 from pathlib import Path
 
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from tristock.atomicio import write_atomic
 from tristock.simulate import SimulationResult
 from tristock.units import format_value
 
@@ -25,9 +23,6 @@ TRIANGLE_COLOUR = "#1f4e9c"  # dark blue
 SQUARE_COLOUR = "#c2410c"  # burnt orange
 THRESHOLD_COLOUR = "#4b5563"  # slate grey
 REFERENCE_COLOUR = "#9ca3af"  # light grey
-
-#: Permissions of the written file (a temporary file starts private).
-_FILE_MODE = 0o644
 
 #: (scale factor, label) for the time axis, chosen from the window's span.
 _TIME_UNITS = ((1e9, "ns"), (1e6, "µs"), (1e3, "ms"), (1.0, "s"))
@@ -50,7 +45,7 @@ def plot_waveforms(result: SimulationResult, path: Path, *, title: str | None = 
 
     Raises ValueError for a suffix other than .png or .svg, or a directory that does not exist.
     """
-    path, fmt, directory = _target(path)
+    path, fmt = _target(path)
     if result.t_s.size < 2:
         raise ValueError("result: the waveform has fewer than two samples")
 
@@ -88,7 +83,7 @@ def plot_waveforms(result: SimulationResult, path: Path, *, title: str | None = 
         f"duty {100.0 * m.duty_high:.2f} % ({result.periods_measured} periods)"
     )
     ax.set_title(f"{title}\n{summary}" if title else summary)
-    return _write(fig, path, fmt, directory)
+    return _write(fig, path, fmt)
 
 
 def plot_dial_law(law: dict[str, list[float]], path: Path, *, title: str | None = None) -> Path:
@@ -97,7 +92,7 @@ def plot_dial_law(law: dict[str, list[float]], path: Path, *, title: str | None 
     ``law`` holds "wiper" (0..1) and one list of frequencies (Hz) per range ("C1", ...), as in
     ``TuningOut.dial_law``. Raises ValueError for a bad suffix or a missing directory.
     """
-    path, fmt, directory = _target(path)
+    path, fmt = _target(path)
     wiper = [100.0 * w for w in law["wiper"]]
     fig = Figure(figsize=(7.5, 4.8), layout="constrained")
     FigureCanvasAgg(fig)
@@ -112,10 +107,10 @@ def plot_dial_law(law: dict[str, list[float]], path: Path, *, title: str | None 
     ax.grid(True, which="both", color="#e5e7eb", linewidth=0.8)
     ax.legend(fontsize="small", frameon=False)
     ax.set_title(title or "dial law (nominal)")
-    return _write(fig, path, fmt, directory)
+    return _write(fig, path, fmt)
 
 
-def _target(path: Path) -> tuple[Path, str, Path]:
+def _target(path: Path) -> tuple[Path, str]:
     path = Path(path)
     fmt = FORMATS.get(path.suffix.lower())
     if fmt is None:
@@ -126,23 +121,10 @@ def _target(path: Path) -> tuple[Path, str, Path]:
     directory = path.parent if str(path.parent) else Path(".")
     if not directory.is_dir():
         raise ValueError(f"path: directory {str(directory)!r} does not exist")
-    return path, fmt, directory
+    return path, fmt
 
 
-def _write(fig: Figure, path: Path, fmt: str, directory: Path) -> Path:
-    """Write ``fig`` atomically: temporary file in ``directory``, fsync, rename."""
-    handle, temp_name = tempfile.mkstemp(
-        prefix=f".{path.name}.", suffix=f".tmp{path.suffix}", dir=directory
-    )
-    try:
-        with os.fdopen(handle, "wb") as stream:
-            fig.savefig(stream, format=fmt, dpi=150)
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.chmod(temp_name, _FILE_MODE)
-        os.replace(temp_name, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(temp_name)
-        raise
+def _write(fig: Figure, path: Path, fmt: str) -> Path:
+    """Write ``fig`` atomically (:func:`tristock.atomicio.write_atomic`)."""
+    write_atomic(path, lambda stream: fig.savefig(stream, format=fmt, dpi=150))
     return path

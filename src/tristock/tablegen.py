@@ -16,7 +16,8 @@ from decimal import Decimal
 from typing import Final
 
 from tristock import eseries, units
-from tristock.catalog import COLUMNS, read_table, write_atomic
+from tristock.atomicio import write_atomic
+from tristock.catalog import COLUMNS, read_table
 
 #: Letters of the value codes, by power of ten of the mantissa.
 _RESISTOR_LETTERS: Final[dict[int, str]] = {0: "R", 3: "K", 6: "M", 9: "G", 12: "T"}
