@@ -194,17 +194,19 @@ def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     """
     p_a = _root(lambda p: period_bounds(loop, k, p).hi, np.asarray(t_min, dtype=float), loop)
     p_b = _root(lambda p: period_bounds(loop, k, p).lo, np.asarray(t_max, dtype=float), loop)
-    for _ in range(200):
-        bad = period_bounds(loop, k, p_a).hi >= t_min
-        if not bad.any():
+    step = 1e-12
+    for _ in range(60):
+        bad_a = period_bounds(loop, k, p_a).hi >= t_min
+        bad_b = period_bounds(loop, k, p_b).lo <= t_max
+        if not (bad_a.any() or bad_b.any()):
             break
-        p_a = np.where(bad, p_a * (1 - 1e-9) - 1e-300, p_a)
-    p_a = np.maximum(p_a, 0.0)
-    for _ in range(200):
-        bad = period_bounds(loop, k, p_b).lo <= t_max
-        if not bad.any():
-            break
-        p_b = np.where(bad, p_b * (1 + 1e-9) + 1e-300, p_b)
+        p_a = np.where(bad_a, p_a * (1 - step), p_a)
+        p_b = np.where(bad_b, p_b * (1 + step), p_b)
+        step = min(2 * step, 0.5)
+    # Where no push settles it (the delays alone exceed t_min; a root not found), keep
+    # every P on that side: a wider window only costs rows, never an answer.
+    p_a = np.where(period_bounds(loop, k, p_a).hi >= t_min, 0.0, p_a)
+    p_b = np.where(period_bounds(loop, k, p_b).lo <= t_max, np.inf, p_b)
     return Bounds(p_a, p_b)
 
 
