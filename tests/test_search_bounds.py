@@ -102,7 +102,9 @@ def test_every_point_lies_within_its_bounds(seed: int) -> None:
     pred = full(loop, k, p, ve)
     tight = 1e-12
     t = period_bounds(loop, k, p)
-    assert np.all(pred.period_s >= t.lo * (1 - tight)) and np.all(pred.period_s <= t.hi * (1 + tight))
+    assert np.all(pred.period_s >= t.lo * (1 - tight)) and np.all(
+        pred.period_s <= t.hi * (1 + tight)
+    )
     a = amplitude_bounds(loop, k, p1, p2)
     amp = np.asarray(pred.amplitude_vpp)
     assert np.all(amp >= a.lo * (1 - tight)) and np.all(amp <= a.hi * (1 + tight))

@@ -16,7 +16,6 @@ here.
 from __future__ import annotations
 
 import itertools
-import math
 from pathlib import Path
 
 import numpy as np

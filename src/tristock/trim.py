@@ -425,7 +425,7 @@ def _reasons(spec: Spec, model: SearchModel, pots: list[Pot], dropped: int) -> l
     assert spec.trim is not None
     if not pots:
         return [f"no trimmer (pots.csv, kind trimmer) with stock for {spec.build.boards} boards"]
-    if not model.opamps:
+    if not any(o.target is not None for o in model.opamps):
         return ["no op amp in the catalog can be used: " + opamp_exclusions(model)]
     if dropped:
         return [

@@ -580,7 +580,7 @@ def _reasons(
     tu = spec.tuning
     if not pots:
         return [f"no panel pot (pots.csv, kind panel) with stock for {spec.build.boards} boards"]
-    if not model.opamps:
+    if not any(o.target is not None for o in model.opamps):
         return [
             f"no op amp in the catalog can be used at {tu.high_hz:g} Hz: " + opamp_exclusions(model)
         ]

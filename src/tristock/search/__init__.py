@@ -13,10 +13,11 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
+from numpy.typing import NDArray
 
 from tristock.analysis import Analysis, WorstCase, YieldResult, analyse, monte_carlo, worst_case
-from tristock.circuit import OpAmpModel, square_levels
 from tristock.catalog import Catalog
+from tristock.circuit import OpAmpModel, square_levels
 from tristock.design import Design, rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.report import parts_report, warnings_for
@@ -96,22 +97,23 @@ def accepts(spec: Spec, design: Design) -> bool:
     """The search's acceptance of one fixed design at nominal values (``search.rows``): the
     bands, the model's ground (peaks inside the integrator's swing, its slew above the
     triangle's slope, the timing share within the limit) and C1's voltage rating."""
+    model = OpAmpModel.from_part(design.u1)
     try:
-        vh, vl = square_levels(rails_from_supply(spec.supply), OpAmpModel.from_part(design.u1))
+        vh, vl = square_levels(rails_from_supply(spec.supply), model)
     except ValueError:
         return False
-    one = np.zeros(1, dtype=np.int64)
-    values = tuple(
-        np.array([x]) for x in (design.r1.value, design.r2.value, design.r3.value, design.c1.value)
+
+    def one(x: float) -> NDArray[np.float64]:
+        return np.array([x], dtype=np.float64)
+
+    values = (
+        one(design.r1.value),
+        one(design.r2.value),
+        one(design.r3.value),
+        one(design.c1.value),
     )
-    rp = RowPrediction(
-        [OpAmpModel.from_part(design.u1)],
-        one,
-        values,
-        np.array([vh]),
-        np.array([vl]),  # type: ignore[arg-type]
-    )
-    return bool(rp.accepted(spec, np.array([design.c1.voltage_v]))[0])
+    rp = RowPrediction([model], np.zeros(1, dtype=np.int64), values, one(vh), one(vl))
+    return bool(rp.accepted(spec, one(design.c1.voltage_v))[0])
 
 
 def passes(spec: Spec, design: Design, result: Analysis) -> bool:

@@ -162,8 +162,8 @@ def amplitude_bounds(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Bou
     """Bounds of the triangle's peak-to-peak over P in [p_lo, p_hi] and the Ve range (V).
 
     (M3) The top overshoot is k·(b·td + b²/(2·SR))/P + k·SR·[g(ρ)/ρ]/(2π·GBW·β) with
-    ρ = SR·P/b: both terms fall as P grows (g(ρ)/ρ falls with ρ). (M4) Both rise with b (ρ falls as b grows); the bottom
-    overshoot likewise with a. So the strongest drives at the smallest P give the largest
+    ρ = SR·P/b: both terms fall as P grows (g(ρ)/ρ falls with ρ). (M4) Both rise with b
+    (ρ falls as b grows); the bottom overshoot likewise with a. So the strongest drives at the smallest P give the largest
     amplitude, the weakest at the largest P the smallest.
     """
     span = loop.vh + loop.vl

@@ -21,8 +21,10 @@ def _series_text(model: SearchModel) -> str:
 
 
 def opamp_exclusions(model: SearchModel) -> str:
-    """Why each op amp was left out, one clause per part."""
-    return "; ".join(f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1")
+    """Why each op amp was left out, or cannot meet the target exactly, one clause per part."""
+    clauses = [f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"]
+    clauses += [f"{o.part.id}: {o.target_note}" for o in model.opamps if o.target is None]
+    return "; ".join(clauses)
 
 
 def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:

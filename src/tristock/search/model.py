@@ -294,7 +294,7 @@ def _opamp(index: int, part: OpAmp, spec: Spec, r3_values: NDArray[np.float64]) 
         return "its integrator error voltage Vos + Ib·R3 reaches a square level for every R3"
     loop = OpAmpLoop(
         *(
-            np.float64(x)
+            np.asarray(x, dtype=np.float64)
             for x in (
                 vh,
                 vl,
