@@ -15,7 +15,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import Analysis, WorstCase, YieldResult, analyse, monte_carlo, worst_case
+from tristock.analysis import Analysis, WorstCase, YieldResult, analyse, worst_case, yield_count
 from tristock.catalog import Catalog
 from tristock.circuit import OpAmpModel, square_levels
 from tristock.design import Design, rails_from_supply
@@ -40,6 +40,10 @@ from tristock.spec import Spec
 from tristock.units import format_value
 
 Engine = Literal["cpsat", "enumerate"]
+#: For one design the enumeration's rows come in exact rank order with every constraint
+#: applied, so CP-SAT (kept as an independent cross-check, and for problems that couple
+#: several designs) only re-derives them, more slowly.
+DEFAULT_ENGINE: Engine = "enumerate"
 DEFAULT_TIME_LIMIT_S = 5.0
 
 CAUTIONS = [
@@ -179,19 +183,36 @@ def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float
 @dataclass
 class _Verdict:
     """The full model's re-check of one row: whether it meets the guarantee and, when the
-    ranking needs it, its Monte Carlo yield (passed samples)."""
+    ranking needs it, its Monte Carlo pass count (an upper bound when ``exact`` is False:
+    the count stopped once the row could no longer matter)."""
 
     ok: bool
     passed: int | None
+    exact: bool = True
 
 
-def _recheck(spec: Spec, design: Design, samples: int, seed: int) -> _Verdict:
-    """What the guarantee and the ranking need beyond the search's own acceptance."""
-    guarantee = spec.limits.guarantee
-    need_yield = guarantee == "yield" or spec.ranking.by == "yield"
-    y = monte_carlo(design, spec, samples=samples, seed=seed) if need_yield else None
-    wc = worst_case(design, spec) if guarantee == "worst_case" else None
-    return _Verdict(_guarantee_holds(spec, wc, y), None if y is None else y.passed)
+def _recheck(spec: Spec, design: Design, samples: int, seed: int, beat: int) -> _Verdict:
+    """What the guarantee and the ranking need beyond the search's own acceptance. In the
+    yield ranking a row must pass more than ``beat`` samples to enter the top; counting
+    stops as soon as it cannot (``analysis.yield_count``)."""
+    limits = spec.limits
+    if limits.guarantee == "worst_case":
+        wc = worst_case(design, spec)
+        if not _guarantee_holds(spec, wc, None):
+            return _Verdict(False, None)
+    if limits.guarantee != "yield" and spec.ranking.by != "yield":
+        return _Verdict(True, None)
+    allowed = samples
+    if limits.guarantee == "yield":
+        allowed = math.floor((1.0 - limits.min_yield) * samples + 1e-9)
+    if spec.ranking.by == "yield":
+        allowed = min(allowed, samples - beat - 1)
+    passed, exact = yield_count(
+        design, spec, samples=samples, seed=seed, max_failures=max(allowed, -1)
+    )
+    if limits.guarantee == "yield" and passed < limits.min_yield * samples:
+        return _Verdict(False, passed, exact)
+    return _Verdict(True, passed, exact)
 
 
 def _walk(
@@ -209,38 +230,43 @@ def _walk(
     the top is settled (no unchecked row can rank above the ``top``-th kept one) and whether
     the deadline cut the walk. In the yield ranking the key is (-yield, search order): a row
     never checked can at best tie at yield 1, after every checked row, so the top is settled
-    once ``top`` kept rows have every sample passing.
+    once ``top`` kept rows have every sample passing; a row whose count cannot beat the
+    ``top``-th kept one is not counted to the end.
     """
     top = spec.ranking.top
     by_yield = spec.ranking.by == "yield"
     kept: list[tuple[Design, int, int | None]] = []
     dropped = 0
-    perfect = 0
+
+    def settled() -> bool:
+        if not by_yield:
+            return len(kept) >= top
+        return sum(p == samples for _, _, p in kept) >= top
+
     for n in range(len(rows)):
-        settled = perfect >= top if by_yield else len(kept) >= top
-        if settled:
+        if settled():
             return kept, dropped, True, False
         if time.perf_counter() > deadline and n:
             return kept, dropped, False, True
         d = design_of(model, rows, n)
         ids = tuple(p.id for p in d.parts().values())
-        if ids not in verdicts:
-            verdicts[ids] = _recheck(spec, d, samples, seed)
+        counts = sorted((p or 0 for _, _, p in kept), reverse=True)
+        beat = counts[top - 1] if by_yield and len(counts) >= top else -1
+        if ids not in verdicts or (not verdicts[ids].exact and (verdicts[ids].passed or 0) > beat):
+            verdicts[ids] = _recheck(spec, d, samples, seed, beat)
         v = verdicts[ids]
         if not v.ok:
             dropped += 1
-            continue
-        kept.append((d, int(rows.primary[n]), v.passed))
-        perfect += v.passed == samples
-    settled = perfect >= top if by_yield else len(kept) >= top
-    return kept, dropped, settled, False
+        elif v.exact:
+            kept.append((d, int(rows.primary[n]), v.passed))
+    return kept, dropped, settled(), False
 
 
 def design(
     spec: Spec,
     catalog: Catalog,
     *,
-    engine: Engine = "cpsat",
+    engine: Engine = DEFAULT_ENGINE,
     time_limit_s: float = DEFAULT_TIME_LIMIT_S,
     samples: int = 4000,
     seed: int = 0,
@@ -313,4 +339,4 @@ def search_space(model: SearchModel) -> int:
     return len(model.opamps) * len(model.resistors) ** 3 * len(model.capacitors)
 
 
-__all__ = ["CAUTIONS", "DEFAULT_TIME_LIMIT_S", "design"]
+__all__ = ["CAUTIONS", "DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design"]

@@ -163,8 +163,8 @@ def amplitude_bounds(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Bou
 
     (M3) The top overshoot is k·(b·td + b²/(2·SR))/P + k·SR·[g(ρ)/ρ]/(2π·GBW·β) with
     ρ = SR·P/b: both terms fall as P grows (g(ρ)/ρ falls with ρ). (M4) Both rise with b
-    (ρ falls as b grows); the bottom overshoot likewise with a. So the strongest drives at the smallest P give the largest
-    amplitude, the weakest at the largest P the smallest.
+    (ρ falls as b grows); the bottom overshoot likewise with a. So the strongest drives at
+    the smallest P give the largest amplitude, the weakest at the largest P the smallest.
     """
     span = loop.vh + loop.vl
     hi = _timing(loop, k, p_lo, *_strong(loop))
@@ -188,26 +188,41 @@ def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     """The range of P outside which the period cannot lie in [t_min, t_max], for any R3.
 
     By (M1) both period bounds rise with P, so the answer is [P_a, P_b] with
-    T_hi(P_a) = t_min and T_lo(P_b) = t_max. Newton's method finds each root; the ends are
-    then pushed outwards until T_hi(P_a) < t_min and T_lo(P_b) > t_max hold as computed, so
-    every row left outside is outside the band (a row exactly on the band's edge stays in).
+    T_hi(P_a) = t_min and T_lo(P_b) = t_max (``lowest_p``, ``highest_p``).
     """
-    p_a = _root(lambda p: period_bounds(loop, k, p).hi, np.asarray(t_min, dtype=float), loop)
-    p_b = _root(lambda p: period_bounds(loop, k, p).lo, np.asarray(t_max, dtype=float), loop)
+    return Bounds(lowest_p(loop, k, t_min), highest_p(loop, k, t_max))
+
+
+def lowest_p(loop: OpAmpLoop, k: Array, t_min: Array) -> Array:
+    """P_a with T_hi(P) < t_min for every P < P_a (0 when the delays alone reach t_min).
+
+    Newton's method finds the root; the end is then pushed down until T_hi(P_a) < t_min holds
+    as computed, so every row left out is outside the band (a row on the edge stays in)."""
+    t_min = np.asarray(t_min, dtype=float)
+    p = _root(lambda x: period_bounds(loop, k, x).hi, t_min, loop)
     step = 1e-12
     for _ in range(60):
-        bad_a = period_bounds(loop, k, p_a).hi >= t_min
-        bad_b = period_bounds(loop, k, p_b).lo <= t_max
-        if not (bad_a.any() or bad_b.any()):
+        bad = period_bounds(loop, k, p).hi >= t_min
+        if not bad.any():
             break
-        p_a = np.where(bad_a, p_a * (1 - step), p_a)
-        p_b = np.where(bad_b, p_b * (1 + step), p_b)
+        p = np.where(bad, p * (1 - step), p)
         step = min(2 * step, 0.5)
-    # Where no push settles it (the delays alone exceed t_min; a root not found), keep
-    # every P on that side: a wider window only costs rows, never an answer.
-    p_a = np.where(period_bounds(loop, k, p_a).hi >= t_min, 0.0, p_a)
-    p_b = np.where(period_bounds(loop, k, p_b).lo <= t_max, np.inf, p_b)
-    return Bounds(p_a, p_b)
+    # Where no push settles it, keep every P below: a wider window only costs rows.
+    return np.asarray(np.where(period_bounds(loop, k, p).hi >= t_min, 0.0, p))
+
+
+def highest_p(loop: OpAmpLoop, k: Array, t_max: Array) -> Array:
+    """P_b with T_lo(P) > t_max for every P > P_b (inf when no root is found)."""
+    t_max = np.asarray(t_max, dtype=float)
+    p = _root(lambda x: period_bounds(loop, k, x).lo, t_max, loop)
+    step = 1e-12
+    for _ in range(60):
+        bad = period_bounds(loop, k, p).lo <= t_max
+        if not bad.any():
+            break
+        p = np.where(bad, p * (1 + step), p)
+        step = min(2 * step, 0.5)
+    return np.asarray(np.where(period_bounds(loop, k, p).lo <= t_max, np.inf, p))
 
 
 def _root(period: Callable[[Array], Array], target: Array, loop: OpAmpLoop) -> Array:

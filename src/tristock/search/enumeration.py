@@ -7,10 +7,11 @@ ln(R3·C1) once (the product table) and walks:
 1. pairs: for each op amp, the (R1, R2) whose ratio lies in the op amp's ``k_range`` (binary
    search in the sorted ln R). For each pair, ``bounds.window`` gives the P range outside
    which no R3 lets the period into the band, and the amplitude and timing-share bounds over
-   that range drop the pairs that cannot meet the amplitude band or the timing limit. Each
-   pair gets a lower bound on the score of any row through it: its exact terms (U1, R1, R2),
-   the lower bounds of the amplitude and timing-share terms, and the smallest R3 + C1 term in
-   the product table (an R3 that repeats R1 or R2 credited);
+   that range drop the pairs that cannot meet the amplitude band or the timing limit (under
+   a worst-case guarantee ``search.guarantee.pair_limits`` narrows the window and drops more
+   pairs first). Each pair gets a lower bound on the score of any row through it: its exact
+   terms (U1, R1, R2), the lower bounds of the amplitude and timing-share terms, and the
+   smallest R3 + C1 term in the product table (an R3 that repeats R1 or R2 credited);
 2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|,
    which narrows the period band and so the P window, one contiguous range of the product
    table (binary search again);
@@ -32,6 +33,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.search.bounds import amplitude_bounds, timing_share_floor, window
+from tristock.search.guarantee import pair_limits
 from tristock.search.model import SearchModel
 from tristock.search.rows import Rows, best, empty_rows, evaluate
 
@@ -66,6 +68,8 @@ class _Pairs:
     i1: NDArray[np.int64]
     i2: NDArray[np.int64]
     k: NDArray[np.float64]
+    p_min: NDArray[np.float64]  # the nominal P a row needs: band, product table, guarantee
+    p_max: NDArray[np.float64]
     base: NDArray[np.int64]  # score terms of U1, R1, R2 and floors of the amplitude and share
     bound: NDArray[np.int64]  # base + the best (R3, C1) term
 
@@ -141,6 +145,10 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
         with np.errstate(invalid="ignore", divide="ignore"):
             e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
         keep = reach & (e_a_hi >= aa) & (e_a_lo <= ab) & (share <= spec.limits.max_timing_share)
+        if spec.limits.guarantee == "worst_case":
+            limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
+            keep &= limits.keep
+            p_lo, p_hi = limits.p_min, limits.p_max
         e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
         base = (
             model.opamp_term(o)
@@ -150,7 +158,7 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
             + model.amplitude_term(e_a_gap)
             + model.share_term(np.maximum(share, 0.0))
         )
-        pairs = _Pairs(u, i1, i2, k, base, base + floor)
+        pairs = _Pairs(u, i1, i2, k, p_lo, p_hi, base, base + floor)
         parts.append(pairs.take(keep))
     if not parts:
         return _no_pairs()
@@ -161,7 +169,8 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
 
 def _no_pairs() -> _Pairs:
     z = np.zeros(0, dtype=np.int64)
-    return _Pairs(z, z, z, np.zeros(0), z, z)
+    f = np.zeros(0)
+    return _Pairs(z, z, z, f, f, f, z, z)
 
 
 def _open(
@@ -183,8 +192,8 @@ def _open(
     w = window(model.loops(pairs.u), pairs.k, t_min, t_max)
     ln_k = np.log(pairs.k)
     with np.errstate(divide="ignore"):
-        ln_lo = np.log(np.maximum(w.lo, 0.0)) - ln_k
-        ln_hi = np.log(w.hi) - ln_k
+        ln_lo = np.log(np.maximum(w.lo, pairs.p_min)) - ln_k
+        ln_hi = np.log(np.minimum(w.hi, pairs.p_max)) - ln_k
     lo = np.searchsorted(products.ln, ln_lo - 1e-12, side="left")
     hi = np.searchsorted(products.ln, ln_hi + 1e-12, side="right")
     which, idx = _ranges(lo, hi)

@@ -11,9 +11,9 @@ same prediction the analysis of an answer reports. A row is accepted when
 - C1's voltage rating covers the largest |triangle peak| with the amplitude margin;
 - (coupled) stock covers boards x uses and the cost is within ``limits.max_cost``;
 - under ``guarantee = "worst_case"``, the full model at five points of the spread box of
-  ``tristock.analysis`` lies in the bands (``probe_extremes``). Those points are inside the box
-  the analysis searches, so this is a necessary condition: the analysis's re-check can only
-  reject more, never accept a row this rejected.
+  ``tristock.analysis`` lies in the bands (``search.guarantee``). Those points are inside the
+  box the analysis searches, so this is a necessary condition: the analysis's re-check can
+  only reject more, never accept a row this rejected.
 
 ``guarantee = "yield"`` adds nothing here; the Monte Carlo decides it in the re-check.
 """
@@ -26,9 +26,17 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import DELAY_SPREAD, SLEW_SPREAD
 from tristock.circuit import OpAmpModel, Prediction, predict
 from tristock.search.bounds import amplitude_bounds, period_bounds
+from tristock.search.guarantee import (
+    FAST,
+    PROBES,
+    SLOW_A,
+    SLOW_B,
+    levels,
+    probe_scales,
+    probe_values,
+)
 from tristock.search.model import SECONDARY_SPAN, SearchModel
 from tristock.spec import Spec
 
@@ -192,93 +200,27 @@ class RowPrediction:
             return np.asarray((e_f >= fa) & (e_f <= fb) & (e_a >= aa) & (e_a <= ab))
 
 
-def probe_extremes(
-    model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64
-) -> tuple[F64, ...]:
-    """Frequency and amplitude at five points of the analysis's spread box per row:
-    (f at the fast corner, the lower f of two slow corners, A high, A low).
-
-    The points follow the physics' signs: f falls with R1, R3, C1 and the delay and rises
-    with R2 and the slew rate; the amplitude rises with R1, the rails, the delay and a
-    smaller P, and falls with R2. Temperature takes the end that moves P (or k) the chosen
-    way. Unequal rails slow the loop (T ∝ (VH + VL)²/(VH·VL)), so the slow corners try both
-    rail skews. Offsets sit at the box's centre (0 V) and bias currents as catalogued.
-    """
-    spec = model.spec
-    res, cap = model.resistors, model.capacitors
-    env = spec.environment
-    t_ends = (env.temp_min_c, env.temp_max_c)
-    tol_v = spec.supply.tolerance_pct / 100
-    t1, t2, t3 = res.tol[i1], res.tol[i2], res.tol[i3]
-    t_c, band = cap.tol[j], cap.extra_band[j]
-    tc1, tc2, tc3, tcc = res.tempco[i1], res.tempco[i2], res.tempco[i3], cap.tempco[j]
-
-    def at_end(coef: F64, low: bool) -> F64:
-        """The temperature end where coef·(T - 25) is smallest (low) or largest."""
-        lo, hi = coef * (t_ends[0] - 25.0), coef * (t_ends[1] - 25.0)
-        pick_first = (lo <= hi) if low else (lo >= hi)
-        return np.where(pick_first, t_ends[0], t_ends[1])
-
-    def point(
-        z1: float,
-        z2: float,
-        z3: float,
-        zc: float,
-        temp: F64,
-        zp: float,
-        zn: float,
-        slew: float,
-        delay: float,
-    ) -> RowPrediction:
-        def val(v: F64, tol: F64, z: float, tc: F64) -> F64:
-            return np.asarray(v * (1 + tol * z) * (1 + tc * 1e-6 * (temp - 25.0)))
-
-        vh, vl = _levels(model, u, zp * tol_v, zn * tol_v)
-        values = (
-            val(res.value[i1], t1, z1, tc1),
-            val(res.value[i2], t2, z2, tc2),
-            val(res.value[i3], t3, z3, tc3),
-            val(cap.value[j] * (1 + band * zc), t_c, zc, tcc),
-        )
-        return RowPrediction(
-            [o.model for o in model.opamps],
+def probe_extremes(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> F64:
+    """Frequency and amplitude at the box points of ``search.guarantee.PROBES`` per row, as
+    columns (f fast, f slow A, f slow B, A big, A small)."""
+    models = [o.model for o in model.opamps]
+    out = []
+    for probe in PROBES:
+        vh, vl = levels(model, u, probe)
+        slew, delay = probe_scales(probe)
+        rp = RowPrediction(
+            models,
             u,
-            values,
+            probe_values(model, probe, i1, i2, i3, j),
             vh,
             vl,
-            slew_scale=1 + SLEW_SPREAD * slew,
-            delay_scale=1 + DELAY_SPREAD * delay,
+            slew_scale=slew,
+            delay_scale=delay,
             centred_offsets=True,
         )
-
-    tc_p = tc1 - tc2 + tc3 + tcc
-    tc_k = tc1 - tc2
-    fast = point(-1, 1, -1, -1, at_end(tc_p, True), 0, 0, 1, -1)
-    slow_a = point(1, -1, 1, 1, at_end(tc_p, False), 1, -1, -1, 1)
-    slow_b = point(1, -1, 1, 1, at_end(tc_p, False), -1, 1, -1, 1)
-    big = point(1, -1, -1, -1, at_end(tc_k, False), 1, 1, -1, 1)
-    small = point(-1, 1, 1, 1, at_end(tc_k, True), -1, -1, 1, -1)
-    f = lambda r: np.asarray(r.pred.frequency_hz)  # noqa: E731
-    a = lambda r: np.asarray(r.pred.amplitude_vpp)  # noqa: E731
-    return f(fast), np.fmin(f(slow_a), f(slow_b)), a(big), a(small)
-
-
-def _levels(model: SearchModel, u: I64, dv_pos: float, dv_neg: float) -> tuple[F64, F64]:
-    """Square levels VH, VL with V+ scaled by 1 + dv_pos and V- by 1 + dv_neg, the reference
-    following the rails as ``design.rails_from_supply`` and the analysis have it."""
-    s = model.spec.supply
-    v_pos = s.positive_v * (1 + dv_pos)
-    v_neg = s.negative_v * (1 + dv_neg)
-    if s.negative_v < 0:
-        ref = 0.0
-    elif s.reference_v is not None:
-        ref = s.reference_v
-    else:
-        ref = (v_pos + v_neg) / 2
-    m = [o.model for o in model.opamps]
-    sp = np.array([x.swing_pos_v for x in m])[u]
-    sn = np.array([x.swing_neg_v for x in m])[u]
-    return np.asarray(v_pos - sp - ref), np.asarray(ref - (v_neg + sn))
+        field = "frequency_hz" if probe in (FAST, SLOW_A, SLOW_B) else "amplitude_vpp"
+        out.append(np.asarray(getattr(rp.pred, field)))
+    return np.stack(out, axis=1)
 
 
 def evaluate(
@@ -312,12 +254,13 @@ def evaluate(
     _guard_bounds(model, u, rp)
     keep = np.flatnonzero(ok)
     if spec.limits.guarantee == "worst_case" and len(keep):
-        f_hi, f_lo, a_hi, a_lo = probe_extremes(model, *(x[keep] for x in (u, i1, i2, i3, j)))
+        probes = probe_extremes(model, *(x[keep] for x in (u, i1, i2, i3, j)))
         (fa, fb), (aa, ab) = model.band_f, model.band_a
         f_t, a_t = spec.target.target_hz, spec.triangle.amplitude_vpp
         with np.errstate(invalid="ignore", divide="ignore"):
-            inside = (np.log(f_hi / f_t) <= fb) & (np.log(f_lo / f_t) >= fa)
-            inside &= (np.log(a_hi / a_t) <= ab) & (np.log(a_lo / a_t) >= aa)
+            pf, pa = np.log(probes[:, :3] / f_t), np.log(probes[:, 3:] / a_t)
+        inside = np.all((pf >= fa) & (pf <= fb), axis=1)
+        inside &= np.all((pa >= aa) & (pa <= ab), axis=1)
         keep = keep[inside]
 
     u_term = np.array([model.opamp_term(o) for o in model.opamps], dtype=np.int64)[u]
