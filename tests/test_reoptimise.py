@@ -3,7 +3,7 @@
 Outside references, named beside each check:
 - plain brute force over every (U1, R1, R2, R3, C1) of small catalogs: each combination is
   scored by the search model (``build_model`` + ``evaluate`` on the catalog without the
-  unavailable parts) and re-checked by the full model (``passes(spec, analyse(...))``); its
+  unavailable parts) and re-checked by the full model (``passes(spec, design, analyse(...))``); its
   change count is a plain count of designators whose stock code differs (common practice);
 - resistor and capacitor values of the generated catalogs come from the IEC 60063 tables as
   given by the ``eseries`` package;
@@ -39,7 +39,8 @@ from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.reoptimise import reoptimise, shortfall
 from tristock.results import ReoptimiseResult, Shortfall
 from tristock.search import design, passes
-from tristock.search.model import build_model, evaluate, rank_key
+from tristock.search.model import build_model
+from tristock.search.rows import evaluate, rank_key
 from tristock.spec import Spec, SpecError, load_spec, parse_spec
 
 REPO = Path(__file__).resolve().parent.parent
@@ -171,7 +172,7 @@ def ids_of(parts: dict[str, Any]) -> Ids:
 
 def full_check(spec: Spec, d: Design) -> bool:
     """The full model's verdict, with the same samples and seed reoptimise uses."""
-    return passes(spec, analyse(d, spec, samples=SAMPLES))
+    return passes(spec, d, analyse(d, spec, samples=SAMPLES))
 
 
 # --------------------------------------------------------------------------------------------

@@ -25,7 +25,8 @@ from tristock.circuit import predict
 from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
-from tristock.search.model import SECONDARY_SPAN, Rows, SearchModel, build_model, evaluate, rank_key
+from tristock.search.model import SECONDARY_SPAN, SearchModel, build_model
+from tristock.search.rows import Rows, evaluate, rank_key
 from tristock.spec import Spec, parse_spec
 
 REPO = Path(__file__).resolve().parent.parent

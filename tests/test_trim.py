@@ -497,7 +497,10 @@ def _search_model_brute_force(spec: Spec, catalog: Catalog) -> list[tuple[Any, .
     dts = (env.temp_min_c - 25.0, env.temp_max_c - 25.0)
     aa, ab = spec.amplitude_band_ln
     out = []
-    for o in model.opamps:
+    for u in model.opamps:
+        o = u.target
+        if o is None:
+            continue
         g = o.gain
         for r1, r2, r3 in itertools.product(model.resistors.parts, repeat=3):
             k = r1.value_ohm / r2.value_ohm
@@ -533,7 +536,7 @@ def _search_model_brute_force(spec: Spec, catalog: Catalog) -> list[tuple[Any, .
                 if limit is not None and drift > limit / 100:
                     continue
                 parts = (r1, r2, r3, cap, pot)
-                cost = o.part.cost_per_board + sum(p.unit_cost for p in parts)
+                cost = u.part.cost_per_board + sum(p.unit_cost for p in parts)
                 if spec.limits.max_cost is not None and cost > spec.limits.max_cost + 1e-12:
                     continue
                 if cap.voltage_v < o.peak_v * (1 + spec.triangle.tolerance_pct / 100):
@@ -544,7 +547,7 @@ def _search_model_brute_force(spec: Spec, catalog: Catalog) -> list[tuple[Any, .
                         round(resolution / SCORE_RESOLUTION),
                         round(drift / SCORE_RESOLUTION),
                         round(cost * 1e4),
-                        o.part.id,
+                        u.part.id,
                         *(p.id for p in parts),
                     )
                 )
@@ -598,7 +601,9 @@ def test_best_resolution_equals_the_corner_brute_force_over_every_combination() 
     spec, cat = small_spec(), small_catalog(offsets=False)
     assert spec.trim is not None
     model = build_model(spec, cat)
-    (o,) = model.opamps
+    (u,) = model.opamps
+    o = u.target
+    assert o is not None
     aa, ab = spec.amplitude_band_ln
     res = model.resistors.parts
     pairs = [
@@ -621,8 +626,8 @@ def test_best_resolution_equals_the_corner_brute_force_over_every_combination() 
     }
     m = spec.trim.margin_pct / 100
     target = spec.target.target_hz
-    near = corner_frequencies(parts, o.part, spec, m).min(axis=1)
-    far = corner_frequencies(parts, o.part, spec, 1 - m).max(axis=1)
+    near = corner_frequencies(parts, u.part, spec, m).min(axis=1)
+    far = corner_frequencies(parts, u.part, spec, 1 - m).max(axis=1)
     covered = (near >= target) & (far <= target)
     resolution = [
         (p[0].value_ohm / p[1].value_ohm) * v.value_ohm * c.value_f / (o.x + o.d)

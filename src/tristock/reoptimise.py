@@ -35,7 +35,8 @@ from tristock.results import (
 from tristock.search import candidate, design_of, passes, search_space
 from tristock.search.enumeration import enumerate_top
 from tristock.search.explain import infeasible_reasons
-from tristock.search.model import SCORE_RESOLUTION, Rows, SearchModel, build_model, rank_key
+from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
+from tristock.search.rows import Rows, rank_key
 from tristock.spec import Spec, SpecError, parse_spec
 
 _POSITION_TABLE = {
@@ -144,7 +145,7 @@ def reoptimise(
         result = analyse(original, spec, samples=samples)
         p = result.to_dict()["predicted"]
         predicted = Predicted(**p)
-        if passes(spec, result):
+        if passes(spec, original, result):
             full_model_passes = True
         else:
             reasons.append(
@@ -276,7 +277,7 @@ def _finish(
         consumed += 1
         d = design_of(model, rows, n)
         result = analyse(d, spec, samples=samples)
-        if not passes(spec, result):
+        if not passes(spec, d, result):
             continue
         base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]))
         names = [x for x in ("U1", "R1", "R2", "R3", "C1") if x in changed]

@@ -22,6 +22,12 @@ from tristock.eseries import parse_series
 DEFAULT_RESISTANCE_MIN_OHM = 1_000.0
 DEFAULT_RESISTANCE_MAX_OHM = 1_000_000.0
 
+#: Largest share of the period the op amps' timing (delay, slew, GBW) may set, 1 - T_ideal/T.
+#: Common practice: past about a tenth the frequency follows part-to-part timing spread more
+#: than the R and C chosen. Capped at 0.4, where each transition still ends well before the
+#: next threshold (τ ≤ share·T/2) and the model holds.
+DEFAULT_MAX_TIMING_SHARE = 0.10
+
 #: Dielectrics allowed in the integrator when the spec names none: class I ceramic and films.
 DEFAULT_DIELECTRICS = ("C0G", "NP0", "PP", "PET", "PPS", "PEN", "PS")
 
@@ -105,7 +111,7 @@ RankBy = Literal["balanced", "frequency_error", "cost", "yield"]
 
 class LimitsSpec(_Section):
     """Optional limits on the choice. Defaults: any series, class I and film dielectrics,
-    1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99."""
+    1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99, max_timing_share 0.10."""
 
     max_cost: float | None = Field(None, gt=0, description="per board, the catalog's currency")
     resistor_series: tuple[str, ...] | None = Field(
@@ -121,6 +127,13 @@ class LimitsSpec(_Section):
     opamps: tuple[str, ...] | None = Field(None, description="restrict U1 to these ids")
     guarantee: Guarantee = "nominal"
     min_yield: float = Field(0.99, gt=0, le=1)
+    max_timing_share: float = Field(
+        DEFAULT_MAX_TIMING_SHARE,
+        gt=0,
+        le=0.4,
+        description="largest share of the period set by op-amp delay, slew and GBW "
+        "(1 - T_ideal/T); default 0.10",
+    )
 
     @field_validator("resistor_series")
     @classmethod

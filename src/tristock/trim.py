@@ -41,7 +41,8 @@ from tristock.parts import Pot
 from tristock.results import Candidate, DesignResult, Infeasible, SearchInfo, TrimOut
 from tristock.search import CAUTIONS, candidate
 from tristock.search.explain import opamp_exclusions
-from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model, pair_spread
+from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
+from tristock.search.targetpoint import pair_spread, target_array
 from tristock.spec import Spec
 
 _Q = SCORE_RESOLUTION
@@ -89,9 +90,9 @@ def _rows(
     """Open the R3 window of each (U1, R1, R2, C1, RV1) cell and keep the rows that cover."""
     spec, res, cap = model.spec, model.resistors, model.capacitors
     ops = model.opamps
-    x = np.array([o.x for o in ops])[u]
-    d = np.array([o.d for o in ops])[u]
-    gain = np.array([o.gain for o in ops])[u]
+    x = target_array(model, "x")[u]
+    d = target_array(model, "d")[u]
+    gain = target_array(model, "gain")[u]
     ln_k = res.ln_value[i1] - res.ln_value[i2]
     k = np.exp(ln_k)
     c = np.exp(cap.ln_value[j])
@@ -157,7 +158,7 @@ def _rows(
     cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j] + pot_cost
     if spec.limits.max_cost is not None:
         ok &= cost <= spec.limits.max_cost + 1e-12
-    peak = np.array([o.peak_v for o in ops])[u]
+    peak = target_array(model, "peak_v")[u]
     ok &= cap.voltage[j] >= peak * (1 + spec.triangle.tolerance_pct / 100)
     resolution = k * rv * c / (x + d)
     rows = _Trimmed(u, i1, i2, i3.astype(np.int64), j, v, resolution, drift, wiper, cost)
@@ -187,8 +188,10 @@ def _cells(model: SearchModel, pots: list[Pot], margin: float, theta: float) -> 
     v_of = (order % len(pots)).astype(np.int64)
     out = []
     for o in model.opamps:
-        lo = np.searchsorted(ln_r, ln_r - o.ln_k_target - ab - 1e-12, side="left")
-        hi = np.searchsorted(ln_r, ln_r - o.ln_k_target - aa + 1e-12, side="right")
+        if o.target is None:
+            continue
+        lo = np.searchsorted(ln_r, ln_r - o.target.ln_k_target - ab - 1e-12, side="left")
+        hi = np.searchsorted(ln_r, ln_r - o.target.ln_k_target - aa + 1e-12, side="right")
         counts = np.maximum(hi - lo, 0)
         i1 = np.repeat(np.arange(len(ln_r)), counts)
         i2 = (
@@ -199,15 +202,16 @@ def _cells(model: SearchModel, pots: list[Pot], margin: float, theta: float) -> 
         u = np.full(len(i1), o.index, dtype=np.int64)
         if model.spec.limits.guarantee == "worst_case":
             _, _, dn_a, up_a = pair_spread(model, u, i1, i2)
-            e_a = ln_r[i1] - ln_r[i2] - o.ln_k_target
+            e_a = ln_r[i1] - ln_r[i2] - o.target.ln_k_target
             keep = (e_a + up_a <= ab) & (e_a - dn_a >= aa)
             u, i1, i2 = u[keep], i1[keep], i2[keep]
         ln_k = ln_r[i1] - ln_r[i2]
         # resolution = k·RV·C/(X + d), so a resolution bound is a bound on ln(C·RV).
         dn, up, _, _ = pair_spread(model, u, i1, i2)
         floor = (np.exp(up) - np.exp(-dn)) / (1 - 2 * margin)
-        start = np.searchsorted(ln_cv, np.log(floor * (o.x + o.d)) - ln_k - 1e-12)
-        stop = np.searchsorted(ln_cv, math.log(theta * (o.x + o.d)) - ln_k + 1e-12, side="right")
+        start = np.searchsorted(ln_cv, np.log(floor * (o.target.x + o.target.d)) - ln_k - 1e-12)
+        reach = math.log(theta * (o.target.x + o.target.d))
+        stop = np.searchsorted(ln_cv, reach - ln_k + 1e-12, side="right")
         n = np.maximum(stop - start, 0)
         which = np.repeat(np.arange(len(n)), n)
         idx = np.repeat(start, n) + np.arange(len(which)) - np.repeat(np.cumsum(n) - n, n)
@@ -266,7 +270,9 @@ def _finest_floor(model: SearchModel, margin: float) -> float:
     """A resolution no covering design can beat: rails and op-amp spread alone need
     resolution·(1 - 2m) >= e^up - e^-down."""
     floors = [
-        (math.exp(o.rail_f[1]) - math.exp(-o.rail_f[0])) / (1 - 2 * margin) for o in model.opamps
+        (math.exp(o.target.rail_f[1]) - math.exp(-o.target.rail_f[0])) / (1 - 2 * margin)
+        for o in model.opamps
+        if o.target is not None
     ]
     return max(min(floors, default=1e-3), 1e-4)
 
@@ -419,7 +425,7 @@ def _reasons(spec: Spec, model: SearchModel, pots: list[Pot], dropped: int) -> l
     assert spec.trim is not None
     if not pots:
         return [f"no trimmer (pots.csv, kind trimmer) with stock for {spec.build.boards} boards"]
-    if not model.opamps:
+    if not any(o.target is not None for o in model.opamps):
         return ["no op amp in the catalog can be used: " + opamp_exclusions(model)]
     if dropped:
         return [

@@ -52,7 +52,8 @@ from tristock.results import (
 )
 from tristock.search import CAUTIONS, candidate
 from tristock.search.explain import opamp_exclusions
-from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model, pair_spread
+from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
+from tristock.search.targetpoint import pair_spread, target_array
 from tristock.spec import FrequencySpec, Spec
 
 PAIRS_PER_OPAMP = 3
@@ -99,10 +100,10 @@ def _amplitude_targets(
     out = {}
     for o in model.opamps:
         lo = lows.get(o.part.id)
-        if lo is not None:
+        if lo is not None and lo.target is not None and o.target is not None:
             out[o.index] = (
-                0.5 * (o.ln_k_target + lo.ln_k_target),
-                0.5 * abs(lo.ln_k_target - o.ln_k_target),
+                0.5 * (o.target.ln_k_target + lo.target.ln_k_target),
+                0.5 * abs(lo.target.ln_k_target - o.target.ln_k_target),
             )
     return out
 
@@ -174,8 +175,8 @@ def _combos(
     i4 = np.concatenate([b[5] for b in blocks]).astype(np.int64)
 
     ops = model.opamps
-    cc = np.array([o.c for o in ops])[u][:, None]
-    d = np.array([o.d for o in ops])[u][:, None]
+    cc = target_array(model, "c")[u][:, None]
+    d = target_array(model, "d")[u][:, None]
     k = np.exp(res.ln_value[i1] - res.ln_value[i2])[:, None]
     r3 = values[i3][:, None]
     rv = np.array([p.value_ohm for p in pots])[v][:, None]
@@ -226,7 +227,7 @@ def _combos(
         extra_cost = np.zeros(len(u))
     gh = f_top * np.exp(-dn_top)
     gl = f_bot * np.exp(up_bot)
-    usable = cap.voltage[None, :] >= np.array([o.peak_v for o in ops])[u][:, None]
+    usable = cap.voltage[None, :] >= target_array(model, "peak_v")[u][:, None]
     usable &= cap.stock[None, :] >= model.boards
     gl = np.where(usable & (gh > gl), gl, np.inf)
     shared = (
@@ -579,7 +580,7 @@ def _reasons(
     tu = spec.tuning
     if not pots:
         return [f"no panel pot (pots.csv, kind panel) with stock for {spec.build.boards} boards"]
-    if not model.opamps:
+    if not any(o.target is not None for o in model.opamps):
         return [
             f"no op amp in the catalog can be used at {tu.high_hz:g} Hz: " + opamp_exclusions(model)
         ]

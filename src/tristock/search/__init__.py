@@ -9,11 +9,16 @@ from __future__ import annotations
 
 import math
 import time
+from dataclasses import dataclass
 from typing import Literal
 
-from tristock.analysis import Analysis, analyse
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.analysis import Analysis, WorstCase, YieldResult, analyse, worst_case, yield_count
 from tristock.catalog import Catalog
-from tristock.design import Design
+from tristock.circuit import OpAmpModel, square_levels
+from tristock.design import Design, rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.report import parts_report, warnings_for
 from tristock.results import (
@@ -29,11 +34,16 @@ from tristock.results import (
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.explain import infeasible_reasons
-from tristock.search.model import SCORE_RESOLUTION, Rows, SearchModel, build_model
+from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
+from tristock.search.rows import RowPrediction, Rows
 from tristock.spec import Spec
 from tristock.units import format_value
 
 Engine = Literal["cpsat", "enumerate"]
+#: For one design the enumeration's rows come in exact rank order with every constraint
+#: applied, so CP-SAT (kept as an independent cross-check, and for problems that couple
+#: several designs) only re-derives them, more slowly.
+DEFAULT_ENGINE: Engine = "enumerate"
 DEFAULT_TIME_LIMIT_S = 5.0
 
 CAUTIONS = [
@@ -87,24 +97,52 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
     )
 
 
-def passes(spec: Spec, result: Analysis) -> bool:
-    """The full model's verdict on the spec's guarantee."""
+def accepts(spec: Spec, design: Design) -> bool:
+    """The search's acceptance of one fixed design at nominal values (``search.rows``): the
+    bands, the model's ground (peaks inside the integrator's swing, its slew above the
+    triangle's slope, the timing share within the limit) and C1's voltage rating."""
+    model = OpAmpModel.from_part(design.u1)
+    try:
+        vh, vl = square_levels(rails_from_supply(spec.supply), model)
+    except ValueError:
+        return False
+
+    def one(x: float) -> NDArray[np.float64]:
+        return np.array([x], dtype=np.float64)
+
+    values = (
+        one(design.r1.value),
+        one(design.r2.value),
+        one(design.r3.value),
+        one(design.c1.value),
+    )
+    rp = RowPrediction([model], np.zeros(1, dtype=np.int64), values, one(vh), one(vl))
+    return bool(rp.accepted(spec, one(design.c1.voltage_v))[0])
+
+
+def passes(spec: Spec, design: Design, result: Analysis) -> bool:
+    """The full model's verdict: ``accepts`` and the spec's guarantee, from the analysis
+    (worst case over the whole spread box, or the Monte Carlo yield)."""
+    if not accepts(spec, design):
+        return False
+    return _guarantee_holds(spec, result.worst_case, result.yield_result)
+
+
+def _guarantee_holds(spec: Spec, wc: WorstCase | None, y: YieldResult | None) -> bool:
     (fa, fb), (aa, ab) = spec.frequency_band_ln, spec.amplitude_band_ln
     f0, a0 = spec.target.target_hz, spec.triangle.amplitude_vpp
 
     def inside(f: float, a: float) -> bool:
         return fa <= math.log(f / f0) <= fb and aa <= math.log(a / a0) <= ab
 
-    p = result.predicted
-    if not inside(float(p.frequency_hz), float(p.amplitude_vpp)):
-        return False
     if spec.limits.guarantee == "worst_case":
-        wc = result.worst_case
+        assert wc is not None
         return inside(wc.frequency_hz[0], wc.amplitude_vpp[0]) and inside(
             wc.frequency_hz[1], wc.amplitude_vpp[1]
         )
     if spec.limits.guarantee == "yield":
-        return result.yield_fraction >= spec.limits.min_yield
+        assert y is not None
+        return y.fraction >= spec.limits.min_yield
     return True
 
 
@@ -142,19 +180,104 @@ def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float
     return enumerate_top(model, top, time_limit_s)
 
 
+@dataclass
+class _Verdict:
+    """The full model's re-check of one row: whether it meets the guarantee and, when the
+    ranking needs it, its Monte Carlo pass count (an upper bound when ``exact`` is False:
+    the count stopped once the row could no longer matter)."""
+
+    ok: bool
+    passed: int | None
+    exact: bool = True
+
+
+def _recheck(spec: Spec, design: Design, samples: int, seed: int, beat: int) -> _Verdict:
+    """What the guarantee and the ranking need beyond the search's own acceptance. In the
+    yield ranking a row must pass more than ``beat`` samples to enter the top; counting
+    stops as soon as it cannot (``analysis.yield_count``)."""
+    limits = spec.limits
+    if limits.guarantee == "worst_case":
+        wc = worst_case(design, spec)
+        if not _guarantee_holds(spec, wc, None):
+            return _Verdict(False, None)
+    if limits.guarantee != "yield" and spec.ranking.by != "yield":
+        return _Verdict(True, None)
+    allowed = samples
+    if limits.guarantee == "yield":
+        allowed = math.floor((1.0 - limits.min_yield) * samples + 1e-9)
+    if spec.ranking.by == "yield":
+        allowed = min(allowed, samples - beat - 1)
+    passed, exact = yield_count(
+        design, spec, samples=samples, seed=seed, max_failures=max(allowed, -1)
+    )
+    if limits.guarantee == "yield" and passed < limits.min_yield * samples:
+        return _Verdict(False, passed, exact)
+    return _Verdict(True, passed, exact)
+
+
+def _walk(
+    spec: Spec,
+    model: SearchModel,
+    rows: Rows,
+    verdicts: dict[tuple[str, ...], _Verdict],
+    samples: int,
+    seed: int,
+    deadline: float,
+) -> tuple[list[tuple[Design, int, int | None]], int, bool, bool]:
+    """Re-check rows in rank order until the top is settled.
+
+    Returns the rows that pass (design, score, yield count), how many were dropped, whether
+    the top is settled (no unchecked row can rank above the ``top``-th kept one) and whether
+    the deadline cut the walk. In the yield ranking the key is (-yield, search order): a row
+    never checked can at best tie at yield 1, after every checked row, so the top is settled
+    once ``top`` kept rows have every sample passing; a row whose count cannot beat the
+    ``top``-th kept one is not counted to the end.
+    """
+    top = spec.ranking.top
+    by_yield = spec.ranking.by == "yield"
+    kept: list[tuple[Design, int, int | None]] = []
+    dropped = 0
+
+    def settled() -> bool:
+        if not by_yield:
+            return len(kept) >= top
+        return sum(p == samples for _, _, p in kept) >= top
+
+    for n in range(len(rows)):
+        if settled():
+            return kept, dropped, True, False
+        if time.perf_counter() > deadline and n:
+            return kept, dropped, False, True
+        d = design_of(model, rows, n)
+        ids = tuple(p.id for p in d.parts().values())
+        counts = sorted((p or 0 for _, _, p in kept), reverse=True)
+        beat = counts[top - 1] if by_yield and len(counts) >= top else -1
+        if ids not in verdicts or (not verdicts[ids].exact and (verdicts[ids].passed or 0) > beat):
+            verdicts[ids] = _recheck(spec, d, samples, seed, beat)
+        v = verdicts[ids]
+        if not v.ok:
+            dropped += 1
+        elif v.exact:
+            kept.append((d, int(rows.primary[n]), v.passed))
+    return kept, dropped, settled(), False
+
+
 def design(
     spec: Spec,
     catalog: Catalog,
     *,
-    engine: Engine = "cpsat",
+    engine: Engine = DEFAULT_ENGINE,
     time_limit_s: float = DEFAULT_TIME_LIMIT_S,
     samples: int = 4000,
     seed: int = 0,
 ) -> DesignResult:
-    """Best ``spec.ranking.top`` designs from ``catalog``, each checked by the full model.
+    """Best ``spec.ranking.top`` designs from ``catalog``, optimal under the full model.
 
-    A spec with ``[trim]`` is searched by ``tristock.trim``, one with ``[tuning]`` by
-    ``tristock.tuning``; both return the same result model.
+    The engines list rows in rank order, each scored by the full model at nominal values;
+    the guarantee (worst case over the spread box, Monte Carlo yield) and the yield ranking
+    are then decided by the analysis, row by row in that order, until no unchecked row can
+    enter the top (``_walk``). A spec with ``[trim]`` is searched by ``tristock.trim``, one
+    with ``[tuning]`` by ``tristock.tuning``; both return the same result model.
     """
     if spec.trimmed:
         from tristock.trim import design_trimmed
@@ -165,45 +288,33 @@ def design(
 
         return design_tuned(spec, catalog, time_limit_s=time_limit_s)
     t0 = time.perf_counter()
+    deadline = t0 + time_limit_s
     model = build_model(spec, catalog)
     top = spec.ranking.top
-    # The yield mode searches on an estimate; a wider shortlist lets the Monte Carlo re-rank.
-    want = 3 * top if spec.ranking.by == "yield" else top
-    kept: list[tuple[Design, Analysis, int]] = []
-    analysed: dict[tuple[str, ...], Analysis] = {}  # a retry re-uses the re-checks done
-    dropped = 0
-    proven = True
+    want = top
+    verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done
     evaluated = 0
     while True:
-        remaining = max(time_limit_s - (time.perf_counter() - t0), 0.0)
+        remaining = max(deadline - time.perf_counter(), 0.0)
         found = run_engine(model, engine, want, remaining)
         evaluated += found.evaluated
-        proven = found.proven_optimal
-        kept, dropped = [], 0
-        for n in range(len(found.rows)):
-            if len(kept) >= top and spec.ranking.by != "yield":
-                break
-            d = design_of(model, found.rows, n)
-            ids = tuple(p.id for p in d.parts().values())
-            if ids not in analysed:
-                analysed[ids] = analyse(d, spec, samples=samples, seed=seed)
-            result = analysed[ids]
-            if passes(spec, result):
-                kept.append((d, result, int(found.rows.primary[n])))
-            else:
-                dropped += 1
+        kept, dropped, settled, cut = _walk(
+            spec, model, found.rows, verdicts, samples, seed, deadline
+        )
         exhausted = len(found.rows) < want
-        if len(kept) >= top or exhausted or time.perf_counter() - t0 > time_limit_s:
-            if len(kept) < top and not exhausted:
-                proven = False
+        if settled or exhausted or cut or time.perf_counter() > deadline:
+            proven = found.proven_optimal and (settled or exhausted) and not cut
             break
-        want *= 2
+        want *= 4
     if spec.ranking.by == "yield":
-        kept.sort(key=lambda k: (-round(k[1].yield_fraction, 4), k[2]))
+        kept.sort(key=lambda k: -(k[2] or 0))  # stable: search order within a yield
     kept = kept[:top]
-    candidates = [candidate(spec, d, r, i + 1, s) for i, (d, r, s) in enumerate(kept)]
+    candidates = [
+        candidate(spec, d, analyse(d, spec, samples=samples, seed=seed), i + 1, score)
+        for i, (d, score, _) in enumerate(kept)
+    ]
     infeasible = None
-    if not candidates:
+    if not candidates and proven:
         infeasible = Infeasible(reasons=infeasible_reasons(model, catalog, dropped))
     return DesignResult(
         spec=spec,
@@ -228,4 +339,4 @@ def search_space(model: SearchModel) -> int:
     return len(model.opamps) * len(model.resistors) ** 3 * len(model.capacitors)
 
 
-__all__ = ["CAUTIONS", "DEFAULT_TIME_LIMIT_S", "design"]
+__all__ = ["CAUTIONS", "DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design"]

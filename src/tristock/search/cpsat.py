@@ -22,7 +22,8 @@ import numpy as np
 from ortools.sat.python import cp_model
 
 from tristock.search.enumeration import EngineResult, enumerate_top
-from tristock.search.model import COST_RESOLUTION, SECONDARY_SPAN, Rows, SearchModel, rank_key
+from tristock.search.model import COST_RESOLUTION, SECONDARY_SPAN, SearchModel
+from tristock.search.rows import Rows, rank_key
 
 
 @dataclass
@@ -92,22 +93,19 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
         cp.add(cost <= cents(spec.limits.max_cost))
 
     # Objective: the packed score primary·SPAN + secondary, built from the choices.
-    if model.mode == "yield":
-        primary = cp_model.LinearExpr.weighted_sum(choose_row, [int(p) for p in rows.primary])
-    else:
-        r_term = model.resistor_term(np.arange(len(res)))
-        c_term = model.capacitor_term(np.arange(len(cap)))
-        error = model.error_term(rows.e_f, rows.e_a)
-        saved_lines = 3 - cp_model.LinearExpr.sum(list(resistor_line.values()))
-        primary = (
-            cp_model.LinearExpr.weighted_sum(choose_row, [int(e) for e in error])
-            + sum(model.opamp_term(model.opamps[o]) * e for o, e in use_u1.items())
-            + sum(int(r_term[i]) * e for i, e in use_r1.items())
-            + sum(int(r_term[i]) * e for i, e in use_r2.items())
-            + sum(int(r_term[i]) * e for i, e in use_r3.items())
-            + sum(int(c_term[j]) * e for j, e in use_c1.items())
-            - model.shared_line_credit() * saved_lines
-        )
+    r_term = model.resistor_term(np.arange(len(res)))
+    c_term = model.capacitor_term(np.arange(len(cap)))
+    row_term = model.row_term(rows.e_f, rows.e_a, rows.share)
+    saved_lines = 3 - cp_model.LinearExpr.sum(list(resistor_line.values()))
+    primary = (
+        cp_model.LinearExpr.weighted_sum(choose_row, [int(e) for e in row_term])
+        + sum(model.opamp_term(model.opamps[o]) * e for o, e in use_u1.items())
+        + sum(int(r_term[i]) * e for i, e in use_r1.items())
+        + sum(int(r_term[i]) * e for i, e in use_r2.items())
+        + sum(int(r_term[i]) * e for i, e in use_r3.items())
+        + sum(int(c_term[j]) * e for j, e in use_c1.items())
+        - model.shared_line_credit() * saved_lines
+    )
     secondary = cp_model.LinearExpr.weighted_sum(choose_row, [int(s) for s in rows.secondary])
     cp.minimize(SECONDARY_SPAN * primary + secondary)
     return cp, choose_row

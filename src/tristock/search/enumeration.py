@@ -1,39 +1,45 @@
 """Exact enumeration engine: vectorised numpy with bound-based pruning.
 
-The search space is every (U1, R1, R2, R3, C1). The period depends on R3 and C1 only through
-their product, so the engine sorts every ln(R3·C1) once (the product table) and walks:
+The search space is every (U1, R1, R2, R3, C1). With k = R1/R2 fixed, the full model's
+period rises with P = k·R3·C1 whatever R3 is (``search.bounds``), so the engine sorts every
+ln(R3·C1) once (the product table) and walks:
 
-1. pairs: for each op amp, the (R1, R2) whose ratio puts the amplitude in its band (binary
-   search in the sorted ln R). Each pair gets a lower bound on the score of any row through
-   it: its own exact terms (U1, R1, R2, amplitude error) plus the smallest R3 + C1 term in the
-   product table (an R3 that repeats R1 or R2 credited);
-2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|, and
-   e_f = ln((X + d)/(k·R3·C1 + d)) turns that cap into one contiguous window of the product
+1. pairs: for each op amp, the (R1, R2) whose ratio lies in the op amp's ``k_range`` (binary
+   search in the sorted ln R). For each pair, ``bounds.window`` gives the P range outside
+   which no R3 lets the period into the band, and the amplitude and timing-share bounds over
+   that range drop the pairs that cannot meet the amplitude band or the timing limit (under
+   a worst-case guarantee ``search.guarantee.pair_limits`` narrows the window and drops more
+   pairs first). Each pair gets a lower bound on the score of any row through it: its exact
+   terms (U1, R1, R2), the lower bounds of the amplitude and timing-share terms, and the
+   smallest R3 + C1 term in the product table (an R3 that repeats R1 or R2 credited);
+2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|,
+   which narrows the period band and so the P window, one contiguous range of the product
    table (binary search again);
 3. rows: the rows of a few most promising pairs give θ (the ``top``-th score found); then
    every pair whose bound is within θ has its window opened, every row is scored and checked
-   against all constraints, and the best ``top`` are kept.
+   by the full model (``search.rows.evaluate``), and the best ``top`` are kept.
 
-A pair or a row left out scores above θ, so the answer is exact within the search model.
+A pair or a row left out scores above θ or cannot meet the spec, so the answer is exact under
+the full model.
 """
 
 from __future__ import annotations
 
+import math
 import time
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.model import (
-    SCORE_RESOLUTION,
-    OpAmpTerms,
-    Rows,
-    SearchModel,
-    best,
-    evaluate,
-    pair_spread,
-)
+from tristock.search.bounds import amplitude_bounds, timing_share_floor, window
+from tristock.search.guarantee import pair_limits
+from tristock.search.model import SearchModel
+from tristock.search.rows import Rows, best, empty_rows, evaluate
+
+#: The period band is widened by this relative amount before windows are taken, so a row on
+#: the band's edge whose computed period rounds differently from the bounds' stays inside.
+_EDGE = 1e-12
 
 
 @dataclass
@@ -61,10 +67,11 @@ class _Pairs:
     u: NDArray[np.int64]
     i1: NDArray[np.int64]
     i2: NDArray[np.int64]
-    base: NDArray[np.int64]  # exact score terms of U1, R1, R2 and the amplitude error
+    k: NDArray[np.float64]
+    p_min: NDArray[np.float64]  # the nominal P a row needs: band, product table, guarantee
+    p_max: NDArray[np.float64]
+    base: NDArray[np.int64]  # score terms of U1, R1, R2 and floors of the amplitude and share
     bound: NDArray[np.int64]  # base + the best (R3, C1) term
-    margin_lo: NDArray[np.float64]  # e_f must stay this far above the band's floor ...
-    margin_hi: NDArray[np.float64]  # ... and this far below its ceiling (worst case)
 
     def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> _Pairs:
         return _Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
@@ -92,10 +99,20 @@ def _products(model: SearchModel) -> _Products:
     return _Products(ln[order], i3[order], j[order], term[order])
 
 
+def _period_band(model: SearchModel, e_lo: NDArray[np.float64], e_hi: NDArray[np.float64]):
+    """Periods (s) of the frequency errors e_lo..e_hi: T = T_target·e^(-e), a little wider."""
+    t_target = 1.0 / model.spec.target.target_hz
+    return t_target * np.exp(-e_hi) * (1 - _EDGE), t_target * np.exp(-e_lo) * (1 + _EDGE)
+
+
 def _pairs(model: SearchModel, products: _Products) -> _Pairs:
-    """(R1, R2) pairs with ln(R1/R2) - ln k_target inside the amplitude band, per op amp."""
-    ln_r = model.resistors.ln_value
-    aa, ab = model.band_a
+    """(R1, R2) pairs that can meet the amplitude band and the timing limit, per op amp, with
+    a lower bound on the score of any row through each."""
+    res = model.resistors
+    ln_r = res.ln_value
+    spec = model.spec
+    a_t = spec.triangle.amplitude_vpp
+    (fa, fb), (aa, ab) = model.band_f, model.band_a
     r_term = model.resistor_term(np.arange(len(ln_r)))
     credit = model.shared_line_credit()
     floor = int(products.term.min()) - credit if len(products.term) else 0
@@ -103,68 +120,57 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
     use_u1 = model.allows("U1", len(model.opamps))
     use_r1 = model.allows("R1", len(ln_r))
     use_r2 = model.allows("R2", len(ln_r))
+    if len(products.ln) == 0:
+        return _no_pairs()
+    t_min, t_max = _period_band(model, np.array(fa), np.array(fb))
     for o in model.opamps:
         if not use_u1[o.index]:
             continue
-        lo = np.searchsorted(ln_r, ln_r - o.ln_k_target - ab - 1e-12, side="left")
-        hi = np.searchsorted(ln_r, ln_r - o.ln_k_target - aa + 1e-12, side="right")
+        k_lo, k_hi = o.k_range
+        lo = np.searchsorted(ln_r, ln_r - math.log(k_hi) - 1e-12, side="left")
+        hi = np.searchsorted(ln_r, ln_r - math.log(k_lo) + 1e-12, side="right")
         i1, i2 = _ranges(lo, hi)
         keep = use_r1[i1] & use_r2[i2]
         i1, i2 = i1[keep], i2[keep]
-        e_a = ln_r[i1] - ln_r[i2] - o.ln_k_target
+        k = res.value[i1] / res.value[i2]
+        u = np.full(len(i1), o.index, dtype=np.int64)
+        loop = model.loops(u)
+        w = window(loop, k, np.full(len(k), t_min), np.full(len(k), t_max))
+        # P outside what the product table can make is no use either.
+        p_lo = np.maximum(w.lo, k * math.exp(products.ln[0]))
+        p_hi = np.minimum(w.hi, k * math.exp(products.ln[-1]))
+        reach = p_lo <= p_hi
+        amp = amplitude_bounds(loop, k, p_lo, p_hi)
+        share = timing_share_floor(loop, k, p_lo, p_hi)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
+        keep = reach & (e_a_hi >= aa) & (e_a_lo <= ab) & (share <= spec.limits.max_timing_share)
+        if spec.limits.guarantee == "worst_case":
+            limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
+            keep &= limits.keep
+            p_lo, p_hi = limits.p_min, limits.p_max
+        e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
         base = (
             model.opamp_term(o)
             + r_term[i1]
             + r_term[i2]
             - credit * (i1 == i2)
-            + model.amplitude_term(e_a)
+            + model.amplitude_term(e_a_gap)
+            + model.share_term(np.maximum(share, 0.0))
         )
-        u = np.full(len(i1), o.index, dtype=np.int64)
-        margin_lo = margin_hi = np.zeros(len(i1))
-        keep = np.ones(len(i1), dtype=bool)
-        guarantee = model.spec.limits.guarantee
-        if guarantee == "worst_case":
-            margin_lo, margin_hi, dn_a, up_a = pair_spread(model, u, i1, i2)
-            keep = (e_a + up_a <= ab) & (e_a - dn_a >= aa)
-        y_bound = _yield_bound(model, o, i1, i2, e_a)
-        if guarantee == "yield":
-            keep &= (
-                1.0 - y_bound * SCORE_RESOLUTION >= model.spec.limits.min_yield - SCORE_RESOLUTION
-            )
-        bound = y_bound if model.mode == "yield" else base + floor
-        pairs = _Pairs(u, i1, i2, base, bound, margin_lo, margin_hi)
+        pairs = _Pairs(u, i1, i2, k, p_lo, p_hi, base, base + floor)
         parts.append(pairs.take(keep))
     if not parts:
-        empty = np.zeros(0, dtype=np.int64)
-        none = np.zeros(0)
-        return _Pairs(empty, empty, empty, empty, empty, none, none)
+        return _no_pairs()
     return _Pairs(
         **{n: np.concatenate([getattr(p, n) for p in parts]) for n in _Pairs.__dataclass_fields__}
     )
 
 
-def _yield_bound(
-    model: SearchModel,
-    o: OpAmpTerms,
-    i1: NDArray[np.int64],
-    i2: NDArray[np.int64],
-    e_a: NDArray[np.float64],
-) -> NDArray[np.int64]:
-    """Lower bound on 1 - Y for any row through the pairs.
-
-    Y = Y_f·Y_a falls as a variance grows (for errors inside the band) and Y_f is largest at
-    the band's centre, so leaving out every variance term that R3, C1, rails and temperature
-    add beyond the op amp's own spread, and putting e_f at the centre, bounds Y from above.
-    """
-    res, cap = model.resistors, model.capacitors
-    v12 = model.variance(res.tol[i1]) + model.variance(res.tol[i2])
-    v3c = float(model.variance(res.tol.min()) + model.variance(cap.tol.min())) if len(cap) else 0
-    fa, fb = model.band_f
-    centre = np.full(len(i1), 0.5 * (fa + fb))
-    var_f = o.gain**2 * (v12 + v3c) + sum(o.rail_f) ** 2 / 12
-    var_a = v12 + sum(o.rail_a) ** 2 / 12
-    y = model.yield_estimate(centre, e_a, var_f, var_a)
-    return np.asarray(np.rint((1.0 - y) / SCORE_RESOLUTION), dtype=np.int64)
+def _no_pairs() -> _Pairs:
+    z = np.zeros(0, dtype=np.int64)
+    f = np.zeros(0)
+    return _Pairs(z, z, z, f, f, f, z, z)
 
 
 def _open(
@@ -173,27 +179,25 @@ def _open(
     """Rows of the pairs' windows that can still score ``theta`` or better, and how many
     rows were scored."""
     if len(pairs.u) == 0:
-        return evaluate(model, *(np.zeros(0, dtype=np.int64) for _ in range(5))), 0
+        return empty_rows(), 0
     fa, fb = model.band_f
-    x = np.array([o.x for o in model.opamps])[pairs.u]
-    d = np.array([o.d for o in model.opamps])[pairs.u]
     credit = model.shared_line_credit()
     if theta is None:
         e_max = np.full(len(pairs.u), np.inf)
     else:
         e_max = model.frequency_budget(theta - pairs.bound)
-    e_hi = np.minimum(fb - pairs.margin_hi, e_max)
-    e_lo = np.maximum(fa + pairs.margin_lo, -e_max)
-    ln_k = model.resistors.ln_value[pairs.i1] - model.resistors.ln_value[pairs.i2]
-    p_small = (x + d) * np.exp(-e_hi) - d
-    p_large = (x + d) * np.exp(-e_lo) - d
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ln_lo = np.where(p_small > 0, np.log(np.maximum(p_small, 1e-300)), -np.inf) - ln_k
-        ln_hi = np.where(p_large > 0, np.log(np.maximum(p_large, 1e-300)), -np.inf) - ln_k
+    e_hi = np.minimum(fb, e_max)
+    e_lo = np.maximum(fa, -e_max)
+    t_min, t_max = _period_band(model, e_lo, e_hi)
+    w = window(model.loops(pairs.u), pairs.k, t_min, t_max)
+    ln_k = np.log(pairs.k)
+    with np.errstate(divide="ignore"):
+        ln_lo = np.log(np.maximum(w.lo, pairs.p_min)) - ln_k
+        ln_hi = np.log(np.minimum(w.hi, pairs.p_max)) - ln_k
     lo = np.searchsorted(products.ln, ln_lo - 1e-12, side="left")
     hi = np.searchsorted(products.ln, ln_hi + 1e-12, side="right")
     which, idx = _ranges(lo, hi)
-    if theta is not None and model.mode != "yield":
+    if theta is not None:
         keep = pairs.base[which] + products.term[idx] - credit <= theta
         which, idx = which[keep], idx[keep]
     rows = evaluate(
@@ -211,13 +215,10 @@ def _open(
 def enumerate_top(
     model: SearchModel, top: int, time_limit_s: float, *, coupled: bool = True
 ) -> EngineResult:
-    """The ``top`` best combinations, exact within the search model.
+    """The ``top`` best combinations, exact under the full model.
 
     ``coupled=False`` ignores stock shared between positions and the cost cap (the CP-SAT
     engine lists its table this way and enforces those itself).
-
-    In the yield mode the pair bound is an upper bound on the yield estimate (see
-    ``_yield_bound``) and windows are not narrowed.
     """
     t0 = time.perf_counter()
     products = _products(model)
@@ -252,4 +253,5 @@ def enumerate_top(
             evaluated += scored
             found = best(model, Rows.concat([found, rows]), top)
             theta = int(found.primary[-1])
+    proven &= not model.bounds_violated
     return EngineResult(found, proven, evaluated, time.perf_counter() - t0)

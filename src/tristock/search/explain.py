@@ -21,8 +21,10 @@ def _series_text(model: SearchModel) -> str:
 
 
 def opamp_exclusions(model: SearchModel) -> str:
-    """Why each op amp was left out, one clause per part."""
-    return "; ".join(f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1")
+    """Why each op amp was left out, or cannot meet the target exactly, one clause per part."""
+    clauses = [f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"]
+    clauses += [f"{o.part.id}: {o.target_note}" for o in model.opamps if o.target is None]
+    return "; ".join(clauses)
 
 
 def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:
@@ -60,17 +62,22 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
     ln_r = model.resistors.ln_value
     aa, ab = model.band_a
     any_pair = False
+    ratios = ln_r[:, None] - ln_r[None, :]
     for o in model.opamps:
-        k = math.exp(o.ln_k_target)
-        ratios = ln_r[:, None] - ln_r[None, :]
-        ok = (ratios - o.ln_k_target >= aa) & (ratios - o.ln_k_target <= ab)
+        if o.target is None:
+            lo, hi = (math.log(x) for x in o.k_range)
+            any_pair |= bool(((ratios >= lo) & (ratios <= hi)).any())
+            reasons.append(f"op amp {o.part.id}: {o.target_note}")
+            continue
+        ln_kt = o.target.ln_k_target
+        ok = (ratios - ln_kt >= aa) & (ratios - ln_kt <= ab)
         if ok.any():
             any_pair = True
             continue
-        nearest = float(math.exp(ratios.flat[abs(ratios - o.ln_k_target).argmin()]))
+        nearest = float(math.exp(ratios.flat[abs(ratios - ln_kt).argmin()]))
         reasons.append(
-            f"{spec.triangle.amplitude_vpp:g} Vpp needs k = R1/R2 = {k:.4g} with the "
-            f"+{o.vh:.2f}/-{o.vl:.2f} V swing of {o.part.id}; no R1/R2 pair in "
+            f"{spec.triangle.amplitude_vpp:g} Vpp needs k = R1/R2 = {math.exp(ln_kt):.4g} with "
+            f"the +{o.vh:.2f}/-{o.vl:.2f} V swing of {o.part.id}; no R1/R2 pair in "
             f"{_series_text(model)} within ±{spec.triangle.tolerance_pct:g} % "
             f"(nearest {nearest:.4g})"
         )

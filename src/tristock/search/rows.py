@@ -1,0 +1,340 @@
+"""Rows: combinations of parts scored and checked by the full circuit model.
+
+``evaluate`` is the search's definition of a row and of its acceptance. Every number in it
+comes from ``tristock.circuit.predict`` at nominal values, 25 °C and the nominal rails, the
+same prediction the analysis of an answer reports. A row is accepted when
+
+- its frequency and triangle amplitude lie in the spec's bands;
+- the loop is inside the model's ground: the triangle's peaks inside the integrator's output
+  swing, the integrator's slew rate at least the triangle's slope on each ramp, and the share
+  of the period set by op-amp timing (1 - T_ideal/T) at most ``limits.max_timing_share``;
+- C1's voltage rating covers the largest |triangle peak| with the amplitude margin;
+- (coupled) stock covers boards x uses and the cost is within ``limits.max_cost``;
+- under ``guarantee = "worst_case"``, the full model at five points of the spread box of
+  ``tristock.analysis`` lies in the bands (``search.guarantee``). Those points are inside the
+  box the analysis searches, so this is a necessary condition: the analysis's re-check can
+  only reject more, never accept a row this rejected.
+
+``guarantee = "yield"`` adds nothing here; the Monte Carlo decides it in the re-check.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.circuit import OpAmpModel, Prediction, predict
+from tristock.search.bounds import amplitude_bounds, period_bounds
+from tristock.search.guarantee import (
+    FAST,
+    PROBES,
+    SLOW_A,
+    SLOW_B,
+    levels,
+    probe_scales,
+    probe_values,
+)
+from tristock.search.model import SECONDARY_SPAN, SearchModel
+from tristock.spec import Spec
+
+I64 = NDArray[np.int64]
+F64 = NDArray[np.float64]
+
+
+@dataclass
+class Rows:
+    """A batch of combinations (op amp u, R1 i1, R2 i2, R3 i3, C1 j) with their scores.
+
+    Indices point into ``SearchModel.opamps``, ``.resistors`` and ``.capacitors``. ``p`` is
+    k·R3·C1 (s); ``share`` the timing share; ``primary`` and ``secondary`` the integer scores;
+    the rank key is (primary, secondary, stock codes).
+    """
+
+    u: I64
+    i1: I64
+    i2: I64
+    i3: I64
+    j: I64
+    p: F64
+    e_f: F64
+    e_a: F64
+    share: F64
+    cost: F64
+    lines: I64
+    primary: I64
+    secondary: I64
+
+    def __len__(self) -> int:
+        return len(self.u)
+
+    def take(self, mask: NDArray[np.bool_] | I64) -> Rows:
+        return Rows(**{name: getattr(self, name)[mask] for name in self.__dataclass_fields__})
+
+    @staticmethod
+    def concat(parts: list[Rows]) -> Rows:
+        return Rows(
+            **{
+                name: np.concatenate([getattr(p, name) for p in parts])
+                for name in Rows.__dataclass_fields__
+            }
+        )
+
+
+def empty_rows() -> Rows:
+    z = np.zeros(0, dtype=np.int64)
+    f = np.zeros(0)
+    return Rows(z, z, z, z, z, f, f, f, f, f, z, z, z)
+
+
+class RowPrediction:
+    """``predict`` for every row, with what the acceptance needs beside it.
+
+    ``models[u[n]]`` is row n's op amp, ``vh``/``vl`` its square levels (V). Rows whose
+    integrator error voltage Ve = Vos1 + Ib1·R3 reaches a square level cannot oscillate: their
+    values are NaN and ``valid`` is False. ``centred_offsets`` puts both offsets at 0 V (the
+    centre of the analysis's spread box) instead of the catalogued typical value.
+    """
+
+    def __init__(
+        self,
+        models: Sequence[OpAmpModel],
+        u: I64,
+        values: tuple[F64, F64, F64, F64],
+        vh: F64,
+        vl: F64,
+        *,
+        slew_scale: F64 | float = 1.0,
+        delay_scale: F64 | float = 1.0,
+        centred_offsets: bool = False,
+    ) -> None:
+        def col(name: str) -> F64:
+            return np.array([getattr(x, name) for x in models], dtype=np.float64)[u]
+
+        r1, r2, r3, c1 = values
+        self.vh, self.vl = vh, vl
+        vos1 = np.zeros(len(u)) if centred_offsets else col("offset_v")
+        vos2 = np.zeros(len(u)) if centred_offsets else col("comparator_offset_v")
+        ib1, ib2 = col("bias_a"), col("comparator_bias_a")
+        self.slew_rise = col("slew_rise_v_per_s") * slew_scale
+        self.slew_fall = col("slew_fall_v_per_s") * slew_scale
+        self.ve = vos1 + ib1 * r3
+        ok = (vh - self.ve > 0) & (vl + self.ve > 0) & (vh > 0) & (vl > 0)
+        self.valid = ok
+        self.k = r1 / r2
+        self.p = self.k * r3 * c1
+        out = Prediction(*(np.full(len(u), np.nan) for _ in Prediction._fields))
+        if ok.any():
+            part = predict(
+                r1[ok],
+                r2[ok],
+                r3[ok],
+                c1[ok],
+                vh[ok],
+                vl[ok],
+                slew_rise=self.slew_rise[ok],
+                slew_fall=self.slew_fall[ok],
+                delay=(col("delay_s") * delay_scale)[ok],
+                gbw=col("gbw_hz")[ok],
+                vos1=vos1[ok],
+                ib1=ib1[ok],
+                vos2=vos2[ok],
+                ib2=ib2[ok],
+            )
+            for name in Prediction._fields:
+                getattr(out, name)[ok] = np.asarray(getattr(part, name))
+        self.pred = out
+
+    @classmethod
+    def nominal(
+        cls, model: SearchModel, u: I64, values: tuple[F64, F64, F64, F64]
+    ) -> RowPrediction:
+        """At nominal values, rails and 25 °C, the op amp as catalogued."""
+        vh = np.array([o.vh for o in model.opamps])[u]
+        vl = np.array([o.vl for o in model.opamps])[u]
+        return cls([o.model for o in model.opamps], u, values, vh, vl)
+
+    def peak_v(self) -> F64:
+        """The largest |triangle - reference| (V): what C1 holds."""
+        p = self.pred
+        return np.asarray(
+            np.fmax(np.abs(np.asarray(p.peak_high_v)), np.abs(np.asarray(p.peak_low_v)))
+        )
+
+    def accepted(self, spec: Spec, cap_voltage: F64) -> NDArray[np.bool_]:
+        """Bands, the model's ground and C1's rating (module docstring)."""
+        with np.errstate(invalid="ignore"):
+            rated = cap_voltage >= self.peak_v() * (1 + spec.triangle.tolerance_pct / 100)
+        return np.asarray(
+            self.in_bands(spec) & self.inside_model(spec.limits.max_timing_share) & rated
+        )
+
+    @property
+    def timing_share(self) -> F64:
+        """1 - T_ideal/T with T_ideal = (VH + VL)²·P/(a·b), a = VH - Ve, b = VL + Ve: the
+        period of the same drives with instant switching."""
+        span = self.vh + self.vl
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ideal = span * span * self.p / ((self.vh - self.ve) * (self.vl + self.ve))
+            return np.asarray(1.0 - ideal / np.asarray(self.pred.period_s))
+
+    def inside_model(self, max_share: float) -> NDArray[np.bool_]:
+        """The loop is inside the model's ground (module docstring)."""
+        p = self.pred
+        rc = self.p / self.k  # R3·C1; the ramps' slopes are b/RC (rising) and a/RC (falling)
+        with np.errstate(invalid="ignore"):
+            slew_ok = (self.vl + self.ve <= self.slew_rise * rc) & (
+                self.vh - self.ve <= self.slew_fall * rc
+            )
+            swing_ok = (np.asarray(p.peak_high_v) < self.vh) & (np.asarray(p.peak_low_v) > -self.vl)
+            share_ok = self.timing_share <= max_share
+        return np.asarray(self.valid & slew_ok & swing_ok & share_ok)
+
+    def in_bands(self, spec: Spec) -> NDArray[np.bool_]:
+        (fa, fb), (aa, ab) = spec.frequency_band_ln, spec.amplitude_band_ln
+        with np.errstate(invalid="ignore", divide="ignore"):
+            e_f = np.log(np.asarray(self.pred.frequency_hz) / spec.target.target_hz)
+            e_a = np.log(np.asarray(self.pred.amplitude_vpp) / spec.triangle.amplitude_vpp)
+            return np.asarray((e_f >= fa) & (e_f <= fb) & (e_a >= aa) & (e_a <= ab))
+
+
+def probe_extremes(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> F64:
+    """Frequency and amplitude at the box points of ``search.guarantee.PROBES`` per row, as
+    columns (f fast, f slow A, f slow B, A big, A small)."""
+    models = [o.model for o in model.opamps]
+    out = []
+    for probe in PROBES:
+        vh, vl = levels(model, u, probe)
+        slew, delay = probe_scales(probe)
+        rp = RowPrediction(
+            models,
+            u,
+            probe_values(model, probe, i1, i2, i3, j),
+            vh,
+            vl,
+            slew_scale=slew,
+            delay_scale=delay,
+            centred_offsets=True,
+        )
+        field = "frequency_hz" if probe in (FAST, SLOW_A, SLOW_B) else "amplitude_vpp"
+        out.append(np.asarray(getattr(rp.pred, field)))
+    return np.stack(out, axis=1)
+
+
+def evaluate(
+    model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64, *, coupled: bool = True
+) -> Rows:
+    """Score combinations with the full model and keep those the spec accepts (module
+    docstring). ``coupled=False`` leaves stock and cost to the CP-SAT engine."""
+    spec, res, cap = model.spec, model.resistors, model.capacitors
+    boards = model.boards
+    rp = RowPrediction.nominal(
+        model, u, (res.value[i1], res.value[i2], res.value[i3], cap.value[j])
+    )
+    with np.errstate(invalid="ignore", divide="ignore"):
+        e_f = np.log(np.asarray(rp.pred.frequency_hz) / spec.target.target_hz)
+        e_a = np.log(np.asarray(rp.pred.amplitude_vpp) / spec.triangle.amplitude_vpp)
+    share = rp.timing_share
+    ok = rp.accepted(spec, cap.voltage[j])
+
+    # Stock: every position a stock code fills takes one piece per board.
+    same12, same13, same23 = i1 == i2, i1 == i3, i2 == i3
+    if coupled:
+        ok &= res.stock[i1] >= boards * (1 + same12 + same13)
+        ok &= res.stock[i2] >= boards * (1 + same12 + same23)
+        ok &= res.stock[i3] >= boards * (1 + same13 + same23)
+    lines = (3 + ~same12 + (~same13 & ~same23)).astype(np.int64)
+    u_cost = np.array([o.part.cost_per_board for o in model.opamps])[u]
+    cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j]
+    if coupled and spec.limits.max_cost is not None:
+        ok &= cost <= spec.limits.max_cost + 1e-12
+
+    _guard_bounds(model, u, rp)
+    keep = np.flatnonzero(ok)
+    if spec.limits.guarantee == "worst_case" and len(keep):
+        probes = probe_extremes(model, *(x[keep] for x in (u, i1, i2, i3, j)))
+        (fa, fb), (aa, ab) = model.band_f, model.band_a
+        f_t, a_t = spec.target.target_hz, spec.triangle.amplitude_vpp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            pf, pa = np.log(probes[:, :3] / f_t), np.log(probes[:, 3:] / a_t)
+        inside = np.all((pf >= fa) & (pf <= fb), axis=1)
+        inside &= np.all((pa >= aa) & (pa <= ab), axis=1)
+        keep = keep[inside]
+
+    u_term = np.array([model.opamp_term(o) for o in model.opamps], dtype=np.int64)[u]
+    primary = (
+        u_term
+        + model.resistor_term(i1)
+        + model.resistor_term(i2)
+        + model.resistor_term(i3)
+        + model.capacitor_term(j)
+        + model.row_term(np.nan_to_num(e_f), np.nan_to_num(e_a), np.nan_to_num(share))
+        - model.shared_line_credit() * (5 - lines)
+    )
+    rows = Rows(
+        u=u,
+        i1=i1,
+        i2=i2,
+        i3=i3,
+        j=j,
+        p=rp.p,
+        e_f=e_f,
+        e_a=e_a,
+        share=share,
+        cost=cost,
+        lines=lines,
+        primary=primary,
+        secondary=model.secondary(np.nan_to_num(e_f), cost),
+    )
+    return rows.take(keep)
+
+
+def _guard_bounds(model: SearchModel, u: I64, rp: RowPrediction) -> None:
+    """Hold every row the full model evaluated to the bounds that windowed it: if one falls
+    outside, the completeness argument has failed and ``model.bounds_violated`` withdraws
+    every proof (cheap insurance against a model change that breaks a monotonicity)."""
+    n = np.flatnonzero(rp.valid)
+    if len(n) == 0:
+        return
+    loop = model.loops(u[n])
+    k, p = rp.k[n], rp.p[n]
+    t = period_bounds(loop, k, p)
+    a = amplitude_bounds(loop, k, p, p)
+    period = np.asarray(rp.pred.period_s)[n]
+    amp = np.asarray(rp.pred.amplitude_vpp)[n]
+    slack = 1e-9
+    inside = (period >= t.lo * (1 - slack)) & (period <= t.hi * (1 + slack))
+    inside &= (amp >= a.lo * (1 - slack)) & (amp <= a.hi * (1 + slack))
+    if not inside.all():
+        model.bounds_violated = True
+
+
+def rank_key(model: SearchModel, rows: Rows, n: int) -> tuple[int, int, str, str, str, str, str]:
+    """Total order of candidates: primary score, secondary score, then stock codes."""
+    return (
+        int(rows.primary[n]),
+        int(rows.secondary[n]),
+        model.opamps[rows.u[n]].part.id,
+        model.resistors.parts[rows.i1[n]].id,
+        model.resistors.parts[rows.i2[n]].id,
+        model.resistors.parts[rows.i3[n]].id,
+        model.capacitors.parts[rows.j[n]].id,
+    )
+
+
+def best(model: SearchModel, rows: Rows, top: int) -> Rows:
+    """The ``top`` best rows in rank order (exact: ties resolved by the full key)."""
+    if len(rows) == 0:
+        return rows
+    combos = np.stack([rows.u, rows.i1, rows.i2, rows.i3, rows.j], axis=1)
+    _, first = np.unique(combos, axis=0, return_index=True)
+    if len(first) < len(rows):
+        rows = rows.take(np.sort(first))
+    if len(rows) > top:
+        score = rows.primary * SECONDARY_SPAN + rows.secondary
+        kth = np.partition(score, top - 1)[top - 1]
+        rows = rows.take(score <= kth)
+    order = sorted(range(len(rows)), key=lambda n: rank_key(model, rows, n))[:top]
+    return rows.take(np.array(order, dtype=np.int64))
