@@ -7,7 +7,7 @@ import math
 from typing import Any
 
 from tristock.analysis import Distribution, analyse
-from tristock.checks import Warning, check
+from tristock.checks import DoesNotOscillate, Warning, check, oscillation_failure
 from tristock.circuit import Oscillator, Prediction
 from tristock.design import Design, rails_from_supply
 from tristock.results import PartOut
@@ -48,7 +48,11 @@ def analysis_report(
 
     A tuned spec has no frequency target: the board (at its wiper, on its range) is analysed
     against its own nominal frequency with a ±50 % band, as the tuned search reports its
-    candidates, so the yield counts the amplitude band only."""
+    candidates, so the yield counts the amplitude band only.
+
+    Raises DoesNotOscillate (a ValueError) for a loop that cannot oscillate on the spec's
+    rails: its figures would describe nothing."""
+    require_oscillation(spec, design)
     if spec.tuning is not None:
         from tristock.tuning import _proxy_at
 
@@ -64,6 +68,18 @@ def analysis_report(
             for w in warnings_for(design, spec)
         ],
     }
+
+
+def require_oscillation(spec: Spec, design: Design) -> None:
+    """Raise DoesNotOscillate, saying why, when ``design`` cannot oscillate on the spec's
+    nominal rails (its output cannot swing past the reference, an error voltage reaches a
+    square level, or a threshold lies beyond the integrator's swing)."""
+    try:
+        reason = oscillation_failure(design.oscillator(rails_from_supply(spec.supply)))
+    except ValueError as err:  # the circuit refuses to build: square levels, error voltage
+        reason = f"the loop cannot oscillate: {err}"
+    if reason is not None:
+        raise DoesNotOscillate(reason)
 
 
 def simulation_report(

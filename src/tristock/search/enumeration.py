@@ -158,7 +158,8 @@ def _yield_bound(
     """
     res, cap = model.resistors, model.capacitors
     v12 = model.variance(res.tol[i1]) + model.variance(res.tol[i2])
-    v3c = float(model.variance(res.tol.min()) + model.variance(cap.tol.min())) if len(cap) else 0
+    has_r3_c1 = len(res) > 0 and len(cap) > 0  # an empty table has no finest part
+    v3c = float(model.variance(res.tol.min()) + model.variance(cap.tol.min())) if has_r3_c1 else 0
     fa, fb = model.band_f
     centre = np.full(len(i1), 0.5 * (fa + fb))
     var_f = o.gain**2 * (v12 + v3c) + sum(o.rail_f) ** 2 / 12
