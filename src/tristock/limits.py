@@ -39,5 +39,9 @@ DEFAULT_TIME_LIMIT_S: Final = 5.0
 PORT: Final = (0, 65535)
 WORKERS: Final = (1, 64)
 
+#: Widest value range of one generated table (``catalog generate``), in decades: 1 mΩ..1 TΩ or
+#: 1 pF..1 kF; a wider range is a typo, and would take minutes to write.
+GENERATE_MAX_DECADES: Final = 15
+
 #: Largest spec or DESIGN file read (bytes); a real one is a few hundred bytes.
 SPEC_FILE_MAX_BYTES: Final = 1 << 20

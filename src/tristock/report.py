@@ -70,16 +70,27 @@ def analysis_report(
     }
 
 
-def require_oscillation(spec: Spec, design: Design) -> None:
+def require_oscillation(spec: Spec, design: Design, *, corners: bool = True) -> None:
     """Raise DoesNotOscillate, saying why, when ``design`` cannot oscillate on the spec's
-    nominal rails (its output cannot swing past the reference, an error voltage reaches a
-    square level, or a threshold lies beyond the integrator's swing)."""
-    try:
-        reason = oscillation_failure(design.oscillator(rails_from_supply(spec.supply)))
-    except ValueError as err:  # the circuit refuses to build: square levels, error voltage
-        reason = f"the loop cannot oscillate: {err}"
-    if reason is not None:
-        raise DoesNotOscillate(reason)
+    nominal rails or (with ``corners``) at either rail corner, 1 ± supply tolerance: its
+    output cannot swing past the reference, an error voltage reaches a square level, or a
+    threshold lies beyond the integrator's swing."""
+    t = spec.supply.tolerance_pct / 100 if corners else 0.0
+    for scale, where in ((1.0, ""), (1 - t, "low"), (1 + t, "high")):
+        if where and t == 0:
+            continue
+        rails = rails_from_supply(spec.supply, scale)
+        try:
+            reason = oscillation_failure(design.oscillator(rails))
+        except ValueError as err:  # the circuit refuses to build: square levels, error voltage
+            reason = f"the loop cannot oscillate: {err}"
+        if reason is not None:
+            corner = (
+                f" (at the {where} supply corner, rails {rails.v_pos:.4g}/{rails.v_neg:.4g} V)"
+                if where
+                else ""
+            )
+            raise DoesNotOscillate(reason + corner)
 
 
 def simulation_report(

@@ -8,8 +8,10 @@ an unknown id, 1 when the table is broken or the disk refuses the write.
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 
+from tristock import limits
 from tristock.catalog import CatalogError, load_catalog, parse_number, set_stock
 from tristock.cli import exits
 from tristock.cli.exits import UsageError
@@ -27,6 +29,16 @@ def _table_text(args: argparse.Namespace) -> str:
     from tristock.tablegen import generate_capacitors, generate_resistors
 
     low, high = _value(args.low, "--from"), _value(args.high, "--to")
+    if not 0 < low <= high:
+        raise UsageError(
+            f"tristock catalog generate: --from {args.low} and --to {args.high}: "
+            "need 0 < from <= to"
+        )
+    if math.log10(high / low) > limits.GENERATE_MAX_DECADES:
+        raise UsageError(
+            f"tristock catalog generate: --from {args.low} --to {args.high} spans more than "
+            f"{limits.GENERATE_MAX_DECADES} decades"
+        )
     if args.kind == "resistor":
         return generate_resistors(
             args.series,

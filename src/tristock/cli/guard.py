@@ -119,19 +119,18 @@ def crash_dir() -> Path:
     return base_dir / "tristock"
 
 
-def _write_log(directory: Path, name: str, text: str) -> Path:
+def _write_log(directory: Path, prefix: str, text: str) -> Path:
+    """A new private file ``prefix*.log`` in ``directory`` (never one that exists)."""
     directory.mkdir(parents=True, exist_ok=True)
-    path = directory / name
-    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    fd, name = tempfile.mkstemp(prefix=prefix, suffix=".log", dir=directory)
     with os.fdopen(fd, "w", encoding="utf-8") as stream:
         stream.write(text)
-    return path
+    return Path(name)
 
 
 def crash_report(err: BaseException, argv: list[str]) -> str:
     """Write ``err``'s traceback to a crash log; the one line to show the user."""
-    stamp = time.strftime("%Y%m%d-%H%M%S")
-    name = f"crash-{stamp}-{os.getpid()}.log"
+    prefix = f"crash-{time.strftime('%Y%m%d-%H%M%S')}-{os.getpid()}-"
     text = (
         f"tristock {__version__} crashed at {time.strftime('%Y-%m-%d %H:%M:%S %z')}\n"
         f"python {platform.python_version()} on {platform.platform()}\n"
@@ -142,7 +141,7 @@ def crash_report(err: BaseException, argv: list[str]) -> str:
     fallback = Path(tempfile.gettempdir()) / f"tristock-{user}"
     for directory in (crash_dir(), fallback):
         try:
-            path = _write_log(directory, name, text)
+            path = _write_log(directory, prefix, text)
         except OSError:
             continue
         return f"tristock: internal error ({summary}); details written to {path}"

@@ -8,7 +8,6 @@ rest is dropped quietly and the command keeps its own exit code.
 from __future__ import annotations
 
 import contextlib
-import io
 import json
 import math
 import os
@@ -41,7 +40,7 @@ def json_text(data: Any) -> str:
 def _stop_writing(stream: IO[str]) -> None:
     """Point the stream's descriptor at the null device, so the interpreter's final flush of
     what is still buffered cannot fail again."""
-    with contextlib.suppress(OSError, ValueError, io.UnsupportedOperation):
+    with contextlib.suppress(OSError, ValueError, AttributeError):  # no descriptor: nothing to do
         null = os.open(os.devnull, os.O_WRONLY)
         os.dup2(null, stream.fileno())
         os.close(null)

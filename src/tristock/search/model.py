@@ -285,7 +285,10 @@ def _opamp_terms(index: int, part: OpAmp, spec: Spec) -> tuple[OpAmpTerms | None
             f"{part.supply_min_v:g}..{part.supply_max_v:g} V"
         )
     model = OpAmpModel.from_part(part)
-    vh, vl = square_levels(rails, model)
+    try:
+        vh, vl = square_levels(rails, model)
+    except ValueError:  # it raises where the output cannot pass the reference on one side
+        vh = vl = 0.0
     if vh <= 0 or vl <= 0:
         return None, "its output cannot swing both sides of the reference on these rails"
     c = (vh + vl) ** 2 / (vh * vl)
