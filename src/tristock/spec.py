@@ -9,20 +9,23 @@ from __future__ import annotations
 import json
 import math
 import tomllib
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
 from pydantic import (
-    AfterValidator,
     BaseModel,
     BeforeValidator,
     ConfigDict,
     Field,
+    GetCoreSchemaHandler,
+    GetJsonSchemaHandler,
     StrictBool,
     ValidationError,
     field_validator,
     model_validator,
 )
+from pydantic_core import core_schema
 
 from tristock import limits
 from tristock.eseries import parse_series
@@ -62,16 +65,33 @@ def _number(value: Any) -> Any:
     return value
 
 
-def _at_least(least: float, unit: str, why: str) -> AfterValidator:
-    """A floor below which the physics has nothing to work with; the message says why."""
-    suffix = f" {unit}" if unit else ""
+@dataclass(frozen=True)
+class _AtLeast:
+    """A floor below which the physics has nothing to work with: the message says why, and
+    the JSON schema carries it as ``minimum``."""
 
-    def check(value: float) -> float:
-        if not value >= least:
-            raise ValueError(f"{value:g}{suffix} is below {least:g}{suffix}: {why}")
+    least: float
+    unit: str
+    why: str
+
+    def check(self, value: float) -> float:
+        if not value >= self.least:
+            suffix = f" {self.unit}" if self.unit else ""
+            raise ValueError(f"{value:g}{suffix} is below {self.least:g}{suffix}: {self.why}")
         return value
 
-    return AfterValidator(check)
+    def __get_pydantic_core_schema__(
+        self, source: Any, handler: GetCoreSchemaHandler
+    ) -> core_schema.CoreSchema:
+        return core_schema.no_info_after_validator_function(self.check, handler(source))
+
+    def __get_pydantic_json_schema__(
+        self, schema: core_schema.CoreSchema, handler: GetJsonSchemaHandler
+    ) -> dict[str, Any]:
+        return {**handler(schema), "minimum": self.least}
+
+
+_at_least = _AtLeast  # reads as a constraint where it is used
 
 
 def _auto_or_count(value: Any) -> Any:
@@ -214,9 +234,12 @@ class LimitsSpec(_Section):
     """Optional limits on the choice. Defaults: any series, class I and film dielectrics,
     1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99."""
 
-    max_cost: Annotated[Number, _at_least(MIN_COST, "", _COST_WHY)] | None = Field(
-        None, le=MAX_COST, description="per board, the catalog's currency (0.0001..1e6)"
-    )
+    max_cost: (
+        Annotated[
+            float, Field(le=MAX_COST), BeforeValidator(_number), _at_least(MIN_COST, "", _COST_WHY)
+        ]
+        | None
+    ) = Field(None, description="per board, the catalog's currency (0.0001..1e6)")
     resistor_series: tuple[str, ...] | None = Field(
         None,
         description="R1..R3 values must belong to one of these E-series (a part labelled with the "
@@ -279,10 +302,13 @@ class TrimSpec(_Section):
 
     enabled: StrictBool = True
     margin_pct: Number = Field(10.0, ge=0, lt=50, description="travel kept free at each end, %")
-    drift_after_trim_pct: Annotated[Number, _at_least(MIN_BAND_PCT, "%", _BAND_WHY)] | None = Field(
-        None,
-        le=50,
-        description="allowed drift over temperature after trimming at 25 °C, ±% (0.01..50)",
+    drift_after_trim_pct: (
+        Annotated[
+            float, Field(le=50), BeforeValidator(_number), _at_least(MIN_BAND_PCT, "%", _BAND_WHY)
+        ]
+        | None
+    ) = Field(
+        None, description="allowed drift over temperature after trimming at 25 °C, ±% (0.01..50)"
     )
 
 

@@ -74,32 +74,35 @@ def known_failure(err: Exception) -> int | None:
     return None
 
 
-def _dispatch(argv: list[str], watch: InterruptWatch) -> int:
-    """Parse and run one command; an expected failure becomes its exit code."""
+def _parse_and_run(argv: list[str], watch: InterruptWatch) -> int:
     try:
-        try:
-            args = build_parser().parse_args(argv)
-        except SystemExit as done:  # --help and --version print, then ask to exit
-            return done.code if isinstance(done.code, int) else exits.OK
+        args = build_parser().parse_args(argv)
+    except SystemExit as done:  # --help and --version print, then ask to exit
+        return done.code if isinstance(done.code, int) else exits.OK
+    if args.handler == "serve":  # the server handles Ctrl-C and SIGTERM itself, gracefully
         return _run(args)
-    except KeyboardInterrupt:
-        watch.report()
-        return exits.INTERRUPTED
-    except Exception as err:
-        code = known_failure(err)
-        if code is None:
-            raise
-        return code
+    with watch:
+        return _run(args)
 
 
 def main(argv: list[str] | None = None) -> int:
     """The ``tristock`` command; returns the exit code (see ``tristock.cli.exits``)."""
     arguments = list(sys.argv[1:] if argv is None else argv)
+    watch = InterruptWatch()
     try:
-        with InterruptWatch() as watch:
-            return _dispatch(arguments, watch)
-    except KeyboardInterrupt:  # a second Ctrl-C while the first was being handled
+        try:
+            return _parse_and_run(arguments, watch)
+        except KeyboardInterrupt:
+            watch.report()
+            return exits.INTERRUPTED
+        except Exception as err:
+            try:
+                code = known_failure(err)
+            except Exception:  # even reporting it failed: treat it as unforeseen
+                code = None
+            if code is None:  # the last resort: a crash log, never a traceback
+                complain(crash_report(err, arguments))
+                return exits.FAILED
+            return code
+    except KeyboardInterrupt:  # a second Ctrl-C while the first was being reported
         return exits.INTERRUPTED
-    except Exception as err:  # the last resort: a crash log, never a traceback
-        complain(crash_report(err, arguments))
-        return exits.FAILED
