@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 import math
 import tomllib
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
@@ -18,17 +17,15 @@ from pydantic import (
     BeforeValidator,
     ConfigDict,
     Field,
-    GetCoreSchemaHandler,
-    GetJsonSchemaHandler,
     StrictBool,
     ValidationError,
     field_validator,
     model_validator,
 )
-from pydantic_core import core_schema
 
 from tristock import limits
 from tristock.eseries import parse_series
+from tristock.fieldtypes import AtLeast, Count, Number, auto_or_count, strict_number
 
 #: Design-practice bounds on a timing or threshold resistor (ohm). Below about 1 kΩ the op amp's
 #: output current and the resistor's power become the limit; above about 1 MΩ bias currents,
@@ -39,75 +36,6 @@ DEFAULT_RESISTANCE_MAX_OHM = 1_000_000.0
 #: Dielectrics allowed in the integrator when the spec names none: class I ceramic and films.
 DEFAULT_DIELECTRICS = ("C0G", "NP0", "PP", "PET", "PPS", "PEN", "PS")
 
-
-def _kind_of(value: Any) -> str:
-    """What a refused value is, in the words of a TOML or JSON author."""
-    if isinstance(value, bool):
-        return f"a boolean ({str(value).lower()})"
-    if isinstance(value, str):
-        text = value if len(value) <= 40 else value[:37] + "..."
-        return f"a string ({text!r})"
-    if isinstance(value, dict):
-        return "a table"
-    if isinstance(value, list | tuple):
-        return "an array"
-    if value is None:
-        return "null"
-    if isinstance(value, int | float):
-        return repr(value)
-    return type(value).__name__
-
-
-def _number(value: Any) -> Any:
-    """Only integers and floats are numbers: a boolean or a string is refused, never read."""
-    if isinstance(value, bool) or not isinstance(value, int | float):
-        raise ValueError(f"expected a number, got {_kind_of(value)}")
-    return value
-
-
-@dataclass(frozen=True)
-class _AtLeast:
-    """A floor below which the physics has nothing to work with: the message says why, and
-    the JSON schema carries it as ``minimum``."""
-
-    least: float
-    unit: str
-    why: str
-
-    def check(self, value: float) -> float:
-        if not value >= self.least:
-            suffix = f" {self.unit}" if self.unit else ""
-            raise ValueError(f"{value:g}{suffix} is below {self.least:g}{suffix}: {self.why}")
-        return value
-
-    def __get_pydantic_core_schema__(
-        self, source: Any, handler: GetCoreSchemaHandler
-    ) -> core_schema.CoreSchema:
-        return core_schema.no_info_after_validator_function(self.check, handler(source))
-
-    def __get_pydantic_json_schema__(
-        self, schema: core_schema.CoreSchema, handler: GetJsonSchemaHandler
-    ) -> dict[str, Any]:
-        return {**handler(schema), "minimum": self.least}
-
-
-_at_least = _AtLeast  # reads as a constraint where it is used
-
-
-def _auto_or_count(value: Any) -> Any:
-    """``"auto"`` or a whole number; booleans, other strings and fractions refused."""
-    if value == "auto" and isinstance(value, str):
-        return value
-    number = not isinstance(value, bool) and isinstance(value, int | float)
-    if not number or not float(value).is_integer():
-        raise ValueError(f'expected "auto" or a count 1..8, got {_kind_of(value)}')
-    return int(value)
-
-
-#: A finite number (TOML/JSON integer or float; booleans and strings refused).
-Number = Annotated[float, BeforeValidator(_number)]
-#: A whole number (an integral float such as 100.0 is accepted; booleans and strings refused).
-Count = Annotated[int, BeforeValidator(_number)]
 
 #: The floors below which a value is physics the model cannot use (see README, "The spec").
 MIN_RAIL_V = 0.1
@@ -143,7 +71,7 @@ class _Section(BaseModel):
 class SupplySpec(_Section):
     """Supply rails (V). ``negative_v = 0`` means a single supply with a reference node."""
 
-    positive_v: Annotated[Number, _at_least(MIN_RAIL_V, "V", _RAIL_WHY)] = Field(
+    positive_v: Annotated[Number, AtLeast(MIN_RAIL_V, "V", _RAIL_WHY)] = Field(
         le=60, description="positive rail (V), at least 0.1 V"
     )
     negative_v: Number = Field(
@@ -186,10 +114,10 @@ class SupplySpec(_Section):
 class FrequencySpec(_Section):
     """Target frequency (Hz) and the acceptance band, ± % around it."""
 
-    target_hz: Annotated[Number, _at_least(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(
+    target_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(
         le=10e6, description="target frequency (Hz), 1 mHz..10 MHz"
     )
-    tolerance_pct: Annotated[Number, _at_least(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
+    tolerance_pct: Annotated[Number, AtLeast(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
         le=50, description="acceptance band, ± % (0.01..50)"
     )
 
@@ -197,10 +125,10 @@ class FrequencySpec(_Section):
 class TriangleSpec(_Section):
     """Target triangle peak-to-peak amplitude (V) and its band, ± %."""
 
-    amplitude_vpp: Annotated[Number, _at_least(MIN_AMPLITUDE_VPP, "V", _AMPLITUDE_WHY)] = Field(
+    amplitude_vpp: Annotated[Number, AtLeast(MIN_AMPLITUDE_VPP, "V", _AMPLITUDE_WHY)] = Field(
         description="triangle peak-to-peak (V), at least 1 mV"
     )
-    tolerance_pct: Annotated[Number, _at_least(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
+    tolerance_pct: Annotated[Number, AtLeast(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
         le=50, description="acceptance band, ± % (0.01..50)"
     )
 
@@ -234,9 +162,13 @@ class LimitsSpec(_Section):
     """Optional limits on the choice. Defaults: any series, class I and film dielectrics,
     1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99."""
 
+    # An optional field's bounds sit inside its type, so the JSON schema shows them.
     max_cost: (
         Annotated[
-            float, Field(le=MAX_COST), BeforeValidator(_number), _at_least(MIN_COST, "", _COST_WHY)
+            float,
+            Field(le=MAX_COST),
+            BeforeValidator(strict_number),
+            AtLeast(MIN_COST, "", _COST_WHY),
         ]
         | None
     ) = Field(None, description="per board, the catalog's currency (0.0001..1e6)")
@@ -304,7 +236,10 @@ class TrimSpec(_Section):
     margin_pct: Number = Field(10.0, ge=0, lt=50, description="travel kept free at each end, %")
     drift_after_trim_pct: (
         Annotated[
-            float, Field(le=50), BeforeValidator(_number), _at_least(MIN_BAND_PCT, "%", _BAND_WHY)
+            float,
+            Field(le=50),
+            BeforeValidator(strict_number),
+            AtLeast(MIN_BAND_PCT, "%", _BAND_WHY),
         ]
         | None
     ) = Field(
@@ -315,14 +250,14 @@ class TrimSpec(_Section):
 class TuningSpec(_Section):
     """A front-panel pot tunes low_hz..high_hz, with one timing capacitor per range."""
 
-    low_hz: Annotated[Number, _at_least(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
-    high_hz: Annotated[Number, _at_least(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
+    low_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
+    high_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
     control: Literal["series", "divider"] = Field(
         "series",
         description="series: pot in series with R3; divider: pot as a divider feeding R3, "
         "with an end-stop resistor R4",
     )
-    ranges: Annotated[Literal["auto"] | int, BeforeValidator(_auto_or_count)] = Field(
+    ranges: Annotated[Literal["auto"] | int, BeforeValidator(auto_or_count)] = Field(
         "auto", description='"auto" (fewest) or a count 1..8'
     )
     overlap_pct: Number = Field(5.0, ge=0, le=50, description="overlap of neighbouring ranges, %")
