@@ -210,6 +210,9 @@ def test_exit_3_still_writes_the_json(tmp_path: Path) -> None:
     data = strict_json(r.out)
     assert data["candidates"] == [] and data["infeasible"]["reasons"]
     assert data["search"]["proven_optimal"] is True
+    line = one_line(r.err)
+    assert line.startswith("tristock design: no design meets the spec: ")
+    assert data["infeasible"]["reasons"][0] in line
 
 
 def test_reoptimise_with_no_design_exits_3(tmp_path: Path) -> None:

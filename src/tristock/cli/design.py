@@ -209,6 +209,9 @@ def run(args: argparse.Namespace) -> int:
         if plot is not None and result.candidates:
             text += f"\nplot written to {plot}"
         emit(text)
+    if code == exits.NO_DESIGN and args.json:  # the reasons are in the JSON; say so here too
+        reasons = result.infeasible.reasons if result.infeasible else []
+        complain("tristock design: no design meets the spec: " + "; ".join(reasons))
     if code == exits.FAILED:
         complain("tristock design: the search was cut by its time limit before it found a design")
     return code

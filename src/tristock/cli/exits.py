@@ -24,7 +24,8 @@ exit codes:
        that cannot oscillate, a search cut by its time limit before it found a design, a
        write the disk refused, an internal error (one line and the path of a crash log)
   2    bad input: an argument, the spec or the design file (one line naming the field)
-  3    no design meets the spec: the reasons are printed; --json still writes the answer
+  3    no design meets the spec: the reasons are printed (--json: the answer is still
+       written, and the reasons also go to stderr in one line)
   130  interrupted (Ctrl-C): "interrupted" on stderr and no result
 """
 

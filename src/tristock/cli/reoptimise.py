@@ -92,6 +92,9 @@ def run(args: argparse.Namespace) -> int:
         emit_json(result.model_dump(mode="json"))
     else:
         emit(render_reoptimise(result))
+    if code == exits.NO_DESIGN and args.json:  # the reasons are in the JSON; say so here too
+        reasons = result.infeasible.reasons if result.infeasible else []
+        complain("tristock reoptimise: no design meets the spec: " + "; ".join(reasons))
     if code == exits.FAILED:
         complain("tristock reoptimise: the search was cut by its time limit before it found one")
     return code
