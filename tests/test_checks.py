@@ -12,7 +12,7 @@ import math
 
 import pytest
 
-from tristock.checks import Warning, check
+from tristock.checks import Warning, check, oscillation_failure
 from tristock.circuit import OpAmpModel, Oscillator, Rails
 from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.units import format_value
@@ -174,3 +174,16 @@ def test_warning_is_frozen_and_codes_are_stable() -> None:
     # no check fires on a perfect op amp with nothing attached
     ideal = OpAmpModel(1.0, 1.0, math.inf, math.inf, 0.0, math.inf)
     assert check(osc(ideal)) == []
+
+
+def test_oscillation_failure_at_the_threshold_limit() -> None:
+    """Thresholds VL·k and -VH·k must lie inside the integrator's swing +VH/-VL (offsets zero):
+    with VH = 11 V and VL = 9 V (asymmetric headroom) the limit is k < VL/VH = 9/11, from the
+    threshold formulas in circuit.predict."""
+    amp = dataclasses.replace(AMP, swing_pos_v=1.0, swing_neg_v=3.0, offset_v=0.0, bias_a=0.0)
+    limit = 9.0 / 11.0
+    assert oscillation_failure(osc(amp, r1=27e3 * limit * 0.999)) is None
+    reason = oscillation_failure(osc(amp, r1=27e3 * limit * 1.001))
+    assert reason is not None and "lower threshold" in reason and "0.8182" in reason
+    reason = oscillation_failure(osc(r1=270e3))  # R1/R2 = 10, symmetric ±11 V
+    assert reason is not None and "upper threshold" in reason and "R1/R2 is 10" in reason

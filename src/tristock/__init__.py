@@ -6,14 +6,16 @@ The library is organised one idea per module:
 - ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables (``catalog`` gathers
   the ``stock`` package: columns, CSV dialect, rows, tables, safe stock writes, write
   journal, lock), table generation; ``atomicio``: the one atomic file writer.
-- ``spec``: the engineer's targets (pydantic models shared by CLI and API).
+- ``spec``: the engineer's targets (pydantic models shared by CLI and API); ``limits``: the
+  ranges of a run's settings; ``examples``: the bundled specs and demo catalog.
 - ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
   time-domain verification; plots; JSON reports.
 - ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.
 - ``results``: result models shared by ``--json`` and the HTTP API.
-- ``cli``, ``serve``: the ``tristock`` command and the HTTP server entry.
+- ``cli`` (a package, one module per command group), ``serve``: the ``tristock`` command
+  and the HTTP server entry.
 """
 
 __version__ = "0.1.0"

@@ -290,3 +290,30 @@ def check(
             )
         )
     return out
+
+
+class DoesNotOscillate(ValueError):
+    """A loop that cannot oscillate; the message says why, with numbers."""
+
+
+def oscillation_failure(osc: Oscillator) -> str | None:
+    """Why ``osc`` cannot oscillate, or None when it can.
+
+    The integrator's output stops at the square levels +VH and -VL (the same op amp, the same
+    swing). Rising (square low) the triangle must reach the upper threshold
+    th_hi = VL·k + s below VH; falling, the lower threshold th_lo = -VH·k + s above -VL
+    (k = R1/R2, s the comparator offset shift; see ``circuit.predict``). Otherwise the
+    integrator saturates first and the loop latches: with s = 0 that is k >= min(VH/VL, VL/VH).
+    """
+    p = osc.prediction()
+    vh, vl = float(p.square_high_v), -float(p.square_low_v)
+    th_hi, th_lo = float(p.threshold_high_v), float(p.threshold_low_v)
+    if th_hi < vh and th_lo > -vl:
+        return None
+    side, threshold, limit = ("upper", th_hi, vh) if th_hi >= vh else ("lower", th_lo, -vl)
+    return (
+        f"the loop cannot oscillate: its {side} threshold {_v(threshold, 'V')} lies beyond the "
+        f"integrator's output swing {_v(limit, 'V')} (from the reference), so the integrator "
+        f"saturates before the comparator flips; R1/R2 is {osc.k:.4g}, it must stay below "
+        f"{min(vh / vl, vl / vh):.4g} on these rails"
+    )

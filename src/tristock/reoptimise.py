@@ -99,6 +99,8 @@ def reoptimise(
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``."""
     t0 = time.perf_counter()
+    if spec.trimmed or spec.tuning is not None:  # the fixed-design search below ignores RV1
+        raise SpecError(["spec: re-optimising a trimmed or tuned design is not supported yet"])
     if boards is not None or top is not None:
         # Validated again (model_copy would not): a bad override is named like a bad spec field.
         data = spec.model_dump()
@@ -142,16 +144,20 @@ def reoptimise(
     full_model_passes = False
     if all(pid in catalog for pid in current.values()):
         original = resolve(current, catalog)
-        result = analyse(original, spec, samples=samples)
-        p = result.to_dict()["predicted"]
-        predicted = Predicted(**p)
-        if passes(spec, original, result):
-            full_model_passes = True
+        try:
+            result = analyse(original, spec, samples=samples)
+        except ValueError as err:  # it cannot even be built on these rails
+            reasons.append(f"the full model cannot analyse it: {err}")
         else:
-            reasons.append(
-                f"the full model puts it outside the spec ({p['frequency_hz']:.5g} Hz, "
-                f"{p['amplitude_vpp']:.4g} Vpp, guarantee {spec.limits.guarantee})"
-            )
+            p = result.to_dict()["predicted"]
+            predicted = Predicted(**p)
+            if passes(spec, original, result):
+                full_model_passes = True
+            else:
+                reasons.append(
+                    f"the full model puts it outside the spec ({p['frequency_hz']:.5g} Hz, "
+                    f"{p['amplitude_vpp']:.4g} Vpp, guarantee {spec.limits.guarantee})"
+                )
 
     reduced = dataclasses.replace(
         catalog,

@@ -7,7 +7,7 @@ import math
 from typing import Any
 
 from tristock.analysis import Distribution, analyse
-from tristock.checks import Warning, check
+from tristock.checks import DoesNotOscillate, Warning, check, oscillation_failure
 from tristock.circuit import Oscillator, Prediction
 from tristock.design import Design, rails_from_supply
 from tristock.results import PartOut
@@ -48,7 +48,11 @@ def analysis_report(
 
     A tuned spec has no frequency target: the board (at its wiper, on its range) is analysed
     against its own nominal frequency with a ±50 % band, as the tuned search reports its
-    candidates, so the yield counts the amplitude band only."""
+    candidates, so the yield counts the amplitude band only.
+
+    Raises DoesNotOscillate (a ValueError) for a loop that cannot oscillate on the spec's
+    rails: its figures would describe nothing."""
+    require_oscillation(spec, design)
     if spec.tuning is not None:
         from tristock.tuning import _proxy_at
 
@@ -64,6 +68,29 @@ def analysis_report(
             for w in warnings_for(design, spec)
         ],
     }
+
+
+def require_oscillation(spec: Spec, design: Design, *, corners: bool = True) -> None:
+    """Raise DoesNotOscillate, saying why, when ``design`` cannot oscillate on the spec's
+    nominal rails or (with ``corners``) at either rail corner, 1 ± supply tolerance: its
+    output cannot swing past the reference, an error voltage reaches a square level, or a
+    threshold lies beyond the integrator's swing."""
+    t = spec.supply.tolerance_pct / 100 if corners else 0.0
+    for scale, where in ((1.0, ""), (1 - t, "low"), (1 + t, "high")):
+        if where and t == 0:
+            continue
+        rails = rails_from_supply(spec.supply, scale)
+        try:
+            reason = oscillation_failure(design.oscillator(rails))
+        except ValueError as err:  # the circuit refuses to build: square levels, error voltage
+            reason = f"the loop cannot oscillate: {err}"
+        if reason is not None:
+            corner = (
+                f" (at the {where} supply corner, rails {rails.v_pos:.4g}/{rails.v_neg:.4g} V)"
+                if where
+                else ""
+            )
+            raise DoesNotOscillate(reason + corner)
 
 
 def simulation_report(

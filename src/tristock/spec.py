@@ -10,11 +10,22 @@ import json
 import math
 import tomllib
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    StrictBool,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
 
+from tristock import limits
 from tristock.eseries import parse_series
+from tristock.fieldtypes import AtLeast, Count, Number, auto_or_count, strict_number
 
 #: Design-practice bounds on a timing or threshold resistor (ohm). Below about 1 kΩ the op amp's
 #: output current and the resistor's power become the limit; above about 1 MΩ bias currents,
@@ -32,22 +43,58 @@ DEFAULT_MAX_TIMING_SHARE = 0.10
 DEFAULT_DIELECTRICS = ("C0G", "NP0", "PP", "PET", "PPS", "PEN", "PS")
 
 
+#: The floors below which a value is physics the model cannot use (see README, "The spec").
+MIN_RAIL_V = 0.1
+MIN_FREQUENCY_HZ = 1e-3
+MIN_AMPLITUDE_VPP = 1e-3
+MIN_BAND_PCT = 0.01
+MIN_COST = 1e-4
+MAX_COST = 1e6
+
+_RAIL_WHY = (
+    "a rail that close to the reference leaves the square no room to swing on that side "
+    "(output stages stop tens of millivolts short of their rails)"
+)
+_FREQUENCY_WHY = (
+    "below 1 mHz a period exceeds 16 minutes, beyond any R3·C1 a stock room holds, and "
+    "capacitor leakage sets the timing"
+)
+_AMPLITUDE_WHY = (
+    "below 1 mV the thresholds are of the size of op-amp offsets (0.1..10 mV), so the amplitude "
+    "is no longer set by R1/R2"
+)
+_BAND_WHY = (
+    "±100 ppm is what a few degrees of drift of common parts (25..100 ppm/°C) move an RC "
+    "timing; no stock-room RC oscillator holds a narrower band"
+)
+_COST_WHY = "the search counts cost in steps of 0.0001 currency units"
+
+
 class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
 
 
 class SupplySpec(_Section):
     """Supply rails (V). ``negative_v = 0`` means a single supply with a reference node."""
 
-    positive_v: float = Field(gt=0, le=60, description="positive rail (V)")
-    negative_v: float = Field(le=0, ge=-60, description="negative rail (V); 0 = single supply")
-    tolerance_pct: float = Field(0.0, ge=0, le=20, description="rail tolerance, ± % (default 0)")
-    reference_v: float | None = Field(
+    positive_v: Annotated[Number, AtLeast(MIN_RAIL_V, "V", _RAIL_WHY)] = Field(
+        le=60, description="positive rail (V), at least 0.1 V"
+    )
+    negative_v: Number = Field(
+        le=0, ge=-60, description="negative rail (V); 0 = single supply, else at most -0.1 V"
+    )
+    tolerance_pct: Number = Field(0.0, ge=0, le=20, description="rail tolerance, ± % (default 0)")
+    reference_v: Number | None = Field(
         None, description="single supply only: reference node (V); default mid-rail"
     )
 
     @model_validator(mode="after")
     def _reference_inside_rails(self) -> SupplySpec:
+        if -MIN_RAIL_V < self.negative_v < 0:
+            raise ValueError(
+                f"negative_v {self.negative_v:g} V: give 0 (single supply) or at most "
+                f"-{MIN_RAIL_V:g} V; {_RAIL_WHY}"
+            )
         if self.reference_v is not None:
             if self.negative_v != 0:
                 raise ValueError("reference_v is for a single supply (negative_v = 0) only")
@@ -73,22 +120,30 @@ class SupplySpec(_Section):
 class FrequencySpec(_Section):
     """Target frequency (Hz) and the acceptance band, ± % around it."""
 
-    target_hz: float = Field(gt=0, le=10e6, description="target frequency (Hz)")
-    tolerance_pct: float = Field(gt=0, le=50, description="acceptance band, ± %")
+    target_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(
+        le=10e6, description="target frequency (Hz), 1 mHz..10 MHz"
+    )
+    tolerance_pct: Annotated[Number, AtLeast(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
+        le=50, description="acceptance band, ± % (0.01..50)"
+    )
 
 
 class TriangleSpec(_Section):
     """Target triangle peak-to-peak amplitude (V) and its band, ± %."""
 
-    amplitude_vpp: float = Field(gt=0, description="triangle peak-to-peak (V)")
-    tolerance_pct: float = Field(gt=0, le=50, description="acceptance band, ± %")
+    amplitude_vpp: Annotated[Number, AtLeast(MIN_AMPLITUDE_VPP, "V", _AMPLITUDE_WHY)] = Field(
+        description="triangle peak-to-peak (V), at least 1 mV"
+    )
+    tolerance_pct: Annotated[Number, AtLeast(MIN_BAND_PCT, "%", _BAND_WHY)] = Field(
+        le=50, description="acceptance band, ± % (0.01..50)"
+    )
 
 
 class EnvironmentSpec(_Section):
     """Operating temperature range (°C); default 25..25 (bench)."""
 
-    temp_min_c: float = Field(25.0, ge=-60, le=200)
-    temp_max_c: float = Field(25.0, ge=-60, le=200)
+    temp_min_c: Number = Field(25.0, ge=-60, le=200)
+    temp_max_c: Number = Field(25.0, ge=-60, le=200)
 
     @model_validator(mode="after")
     def _ordered(self) -> EnvironmentSpec:
@@ -102,7 +157,7 @@ class EnvironmentSpec(_Section):
 class BuildSpec(_Section):
     """Build quantity: stock must cover ``boards`` x the uses of each part on a board."""
 
-    boards: int = Field(1, ge=1, le=10_000_000)
+    boards: Count = Field(1, ge=limits.BOARDS[0], le=limits.BOARDS[1])
 
 
 Guarantee = Literal["nominal", "worst_case", "yield"]
@@ -113,7 +168,16 @@ class LimitsSpec(_Section):
     """Optional limits on the choice. Defaults: any series, class I and film dielectrics,
     1 kΩ to 1 MΩ, any op amp, guarantee ``nominal``, min_yield 0.99, max_timing_share 0.10."""
 
-    max_cost: float | None = Field(None, gt=0, description="per board, the catalog's currency")
+    # An optional field's bounds sit inside its type, so the JSON schema shows them.
+    max_cost: (
+        Annotated[
+            float,
+            Field(le=MAX_COST),
+            BeforeValidator(strict_number),
+            AtLeast(MIN_COST, "", _COST_WHY),
+        ]
+        | None
+    ) = Field(None, description="per board, the catalog's currency (0.0001..1e6)")
     resistor_series: tuple[str, ...] | None = Field(
         None,
         description="R1..R3 values must belong to one of these E-series (a part labelled with the "
@@ -122,12 +186,12 @@ class LimitsSpec(_Section):
     dielectrics: tuple[str, ...] = Field(
         DEFAULT_DIELECTRICS, description="allowed C1 dielectrics; default class I and films"
     )
-    resistance_min_ohm: float = Field(DEFAULT_RESISTANCE_MIN_OHM, gt=0)
-    resistance_max_ohm: float = Field(DEFAULT_RESISTANCE_MAX_OHM, gt=0)
+    resistance_min_ohm: Number = Field(DEFAULT_RESISTANCE_MIN_OHM, gt=0)
+    resistance_max_ohm: Number = Field(DEFAULT_RESISTANCE_MAX_OHM, gt=0)
     opamps: tuple[str, ...] | None = Field(None, description="restrict U1 to these ids")
     guarantee: Guarantee = "nominal"
-    min_yield: float = Field(0.99, gt=0, le=1)
-    max_timing_share: float = Field(
+    min_yield: Number = Field(0.99, gt=0, le=1)
+    max_timing_share: Number = Field(
         DEFAULT_MAX_TIMING_SHARE,
         gt=0,
         le=0.4,
@@ -171,7 +235,7 @@ class RankingSpec(_Section):
     """How candidates are ordered (see README, "Ranking") and how many are returned."""
 
     by: RankBy = "balanced"
-    top: int = Field(10, ge=1, le=100)
+    top: Count = Field(10, ge=limits.TOP[0], le=limits.TOP[1])
 
 
 class TrimSpec(_Section):
@@ -181,25 +245,35 @@ class TrimSpec(_Section):
     reach the target with the wiper inside [margin, 1 - margin] of its travel.
     """
 
-    enabled: bool = True
-    margin_pct: float = Field(10.0, ge=0, lt=50, description="travel kept free at each end, %")
-    drift_after_trim_pct: float | None = Field(
-        None, gt=0, le=50, description="allowed drift over temperature after trimming at 25 °C, ±%"
+    enabled: StrictBool = True
+    margin_pct: Number = Field(10.0, ge=0, lt=50, description="travel kept free at each end, %")
+    drift_after_trim_pct: (
+        Annotated[
+            float,
+            Field(le=50),
+            BeforeValidator(strict_number),
+            AtLeast(MIN_BAND_PCT, "%", _BAND_WHY),
+        ]
+        | None
+    ) = Field(
+        None, description="allowed drift over temperature after trimming at 25 °C, ±% (0.01..50)"
     )
 
 
 class TuningSpec(_Section):
     """A front-panel pot tunes low_hz..high_hz, with one timing capacitor per range."""
 
-    low_hz: float = Field(gt=0, le=10e6)
-    high_hz: float = Field(gt=0, le=10e6)
+    low_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
+    high_hz: Annotated[Number, AtLeast(MIN_FREQUENCY_HZ, "Hz", _FREQUENCY_WHY)] = Field(le=10e6)
     control: Literal["series", "divider"] = Field(
         "series",
         description="series: pot in series with R3; divider: pot as a divider feeding R3, "
         "with an end-stop resistor R4",
     )
-    ranges: Literal["auto"] | int = Field("auto", description='"auto" (fewest) or a count 1..8')
-    overlap_pct: float = Field(5.0, ge=0, le=50, description="overlap of neighbouring ranges, %")
+    ranges: Annotated[Literal["auto"] | int, BeforeValidator(auto_or_count)] = Field(
+        "auto", description='"auto" (fewest) or a count 1..8'
+    )
+    overlap_pct: Number = Field(5.0, ge=0, le=50, description="overlap of neighbouring ranges, %")
 
     @field_validator("ranges")
     @classmethod
@@ -281,7 +355,8 @@ class SpecError(ValueError):
 def _describe(err: ValidationError) -> list[str]:
     lines = []
     for e in err.errors():
-        path = ".".join(str(p) for p in e["loc"]) or "spec"
+        # union members add their type ("function-before[...]") to the path: not a field
+        path = ".".join(str(p) for p in e["loc"] if "[" not in str(p)) or "spec"
         msg = e["msg"].removeprefix("Value error, ")
         if e["type"] == "extra_forbidden":
             msg = "unknown key (check the spelling)"
@@ -298,15 +373,31 @@ def parse_spec(data: dict[str, Any]) -> Spec:
 
 
 def read_mapping(path: Path) -> dict[str, Any]:
-    """Read a TOML (``.toml``) or JSON (anything else) file into a mapping."""
-    text = path.read_text(encoding="utf-8")
+    """Read a TOML (``.toml``) or JSON (anything else) file into a mapping.
+
+    Every way a file can be unusable is a SpecError naming it: missing or unreadable (the
+    OSError's reason), larger than ``limits.SPEC_FILE_MAX_BYTES``, not UTF-8, not valid TOML or
+    JSON, nested too deeply to parse, or not a table at the top level.
+    """
+    path = Path(path)
     try:
-        if path.suffix.lower() == ".toml":
-            data: Any = tomllib.loads(text)
-        else:
-            data = json.loads(text)
-    except (tomllib.TOMLDecodeError, json.JSONDecodeError) as err:
-        raise SpecError([f"{path}: not valid {path.suffix.lstrip('.') or 'JSON'}: {err}"]) from None
+        with path.open("rb") as stream:
+            raw = stream.read(limits.SPEC_FILE_MAX_BYTES + 1)
+    except OSError as err:
+        raise SpecError([f"{path}: {err.strerror or err}"]) from None
+    if len(raw) > limits.SPEC_FILE_MAX_BYTES:
+        raise SpecError([f"{path}: larger than {limits.SPEC_FILE_MAX_BYTES} bytes; not a spec"])
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise SpecError([f"{path}: not UTF-8 text (byte {err.start})"]) from None
+    kind = "TOML" if path.suffix.lower() == ".toml" else "JSON"
+    try:
+        data: Any = tomllib.loads(text) if kind == "TOML" else json.loads(text)
+    except RecursionError:
+        raise SpecError([f"{path}: not valid {kind}: nested too deeply"]) from None
+    except ValueError as err:  # the decoders' errors, and integers of over 4300 digits
+        raise SpecError([f"{path}: not valid {kind}: {err}"]) from None
     if not isinstance(data, dict):
         raise SpecError([f"{path}: the top level must be a table/object"])
     return data

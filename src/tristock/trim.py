@@ -102,7 +102,7 @@ def _rows(
     dn_pair, up_pair, _, _ = pair_spread(model, u, i1, i2)
     t_c = cap.tol[j] + cap.extra_band[j]
     # Widest R3 window: R_eff's tolerance is at least the smaller of RV1's and the finest R3's.
-    t_r = np.minimum(t_rv, res.tol.min())
+    t_r = np.minimum(t_rv, res.tol.min() if len(res) else np.inf)  # no resistors: no rows
     dn0 = dn_pair + gain * (np.log1p(t_c) + np.log1p(t_r))
     up0 = up_pair - gain * (np.log1p(-t_c) + np.log1p(-t_r))
     r_hi = ((x + d) * np.exp(-dn0) - d) / (k * c) - margin * rv

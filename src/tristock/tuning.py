@@ -348,6 +348,7 @@ def _choose_caps(
     solver = cp_model.CpSolver()
     solver.parameters.max_time_in_seconds = max(time_limit_s, 0.05)
     solver.parameters.num_workers = 1
+    solver.parameters.catch_sigint_signal = False  # Ctrl-C must reach the caller
     status = solver.solve(model)
     if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
         return None

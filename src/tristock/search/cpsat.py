@@ -131,6 +131,7 @@ def _solve_top(
         solver = cp_model.CpSolver()
         solver.parameters.max_time_in_seconds = remaining
         solver.parameters.num_workers = 2
+        solver.parameters.catch_sigint_signal = False  # Ctrl-C must reach the caller
         status = solver.solve(cp)
         if status == cp_model.INFEASIBLE:
             break

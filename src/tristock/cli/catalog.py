@@ -1,0 +1,103 @@
+"""``tristock catalog check | generate | set-stock``: the part tables.
+
+``check`` exits 0 when every table loads, 1 listing every problem (``file:line: column:
+message``). ``generate`` exits 2 for values the catalog would refuse. ``set-stock`` exits 2 for
+an unknown id, 1 when the table is broken or the disk refuses the write.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+
+from tristock import limits
+from tristock.catalog import CatalogError, load_catalog, parse_number, set_stock
+from tristock.cli import exits
+from tristock.cli.exits import UsageError
+from tristock.cli.output import emit, write_quietly
+
+
+def _value(text: str, option: str) -> float:
+    try:
+        return parse_number(text)
+    except ValueError as err:
+        raise UsageError(f"tristock catalog generate: {option}: {err}") from None
+
+
+def _table_text(args: argparse.Namespace) -> str:
+    from tristock.tablegen import generate_capacitors, generate_resistors
+
+    low, high = _value(args.low, "--from"), _value(args.high, "--to")
+    if not 0 < low <= high:
+        raise UsageError(
+            f"tristock catalog generate: --from {args.low} and --to {args.high}: "
+            "need 0 < from <= to"
+        )
+    if math.log10(high / low) > limits.GENERATE_MAX_DECADES:
+        raise UsageError(
+            f"tristock catalog generate: --from {args.low} --to {args.high} spans more than "
+            f"{limits.GENERATE_MAX_DECADES} decades"
+        )
+    if args.kind == "resistor":
+        return generate_resistors(
+            args.series,
+            low,
+            high,
+            args.tolerance,
+            100.0 if args.tempco is None else args.tempco,
+            args.power,
+            args.package or "0603",
+            args.cost,
+            args.stock,
+            args.prefix or "R",
+        )
+    if not args.dielectric:
+        raise UsageError("tristock catalog generate: --dielectric is required for capacitors")
+    return generate_capacitors(
+        args.series,
+        low,
+        high,
+        args.dielectric,
+        args.tolerance,
+        args.tempco,
+        args.temp_band,
+        args.voltage,
+        args.package or "0805",
+        args.cost,
+        args.stock,
+        args.prefix or "C",
+    )
+
+
+def generate(args: argparse.Namespace) -> int:
+    from tristock.tablegen import write_table
+
+    try:
+        text = _table_text(args)
+    except (ValueError, CatalogError) as err:
+        reason = str(err).replace("\n", "; ")
+        raise UsageError(f"tristock catalog generate: {reason}") from None
+    if not args.output:
+        write_quietly(text, sys.stdout)
+        return exits.OK
+    try:
+        write_table(args.output, text, overwrite=args.force)
+    except FileExistsError:
+        raise UsageError(
+            f"tristock catalog generate: {args.output} exists (use --force to replace it)"
+        ) from None
+    emit(f"wrote {args.output}")
+    return exits.OK
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.action == "check":
+        catalog = load_catalog(args.dir)
+        emit(f"ok: {catalog!r}")
+        return exits.OK
+    if args.action == "generate":
+        return generate(args)
+    old = set_stock(args.dir, args.id, args.count)
+    emit(f"{args.id}: stock {old} -> {args.count}")
+    return exits.OK

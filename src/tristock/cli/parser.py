@@ -1,0 +1,198 @@
+"""The ``tristock`` argument parser: options, their ranges and help; nothing of the physics.
+
+Each command sets ``handler`` to the name of the module in ``tristock.cli`` that runs it (its
+``run(args)`` function); ``tristock.cli.app`` imports that module only when it is needed, so
+``--help`` and bad arguments answer without loading the search.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from typing import Any, NoReturn
+
+from tristock import __version__, limits
+from tristock.cli.exits import EPILOG, UsageError
+from tristock.cli.options import finite, seconds, text, whole
+from tristock.cli.output import write_quietly
+from tristock.examples import EXAMPLES
+
+Subparsers = argparse._SubParsersAction  # the type argparse gives add_subparsers' result
+
+RANKINGS = ("balanced", "frequency_error", "cost", "yield")
+ENGINES = ("cpsat", "enumerate")
+
+
+class _Parser(argparse.ArgumentParser):
+    """Errors become a UsageError (one line, exit 2); help survives a closed pipe."""
+
+    def error(self, message: str) -> NoReturn:
+        raise UsageError(f"{self.prog}: {message} (see --help)")
+
+    def _print_message(self, message: str, file: Any = None) -> None:
+        if message:
+            write_quietly(message, file or sys.stderr)
+
+
+def _add_count(
+    p: argparse.ArgumentParser,
+    flag: str,
+    bounds: tuple[int, int],
+    helptext: str,
+    default: int | None = None,
+) -> None:
+    """A whole-number option (or positional) with its range in the help."""
+    least, most = bounds
+    shown = f", default {default}" if default is not None else ""
+    p.add_argument(
+        flag,
+        type=whole(least, most),
+        default=default,
+        metavar="N" if flag.startswith("-") else flag.upper(),
+        help=f"{helptext} ({least}..{most}{shown})",
+    )
+
+
+def _command(sub: Subparsers, name: str, helptext: str) -> argparse.ArgumentParser:
+    return sub.add_parser(
+        name, help=helptext, epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+
+
+def _time_limit(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--time-limit",
+        type=seconds(limits.TIME_LIMIT_MAX_S),
+        default=limits.DEFAULT_TIME_LIMIT_S,
+        metavar="S",
+        help=f"seconds for the whole search, above 0, at most {limits.TIME_LIMIT_MAX_S:g} "
+        f"(default {limits.DEFAULT_TIME_LIMIT_S:g}); the full-model re-check comes on top",
+    )
+
+
+def _design(sub: Subparsers) -> None:
+    d = _command(sub, "design", "search the catalog for the best designs for a spec")
+    d.add_argument("spec", nargs="?", type=text("a spec file"), help="spec file (TOML or JSON)")
+    d.add_argument(
+        "--example",
+        nargs="?",
+        const=EXAMPLES[0],
+        choices=EXAMPLES,
+        help="a bundled example spec on the demo catalog: demo (default), trimmed, tuned",
+    )
+    d.add_argument(
+        "--plot", type=text("a file name"), help="tuned designs: rank 1's dial law (.png/.svg)"
+    )
+    d.add_argument(
+        "--catalog", type=text("a folder"), help="catalog folder (default with --example: the demo)"
+    )
+    _add_count(d, "--top", limits.TOP, "designs wanted; overrides ranking.top")
+    d.add_argument("--by", choices=RANKINGS, help="ranking (overrides ranking.by)")
+    d.add_argument(
+        "--engine", choices=ENGINES, default="enumerate", help="search engine (both are exact)"
+    )
+    _time_limit(d)
+    d.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    d.set_defaults(handler="design")
+
+
+def _one_design(sub: Subparsers) -> None:
+    a = _command(sub, "analyse", "nominal, worst case, yield, sensitivities of one design")
+    s = _command(sub, "simulate", "time-domain simulation of one design against the model")
+    for p in (a, s):
+        p.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
+        p.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+        p.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    _add_count(a, "--samples", limits.SAMPLES, "Monte Carlo samples", 20000)
+    _add_count(a, "--seed", limits.SEED, "Monte Carlo seed", 0)
+    a.add_argument(
+        "--distribution",
+        choices=["normal", "uniform"],
+        default="normal",
+        help="part spread: normal (tolerance = 3σ, truncated) or uniform",
+    )
+    a.set_defaults(handler="analyse")
+    s.add_argument("--plot", type=text("a file name"), help="write the waveforms (.png or .svg)")
+    _add_count(s, "--periods", limits.PERIODS, "settled periods measured", 10)
+    _add_count(s, "--max-points", limits.MAX_POINTS, "--json: samples per waveform", 4000)
+    s.set_defaults(handler="simulate")
+
+
+def _reoptimise(sub: Subparsers) -> None:
+    r = _command(sub, "reoptimise", "fewest part changes that bring a design back in spec")
+    r.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
+    r.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+    r.add_argument(
+        "--without",
+        action="append",
+        type=text("a stock code"),
+        metavar="ID",
+        help=f"part now unavailable (repeat, at most {limits.WITHOUT_MAX})",
+    )
+    _add_count(r, "--boards", limits.BOARDS, "planned build; overrides build.boards")
+    _add_count(r, "--top", limits.TOP, "designs wanted; overrides ranking.top")
+    _time_limit(r)
+    r.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    r.set_defaults(handler="reoptimise")
+
+
+def _catalog(sub: Subparsers) -> None:
+    c = _command(sub, "catalog", "check, generate or update part tables")
+    csub = c.add_subparsers(dest="catalog_command", required=True, parser_class=_Parser)
+    ck = csub.add_parser("check", help="validate every table of a catalog folder")
+    ck.add_argument("dir", type=text("a folder"))
+    ck.set_defaults(handler="catalog", action="check")
+
+    g = csub.add_parser("generate", help="write a resistor or capacitor table for an E-series")
+    g.add_argument("--kind", choices=["resistor", "capacitor"], required=True)
+    g.add_argument("--series", required=True, type=text("a series"), help="E3 .. E192")
+    g.add_argument("--from", dest="low", required=True, help="lowest value (e.g. 10, 4k7, 10p)")
+    g.add_argument("--to", dest="high", required=True, help="highest value (e.g. 1M, 10u)")
+    g.add_argument("--tolerance", type=finite, required=True, help="± %%")
+    g.add_argument("--tempco", type=finite, help="ppm/°C")
+    g.add_argument("--temp-band", type=finite, help="class II: ± %% over temperature")
+    g.add_argument("--dielectric", type=text("a dielectric"), help="C0G, PP, PET, X7R, ...")
+    g.add_argument("--voltage", type=finite, default=50.0, help="capacitors: rated V")
+    g.add_argument("--power", type=finite, default=0.1, help="resistors: rated W")
+    g.add_argument("--package", type=text("a package"), help="package name")
+    g.add_argument("--cost", type=finite, default=0.0, help="unit cost")
+    _add_count(g, "--stock", limits.STOCK, "pieces on hand of every row", 0)
+    g.add_argument("--prefix", type=text("a prefix"), help="stock-code prefix")
+    g.add_argument("--output", "-o", type=text("a file name"), help="file (default: stdout)")
+    g.add_argument("--force", action="store_true", help="replace an existing file")
+    g.set_defaults(handler="catalog", action="generate")
+
+    ss = csub.add_parser("set-stock", help="set the pieces on hand of one part (atomic)")
+    ss.add_argument("dir", type=text("a folder"))
+    ss.add_argument("id", type=text("a stock code"))
+    _add_count(ss, "count", limits.STOCK, "pieces on hand")
+    ss.set_defaults(handler="catalog", action="set-stock")
+
+
+def _serve(sub: Subparsers) -> None:
+    sv = _command(sub, "serve", "run the HTTP API (loopback only by default)")
+    sv.add_argument("--host", default="127.0.0.1", type=text("an address"), help="address")
+    _add_count(sv, "--port", limits.PORT, "TCP port; 0 picks a free one", 8000)
+    sv.add_argument("--catalog", type=text("a folder"), help="catalog folder (default: the demo)")
+    _add_count(sv, "--workers", limits.WORKERS, "server processes", 1)
+    sv.add_argument(
+        "--allow-open-writes",
+        action="store_true",
+        help="allow stock writes without a token when TRISTOCK_TOKEN is not set",
+    )
+    sv.set_defaults(handler="serve")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The whole ``tristock`` parser; ``args.handler`` names the command module to run."""
+    p = _Parser(
+        prog="tristock",
+        description="Pick stock-room parts for an op-amp triangle/square oscillator.",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("--version", action="version", version=f"tristock {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    for add in (_design, _one_design, _reoptimise, _catalog, _serve):
+        add(sub)
+    return p
