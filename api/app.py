@@ -13,6 +13,8 @@ from __future__ import annotations
 
 import argparse
 import json
+import logging
+import os
 import sys
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
@@ -30,6 +32,8 @@ from api.routers import analysis, catalog, design, health, problems
 from api.settings import Settings
 from api.store import CatalogStore
 from tristock import __version__
+
+log = logging.getLogger("tristock.api")
 
 OPENAPI_PATH = Path(__file__).with_name("openapi.json")
 REGENERATE = "python -m api.app --write-openapi"
@@ -90,10 +94,10 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
 def app_from_env() -> FastAPI:
     """Factory for uvicorn (``--factory``), called once in each worker: settings from the
     ``TRISTOCK_*`` environment (``tristock serve`` has validated them and set up logging)."""
-    import os
-
-    sys.setswitchinterval(float(os.environ.get("SVC_SWITCH", "0.005")))
-    return create_app(Settings.from_env(), supervised=True)
+    settings = Settings.from_env()
+    app = create_app(settings, supervised=True)
+    log.info("worker %d: app built (%d compute slots)", os.getpid(), settings.max_searches)
+    return app
 
 
 def openapi_document(app: FastAPI | None = None) -> dict[str, Any]:

@@ -19,6 +19,7 @@ from __future__ import annotations
 import asyncio
 import logging
 import multiprocessing
+import multiprocessing.connection
 import os
 import pickle
 import threading
@@ -82,8 +83,20 @@ def _ready() -> bool:
 
 
 def _start_child() -> None:
+    """In each child: lower its CPU priority, and end it when its worker process is gone
+    (a worker that dies without shutting its pool down, e.g. on ``kill -9``, would otherwise
+    leave children waiting forever on a queue they hold both ends of)."""
     if hasattr(os, "nice"):
         os.nice(COMPUTE_NICENESS)
+    parent = multiprocessing.parent_process()
+    if parent is not None and parent.sentinel is not None:
+        sentinel = parent.sentinel
+
+        def orphaned() -> None:
+            multiprocessing.connection.wait([sentinel])
+            os._exit(0)
+
+        threading.Thread(target=orphaned, name="tristock-orphan-watch", daemon=True).start()
 
 
 def _context() -> multiprocessing.context.BaseContext:

@@ -1,8 +1,9 @@
 """Connection guards for ``tristock serve`` (uvicorn, h11).
 
 - :class:`DeadlineH11Protocol`: a connection must deliver a complete request (headers and
-  body) within ``request_timeout_s`` of opening or of its previous answer; otherwise it gets a
-  408 problem (when no answer is under way) and is closed. uvicorn's ``timeout_keep_alive``
+  body) within ``request_timeout_s`` of opening or of its previous answer; otherwise it is
+  closed, after a 408 problem when part of a request had arrived (and no answer is under
+  way). uvicorn's ``timeout_keep_alive``
   only covers idle connections between requests, not a request that stops half way.
   Malformed HTTP gets a 400 problem instead of uvicorn's plain text.
 - :func:`watch_supervisor`: a worker whose supervisor died (``kill -9``) stops serving
@@ -98,14 +99,14 @@ class DeadlineH11Protocol(H11Protocol):
             return  # a complete request is being answered: not ours to cut
         cycle = self.cycle
         answering = cycle is not None and cycle.response_started and not cycle.response_complete
-        if not answering:
-            self.transport.write(
-                _raw_problem(
-                    408, f"no complete request within {self.request_timeout_s:g} s; closing"
-                )
-            )
-        peer = f"{self.client[0]}:{self.client[1]}" if self.client else "a client"
-        log.info("closed the connection of %s: no complete request in time", peer)
+        started = self.conn.their_state is h11.SEND_BODY or bool(self.conn.trailing_data[0])
+        if started and not answering:
+            # a request began and stalled: say so (an idle connection just closes, as
+            # keep-alive does, so a client sending on it at that moment is not confused)
+            detail = f"no complete request within {self.request_timeout_s:g} s; closing"
+            self.transport.write(_raw_problem(408, detail))
+            peer = f"{self.client[0]}:{self.client[1]}" if self.client else "a client"
+            log.info("closed the connection of %s: request incomplete in time", peer)
         self.transport.close()
 
 

@@ -203,7 +203,8 @@ class ComputeSlots:
         state.running += 1
         try:
             with anyio.CancelScope(shield=True):
-                return await self.pool.call(fn, *args)
+                result = await self.pool.call(fn, *args)
+            return result
         finally:
             state.running -= 1
             state.done += 1

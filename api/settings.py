@@ -1,10 +1,10 @@
 """Service settings: where the catalog is, who may write stock, the request limits and the
 connection timeouts.
 
-Every field can be set from the environment as ``TRISTOCK_<NAME>`` (``TRISTOCK_CATALOG`` for
-``catalog_dir``); :meth:`Settings.from_env` turns bad values into one line naming the variable.
-``tristock serve`` validates them once before starting any worker. The table in
-``api/README.md`` lists each with its default and range (a test keeps the two in step).
+Every field can be set from the environment as ``TRISTOCK_<NAME>``; :meth:`Settings.from_env`
+turns bad values into one line naming each variable. ``tristock serve`` validates them once
+before starting any worker. The table in ``api/README.md`` lists each with its default and
+range (a test keeps the two in step).
 """
 
 from __future__ import annotations
@@ -15,7 +15,8 @@ from pathlib import Path
 from typing import Any, Final
 
 from pydantic import Field, ValidationError, field_validator, model_validator
-from pydantic_settings import BaseSettings, SettingsConfigDict
+from pydantic.fields import FieldInfo
+from pydantic_settings import BaseSettings, PydanticBaseSettingsSource, SettingsConfigDict
 
 #: Hard ceilings that appear in the OpenAPI schema; settings may only lower them.
 MAX_TOP: Final[int] = 50
@@ -40,7 +41,19 @@ def default_catalog_dir() -> Path:
     """The bundled demo stock room (same folder the CLI's ``--example`` uses)."""
     from tristock.cli import demo_catalog_dir
 
-    return demo_catalog_dir()
+    found: Path = demo_catalog_dir()
+    return found
+
+
+class _CatalogVariable(PydanticBaseSettingsSource):
+    """``TRISTOCK_CATALOG`` sets ``catalog_dir`` (the variable named like ``--catalog``)."""
+
+    def get_field_value(self, field: FieldInfo, field_name: str) -> tuple[Any, str, bool]:
+        return None, field_name, False
+
+    def __call__(self) -> dict[str, Any]:
+        value = os.environ.get(CATALOG_ENV)
+        return {} if value is None else {"catalog_dir": value}
 
 
 class Settings(BaseSettings):
@@ -60,14 +73,12 @@ class Settings(BaseSettings):
         env_prefix=ENV_PREFIX,
         frozen=True,
         extra="forbid",
-        validate_by_name=True,
         allow_inf_nan=False,
         validate_default=True,
     )
 
     catalog_dir: Path = Field(
         default_factory=default_catalog_dir,
-        validation_alias=CATALOG_ENV,
         description="catalog folder (default: the bundled demo)",
     )
     token: str | None = Field(
@@ -94,6 +105,18 @@ class Settings(BaseSettings):
     worker_healthcheck_s: int = Field(
         60, ge=1, le=3600, description="a worker silent this long is restarted"
     )
+
+    @classmethod
+    def settings_customise_sources(
+        cls,
+        settings_cls: type[BaseSettings],
+        init_settings: PydanticBaseSettingsSource,
+        env_settings: PydanticBaseSettingsSource,
+        dotenv_settings: PydanticBaseSettingsSource,
+        file_secret_settings: PydanticBaseSettingsSource,
+    ) -> tuple[PydanticBaseSettingsSource, ...]:
+        """Values given in code, then ``TRISTOCK_CATALOG``, then the other variables."""
+        return init_settings, _CatalogVariable(settings_cls), env_settings
 
     @field_validator("catalog_dir", mode="before")
     @classmethod
@@ -136,7 +159,7 @@ def env_name(field: str) -> str:
 def unknown_env_names(environ: dict[str, str] | None = None) -> list[str]:
     """``TRISTOCK_*`` variables that set no field (likely misspelt), sorted."""
     env = os.environ if environ is None else environ
-    known = {env_name(f) for f in Settings.model_fields}
+    known = {env_name(f) for f in Settings.model_fields} | {ENV_PREFIX + "CATALOG_DIR"}
     return sorted(k for k in env if k.upper().startswith(ENV_PREFIX) and k.upper() not in known)
 
 

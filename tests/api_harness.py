@@ -92,12 +92,12 @@ def server(
         stop(proc)
 
 
-def demo_design_body(n: int) -> dict[str, Any]:
+def demo_design_body(n: int, top: int | None = None) -> dict[str, Any]:
     """The bundled demo spec with its target moved by n·3 ppm: every n a distinct request, so
     none is answered from the answer cache (a cold search and full-model re-check)."""
     spec = tomllib.loads(example_spec_path().read_text(encoding="utf-8"))
     spec["frequency"]["target_hz"] *= 1 + 3e-6 * n
-    return {"spec": spec}
+    return {"spec": spec} if top is None else {"spec": spec, "top": top}
 
 
 @dataclass
@@ -113,24 +113,25 @@ class Saturation:
 
 
 async def _heavy_client(
-    http: httpx.AsyncClient, first: int, stop_at: float, codes: dict[str, int]
+    http: httpx.AsyncClient, first: int, stop_at: float, top: int | None, codes: dict[str, int]
 ) -> None:
     n = first
     while time.monotonic() < stop_at:
         try:
-            code = str((await http.post("/v1/design", json=demo_design_body(n))).status_code)
+            body = demo_design_body(n, top)
+            code = str((await http.post("/v1/design", json=body)).status_code)
         except httpx.HTTPError as err:
             code = type(err).__name__
         codes[code] = codes.get(code, 0) + 1
         n += 100_000
 
 
-async def _load(base: str, clients: int, seconds: float) -> dict[str, int]:
+async def _load(base: str, clients: int, seconds: float, top: int | None) -> dict[str, int]:
     codes: dict[str, int] = {}
     stop_at = time.monotonic() + seconds
     limits = httpx.Limits(max_connections=clients, max_keepalive_connections=clients)
     async with httpx.AsyncClient(base_url=base, timeout=300, limits=limits) as http:
-        await asyncio.gather(*(_heavy_client(http, i, stop_at, codes) for i in range(clients)))
+        await asyncio.gather(*(_heavy_client(http, i, stop_at, top, codes) for i in range(clients)))
     return codes
 
 
@@ -150,14 +151,20 @@ def _probe(base: str, stop_at: float, every_s: float, out: Saturation) -> None:
 
 
 def saturate(
-    base: str, clients: int, seconds: float, ramp_s: float = 3.0, every_s: float = 0.2
+    base: str,
+    clients: int,
+    seconds: float,
+    ramp_s: float = 3.0,
+    every_s: float = 0.2,
+    top: int | None = None,
 ) -> Saturation:
-    """Keep ``clients`` cold design requests in flight for ``seconds`` (each client sends its
-    next as soon as one is answered; from a separate process, so the probe does not share
-    its interpreter) and probe ``/health`` and a catalog read meanwhile, from ``ramp_s`` on."""
+    """Keep ``clients`` cold design requests (the demo spec, ``top`` designs) in flight for
+    ``seconds`` (each client sends its next as soon as one is answered; from a separate
+    process, so the probe does not share its interpreter) and probe ``/health`` and a catalog
+    read meanwhile, from ``ramp_s`` on."""
     out = Saturation(clients, seconds)
     load = subprocess.Popen(
-        [sys.executable, __file__, base, str(clients), str(seconds)],
+        [sys.executable, __file__, base, str(clients), str(seconds), str(top or 0)],
         stdout=subprocess.PIPE,
         text=True,
     )
@@ -181,6 +188,7 @@ def percentile(values: list[float], q: float) -> float:
 
 
 if __name__ == "__main__":
-    # The load half of saturate(): BASE CLIENTS SECONDS; prints the answer codes as JSON.
-    codes = asyncio.run(_load(sys.argv[1], int(sys.argv[2]), float(sys.argv[3])))
+    # The load half of saturate(): BASE CLIENTS SECONDS TOP; prints the answer codes as JSON.
+    base, clients, seconds, top = sys.argv[1], int(sys.argv[2]), float(sys.argv[3]), sys.argv[4]
+    codes = asyncio.run(_load(base, clients, seconds, int(top) or None))
     print(json.dumps(codes))

@@ -17,8 +17,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from api.app import REGENERATE, create_app, openapi_document, render_openapi
-from api.jsonout import StrictJSON
+from api.app import create_app
 from api.settings import Settings
 
 from tristock import cli

@@ -76,8 +76,8 @@ async def post_design(
     _check_top(settings, spec.ranking.top, where)
     limit = _time_limit(settings, body.time_limit_s)
     key = cache.key("design", generation, [spec.model_dump(mode="json"), body.engine, limit])
-    data = cache.get(key)
-    if data is None:
+    cached = cache.get(key)
+    if cached is None:
         with FieldProblem.from_value_errors(["body", "spec"]):
             data, rendered = await slots.run(
                 _designs, spec, slots.parcel(catalog), body.engine, limit
@@ -86,7 +86,7 @@ async def post_design(
             cache.put(key, data)
         hit = "miss"
     else:
-        rendered, hit = to_json_bytes(data), "hit"
+        data, rendered, hit = cached, to_json_bytes(cached), "hit"
     headers = {**_headers(data["search"]["proven_optimal"]), "X-Cache": hit}
     return RenderedJSON(rendered, headers=headers)
 

@@ -60,7 +60,6 @@ def serve(
     reach the workers through the environment. Raises ValueError (one line) on a bad value.
     """
     import uvicorn
-
     from api.settings import CATALOG_ENV, Settings, unknown_env_names
 
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
