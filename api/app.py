@@ -54,7 +54,9 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     compute processes at start-up and stops serving when the worker's supervisor dies (see
     ``api.connections.watch_supervisor``)."""
 
-    slots = ComputeSlots(settings.max_searches, settings.search_wait_s, settings.max_queue)
+    slots = ComputeSlots(
+        settings.max_searches, settings.search_wait_s, settings.max_queue, settings.compute_nice
+    )
 
     @asynccontextmanager
     async def lifespan(_: FastAPI) -> AsyncIterator[None]:

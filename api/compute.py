@@ -5,13 +5,12 @@ Why processes: the library's numpy work on small arrays holds the GIL, so comput
 would make the event loop wait for the GIL at every socket operation (and run one at a time).
 In children, the loop that serves ``/health`` and catalog reads only waits for the CPU.
 
-Children run at a lower CPU priority (``COMPUTE_NICENESS``) and start from a fork server
-that has imported the library once (spawn where fork is unavailable), so a new child is ready
-in milliseconds. A catalog travels as a
-:class:`Parcel` (pickled once per catalog, unpickled once per child and kept). Whatever a
-call raises comes back as itself when it can be pickled, otherwise as a RuntimeError naming
-it; a child that dies (a crash, the OOM killer) breaks the pool, which is replaced for the
-next call.
+Children run at a lower CPU priority (``niceness``) and start from a fork server that has
+imported the library once (spawn where fork is unavailable), so a new child is ready in
+milliseconds. A catalog travels as a :class:`Parcel` (pickled once per catalog, unpickled
+once per child and kept). Whatever a call raises comes back as itself when it can be pickled,
+otherwise as a RuntimeError naming it; a child that dies (a crash, the OOM killer) breaks the
+pool, which is replaced for the next call. A child whose worker is gone exits.
 """
 
 from __future__ import annotations
@@ -41,9 +40,6 @@ log = logging.getLogger("tristock.api")
 PRELOAD = ["api.routers.design", "api.routers.analysis"]
 #: Catalogs a child keeps (a reload makes a new one; the old is dropped after this many).
 KEPT_CATALOGS = 2
-#: Compute processes run this much nicer than the worker, so the CPU scheduler lets the
-#: event loop (``/health``, catalog reads) run first whenever it has something to do.
-COMPUTE_NICENESS = 10
 
 _opened: OrderedDict[str, Catalog] = OrderedDict()  # in a child: parcel token -> catalog
 
@@ -82,12 +78,12 @@ def _ready() -> bool:
     return True
 
 
-def _start_child() -> None:
-    """In each child: lower its CPU priority, and end it when its worker process is gone
-    (a worker that dies without shutting its pool down, e.g. on ``kill -9``, would otherwise
-    leave children waiting forever on a queue they hold both ends of)."""
-    if hasattr(os, "nice"):
-        os.nice(COMPUTE_NICENESS)
+def _start_child(niceness: int) -> None:
+    """In each child: lower its CPU priority by ``niceness``, and end it when its worker
+    process is gone (a worker that dies without shutting its pool down, e.g. on ``kill -9``,
+    would otherwise leave children waiting forever on a queue they hold both ends of)."""
+    if niceness and hasattr(os, "nice"):
+        os.nice(niceness)
     parent = multiprocessing.parent_process()
     if parent is not None and parent.sentinel is not None:
         sentinel = parent.sentinel
@@ -108,10 +104,13 @@ def _context() -> multiprocessing.context.BaseContext:
 
 
 class ProcessPool:
-    """A lazily started pool of ``processes`` children, replaced when it breaks."""
+    """A lazily started pool of ``processes`` children, replaced when it breaks; children run
+    ``niceness`` steps nicer than the worker, so the CPU scheduler lets the event loop
+    (``/health``, catalog reads) run first whenever it has something to do."""
 
-    def __init__(self, processes: int) -> None:
+    def __init__(self, processes: int, niceness: int = 10) -> None:
         self.processes = processes
+        self.niceness = niceness
         self._executor: ProcessPoolExecutor | None = None
         self._lock = threading.Lock()
         self._parcels: list[tuple[weakref.ref[Catalog], Parcel]] = []
@@ -120,7 +119,10 @@ class ProcessPool:
         with self._lock:
             if self._executor is None:
                 self._executor = ProcessPoolExecutor(
-                    self.processes, mp_context=_context(), initializer=_start_child
+                    self.processes,
+                    mp_context=_context(),
+                    initializer=_start_child,
+                    initargs=(self.niceness,),
                 )
             return self._executor
 

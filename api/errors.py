@@ -162,6 +162,9 @@ class FieldProblem(Exception):
         self.kind = kind
         super().__init__("; ".join(msg for _, msg in self.problems))
 
+    def __reduce__(self) -> tuple[type[FieldProblem], tuple[Any, ...]]:
+        return FieldProblem, (self.problems, self.kind)  # survives a trip from a process
+
     @staticmethod
     @contextmanager
     def from_value_errors(loc: Sequence[str | int]) -> Iterator[None]:

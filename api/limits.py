@@ -35,7 +35,7 @@ class ComputeBusy(ServiceProblem):
         why = (
             f"stayed busy for {waited_s:g} s"
             if waited_s > 0
-            else f"are busy and {queue} requests are waiting already"
+            else f"are busy and the queue is full ({queue} waiting)"
         )
         super().__init__(
             503,
@@ -146,13 +146,15 @@ class ComputeSlots:
     used by several test clients in turn never shares a primitive between loops.
     """
 
-    def __init__(self, slots: int, wait_s: float, max_queue: int = 16) -> None:
+    def __init__(self, slots: int, wait_s: float, max_queue: int = 16, niceness: int = 10) -> None:
         if slots < 1 or wait_s < 0 or max_queue < 0:
-            raise ValueError(f"slots {slots} (>= 1), wait_s {wait_s}, max_queue {max_queue} (>= 0)")
+            raise ValueError(
+                f"need slots >= 1, wait_s and max_queue >= 0: {slots, wait_s, max_queue}"
+            )
         self.slots = slots
         self.wait_s = wait_s
         self.max_queue = max_queue
-        self.pool = ProcessPool(slots)
+        self.pool = ProcessPool(slots, niceness)
         self._state: RunVar[_LoopSlots] = RunVar("tristock.compute_slots")
 
     def _current(self) -> _LoopSlots:
@@ -211,13 +213,11 @@ class ComputeSlots:
             state.admission.release()
 
     def status(self) -> dict[str, int]:
-        """Slots, calls running and waiting now, calls done and refused (this worker)."""
+        """Slots, calls running and waiting now, calls finished and refused (this worker)."""
         try:
             state = self._state.get()
-        except LookupError:
-            return {"slots": self.slots, "running": 0, "waiting": 0, "done": 0, "refused": 0}
-        except RuntimeError:  # not inside an event loop
-            return {"slots": self.slots, "running": 0, "waiting": 0, "done": 0, "refused": 0}
+        except (LookupError, RuntimeError):  # nothing run yet, or not inside an event loop
+            state = _LoopSlots(anyio.Semaphore(self.slots))
         return {
             "slots": self.slots,
             "running": state.running,

@@ -94,6 +94,7 @@ class Settings(BaseSettings):
     max_searches: int = Field(2, ge=1, le=64, description="compute requests at once per worker")
     search_wait_s: float = Field(2.0, ge=0, le=600, description="wait for a slot, then 503")
     max_queue: int = Field(16, ge=0, le=10_000, description="waiting beyond this: 503 at once")
+    compute_nice: int = Field(10, ge=0, le=19, description="compute processes' CPU niceness")
     max_samples: int = Field(MAX_SAMPLES, ge=1, le=MAX_SAMPLES, description="Monte Carlo cap")
     max_page: int = Field(MAX_PAGE, ge=1, le=MAX_PAGE, description="catalog items per page")
     cache_size: int = Field(256, ge=0, le=100_000, description="answers kept per worker; 0 off")

@@ -150,7 +150,7 @@ def test_busy_compute_is_503_with_retry_after(catalog_copy: Path) -> None:
         while c.get("/health").json()["compute"]["waiting"] < 1:
             time.sleep(0.01)
         r = c.post("/v1/design", content=b"not even json")  # refused before parsing
-        assert "1 requests are waiting" in problem(r, 503)["detail"]
+        assert "the queue is full (1 waiting)" in problem(r, 503)["detail"]
         waiter.join()
         health = c.get("/health")
         assert health.status_code == 200

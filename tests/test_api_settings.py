@@ -35,6 +35,7 @@ NON_DEFAULTS: dict[str, tuple[str, Any]] = {
     "max_searches": ("3", 3),
     "search_wait_s": ("0.25", 0.25),
     "max_queue": ("0", 0),
+    "compute_nice": ("0", 0),
     "max_samples": ("5000", 5000),
     "max_page": ("50", 50),
     "cache_size": ("0", 0),
@@ -127,18 +128,23 @@ def test_unknown_variables_are_found(env: pytest.MonkeyPatch) -> None:
     assert unknown_env_names() == ["TRISTOCK_MAX_SERCHES"]
 
 
+def _number(x: float) -> str:
+    return str(int(x)) if float(x).is_integer() else f"{x:g}"
+
+
 def _range(field: str) -> str:
     """The range a field accepts, as the README table writes it."""
-    bounds: dict[str, float] = {}
+    bounds: dict[str, str] = {}
     for item in Settings.model_fields[field].metadata:
         for kind in (annotated_types.Ge, annotated_types.Gt, annotated_types.Le):
             if isinstance(item, kind):
-                bounds[kind.__name__.lower()] = float(next(iter(vars(item).values())))
+                name = kind.__name__.lower()
+                bounds[name] = _number(getattr(item, name))
     if "ge" in bounds:
-        return f"{bounds['ge']:g} to {bounds['le']:g}"
+        return f"{bounds['ge']} to {bounds['le']}"
     if "le" in bounds:
-        return f"above {bounds['gt']:g}, at most {bounds['le']:g}"
-    return f"above {bounds['gt']:g}" if "gt" in bounds else ""
+        return f"above {bounds['gt']}, at most {bounds['le']}"
+    return f"above {bounds['gt']}" if "gt" in bounds else ""
 
 
 def test_readme_table_lists_every_setting_with_its_default_and_range() -> None:
@@ -150,7 +156,7 @@ def test_readme_table_lists_every_setting_with_its_default_and_range() -> None:
         if isinstance(info.default, bool):
             assert default == f"`{str(info.default).lower()}`", field
         elif isinstance(info.default, int | float):
-            assert default == f"`{info.default:g}`", field
+            assert default == f"`{_number(info.default)}`", field
             assert accepted == _range(field), field
         else:
             assert default and accepted, field  # written out in words
