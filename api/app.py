@@ -1,9 +1,12 @@
-"""The FastAPI app: ``create_app(settings)``, a module-level ``app`` configured from the
-environment, and ``python -m api.app --write-openapi`` to refresh the committed schema.
+"""The FastAPI app: ``create_app(settings)``, the factory ``app_from_env`` that uvicorn calls
+once per worker (``tristock serve``), and ``python -m api.app --write-openapi`` to refresh the
+committed schema. Importing this module builds no app and configures no logging.
 
-Middleware, outermost first: catch-all (generic JSON 500, traceback in the log only), then
-the body-size limit (413). Compute endpoints are plain ``def`` functions, so FastAPI runs them
-in its threadpool and the event loop stays free; ``ComputeSlots`` bounds how many run at once.
+Middleware, outermost first: catch-all (a generic 500 problem, traceback in the log only),
+the body-size limit (413), then the compute gate (503 at once when the compute queue is
+full). Compute endpoints are ``async`` and run their work in
+compute processes (``ComputeSlots``, ``api.compute``), so the event loop and FastAPI's
+threadpool (catalog reads, ``/health``) never wait for compute.
 """
 
 from __future__ import annotations
@@ -11,57 +14,98 @@ from __future__ import annotations
 import argparse
 import json
 import logging
+import os
 import sys
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 from pathlib import Path
 from typing import Any
 
 from fastapi import FastAPI
+from fastapi.routing import APIRoute
 
-from api import errors
+from api import errors, openapi
 from api.cache import AnswerCache
 from api.errors import CatchAll
-from api.limits import BodyLimit, ComputeSlots
-from api.routers import analysis, catalog, design, health
+from api.limits import BodyLimit, ComputeGate, ComputeSlots
+from api.routers import analysis, catalog, design, health, problems
 from api.settings import Settings
 from api.store import CatalogStore
 from tristock import __version__
 
+log = logging.getLogger("tristock.api")
+
 OPENAPI_PATH = Path(__file__).with_name("openapi.json")
 REGENERATE = "python -m api.app --write-openapi"
+#: The endpoints whose work runs in a compute slot.
+COMPUTE_PATHS = frozenset({"/v1/design", "/v1/reoptimise", "/v1/analyse", "/v1/simulate"})
 
 
-def create_app(settings: Settings) -> FastAPI:
+def operation_id(route: APIRoute) -> str:
+    """Operation ids are the route's name: its ``operation_id`` or its function's name."""
+    return route.operation_id or route.name
+
+
+def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     """A configured app. The catalog is read on the first request that needs it (and again
-    whenever its files change), so building an app never fails on a bad catalog."""
+    whenever its files change), so building an app never fails on a bad catalog.
+
+    ``supervised``: the app runs in a worker process of ``tristock serve``: it starts its
+    compute processes at start-up and stops serving when the worker's supervisor dies (see
+    ``api.connections.watch_supervisor``)."""
+
+    slots = ComputeSlots(
+        settings.max_searches, settings.search_wait_s, settings.max_queue, settings.compute_nice
+    )
+
+    @asynccontextmanager
+    async def lifespan(_: FastAPI) -> AsyncIterator[None]:
+        if supervised:
+            from api.connections import watch_supervisor
+
+            watch_supervisor(settings.shutdown_grace_s)
+            slots.pool.warm()  # compute processes ready before the first request
+        try:
+            yield
+        finally:
+            slots.pool.shutdown()
+
     app = FastAPI(
         title="tristock",
         version=__version__,
         summary="Stock-room parts for an op-amp triangle/square oscillator",
-        description="Same models and field names as the `tristock` CLI's `--json` output.",
+        description="Same models and field names as the `tristock` CLI's `--json` output. "
+        "Every error is an RFC 9457 problem (`application/problem+json`).",
+        generate_unique_id_function=operation_id,
+        lifespan=lifespan,
     )
     app.state.settings = settings
     app.state.store = CatalogStore(settings.catalog_dir)
-    app.state.slots = ComputeSlots(settings.max_searches, settings.search_wait_s)
+    app.state.slots = slots
     app.state.cache = AnswerCache(settings.cache_size)
     errors.install(app)
-    for r in (design.router, analysis.router, catalog.router, health.router):
+    for r in (design.router, analysis.router, catalog.router, health.router, problems.router):
         app.include_router(r)
+    app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS)
     app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
     app.add_middleware(CatchAll)
+    openapi.install(app)
     return app
 
 
 def app_from_env() -> FastAPI:
-    """Factory for uvicorn (``--factory``): settings from the environment; the service's own
-    log lines (catalog loads and reload errors) go to stderr beside uvicorn's."""
-    logging.basicConfig(level=logging.INFO, format="%(levelname)s:     %(name)s: %(message)s")
-    return create_app(Settings.from_env())
+    """Factory for uvicorn (``--factory``), called once in each worker: settings from the
+    ``TRISTOCK_*`` environment (``tristock serve`` has validated them and set up logging)."""
+    settings = Settings.from_env()
+    app = create_app(settings, supervised=True)
+    log.info("worker %d: app built (%d compute slots)", os.getpid(), settings.max_searches)
+    return app
 
 
 def openapi_document(app: FastAPI | None = None) -> dict[str, Any]:
     """The app's OpenAPI schema (independent of the catalog and the environment)."""
     if app is None:
-        app = create_app(Settings(catalog_dir=Path("catalog")))
+        app = create_app(Settings.model_construct(catalog_dir=Path("catalog")))
     return app.openapi()
 
 
@@ -81,8 +125,6 @@ def main(argv: list[str] | None = None) -> int:
         sys.stdout.write(text)
     return 0
 
-
-app = app_from_env()
 
 if __name__ == "__main__":
     sys.exit(main())

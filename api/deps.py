@@ -1,4 +1,9 @@
-"""What routers take from the app: settings, the current catalog, compute slots, write auth."""
+"""What routers take from the app: settings, the current catalog, compute slots, write auth.
+
+The cheap ones are ``async`` (they run on the event loop, never in the threadpool); the
+catalog ones stat the table files and may reload them, so they stay plain functions and run
+in FastAPI's threadpool, which compute never occupies (it has threads of its own).
+"""
 
 from __future__ import annotations
 
@@ -17,43 +22,45 @@ from tristock.catalog import Catalog
 _bearer = HTTPBearer(auto_error=False, description="TRISTOCK_TOKEN, when the server has one")
 
 
-def settings_of(request: Request) -> Settings:
+async def settings_of(request: Request) -> Settings:
     settings: Settings = request.app.state.settings
     return settings
 
 
-def store_of(request: Request) -> CatalogStore:
+async def store_of(request: Request) -> CatalogStore:
     store: CatalogStore = request.app.state.store
     return store
 
 
 def catalog_of(request: Request) -> Catalog:
     """The current catalog (reloaded first if its files changed); 503 if none has loaded."""
-    return store_of(request).current()
+    store: CatalogStore = request.app.state.store
+    return store.current()
 
 
 def versioned_catalog_of(request: Request) -> tuple[Catalog, int]:
     """The current catalog and its generation (for cache keys)."""
-    return store_of(request).current_versioned()
+    store: CatalogStore = request.app.state.store
+    return store.current_versioned()
 
 
-def cache_of(request: Request) -> AnswerCache:
+async def cache_of(request: Request) -> AnswerCache:
     cache: AnswerCache = request.app.state.cache
     return cache
 
 
-def slots_of(request: Request) -> ComputeSlots:
+async def slots_of(request: Request) -> ComputeSlots:
     slots: ComputeSlots = request.app.state.slots
     return slots
 
 
-def require_writer(
+async def require_writer(
     request: Request,
     credentials: Annotated[HTTPAuthorizationCredentials | None, Depends(_bearer)],
 ) -> None:
     """Stock writes: a matching bearer token when one is configured (401 without, 403 with a
     wrong one); with no token configured, refused (403) unless open writes were allowed."""
-    settings = settings_of(request)
+    settings: Settings = request.app.state.settings
     if settings.token is None:
         if settings.allow_open_writes:
             return

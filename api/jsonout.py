@@ -7,7 +7,7 @@ import json
 import math
 from typing import Any
 
-from fastapi.responses import JSONResponse
+from fastapi.responses import JSONResponse, Response
 
 
 def _finite(value: Any) -> Any:
@@ -20,15 +20,27 @@ def _finite(value: Any) -> Any:
     return value
 
 
+def to_json_bytes(content: Any) -> bytes:
+    """Compact UTF-8 JSON; NaN and ±inf become null instead of invalid JSON or an error."""
+    try:
+        text = json.dumps(content, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+    except ValueError:
+        text = json.dumps(_finite(content), ensure_ascii=False, separators=(",", ":"))
+    return text.encode("utf-8")
+
+
 class StrictJSON(JSONResponse):
     """Compact UTF-8 JSON; NaN and ±inf become null instead of invalid JSON or an error."""
 
     def render(self, content: Any) -> bytes:
-        try:
-            text = json.dumps(content, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
-        except ValueError:
-            text = json.dumps(_finite(content), ensure_ascii=False, separators=(",", ":"))
-        return text.encode("utf-8")
+        return to_json_bytes(content)
+
+
+class RenderedJSON(Response):
+    """JSON already rendered by :func:`to_json_bytes` (in a compute thread, so a large
+    answer is not serialised on the event loop)."""
+
+    media_type = "application/json"
 
 
 def answer(

@@ -1,8 +1,9 @@
-"""Request bodies (pydantic, unknown keys rejected) and the small response shapes of the API.
+"""Request bodies (pydantic, unknown keys rejected, numbers strict: a boolean or a string is
+not a number) and the small response shapes of the API: problem details and health.
 
-Results themselves are the library's: ``tristock.results.DesignResult`` and the dicts of
-``tristock.report``; part items are the ``tristock.parts`` dataclasses, field for field the
-columns of the tables.
+Results themselves are the library's: ``tristock.results.DesignResult``, the dicts of
+``tristock.report`` (described by ``api.reports``); part items are the ``tristock.parts``
+dataclasses, field for field the columns of the tables.
 """
 
 from __future__ import annotations
@@ -11,7 +12,7 @@ from typing import Any, Literal, TypeAlias
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from api.settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TIME_LIMIT_S, MAX_TOP
+from api.settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.spec import RankBy, Spec
 
@@ -22,8 +23,15 @@ Engine = Literal["cpsat", "enumerate"]
 PartRef: TypeAlias = str | dict[str, Any]
 
 
+TIME_LIMIT_HELP = (
+    "seconds for the whole search (default 5 s); a larger value is cut to the server's cap "
+    "(30 s unless TRISTOCK_MAX_TIME_LIMIT_S says otherwise): `search.time_limit_s` in the "
+    "answer is the limit used"
+)
+
+
 class _Body(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False)
 
 
 class DesignRequest(_Body):
@@ -32,13 +40,8 @@ class DesignRequest(_Body):
     spec: Spec
     top: int | None = Field(None, ge=1, le=MAX_TOP, description="designs wanted")
     by: RankBy | None = Field(None, description="ranking (overrides spec.ranking.by)")
-    engine: Engine = Field("cpsat", description="search engine; both are exact")
-    time_limit_s: float | None = Field(
-        None,
-        gt=0,
-        le=MAX_TIME_LIMIT_S,
-        description="seconds for the whole search (default 5; the server may cap it lower)",
-    )
+    engine: Engine = Field("enumerate", description="search engine; both are exact")
+    time_limit_s: float | None = Field(None, gt=0, description=TIME_LIMIT_HELP)
 
 
 class DesignBody(_Body):
@@ -78,7 +81,7 @@ class ReoptimiseRequest(DesignBody):
     )
     boards: int | None = Field(None, ge=1, le=10_000_000, description="boards to build")
     top: int | None = Field(None, ge=1, le=MAX_TOP, description="designs wanted")
-    time_limit_s: float | None = Field(None, gt=0, le=MAX_TIME_LIMIT_S)
+    time_limit_s: float | None = Field(None, gt=0, description=TIME_LIMIT_HELP)
 
 
 class StockPatch(_Body):
@@ -109,12 +112,6 @@ class Page(BaseModel):
     limit: int
 
 
-class ErrorBody(BaseModel):
-    """Every non-validation error: a message meant for a person."""
-
-    detail: str
-
-
 class FieldError(BaseModel):
     """One validation problem: ``loc`` is the path (``["body", "spec", "frequency",
     "target_hz"]``), ``field`` the same path without its first element, dotted."""
@@ -125,8 +122,40 @@ class FieldError(BaseModel):
     type: str
 
 
-class ValidationBody(BaseModel):
-    detail: list[FieldError]
+class Problem(BaseModel):
+    """An error (RFC 9457 problem details, ``application/problem+json``): ``type`` is
+    ``about:blank`` (the status says it all) or ``/problems/{name}``; ``detail`` is meant for
+    a person; ``instance`` is the request path. Other members may follow."""
+
+    model_config = ConfigDict(extra="allow")
+
+    type: str
+    title: str
+    status: int
+    detail: str
+    instance: str | None = None
+
+
+class ValidationProblem(Problem):
+    """A 422 ``invalid-request``: ``errors`` names every field that is wrong."""
+
+    errors: list[FieldError]
+
+
+#: The names the routers use for error answers.
+ErrorBody = Problem
+ValidationBody = ValidationProblem
+
+
+class ComputeStatus(BaseModel):
+    """This worker's compute slots: how many, busy now, waiting now, done and refused (503)
+    since it started."""
+
+    slots: int
+    running: int
+    waiting: int
+    done: int
+    refused: int
 
 
 class Health(BaseModel):
@@ -139,3 +168,4 @@ class Health(BaseModel):
     last_reload_error: list[str] | None
     last_reload_error_at: float | None
     writes: Literal["token", "open", "disabled"]
+    compute: ComputeStatus

@@ -1,91 +1,179 @@
-"""Service settings: where the catalog is, who may write stock, and the request limits.
+"""Service settings: where the catalog is, who may write stock, the request limits and the
+connection timeouts.
 
-Read from the environment by :meth:`Settings.from_env` (``TRISTOCK_CATALOG``,
-``TRISTOCK_TOKEN``, ``TRISTOCK_ALLOW_OPEN_WRITES``); every limit has a stated default.
+Every field can be set from the environment as ``TRISTOCK_<NAME>``; :meth:`Settings.from_env`
+turns bad values into one line naming each variable. ``tristock serve`` validates them once
+before starting any worker. The table in ``api/README.md`` lists each with its default and
+range (a test keeps the two in step).
 """
 
 from __future__ import annotations
 
+import math
 import os
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Final
+from typing import Any, Final
+
+from pydantic import Field, ValidationError, field_validator, model_validator
+from pydantic.fields import FieldInfo
+from pydantic_settings import BaseSettings, PydanticBaseSettingsSource, SettingsConfigDict
 
 #: Hard ceilings that appear in the OpenAPI schema; settings may only lower them.
 MAX_TOP: Final[int] = 50
-MAX_TIME_LIMIT_S: Final[float] = 30.0
 MAX_POINTS: Final[int] = 20_000
 MAX_PERIODS: Final[int] = 200
 MAX_SAMPLES: Final[int] = 100_000
 MAX_PAGE: Final[int] = 500
 MAX_STOCK: Final[int] = 1_000_000_000
+#: The largest search time limit an operator may allow (seconds). Requests may ask for more:
+#: they are cut to ``max_time_limit_s`` (the answer's ``search.time_limit_s`` says so).
+MAX_TIME_LIMIT_S: Final[float] = 600.0
 
-_TRUE = frozenset({"1", "true", "yes", "on"})
+ENV_PREFIX: Final[str] = "TRISTOCK_"
+CATALOG_ENV: Final[str] = "TRISTOCK_CATALOG"
+
+
+class SettingsError(ValueError):
+    """Bad settings: one line naming each variable and what is wrong with it."""
 
 
 def default_catalog_dir() -> Path:
     """The bundled demo stock room (same folder the CLI's ``--example`` uses)."""
     from tristock.cli import demo_catalog_dir
 
-    return demo_catalog_dir()
+    found: Path = demo_catalog_dir()
+    return found
 
 
-@dataclass(frozen=True, slots=True)
-class Settings:
-    """Everything the app needs to know at start-up.
+class _CatalogVariable(PydanticBaseSettingsSource):
+    """``TRISTOCK_CATALOG`` sets ``catalog_dir`` (the variable named like ``--catalog``)."""
 
-    ``token``: when set, stock writes need ``Authorization: Bearer <token>``. When it is None,
-    writes are refused unless ``allow_open_writes`` is True (an explicit start-up flag).
-    ``max_body_bytes``: larger request bodies get 413. ``max_searches``: CPU-bound requests
-    (design, reoptimise, analyse, simulate) running at once; a request that finds every slot
-    busy waits up to ``search_wait_s`` seconds, then gets 503.
-    ``default_time_limit_s`` / ``max_time_limit_s``: per-request search time (s); a larger
-    request is cut to the cap (the answer's ``search.time_limit_s`` shows the limit used).
-    ``cache_size``: design/reoptimise answers kept per worker for repeated requests on the
-    same catalog (0 turns the cache off).
+    def get_field_value(self, field: FieldInfo, field_name: str) -> tuple[Any, str, bool]:
+        return None, field_name, False
+
+    def __call__(self) -> dict[str, Any]:
+        value = os.environ.get(CATALOG_ENV)
+        return {} if value is None else {"catalog_dir": value}
+
+
+class Settings(BaseSettings):
+    """Everything the app and the server need at start-up (each field is described in the
+    README table; ``TRISTOCK_<NAME>`` sets it).
+
+    ``token``: when set, stock writes need ``Authorization: Bearer <token>``; when unset,
+    writes are refused unless ``allow_open_writes``. ``max_searches`` compute requests
+    (design, reoptimise, analyse, simulate) run at once per worker, in processes of their
+    own; a request that finds every slot busy waits up to ``search_wait_s`` s, then gets 503,
+    and when ``max_queue`` requests are waiting already it gets 503 at once.
+    ``request_timeout_s``: a connection must deliver a complete request (headers and body)
+    within this many seconds of opening or of its previous answer, else it is closed.
     """
 
-    catalog_dir: Path
-    token: str | None = None
-    allow_open_writes: bool = False
-    max_body_bytes: int = 256 * 1024
-    max_top: int = MAX_TOP
-    default_time_limit_s: float = 5.0
-    max_time_limit_s: float = MAX_TIME_LIMIT_S
-    max_searches: int = 2
-    search_wait_s: float = 2.0
-    max_samples: int = MAX_SAMPLES
-    max_page: int = MAX_PAGE
-    cache_size: int = 256
+    model_config = SettingsConfigDict(
+        env_prefix=ENV_PREFIX,
+        frozen=True,
+        extra="forbid",
+        allow_inf_nan=False,
+        validate_default=True,
+    )
 
-    def __post_init__(self) -> None:
-        checks = (
-            ("max_body_bytes", self.max_body_bytes > 0),
-            ("max_top", 1 <= self.max_top <= MAX_TOP),
-            ("max_time_limit_s", 0 < self.max_time_limit_s <= MAX_TIME_LIMIT_S),
-            ("default_time_limit_s", 0 < self.default_time_limit_s <= self.max_time_limit_s),
-            ("max_searches", self.max_searches >= 1),
-            ("search_wait_s", self.search_wait_s >= 0),
-            ("max_samples", 1 <= self.max_samples <= MAX_SAMPLES),
-            ("max_page", 1 <= self.max_page <= MAX_PAGE),
-            ("cache_size", self.cache_size >= 0),
-        )
-        for name, ok in checks:
-            if not ok:
-                raise ValueError(f"settings.{name}: {getattr(self, name)!r} is out of range")
-        if self.token is not None and not self.token.strip():
-            raise ValueError("settings.token: an empty token is not a token (leave it unset)")
+    catalog_dir: Path = Field(
+        default_factory=default_catalog_dir,
+        description="catalog folder (default: the bundled demo)",
+    )
+    token: str | None = Field(
+        None, repr=False, description="bearer token for stock writes (unset: no token)"
+    )
+    allow_open_writes: bool = Field(False, description="stock writes without a token")
+    max_body_bytes: int = Field(256 * 1024, ge=1024, le=16 * 1024 * 1024, description="413 above")
+    max_top: int = Field(MAX_TOP, ge=1, le=MAX_TOP, description="designs per request")
+    default_time_limit_s: float = Field(5.0, gt=0, description="search time without one asked")
+    max_time_limit_s: float = Field(
+        30.0, gt=0, le=MAX_TIME_LIMIT_S, description="a larger time_limit_s is cut to this"
+    )
+    max_searches: int = Field(2, ge=1, le=64, description="compute requests at once per worker")
+    search_wait_s: float = Field(2.0, ge=0, le=600, description="wait for a slot, then 503")
+    max_queue: int = Field(16, ge=0, le=10_000, description="waiting beyond this: 503 at once")
+    compute_nice: int = Field(10, ge=0, le=19, description="compute processes' CPU niceness")
+    max_samples: int = Field(MAX_SAMPLES, ge=1, le=MAX_SAMPLES, description="Monte Carlo cap")
+    max_page: int = Field(MAX_PAGE, ge=1, le=MAX_PAGE, description="catalog items per page")
+    cache_size: int = Field(256, ge=0, le=100_000, description="answers kept per worker; 0 off")
+    request_timeout_s: float = Field(
+        10.0, gt=0, le=3600, description="a complete request must arrive within this"
+    )
+    keep_alive_s: int = Field(5, ge=1, le=3600, description="idle keep-alive connections close")
+    shutdown_grace_s: int = Field(30, ge=1, le=3600, description="in-flight work on shutdown")
+    worker_healthcheck_s: int = Field(
+        60, ge=1, le=3600, description="a worker silent this long is restarted"
+    )
 
     @classmethod
-    def from_env(cls, environ: dict[str, str] | None = None) -> Settings:
-        """Settings from ``TRISTOCK_CATALOG`` (default: the demo catalog), ``TRISTOCK_TOKEN``
-        and ``TRISTOCK_ALLOW_OPEN_WRITES`` (1/true/yes/on)."""
-        env = os.environ if environ is None else environ
-        catalog = env.get("TRISTOCK_CATALOG")
-        token = env.get("TRISTOCK_TOKEN") or None
-        open_writes = env.get("TRISTOCK_ALLOW_OPEN_WRITES", "").strip().lower() in _TRUE
-        return cls(
-            catalog_dir=Path(catalog) if catalog else default_catalog_dir(),
-            token=token,
-            allow_open_writes=open_writes,
-        )
+    def settings_customise_sources(
+        cls,
+        settings_cls: type[BaseSettings],
+        init_settings: PydanticBaseSettingsSource,
+        env_settings: PydanticBaseSettingsSource,
+        dotenv_settings: PydanticBaseSettingsSource,
+        file_secret_settings: PydanticBaseSettingsSource,
+    ) -> tuple[PydanticBaseSettingsSource, ...]:
+        """Values given in code, then ``TRISTOCK_CATALOG``, then the other variables."""
+        return init_settings, _CatalogVariable(settings_cls), env_settings
+
+    @field_validator("catalog_dir", mode="before")
+    @classmethod
+    def _blank_catalog_is_default(cls, value: Any) -> Any:
+        return default_catalog_dir() if value == "" else value
+
+    @field_validator("token", mode="before")
+    @classmethod
+    def _blank_token_is_unset(cls, value: Any) -> Any:
+        if value == "":
+            return None  # TRISTOCK_TOKEN= (empty) means no token
+        if isinstance(value, str) and not value.strip():
+            raise ValueError("an all-blank token is not a token (leave it unset)")
+        return value
+
+    @model_validator(mode="after")
+    def _default_within_cap(self) -> Settings:
+        if self.default_time_limit_s > self.max_time_limit_s:
+            raise ValueError(
+                f"{env_name('default_time_limit_s')}={self.default_time_limit_s:g} is above "
+                f"{env_name('max_time_limit_s')}={self.max_time_limit_s:g}"
+            )
+        return self
+
+    @classmethod
+    def from_env(cls, **overrides: Any) -> Settings:
+        """Settings from ``TRISTOCK_*`` variables (``overrides`` win); SettingsError with one
+        line naming each bad variable."""
+        try:
+            return cls(**overrides)
+        except ValidationError as err:
+            raise SettingsError("; ".join(_describe(e) for e in err.errors())) from None
+
+
+def env_name(field: str) -> str:
+    """The environment variable that sets ``field``."""
+    return CATALOG_ENV if field == "catalog_dir" else ENV_PREFIX + field.upper()
+
+
+def unknown_env_names(environ: dict[str, str] | None = None) -> list[str]:
+    """``TRISTOCK_*`` variables that set no field (likely misspelt), sorted."""
+    env = os.environ if environ is None else environ
+    known = {env_name(f) for f in Settings.model_fields} | {ENV_PREFIX + "CATALOG_DIR"}
+    return sorted(k for k in env if k.upper().startswith(ENV_PREFIX) and k.upper() not in known)
+
+
+def _describe(error: Any) -> str:
+    loc = error.get("loc") or ()
+    msg = str(error.get("msg", "invalid")).removeprefix("Value error, ")
+    if not loc:
+        return msg
+    field = str(loc[0])
+    name = env_name(field) if field in Settings.model_fields else field
+    shown = error.get("input")
+    if field == "token" or isinstance(shown, dict) or shown is None:
+        return f"{name}: {msg}"
+    if isinstance(shown, float) and not math.isfinite(shown):
+        shown = str(shown)
+    return f"{name}={shown!r}: {msg}"

@@ -2,6 +2,7 @@
 and latency for the bundled demo spec with N concurrent clients against a real server.
 
     python tests/benchmark_api.py [--clients 2] [--workers 2] [--seconds 20] [--max-requests 400]
+                                  [--set TRISTOCK_COMPUTE_NICE=0 ...]
 
 Two runs: one spec repeated (served from the per-worker answer cache after the first search)
 and distinct specs (every request a cold search).
@@ -43,9 +44,11 @@ def free_port() -> int:
         return port
 
 
-def start(catalog: Path, workers: int, log: Path) -> tuple[subprocess.Popen[bytes], str]:
+def start(
+    catalog: Path, workers: int, log: Path, settings: dict[str, str]
+) -> tuple[subprocess.Popen[bytes], str]:
     port = free_port()
-    env = {k: v for k, v in os.environ.items() if not k.startswith("TRISTOCK_")}
+    env = {k: v for k, v in os.environ.items() if not k.startswith("TRISTOCK_")} | settings
     cmd = [sys.executable, "-m", "tristock.cli", "serve", "--port", str(port)]
     cmd += ["--catalog", str(catalog), "--workers", str(workers)]
     with log.open("wb") as out:
@@ -164,7 +167,17 @@ def main() -> int:
     p.add_argument("--seconds", type=float, default=20.0)
     p.add_argument("--max-requests", type=int, default=400)
     p.add_argument("--top", type=int, help="override the spec's ranking.top")
+    p.add_argument(
+        "--set",
+        action="append",
+        default=[],
+        metavar="TRISTOCK_NAME=VALUE",
+        help="a service setting for the server (repeatable); default: all defaults",
+    )
     args = p.parse_args()
+    settings = dict(item.split("=", 1) for item in args.set)
+    if not all(k.startswith("TRISTOCK_") for k in settings):
+        sys.exit("--set: TRISTOCK_NAME=VALUE")
     if not (1 <= args.clients <= 64 and 1 <= args.workers <= 8 and 0 < args.seconds <= 120):
         sys.exit("clients 1..64, workers 1..8, seconds 0..120")
     spec_data = tomllib.loads(example_spec_path().read_text(encoding="utf-8"))
@@ -174,9 +187,9 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         catalog = Path(tmp) / "catalog"
         shutil.copytree(demo_catalog_dir(), catalog)
-        proc, base = start(catalog, args.workers, Path(tmp) / "server.log")
+        proc, base = start(catalog, args.workers, Path(tmp) / "server.log", settings)
         try:
-            print(f"server: {args.workers} worker(s) on {base}, {os.cpu_count()} CPUs")
+            print(f"server: {args.workers} worker(s) on {base}, {os.cpu_count()} CPUs, {settings}")
             for _ in range(args.workers * 2):  # warm every worker
                 httpx.post(f"{base}/v1/design", json=body, timeout=120)
             load(base, body, args.clients, args.seconds, args.max_requests, distinct=False)

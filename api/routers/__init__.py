@@ -12,5 +12,9 @@ COMPUTE_ERRORS: dict[int | str, dict[str, Any]] = {
     413: {"model": ErrorBody, "description": "request body too large"},
     422: {"model": ValidationBody, "description": "invalid request; each item names the field"},
     500: {"model": ErrorBody, "description": "internal error (no details are given)"},
-    503: {"model": ErrorBody, "description": "busy (all search slots taken) or no catalog"},
+    503: {
+        "model": ErrorBody,
+        "description": "`busy`: every compute slot stayed taken (retry after `Retry-After` s); "
+        "`catalog-unavailable`: no catalog has loaded",
+    },
 }

@@ -1,16 +1,17 @@
-"""``POST /v1/analyse`` and ``POST /v1/simulate``: one design, the CLI's JSON reports."""
+"""``POST /v1/analyse`` and ``POST /v1/simulate``: one design, the CLI's JSON reports,
+computed and serialised in a compute process."""
 
 from __future__ import annotations
-
-from typing import Any
 
 from fastapi import APIRouter
 
 from api.deps import CatalogDep, SettingsDep, SlotsDep
 from api.errors import FieldProblem
-from api.jsonout import StrictJSON, answer
+from api.jsonout import RenderedJSON, to_json_bytes
+from api.reports import AnalysisReport, SimulationReport
 from api.routers import COMPUTE_ERRORS
 from api.schemas import AnalyseRequest, SimulateRequest
+from tristock.design import Design
 from tristock.designfile import design_for
 from tristock.report import analysis_report, simulation_report
 from tristock.simulate import SimulationError
@@ -18,40 +19,52 @@ from tristock.simulate import SimulationError
 router = APIRouter(prefix="/v1", tags=["design"])
 
 
+def _analysed(body: AnalyseRequest, design: Design) -> bytes:
+    data = analysis_report(
+        body.spec, design, samples=body.samples, seed=body.seed, distribution=body.distribution
+    )
+    return to_json_bytes(data)
+
+
+def _simulated(body: SimulateRequest, design: Design) -> bytes:
+    data = simulation_report(body.spec, design, periods=body.periods, max_points=body.max_points)
+    return to_json_bytes(data)
+
+
 @router.post(
     "/analyse",
-    response_model=dict[str, Any],
+    operation_id="analyse",
+    response_model=AnalysisReport,
     responses=COMPUTE_ERRORS,
     summary="Nominal, worst case, yield, sensitivities and checks of one design",
     description="The same object as `tristock analyse DESIGN --json`.",
 )
-def post_analyse(
+async def post_analyse(
     body: AnalyseRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
-) -> StrictJSON:
+) -> RenderedJSON:
     if body.samples > settings.max_samples:
         raise FieldProblem([(["body", "samples"], f"at most {settings.max_samples}")], "too_large")
     d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
-    with slots.slot(), FieldProblem.from_value_errors(["body"]):
-        data = analysis_report(
-            body.spec, d, samples=body.samples, seed=body.seed, distribution=body.distribution
-        )
-    return answer(data)
+    with FieldProblem.from_value_errors(["body"]):
+        return RenderedJSON(await slots.run(_analysed, body, d))
 
 
 @router.post(
     "/simulate",
-    response_model=dict[str, Any],
+    operation_id="simulate",
+    response_model=SimulationReport,
     responses=COMPUTE_ERRORS,
     summary="Time-domain simulation of one design against the model",
     description="The same object as `tristock simulate DESIGN --json`: measured values, "
     "the model's prediction and the sampled waveforms (`t_s`, `triangle_v`, `square_v`, at "
     "most `max_points` each). A loop that does not oscillate is a 422 saying why.",
 )
-def post_simulate(body: SimulateRequest, catalog: CatalogDep, slots: SlotsDep) -> StrictJSON:
+async def post_simulate(
+    body: SimulateRequest, catalog: CatalogDep, slots: SlotsDep
+) -> RenderedJSON:
     d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
-    with slots.slot(), FieldProblem.from_value_errors(["body"]):
+    with FieldProblem.from_value_errors(["body"]):
         try:
-            data = simulation_report(body.spec, d, periods=body.periods, max_points=body.max_points)
+            return RenderedJSON(await slots.run(_simulated, body, d))
         except SimulationError as err:
             raise FieldProblem([(["body", "parts"], str(err))], "does_not_oscillate") from None
-    return answer(data)

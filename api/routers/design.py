@@ -1,14 +1,19 @@
-"""``POST /v1/design`` and ``POST /v1/reoptimise``: the searches, run in the threadpool."""
+"""``POST /v1/design`` and ``POST /v1/reoptimise``: the searches, each in a compute process
+(``ComputeSlots.run``); the answer is serialised there too, so the event loop only validates
+the request and sends bytes."""
 
 from __future__ import annotations
 
+from typing import Any
+
 from fastapi import APIRouter
 
+from api.compute import Parcel
 from api.deps import CacheDep, CatalogDep, SettingsDep, SlotsDep, VersionedCatalogDep
 from api.errors import FieldProblem
-from api.jsonout import StrictJSON, answer
+from api.jsonout import RenderedJSON, to_json_bytes
 from api.routers import COMPUTE_ERRORS
-from api.schemas import DesignRequest, ReoptimiseRequest
+from api.schemas import DesignRequest, Engine, ReoptimiseRequest
 from api.settings import Settings
 from tristock.designfile import part_ids
 from tristock.reoptimise import reoptimise
@@ -35,8 +40,18 @@ def _headers(proven: bool) -> dict[str, str]:
     return {"X-Search": "proven-optimal" if proven else "cut-by-time-limit"}
 
 
+def _designs(
+    spec: Spec, parcel: Parcel, engine: Engine, limit: float
+) -> tuple[dict[str, Any], bytes]:
+    """The search (in a compute process): the answer as data and as JSON bytes."""
+    result = design(spec, parcel.open(), engine=engine, time_limit_s=limit)
+    data = result.model_dump(mode="json")
+    return data, to_json_bytes(data)
+
+
 @router.post(
     "/design",
+    operation_id="design",
     response_model=DesignResult,
     responses=COMPUTE_ERRORS,
     summary="Best designs for a spec",
@@ -44,13 +59,13 @@ def _headers(proven: bool) -> dict[str, str]:
     "with `infeasible.reasons`; a search cut by its time limit has "
     "`search.proven_optimal: false` (and the header `X-Search: cut-by-time-limit`).",
 )
-def post_design(
+async def post_design(
     body: DesignRequest,
     settings: SettingsDep,
     versioned: VersionedCatalogDep,
     slots: SlotsDep,
     cache: CacheDep,
-) -> StrictJSON:
+) -> RenderedJSON:
     catalog, generation = versioned
     spec = body.spec
     overrides = {k: v for k, v in (("top", body.top), ("by", body.by)) if v is not None}
@@ -61,43 +76,54 @@ def post_design(
     _check_top(settings, spec.ranking.top, where)
     limit = _time_limit(settings, body.time_limit_s)
     key = cache.key("design", generation, [spec.model_dump(mode="json"), body.engine, limit])
-    data = cache.get(key)
-    if data is None:
-        with slots.slot(), FieldProblem.from_value_errors(["body", "spec"]):
-            result = design(spec, catalog, engine=body.engine, time_limit_s=limit)
-        data = result.model_dump(mode="json")
-        if result.search.proven_optimal:  # an answer cut by time may improve on a retry
+    cached = cache.get(key)
+    if cached is None:
+        with FieldProblem.from_value_errors(["body", "spec"]):
+            data, rendered = await slots.run(
+                _designs, spec, slots.parcel(catalog), body.engine, limit
+            )
+        if data["search"]["proven_optimal"]:  # an answer cut by time may improve on a retry
             cache.put(key, data)
         hit = "miss"
     else:
-        hit = "hit"
+        data, rendered, hit = cached, to_json_bytes(cached), "hit"
     headers = {**_headers(data["search"]["proven_optimal"]), "X-Cache": hit}
-    return answer(data, headers=headers)
+    return RenderedJSON(rendered, headers=headers)
+
+
+def _reoptimised(
+    body: ReoptimiseRequest, parcel: Parcel, current: dict[str, str], limit: float
+) -> tuple[dict[str, Any], bytes]:
+    """The re-optimisation (in a compute process): the answer as data and as JSON bytes."""
+    result = reoptimise(
+        body.spec,
+        parcel.open(),
+        current,
+        without=body.without,
+        boards=body.boards,
+        top=body.top,
+        time_limit_s=limit,
+    )
+    data = result.model_dump(mode="json")
+    return data, to_json_bytes(data)
 
 
 @router.post(
     "/reoptimise",
+    operation_id="reoptimise",
     response_model=ReoptimiseResult,
     responses=COMPUTE_ERRORS,
     summary="Fewest part changes that bring a design back in spec",
     description="The same answer as `tristock reoptimise DESIGN --json`.",
 )
-def post_reoptimise(
+async def post_reoptimise(
     body: ReoptimiseRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
-) -> StrictJSON:
+) -> RenderedJSON:
     current = part_ids(body.parts)
     top = body.top if body.top is not None else body.spec.ranking.top
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, top, where)
     limit = _time_limit(settings, body.time_limit_s)
-    with slots.slot(), FieldProblem.from_value_errors(["body"]):
-        result = reoptimise(
-            body.spec,
-            catalog,
-            current,
-            without=body.without,
-            boards=body.boards,
-            top=body.top,
-            time_limit_s=limit,
-        )
-    return answer(result.model_dump(mode="json"), headers=_headers(result.search.proven_optimal))
+    with FieldProblem.from_value_errors(["body"]):
+        data, rendered = await slots.run(_reoptimised, body, slots.parcel(catalog), current, limit)
+    return RenderedJSON(rendered, headers=_headers(data["search"]["proven_optimal"]))

@@ -1,29 +1,41 @@
-"""``GET /health``: is a catalog loaded, which one, how big, and the last reload error."""
+"""``GET /health``: is a catalog loaded, which one, how big, the last reload error, and how
+busy this worker's compute slots are.
+
+It never waits for compute: the handler runs on the event loop and checks the catalog files
+in FastAPI's threadpool, which compute does not use.
+"""
 
 from __future__ import annotations
 
+import anyio.to_thread
 from fastapi import APIRouter
 
-from api.deps import SettingsDep, StoreDep
+from api.deps import SettingsDep, SlotsDep, StoreDep
 from api.jsonout import StrictJSON, answer
 from api.schemas import Health
-from api.store import CatalogUnavailable
+from api.store import CatalogStore, CatalogUnavailable
 from tristock import __version__
+from tristock.catalog import Catalog
 
 router = APIRouter(tags=["service"])
 
 
+def _catalog_or_none(store: CatalogStore) -> Catalog | None:
+    try:
+        return store.current()
+    except CatalogUnavailable:
+        return None
+
+
 @router.get(
     "/health",
+    operation_id="health",
     response_model=Health,
     responses={503: {"model": Health, "description": "no catalog has loaded"}},
     summary="Service and catalog status",
 )
-def health(store: StoreDep, settings: SettingsDep) -> StrictJSON:
-    try:
-        catalog = store.current()
-    except CatalogUnavailable:
-        catalog = None
+async def health(store: StoreDep, settings: SettingsDep, slots: SlotsDep) -> StrictJSON:
+    catalog = await anyio.to_thread.run_sync(_catalog_or_none, store)
     error = store.last_error
     counts = (
         {
@@ -48,6 +60,7 @@ def health(store: StoreDep, settings: SettingsDep) -> StrictJSON:
             "last_reload_error": list(error.errors) if error else None,
             "last_reload_error_at": error.at if error else None,
             "writes": writes,
+            "compute": slots.status(),
         },
         status_code=200 if catalog is not None else 503,
     )

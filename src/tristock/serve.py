@@ -1,12 +1,46 @@
-"""``tristock serve``: run the HTTP API (``api.app``) with uvicorn, on loopback by default."""
+"""``tristock serve``: run the HTTP API (``api.app``) with uvicorn, on loopback by default.
+
+This command is where the CLI hands over to the HTTP layer (``api/``): it validates the
+service settings once (``TRISTOCK_*`` variables, see ``api.settings``), configures logging,
+and starts uvicorn with the factory ``api.app:app_from_env``, which builds exactly one app in
+each worker. Connections use ``api.connections.DeadlineH11Protocol`` (a complete request
+within ``request_timeout_s``, else 408 and close).
+"""
 
 from __future__ import annotations
 
+import copy
+import logging
+import logging.config
 import os
 from pathlib import Path
+from typing import Any
 
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
+APP_FACTORY = "api.app:app_from_env"
+HTTP_PROTOCOL = "api.connections:DeadlineH11Protocol"
+
+log = logging.getLogger("tristock.serve")
+
+
+def logging_config() -> dict[str, Any]:
+    """uvicorn's logging set-up plus the ``tristock`` loggers (catalog loads, reload errors,
+    closed connections, the supervisor watch) on the same stderr handler."""
+    from uvicorn.config import LOGGING_CONFIG
+
+    config = copy.deepcopy(LOGGING_CONFIG)
+    config["formatters"]["tristock"] = {
+        "()": "uvicorn.logging.DefaultFormatter",
+        "fmt": "%(levelprefix)s %(name)s: %(message)s",
+    }
+    config["handlers"]["tristock"] = {
+        "formatter": "tristock",
+        "class": "logging.StreamHandler",
+        "stream": "ext://sys.stderr",
+    }
+    config["loggers"]["tristock"] = {"handlers": ["tristock"], "level": "INFO", "propagate": False}
+    return config
 
 
 def serve(
@@ -18,25 +52,41 @@ def serve(
 ) -> None:
     """Serve the API until interrupted.
 
-    ``catalog``: the catalog folder (default: the bundled demo). ``workers`` > 1 starts that
-    many processes (stock writes stay safe: the catalog's file lock serialises them across
-    processes). The settings reach each worker through the environment (``TRISTOCK_CATALOG``,
-    ``TRISTOCK_ALLOW_OPEN_WRITES``; ``TRISTOCK_TOKEN`` is read from it as it is).
+    ``catalog``: the catalog folder (default: ``TRISTOCK_CATALOG``, else the bundled demo).
+    ``workers`` > 1 starts that many processes under a supervisor (stock writes stay safe:
+    the catalog's file lock serialises them across processes); a worker whose supervisor dies
+    stops serving. ``allow_open_writes`` (or ``TRISTOCK_ALLOW_OPEN_WRITES=1``) allows stock
+    writes without a token. Every other setting comes from ``TRISTOCK_*`` variables, which
+    reach the workers through the environment. Raises ValueError (one line) on a bad value.
     """
     import uvicorn
+    from api.settings import CATALOG_ENV, Settings, unknown_env_names
 
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
         raise ValueError(f"workers: must be an integer >= 1, got {workers!r}")
     if not 0 <= port <= 65535:
         raise ValueError(f"port: must be 0..65535, got {port}")
     if catalog is not None:
-        os.environ["TRISTOCK_CATALOG"] = str(Path(catalog).resolve())
-    os.environ["TRISTOCK_ALLOW_OPEN_WRITES"] = "1" if allow_open_writes else "0"
+        os.environ[CATALOG_ENV] = str(Path(catalog).resolve())
+    if allow_open_writes:
+        os.environ["TRISTOCK_ALLOW_OPEN_WRITES"] = "1"
+    settings = Settings.from_env()
+    if not settings.catalog_dir.is_dir():
+        raise ValueError(f"catalog: {settings.catalog_dir} is not a folder")
+    config = logging_config()
+    logging.config.dictConfig(config)
+    for name in unknown_env_names():
+        log.warning("ignoring %s: no such setting (check the spelling)", name)
     uvicorn.run(
-        "api.app:app_from_env",
+        APP_FACTORY,
         factory=True,
         host=host,
         port=port,
         workers=workers,
+        http=HTTP_PROTOCOL,
+        timeout_keep_alive=settings.keep_alive_s,
+        timeout_graceful_shutdown=settings.shutdown_grace_s,
+        timeout_worker_healthcheck=settings.worker_healthcheck_s,
+        log_config=config,
         log_level="info",
     )
