@@ -172,7 +172,7 @@ def test_serve_refuses_bad_settings_before_starting(
     env.setenv("TRISTOCK_MAX_QUEUE", "-3")
     assert cli.main(["serve"]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.startswith("serve: TRISTOCK_MAX_QUEUE='-3'") and "\n" not in err
+    assert err.startswith("tristock serve: TRISTOCK_MAX_QUEUE='-3'") and "\n" not in err
     env.delenv("TRISTOCK_MAX_QUEUE")
     assert cli.main(["serve", "--catalog", "/no/such/folder"]) == 2
     assert "is not a folder" in capsys.readouterr().err

@@ -138,7 +138,7 @@ def test_a_repeated_idempotency_key_returns_the_first_answer(catalog: Path) -> N
         assert (again.json(), again.headers["ETag"]) == (first.json(), first.headers["ETag"])
         other = c.patch(url, json={"stock_delta": -3}, headers=key)
         assert other.status_code == 422
-        [problem] = other.json()["detail"]
+        [problem] = other.json()["errors"]
         assert problem["loc"] == ["header", "idempotency-key"]
         assert "different request" in problem["msg"]
         quoted = c.patch(url, json={"stock_delta": -2}, headers={"Idempotency-Key": '"q-1"'})

@@ -84,8 +84,8 @@ def test_the_bases_are_valid_and_every_numeric_field_is_found() -> None:
     found = {".".join(p) for p in NUMERIC}
     assert {"frequency.target_hz", "triangle.amplitude_vpp", "build.boards", "ranking.top",
             "tuning.ranges", "limits.max_cost", "supply.reference_v"} <= found  # fmt: skip
-    assert len(NUMERIC) == 22  # supply 4, frequency 2, triangle 2, environment 2, build 1,
-    # limits 4, ranking 1, trim 2, tuning 4
+    assert len(NUMERIC) == 23  # supply 4, frequency 2, triangle 2, environment 2, build 1,
+    # limits 5, ranking 1, trim 2, tuning 4
 
 
 @pytest.mark.parametrize("path", NUMERIC, ids=".".join)

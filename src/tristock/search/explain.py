@@ -12,6 +12,10 @@ from collections import Counter
 from tristock.catalog import Catalog
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import SearchModel, build_model
+
+#: The largest timing share the model itself allows (``spec.LimitsSpec.max_timing_share``).
+MODEL_TIMING_LIMIT = 0.4
+from tristock.spec import Spec
 from tristock.units import format_value
 
 
@@ -25,6 +29,26 @@ def opamp_exclusions(model: SearchModel) -> str:
     clauses = [f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"]
     clauses += [f"{o.part.id}: {o.target_note}" for o in model.opamps if o.target is None]
     return "; ".join(clauses)
+
+
+def _timing_reason(spec: Spec, catalog: Catalog) -> str | None:
+    """The reason when only the timing-share limit stands in the way: designs meet the bands
+    once op-amp timing may set up to 40 % of the period (the model's own limit)."""
+    lim = spec.limits
+    if lim.max_timing_share >= MODEL_TIMING_LIMIT:
+        return None
+    loose = spec.model_copy(
+        update={"limits": lim.model_copy(update={"max_timing_share": MODEL_TIMING_LIMIT})}
+    )
+    found = enumerate_top(build_model(loose, catalog), 1, 2.0, coupled=False)
+    if len(found.rows) == 0:
+        return None
+    return (
+        "designs meet the bands only where op-amp delay, slew and GBW set more than "
+        f"{lim.max_timing_share:.0%} of the period (limits.max_timing_share; the best-ranked "
+        f"sets {float(found.rows.share[0]):.0%}): such a frequency follows part-to-part timing "
+        "spread; choose a faster op amp, a lower frequency or a larger limit (at most 0.4)"
+    )
 
 
 def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:
@@ -87,6 +111,9 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
     nominal = spec.model_copy(update={"limits": lim.model_copy(update={"guarantee": "nominal"})})
     relaxed = enumerate_top(build_model(nominal, catalog), 1, 2.0, coupled=False)
     if len(relaxed.rows) == 0:
+        timing = _timing_reason(nominal, catalog)
+        if timing:
+            return [timing]
         return [
             f"no R3·C1 product from {_series_text(model)} resistors ({r_lo}..{r_hi}) and "
             f"{'/'.join(lim.dielectrics)} capacitors puts the frequency within "
