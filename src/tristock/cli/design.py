@@ -153,8 +153,9 @@ def render_design(result: DesignResult) -> str:
             lines.append(f"  {w.severity}: {w.message}")
     lines += [
         "",
-        f"search: {s.engine}, {'proven optimal' if s.proven_optimal else 'NOT proven (time limit)'}"
-        f" within the search model, {s.combinations:,} combinations, {s.evaluated:,} rows "
+        f"search: {s.engine}, "
+        f"{'proven optimal under the full model' if s.proven_optimal else 'NOT proven'}"
+        f", {s.combinations:,} combinations, {s.evaluated:,} rows "
         f"scored, {s.elapsed_s:.2f} s, score resolution {s.score_resolution:g}",
         "",
         "Cautions:",
