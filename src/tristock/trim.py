@@ -342,9 +342,12 @@ def _recheck(
             rv1=pots[rows.v[n]],
             wiper=float(np.clip(rows.wiper[n], 0, 1)),
         )
-        reach_lo, reach_hi = coverage(d, spec)
         drift = drift_after_trim(d, spec)
-        if not reach_lo <= target <= reach_hi or (limit is not None and 100 * drift > limit):
+        if limit is not None and 100 * drift > limit:
+            dropped += 1
+            continue
+        reach_lo, reach_hi = coverage(d, spec)  # the box search: after the cheaper drift check
+        if not reach_lo <= target <= reach_hi:
             dropped += 1
             continue
         key = _key(model, pots, rows, n)
