@@ -14,12 +14,11 @@ amplitude and duty, in three steps (``WorstCase.method``):
    near its diagonal VH - Ve = VL + Ve (Ve the integrator's error voltage). From each of the
    best corners of an extreme, each rail is moved (the other rail at either end) to the point
    where the drives balance: ``swing_imbalance`` is affine in a rail, so that point is exact.
-3. **Projected Newton** ("+box" in the method) from the best corners and balanced points of
-   each extreme, all rows in one batch: derivatives by a one-sided second-order stencil inside
-   the box (step ``NEWTON_STEP``), variables at a bound whose gradient points out are held, the
-   rest take a Newton step with |eigenvalues| (ascent even where the objective is convex), and
-   a ladder of step lengths along it and along the gradient is tried, projected onto the box;
-   a row stops when no step gains more than ``NEWTON_TOLERANCE`` (relative).
+3. **Projected Newton** ("+box" in the method): ``boxnewton.maximise`` from the
+   ``CORNER_STARTS`` best corners and ``BALANCED_STARTS`` best balanced points of each
+   extreme, all rows batched, over every variable as a continuous one (finite-difference
+   gradient and Hessian inside the box, variables pushing out of it held at their bound, a
+   projected line search) until no step gains more than 1e-14 in ln y.
 
 What is proven and what is not:
 
@@ -31,12 +30,15 @@ What is proven and what is not:
   sides; over the rail box r runs between its corner values, so the rail extremes of f are a
   corner or the balanced line: steps 1 and 2 alone are exact there. Amplitude (VH + VL)·k and
   duty VL/(VH + VL) are monotone in each rail.
-- Part values: with zero bias current and infinite GBW the period is increasing in
-  k = R1/R2 and in R3·C1 (both enter only the ramp term k·(VH + VL)²·R3·C1/(a·b), a, b > 0),
-  so R1, R2, R3 and C1 sit at corners of the frequency extremes. Temperature moves several
-  values by linear factors (1 + tc·ΔT) whose product is not monotone in general (R3 at +50 and
-  C1 at -50 ppm/°C make R3·C1 smallest at 25 °C, by 2.5e-9·ΔT²): it is searched as a
-  continuous variable like the rest.
+- Part values (no pot): with zero bias current and infinite GBW, a = VH - Ve, b = VL + Ve and
+  the switching delays do not depend on R1, R2, R3 or C1. Period and duty depend on them only
+  through the ramp term k·(VH + VL)·R3·C1 (the period is affine and increasing in it, the
+  duty a ratio of two affine functions of it, so monotone), and the amplitude
+  (VH + VL)·k + (overshoot terms)/(R3·C1) rises with k and falls with R3·C1: each part sits
+  at an end of its tolerance at every extreme. Temperature moves several values by linear
+  factors (1 + tc·ΔT) whose product is not monotone in general (R3 at +50 and C1 at
+  -50 ppm/°C make R3·C1 largest at 25 °C, by 2.5e-9·ΔT²): it is searched as a continuous
+  variable like the rest.
 - With slew, delay, GBW, offsets and bias the objectives are smooth but not concave; step 3 is
   a bounded local optimiser from several starts, which finds a local extreme (every free
   variable stationary, every held one pushing out of the box). That is not a proof of the
@@ -54,6 +56,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from tristock.boxnewton import maximise
 from tristock.design import Design
 from tristock.spec import Spec
 from tristock.spread import (
@@ -77,15 +80,6 @@ BOX_CORNER_VARIABLES = 16
 #: Best corners per extreme kept as starts, and balanced-swing points derived from them.
 CORNER_STARTS = 3
 BALANCED_STARTS = 3
-#: Finite-difference step of the Newton derivatives, in normalised units of z.
-NEWTON_STEP = 1e-3
-#: A row stops when its best step gains less than this (in ln y).
-NEWTON_TOLERANCE = 1e-14
-#: At most this many Newton iterations per row.
-NEWTON_ITERATIONS = 16
-#: Step lengths tried along the Newton direction and (as a share of the box) the gradient.
-_NEWTON_LADDER = 2.0 ** np.arange(2, -13, -1)
-_GRADIENT_LADDER = 2.0 ** np.arange(1, -12, -2)
 #: The six objectives: (column of METRICS, sign), lo before hi.
 _OBJECTIVES = tuple((m, s) for m in range(len(METRICS)) for s in (-1.0, 1.0))
 
@@ -236,95 +230,6 @@ def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatAr
     return np.clip(root, -1.0, 1.0)
 
 
-def _stencil(n: int) -> tuple[FloatArray, IntArray, IntArray]:
-    """Offsets (P, n), in steps, of the derivative stencil: the point, one and two steps along
-    each variable, one step along each pair; with the pair indices (i < j)."""
-    i, j = np.triu_indices(n, 1)
-    offsets = np.zeros((1 + 2 * n + len(i), n))
-    offsets[1 : 1 + n] = np.eye(n)
-    offsets[1 + n : 1 + 2 * n] = 2.0 * np.eye(n)
-    pairs = np.arange(len(i))
-    offsets[1 + 2 * n + pairs, i] = 1.0
-    offsets[1 + 2 * n + pairs, j] = 1.0
-    return offsets, i.astype(np.int64), j.astype(np.int64)
-
-
-def _newton_direction(
-    z: FloatArray, grad: FloatArray, hess: FloatArray
-) -> tuple[FloatArray, FloatArray]:
-    """Ascent direction |H_F|⁻¹·g_F on the free variables (those not held at a bound by a
-    gradient pointing out of the box), 0 on the held ones, and g_F; |H| flips every
-    eigenvalue to negative curvature and floors its size at 1e-9."""
-    held = ((z >= 1.0) & (grad > 0.0)) | ((z <= -1.0) & (grad < 0.0))
-    free = ~held
-    g = np.where(free, grad, 0.0)
-    n = z.shape[1]
-    h = np.where(free[:, :, None] & free[:, None, :], hess, 0.0)
-    diag = np.arange(n)
-    h[:, diag, diag] = np.where(free, hess[:, diag, diag], -1.0)
-    lam, q = np.linalg.eigh(h)
-    coef = np.einsum("rji,rj->ri", q, g) / np.maximum(np.abs(lam), 1e-9)
-    return np.where(free, np.einsum("rij,rj->ri", q, coef), 0.0), g
-
-
-def _derivatives(
-    model: _Model, z: FloatArray, metric: IntArray, sign: FloatArray, ref: FloatArray
-) -> tuple[FloatArray, FloatArray]:
-    """Gradient (R, n) and Hessian (R, n, n) of the objective at rows z, from a stencil stepping
-    inward from the nearer bound: g = σ·(-3f0 + 4f1 - f2)/(2h), H_ii = (f0 - 2f1 + f2)/h²,
-    H_ij = σiσj·(f_ij - f_i - f_j + f0)/h² (σ = ±1 the inward direction, h = NEWTON_STEP)."""
-    rows, n = z.shape
-    h = NEWTON_STEP
-    offsets, i, j = _stencil(n)
-    inward = np.where(z <= 0.0, 1.0, -1.0)
-    points = z[:, None, :] + h * offsets[None, :, :] * inward[:, None, :]
-    f, _ = model.objective(points, metric, sign, ref)
-    f0, f1, f2, fij = f[:, :1], f[:, 1 : 1 + n], f[:, 1 + n : 1 + 2 * n], f[:, 1 + 2 * n :]
-    grad = inward * (-3.0 * f0 + 4.0 * f1 - f2) / (2.0 * h)
-    hess = np.zeros((rows, n, n))
-    diag = np.arange(n)
-    hess[:, diag, diag] = (f0 - 2.0 * f1 + f2) / h**2
-    cross = (fij - f1[:, i] - f1[:, j] + f0) * inward[:, i] * inward[:, j] / h**2
-    hess[:, i, j] = cross
-    hess[:, j, i] = cross
-    return grad, hess
-
-
-def _ascend(
-    model: _Model, z: FloatArray, y: FloatArray, metric: IntArray, sign: FloatArray
-) -> tuple[FloatArray, FloatArray]:
-    """Projected Newton ascent of sign·ln y from every row of z (where the metric is y) at
-    once; the final rows and their metric values."""
-    z, y, ref = z.copy(), y.copy(), y.copy()
-    phi = np.zeros(len(z))
-    moving = np.arange(len(z))
-    for _ in range(NEWTON_ITERATIONS):
-        if not moving.size:
-            break
-        zm, mm, sm, rm = z[moving], metric[moving], sign[moving], ref[moving]
-        grad, hess = _derivatives(model, zm, mm, sm, rm)
-        step, g = _newton_direction(zm, grad, hess)
-        g_dir = g / np.maximum(np.abs(g).max(axis=1, keepdims=True), 1e-300)
-        trial = np.concatenate(
-            [
-                zm[:, None, :] + _NEWTON_LADDER[None, :, None] * step[:, None, :],
-                zm[:, None, :] + _GRADIENT_LADDER[None, :, None] * g_dir[:, None, :],
-            ],
-            axis=1,
-        )
-        trial = np.clip(trial, -1.0, 1.0)
-        vals, ys = model.objective(trial, mm, sm, rm)
-        at = np.arange(len(moving))
-        best = np.argmax(vals, axis=1)
-        gain = vals[at, best]
-        better = gain > phi[moving] + NEWTON_TOLERANCE
-        z[moving[better]] = trial[at, best][better]
-        y[moving[better]] = ys[at, best][better]
-        phi[moving[better]] = gain[better]
-        moving = moving[better]
-    return z, y
-
-
 def _search(
     board: Board,
     variables: list[SpreadVariable],
@@ -350,7 +255,12 @@ def _search(
     owner_of = np.asarray(owner, dtype=np.int64)
     metric = np.asarray([objectives[o][0] for o in owner], dtype=np.int64)
     sign = np.asarray([objectives[o][1] for o in owner], dtype=float)
-    z, vals = _ascend(model, np.vstack(starts), np.concatenate(start_vals), metric, sign)
+    ref = np.concatenate(start_vals)
+
+    def objective(rows: IntArray, z: FloatArray) -> tuple[FloatArray, FloatArray]:
+        return model.objective(z, metric[rows], sign[rows], ref[rows])
+
+    z, vals = maximise(objective, np.vstack(starts), np.zeros(len(ref)), ref)
     rows_out, vals_out = [], []
     for o in range(len(objectives)):
         own = np.flatnonzero(owner_of == o)
