@@ -7,6 +7,8 @@ The library is organised one idea per module:
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API).
 - ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
+- ``spread``, ``worstcase``, ``boxnewton``: the spread box of one design (tolerances, rails,
+  temperature, op-amp spread) and its extremes (corners, balanced rails, projected Newton).
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
   time-domain verification; plots; JSON reports.
 - ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.
