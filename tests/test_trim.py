@@ -763,7 +763,7 @@ def test_cli_design_example_trimmed_prints_its_table(capsys: pytest.CaptureFixtu
     assert len(rows) == example_spec().ranking.top
     first = example_result().candidates[0]
     assert first.parts["RV1"].id in out
-    assert "Every corner reaches" in out and "(trimmed)" in out
+    assert "Every board reaches" in out and "(trimmed)" in out
 
 
 def test_cli_analyse_and_simulate_a_trimmed_design_file(

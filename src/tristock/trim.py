@@ -320,7 +320,7 @@ def _recheck(
     samples: int,
     seed: int,
 ) -> tuple[list[Candidate], int, int]:
-    """The first ``top`` rows that the full model confirms (coverage at the corners, drift
+    """The first ``top`` rows that the full model confirms (coverage over the box, drift
     after trimming), as candidates; also the count dropped and the rows looked at."""
     assert spec.trim is not None
     target = spec.target.target_hz
@@ -430,7 +430,7 @@ def _reasons(spec: Spec, model: SearchModel, pots: list[Pot], dropped: int) -> l
     if dropped:
         return [
             f"{dropped} combination(s) covered the target in the search model, but the full "
-            "model's corners leave a board that cannot be trimmed to it"
+            "model's spread box holds a board that cannot be trimmed to it"
         ]
     m = spec.trim.margin_pct
     text = (

@@ -605,7 +605,7 @@ def _reasons(
         if dropped:
             out.append(
                 f"{dropped} capacitor set(s) covered the span in the search model, but the full "
-                "model's corners open a gap between ranges"
+                "model's spread box opens a gap between ranges"
             )
         return out
     best = int(count.min()) if len(count) else MAX_RANGES + 1

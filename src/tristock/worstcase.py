@@ -50,7 +50,7 @@ from __future__ import annotations
 
 import functools
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -92,7 +92,9 @@ class WorstCase:
     duty_high) to the setting of every spread variable there, as text ({"R1": "9.9 kΩ
     (-1 %)", "V-": "-9.6 V (-4.05 %)", ...}); a setting may lie inside the box. ``method`` is
     "corners+box" or "local_search+box" (module docstring: first step, then balanced swing and
-    projected Newton). ``evaluations`` counts model evaluations.
+    projected Newton). ``evaluations`` counts model evaluations. ``deviations`` gives the
+    same settings as numbers: the deviation z in [-1, 1] of each of ``variables``, in order
+    (``tristock.spread``; library only, not in ``to_dict``).
     """
 
     frequency_hz: tuple[float, float]
@@ -102,6 +104,7 @@ class WorstCase:
     method: str
     variables: tuple[str, ...]
     evaluations: int
+    deviations: dict[str, tuple[float, ...]] = field(default_factory=dict)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -243,7 +246,8 @@ def _search(
         vals = np.array([corner_vals[o][0, m] for o, (m, _) in enumerate(objectives)])
         return np.zeros((len(objectives), 0)), vals, first, model.evaluations
     balanced = [np.unique(balanced_points(board, variables, rows), axis=0) for rows in corner_rows]
-    balanced_vals = model(np.vstack(balanced))
+    stacked = np.vstack(balanced)
+    balanced_vals = model(stacked) if len(stacked) else np.empty((0, len(METRICS)))
     starts, start_vals, owner, first_row = [], [], [], 0
     for o, (m, s) in enumerate(objectives):
         mine = slice(first_row, first_row + len(balanced[o]))
@@ -283,16 +287,18 @@ def worst_case(
         raise ValueError(f"max_corner_variables: must be >= 0, got {max_corner_variables}")
     board, variables = spread_board(design, spec)
     rows, vals, method, evaluations = _search(board, variables, _OBJECTIVES, max_corner_variables)
-    bounds, corners = {}, {}
+    bounds, corners, deviations = {}, {}, {}
     for o, (m, s) in enumerate(_OBJECTIVES):
         key = f"{METRICS[m]}_{'hi' if s > 0 else 'lo'}"
         bounds[key] = float(vals[o])
         corners[key] = {v.name: v.describe(float(rows[o, i])) for i, v in enumerate(variables)}
+        deviations[key] = tuple(float(x) for x in rows[o])
     return WorstCase(
         frequency_hz=(bounds["frequency_hz_lo"], bounds["frequency_hz_hi"]),
         amplitude_vpp=(bounds["amplitude_vpp_lo"], bounds["amplitude_vpp_hi"]),
         duty_high=(bounds["duty_high_lo"], bounds["duty_high_hi"]),
         corners=corners,
+        deviations=deviations,
         method=method,
         variables=tuple(v.name for v in variables),
         evaluations=evaluations,
