@@ -221,7 +221,7 @@ def test_worst_case_bounds_contain_every_monte_carlo_sample(distribution: str) -
     # Common practice: the worst-case envelope holds every sample of the same spread.
     design, spec = real_design(), REAL_SPEC
     wc = worst_case(design, spec)
-    assert wc.method == "corners"
+    assert wc.method == "corners+box"
     assert len(wc.variables) == 12
     mc = monte_carlo(design, spec, samples=20000, seed=5, distribution=distribution)  # type: ignore[arg-type]
     for metric in ("frequency_hz", "amplitude_vpp", "duty_high"):
@@ -238,9 +238,9 @@ def test_class_ii_capacitor_adds_its_band_and_the_local_search_finds_the_corner_
     spec = REAL_SPEC
     searched = worst_case(design, spec)
     assert "C1.temp" in searched.variables and len(searched.variables) == 13
-    assert searched.method == "local_search"
+    assert searched.method == "local_search+box"
     full = worst_case(design, spec, max_corner_variables=13)
-    assert full.method == "corners"
+    assert full.method == "corners+box"
     for metric in ("frequency_hz", "amplitude_vpp", "duty_high"):
         assert getattr(searched, metric) == pytest.approx(getattr(full, metric), rel=1e-12)
     assert searched.evaluations < full.evaluations

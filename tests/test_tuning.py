@@ -395,13 +395,16 @@ def test_every_range_is_guaranteed_by_corner_brute_force_and_the_chain_covers(ca
         for s, r in enumerate(c.tuning.ranges):
             at = dataclasses.replace(d, selected=s)
             # corner brute force (reference): the slowest setting any board needs at the low
-            # end is the highest low corner; the top every board reaches is the lowest high one
+            # end is the highest low corner; the top every board reaches is the lowest high one.
+            # The reported range is the box bound (worstcase.box_extremes): at least as wide as
+            # every corner, and only second-order wider (interior rails and offsets)
             g_low = float(design_corners(at, spec, lo_end).max())
             g_high = float(design_corners(at, spec, hi_end).min())
-            assert r.guaranteed_low_hz == pytest.approx(g_low, rel=1e-9), (c.rank, s)
-            assert r.guaranteed_high_hz == pytest.approx(g_high, rel=1e-9), (c.rank, s)
-            assert g_low < g_high
-            guaranteed.append((g_low, g_high))
+            low, high = r.guaranteed_low_hz, r.guaranteed_high_hz
+            assert g_low * (1 - 1e-12) <= low <= g_low * (1 + 1e-3), (c.rank, s)
+            assert g_high * (1 - 1e-3) <= high <= g_high * (1 + 1e-12), (c.rank, s)
+            assert low < high
+            guaranteed.append((low, high))
         assert guaranteed[0][0] <= tu.low_hz
         assert guaranteed[-1][1] >= tu.high_hz
         for (_, top), (bottom, _) in itertools.pairwise(guaranteed):

@@ -10,6 +10,8 @@ The library is organised one idea per module:
   ranges of a run's settings; ``examples``: the bundled specs and demo catalog.
 - ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
+- ``spread``, ``worstcase``, ``boxnewton``: the spread box of one design (tolerances, rails,
+  temperature, op-amp spread) and its extremes (corners, balanced rails, projected Newton).
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
   time-domain verification; plots; JSON reports.
 - ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.

@@ -53,7 +53,7 @@ class TrimOut(_Out):
 
     wiper_nominal: float
     range_hz: list[float]  # nominal frequency at wiper 1 and 0 (full travel)
-    reach_hz: list[float]  # every corner reaches at least this span inside the margins
+    reach_hz: list[float]  # every board of the spread box reaches this span inside the margins
     margin_pct: float
     resolution_pct_per_pct: float  # % of frequency per % of travel at the target
     drift_after_trim_pct: float  # over the temperature range, wiper fixed after trimming

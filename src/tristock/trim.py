@@ -22,7 +22,7 @@ not modelled); each answer's drift is then taken from the full model at the temp
 
 Ranking (for every ``ranking.by``): resolution, then post-trim drift, then cost, then stock
 codes. Exact within the search model; each answer is re-checked by brute force over the full
-model's corners (``analysis.corner_extremes``) at both margins and dropped if it fails.
+model's spread box (``worstcase.box_extremes``) at both margins and dropped if it fails.
 """
 
 from __future__ import annotations
@@ -34,7 +34,7 @@ import time
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import analyse, corner_extremes
+from tristock.analysis import analyse
 from tristock.catalog import Catalog
 from tristock.design import Design, rails_from_supply
 from tristock.parts import Pot
@@ -44,6 +44,7 @@ from tristock.search.explain import opamp_exclusions
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.targetpoint import pair_spread, target_array
 from tristock.spec import Spec
+from tristock.worstcase import box_extremes
 
 _Q = SCORE_RESOLUTION
 #: Coarsest trim resolution searched (% per % of travel): beyond it a trimmer is a tuning control.
@@ -294,14 +295,16 @@ def _best(model: SearchModel, pots: list[Pot], rows: _Trimmed, top: int) -> _Tri
 
 
 def coverage(design: Design, spec: Spec) -> tuple[float, float]:
-    """(highest f any corner has at wiper 1 - m, lowest f any corner has at wiper m): brute
-    force over the full model's corners (``analysis.corner_extremes``). Every board can be
-    trimmed to the target when the first is <= target <= the second."""
+    """(highest f any board of the spread box has at wiper 1 - m, lowest f any has at wiper
+    m): the full model's box extremes (``worstcase.box_extremes``: every corner, balanced
+    rails, projected Newton). Every board can be trimmed to the target when the first is
+    <= target <= the second."""
     assert spec.trim is not None
     m = spec.trim.margin_pct / 100
-    at_m = corner_extremes(dataclasses.replace(design, wiper=m), spec)["frequency_hz"]
-    at_far = corner_extremes(dataclasses.replace(design, wiper=1 - m), spec)["frequency_hz"]
-    return at_far[1], at_m[0]
+    frequency = ("frequency_hz",)
+    at_m = box_extremes(dataclasses.replace(design, wiper=m), spec, frequency)["frequency_hz"]
+    at_far = box_extremes(dataclasses.replace(design, wiper=1 - m), spec, frequency)
+    return at_far["frequency_hz"][1], at_m[0]
 
 
 def drift_after_trim(design: Design, spec: Spec) -> float:
@@ -323,7 +326,7 @@ def _recheck(
     samples: int,
     seed: int,
 ) -> tuple[list[Candidate], int, int]:
-    """The first ``top`` rows that the full model confirms (coverage at the corners, drift
+    """The first ``top`` rows that the full model confirms (coverage over the box, drift
     after trimming), as candidates; also the count dropped and the rows looked at."""
     assert spec.trim is not None
     target = spec.target.target_hz
@@ -345,9 +348,12 @@ def _recheck(
             rv1=pots[rows.v[n]],
             wiper=float(np.clip(rows.wiper[n], 0, 1)),
         )
-        reach_lo, reach_hi = coverage(d, spec)
         drift = drift_after_trim(d, spec)
-        if not reach_lo <= target <= reach_hi or (limit is not None and 100 * drift > limit):
+        if limit is not None and 100 * drift > limit:
+            dropped += 1
+            continue
+        reach_lo, reach_hi = coverage(d, spec)  # the box search: after the cheaper drift check
+        if not reach_lo <= target <= reach_hi:
             dropped += 1
             continue
         key = _key(model, pots, rows, n)
@@ -430,7 +436,7 @@ def _reasons(spec: Spec, model: SearchModel, pots: list[Pot], dropped: int) -> l
     if dropped:
         return [
             f"{dropped} combination(s) covered the target in the search model, but the full "
-            "model's corners leave a board that cannot be trimmed to it"
+            "model's spread box holds a board that cannot be trimmed to it"
         ]
     m = spec.trim.margin_pct
     text = (

@@ -22,7 +22,7 @@ exactly n capacitors per combination comes from a dynamic programme, walked in o
 bound until no combination can be cheaper. For the finalists CP-SAT chooses the n capacitors
 jointly: a chain of allowed neighbour transitions, minimising cost and then the largest excess
 overlap (evenness). Every answer is
-re-checked against the full model's corners (``analysis.corner_extremes``) at both ends of
+re-checked against the full model's spread box (``worstcase.box_extremes``) at both ends of
 every range and dropped if a range or an overlap fails.
 """
 
@@ -37,7 +37,7 @@ import numpy as np
 from numpy.typing import NDArray
 from ortools.sat.python import cp_model
 
-from tristock.analysis import analyse, corner_extremes
+from tristock.analysis import analyse
 from tristock.catalog import Catalog
 from tristock.design import Design, rails_from_supply
 from tristock.eseries import is_member
@@ -55,6 +55,7 @@ from tristock.search.explain import opamp_exclusions
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.targetpoint import pair_spread, target_array
 from tristock.spec import FrequencySpec, Spec
+from tristock.worstcase import box_extremes
 
 PAIRS_PER_OPAMP = 3
 MAX_RANGES = 8
@@ -358,20 +359,22 @@ def _choose_caps(
 def _range_checks(
     design: Design, spec: Spec
 ) -> list[tuple[float, float, float, float, float, float]]:
-    """Per range (C1 first): nominal low/high, corner-guaranteed low/high (Hz), and the lowest
-    and highest triangle amplitude (Vpp) at the two ends of the dial (nominal, or over the
-    corners when the spec guarantees the worst case)."""
+    """Per range (C1 first): nominal low/high, guaranteed low/high over the spread box (Hz),
+    and the lowest and highest triangle amplitude (Vpp) at the two ends of the dial (nominal,
+    or over the box when the spec guarantees the worst case)."""
     lo_end, hi_end = (1.0, 0.0) if design.control == "series" else (0.0, 1.0)
     rails = rails_from_supply(spec.supply)
+    worst = spec.limits.guarantee == "worst_case"
+    metrics = ("frequency_hz", "amplitude_vpp") if worst else ("frequency_hz",)
     out = []
     for s in range(len(design.capacitors)):
         at = dataclasses.replace(design, selected=s)
         lo = dataclasses.replace(at, wiper=lo_end)
         hi = dataclasses.replace(at, wiper=hi_end)
-        lo_c, hi_c = corner_extremes(lo, spec), corner_extremes(hi, spec)
+        lo_c, hi_c = box_extremes(lo, spec, metrics), box_extremes(hi, spec, metrics)
         osc_lo, osc_hi = lo.oscillator(rails), hi.oscillator(rails)
         amps: tuple[float, ...]
-        if spec.limits.guarantee == "worst_case":
+        if worst:
             amps = (*lo_c["amplitude_vpp"], *hi_c["amplitude_vpp"])
         else:
             amps = (float(osc_lo.amplitude_vpp), float(osc_hi.amplitude_vpp))
@@ -604,7 +607,7 @@ def _reasons(
         if dropped:
             out.append(
                 f"{dropped} capacitor set(s) covered the span in the search model, but the full "
-                "model's corners open a gap between ranges"
+                "model's spread box opens a gap between ranges"
             )
         return out
     best = int(count.min()) if len(count) else MAX_RANGES + 1

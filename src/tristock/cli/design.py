@@ -99,7 +99,7 @@ def _trim_table(result: DesignResult) -> list[str]:
     best = result.candidates[0].trim
     assert best is not None
     lines.append(
-        f"\nEvery corner reaches {format_value(best.reach_hz[0], 'Hz', 5)}.."
+        f"\nEvery board reaches {format_value(best.reach_hz[0], 'Hz', 5)}.."
         f"{format_value(best.reach_hz[1], 'Hz', 5)} inside the wiper margins of "
         f"{best.margin_pct:g} % (rank 1)."
     )

@@ -12,11 +12,11 @@ from collections import Counter
 from tristock.catalog import Catalog
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import SearchModel, build_model
+from tristock.spec import Spec
+from tristock.units import format_value
 
 #: The largest timing share the model itself allows (``spec.LimitsSpec.max_timing_share``).
 MODEL_TIMING_LIMIT = 0.4
-from tristock.spec import Spec
-from tristock.units import format_value
 
 
 def _series_text(model: SearchModel) -> str:
