@@ -107,6 +107,12 @@ def reoptimise(
         if top is not None:
             data["ranking"]["top"] = top
         spec = parse_spec(data)
+    if spec.trimmed:
+        from tristock.trim.reoptimise import reoptimise_trimmed
+
+        return reoptimise_trimmed(
+            spec, catalog, current, without=without, time_limit_s=time_limit_s, samples=samples
+        )
     missing = [d for d in DESIGNATORS if d not in current]
     if missing:
         raise SpecError([f"parts.{d}: missing" for d in missing])
