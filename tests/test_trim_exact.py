@@ -80,8 +80,11 @@ def _period(u: OpAmp, vh: float, vl: float, r1: F64, r2: F64, r: F64, c: F64) ->
     return out
 
 
-def accepted_rows(spec: Spec, catalog: Catalog) -> list[tuple[tuple[Any, ...], Design]]:
-    """Every combination the rules accept before the box coverage check, ranked."""
+def accepted_rows(
+    spec: Spec, catalog: Catalog, choices: dict[str, list[Any]] | None = None
+) -> list[tuple[tuple[Any, ...], Design]]:
+    """Every combination the rules accept before the box coverage check, ranked; ``choices``
+    narrows designators (U1, R1, R2, R3, C1, RV1) to the parts listed."""
     assert spec.trim is not None
     rails = rails_from_supply(spec.supply)
     boards = spec.build.boards
@@ -95,14 +98,17 @@ def accepted_rows(spec: Spec, catalog: Catalog) -> list[tuple[tuple[Any, ...], D
     res = [r for r in catalog.resistors if r.stock >= boards]
     caps = [c for c in catalog.capacitors if c.stock >= boards and c.dielectric in lim.dielectrics]
     pots = [p for p in catalog.pots if p.kind == "trimmer" and p.stock >= boards]
+    pick = choices or {}
+    lists = [[x for x in table if x in pick.get(name, table)]
+             for name, table in (("R1", res), ("R2", res), ("R3", res), ("C1", caps),
+                                 ("RV1", pots))]  # fmt: skip
     out = []
-    grid = np.indices((len(res), len(res), len(res), len(caps), len(pots))).reshape(5, -1)
+    grid = np.indices(tuple(len(x) for x in lists)).reshape(5, -1)
     i1, i2, i3, j, v = grid
-    rv_ = np.array([r.value_ohm for r in res])
-    r1, r2, r3 = rv_[i1], rv_[i2], rv_[i3]
-    c = np.array([x.value_f for x in caps])[j]
-    rv = np.array([p.value_ohm for p in pots])[v]
-    for u in catalog.opamps:
+    r1, r2, r3 = (np.array([r.value_ohm for r in lists[n]])[g] for n, g in enumerate(grid[:3]))
+    c = np.array([x.value_f for x in lists[3]])[j]
+    rv = np.array([p.value_ohm for p in lists[4]])[v]
+    for u in [o for o in catalog.opamps if o in pick.get("U1", catalog.opamps)]:
         if not _eligible_opamp(u, spec):
             continue
         try:
@@ -122,7 +128,8 @@ def accepted_rows(spec: Spec, catalog: Catalog) -> list[tuple[tuple[Any, ...], D
             lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
         alpha = (lo + hi) / 2
         for x, a0 in zip(n.tolist(), alpha.tolist(), strict=True):
-            d = Design(u, res[i1[x]], res[i2[x]], res[i3[x]], caps[j[x]], rv1=pots[v[x]], wiper=a0)
+            d = Design(u, lists[0][i1[x]], lists[1][i2[x]], lists[2][i3[x]], lists[3][j[x]],
+                       rv1=lists[4][v[x]], wiper=a0)  # fmt: skip
             key = _key(spec, d, vh, vl, m, t_t, a_t, ta, env.temp_min_c, env.temp_max_c)
             if key is not None:
                 out.append((key, d))

@@ -77,7 +77,7 @@ def nominal_wiper(design: Design, spec: Spec) -> float | None:
         return None
     if lo == 0:
         return 0.0
-    return float(brentq(error, 0.0, 1.0, xtol=1e-15, rtol=4e-16))
+    return float(brentq(error, 0.0, 1.0, xtol=1e-15, rtol=1e-15))
 
 
 def frequency_range(design: Design, spec: Spec) -> list[float]:
