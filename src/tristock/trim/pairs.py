@@ -13,6 +13,7 @@ terms of the resolution bound (``trim.cells``).
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -24,6 +25,8 @@ from tristock.trim.probes import SLACK, pair_windows
 
 #: Windows are widened by this relative amount so rounding never drops a row on an edge.
 EDGE = 1e-9
+#: Pairs whose windows are sought in one vectorised step (the deadline is checked between).
+PAIR_CHUNK = 2048
 
 
 @dataclass
@@ -105,14 +108,15 @@ def _pair_indices(ctx: TrimContext) -> tuple[I64, I64, I64]:
     return np.concatenate(us), np.concatenate(i1s), np.concatenate(i2s)
 
 
-def build_pairs(ctx: TrimContext) -> Pairs:
+def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
     """Pairs that can meet the amplitude band and the timing limit at the target (module
-    docstring), with their nominal and probe P bounds."""
+    docstring), with their nominal and probe P bounds; False when the deadline cut the
+    listing (the pairs are then incomplete)."""
     model, spec = ctx.model, ctx.spec
     res, cap, pots = model.resistors, model.capacitors, ctx.pots
     u, i1, i2 = _pair_indices(ctx)
     if len(u) == 0 or len(cap) == 0 or len(pots) == 0:
-        return _no_pairs()
+        return _no_pairs(), True
     k = res.value[i1] / res.value[i2]
     loop = nominal_loop(ctx, u)
     t_t = ctx.target_period_s
@@ -132,11 +136,28 @@ def build_pairs(ctx: TrimContext) -> Pairs:
         k * (res.value.max() + (1 - m) * pots.value.max()) * cap.value.max(),
         t_t * largest_drive_product(loop) / span**2 * (1 + EDGE),
     )
-    keep = _amplitude_and_share(ctx, loop, k, p_lo, p_hi)
-    sel = np.flatnonzero(keep)
-    u, i1, i2 = u[sel], i1[sel], i2[sel]
-    k, p_lo, p_hi = k[sel], p_lo[sel], p_hi[sel]
-    loop = loop.take(sel)
+    sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))
+    parts: list[Pairs] = []
+    for start in range(0, len(sel), PAIR_CHUNK):
+        if time.perf_counter() > deadline:
+            return _no_pairs(), False
+        n = sel[start : start + PAIR_CHUNK]
+        parts.append(_windowed(ctx, loop.take(n), u[n], i1[n], i2[n], k[n], p_lo[n], p_hi[n]))
+    if not parts:
+        return _no_pairs(), True
+    return Pairs(
+        **{f: np.concatenate([getattr(p, f) for p in parts]) for f in Pairs.__dataclass_fields__}
+    ), True
+
+
+def _windowed(
+    ctx: TrimContext, loop: OpAmpLoop, u: I64, i1: I64, i2: I64, k: F64, p_lo: F64, p_hi: F64
+) -> Pairs:
+    """The pairs whose exact window at the target keeps the amplitude and the timing share
+    possible, with their probe bounds."""
+    model = ctx.model
+    res = model.resistors
+    t_t = ctx.target_period_s
     w = window(loop, k, np.full(len(u), t_t * (1 - SLACK)), np.full(len(u), t_t * (1 + SLACK)))
     p_lo, p_hi = np.maximum(p_lo, w.lo), np.minimum(p_hi, w.hi)
     sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))

@@ -211,6 +211,11 @@ def reoptimise_trimmed(
         for changed in sets:
             model = dataclasses.replace(ctx.model, allowed=_masks(ctx, changed, pinned))
             searches.append(TrimSearch(dataclasses.replace(ctx, model=model), deadline))
+            if time.perf_counter() > deadline:
+                break  # the walk below sees an incomplete set of searches as cut
+        if len(searches) < len(sets):
+            walked = WalkResult(proven=False, cut=True)
+            break
         walked = walk(
             searches,
             spec.ranking.top,

@@ -29,14 +29,14 @@ import numpy as np
 from tristock.trim.cells import Cells, CellSource, expand, no_cells
 from tristock.trim.checks import covers
 from tristock.trim.context import TrimContext, quantise_score
-from tristock.trim.pairs import Pairs, build_pairs
+from tristock.trim.pairs import build_pairs
 from tristock.trim.rows import BOUND_SLACK, RowStats, TrimRows, evaluate, row_design
 
 #: The bound of a search with nothing left to open.
 EXHAUSTED = 1 << 62
 #: Rows evaluated in the first batch; each later batch doubles, up to ``MAX_BATCH``.
 FIRST_BATCH = 256
-MAX_BATCH = 1 << 15
+MAX_BATCH = 1 << 12
 
 
 class TrimSearch:
@@ -48,9 +48,9 @@ class TrimSearch:
     def __init__(self, ctx: TrimContext, deadline: float) -> None:
         self.ctx = ctx
         self.stats = RowStats()
-        self.pairs: Pairs = build_pairs(ctx)
+        self.pairs, listed = build_pairs(ctx, deadline)
         self.source = CellSource(ctx, self.pairs, deadline)
-        self.complete = self.source.complete
+        self.complete = listed and self.source.complete
         self.bounds_held = True
         self.cells: Cells = no_cells()  # the current band
         self.next = 0
