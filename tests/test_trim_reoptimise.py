@@ -23,7 +23,7 @@ from typing import Any
 import pytest
 
 from test_trim import DEMO_DIR, demo, design_corners, design_of, example_result, example_spec
-from test_trim_exact import accepted_rows, box_covers, small_catalog, small_spec
+from trim_reference import accepted_rows, box_covers, small_catalog, small_spec
 from tristock.catalog import Catalog
 from tristock.cli import main
 from tristock.parts import Part

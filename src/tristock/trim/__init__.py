@@ -8,6 +8,10 @@ inside [m, 1 - m] (m = ``trim.margin_pct``), when the nominal board's trimmed op
 meets the fixed design's rules, and when it stays within the drift limit after trimming
 (``trim.rows`` lists every rule and the operating point it applies at).
 
+A trimmed design's guarantee is its coverage: ``limits.guarantee`` (the worst case or yield of
+a fixed design's frequency band) and the ``[frequency]`` tolerance do not apply, since every
+board is trimmed to the target itself.
+
 Ranking, for every ``ranking.by``: finest trim resolution |d ln f/dα| at the nominal wiper α0
 (where the nominal board runs at the target; % of frequency per % of travel), then the drift
 after trimming (the change of f over the temperature range with the wiper left at α0), then

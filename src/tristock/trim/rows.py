@@ -39,7 +39,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.design import Design
-from tristock.search.bounds import period_bounds
+from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.rows import RowPrediction
 from tristock.trim.context import (
     F64,
@@ -130,6 +130,29 @@ def _monotone(ctx: TrimContext, u: I64, k: F64, r3: F64, rv: F64, c: F64) -> NDA
         return np.asarray(np.abs(ib) * t_hi < k * c * span * (1 - 1e-12))
 
 
+def held_to_bounds(ctx: TrimContext, u: I64, k: F64, r_eff: F64, c: F64, rp: RowPrediction) -> bool:
+    """Whether the full model's period and amplitude at these rows lie inside the bounds of
+    ``search.bounds`` at their own P and Ve, the bounds every window here rests on (cheap
+    insurance, as the fixed search has: a model change that broke a monotonicity would
+    otherwise go unseen)."""
+    n = np.flatnonzero(rp.valid)
+    if len(n) == 0:
+        return True
+    ops = ctx.model.opamps
+    ve = np.array([o.model.offset_v for o in ops])[u[n]]
+    ve = ve + np.array([o.model.bias_a for o in ops])[u[n]] * r_eff[n]
+    loop = ctx.model.loops(u[n])._replace(ve_lo=ve, ve_hi=ve)
+    p = k[n] * r_eff[n] * c[n]
+    t = period_bounds(loop, k[n], p)
+    a = amplitude_bounds(loop, k[n], p, p)
+    period = np.asarray(rp.pred.period_s)[n]
+    amp = np.asarray(rp.pred.amplitude_vpp)[n]
+    slack = 1e-9
+    inside = (period >= t.lo * (1 - slack)) & (period <= t.hi * (1 + slack))
+    inside &= (amp >= a.lo * (1 - slack)) & (amp <= a.hi * (1 + slack))
+    return bool(inside.all())
+
+
 def solve_wiper(
     ctx: TrimContext,
     u: I64,
@@ -214,8 +237,9 @@ def evaluate(
     stats: RowStats,
 ) -> tuple[TrimRows, bool]:
     """The candidates among ``rows`` (u, i1, i2, i3, j, v) by the module docstring's rules,
-    and False when a row's resolution fell below its cell's bound ``res_lb`` (the proof
-    that ordered the cells has failed)."""
+    and False when a row's resolution fell below its cell's bound ``res_lb`` or its period or
+    amplitude at α0 left the bounds of ``search.bounds`` (a proof the search rests on has
+    failed)."""
     model = ctx.model
     res, cap, pots = model.resistors, model.capacitors, ctx.pots
     u, i1, i2, i3, j, v = rows
@@ -259,6 +283,7 @@ def evaluate(
     alpha = solve_wiper(ctx, u, (r1, r2, r3, c), rv, t_m, t_far)
     r_eff = r3 + alpha * rv
     at0 = RowPrediction.nominal(model, u, (r1, r2, r_eff, c))
+    held = held_to_bounds(ctx, u, r1 / r2, r_eff, c, at0)
     good = at0.accepted(ctx.spec, cap.voltage[j])
     stats.outside_ground += int((~good).sum())
     f25 = np.asarray(at0.pred.frequency_hz, dtype=np.float64)
@@ -287,9 +312,9 @@ def evaluate(
     )
 
     res_pp = resolution(ctx, u, r1, r2, r_eff, c, rv)
-    held = bool(np.all(res_pp >= res_lb * (1 - BOUND_SLACK) - 1e-15))
-    if not held:
-        stats.bound_violations += int((res_pp < res_lb * (1 - BOUND_SLACK) - 1e-15).sum())
+    below = res_pp < res_lb * (1 - BOUND_SLACK) - 1e-15
+    stats.bound_violations += int(below.sum()) + (not held)
+    held &= not below.any()
     stats.candidates += len(u)
     out = TrimRows(
         u=u,
