@@ -209,3 +209,61 @@ def test_the_keys_of_the_brute_force_are_distinct() -> None:
     keys = [k for k, _ in rows]
     assert len(set(keys)) == len(keys)
     assert all(isinstance(x, int) for k in keys for x in k[:3])
+
+
+def _variant(name: str) -> tuple[Spec, Catalog]:
+    """The small room and spec with one less common setting."""
+    data = small_spec().model_dump()
+    data["ranking"]["top"] = 5
+    cat = small_catalog()
+    if name == "single supply, mid-rail reference":
+        data["supply"].update(positive_v=24.0, negative_v=0.0)
+    elif name == "class II capacitors allowed":
+        data["limits"]["dielectrics"] = ("C0G", "X7R")
+        x7r = tuple(Capacitor(f"TX-{v:g}", v, "X7R", 10.0, None, 15.0, 50.0, "0805", 0.02, 1000)
+                    for v in (2.2e-9, 4.7e-9, 10e-9))  # fmt: skip
+        cat = Catalog(cat.path, cat.resistors, cat.capacitors + x7r, cat.opamps, cat.pots)
+    elif name == "no margin":
+        data["trim"]["margin_pct"] = 0.0
+    elif name == "one temperature":
+        data["environment"].update(temp_min_c=40.0, temp_max_c=40.0)
+    elif name == "cost cap":
+        data["limits"]["max_cost"] = 0.85
+    return parse_spec(data), cat
+
+
+@pytest.mark.parametrize(
+    "name",
+    ["single supply, mid-rail reference", "class II capacitors allowed", "no margin",
+     "one temperature", "cost cap"],
+)  # fmt: skip
+def test_search_equals_brute_force_on_less_common_settings(name: str) -> None:
+    spec, cat = _variant(name)
+    want = reference(spec, cat, 5)
+    assert len(want) == 5
+    got, proven = searched(spec, cat)
+    assert proven and got == want
+
+
+@settings(
+    max_examples=15,
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much],
+)
+@given(trim_cases())
+def test_every_covering_row_is_a_candidate_on_random_catalogs(
+    case: tuple[Spec, Catalog, int],
+) -> None:
+    """The relaxations on random rooms: the exhausted search lists every row that the brute
+    force accepts and the box covers, and lists only rows the brute force accepts."""
+    spec, cat, _ = case
+    rows = accepted_rows(spec, cat)
+    accepted = {tuple(key[3:]) for key, _ in rows}
+    covering = {tuple(key[3:]) for key, d in rows if box_covers(spec, d)}
+    search = TrimSearch(trim_context(spec, cat), time.perf_counter() + TIME_LIMIT_S)
+    listed: set[Ids] = set()
+    while not search.exhausted:
+        found = search.advance()
+        listed |= {search.ids(found, n) for n in range(len(found))}
+    assert search.bounds_held
+    assert covering <= listed <= accepted
