@@ -21,7 +21,8 @@ candidate (the final coverage check, ``trim.checks.coverage``, then decides) whe
    margin. That is the operating point the board is used at: every board is trimmed to the
    target, and the nominal one sits at α0;
 5. the drift after trimming, max |f(T)/f(25 °C) - 1| over the two temperature ends with the
-   wiper left at α0 (full model, nominal rails), is within ``trim.drift_after_trim_pct``;
+   wiper left at α0 (full model, nominal rails), is finite (the board oscillates at both
+   ends) and within ``trim.drift_after_trim_pct``;
 6. no probe corner of the spread box misses the target (``trim.probes``; necessary).
 
 Scores: the resolution |d ln f/dα| at α0 = (RV/R_eff)·d ln T/d ln R_eff, computed as the
@@ -200,11 +201,12 @@ def resolution(ctx: TrimContext, u: I64, r1: F64, r2: F64, r_eff: F64, c: F64, r
     return np.asarray(np.abs(rv / r_eff * d), dtype=np.float64)
 
 
-def drift_after_trim(
+def drift_at_wiper(
     ctx: TrimContext, u: I64, parts: tuple[I64, I64, I64, I64, I64], wiper: F64, f25: F64
 ) -> F64:
     """max |f(T)/f(25 °C) - 1| over the temperature ends, the wiper at ``wiper``: every value
-    moved by its tempco as ``Design.oscillator`` does, rails nominal."""
+    moved by its tempco as ``Design.oscillator`` does, rails nominal (inf where the loop
+    cannot oscillate at an end)."""
     i1, i2, i3, j, v = parts
     res, cap, pots = ctx.model.resistors, ctx.model.capacitors, ctx.pots
     env = ctx.spec.environment
@@ -221,8 +223,8 @@ def drift_after_trim(
             r_eff,
             at(cap.value[j], cap.tempco[j]),
         )
-        f = 1.0 / nominal_period(ctx, u, values)
-        out = np.fmax(out, np.abs(f / f25 - 1.0))
+        change = np.abs(1.0 / nominal_period(ctx, u, values) / f25 - 1.0)
+        out = np.maximum(out, np.where(np.isnan(change), np.inf, change))  # no oscillation: inf
     return out
 
 
@@ -292,12 +294,13 @@ def evaluate(
         sel, u, i1, i2, i3, j, v, cost, res_lb, r1, r2, r3, c, rv, alpha, r_eff, f25
     )
 
-    drift = drift_after_trim(ctx, u, (i1, i2, i3, j, v), alpha, f25)
-    if ctx.drift_limit is not None:
-        over = ~(drift <= ctx.drift_limit)
+    drift = drift_at_wiper(ctx, u, (i1, i2, i3, j, v), alpha, f25)
+    limit = ctx.drift_limit
+    if limit is not None or not np.isfinite(drift).all():
+        over = ~(drift <= (np.inf if limit is None else limit)) | ~np.isfinite(drift)
         stats.drift += int(over.sum())
         if over.any():
-            stats.smallest_drift = min(stats.smallest_drift, float(np.nanmin(drift[over])))
+            stats.smallest_drift = min(stats.smallest_drift, float(drift[over].min()))
         sel = np.flatnonzero(~over)
         u, i1, i2, i3, j, v, cost, res_lb, r1, r2, c, rv, alpha, r_eff, drift = _take(
             sel, u, i1, i2, i3, j, v, cost, res_lb, r1, r2, c, rv, alpha, r_eff, drift
