@@ -294,9 +294,13 @@ def test_every_corner_reaches_the_target_inside_the_wiper_margins(case: str) -> 
         fastest_far = float(design_corners(d, spec, 1 - m).max())
         slowest_near = float(design_corners(d, spec, m).min())
         assert fastest_far <= target <= slowest_near, (c.rank, fastest_far, slowest_near)
-        # the reported reach is that same brute force (the analysis's box bound)
-        assert c.trim.reach_hz == pytest.approx([fastest_far, slowest_near], rel=1e-9)
-        assert coverage(d, spec) == pytest.approx((fastest_far, slowest_near), rel=1e-9)
+        # the reported reach is the analysis's box bound: it bounds every corner, and a bound
+        # that also searches inside the box goes past them only by second-order terms
+        reach = c.trim.reach_hz
+        assert reach == pytest.approx(list(coverage(d, spec)), rel=1e-12)
+        assert fastest_far * (1 - 1e-12) <= reach[0] <= fastest_far * (1 + 1e-3)
+        assert slowest_near * (1 - 1e-3) <= reach[1] <= slowest_near * (1 + 1e-12)
+        assert reach[0] <= target <= reach[1]
         assert c.trim.margin_pct == spec.trim.margin_pct
 
 

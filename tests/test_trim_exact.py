@@ -22,13 +22,13 @@ from trim_reference import (
     Ids,
     accepted_rows,
     box_covers,
+    box_frequency,
     reference,
     searched,
     small_catalog,
     small_spec,
 )
 from tristock import eseries
-from tristock.analysis import corner_extremes
 from tristock.catalog import Catalog
 from tristock.circuit import predict
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
@@ -79,7 +79,7 @@ def test_every_covering_row_is_a_candidate_of_the_search() -> None:
 
 def test_probe_corners_lie_inside_the_box_the_final_check_bounds() -> None:
     """Each probe is a corner of the analysis's box: its frequency lies between the box's
-    extremes at the same wiper (``analysis.corner_extremes``)."""
+    extremes at the same wiper (``trim_reference.box_frequency``)."""
     spec, cat = small_spec(), small_catalog()
     ctx = trim_context(spec, cat)
     rng = np.random.default_rng(7)
@@ -91,8 +91,8 @@ def test_probe_corners_lie_inside_the_box_the_final_check_bounds() -> None:
     m = ctx.margin
     for r in range(n):
         d = ctx.design(*(int(x[r]) for x in idx), wiper=0.5)
-        near = corner_extremes(dataclasses.replace(d, wiper=m), spec)["frequency_hz"]
-        far = corner_extremes(dataclasses.replace(d, wiper=1 - m), spec)["frequency_hz"]
+        near = box_frequency(dataclasses.replace(d, wiper=m), spec)
+        far = box_frequency(dataclasses.replace(d, wiper=1 - m), spec)
         assert near[0] * (1 - 1e-12) <= slow[r] <= near[1] * (1 + 1e-12)
         assert far[0] * (1 - 1e-12) <= fast[r] <= far[1] * (1 + 1e-12)
 

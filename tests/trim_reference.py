@@ -14,7 +14,7 @@ after trimming (full model at both temperature ends, wiper at α0) is within the
 covers the boards (a code in two positions twice) and the cost the cap. Ranked by
 (resolution, drift, cost) in the documented integer steps, then stock codes, the resolution
 being |d ln f/dα| at α0 from the documented Richardson difference. The box coverage of each,
-in that order, comes from the analysis itself (``analysis.corner_extremes`` at m and 1 - m).
+in that order, comes from the analysis itself (``box_frequency`` at m and 1 - m).
 """
 
 from __future__ import annotations
@@ -200,13 +200,19 @@ def _uses(d: Design) -> list[tuple[Any, int]]:
     return [(parts[pid], n) for pid, n in counts.items()]
 
 
+def box_frequency(design: Design, spec: Spec) -> tuple[float, float]:
+    """(lowest, highest) frequency over the analysis's spread box: the analysis's own box
+    bound (today ``analysis.corner_extremes``), called from this one place."""
+    return corner_extremes(design, spec)["frequency_hz"]
+
+
 def box_covers(spec: Spec, d: Design) -> bool:
     """Every board of the analysis's box reaches the target inside the margins."""
     assert spec.trim is not None
     m = spec.trim.margin_pct / 100
     try:
-        near = corner_extremes(dataclasses.replace(d, wiper=m), spec)["frequency_hz"]
-        far = corner_extremes(dataclasses.replace(d, wiper=1 - m), spec)["frequency_hz"]
+        near = box_frequency(dataclasses.replace(d, wiper=m), spec)
+        far = box_frequency(dataclasses.replace(d, wiper=1 - m), spec)
     except ValueError:
         return False
     return far[1] <= spec.target.target_hz <= near[0]
