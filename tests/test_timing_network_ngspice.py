@@ -12,7 +12,8 @@ integrator, slew-and-delay comparator with the catalogued slew rate, delay, offs
 The model compared is ``Design.oscillator`` (``circuit.timing_network``: R3 -> R_eff,
 C1 -> C1/β) with the comparator's finite-GBW delay left out (the harness's slew comparator has
 none). Measured model-vs-ngspice frequency errors at 10 ns maximum step (``pytest -s`` prints
-them): tuned bottom -1.0e-5, tuned top +9.5e-7, trim at m +7.9e-5, trim at 1 - m -2.5e-5.
+them): tuned bottom +9.6e-6, tuned top -5.5e-5; trim at m +2.9e-5, trim at 1 - m -5.1e-7
+(the 5 kHz trimmed example).
 """
 
 from __future__ import annotations

@@ -1,4 +1,5 @@
-"""Trimmed designs (``tristock.trim``): coverage, trim resolution, ranking, JSON and CLI.
+"""Trimmed designs (``tristock.trim``): coverage, nominal wiper, resolution, drift, ranking,
+the model's ground at the trimmed point, time limits, JSON and CLI.
 
 Outside references, named beside each check:
 
@@ -7,13 +8,12 @@ Outside references, named beside each check:
   included), each rail, the temperature ends, the op-amp slew and delay spread
   (``analysis.SLEW_SPREAD``/``DELAY_SPREAD``), offsets ±typical and bias 0..2x typical;
   the pot wired by hand (series: R3 + α·RV; divider: Thévenin of the two track halves);
-- a plain brute force over every (U1, R1, R2, R3, C1, RV1) written from the coverage
-  inequalities of the ``tristock.trim`` docstring (the search model it claims to be exact in);
 - central finite differences of the full model (``Design.oscillator``) for the resolution
   and the temperature drift (common practice);
 - the catalog's own stock, price and tolerance columns.
 
-``test_tuning`` imports ``corner_frequencies`` from here (one corner brute force, not two).
+``test_trim_exact`` holds the search to a brute force over the full model; ``test_tuning``
+imports ``corner_frequencies`` from here (one corner brute force, not two).
 """
 
 from __future__ import annotations
@@ -29,8 +29,6 @@ from typing import Any
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, assume, given, settings
-from hypothesis import strategies as st
 from numpy.typing import NDArray
 
 from tristock import cli
@@ -41,9 +39,9 @@ from tristock.design import Design, rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.results import Candidate, DesignResult
 from tristock.search import design
-from tristock.search.model import SCORE_RESOLUTION, build_model
+from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec import Spec, parse_spec, read_mapping
-from tristock.trim import _RESOLUTION_CAP, coverage, design_trimmed, trimmed_top
+from tristock.trim import coverage, design_trimmed
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO_DIR = REPO / "catalogs" / "demo"
@@ -234,15 +232,23 @@ def example_spec() -> Spec:
     return parse_spec(read_mapping(EXAMPLES / "trimmed.toml"))
 
 
+#: Generous: these tests are about answers, not speed (the machine is shared).
+TIME_LIMIT_S = 120.0
+
+
 @cache
 def example_result() -> DesignResult:
     """The bundled trimmed example on the demo catalog, through ``design()``'s dispatch."""
-    return design(example_spec(), demo(), samples=SAMPLES)
+    result = design(example_spec(), demo(), samples=SAMPLES, time_limit_s=TIME_LIMIT_S)
+    assert result.search.proven_optimal
+    return result
 
 
 @cache
 def small_result() -> DesignResult:
-    return design(small_spec(), small_catalog(), samples=SAMPLES)
+    result = design(small_spec(), small_catalog(), samples=SAMPLES, time_limit_s=TIME_LIMIT_S)
+    assert result.search.proven_optimal
+    return result
 
 
 def design_of(c: Candidate, catalog: Catalog) -> Design:
@@ -269,7 +275,7 @@ CASES: dict[str, Case] = {
 
 
 # --------------------------------------------------------------------------------------------
-# Coverage
+# Coverage and the nominal wiper
 
 
 @pytest.mark.parametrize("case", sorted(CASES))
@@ -291,8 +297,8 @@ def test_every_corner_reaches_the_target_inside_the_wiper_margins(case: str) -> 
         # the reported reach is the box bound (worstcase.box_extremes: corners, balanced
         # rails, projected Newton): at least as wide as every corner, and only second-order
         # wider (interior rails and offsets; checked against a dense grid in test_worstcase)
-        reach = coverage(d, spec)
-        assert c.trim.reach_hz == pytest.approx(list(reach), rel=1e-12)
+        reach = c.trim.reach_hz
+        assert reach == pytest.approx(list(coverage(d, spec)), rel=1e-12)
         assert fastest_far * (1 - 1e-12) <= reach[0] <= fastest_far * (1 + 1e-3)
         assert slowest_near * (1 - 1e-3) <= reach[1] <= slowest_near * (1 + 1e-12)
         assert reach[0] <= target <= reach[1]
@@ -300,38 +306,86 @@ def test_every_corner_reaches_the_target_inside_the_wiper_margins(case: str) -> 
 
 
 @pytest.mark.parametrize("case", sorted(CASES))
-def test_nominal_wiper_puts_the_nominal_board_inside_the_band(case: str) -> None:
-    """At wiper_nominal the full model (25 °C, nominal rails, op amp as catalogued) lands
-    inside the spec's band. Not exact: the search model takes the GBW delay at the target
-    k and leaves out the offsets (DESIGN.md, search model), a few 1e-4 here."""
+def test_nominal_wiper_brings_the_nominal_board_to_the_target(case: str) -> None:
+    """At wiper_nominal the full model (25 °C, nominal rails, op amp as catalogued,
+    ``Design.oscillator``) runs at the target itself: α0 is solved on the full model."""
     result_of, spec_of, catalog_of = CASES[case]
     result, spec, catalog = result_of(), spec_of(), catalog_of()
     rails = rails_from_supply(spec.supply)
-    band = spec.target.tolerance_pct / 100
+    assert spec.trim is not None
+    m = spec.trim.margin_pct / 100
     for c in result.candidates:
         d = design_of(c, catalog)
         f = float(d.oscillator(rails).frequency_hz)
-        assert abs(f / spec.target.target_hz - 1) < band, (c.rank, f)
-        assert spec.trim is not None
-        m = spec.trim.margin_pct / 100
+        assert f == pytest.approx(spec.target.target_hz, rel=1e-12), c.rank
         assert m <= d.wiper <= 1 - m
+        assert c.predicted.frequency_hz == pytest.approx(spec.target.target_hz, rel=1e-12)
+
+
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_the_trimmed_point_is_inside_the_model_ground(case: str) -> None:
+    """At the nominal wiper, computed here from ``predict`` (reference, README rules): the
+    amplitude in its band, the peaks inside the integrator's swing, the integrator's slew at
+    least the slope, the timing share 1 - T_ideal/T at most max_timing_share (0.10 by
+    default), and C1's rating over the larger peak with the amplitude margin."""
+    result_of, spec_of, catalog_of = CASES[case]
+    result, spec, catalog = result_of(), spec_of(), catalog_of()
+    rails = rails_from_supply(spec.supply)
+    ta = spec.triangle.tolerance_pct / 100
+    for c in result.candidates:
+        d = design_of(c, catalog)
+        assert d.rv1 is not None
+        u = d.u1
+        vh = rails.v_pos - u.swing_pos_v
+        vl = -(rails.v_neg + u.swing_neg_v)
+        r_eff = d.r3.value_ohm + d.wiper * d.rv1.value_ohm
+        ve = u.offset_v + u.bias_a * r_eff
+        p = predict(d.r1.value_ohm, d.r2.value_ohm, r_eff, d.c1.value_f, vh, vl,
+                    slew_rise=u.slew_v_per_s, slew_fall=u.slew_v_per_s, delay=u.delay_s,
+                    gbw=u.gbw_hz, vos1=u.offset_v, ib1=u.bias_a, vos2=u.offset_v,
+                    ib2=u.bias_a)  # fmt: skip
+        a_t = spec.triangle.amplitude_vpp
+        assert a_t * (1 - ta) <= float(p.amplitude_vpp) <= a_t * (1 + ta)
+        assert float(p.peak_high_v) < vh and float(p.peak_low_v) > -vl
+        rc = r_eff * d.c1.value_f
+        assert max(vh - ve, vl + ve) / rc <= u.slew_v_per_s
+        k = d.r1.value_ohm / d.r2.value_ohm
+        ideal = (vh + vl) ** 2 * k * rc / ((vh - ve) * (vl + ve))
+        assert 1 - ideal / float(p.period_s) <= spec.limits.max_timing_share
+        peak = max(abs(float(p.peak_high_v)), abs(float(p.peak_low_v)))
+        assert d.c1.voltage_v >= peak * (1 + ta)
 
 
 def test_a_trimmer_too_small_to_cover_is_infeasible_with_numbers() -> None:
-    """The re-check is not vacuous: a trimmer too small for the spread covers nowhere, and
-    the search then says so with the target and margins in numbers."""
+    """A trimmer too small for the spread covers nowhere; the search says so with the
+    target, the margins and the trimmer's value in numbers (``test_trim_exact`` holds the
+    same catalog to the full-model brute force)."""
     cat = small_catalog()
     tiny = dataclasses.replace(cat, pots=(trimmer(100.0, 0.1),))
-    result = design_trimmed(small_spec(), tiny, time_limit_s=5.0, samples=SAMPLES)
-    assert not result.candidates
+    result = design_trimmed(small_spec(), tiny, time_limit_s=TIME_LIMIT_S, samples=SAMPLES)
+    assert not result.candidates and result.search.proven_optimal
     assert result.infeasible is not None
     (reason,) = result.infeasible.reasons
-    assert "5000 Hz" in reason and "10..90 %" in reason
-    # brute force agrees that nothing covers: with RV = 100 Ω the trim span is at most
-    # RV/R_eff of R3 >= 1 kΩ, 10 %, against a spread of several % either way
+    assert "5 kHz" in reason and "10..90 %" in reason and "100 Ω" in reason
+
+
+def test_no_trimmer_in_stock_names_the_boards_and_the_best_stock() -> None:
     spec = small_spec()
-    found = _search_model_brute_force(spec, tiny)
-    assert found == []
+    data = spec.model_dump()
+    data["build"]["boards"] = 5000
+    result = design_trimmed(parse_spec(data), small_catalog(), time_limit_s=TIME_LIMIT_S)
+    assert not result.candidates and result.infeasible is not None
+    text = " ".join(result.infeasible.reasons)
+    assert "5000 boards" in text and "has 1000" in text
+
+
+def test_a_search_cut_by_its_time_limit_is_not_proven_and_not_infeasible() -> None:
+    """Rule: a cut search says proven_optimal false, returns what it has and never calls the
+    spec infeasible (the small example does have answers)."""
+    result = design_trimmed(small_spec(), small_catalog(), time_limit_s=1e-9, samples=SAMPLES)
+    assert not result.search.proven_optimal
+    assert result.infeasible is None
+    assert result.search.time_limit_s == 1e-9
 
 
 # --------------------------------------------------------------------------------------------
@@ -341,50 +395,29 @@ def test_a_trimmer_too_small_to_cover_is_infeasible_with_numbers() -> None:
 @pytest.mark.parametrize("case", sorted(CASES))
 def test_resolution_matches_a_finite_difference_of_the_full_model(case: str) -> None:
     """resolution = |d ln f/dα| at the nominal wiper (% of f per % of travel), against a
-    central difference of the full model (step 1e-4; truncation ~1e-8, common practice).
-
-    Tolerance, from the candidate's own numbers: the search model holds the effective delay d
-    constant, but the comparator's GBW delay grows with P = k·R_eff·C1 at a rate of at most
-    1/(2π·GBW·β·P) per unit ln P (derivative of circuit.gbw_effective_delay, β = R1/(R1 + R2));
-    and its P + d is off by the nominal board's frequency error at the wiper.
-    """
+    central difference of the full model in the wiper (Design.oscillator, step 1e-5;
+    truncation ~1e-10, rounding ~1e-11: common practice)."""
     result_of, spec_of, catalog_of = CASES[case]
     result, spec, catalog = result_of(), spec_of(), catalog_of()
     rails = rails_from_supply(spec.supply)
-    h = 1e-4
+    h = 1e-5
     for c in result.candidates:
         d = design_of(c, catalog)
-        assert c.trim is not None and d.rv1 is not None
+        assert c.trim is not None
         a = d.wiper
 
         def ln_f(w: float, d: Design = d) -> float:
             return math.log(float(dataclasses.replace(d, wiper=w).oscillator(rails).frequency_hz))
 
         slope = abs(ln_f(a + h) - ln_f(a - h)) / (2 * h)
-        k = d.r1.value_ohm / d.r2.value_ohm
-        beta = d.r1.value_ohm / (d.r1.value_ohm + d.r2.value_ohm)
-        p = k * (d.r3.value_ohm + a * d.rv1.value_ohm) * d.c1.value_f
-        f0 = math.exp(ln_f(a))
-        tol = 1 / (2 * math.pi * d.u1.gbw_hz * beta * p) + abs(f0 / spec.target.target_hz - 1)
-        assert slope == pytest.approx(c.trim.resolution_pct_per_pct, rel=tol + 1e-6), c.rank
-        # the closed form of the trim docstring, k·RV·C1/(X + d), with X + d = T_target/c
-        vh = rails.v_pos - d.u1.swing_pos_v
-        vl = -(rails.v_neg + d.u1.swing_neg_v)
-        x_plus_d = vh * vl / (spec.target.target_hz * (vh + vl) ** 2)
-        closed = k * d.rv1.value_ohm * d.c1.value_f / x_plus_d
-        assert c.trim.resolution_pct_per_pct == pytest.approx(closed, rel=1e-9)
+        assert slope == pytest.approx(c.trim.resolution_pct_per_pct, rel=1e-7), c.rank
+        assert c.score == round(c.trim.resolution_pct_per_pct / SCORE_RESOLUTION)
 
 
 @pytest.mark.parametrize("case", sorted(CASES))
 def test_drift_after_trim_matches_the_full_model_over_temperature(case: str) -> None:
     """drift_after_trim_pct: the largest |f(T)/f(25 °C) - 1| at the fixed nominal wiper over
-    the temperature ends, against the full model (Design.oscillator at temperature).
-
-    The search model's value is the linear tempco sum S·ΔT; it leaves out the (tc·ΔT)²
-    terms (each <= (200 ppm/°C · 35 °C)²/2 ≈ 2.5e-5 in these catalogs) and the GBW delay's
-    dependence on β = R1/(R1 + R2) when R1 and R2 do not track (<= 5e-5 here): within
-    1e-4 of frequency, 0.01 percentage points.
-    """
+    the temperature ends, against the full model (Design.oscillator at temperature)."""
     result_of, spec_of, catalog_of = CASES[case]
     result, spec, catalog = result_of(), spec_of(), catalog_of()
     rails = rails_from_supply(spec.supply)
@@ -397,19 +430,20 @@ def test_drift_after_trim_matches_the_full_model_over_temperature(case: str) -> 
             abs(float(d.oscillator(rails, t).frequency_hz) / f25 - 1)
             for t in (env.temp_min_c, env.temp_max_c)
         )
-        assert c.trim.drift_after_trim_pct == pytest.approx(100 * full, abs=0.01), c.rank
+        assert c.trim.drift_after_trim_pct == pytest.approx(100 * full, rel=1e-9, abs=1e-12)
 
 
 def test_drift_limit_holds_in_the_full_model() -> None:
-    """With drift_after_trim_pct = 0.08 on the trimmed example, every answer's full-model
-    drift at its fixed wiper (Design.oscillator at the temperature ends) is within 0.08 %."""
+    """With drift_after_trim_pct = 0.1 on the trimmed example, every answer's full-model
+    drift at its fixed wiper (Design.oscillator at the temperature ends) is within 0.1 %,
+    and the example's own answers drifting more (rank 1 drifts about 0.32 %) are gone."""
     data = read_mapping(EXAMPLES / "trimmed.toml")
-    data["trim"]["drift_after_trim_pct"] = 0.08
+    data["trim"]["drift_after_trim_pct"] = 0.1
     spec = parse_spec(data)
-    result = design_trimmed(spec, demo(), time_limit_s=10.0, samples=SAMPLES)
+    result = design_trimmed(spec, demo(), time_limit_s=TIME_LIMIT_S, samples=SAMPLES)
     rails = rails_from_supply(spec.supply)
     env = spec.environment
-    assert result.candidates
+    assert result.candidates and result.search.proven_optimal
     for c in result.candidates:
         d = design_of(c, demo())
         f25 = float(d.oscillator(rails, 25.0).frequency_hz)
@@ -417,7 +451,9 @@ def test_drift_limit_holds_in_the_full_model() -> None:
             abs(float(d.oscillator(rails, t).frequency_hz) / f25 - 1)
             for t in (env.temp_min_c, env.temp_max_c)
         )
-        assert 100 * full <= 0.08, (c.rank, 100 * full)
+        assert 100 * full <= 0.1, (c.rank, 100 * full)
+    unlimited = [c.trim.drift_after_trim_pct for c in example_result().candidates if c.trim]
+    assert max(unlimited) > 0.1
 
 
 def _rank_key(c: Candidate) -> tuple[int, int, int]:
@@ -443,272 +479,6 @@ def test_results_are_ordered_by_resolution_then_drift_then_cost(case: str) -> No
         parts: list[Resistor | Capacitor | Pot] = [d.r1, d.r2, d.r3, d.c1, d.rv1]
         expected = d.u1.unit_cost * d.u1.packages_per_board + sum(p.unit_cost for p in parts)
         assert c.cost == pytest.approx(expected, abs=1e-9)
-
-
-@dataclasses.dataclass(frozen=True)
-class _Row:
-    """One (U1, R1, R2, R3, C1, RV1) of the search model, as plain numbers."""
-
-    x: float  # X (s), the op amp's target constant
-    d: float  # effective delay d (s)
-    gain: float  # X/(X + d)
-    k: float
-    r3: Resistor
-    cap: Capacitor
-    pot: Pot
-    dn_pair: float  # ln f spread down from R1, R2, rails and op-amp spread
-    up_pair: float
-    tc_pair: float  # tc1 - tc2 (ppm/°C)
-    dts: tuple[float, float]  # temperature ends - 25 °C
-
-    def spread(self, a: float) -> tuple[float, float, float, float]:
-        """(e, down, up, S) at wiper ``a`` (trim docstring)."""
-        r3, rv, g = self.r3.value_ohm, self.pot.value_ohm, self.gain
-        r_eff = r3 + a * rv
-        t_r = (r3 * self.r3.tolerance_pct + a * rv * self.pot.tolerance_pct) / (100 * r_eff)
-        tc_r = (r3 * self.r3.tempco_ppm + a * rv * self.pot.tempco_ppm) / r_eff
-        t_c = self.cap.tolerance_pct / 100
-        s = -(self.tc_pair + tc_r + (self.cap.tempco_ppm or 0.0)) * 1e-6 * g
-        t_up = max(0.0, s * self.dts[0], s * self.dts[1])
-        t_dn = max(0.0, -s * self.dts[0], -s * self.dts[1])
-        down = self.dn_pair + g * (math.log1p(t_r) + math.log1p(t_c)) + t_dn
-        up = self.up_pair - g * (math.log1p(-t_r) + math.log1p(-t_c)) + t_up
-        e = math.log((self.x + self.d) / (self.k * r_eff * self.cap.value_f + self.d))
-        return e, down, up, s
-
-
-def _search_model_brute_force(spec: Spec, catalog: Catalog) -> list[tuple[Any, ...]]:
-    """Every covering (U1, R1, R2, R3, C1, RV1) of the trim docstring's search model, ranked.
-
-    Written from the docstrings, one row at a time: e(α) = ln((X + d)/(k·R_eff·C1 + d)),
-    R_eff = R3 + α·RV; down/up = gain·(ln(1 + t1) - ln(1 - t2)) and its mirror (R1, R2), the
-    rail/op-amp spread of the search model, gain·(ln(1 + t_R) + ln(1 + t_C)) with
-    t_R = (R3·t3 + α·RV·tRV)/R_eff, and the temperature term of S = -(tc1 - tc2 + tc_Reff +
-    tc_C)·gain over each end. Covering: e(m) - down(m) >= 0 and e(1 - m) + up(1 - m) <= 0,
-    nominal wiper α0 = (X/(k·C1) - R3)/RV inside [m, 1 - m], amplitude ln(k/k_target) in the
-    band, drift expm1(|S(α0)|·max|ΔT|) under the limit, stock x boards (a code in two positions
-    counts twice), cost limit, capacitor rating >= triangle peak·(1 + amplitude tolerance).
-    Rank: resolution k·RV·C1/(X + d), drift, cost (each quantised as trim.py reports them),
-    then stock codes.
-    """
-    assert spec.trim is not None
-    model = build_model(spec, catalog)
-    boards = spec.build.boards
-    pots = [p for p in catalog.pots if p.kind == "trimmer" and p.stock >= boards]
-    m = spec.trim.margin_pct / 100
-    limit = spec.trim.drift_after_trim_pct
-    env = spec.environment
-    dts = (env.temp_min_c - 25.0, env.temp_max_c - 25.0)
-    aa, ab = spec.amplitude_band_ln
-    out = []
-    for u in model.opamps:
-        o = u.target
-        if o is None:
-            continue
-        g = o.gain
-        for r1, r2, r3 in itertools.product(model.resistors.parts, repeat=3):
-            k = r1.value_ohm / r2.value_ohm
-            if not aa - 1e-12 <= math.log(k) - o.ln_k_target <= ab + 1e-12:
-                continue
-            uses = [r1.id, r2.id, r3.id]
-            if any(r.stock < boards * uses.count(r.id) for r in (r1, r2, r3)):
-                continue
-            t1, t2 = r1.tolerance_pct / 100, r2.tolerance_pct / 100
-            for cap, pot in itertools.product(model.capacitors.parts, pots):
-                row = _Row(
-                    x=o.x,
-                    d=o.d,
-                    gain=g,
-                    k=k,
-                    r3=r3,
-                    cap=cap,
-                    pot=pot,
-                    dn_pair=g * (math.log1p(t1) - math.log1p(-t2)) + o.rail_f[0],
-                    up_pair=g * (math.log1p(t2) - math.log1p(-t1)) + o.rail_f[1],
-                    tc_pair=r1.tempco_ppm - r2.tempco_ppm,
-                    dts=dts,
-                )
-                e_m, down_m, _, _ = row.spread(m)
-                e_far, _, up_far, _ = row.spread(1 - m)
-                if not (e_m - down_m >= 0 and e_far + up_far <= 0):
-                    continue
-                wiper = (o.x / (k * cap.value_f) - r3.value_ohm) / pot.value_ohm
-                if not m <= wiper <= 1 - m:
-                    continue
-                s0 = row.spread(wiper)[3]
-                drift = math.expm1(abs(s0) * max(abs(dts[0]), abs(dts[1])))
-                if limit is not None and drift > limit / 100:
-                    continue
-                parts = (r1, r2, r3, cap, pot)
-                cost = u.part.cost_per_board + sum(p.unit_cost for p in parts)
-                if spec.limits.max_cost is not None and cost > spec.limits.max_cost + 1e-12:
-                    continue
-                if cap.voltage_v < o.peak_v * (1 + spec.triangle.tolerance_pct / 100):
-                    continue
-                resolution = k * pot.value_ohm * cap.value_f / (o.x + o.d)
-                out.append(
-                    (
-                        round(resolution / SCORE_RESOLUTION),
-                        round(drift / SCORE_RESOLUTION),
-                        round(cost * 1e4),
-                        u.part.id,
-                        *(p.id for p in parts),
-                    )
-                )
-    return sorted(out)
-
-
-def _trimmed_keys(spec: Spec, catalog: Catalog, top: int) -> list[tuple[Any, ...]]:
-    model, pots, rows, proven, _ = trimmed_top(spec, catalog, top, time_limit_s=30.0)
-    assert proven
-    if rows is None:
-        return []
-    return [
-        (
-            round(float(rows.resolution[n]) / SCORE_RESOLUTION),
-            round(float(rows.drift[n]) / SCORE_RESOLUTION),
-            round(float(rows.cost[n]) * 1e4),
-            model.opamps[rows.u[n]].part.id,
-            model.resistors.parts[rows.i1[n]].id,
-            model.resistors.parts[rows.i2[n]].id,
-            model.resistors.parts[rows.i3[n]].id,
-            model.capacitors.parts[rows.j[n]].id,
-            pots[rows.v[n]].id,
-        )
-        for n in range(len(rows.u))
-    ]
-
-
-def _capped(keys: list[tuple[Any, ...]]) -> list[tuple[Any, ...]]:
-    """Rows the search walks: resolution at most _RESOLUTION_CAP (beyond it, a trimmer is a
-    tuning control and the search stops growing its bound)."""
-    return [k for k in keys if k[0] * SCORE_RESOLUTION <= _RESOLUTION_CAP]
-
-
-def test_search_equals_brute_force_of_the_search_model_on_the_small_catalog() -> None:
-    spec, cat = small_spec(), small_catalog()
-    brute = _capped(_search_model_brute_force(spec, cat))
-    assert len(brute) > 10  # a real ranking, not one row
-    top = 8
-    assert _capped(_trimmed_keys(spec, cat, top)) == brute[:top]
-    # and the full search's first answer (after the corner re-check) is the brute force's best;
-    # its reported drift is the full model's, so compare resolution and cost
-    first = small_result().candidates[0]
-    key = _rank_key(first)
-    assert (key[0], key[2]) == (brute[0][0], brute[0][2])
-
-
-def test_best_resolution_equals_the_corner_brute_force_over_every_combination() -> None:
-    """The true optimum: every (R1, R2, R3, C1, RV1) with R1/R2 in the amplitude band,
-    covered when every full-model corner reaches the target within the margins. Its finest
-    resolution equals the search's first answer (op amp without offsets: 2^10 corners)."""
-    spec, cat = small_spec(), small_catalog(offsets=False)
-    assert spec.trim is not None
-    model = build_model(spec, cat)
-    (u,) = model.opamps
-    o = u.target
-    assert o is not None
-    aa, ab = spec.amplitude_band_ln
-    res = model.resistors.parts
-    pairs = [
-        (a, b)
-        for a, b in itertools.product(res, repeat=2)
-        if aa <= math.log(a.value_ohm / b.value_ohm) - o.ln_k_target <= ab
-    ]
-    combos = list(itertools.product(pairs, res, cat.capacitors, cat.pots))
-
-    def arr(xs: list[tuple[float, float, float]]) -> Values:
-        v = np.array(xs, dtype=float)
-        return Values(v[:, 0], v[:, 1] / 100, v[:, 2])
-
-    parts = {
-        "r1": arr([(p[0].value_ohm, p[0].tolerance_pct, p[0].tempco_ppm) for p, _, _, _ in combos]),
-        "r2": arr([(p[1].value_ohm, p[1].tolerance_pct, p[1].tempco_ppm) for p, _, _, _ in combos]),
-        "r3": arr([(r.value_ohm, r.tolerance_pct, r.tempco_ppm) for _, r, _, _ in combos]),
-        "c": arr([(c.value_f, c.tolerance_pct, c.tempco_ppm or 0.0) for _, _, c, _ in combos]),
-        "rv": arr([(v.value_ohm, v.tolerance_pct, v.tempco_ppm) for _, _, _, v in combos]),
-    }
-    m = spec.trim.margin_pct / 100
-    target = spec.target.target_hz
-    near = corner_frequencies(parts, u.part, spec, m).min(axis=1)
-    far = corner_frequencies(parts, u.part, spec, 1 - m).max(axis=1)
-    covered = (near >= target) & (far <= target)
-    resolution = [
-        (p[0].value_ohm / p[1].value_ohm) * v.value_ohm * c.value_f / (o.x + o.d)
-        for p, _, c, v in combos
-    ]
-    best = min(r for r, ok in zip(resolution, covered, strict=True) if ok)
-    result = design_trimmed(spec, cat, time_limit_s=10.0, samples=SAMPLES)
-    first = result.candidates[0].trim
-    assert first is not None
-    assert first.resolution_pct_per_pct == pytest.approx(best, rel=1e-9)
-
-
-@st.composite
-def trim_cases(draw: st.DrawFn) -> tuple[Spec, Catalog]:
-    """A random small stock room around one aimed design, and a trimmed spec."""
-    values = draw(
-        st.lists(st.sampled_from(E6_1K_100K), min_size=4, max_size=8, unique=True).map(sorted)
-    )
-    tols = [draw(st.sampled_from([1.0, 0.1, 2.0, 5.0])) for _ in values]
-    tcs = [draw(st.sampled_from([25.0, 100.0, 200.0])) for _ in values]
-    res = tuple(
-        Resistor(f"RH-{n}", v, t, tc, None, 0.1, "0603", draw(st.sampled_from([0.01, 0.02])), 1000)
-        for n, (v, t, tc) in enumerate(zip(values, tols, tcs, strict=True))
-    )
-    caps = tuple(
-        Capacitor(f"CH-{n}", v, "C0G", draw(st.sampled_from([1.0, 2.0, 5.0])), 0.0, None, 50.0,
-                  "0805", draw(st.sampled_from([0.05, 0.08])), 1000)
-        for n, v in enumerate(
-            draw(st.lists(st.sampled_from([1e-9, 2.2e-9, 4.7e-9, 10e-9, 22e-9]), min_size=1,
-                          max_size=3, unique=True))
-        )
-    )  # fmt: skip
-    pots = tuple(
-        Pot(f"VH-{n}", v, draw(st.sampled_from([10.0, 20.0])), 100.0, "trimmer",
-            draw(st.sampled_from([0.2, 0.5])), 1000)
-        for n, v in enumerate(
-            draw(st.lists(st.sampled_from([20e3, 5e3, 10e3, 50e3, 100e3, 2e3]), min_size=1,
-                          max_size=3, unique=True))
-        )
-    )  # fmt: skip
-    cat = Catalog(Path("<hypothesis>"), res, caps, (opamp(),), pots)
-    # aim the target and amplitude at one combination (full model, wiper at mid-travel), so
-    # that most examples have covering rows; the rest of the room is random
-    r1, r2, r3 = (draw(st.sampled_from(res)) for _ in range(3))
-    cap, pot = draw(st.sampled_from(caps)), max(pots, key=lambda p: p.value_ohm)
-    u = opamp()
-    aim = predict(r1.value_ohm, r2.value_ohm, r3.value_ohm + 0.5 * pot.value_ohm, cap.value_f,
-                  12.0 - u.swing_pos_v, 12.0 - u.swing_neg_v, slew_rise=u.slew_v_per_s,
-                  slew_fall=u.slew_v_per_s, delay=u.delay_s, gbw=u.gbw_hz)  # fmt: skip
-    target = float(aim.frequency_hz)
-    amplitude = float(aim.amplitude_vpp)
-    assume(50.0 < target < 50e3 and 0.5 < amplitude < 20.0)
-    drift = draw(st.sampled_from([None, None, 0.3, 1.0]))
-    trim: dict[str, Any] = {"margin_pct": draw(st.sampled_from([5.0, 10.0, 20.0]))}
-    if drift is not None:
-        trim["drift_after_trim_pct"] = drift
-    spec = parse_spec(
-        {
-            "supply": {"positive_v": 12.0, "negative_v": -12.0, "tolerance_pct": 2.0},
-            "frequency": {"target_hz": target, "tolerance_pct": 0.5},
-            "triangle": {"amplitude_vpp": amplitude, "tolerance_pct": 5.0},
-            "environment": {"temp_min_c": 0.0, "temp_max_c": 50.0},
-            "trim": trim,
-        }
-    )
-    return spec, cat
-
-
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(trim_cases())
-def test_search_equals_brute_force_of_the_search_model_on_random_catalogs(
-    case: tuple[Spec, Catalog],
-) -> None:
-    spec, cat = case
-    top = 5
-    brute = _capped(_search_model_brute_force(spec, cat))
-    assert _capped(_trimmed_keys(spec, cat, top)) == brute[:top]
 
 
 # --------------------------------------------------------------------------------------------
@@ -739,8 +509,9 @@ def test_trimmed_json_fields() -> None:
         assert trim["range_hz"] == pytest.approx(ends, rel=1e-12)
         assert ends[0] < spec.target.target_hz < ends[1]
         assert trim["drift_after_trim_pct"] <= (spec.trim.drift_after_trim_pct or math.inf)
-        assert 0 < trim["resolution_pct_per_pct"] < _RESOLUTION_CAP
+        assert trim["resolution_pct_per_pct"] > 0
     assert data["search"]["engine"] == "enumerate-trim"
+    assert data["search"]["proven_optimal"] is True
 
 
 # --------------------------------------------------------------------------------------------

@@ -99,8 +99,8 @@ def reoptimise(
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``."""
     t0 = time.perf_counter()
-    if spec.trimmed or spec.tuning is not None:  # the fixed-design search below ignores RV1
-        raise SpecError(["spec: re-optimising a trimmed or tuned design is not supported yet"])
+    if spec.tuning is not None:  # the fixed-design search below ignores RV1 and C2..Cn
+        raise SpecError(["spec: re-optimising a tuned design is not supported yet"])
     if boards is not None or top is not None:
         # Validated again (model_copy would not): a bad override is named like a bad spec field.
         data = spec.model_dump()
@@ -109,6 +109,12 @@ def reoptimise(
         if top is not None:
             data["ranking"]["top"] = top
         spec = parse_spec(data)
+    if spec.trimmed:
+        from tristock.trim.reoptimise import reoptimise_trimmed
+
+        return reoptimise_trimmed(
+            spec, catalog, current, without=without, time_limit_s=time_limit_s, samples=samples
+        )
     missing = [d for d in DESIGNATORS if d not in current]
     if missing:
         raise SpecError([f"parts.{d}: missing" for d in missing])
