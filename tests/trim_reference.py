@@ -28,7 +28,6 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock import eseries
-from tristock.worstcase import box_extremes
 from tristock.catalog import Catalog
 from tristock.circuit import OpAmpModel, predict, square_levels
 from tristock.design import Design, rails_from_supply
@@ -36,6 +35,7 @@ from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec import Spec, parse_spec
 from tristock.trim import design_trimmed
+from tristock.worstcase import box_extremes
 
 F64 = NDArray[np.float64]
 TIME_LIMIT_S = 120.0

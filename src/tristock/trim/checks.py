@@ -14,9 +14,9 @@ import math
 
 from scipy.optimize import brentq
 
-from tristock.worstcase import box_extremes
 from tristock.design import Design, rails_from_supply
 from tristock.spec import Spec
+from tristock.worstcase import box_extremes
 
 
 def frequency_box(design: Design, spec: Spec) -> tuple[float, float]:

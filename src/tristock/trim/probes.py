@@ -31,12 +31,12 @@ from typing import NamedTuple
 
 import numpy as np
 
-from tristock.analysis import BIAS_SPREAD, OFFSET_BOUND
 from tristock.circuit import OpAmpModel
 from tristock.search.bounds import OpAmpLoop, highest_p, lowest_p
 from tristock.search.guarantee import Probe, levels, probe_scales
 from tristock.search.model import SearchModel
 from tristock.search.rows import RowPrediction
+from tristock.spread import BIAS_SPREAD, OFFSET_BOUND
 from tristock.trim.context import F64, I64, TrimContext
 
 #: Relative slack of every probe comparison: rounding may move a value, never a verdict.
