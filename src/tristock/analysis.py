@@ -179,6 +179,7 @@ def _predict(point: _Point, v_ref: float | None, control: str = "series") -> Pre
         ib1=np.asarray(point.ib1) / beta,
         vos2=point.vos2,
         ib2=point.ib2,
+        integrator_gbw=point.gbw,
     )
 
 
