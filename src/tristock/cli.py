@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 from importlib import resources
 from pathlib import Path
@@ -17,7 +18,7 @@ from tristock import __version__
 from tristock.catalog import Catalog, CatalogError, StockError, load_catalog, set_stock
 from tristock.design import Design, rails_from_supply
 from tristock.designfile import load_design
-from tristock.report import analysis_report, same_physics, simulation_report
+from tristock.report import analysis_report, headline_difference, simulation_report_of
 from tristock.results import Candidate, DesignResult, ReoptimiseResult
 from tristock.search import CAUTIONS, DEFAULT_TIME_LIMIT_S, design
 from tristock.spec import Spec, SpecError, load_spec
@@ -306,31 +307,37 @@ def cmd_simulate(args: argparse.Namespace) -> int:
         from tristock.plot import plot_waveforms
 
         plot_waveforms(result, Path(args.plot), title=f"{d.u1.id}: R3 {d.r3.id}, C1 {d.c1.id}")
-    m = result.measured
-    if args.json:
-        _dump(simulation_report(spec, d, periods=args.periods))
-        return 0
     full = osc.prediction()
-    same = same_physics(osc).prediction()
+    if args.json:
+        _dump(simulation_report_of(result, full))
+        return 0
+    m = result.measured
+    diff = headline_difference(m, full)
 
-    def row(name: str, meas: float, pred: float, unit: str) -> str:
+    def row(name: str, meas: float, pred: float, unit: str, rel: float) -> str:
         return (
             f"  {name:<10} {format_value(meas, unit, 6):>14} {format_value(pred, unit, 6):>14}"
-            f" {100 * (meas / pred - 1):>+9.4f} %"
+            f" {100 * rel:>+9.4f} %"
         )
 
     print(f"tristock simulate (time domain, settled, {result.periods_measured} periods measured)")
     print(f"  {'':<10} {'simulated':>14} {'model':>14} {'difference':>11}")
-    print(row("frequency", m.frequency_hz, float(same.frequency_hz), "Hz"))
-    print(row("amplitude", m.amplitude_vpp, float(same.amplitude_vpp), "Vpp"))
+    print(row("frequency", m.frequency_hz, float(full.frequency_hz), "Hz", diff["frequency_rel"]))
     print(
-        f"  {'duty high':<10} {m.duty_high:>14.4%} {float(same.duty_high):>14.4%}"
-        f" {100 * (m.duty_high - float(same.duty_high)):>+9.4f} pt"
+        row("amplitude", m.amplitude_vpp, float(full.amplitude_vpp), "Vpp", diff["amplitude_rel"])
     )
     print(
-        "  (the simulation leaves out the comparator's finite-GBW delay; with it the model "
-        f"predicts {format_value(float(full.frequency_hz), 'Hz', 6)}, "
-        f"{float(full.amplitude_vpp):.5g} Vpp)"
+        f"  {'duty high':<10} {m.duty_high:>14.4%} {float(full.duty_high):>14.4%}"
+        f" {100 * diff['duty_abs']:>+9.4f} pt"
+    )
+    engine = (
+        "an ODE with both op amps single-pole"
+        if math.isfinite(osc.opamp.gbw_hz)
+        else "exact piecewise, ideal gain-bandwidth"
+    )
+    print(
+        f"  (simulation: {engine}; model: the full prediction, op-amp timing "
+        f"{100 * float(full.timing_share):.1f} % of the period)"
     )
     if args.plot:
         print(f"plot written to {args.plot}")

@@ -44,8 +44,11 @@ its threshold) raises SimulationError; the work is bounded by an event budget.
 
 from __future__ import annotations
 
+import math
+
 from tristock.circuit import Oscillator
 from tristock.simulate.loop import MIN_POINTS, loop_from
+from tristock.simulate.ode import measure_ode, run_ode, sample_ode
 from tristock.simulate.piecewise import measure_trace, run_piecewise, sample_trace
 from tristock.simulate.results import Measured, SimulationError, SimulationResult
 
@@ -72,9 +75,16 @@ def simulate(
         if isinstance(value, bool) or not isinstance(value, int) or value < least:
             raise ValueError(f"{name}: {value!r} must be an integer >= {least}")
     loop = loop_from(osc)
-    trace = run_piecewise(loop, periods, settle_periods)
-    measured = measure_trace(loop, trace)
-    t_s, triangle, square = sample_trace(loop, trace, max_points)
+    if math.isfinite(loop.gbw_hz):
+        ode = run_ode(loop, periods, settle_periods, loop.time_scale_s())
+        measured = measure_ode(loop, ode)
+        t_s, triangle, square = sample_ode(loop, ode, max_points)
+        rises, window, events = ode.rises, ode.window, ode.steps
+    else:
+        trace = run_piecewise(loop, periods, settle_periods)
+        measured = measure_trace(loop, trace)
+        t_s, triangle, square = sample_trace(loop, trace, max_points)
+        rises, window, events = trace.rises, trace.window, trace.events
     return SimulationResult(
         measured=measured,
         t_s=t_s,
@@ -84,6 +94,6 @@ def simulate(
         reference_v=loop.v_ref,
         threshold_high_v=loop.trip_level(loop.v_low) - loop.v_ref,
         threshold_low_v=loop.trip_level(loop.v_high) - loop.v_ref,
-        settle_time_s=trace.rises[trace.window[0]],
-        events=trace.events,
+        settle_time_s=rises[window[0]],
+        events=events,
     )

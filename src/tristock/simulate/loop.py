@@ -39,6 +39,7 @@ class Loop:
     ib1: float
     vos2: float
     ib2: float
+    gbw_hz: float = math.inf  # both channels; finite: the ODE path
 
     @property
     def v_mid(self) -> float:
@@ -58,6 +59,16 @@ class Loop:
         total = self.r1 + self.r2
         drop = self.ib2 * self.r1 * self.r2 / total
         return self.r2 / total, self.r1 / total, -drop - self.v_ref - self.vos2
+
+    def time_scale_s(self) -> float:
+        """A generous scale (s) for one period, to bound how long a run may go: the ideal-switch
+        period from the trip levels plus four edges' delay, slew and 100/ωt of build-up."""
+        span = self.v_high - self.v_low
+        hysteresis = self.trip_level(self.v_low) - self.trip_level(self.v_high)
+        slowest = min(abs(self.rate(self.v_high)), abs(self.rate(self.v_low)))
+        edge = self.delay + span / min(self.slew_rise, self.slew_fall)
+        edge += 100.0 / (2.0 * math.pi * self.gbw_hz)
+        return 2.0 * abs(hysteresis) / max(slowest, 1e-300) + 4.0 * edge
 
     def trip_level(self, vs: float) -> float:
         """Triangle voltage (to ground) at which the comparator flips with the square at ``vs``."""
@@ -113,6 +124,7 @@ def loop_from(osc: Oscillator) -> Loop:
         ib1=_check_finite("opamp.bias_a", amp.bias_a),
         vos2=_check_finite("opamp.comparator_offset_v", amp.comparator_offset_v),
         ib2=_check_finite("opamp.comparator_bias_a", amp.comparator_bias_a),
+        gbw_hz=_check_positive("opamp.gbw_hz", amp.gbw_hz, allow_inf=True),
     )
 
 
