@@ -287,6 +287,19 @@ def integrator_terms(rc: FloatArray, gbw: FloatArray) -> IntegratorTerms:
     return IntegratorTerms(1.0 + eps, lag)
 
 
+def _w0_of_minus_exp(c: FloatArray) -> FloatArray:
+    """W0(-e^(-c)) for c >= 1 (principal branch of Lambert's W): its series
+    z - z² + 3z³/2 - 8z⁴/3 + 125z⁵/24 in z = -e^(-c) from c = 4 on (the next term, 54z⁶/5,
+    is below 4e-10), scipy's lambertw below."""
+    c = np.asarray(c, dtype=float)
+    z = np.maximum(-np.exp(-np.minimum(c, 700.0)), -math.exp(-1.0))  # the branch point
+    out = z * (1.0 - z * (1.0 - z * (1.5 - z * (8.0 / 3.0 - z * 125.0 / 24.0))))
+    near = c < 4.0
+    if np.any(near):
+        out = np.where(near, np.real(lambertw(np.where(near, z, 0.0))), out)
+    return np.asarray(out, dtype=float)
+
+
 def lag_overshoot_area(
     before: FloatArray, after: FloatArray, slew: FloatArray, lag: FloatArray
 ) -> FloatArray:
@@ -307,7 +320,7 @@ def lag_overshoot_area(
         safe_lag = np.where(lag > 0.0, lag, 1.0)
         step = after * safe_lag * np.log1p(before / after)
         c = 1.0 + before / (slew * safe_lag)
-        x = c + np.real(lambertw(-np.exp(-c)))
+        x = c + _w0_of_minus_exp(c)
         t_cross = x * safe_lag
         t_end = (before + after) / slew
         ramp = 0.5 * slew * (t_cross - before / slew) ** 2
@@ -423,22 +436,25 @@ def predict(
 
     slow, lag = integrator_terms(rc, IGBW)
     rc_eff = rc * slow
-    rise = switch_times(k, b / rc_eff, span, b, SRr, GBW, TD)
-    fall = switch_times(k, a / rc_eff, span, a, SRf, GBW, TD)
-    d_r = rise.centroid + lag
-    d_f = fall.centroid + lag
+    # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
+    drive = np.stack([b, a])
+    edges = switch_times(k, drive / rc_eff, span, drive, np.stack([SRr, SRf]), GBW, TD)
+    (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
+    d_r = c_r + lag
+    d_f = c_f + lag
 
     ramp = k * span * rc_eff
-    t_high = (ramp + b * d_r) / a + d_r + fall.mid - rise.mid
-    t_low = (ramp + a * d_f) / b + d_f + rise.mid - fall.mid
+    t_high = (ramp + b * d_r) / a + d_r + m_f - m_r
+    t_low = (ramp + a * d_f) / b + d_f + m_r - m_f
     period = t_high + t_low
     ideal_period = span * k * span * rc / (a * b)
 
     shift = (1.0 + k) * (VOS2 + IB2 * R1 * R2 / (R1 + R2))
     th_hi = VL * k + shift
     th_lo = -VH * k + shift
-    peak_hi = th_hi + (b * (rise.overshoot + lag) - lag_overshoot_area(b, a, SRr, lag)) / rc_eff
-    peak_lo = th_lo - (a * (fall.overshoot + lag) - lag_overshoot_area(a, b, SRf, lag)) / rc_eff
+    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), np.stack([SRr, SRf]), lag)
+    peak_hi = th_hi + (b * (o_r + lag) - area_r) / rc_eff
+    peak_lo = th_lo - (a * (o_f + lag) - area_f) / rc_eff
 
     fields = (
         1.0 / period,

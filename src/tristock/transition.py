@@ -311,7 +311,8 @@ def switch_times(
     gbw: FloatArray,
     delay: FloatArray,
 ) -> SwitchTimes:
-    """The times of one comparator edge (see SwitchTimes), vectorised.
+    """The times of comparator edges (see SwitchTimes), vectorised over broadcast arguments
+    (``predict`` stacks its rising and falling edges along a first axis).
 
     ``k`` = R1/R2; ``slope`` the triangle's slope before the turn (V/s); ``span`` = VH + VL the
     edge (V); ``drive`` the distance from the starting level to the integrator's neutral level
@@ -333,6 +334,9 @@ def switch_times(
     with np.errstate(divide="ignore", invalid="ignore"):
         linear_mid = delay + 0.5 * span / slew
         linear_over = delay + 0.5 * drive / slew
+    k, slope, span, drive, slew, gbw, delay = np.broadcast_arrays(
+        k, slope, span, drive, slew, gbw, delay
+    )
     finite = np.isfinite(gbw)
     if not np.any(finite):
         return SwitchTimes(linear_mid, linear_mid, linear_over)
@@ -342,9 +346,9 @@ def switch_times(
     mu = np.minimum(slope / (k * safe_slew), math.exp(LN_MU[-1]))
     scaled_delay = lam * delay
     whole = lam * span / safe_slew
-    g_whole = scaled_mean_time(mu, scaled_delay, whole)
+    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew))
+    g_whole, g_drive = scaled_mean_time(mu[None], scaled_delay[None], levels)
     v_mid = scaled_level_time(mu, scaled_delay, 0.5 * whole)
-    g_drive = scaled_mean_time(mu, scaled_delay, lam * drive / safe_slew)
     return SwitchTimes(
         np.where(finite, delay + g_whole / lam, linear_mid),
         np.where(finite, delay + v_mid / lam, linear_mid),
