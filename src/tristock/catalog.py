@@ -39,6 +39,7 @@ from tristock.parts import (
     Pot,
     PotKind,
     Resistor,
+    delay_from_delay_to_mid,
 )
 
 #: Column sets of each table, in the order the generator writes them.
@@ -83,6 +84,12 @@ COLUMNS: Final[dict[str, tuple[str, ...]]] = {
         "stock",
     ),
     "pots": ("id", "value_ohm", "tolerance_pct", "tempco_ppm", "kind", "unit_cost", "stock"),
+}
+
+#: Columns a table may have besides COLUMNS; each stands in for the required column it maps
+#: to (a row gives one of the two): opamps.csv may give delay_to_mid_s instead of delay_s.
+ALTERNATIVE_COLUMNS: Final[dict[str, dict[str, str]]] = {
+    "opamps": {"delay_to_mid_s": "delay_s"},
 }
 
 #: Table kinds in load order; the file of a kind is ``<kind>.csv``.
@@ -465,7 +472,7 @@ def _build_opamp(row: _Row) -> OpAmp | None:
         )
     slew = row.number("slew_v_per_us", _positive)
     gbw = row.number("gbw_hz", _positive)
-    delay = row.number("delay_s", _non_negative)
+    delay, delay_to_mid = _opamp_delay(row, slew, supply_max - swing_pos - swing_neg)
     offset = row.number("offset_v")
     bias = row.number("bias_a")
     output = row.number("output_a", _positive)
@@ -488,7 +495,36 @@ def _build_opamp(row: _Row) -> OpAmp | None:
         output,
         cost,
         stock,
+        delay_to_mid,
     )
+
+
+def _opamp_delay(row: _Row, slew_v_per_us: float, step_v: float) -> tuple[float, float | None]:
+    """(delay_s, delay_to_mid_s or None) of an op-amp row: one of the two columns, never both;
+    delay_to_mid_s is converted with ``parts.delay_from_delay_to_mid`` at the part's full
+    output step (``OpAmp.full_step_v``)."""
+    given = [name for name in ("delay_s", "delay_to_mid_s") if row.raw(name)]
+    if len(given) == 2:
+        row.error("delay_to_mid_s", "give delay_s or delay_to_mid_s, not both")
+        return math.nan, None
+    if not given and "delay_to_mid_s" in row.cells:
+        row.error("delay_s", "is empty, and so is delay_to_mid_s: give one of them")
+        return math.nan, None
+    if given != ["delay_to_mid_s"]:
+        return row.number("delay_s", _non_negative), None
+    mid = row.number("delay_to_mid_s", _non_negative)
+    if math.isnan(mid) or math.isnan(slew_v_per_us) or math.isnan(step_v):
+        return math.nan, None
+    slewing = step_v / (2.0 * slew_v_per_us * 1e6)
+    delay = delay_from_delay_to_mid(mid, step_v, slew_v_per_us * 1e6)
+    if delay < 0.0:
+        row.error(
+            "delay_to_mid_s",
+            f"{_show(mid)} s is less than the {_show(slewing)} s the output takes to slew half "
+            f"its {_show(step_v)} V step at {_show(slew_v_per_us)} V/µs",
+        )
+        return math.nan, None
+    return delay, mid
 
 
 def _build_pot(row: _Row) -> Pot | None:
@@ -577,27 +613,32 @@ def _read_table(kind: str, text: str, file: str, issues: list[CatalogIssue]) -> 
 def _check_header(
     kind: str, header: list[str], file: str, line: int, issues: list[CatalogIssue]
 ) -> bool:
-    """Every required column once, nothing else; False (after recording why) otherwise."""
+    """Every required column once (or an alternative standing in for it), nothing else;
+    False (after recording why) otherwise."""
     expected = COLUMNS[kind]
+    alternatives = ALTERNATIVE_COLUMNS.get(kind, {})
+    allowed = (*expected, *alternatives)
     before = len(issues)
     seen: set[str] = set()
     for name in header:
         label = name or "''"
         if name in seen:
             issues.append(CatalogIssue(file, line, label, "column appears twice"))
-        elif name not in expected:
+        elif name not in allowed:
             issues.append(
                 CatalogIssue(
                     file,
                     line,
                     label,
-                    f"unknown column (columns of {kind}.csv: {', '.join(expected)})",
+                    f"unknown column (columns of {kind}.csv: {', '.join(allowed)})",
                 )
             )
         seen.add(name)
     for name in expected:
-        if name not in seen:
-            issues.append(CatalogIssue(file, line, name, "required column is missing"))
+        stand_ins = [alt for alt, target in alternatives.items() if target == name]
+        if name not in seen and not any(alt in seen for alt in stand_ins):
+            also = "".join(f" (or {alt})" for alt in stand_ins)
+            issues.append(CatalogIssue(file, line, name, f"required column is missing{also}"))
     return len(issues) == before
 
 

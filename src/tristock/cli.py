@@ -411,8 +411,24 @@ def cmd_reoptimise(args: argparse.Namespace) -> int:
 
 
 def cmd_catalog_check(args: argparse.Namespace) -> int:
+    from tristock.parts import DELAY_MEANING
+
     catalog = load_catalog(args.dir)
     print(f"ok: {catalog!r}")
+    print(f"opamps.csv delay_s: {DELAY_MEANING}")
+    converted = [part for part in catalog.opamps if part.delay_to_mid_s is not None]
+    if converted:
+        print(
+            f"opamps.csv delay_to_mid_s (a datasheet's delay to 50 % of the output swing) given "
+            f"for {len(converted)} part{'s' if len(converted) != 1 else ''}, converted to "
+            "delay_s = delay_to_mid_s - step/(2·slew) with the step the part's full output swing "
+            "at supply_max_v: "
+            + ", ".join(
+                f"{p.id} {format_value(p.delay_to_mid_s or 0.0, 's', 3)} -> "
+                f"{format_value(p.delay_s, 's', 3)}"
+                for p in converted
+            )
+        )
     return 0
 
 
