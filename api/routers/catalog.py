@@ -18,7 +18,7 @@ from api.errors import FieldProblem
 from api.jsonout import StrictJSON, answer
 from api.schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
 from api.settings import MAX_PAGE, MAX_STOCK
-from tristock.catalog import Catalog, StockError, adjust_stock, set_stock
+from tristock.catalog import ALTERNATIVE_COLUMNS, Catalog, StockError, adjust_stock, set_stock
 from tristock.parts import Capacitor, Part, Pot, PotKind, Resistor
 
 router = APIRouter(prefix="/v1/catalog", tags=["catalog"])
@@ -52,8 +52,16 @@ def _table(catalog: Catalog, kind: Kind) -> tuple[Part, ...]:
 
 
 def item(part: Part) -> dict[str, Any]:
-    """A part as the API shows it: its fields (the table's columns) with parsed values."""
-    return dataclasses.asdict(part)
+    """A part as the API shows it: its fields (the table's columns) with parsed values; an
+    alternative column the row did not use (opamps' delay_to_mid_s) is left out."""
+    return {
+        name: value
+        for name, value in dataclasses.asdict(part).items()
+        if value is not None or name not in _ALTERNATIVES
+    }
+
+
+_ALTERNATIVES = frozenset(name for alts in ALTERNATIVE_COLUMNS.values() for name in alts)
 
 
 def _only_for(kinds: tuple[str, ...], kind: str, name: str, given: object) -> None:

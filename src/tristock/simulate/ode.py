@@ -59,8 +59,12 @@ def amplifier_rate(e: float, wt: float, up: float, down: float) -> float:
 
 
 def _amplifier_slope(e: float, wt: float, up: float, down: float) -> float:
+    """dA/de = ωt·sech²(ωt·e/SR), written to stay finite for any overdrive."""
     sr = up if e > 0.0 else down
-    return wt if math.isinf(sr) else wt / math.cosh(wt * e / sr) ** 2
+    if math.isinf(sr):
+        return wt
+    q = math.exp(-2.0 * min(abs(wt * e / sr), 350.0))
+    return wt * 4.0 * q / (1.0 + q) ** 2
 
 
 @dataclass
