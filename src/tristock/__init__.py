@@ -5,10 +5,13 @@ The library is organised one idea per module:
 - ``units``, ``eseries``: component values (SI prefixes, IEC 60062 codes) and IEC 60063 series.
 - ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables, table generation.
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API).
-- ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
+- ``circuit``, ``transition``, ``checks``: the oscillator's physics with non-ideal op amps
+  (``transition``: the comparator's switching edge with finite gain-bandwidth), and design
+  checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
-  time-domain verification; plots; JSON reports.
+  time-domain verification (``simulate`` is a package: exact piecewise events, or an ODE
+  between events when the op amps' gain-bandwidth is finite); plots; JSON reports.
 - ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.
 - ``results``: result models shared by ``--json`` and the HTTP API.
 - ``cli``, ``serve``: the ``tristock`` command and the HTTP server entry.
