@@ -45,8 +45,8 @@ from scipy.special import lambertw
 
 FloatArray = npt.NDArray[np.float64]
 
-#: Grid of ln μ (μ = s/(k·SR)): 1e-6 .. about 10, step 0.5; linear extrapolation below.
-LN_MU = np.arange(math.log(1e-6), math.log(10.0) + 0.5, 0.5)
+#: Grid of ln μ (μ = s/(k·SR)): 1e-6 .. about 15, step 0.5; linear extrapolation below.
+LN_MU = np.arange(math.log(1e-6), math.log(16.0), 0.5)
 #: Grid of q = ln(1 + D) for the scaled delay D = β·2π·GBW·td: D from 0 to 120, step 0.15.
 Q_DELAY = np.arange(0.0, math.log(121.0) + 1e-9, 0.15)
 #: Grid of ln L for the scaled output level L = λ·ΔV/SR: 1e-4 .. 200, step 0.1.
@@ -117,6 +117,8 @@ def _delayed_curves(mus: FloatArray, delays: FloatArray) -> list[tuple[FloatArra
     cols = np.arange(delays.size)
     growth = rates**2 * (1.0 + rates * delays)  # Y ≈ μ·e^(r·v)/growth in the linear regime
     span = 2.0 * delays + (np.log(np.maximum(growth / mus, 1.0)) + SATURATED + 5.0) / rates
+    # Φ' >= μ, so Φ(v - D) >= SATURATED once v >= D + SATURATED/μ
+    span = np.minimum(span, delays + (SATURATED + 1.0) / mus)
     budget = int(np.max(span / h)) + int(np.max(m)) + 10
     phi = np.zeros((delays.size, budget + 3))
     tanh = np.zeros_like(phi)
@@ -271,7 +273,7 @@ def scaled_mean_time(mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayLi
 
     Cubic-spline interpolation in (ln μ, ln(1 + D), ln L) of the tabulated solutions; below
     μ = 1e-6 continued linearly in ln μ (the solution then only shifts in time by
-    ln(μ0/μ)/r(D)); μ is clamped at the grid's top (about 10), D to [0, 120] and L at 1e-4;
+    ln(μ0/μ)/r(D)); μ is clamped at the grid's top (about 15), D to [0, 120] and L at 1e-4;
     past L = 200 the saturated form u0 + L/2 + c2/L is exact. Measured against direct
     solutions of the scaled equation: within 0.01 (scaled time) for 1e-5 <= μ <= 1,
     D <= 40, 0.5 <= L <= 150.
@@ -323,8 +325,8 @@ def switch_times(
     D = λ·td, μ = slope/(k·SR): centroid = td + G(W)/λ with W = λ·span/SR, mid = td +
     v(W/2)/λ, overshoot = td + G(λ·drive/SR)/λ (G and v from ``scaled_mean_time`` and
     ``scaled_level_time``). Valid while the
-    edge is short against the ramp (see the module notes) and μ <= 10 (the triangle slower
-    than ten times k·SR; beyond, μ is clamped).
+    edge is short against the ramp (see the module notes) and μ <= 15 (the triangle's slope
+    below 15·k·SR; beyond, μ is clamped: the edge is then a delayed slew almost at once).
     """
     if np.any(np.isinf(slew) & np.isfinite(gbw)):
         raise ValueError(
