@@ -290,7 +290,7 @@ def test_comparator_gbw_enters_the_period_as_its_centroid_delay() -> None:
 
 
 def test_integrator_gbw_closed_form() -> None:
-    """Ideal comparator, single-pole integrator (derived in circuit.integrator_terms, checked by
+    """Ideal comparator, single-pole integrator (derived in integrator.integrator_terms, checked by
     the event simulation above): T = T0·(1 + ε) + (VH + VL)²/(VH·VL)·τi, ε = 1/(ωt·R3·C1),
     τi = 1/(ωt·(1 + ε)); duty unchanged; each peak passes its threshold by
     τi·(s_before - s_after·ln(1 + s_before/s_after)) (step into a first-order lag).

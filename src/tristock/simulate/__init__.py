@@ -1,10 +1,15 @@
-"""Time-domain verification of the two-op-amp loop: an exact, event-driven piecewise simulation.
+"""Time-domain verification of the two-op-amp loop.
 
-This module is the independent check on the closed forms of ``tristock.circuit``: it uses none of
-them. It integrates the loop's own equations from a stated start state and measures what a
-scope would show.
+This package is the independent check on the closed forms of ``tristock.circuit``: it uses none
+of them. It integrates the loop's own equations from a stated start state and measures what a
+scope would show. Two engines, chosen by the op amp's gain-bandwidth:
 
-The model (volts, seconds, ohms, farads, amperes; node voltages to ground):
+- infinite GBW (``piecewise``): an exact, event-driven piecewise solution, described below;
+- finite GBW (``ode``): both channels single-pole amplifiers with a tanh input stage that
+  slew-limits at SR, the comparator's delay a transport delay ahead of its stage, integrated
+  as an ODE between events (scipy's LSODA, rtol 1e-10); see ``tristock.simulate.ode``.
+
+The piecewise model (volts, seconds, ohms, farads, amperes; node voltages to ground):
 
 - Integrator (U1A), an ideal inverting integrator whose + input sits at ``Vref + Vos1`` and whose
   inverting pin draws the bias current ``Ib1``. Its free-running output rate is
@@ -24,9 +29,6 @@ The model (volts, seconds, ohms, farads, amperes; node voltages to ground):
   pure transport delay ``td`` later; the output then moves linearly toward the new level (VOH
   at ``SR_rise``, VOL at ``SR_fall``; infinite slew means a step). VOH = V+ - swing_pos,
   VOL = V- + swing_neg. Decisions that change during the delay are all delivered, in order.
-- The comparator's finite gain-bandwidth is *not* simulated: the only simple time-domain form of
-  it (an extra delay) is the closed form's own estimate, so using it here would check the
-  closed form against itself. Compare with ``circuit.predict(..., gbw=inf)``.
 
 Between events every quantity is a polynomial in time: the square is constant or a ramp, the
 integrator rate is constant or linear, so the triangle is linear or quadratic and the comparator
@@ -36,10 +38,11 @@ result has only floating-point error (about 1e-13 relative), no step-size error.
 
 Start state: triangle at the reference, square high (and the delay line full of "high"). The
 first max(``settle_periods``, 2) periods (counted between rising mid-swing crossings of the
-square) are discarded, and more until two successive periods agree to 1e-9; then ``periods``
-periods are measured between rising mid-swing crossings. A loop that never settles, whose square
-keeps turning back before mid-swing, or that stops (the triangle held at a swing limit short of
-its threshold) raises SimulationError; the work is bounded by an event budget.
+square) are discarded, and more until two successive periods agree (to 1e-9; 1e-8 on the ODE
+path); then ``periods`` periods are measured between rising mid-swing crossings. A loop that
+never settles, whose square keeps turning back before mid-swing, or that stops (the triangle
+held at a swing limit short of its threshold; on the ODE path, any triangle that reaches the
+integrator's swing) raises SimulationError; the work is bounded by an event (step) budget.
 """
 
 from __future__ import annotations
