@@ -5,9 +5,9 @@ The library is organised one idea per module:
 - ``units``, ``eseries``: component values (SI prefixes, IEC 60062 codes) and IEC 60063 series.
 - ``parts``, ``catalog``, ``tablegen``: part rows, the CSV part tables, table generation.
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API).
-- ``circuit``, ``transition``, ``checks``: the oscillator's physics with non-ideal op amps
-  (``transition``: the comparator's switching edge with finite gain-bandwidth), and design
-  checks.
+- ``circuit``, ``integrator``, ``transition``, ``checks``: the oscillator's physics with
+  non-ideal op amps (``integrator`` and ``transition``: each channel's finite gain-bandwidth,
+  the comparator's switching edge), and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
   time-domain verification (``simulate`` is a package: exact piecewise events, or an ODE

@@ -293,8 +293,9 @@ def predict(
     With k = R1/R2, Ve = Vos1 + Ib1·R3, a = VH - Ve, b = VL + Ve, the integrator's terms
     (``integrator.integrator_terms``) RC' = R3·C1·(1 + ε) and lag τi, and each comparator
     edge's times from its threshold crossing (``transition.switch_times``): centroid c,
-    mid-swing crossing m and overshoot time o (rising edge at the top turn: triangle slope b/RC', drive b; falling
-    edge at the bottom: slope a/RC', drive a); d = c + τi is the edge's effective delay:
+    mid-swing crossing m and overshoot time o (rising edge at the top turn: triangle slope
+    b/RC', drive b; falling edge at the bottom: slope a/RC', drive a); d = c + τi is the
+    edge's effective delay:
 
     - high time  t_H = (k·(VH + VL)·RC' + b·d_r)/a + d_r + m_f - m_r
     - low time   t_L = (k·(VH + VL)·RC' + a·d_f)/b + d_f + m_r - m_f
