@@ -331,14 +331,12 @@ def cmd_simulate(args: argparse.Namespace) -> int:
         f" {100 * diff['duty_abs']:>+9.4f} pt"
     )
     engine = (
-        "an ODE with both op amps single-pole"
+        "an ODE, both op amps single-pole"
         if math.isfinite(osc.opamp.gbw_hz)
         else "exact piecewise, ideal gain-bandwidth"
     )
-    print(
-        f"  (simulation: {engine}; model: the full prediction, op-amp timing "
-        f"{100 * float(full.timing_share):.1f} % of the period)"
-    )
+    print(f"  simulation: {engine}; model: the full prediction (as analyse),")
+    print(f"  op-amp timing {100 * float(full.timing_share):.1f} % of the period")
     if args.plot:
         print(f"plot written to {args.plot}")
     return 0
