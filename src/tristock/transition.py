@@ -55,6 +55,9 @@ LN_LEVEL = np.arange(math.log(1e-4), math.log(200.0) + 1e-9, 0.1)
 SATURATED = 7.0
 #: Grid lines of linear continuation around the table for the spline.
 PAD = 3
+#: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic here and as
+#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v).
+SPLINE_ORDER = 2
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 
@@ -209,12 +212,14 @@ def transition_table() -> TransitionTable:
 
 @cache
 def _coefficients() -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-    """Cubic-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter)."""
+    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter)."""
     tab = transition_table()
     mean, level, u0, c2 = (
         np.asarray(
             spline_filter(
-                np.pad(a, PAD, mode="reflect", reflect_type="odd"), order=3, mode="nearest"
+                np.pad(a, PAD, mode="reflect", reflect_type="odd"),
+                order=SPLINE_ORDER,
+                mode="nearest",
             ),
             dtype=float,
         )
@@ -224,14 +229,14 @@ def _coefficients() -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
 
 
 def _spline(coeffs: FloatArray, coords: list[FloatArray]) -> FloatArray:
-    """Cubic-spline value at fractional grid coordinates (clamped to the grid). The table is
+    """B-spline value at fractional grid coordinates (clamped to the grid). The table is
     padded by PAD odd reflections (linear continuation) so that the spline has no artificial
     slope at the edges."""
     clamped = [
         np.clip(c, 0.0, n - 1.0 - 2 * PAD) + PAD for c, n in zip(coords, coeffs.shape, strict=False)
     ]
     flat = np.stack([c.ravel() for c in clamped])
-    out = map_coordinates(coeffs, flat, order=3, mode="nearest", prefilter=False)
+    out = map_coordinates(coeffs, flat, order=SPLINE_ORDER, mode="nearest", prefilter=False)
     return np.asarray(out, dtype=float).reshape(coords[0].shape)
 
 
@@ -271,7 +276,7 @@ def scaled_mean_time(mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayLi
     """G(L): the mean scaled time at which the output passes the levels 0..L, counted from the
     end of the delay; vectorised over broadcast arguments.
 
-    Cubic-spline interpolation in (ln μ, ln(1 + D), ln L) of the tabulated solutions; below
+    Quadratic B-spline interpolation in (ln μ, ln(1 + D), ln L) of the tabulated solutions; below
     μ = 1e-6 continued linearly in ln μ (the solution then only shifts in time by
     ln(μ0/μ)/r(D)); μ is clamped at the grid's top (about 15), D to [0, 120] and L at 1e-4;
     past L = 200 the saturated form u0 + L/2 + c2/L is exact. Measured against direct
