@@ -18,9 +18,9 @@ differential equation
     dY/dv = tanh(Y(v - D) + μ·v),   Y(v) = 0 for v <= 0,   D = λ·td,   μ = s/(k·SR),
 
 with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once per
-process (``transition_table``, about 0.3 s) by the trapezoidal rule on the equivalent form
-Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points, and
-read back by interpolation. For D = 0 the solution is closed:
+process (``transition_table``, about 0.13 s and 20 MB) by a fourth-order rule on the equivalent
+form Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points,
+and read back by B-spline interpolation. For D = 0 the solution is closed:
 v(Φ) = -Φ/(1 - μ) + ln(((1 + μ)·e^(2Φ) - 1 + μ)/(2μ))/(1 - μ²) (separable, Y = Φ - μ·v).
 
 What the oscillator needs from a transition that moves the output by L (scaled) is the mean
