@@ -1,14 +1,17 @@
 """Generate oscillator netlists, run them in ngspice (batch mode) and read the .meas results.
 
-The netlists follow the reference runs (ngspice 39): the integrator is a linear VCVS of gain
-1e6 (its + input at the reference plus Vos1, a bias current source on its - pin); the
-comparator is one of
+The netlists follow the reference runs (ngspice 39): the integrator's + input sits at the
+reference plus Vos1, a bias current source on its - pin; the comparator is one of
 
 - ``"ideal"``: a tanh decision of gain 1e6 with a 1 ns output pole,
 - ``"slew"``: the tanh decision, a transport delay (matched lossless line, started full) and
   a linear slew limiter with separate rise and fall rates,
-- ``"macro"``: an op-amp macromodel, a current-limited gm stage into an integrating node
-  (finite GBW, slew SR = IMAX/CN, open-loop gain AOL) with a soft clamp at the rails.
+- ``"macro"``: an op-amp macromodel, a current-limited gm stage (tanh) into an integrating
+  node (finite GBW, slew SR = IMAX/CN, open-loop gain AOL) with a sharp clamp at the square's
+  levels, and (``delay_s`` > 0) a transport delay (matched line) ahead of the gm stage.
+
+The integrator is a VCVS of gain 1e6, or (finite ``integrator_gbw_hz``) the same gm-stage
+macromodel with a unity buffer.
 
 Pitfalls handled (reference/NOTES.md): ``uic`` with IC= on every state; a pole or slew state
 in the positive-feedback loop; gain 1e6; a small maximum step; ``method=gear``; the delay
@@ -94,6 +97,8 @@ class SimCase:
     ib2: float = 0.0
     periods: int = 4
     max_step_s: float = 10e-9
+    integrator_gbw_hz: float = math.inf
+    integrator_slew: float = math.inf
 
     def __post_init__(self) -> None:
         if self.comparator == "slew" and not (
@@ -110,10 +115,13 @@ class SimCase:
 
 def case_from(osc: Oscillator, comparator: str, **extra: Any) -> SimCase:
     """A SimCase with the oscillator's own values, rails and op-amp model (square levels from
-    its swing headroom, delay, slew, GBW, offsets and bias); ``extra`` sets any other field."""
+    its swing headroom, delay, slew, GBW, offsets and bias); the part's GBW goes to both
+    channels, as in ``Oscillator`` (the integrator's stage slew-limits at the part's slew rate
+    when rise and fall are equal, else it is linear); ``extra`` sets any other field."""
     vh, vl = square_levels(osc.rails, osc.opamp)
     ref = osc.rails.reference_v
     m = osc.opamp
+    rise_equals_fall = m.slew_rise_v_per_s == m.slew_fall_v_per_s
     fields: dict[str, Any] = {
         "r1": osc.r1,
         "r2": osc.r2,
@@ -132,6 +140,8 @@ def case_from(osc: Oscillator, comparator: str, **extra: Any) -> SimCase:
         "ib1": m.bias_a,
         "vos2": m.comparator_offset_v,
         "ib2": m.comparator_bias_a,
+        "integrator_gbw_hz": m.gbw_hz,
+        "integrator_slew": m.slew_rise_v_per_s if rise_equals_fall else math.inf,
     }
     return SimCase(**{**fields, **extra})
 
@@ -172,19 +182,58 @@ def _comparator_lines(case: SimCase, vmid: float, vamp: float) -> list[str]:
     gm = 2.0 * math.pi * case.gbw_hz * cn
     imax = case.slew_rise * cn
     rn = case.aol / gm
-    vsc, gcl = 1e-3, 10.0
+    # clamp: softplus with a 10 µV knee and 1 kS beyond it; a wider knee (1 mV) lets the output
+    # sag ~10 mV off its level before each edge, which starts the regeneration early (about
+    # 8e-4 of the period for the demo's op amp) and is not in the model's hard clamp
+    vsc, gcl = 1e-5, 1e3
     hi, lo = case.v_high, case.v_low
     clamp = (
         f"{gcl * vsc!r}*(uramp((v(x)-{hi!r})/{vsc!r}) + ln(1+exp(-abs((v(x)-{hi!r})/{vsc!r})))"
         f" - uramp(({lo!r}-v(x))/{vsc!r}) - ln(1+exp(-abs(({lo!r}-v(x))/{vsc!r}))))"
     )
+    lines = []
+    if case.delay_s > 0.0:
+        e0 = case.r1 / (case.r1 + case.r2) * (hi - case.v_ref)
+        lines += [
+            "* matched lossless line = transport delay of the comparator's input, started full",
+            "Ed da 0 p ref2 1",
+            f"T1 da 0 db 0 Z0=1k TD={case.delay_s!r} IC={e0!r},{e0 / 1e3!r},{e0!r},{-e0 / 1e3!r}",
+            "Rtl db 0 1k",
+        ]
+        decision = "v(db)"
+    else:
+        decision = "(v(p)-v(ref2))"
     return [
-        "* gm stage (SR = IMAX/CN, GBW = GM/(2 pi CN), AOL = GM*RN), soft clamp at the rails",
-        f"Bg 0 x I = {imax!r}*tanh({gm / imax!r}*(v(p)-v(ref2)))",
+        *lines,
+        "* gm stage (SR = IMAX/CN, GBW = GM/(2 pi CN), AOL = GM*RN), sharp clamp at the rails",
+        f"Bg 0 x I = {imax!r}*tanh({gm / imax!r}*{decision})",
         f"Cn x 0 {cn!r} IC={hi!r}",
         f"Rn x ref {rn!r}",
         f"Bcl x 0 I = {clamp}",
         "E2 vs 0 x 0 1",
+    ]
+
+
+def _integrator_lines(case: SimCase) -> list[str]:
+    """The integrator's amplifier: a VCVS of gain 1e6, or (finite ``integrator_gbw_hz``) a
+    single-pole gm stage into an integrating node (GBW = GM/(2 pi CN), AOL = GM*RN, optional
+    tanh slew limit SR = IMAX/CN, soft clamp at the square's levels) behind a unity buffer."""
+    if math.isinf(case.integrator_gbw_hz):
+        return ["E1 vt 0 ref1 inm 1e6"]
+    cn = 1e-9
+    gm = 2.0 * math.pi * case.integrator_gbw_hz * cn
+    rn = case.aol / gm
+    if math.isinf(case.integrator_slew):
+        stage = f"Bg1 0 n1 I = {gm!r}*(v(ref1)-v(inm))"
+    else:
+        imax = case.integrator_slew * cn
+        stage = f"Bg1 0 n1 I = {imax!r}*tanh({gm / imax!r}*(v(ref1)-v(inm)))"
+    return [
+        "* single-pole integrator amplifier (gm stage into CN, AOL = GM*RN), buffered",
+        stage,
+        f"Cn1 n1 0 {cn!r} IC={case.v_ref!r}",
+        f"Rn1 n1 ref {rn!r}",
+        "E1 vt 0 n1 0 1",
     ]
 
 
@@ -204,7 +253,7 @@ def netlist(case: SimCase) -> str:
         f"Ib1 inm 0 {case.ib1!r}",
         f"RT vs inm {case.r3!r}",
         f"CT inm vt {case.c1!r} IC=0",
-        "E1 vt 0 ref1 inm 1e6",
+        *_integrator_lines(case),
         "* A2: non-inverting Schmitt trigger; - input at ref + VOS2; IB2 into its + pin",
         f"Vos2 ref2 ref {case.vos2!r}",
         f"Ib2 p 0 {case.ib2!r}",

@@ -248,7 +248,7 @@ def cases(draw: st.DrawFn) -> tuple[Catalog, Spec]:
     u = ops[0]
     aim = predict(r1, r2, r3, cap, rail - u.swing_pos_v, rail - u.swing_neg_v,
                   slew_rise=u.slew_v_per_s, slew_fall=u.slew_v_per_s, delay=u.delay_s,
-                  gbw=u.gbw_hz)  # fmt: skip
+                  gbw=u.gbw_hz, integrator_gbw=u.gbw_hz)  # fmt: skip
     tol_f = draw(st.sampled_from([20.0, 10.0, 5.0, 2.0, 1.0, 0.5]))
     tol_a = draw(st.sampled_from([20.0, 10.0, 5.0, 2.0, 1.0]))
     move = st.floats(-0.8, 0.8)

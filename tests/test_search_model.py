@@ -188,6 +188,7 @@ def _full(
         ib1=m.bias_a,
         vos2=m.comparator_offset_v,
         ib2=m.comparator_bias_a,
+        integrator_gbw=m.gbw_hz,
     )
     f = np.asarray(p.frequency_hz)
     a = np.asarray(p.amplitude_vpp)
@@ -229,6 +230,7 @@ def test_constants_reproduce_the_target_exactly(op_id: str) -> None:
             slew_fall=m.slew_fall_v_per_s,
             delay=m.delay_s,
             gbw=m.gbw_hz,
+            integrator_gbw=m.gbw_hz,
         )
         assert float(p.frequency_hz) == pytest.approx(spec.frequency.target_hz, rel=1e-9)
         assert float(p.amplitude_vpp) == pytest.approx(spec.triangle.amplitude_vpp, rel=1e-9)

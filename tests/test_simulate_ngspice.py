@@ -1,13 +1,15 @@
 """The time-domain simulation against ngspice transient runs (reference: ngspice 39, Debian
 package), netlists generated from the values under test by tests/ngspice_harness.py.
 
-The ngspice comparator is a tanh decision (gain 1e6), a matched lossless line as pure delay
-and a linear slew limiter with separate rise and fall rates; the integrator a VCVS of gain
-1e6 with Vos1 at its + input and current sources for Ib1 and Ib2 on the pins. That is the
-model simulate() solves exactly, so the differences are ngspice's: its time step (10 ns here;
-reference/NOTES.md reports about 1e-4 on the period at that step), the 1 mV soft landing of
-the slew limiter and the 6 significant digits of .meas. The three runs go concurrently; each
-test prints its measured errors (pytest -s) and records them as user properties.
+With infinite GBW the ngspice comparator is a tanh decision (gain 1e6), a matched lossless
+line as pure delay and a linear slew limiter with separate rise and fall rates; the integrator
+a VCVS of gain 1e6 with Vos1 at its + input and current sources for Ib1 and Ib2 on the pins.
+That is the model simulate() solves exactly, so the differences are ngspice's: its time step
+(10 ns here; reference/NOTES.md reports about 1e-4 on the period at that step), the 1 mV soft
+landing of the slew limiter and the 6 significant digits of .meas. With finite GBW both
+channels are tanh gm-stage macromodels (open-loop gain 1e5, sharp clamp, the delay line ahead
+of the comparator's stage), the physics of simulate()'s ODE path. The runs go concurrently;
+each test prints its measured errors (pytest -s) and records them as user properties.
 """
 
 from __future__ import annotations
@@ -52,9 +54,13 @@ class Run:
 
 
 def _run(osc: Oscillator) -> Run:
-    """simulate() on ``osc`` and the ngspice case built from the same values."""
+    """simulate() on ``osc`` and the ngspice case built from the same values (a gm-stage
+    macromodel in both channels when the op amp's GBW is finite)."""
     sim = simulate(osc, periods=6)
-    case = case_from(osc, "slew", period_guess_s=sim.measured.period_s, periods=6, max_step_s=10e-9)
+    comparator = "macro" if math.isfinite(osc.opamp.gbw_hz) else "slew"
+    case = case_from(
+        osc, comparator, period_guess_s=sim.measured.period_s, periods=6, max_step_s=10e-9
+    )
     return Run(osc, sim.measured, case)
 
 
@@ -106,6 +112,50 @@ RUNS: dict[str, Run] = {
 }
 
 
+#: Finite GBW in both channels (simulate's ODE path against ngspice's gm-stage macromodels:
+#: the same physics, so the differences are again ngspice's own).
+GBW_RUNS: dict[str, Run] = {
+    # the demo's rank 1 (UA-JF2: 3 MHz, 13 V/µs, 1.2 µs delay line, 3 mV offsets)
+    "demo_rank1": _run(
+        Oscillator(
+            10.7e3,
+            38.3e3,
+            51.1e3,
+            6.8e-9,
+            OpAmpModel(1.5, 1.5, 13e6, 13e6, 1.2e-6, 3e6, offset_v=3e-3, bias_a=3e-11),
+            Rails(12.0, -12.0),
+        )
+    ),
+    # 1 MHz, 2 V/µs on ±5 V near 20 kHz (op-amp timing 22 % of the period)
+    "gbw_1M_20k": _run(
+        Oscillator(10e3, 22e3, 4.7e3, 4.7e-9, OpAmpModel(1, 1, 2e6, 2e6, 0, 1e6), Rails(5, -5))
+    ),
+    # single 10 V supply, own 4 V reference, 2 MHz, 4 V/µs, 0.5 µs delay, offsets and bias
+    "gbw_asymmetric": _run(
+        Oscillator(
+            8.2e3,
+            22e3,
+            15e3,
+            6.8e-9,
+            OpAmpModel(
+                0.3,
+                0.3,
+                4e6,
+                4e6,
+                0.5e-6,
+                2e6,
+                offset_v=2e-3,
+                bias_a=50e-9,
+                comparator_offset_v=1e-3,
+                comparator_bias_a=50e-9,
+            ),
+            Rails(10.0, 0.0, v_ref=4.0),
+        )
+    ),
+}
+ALL_RUNS = {**RUNS, **GBW_RUNS}
+
+
 #: A broken loop (k = 0.05, slow comparator, square levels +4/-17 V about a 0 V reference):
 #: each falling transition turns back before mid-swing (-6.5 V).
 BROKEN = Oscillator(150.0, 3e3, 3e3, 15e-9, _amp((1.0, 1.0), 0.3e6, 0.3e6, 0.0), Rails(5.0, -18.0))
@@ -129,7 +179,7 @@ def spice() -> dict[str, dict[str, float] | NgspiceError]:
     require_ngspice()
     with ThreadPoolExecutor(max_workers=1) as pool:
         broken = pool.submit(run_ngspice, _broken_netlist(), timeout_s=60.0)
-        runs = simulate_many({name: run.case for name, run in RUNS.items()}, timeout_s=60.0)
+        runs = simulate_many({name: run.case for name, run in ALL_RUNS.items()}, timeout_s=60.0)
         try:
             runs["broken"] = broken.result()
         except NgspiceError as exc:
@@ -152,7 +202,7 @@ def _errors(
     got = spice[name]
     if isinstance(got, NgspiceError):
         pytest.fail(f"ngspice run {name!r} failed: {got}")
-    m = RUNS[name].sim
+    m = ALL_RUNS[name].sim
     err = {
         "frequency_rel": m.frequency_hz * got["per"] - 1.0,
         "amplitude_rel": m.amplitude_vpp / got["vtpp"] - 1.0,
@@ -167,7 +217,7 @@ def _errors(
     return err
 
 
-@pytest.mark.parametrize("name", sorted(RUNS))
+@pytest.mark.parametrize("name", sorted(ALL_RUNS))
 def test_simulation_matches_ngspice(
     name: str,
     spice: dict[str, dict[str, float] | NgspiceError],

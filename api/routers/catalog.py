@@ -24,6 +24,7 @@ from api.schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
 from api.settings import MAX_PAGE, MAX_STOCK
 from api.store import CatalogStore
 from tristock.catalog import (
+    ALTERNATIVE_COLUMNS,
     Catalog,
     CatalogBusy,
     CatalogError,
@@ -99,8 +100,16 @@ def _table(catalog: Catalog, kind: Kind) -> tuple[Part, ...]:
 
 
 def item(part: Part) -> dict[str, Any]:
-    """A part as the API shows it: its fields (the table's columns) with parsed values."""
-    return dataclasses.asdict(part)
+    """A part as the API shows it: its fields (the table's columns) with parsed values; an
+    alternative column the row did not use (opamps' delay_to_mid_s) is left out."""
+    return {
+        name: value
+        for name, value in dataclasses.asdict(part).items()
+        if value is not None or name not in _ALTERNATIVES
+    }
+
+
+_ALTERNATIVES = frozenset(name for alts in ALTERNATIVE_COLUMNS.values() for name in alts)
 
 
 def _only_for(kinds: tuple[str, ...], kind: str, name: str, given: object) -> None:

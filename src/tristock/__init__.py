@@ -8,12 +8,15 @@ The library is organised one idea per module:
   journal, lock), table generation; ``atomicio``: the one atomic file writer.
 - ``spec``: the engineer's targets (pydantic models shared by CLI and API); ``limits``: the
   ranges of a run's settings; ``examples``: the bundled specs and demo catalog.
-- ``circuit``, ``checks``: the oscillator's physics with non-ideal op amps, and design checks.
+- ``circuit``, ``integrator``, ``transition``, ``checks``: the oscillator's physics with
+  non-ideal op amps (``integrator`` and ``transition``: each channel's finite gain-bandwidth,
+  the comparator's switching edge), and design checks.
 - ``design``, ``designfile``: the parts of one board, and DESIGN files.
 - ``spread``, ``worstcase``, ``boxnewton``: the spread box of one design (tolerances, rails,
   temperature, op-amp spread) and its extremes (corners, balanced rails, projected Newton).
 - ``analysis``, ``simulate``, ``plot``, ``report``: worst case, yield, sensitivities, drift;
-  time-domain verification; plots; JSON reports.
+  time-domain verification (``simulate`` is a package: exact piecewise events, or an ODE
+  between events when the op amps' gain-bandwidth is finite); plots; JSON reports.
 - ``search`` (fixed designs), ``trim``, ``tuning``, ``reoptimise``: the exact searches.
 - ``results``: result models shared by ``--json`` and the HTTP API.
 - ``cli`` (a package, one module per command group), ``serve``: the ``tristock`` command

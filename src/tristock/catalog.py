@@ -19,7 +19,14 @@ This module gathers the public names of the ``tristock.stock`` package:
 """
 
 from tristock.atomicio import write_atomic
-from tristock.stock.columns import COLUMNS, KINDS, OPTIONAL_KINDS, CatalogError, CatalogIssue
+from tristock.stock.columns import (
+    ALTERNATIVE_COLUMNS,
+    COLUMNS,
+    KINDS,
+    OPTIONAL_KINDS,
+    CatalogError,
+    CatalogIssue,
+)
 from tristock.stock.errors import (
     STOCK_MAX,
     CatalogBusy,
@@ -44,6 +51,7 @@ from tristock.stock.writes import (
 )
 
 __all__ = [
+    "ALTERNATIVE_COLUMNS",
     "COLUMNS",
     "DEFAULT_POLICY",
     "JOURNAL_NAME",

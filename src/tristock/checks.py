@@ -13,11 +13,12 @@ headroom, 2 %/20 % of the period) are common practice, not taken from a standard
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Literal
 
-from tristock.circuit import Oscillator, gbw_effective_delay, square_levels
+from tristock.circuit import Oscillator, square_levels
 from tristock.parts import Capacitor, OpAmp, Resistor
 from tristock.units import format_value
 
@@ -267,28 +268,23 @@ def check(
             )
         )
 
-    # comparator gain-bandwidth delay against the period (the estimate is ~15 % accurate)
-    tg_r = float(
-        gbw_effective_delay(osc.r1, osc.r2, osc.r3, osc.c1, drive_up, m.slew_rise_v_per_s, m.gbw_hz)
-    )
-    tg_f = float(
-        gbw_effective_delay(
-            osc.r1, osc.r2, osc.r3, osc.c1, drive_down, m.slew_fall_v_per_s, m.gbw_hz
-        )
-    )
-    dt_gbw = (vh + vl) * (tg_r / drive_down + tg_f / drive_up)
-    frac = dt_gbw / period
-    if frac > TIME_CAUTION:
-        sev = "error" if frac > TIME_ERROR else "caution"
-        out.append(
-            Warning(
-                "gbw_delay",
-                sev,
-                f"comparator gain-bandwidth {_v(m.gbw_hz, 'Hz')} adds {_v(dt_gbw, 's')} "
-                f"({_pct(frac)}) to the period; that estimate is about ±15 %, so the period "
-                f"is uncertain by about {_pct(0.15 * frac)}",
+    # what the op amps' finite gain-bandwidth (both channels) adds to the period
+    if math.isfinite(m.gbw_hz):
+        without = dataclasses.replace(osc, opamp=dataclasses.replace(m, gbw_hz=math.inf))
+        dt_gbw = period - without.period_s
+        frac = dt_gbw / period
+        if frac > TIME_CAUTION:
+            sev = "error" if frac > TIME_ERROR else "caution"
+            out.append(
+                Warning(
+                    "gbw_delay",
+                    sev,
+                    f"the op amp's gain-bandwidth {_v(m.gbw_hz, 'Hz')} adds {_v(dt_gbw, 's')} "
+                    f"({_pct(frac)}) to the period (the comparator's build-up, the "
+                    "integrator's lag and slower ramps); the model takes a single-pole op amp, "
+                    "so a part with more poles moves the period by a share of that",
+                )
             )
-        )
     return out
 
 

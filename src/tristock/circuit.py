@@ -13,12 +13,18 @@ voltage, a = VH - Ve and b = VL + Ve the drives that set the falling and rising 
 slopes a/(R3·C1) and b/(R3·C1).
 
 The model in one paragraph: the triangle turns at the thresholds -VH·k and +VL·k (both moved
-by the comparator offset); every comparator transition acts exactly like an instant switch
-that is late by d = td + td_GBW + τ/2 (the moment the square crosses mid-swing: a linear
-slew integrates to the same charge as a step at its midpoint); the triangle overshoots each
-threshold until the square crosses the integrator's virtual ground. Within the
-ideal-integrator, linear-slew model the period, duty and overshoot are exact; the GBW term is
-an estimate (about 15 % on td_GBW itself).
+by the comparator offset); every comparator edge acts on the integrator exactly like an
+instant switch at the edge's centroid, td + τ/2 after the threshold crossing for a linear slew
+(a linear slew integrates to the same charge as a step at its midpoint), later when the
+comparator's finite gain-bandwidth must first build the edge up through R1/R2 (a delay
+differential equation, tabulated in ``transition``); a single-pole integrator slows every ramp
+by 1 + ε and follows each edge a lag τi later (``integrator``); the triangle overshoots
+each threshold until the (lagged) square crosses the integrator's neutral level. Both op-amp
+channels are single-pole amplifiers with a tanh input stage that slew-limits at SR; the
+comparator's delay is a transport delay ahead of its stage. Within that model the period and
+duty are exact but for the triangle's slope being held constant through each edge (its error
+grows with the share of the period the edges take: 4e-4 at 22 %), and every result is checked
+against ngspice macromodels of the same circuit (tests/test_circuit_ngspice.py).
 """
 
 from __future__ import annotations
@@ -31,7 +37,9 @@ from typing import NamedTuple
 import numpy as np
 import numpy.typing as npt
 
+from tristock.integrator import integrator_terms, lag_overshoot_area
 from tristock.parts import OpAmp
+from tristock.transition import switch_times
 from tristock.units import format_value
 
 FloatArray = npt.NDArray[np.float64]
@@ -97,8 +105,10 @@ class OpAmpModel:
     """The numbers the physics needs for one op-amp channel (both channels alike).
 
     ``swing_pos_v``/``swing_neg_v``: output headroom from V+ and V- (V). Slew rates in V/s,
-    rise (square going up) and fall separately. ``delay_s``: comparator propagation delay,
-    saturation recovery included (s). ``gbw_hz``: gain-bandwidth product (Hz).
+    rise (square going up) and fall separately. ``delay_s``: comparator propagation delay
+    (s), threshold crossing to the start of the output slew (``parts.DELAY_MEANING``).
+    ``gbw_hz``: gain-bandwidth product (Hz) of each channel, the integrator's and the
+    comparator's.
     ``offset_v``/``bias_a``: the integrator's input offset Vos1 (V, + input high) and the
     bias current Ib1 into its inverting pin (A). ``comparator_offset_v``: Vos2 (V, the
     comparator switches when its + input is Vos2 above the reference);
@@ -174,8 +184,13 @@ class Prediction(NamedTuple):
       the top (+VL·k + shift) and the bottom (-VH·k + shift).
     - ``peak_high_v``/``peak_low_v``: the triangle's extremes, thresholds plus overshoot.
     - ``slope_v_per_s``: the steeper ramp, max(a, b)/(R3·C1).
-    - ``effective_delay_s``: the one delay d for which T = T0e + (VH + VL)²/(a·b)·d, i.e.
-      the weighted mean (d_rise·b + d_fall·a)/(a + b); d = td + td_GBW + τ/2 when symmetric.
+    - ``effective_delay_s``: the one delay d for which T = T0' + (VH + VL)²/(a·b)·d (T0' the
+      ideal-switch period with the integrator's slower ramps), i.e. the weighted mean
+      (d_rise·b + d_fall·a)/(a + b) of the edges' effective delays (td + τ/2 for a linear
+      slew; the finite-GBW build-up and the integrator's lag added).
+    - ``timing_share``: the share of the period set by op-amp timing (delay, slew and both
+      channels' GBW), 1 - T_ideal/T, with T_ideal the period of the same loop (the same square
+      levels, offsets and bias) with instant switching and an ideal integrator.
     """
 
     frequency_hz: Value
@@ -191,6 +206,7 @@ class Prediction(NamedTuple):
     peak_low_v: Value
     slope_v_per_s: Value
     effective_delay_s: Value
+    timing_share: Value
 
 
 def square_levels(rails: Rails, opamp: OpAmpModel) -> tuple[float, float]:
@@ -230,37 +246,24 @@ def gbw_effective_delay(
     r3: ArrayLike,
     c1: ArrayLike,
     drive_v: ArrayLike,
+    span_v: ArrayLike,
     slew: ArrayLike,
     gbw: ArrayLike,
+    delay: ArrayLike = 0.0,
 ) -> FloatArray:
-    """Effective extra delay (s) of a comparator with finite gain-bandwidth ``gbw`` (Hz).
-
-    td_GBW ≈ [ln(1 + ρ) - 1 + ln(1 + ρ)/ρ] / (2π·GBW·β), β = R1/(R1 + R2),
-    ρ = k·SR·R3·C1/V, with V the drive (V) that sets the triangle's slope V/(R3·C1) as it
-    approaches the threshold (VH - Ve at the bottom turn, VL + Ve at the top) and SR (V/s)
-    the slew rate of the transition that follows.
-
-    Derivation: past the threshold the overdrive grows as e^(β·2π·GBW·t) through the
-    positive feedback until the output rate reaches SR; td_GBW is where the linear slew
-    that follows extrapolates back to the rail. An estimate, about 15 % accurate on td_GBW
-    itself against a gm-stage macromodel; it assumes a hard slew limit, a single-pole
-    comparator and SR finite (a finite GBW with SR = inf raises ValueError). 0 when GBW = inf.
-    """
-    r1a, r2a, r3a, c1a, va, sra, ga = (
-        np.asarray(x, dtype=float) for x in (r1, r2, r3, c1, drive_v, slew, gbw)
+    """The share (s) of one comparator edge's switching delay that its finite gain-bandwidth
+    ``gbw`` (Hz) adds: centroid(GBW) - centroid(GBW = inf) = G(W)/λ - span/(2·SR), with the
+    edge's centroid from ``transition.switch_times`` (the triangle's slope drive_v/(R3·C1),
+    span = VH + VL, SR the edge's slew rate, td the transport delay, which lengthens the
+    build-up when GBW is finite). 0 when GBW = inf; a finite GBW needs a finite SR."""
+    r1a, r2a, r3a, c1a, va, spa, sra, ga, tda = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (r1, r2, r3, c1, drive_v, span_v, slew, gbw, delay))
     )
-    if np.any(np.isinf(sra) & np.isfinite(ga)):
-        raise ValueError(
-            "slew: a finite gbw needs a finite slew rate (the GBW delay estimate assumes the "
-            "output slews once the overdrive has built up)"
-        )
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        beta = r1a / (r1a + r2a)
-        rho = (r1a / r2a) * sra * r3a * c1a / va
-        lp = np.log1p(rho)
-        bracket = lp - 1.0 + lp / rho
-        out = bracket / (2.0 * np.pi * ga * beta)
-    return np.asarray(np.where(np.isinf(ga), 0.0, out), dtype=float)
+    k = r1a / r2a
+    times = switch_times(k, va / (r3a * c1a), spa, va, sra, ga, tda)
+    with np.errstate(invalid="ignore"):
+        extra = times.centroid - (tda + 0.5 * spa / sra)
+    return np.asarray(np.where(np.isinf(ga), 0.0, extra), dtype=float)
 
 
 def predict(
@@ -279,34 +282,44 @@ def predict(
     ib1: ArrayLike = 0.0,
     vos2: ArrayLike = 0.0,
     ib2: ArrayLike = 0.0,
+    integrator_gbw: ArrayLike = inf,
 ) -> Prediction:
     """Closed-form oscillator model, vectorised (numpy broadcasting over every argument).
 
     Units: ohm, farad, volt (from the reference), V/s, s, Hz, A. Scalars in, floats out.
+    ``gbw`` is the comparator's gain-bandwidth, ``integrator_gbw`` the integrator's (an
+    ``Oscillator`` passes its part's GBW to both).
 
-    With k = R1/R2, RC = R3·C1, Ve = Vos1 + Ib1·R3, a = VH - Ve, b = VL + Ve,
-    τr = (VH + VL)/SR_rise, τf = (VH + VL)/SR_fall, and the late-switch delays
-    d_r = td + td_GBW,r + τr/2 (rising transition, at the top turn) and
-    d_f = td + td_GBW,f + τf/2 (falling transition, at the bottom turn):
+    With k = R1/R2, Ve = Vos1 + Ib1·R3, a = VH - Ve, b = VL + Ve, the integrator's terms
+    (``integrator.integrator_terms``) RC' = R3·C1·(1 + ε) and lag τi, and each comparator
+    edge's times from its threshold crossing (``transition.switch_times``): centroid c,
+    mid-swing crossing m and overshoot time o (rising edge at the top turn: triangle slope
+    b/RC', drive b; falling edge at the bottom: slope a/RC', drive a); d = c + τi is the
+    edge's effective delay:
 
-    - high time  t_H = (k·(VH + VL)·RC + b·d_r)/a + d_f
-    - low time   t_L = (k·(VH + VL)·RC + a·d_f)/b + d_r
-    - period T = t_H + t_L = (VH + VL)·[k·(VH + VL)·RC/(a·b) + d_r/a + d_f/b]
-      (ideal switch: T0 = RC·k·(VH + VL)²/(VH·VL); symmetric: T0 + 4·td + 2·τ)
-    - duty_high = t_H/T at mid-swing; VL/(VH + VL) when Ve = 0 and d_r = d_f
+    - high time  t_H = (k·(VH + VL)·RC' + b·d_r)/a + d_r + m_f - m_r
+    - low time   t_L = (k·(VH + VL)·RC' + a·d_f)/b + d_f + m_r - m_f
+    - period T = t_H + t_L = (VH + VL)·[k·(VH + VL)·RC'/(a·b) + d_r/a + d_f/b]
+      (ideal: T0 = R3·C1·k·(VH + VL)²/(VH·VL); linear slew, no GBW: symmetric T0 + 4·td + 2·τ)
+    - duty_high = t_H/T (at mid-swing); VL/(VH + VL) when Ve = 0 and the edges are alike
     - thresholds +VL·k + s and -VH·k + s with s = (1 + k)·(Vos2 + Ib2·(R1 ∥ R2)); Ib2 flows
       into the + pin, pulling it Ib2·(R1 ∥ R2) below the divider voltage, so it adds to Vos2
       (the comparator's - input sits at ref + Vos2); period and duty are unchanged
-    - overshoot top (b/RC)·(td + td_GBW,r + b/(2·SR_rise)),
-      bottom (a/RC)·(td + td_GBW,f + a/(2·SR_fall)) (the triangle ramps on until the square
-      crosses the integrator's virtual ground at Ve)
+    - peaks: top threshold + (b/RC')·(o_r + τi) - A_r/RC', bottom threshold - (a/RC')·(o_f + τi)
+      + A_f/RC' (the triangle ramps on until the lagged square crosses Ve; A from
+      ``lag_overshoot_area``)
+    - timing_share = 1 - T_ideal/T, T_ideal = (VH + VL)²·k·R3·C1/(a·b): the same loop (levels,
+      offsets, bias) with instant switching and an ideal integrator
 
-    Where it stops being accurate: each transition must finish before the triangle reaches
-    the next threshold (τ ≪ T/2); the integrator must neither slew-limit nor clip (its slew
-    rate above the slope, its swing beyond the peaks); a real part's delay is not constant,
-    use the catalogued comparator-mode delay; the GBW term is an estimate (about 15 % on
-    td_GBW, see gbw_effective_delay) and the overshoot treats the GBW delay as a pure delay;
-    the integrator's own gain and bandwidth are taken as infinite.
+    Within the model (transport delay td, a single-pole comparator with a tanh input stage and
+    slew SR, hard output clamps, a linear single-pole integrator) the period is exact but for
+    two stated approximations: the triangle's slope is held constant through each edge (error
+    about 4e-4 in frequency when the edges take 20 % of the period, 1.3e-3 at 40 %) and the
+    edge times come from an interpolated table (see ``transition``). Where it stops being
+    accurate: an edge must finish before the triangle reaches the next threshold (τ ≪ T/2);
+    the integrator must neither slew-limit nor clip (its slope well below its slew rate: its
+    tanh stage is taken as linear, an error of about ε·(slope/SR)²/3); a real part's delay is
+    not constant, use the catalogued comparator-mode delay (what ``delay`` means: DESIGN.md).
     """
     args = np.broadcast_arrays(
         *(
@@ -326,14 +339,20 @@ def predict(
                 ib1,
                 vos2,
                 ib2,
+                integrator_gbw,
             )
         )
     )
-    R1, R2, R3, C1, VH, VL, SRr, SRf, TD, GBW, VOS1, IB1, VOS2, IB2 = args
+    R1, R2, R3, C1, VH, VL, SRr, SRf, TD, GBW, VOS1, IB1, VOS2, IB2, IGBW = args
     scalar = R1.ndim == 0
     for name, x in (("r1", R1), ("r2", R2), ("r3", R3), ("c1", C1), ("vh", VH), ("vl", VL)):
         _checked(name, x, low=0.0, allow_equal=False, allow_inf=False)
-    for name, x in (("slew_rise", SRr), ("slew_fall", SRf), ("gbw", GBW)):
+    for name, x in (
+        ("slew_rise", SRr),
+        ("slew_fall", SRf),
+        ("gbw", GBW),
+        ("integrator_gbw", IGBW),
+    ):
         _checked(name, x, low=0.0, allow_equal=False, allow_inf=True)
     _checked("delay", TD, low=0.0, allow_equal=True, allow_inf=False)
     for name, x in (("vos1", VOS1), ("ib1", IB1), ("vos2", VOS2), ("ib2", IB2)):
@@ -351,21 +370,27 @@ def predict(
             "(need -VL < Ve < VH): the triangle would never turn"
         )
 
-    tg_r = gbw_effective_delay(R1, R2, R3, C1, b, SRr, GBW)
-    tg_f = gbw_effective_delay(R1, R2, R3, C1, a, SRf, GBW)
-    d_r = TD + tg_r + span / SRr / 2.0
-    d_f = TD + tg_f + span / SRf / 2.0
+    slow, lag = integrator_terms(rc, IGBW)
+    rc_eff = rc * slow
+    # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
+    drive = np.stack([b, a])
+    edges = switch_times(k, drive / rc_eff, span, drive, np.stack([SRr, SRf]), GBW, TD)
+    (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
+    d_r = c_r + lag
+    d_f = c_f + lag
 
-    ramp = k * span * rc
-    t_high = (ramp + b * d_r) / a + d_f
-    t_low = (ramp + a * d_f) / b + d_r
+    ramp = k * span * rc_eff
+    t_high = (ramp + b * d_r) / a + d_r + m_f - m_r
+    t_low = (ramp + a * d_f) / b + d_f + m_r - m_f
     period = t_high + t_low
+    ideal_period = span * k * span * rc / (a * b)
 
     shift = (1.0 + k) * (VOS2 + IB2 * R1 * R2 / (R1 + R2))
     th_hi = VL * k + shift
     th_lo = -VH * k + shift
-    peak_hi = th_hi + (b / rc) * (TD + tg_r + b / (2.0 * SRr))
-    peak_lo = th_lo - (a / rc) * (TD + tg_f + a / (2.0 * SRf))
+    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), np.stack([SRr, SRf]), lag)
+    peak_hi = th_hi + (b * (o_r + lag) - area_r) / rc_eff
+    peak_lo = th_lo - (a * (o_f + lag) - area_f) / rc_eff
 
     fields = (
         1.0 / period,
@@ -379,8 +404,9 @@ def predict(
         th_lo,
         peak_hi,
         peak_lo,
-        np.maximum(a, b) / rc,
+        np.maximum(a, b) / rc_eff,
         (d_r * b + d_f * a) / (a + b),
+        1.0 - ideal_period / period,
     )
     if scalar:
         return Prediction(*(float(x) for x in fields))
@@ -443,6 +469,7 @@ class Oscillator:
             ib1=m.bias_a,
             vos2=m.comparator_offset_v,
             ib2=m.comparator_bias_a,
+            integrator_gbw=m.gbw_hz,
         )
 
     def _get(self, name: str) -> float:
@@ -511,7 +538,8 @@ class Oscillator:
             f"{_signed(float(p.peak_low_v), 'V')}, thresholds "
             f"{_signed(float(p.threshold_high_v), 'V')} / {_signed(float(p.threshold_low_v), 'V')}",
             f"  slope {float(p.slope_v_per_s) * 1e-6:.3g} V/µs, effective switching delay "
-            f"{_fmt(float(p.effective_delay_s), 's')}",
+            f"{_fmt(float(p.effective_delay_s), 's')}, op-amp timing "
+            f"{100.0 * float(p.timing_share):.1f} % of the period",
         ]
         return "\n".join(lines)
 
@@ -534,7 +562,9 @@ def timing_network(
 
     The integrator then behaves as one with R3 → R_eff and C1 → C1/β (same ramp slope) and its
     error voltage Ve → Ve/β (it works against β·V). Exact for an ideal square source; the op
-    amp's output resistance (tens of Ω) is neglected.
+    amp's output resistance (tens of Ω) is neglected. With a single-pole integrator the mapping
+    is not exact: its ε = 1/(ωt·R_eff·C1) comes out as β·ε (C1/β in place of C1), an error
+    below ε itself in the period (1e-3 for 1 MΩ, 56 pF and 3 MHz); the lag τi is unaffected.
     """
     a = np.asarray(alpha, dtype=float)
     if np.any((a < 0) | (a > 1)):

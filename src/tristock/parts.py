@@ -79,6 +79,29 @@ class Capacitor:
         return self.dielectric in POLARISED_DIELECTRICS
 
 
+#: What an op amp's ``delay_s`` means (catalog docs, ``tristock catalog check``).
+DELAY_MEANING = (
+    "threshold crossing to the start of the output slew: a transport delay in the comparator's "
+    "path, saturation recovery included; the build-up a finite GBW adds in the circuit's own "
+    "positive feedback is not part of it (the model adds it)"
+)
+
+
+def delay_from_delay_to_mid(delay_to_mid_s: float, step_v: float, slew_v_per_s: float) -> float:
+    """``delay_s`` (s) from a datasheet's delay to 50 % of the output swing (s).
+
+    In the model's comparator (a transport delay, then a slew) the output reaches mid-swing
+    td + step/(2·SR) after the crossing, with a saturating overdrive, as datasheets measure
+    it; so td = delay_to_mid - step/(2·SR). ``step_v`` is the output step of that measurement
+    (V): the catalog takes it as the part's full swing at its highest rated supply
+    (``OpAmp.full_step_v``), because the rails of the board are not known when a table loads;
+    a datasheet measured at a smaller step gives a delay_s that is short by the difference
+    over 2·SR (for 10 V less at 10 V/µs, 0.5 µs). Convert by hand into delay_s when the
+    datasheet's step is known.
+    """
+    return delay_to_mid_s - step_v / (2.0 * slew_v_per_s)
+
+
 @dataclass(frozen=True, slots=True)
 class OpAmp:
     """An op-amp part; U1 needs two channels (one dual, or a single part used twice).
@@ -86,9 +109,11 @@ class OpAmp:
     ``supply_min_v``/``supply_max_v`` bound the total supply span (V+ minus V-).
     ``swing_pos_v``/``swing_neg_v`` are the output headroom from each rail (V) at the
     catalogued load; ``slew_v_per_us`` in V/µs; ``gbw_hz`` the gain-bandwidth product;
-    ``delay_s`` the comparator-mode propagation delay including saturation recovery;
-    ``offset_v`` the typical input offset, ``bias_a`` the input bias current, ``output_a``
-    the output current it can source or sink while holding its swing.
+    ``delay_s`` the comparator's propagation delay (DELAY_MEANING); ``offset_v`` the typical
+    input offset, ``bias_a`` the input bias current, ``output_a`` the output current it can
+    source or sink while holding its swing. ``delay_to_mid_s`` is the datasheet figure a
+    table gave instead of ``delay_s`` (None when it gave ``delay_s``), kept for reference;
+    ``delay_s`` then holds its conversion (``delay_from_delay_to_mid``).
     """
 
     id: str
@@ -105,10 +130,17 @@ class OpAmp:
     output_a: float
     unit_cost: float
     stock: int
+    delay_to_mid_s: float | None = None
 
     @property
     def slew_v_per_s(self) -> float:
         return self.slew_v_per_us * 1e6
+
+    @property
+    def full_step_v(self) -> float:
+        """The output's full swing at the highest rated supply (V): supply_max_v less both
+        headrooms; the step ``delay_from_delay_to_mid`` takes a datasheet's delay to be for."""
+        return self.supply_max_v - self.swing_pos_v - self.swing_neg_v
 
     @property
     def packages_per_board(self) -> int:

@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-import dataclasses
-import math
 from typing import Any
 
 from tristock.analysis import Distribution, analyse
 from tristock.checks import DoesNotOscillate, Warning, check, oscillation_failure
-from tristock.circuit import Oscillator, Prediction
+from tristock.circuit import Prediction
 from tristock.design import Design, rails_from_supply
 from tristock.results import PartOut
+from tristock.simulate.results import Measured, SimulationResult
 from tristock.spec import Spec
 
 
@@ -96,27 +95,36 @@ def require_oscillation(spec: Spec, design: Design, *, corners: bool = True) -> 
 def simulation_report(
     spec: Spec, design: Design, *, periods: int = 10, max_points: int = 4000
 ) -> dict[str, Any]:
-    """Measured values and sampled waveforms of the time-domain simulation, with the model's
-    prediction beside them: ``predicted`` is the full model; ``predicted_same_physics`` leaves
-    out the finite-GBW delay, which the simulation does not model, so it is the like-for-like
-    comparison. Raises ``SimulationError`` when the loop does not oscillate."""
+    """The time-domain simulation of the board (nominal rails, 25 °C) with the full model's
+    prediction beside it (the one ``analyse`` reports) and their difference; see
+    ``simulation_report_of``. Raises ``SimulationError`` when the loop does not oscillate."""
     from tristock.simulate import simulate
 
     osc = design.oscillator(rails_from_supply(spec.supply))
-    data = simulate(osc, periods=periods, max_points=max_points).to_dict()
-    data["predicted"] = _headline(osc.prediction())
-    data["predicted_same_physics"] = _headline(same_physics(osc).prediction())
+    result = simulate(osc, periods=periods, max_points=max_points)
+    return simulation_report_of(result, osc.prediction())
+
+
+def simulation_report_of(result: SimulationResult, predicted: Prediction) -> dict[str, Any]:
+    """Measured values and sampled waveforms (``SimulationResult.to_dict``), plus
+    ``predicted`` (frequency, amplitude, duty and timing share of the full model: delay, slew
+    and both channels' GBW, as the simulation) and ``difference`` (``headline_difference``)."""
+    data = result.to_dict()
+    data["predicted"] = {
+        "frequency_hz": float(predicted.frequency_hz),
+        "amplitude_vpp": float(predicted.amplitude_vpp),
+        "duty_high": float(predicted.duty_high),
+        "timing_share": float(predicted.timing_share),
+    }
+    data["difference"] = headline_difference(result.measured, predicted)
     return data
 
 
-def same_physics(osc: Oscillator) -> Oscillator:
-    """The oscillator with the comparator's finite-GBW delay removed (what ``simulate`` models)."""
-    return dataclasses.replace(osc, opamp=dataclasses.replace(osc.opamp, gbw_hz=math.inf))
-
-
-def _headline(p: Prediction) -> dict[str, float]:
+def headline_difference(measured: Measured, predicted: Prediction) -> dict[str, float]:
+    """The simulation against the full model: ``frequency_rel`` and ``amplitude_rel`` are
+    simulated/predicted - 1, ``duty_abs`` is simulated - predicted (fraction of the period)."""
     return {
-        "frequency_hz": float(p.frequency_hz),
-        "amplitude_vpp": float(p.amplitude_vpp),
-        "duty_high": float(p.duty_high),
+        "frequency_rel": measured.frequency_hz / float(predicted.frequency_hz) - 1.0,
+        "amplitude_rel": measured.amplitude_vpp / float(predicted.amplitude_vpp) - 1.0,
+        "duty_abs": measured.duty_high - float(predicted.duty_high),
     }

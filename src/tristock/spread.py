@@ -163,6 +163,7 @@ def predict_point(point: SpreadPoint, v_ref: float | None, control: str = "serie
         ib1=np.asarray(point.ib1) / beta,
         vos2=point.vos2,
         ib2=point.ib2,
+        integrator_gbw=point.gbw,
     )
 
 

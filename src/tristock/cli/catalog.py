@@ -12,10 +12,12 @@ import math
 import sys
 
 from tristock import limits
-from tristock.catalog import CatalogError, load_catalog, parse_number, set_stock
+from tristock.catalog import Catalog, CatalogError, load_catalog, parse_number, set_stock
 from tristock.cli import exits
 from tristock.cli.exits import UsageError
 from tristock.cli.output import emit, write_quietly
+from tristock.parts import DELAY_MEANING
+from tristock.units import format_value
 
 
 def _value(text: str, option: str) -> float:
@@ -91,10 +93,29 @@ def generate(args: argparse.Namespace) -> int:
     return exits.OK
 
 
+def check_text(catalog: Catalog) -> str:
+    """What ``catalog check`` prints: the counts, what delay_s means, and every delay a table
+    gave as delay_to_mid_s with what it was converted to."""
+    lines = [f"ok: {catalog!r}", f"opamps.csv delay_s: {DELAY_MEANING}"]
+    converted = [part for part in catalog.opamps if part.delay_to_mid_s is not None]
+    if converted:
+        lines.append(
+            f"opamps.csv delay_to_mid_s (a datasheet's delay to 50 % of the output swing) given "
+            f"for {len(converted)} part{'s' if len(converted) != 1 else ''}, converted to "
+            "delay_s = delay_to_mid_s - step/(2·slew) with the step the part's full output swing "
+            "at supply_max_v: "
+            + ", ".join(
+                f"{p.id} {format_value(p.delay_to_mid_s or 0.0, 's', 3)} -> "
+                f"{format_value(p.delay_s, 's', 3)}"
+                for p in converted
+            )
+        )
+    return "\n".join(lines)
+
+
 def run(args: argparse.Namespace) -> int:
     if args.action == "check":
-        catalog = load_catalog(args.dir)
-        emit(f"ok: {catalog!r}")
+        emit(check_text(load_catalog(args.dir)))
         return exits.OK
     if args.action == "generate":
         return generate(args)

@@ -7,6 +7,7 @@ Exit 0 with the comparison; 1 when the loop does not oscillate (the simulation s
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 
 from tristock.cli import exits
@@ -14,36 +15,47 @@ from tristock.cli.common import catalog_from, design_from_file, plot_target
 from tristock.cli.exits import WorkFailed
 from tristock.cli.output import emit, emit_json
 from tristock.design import Design, rails_from_supply
-from tristock.report import require_oscillation, same_physics, simulation_report
+from tristock.report import headline_difference, require_oscillation, simulation_report
 from tristock.simulate import SimulationError, SimulationResult, simulate
 from tristock.spec import Spec
 from tristock.units import format_value
 
 
 def render_simulation(spec: Spec, d: Design, result: SimulationResult) -> str:
-    """Simulated against modelled frequency, amplitude and duty."""
+    """Simulated against the full model's frequency, amplitude and duty (the prediction
+    ``analyse`` reports: delay, slew and both channels' GBW, as the simulation)."""
     osc = d.oscillator(rails_from_supply(spec.supply))
     m = result.measured
     full = osc.prediction()
-    same = same_physics(osc).prediction()
+    diff = headline_difference(m, full)
 
-    def row(name: str, meas: float, pred: float, unit: str) -> str:
+    def row(name: str, meas: float, pred: float, unit: str, rel: float) -> str:
         return (
             f"  {name:<10} {format_value(meas, unit, 6):>14} {format_value(pred, unit, 6):>14}"
-            f" {100 * (meas / pred - 1):>+9.4f} %"
+            f" {100 * rel:>+9.4f} %"
         )
 
+    engine = (
+        "an ODE, both op amps single-pole"
+        if math.isfinite(osc.opamp.gbw_hz)
+        else "exact piecewise, ideal gain-bandwidth"
+    )
     return "\n".join(
         [
             f"tristock simulate (time domain, settled, {result.periods_measured} periods measured)",
             f"  {'':<10} {'simulated':>14} {'model':>14} {'difference':>11}",
-            row("frequency", m.frequency_hz, float(same.frequency_hz), "Hz"),
-            row("amplitude", m.amplitude_vpp, float(same.amplitude_vpp), "Vpp"),
-            f"  {'duty high':<10} {m.duty_high:>14.4%} {float(same.duty_high):>14.4%}"
-            f" {100 * (m.duty_high - float(same.duty_high)):>+9.4f} pt",
-            "  (the simulation leaves out the comparator's finite-GBW delay; with it the model "
-            f"predicts {format_value(float(full.frequency_hz), 'Hz', 6)}, "
-            f"{float(full.amplitude_vpp):.5g} Vpp)",
+            row("frequency", m.frequency_hz, float(full.frequency_hz), "Hz", diff["frequency_rel"]),
+            row(
+                "amplitude",
+                m.amplitude_vpp,
+                float(full.amplitude_vpp),
+                "Vpp",
+                diff["amplitude_rel"],
+            ),
+            f"  {'duty high':<10} {m.duty_high:>14.4%} {float(full.duty_high):>14.4%}"
+            f" {100 * diff['duty_abs']:>+9.4f} pt",
+            f"  simulation: {engine}; model: the full prediction (as analyse),",
+            f"  op-amp timing {100 * float(full.timing_share):.1f} % of the period",
         ]
     )
 

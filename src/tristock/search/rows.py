@@ -138,6 +138,7 @@ class RowPrediction:
                 slew_fall=self.slew_fall[ok],
                 delay=(col("delay_s") * delay_scale)[ok],
                 gbw=col("gbw_hz")[ok],
+                integrator_gbw=col("gbw_hz")[ok],
                 vos1=vos1[ok],
                 ib1=ib1[ok],
                 vos2=vos2[ok],

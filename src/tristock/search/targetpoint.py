@@ -138,6 +138,7 @@ def _predict_at(
         slew_fall=model.slew_fall_v_per_s * slew_scale,
         delay=model.delay_s * delay_scale,
         gbw=model.gbw_hz,
+        integrator_gbw=model.gbw_hz,
     )
 
 

@@ -54,6 +54,12 @@ COLUMNS: Final[dict[str, tuple[str, ...]]] = {
     "pots": ("id", "value_ohm", "tolerance_pct", "tempco_ppm", "kind", "unit_cost", "stock"),
 }
 
+#: Columns a table may have besides COLUMNS; each stands in for the required column it maps
+#: to (a row gives one of the two): opamps.csv may give delay_to_mid_s instead of delay_s.
+ALTERNATIVE_COLUMNS: Final[dict[str, dict[str, str]]] = {
+    "opamps": {"delay_to_mid_s": "delay_s"},
+}
+
 #: Table kinds in load order; the file of a kind is ``<kind>.csv``.
 KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots")
 OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots"})

@@ -24,6 +24,7 @@ from tristock.parts import (
     Pot,
     PotKind,
     Resistor,
+    delay_from_delay_to_mid,
 )
 from tristock.stock.columns import CatalogIssue
 
@@ -210,7 +211,7 @@ def _build_opamp(row: RowReader) -> OpAmp | None:
         )
     slew = row.number("slew_v_per_us", _positive)
     gbw = row.number("gbw_hz", _positive)
-    delay = row.number("delay_s", _non_negative)
+    delay, delay_to_mid = _opamp_delay(row, slew, supply_max - swing_pos - swing_neg)
     offset = row.number("offset_v")
     bias = row.number("bias_a")
     output = row.number("output_a", _positive)
@@ -233,7 +234,36 @@ def _build_opamp(row: RowReader) -> OpAmp | None:
         output,
         cost,
         stock,
+        delay_to_mid,
     )
+
+
+def _opamp_delay(row: RowReader, slew_v_per_us: float, step_v: float) -> tuple[float, float | None]:
+    """(delay_s, delay_to_mid_s or None) of an op-amp row: one of the two columns, never both;
+    delay_to_mid_s is converted with ``parts.delay_from_delay_to_mid`` at the part's full
+    output step (``OpAmp.full_step_v``)."""
+    given = [name for name in ("delay_s", "delay_to_mid_s") if row.raw(name)]
+    if len(given) == 2:
+        row.error("delay_to_mid_s", "give delay_s or delay_to_mid_s, not both")
+        return math.nan, None
+    if not given and "delay_to_mid_s" in row.cells:
+        row.error("delay_s", "is empty, and so is delay_to_mid_s: give one of them")
+        return math.nan, None
+    if given != ["delay_to_mid_s"]:
+        return row.number("delay_s", _non_negative), None
+    mid = row.number("delay_to_mid_s", _non_negative)
+    if math.isnan(mid) or math.isnan(slew_v_per_us) or math.isnan(step_v):
+        return math.nan, None
+    slewing = step_v / (2.0 * slew_v_per_us * 1e6)
+    delay = delay_from_delay_to_mid(mid, step_v, slew_v_per_us * 1e6)
+    if delay < 0.0:
+        row.error(
+            "delay_to_mid_s",
+            f"{_show(mid)} s is less than the {_show(slewing)} s the output takes to slew half "
+            f"its {_show(step_v)} V step at {_show(slew_v_per_us)} V/µs",
+        )
+        return math.nan, None
+    return delay, mid
 
 
 def _build_pot(row: RowReader) -> Pot | None:

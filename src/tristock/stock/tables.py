@@ -21,7 +21,14 @@ from pathlib import Path
 
 from tristock.atomicio import clean_stale_temps
 from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
-from tristock.stock.columns import COLUMNS, KINDS, OPTIONAL_KINDS, CatalogError, CatalogIssue
+from tristock.stock.columns import (
+    ALTERNATIVE_COLUMNS,
+    COLUMNS,
+    KINDS,
+    OPTIONAL_KINDS,
+    CatalogError,
+    CatalogIssue,
+)
 from tristock.stock.csvtext import (
     decode_table,
     is_skipped,
@@ -155,27 +162,32 @@ def _read_table(kind: str, text: str, file: str, issues: list[CatalogIssue]) -> 
 def _check_header(
     kind: str, header: list[str], file: str, line: int, issues: list[CatalogIssue]
 ) -> bool:
-    """Every required column once, nothing else; False (after recording why) otherwise."""
+    """Every required column once (or an alternative standing in for it), nothing else;
+    False (after recording why) otherwise."""
     expected = COLUMNS[kind]
+    alternatives = ALTERNATIVE_COLUMNS.get(kind, {})
+    allowed = (*expected, *alternatives)
     before = len(issues)
     seen: set[str] = set()
     for name in header:
         label = name or "''"
         if name in seen:
             issues.append(CatalogIssue(file, line, label, "column appears twice"))
-        elif name not in expected:
+        elif name not in allowed:
             issues.append(
                 CatalogIssue(
                     file,
                     line,
                     label,
-                    f"unknown column (columns of {kind}.csv: {', '.join(expected)})",
+                    f"unknown column (columns of {kind}.csv: {', '.join(allowed)})",
                 )
             )
         seen.add(name)
     for name in expected:
-        if name not in seen:
-            issues.append(CatalogIssue(file, line, name, "required column is missing"))
+        stand_ins = [alt for alt, target in alternatives.items() if target == name]
+        if name not in seen and not any(alt in seen for alt in stand_ins):
+            also = "".join(f" (or {alt})" for alt in stand_ins)
+            issues.append(CatalogIssue(file, line, name, f"required column is missing{also}"))
     return len(issues) == before
 
 
