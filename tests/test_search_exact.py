@@ -60,8 +60,8 @@ def reference(spec: Spec, catalog: Catalog) -> list[tuple[str, ...]]:
         p = predict(
             r1[ok], r2[ok], r3[ok], c1[ok], vh, vl,
             slew_rise=m.slew_rise_v_per_s, slew_fall=m.slew_fall_v_per_s, delay=m.delay_s,
-            gbw=m.gbw_hz, vos1=m.offset_v, ib1=m.bias_a, vos2=m.comparator_offset_v,
-            ib2=m.comparator_bias_a,
+            gbw=m.gbw_hz, integrator_gbw=m.gbw_hz, vos1=m.offset_v, ib1=m.bias_a,
+            vos2=m.comparator_offset_v, ib2=m.comparator_bias_a,
         )  # fmt: skip
         n = np.flatnonzero(ok)
         a, b = a[ok], b[ok]
@@ -198,7 +198,7 @@ def specs(draw: st.DrawFn, catalog: Catalog, guarantee: str, by: str) -> Spec:
             continue
         p = predict(r1.value_ohm, r2.value_ohm, r3.value_ohm, c1.value_f, vh, vl,
                     slew_rise=m.slew_rise_v_per_s, slew_fall=m.slew_fall_v_per_s,
-                    delay=m.delay_s, gbw=m.gbw_hz)  # fmt: skip
+                    delay=m.delay_s, gbw=m.gbw_hz, integrator_gbw=m.gbw_hz)  # fmt: skip
         ideal = (vh + vl) ** 2 * k * rc / (vh * vl)
         if 1 - ideal / float(p.period_s) <= 0.8 * share and max(vh, vl) / rc < m.slew_rise_v_per_s:
             buildable.append((float(p.frequency_hz), float(p.amplitude_vpp)))

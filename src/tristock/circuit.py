@@ -37,7 +37,7 @@ from typing import NamedTuple
 import numpy as np
 import numpy.typing as npt
 
-from tristock.integrator import integrator_terms, lag_overshoot_area
+from tristock.looptiming import loop_timing
 from tristock.parts import OpAmp
 from tristock.transition import switch_times
 from tristock.units import format_value
@@ -370,27 +370,26 @@ def predict(
             "(need -VL < Ve < VH): the triangle would never turn"
         )
 
-    slow, lag = integrator_terms(rc, IGBW)
-    rc_eff = rc * slow
-    # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
-    drive = np.stack([b, a])
-    edges = switch_times(k, drive / rc_eff, span, drive, np.stack([SRr, SRf]), GBW, TD)
-    (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
-    d_r = c_r + lag
-    d_f = c_f + lag
-
-    ramp = k * span * rc_eff
-    t_high = (ramp + b * d_r) / a + d_r + m_f - m_r
-    t_low = (ramp + a * d_f) / b + d_f + m_r - m_f
-    period = t_high + t_low
-    ideal_period = span * k * span * rc / (a * b)
+    core = loop_timing(
+        k,
+        rc,
+        span,
+        a,
+        b,
+        slew_rise=SRr,
+        slew_fall=SRf,
+        delay=TD,
+        gbw=GBW,
+        integrator_gbw=IGBW,
+    )
+    period, t_high, ideal_period = core.period_s, core.high_s, core.ideal_period_s
+    d_r, d_f, rc_eff = core.delay_rise_s, core.delay_fall_s, core.rc_eff_s
 
     shift = (1.0 + k) * (VOS2 + IB2 * R1 * R2 / (R1 + R2))
     th_hi = VL * k + shift
     th_lo = -VH * k + shift
-    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), np.stack([SRr, SRf]), lag)
-    peak_hi = th_hi + (b * (o_r + lag) - area_r) / rc_eff
-    peak_lo = th_lo - (a * (o_f + lag) - area_f) / rc_eff
+    peak_hi = th_hi + core.overshoot_top_v
+    peak_lo = th_lo - core.overshoot_bottom_v
 
     fields = (
         1.0 / period,

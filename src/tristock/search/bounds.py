@@ -4,99 +4,54 @@ The search proves answers optimal under the full model (``tristock.circuit.predi
 under a simplified one. For that it needs, for every (op amp, R1/R2 pair), a window of
 P = k·R3·C1 outside which no row can meet the frequency band, and bounds of the amplitude and
 the timing share over that window, valid for every R3 the catalog offers. They come from the
-loop's period and overshoot written with the two integrator drives a and b as separate
-inputs (``loop_timing``): at a = VH - Ve, b = VL + Ve it is exactly ``predict``, and over a
-range of the integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is
-chosen) each quantity is monotone in each input, so its extremes sit at the ends.
+loop's timing written with the two integrator drives a and b as separate inputs
+(``tristock.looptiming``, the function ``predict`` itself evaluates): over a range of the
+integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is chosen) each
+quantity is monotone in each input, so its extremes sit at the ends of the ranges.
 
-Notation (volts from the reference, seconds, hertz): k = R1/R2, P = k·R3·C1, span = VH + VL,
-β = k/(1 + k), ρ = SR·P/V (V the drive of the ramp before the transition),
-g(ρ) = ln(1 + ρ)·(1 + 1/ρ) - 1, the comparator's GBW delay t_g = g(ρ)/(2π·GBW·β),
-d_r = td + t_g,r + span/(2·SR_r) and d_f = td + t_g,f + span/(2·SR_f) (rise: the top turn,
-driven by b; fall: the bottom turn, driven by a):
+Notation as in ``tristock.looptiming``: span = VH + VL, RC' = RC + 1/ωt (ε = 1/(ωt·RC)),
+τi = RC/(ωt·RC + 1) the integrator's lag; each edge's centroid c = td + G(W; μ, D)/λ and
+overshoot time o = td + G(L0; μ, D)/λ with λ = 2π·GBW·k/(1 + k), μ = slope/(k·SR) (slope =
+drive/RC'), W = λ·span/SR the whole edge and L0 = λ·drive/SR the part up to the integrator's
+neutral level, G the comparator edge's mean passage time (``transition.scaled_mean_time``;
+for GBW = inf a linear slew: c = td + span/(2·SR), o = td + drive/(2·SR)).
 
-- period T = span·(span·P/(a·b) + d_r/a + d_f/b); ideal part T_i = span²·P/(a·b)
-- overshoots: top (b·k/P)·(td + t_g,r + b/(2·SR_r)), bottom (a·k/P)·(td + t_g,f + a/(2·SR_f))
-- amplitude A = k·span + both overshoots; timing share s = 1 - T_i/T
-
-Monotonicity (each proven in its function's docstring, each checked by tests on random points):
-
-- (M1) T increases with P; (M2) T decreases with a and with b, each alone;
-- (M3) A decreases with P; (M4) A increases with a and with b, each alone.
-
-Two facts carry them: g increases (g'(ρ) = (ρ - ln(1 + ρ))/ρ² > 0) and g(ρ)/ρ decreases
-(its derivative has the sign of 2ρ - (ρ + 2)·ln(1 + ρ), negative since ln(1 + ρ) > 2ρ/(ρ + 2)
-for ρ > 0, a standard inequality).
+Three properties of G carry everything, exact for the linear slew and verified for the
+tabulated edge (tests/test_search_bounds.py, on a grid three times finer than the table in
+every axis and past its ends) wherever the scaled level is at least ``EDGE_LEVEL_MIN``:
+(G1) G does not rise with μ (a steeper triangle builds the edge up sooner);
+(G2) μ·G does not fall with μ (the slope times the overshoot time grows with the slope);
+(G3) G does not fall with L (a longer edge takes longer on average).
+Below that level (an edge shorter than a tenth of the build-up time 1/λ: a very fast slew
+against the gain-bandwidth) the interpolated table is not monotone, so no bound is claimed
+there: the functions below answer (0, inf) for such op amps and pairs, and the search then
+evaluates every row of the pair (``claimed``).
+From them:
+- (M1) T = span·(span·k·RC'/(a·b) + d_r/a + d_f/b), d = c + τi, rises with P: RC' and τi
+  rise, μ falls so c rises (G1).
+- (M2) T falls with a and with b, each alone: the first term directly; d_f depends on a only
+  through μ_f ∝ a (G1), d_r on b likewise; 1/a and 1/b fall.
+- (M3, M4) for rows whose timing share is at most s ≤ 0.4 (the others are rejected anyway):
+  T ≥ T_i·(1 + ε), so the share is at least ε/(1 + ε) and ε ≤ s/(1 - s) < 1, i.e.
+  P ≥ ``share_p_floor``; there each overshoot lies between drive·o/RC' and
+  drive·(o + τi)/RC' (the lag area is between 0 and drive·τi); both ends fall with P
+  (τi/RC' = ε/(1 + ε)² falls for ε < 1; drive·G/(λ·RC') is k·SR·μ·G/λ with μ ∝ 1/RC',
+  which falls with P by G2; td·drive/RC' falls) and rise with
+  their drive (G2 for μ ∝ drive and G3 for L0 ∝ drive).
+Every row the search evaluates is also held to these bounds at run time
+(``search.rows``), and a violation withdraws the proof.
 """
 
 from __future__ import annotations
 
-import math
-from collections.abc import Callable
 from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
 
+from tristock.looptiming import LoopTiming, loop_timing
+
 Array = NDArray[np.float64]
-
-
-class LoopTiming(NamedTuple):
-    """Period, its ideal-switch part and the two overshoots (arrays, SI units)."""
-
-    period_s: Array
-    ideal_period_s: Array
-    overshoot_top_v: Array
-    overshoot_bottom_v: Array
-
-    @property
-    def overshoot_v(self) -> Array:
-        return np.asarray(self.overshoot_top_v + self.overshoot_bottom_v)
-
-    @property
-    def timing_share(self) -> Array:
-        """1 - T_i/T: the share of the period set by the op amps' timing."""
-        return np.asarray(1.0 - self.ideal_period_s / self.period_s)
-
-
-def _gbw_delay(rho: Array, beta: Array, gbw: Array) -> Array:
-    """t_g = g(ρ)/(2π·GBW·β), 0 for an infinite GBW (s)."""
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        lp = np.log1p(rho)
-        g = lp - 1.0 + lp / rho
-        out = g / (2.0 * math.pi * gbw * beta)
-    return np.asarray(np.where(np.isinf(gbw), 0.0, out), dtype=float)
-
-
-def loop_timing(
-    k: Array | float,
-    p: Array | float,
-    span: Array | float,
-    a: Array | float,
-    b: Array | float,
-    *,
-    slew_rise: Array | float,
-    slew_fall: Array | float,
-    delay: Array | float,
-    gbw: Array | float,
-) -> LoopTiming:
-    """The loop's timing with the drives a (falling ramp) and b (rising ramp) as independent
-    inputs; see the module docstring for the formulas. With a + b = span it equals
-    ``circuit.predict`` (tests hold them equal to 1e-12)."""
-    k, p, span, a, b, sr, sf, td, gbw = (
-        np.asarray(x, dtype=float) for x in (k, p, span, a, b, slew_rise, slew_fall, delay, gbw)
-    )
-    beta = k / (1.0 + k)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        tg_r = _gbw_delay(sr * p / b, beta, gbw)
-        tg_f = _gbw_delay(sf * p / a, beta, gbw)
-    d_r = td + tg_r + span / sr / 2.0
-    d_f = td + tg_f + span / sf / 2.0
-    ideal = span * span * p / (a * b)
-    period = ideal + span * (d_r / a + d_f / b)
-    top = (b * k / p) * (td + tg_r + b / (2.0 * sr))
-    bottom = (a * k / p) * (td + tg_f + a / (2.0 * sf))
-    return LoopTiming(period, ideal, top, bottom)
 
 
 class OpAmpLoop(NamedTuple):
@@ -107,7 +62,8 @@ class OpAmpLoop(NamedTuple):
     slew_rise: Array
     slew_fall: Array
     delay: Array
-    gbw: Array
+    gbw: Array  # the comparator's
+    integrator_gbw: Array
     ve_lo: Array  # integrator error voltage range over the R3 values a row can take (V)
     ve_hi: Array
 
@@ -123,9 +79,10 @@ class Bounds(NamedTuple):
 
 
 def _timing(loop: OpAmpLoop, k: Array, p: Array, a: Array, b: Array) -> LoopTiming:
+    """The loop's timing at P = k·RC with the drives a and b."""
     return loop_timing(
         k,
-        p,
+        p / k,
         loop.vh + loop.vl,
         a,
         b,
@@ -133,6 +90,7 @@ def _timing(loop: OpAmpLoop, k: Array, p: Array, a: Array, b: Array) -> LoopTimi
         slew_fall=loop.slew_fall,
         delay=loop.delay,
         gbw=loop.gbw,
+        integrator_gbw=loop.integrator_gbw,
     )
 
 
@@ -146,42 +104,71 @@ def _strong(loop: OpAmpLoop) -> tuple[Array, Array]:
     return np.asarray(loop.vh - loop.ve_lo), np.asarray(loop.vl + loop.ve_hi)
 
 
-def period_bounds(loop: OpAmpLoop, k: Array, p: Array) -> Bounds:
-    """Bounds of the period at (k, P) over the Ve range (s).
+#: The smallest scaled edge level λ·V/SR at which (G1)-(G3) are verified (module docstring).
+EDGE_LEVEL_MIN = 0.1
 
-    (M2) T = span·(span·P/(a·b) + d_r/a + d_f/b) falls with a: the first two terms directly,
-    d_f through t_g,f, whose ρ_f = SR·P/a falls with a while g rises with ρ; likewise with b.
-    So the weakest drives give the longest period and the strongest the shortest.
-    """
-    return Bounds(
+
+def claimed(loop: OpAmpLoop, k: Array) -> NDArray[np.bool_]:
+    """Where the bounds hold: an ideal comparator (GBW = inf, a linear slew), or every edge's
+    levels λ·V/SR at least EDGE_LEVEL_MIN for the smallest drive of the Ve range and the
+    faster slew (the whole edge, λ·span/SR, is longer still)."""
+    a, b = _weak(loop)
+    lam = 2.0 * np.pi * np.asarray(loop.gbw, dtype=float) * k / (1.0 + k)
+    fastest = np.maximum(loop.slew_rise, loop.slew_fall)
+    with np.errstate(invalid="ignore", over="ignore"):
+        level = lam * np.minimum(a, b) / fastest
+    return np.asarray(np.isinf(loop.gbw) | (level >= EDGE_LEVEL_MIN))
+
+
+def _or_unbounded(ok: NDArray[np.bool_], bounds: Bounds) -> Bounds:
+    return Bounds(np.where(ok, bounds.lo, 0.0), np.where(ok, bounds.hi, np.inf))
+
+
+def period_bounds(loop: OpAmpLoop, k: Array, p: Array) -> Bounds:
+    """Bounds of the period at (k, P) over the Ve range (s): by (M2) the weakest drives give
+    the longest period and the strongest the shortest; (0, inf) where no bound is claimed."""
+    t = Bounds(
         _timing(loop, k, p, *_strong(loop)).period_s, _timing(loop, k, p, *_weak(loop)).period_s
     )
+    return _or_unbounded(claimed(loop, k), t)
 
 
 def amplitude_bounds(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Bounds:
-    """Bounds of the triangle's peak-to-peak over P in [p_lo, p_hi] and the Ve range (V).
-
-    (M3) The top overshoot is k·(b·td + b²/(2·SR))/P + k·SR·[g(ρ)/ρ]/(2π·GBW·β) with
-    ρ = SR·P/b: both terms fall as P grows (g(ρ)/ρ falls with ρ). (M4) Both rise with b
-    (ρ falls as b grows); the bottom overshoot likewise with a. So the strongest drives at
-    the smallest P give the largest amplitude, the weakest at the largest P the smallest.
-    """
+    """Bounds of the triangle's peak-to-peak over P in [p_lo, p_hi] and the Ve range (V):
+    k·span plus the overshoots, the largest with the strongest drives at the smallest P
+    (upper ends, lag areas left out), the smallest with the weakest at the largest P (lower
+    ends, whole lags taken off); (M3, M4), claimed where ε ≤ 1 at p_lo (P ≥ k/ωt), else
+    (0, inf)."""
     span = loop.vh + loop.vl
     hi = _timing(loop, k, p_lo, *_strong(loop))
     lo = _timing(loop, k, p_hi, *_weak(loop))
-    return Bounds(k * span + lo.overshoot_v, k * span + hi.overshoot_v)
+    wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
+    ok = claimed(loop, k) & (np.asarray(p_lo) * wt >= k)
+    a = Bounds(
+        k * span + lo.floor_top_v + lo.floor_bottom_v,
+        k * span + hi.reach_top_v + hi.reach_bottom_v,
+    )
+    return _or_unbounded(ok, a)
 
 
 def timing_share_floor(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Array:
     """A lower bound of 1 - T_i/T over P in [p_lo, p_hi] and the Ve range.
 
-    s = D/(T_i + D) with D = span·(d_r/a + d_f/b): s rises with D and falls with T_i. D is
-    smallest at the smallest P and the strongest drives, T_i largest at the largest P and the
-    weakest drives."""
+    s = D/(T_i + D) with D = T - T_i = span·(span·k·(RC' - RC)/(a·b) + d_r/a + d_f/b): s rises
+    with D and falls with T_i. D is smallest at the smallest P and the strongest drives
+    (RC' - RC = 1/ωt is fixed; (M1), (M2)), T_i largest at the largest P and the weakest."""
     strong = _timing(loop, k, p_lo, *_strong(loop))
     weak = _timing(loop, k, p_hi, *_weak(loop))
     d_min = strong.period_s - strong.ideal_period_s
-    return np.asarray(d_min / (weak.ideal_period_s + d_min))
+    return np.asarray(np.where(claimed(loop, k), d_min / (weak.ideal_period_s + d_min), 0.0))
+
+
+def share_p_floor(loop: OpAmpLoop, k: Array, max_share: float) -> Array:
+    """The smallest P a row with timing share at most s can have: T ≥ T_i·(1 + ε) gives
+    s ≥ ε/(1 + ε), so ε = 1/(ωt·RC) ≤ s/(1 - s), i.e. P = k·RC ≥ k·(1 - s)/(s·ωt) (0 for an
+    ideal integrator). Above it ε < 1, where τi/RC' = ε/(1 + ε)² falls as P grows (M3)."""
+    wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
+    return np.asarray(k * (1.0 - max_share) / (max_share * wt), dtype=float)
 
 
 def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
@@ -194,62 +181,77 @@ def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
 
 
 def lowest_p(loop: OpAmpLoop, k: Array, t_min: Array) -> Array:
-    """P_a with T_hi(P) < t_min for every P < P_a (0 when the delays alone reach t_min).
+    """P_a with T_hi(P) < t_min for every P < P_a (0 when the delays alone reach t_min, or no
+    bound is claimed).
 
-    Newton's method finds the root; the end is then pushed down until T_hi(P_a) < t_min holds
-    as computed, so every row left out is outside the band (a row on the edge stays in)."""
-    t_min = np.asarray(t_min, dtype=float)
-    p = _root(lambda x: period_bounds(loop, k, x).hi, t_min, loop)
-    step = 1e-12
-    for _ in range(60):
-        bad = period_bounds(loop, k, p).hi >= t_min
-        if not bad.any():
-            break
-        p = np.where(bad, p * (1 - step), p)
-        step = min(2 * step, 0.5)
-    # Where no push settles it, keep every P below: a wider window only costs rows.
-    return np.asarray(np.where(period_bounds(loop, k, p).hi >= t_min, 0.0, p))
+    Newton's method finds the root of the weakest drives' period; the end is then pushed down
+    until T_hi(P_a) < t_min holds as computed, so every row left out is outside the band (a
+    row on the edge stays in)."""
+    weak = _weak(loop)
+    return _edge(loop, k, np.asarray(t_min, dtype=float), weak, -1.0)
 
 
 def highest_p(loop: OpAmpLoop, k: Array, t_max: Array) -> Array:
-    """P_b with T_lo(P) > t_max for every P > P_b (inf when no root is found)."""
-    t_max = np.asarray(t_max, dtype=float)
-    p = _root(lambda x: period_bounds(loop, k, x).lo, t_max, loop)
-    step = 1e-12
-    for _ in range(60):
-        bad = period_bounds(loop, k, p).lo <= t_max
-        if not bad.any():
-            break
-        p = np.where(bad, p * (1 + step), p)
-        step = min(2 * step, 0.5)
-    return np.asarray(np.where(period_bounds(loop, k, p).lo <= t_max, np.inf, p))
+    """P_b with T_lo(P) > t_max for every P > P_b (inf when no root is found, or no bound is
+    claimed): the strongest drives' period, as ``lowest_p``."""
+    strong = _strong(loop)
+    return _edge(loop, k, np.asarray(t_max, dtype=float), strong, 1.0)
 
 
-def _root(period: Callable[[Array], Array], target: Array, loop: OpAmpLoop) -> Array:
-    """P with period(P) = target, by Newton steps in ln P (period rises with P)."""
-    a_min, b_min = _weak(loop)
-    span = loop.vh + loop.vl
-    # Start at the ideal-switch P for the target: P = T·a·b/span² (an over-estimate).
-    p = np.maximum(target * a_min * b_min / (span * span), 1e-30)
-    for _ in range(60):
-        t = period(p)
-        t2 = period(p * (1 + 1e-6))
-        slope = (t2 - t) / 1e-6  # dT/d ln P
-        step = np.where(slope > 0, (target - t) / np.where(slope > 0, slope, 1.0), 0.0)
-        step = np.clip(step, -2.0, 2.0)
-        p = p * np.exp(step)
-        if np.all(np.abs(step) < 1e-13):
-            break
-    return np.asarray(p, dtype=float)
+def _edge(
+    loop: OpAmpLoop, k: Array, target: Array, drives: tuple[Array, Array], side: float
+) -> Array:
+    """Where the period at ``drives`` crosses ``target``, pushed outwards (side -1: down, the
+    window's low end; +1: up, its high end) until it is strictly past, as computed."""
+    k, target = np.broadcast_arrays(np.asarray(k, dtype=float), target)
+    n = len(k)
+    a, b = (np.broadcast_to(x, (n,)) for x in drives)
+    ok = np.broadcast_to(claimed(loop, k), (n,))
+
+    def period(p: Array, sel: NDArray[np.int64]) -> Array:
+        sub = OpAmpLoop(*(np.broadcast_to(x, (n,))[sel] for x in loop))
+        return _timing(sub, k[sel], p, a[sel], b[sel]).period_s
+
+    span = np.broadcast_to(loop.vh + loop.vl, (n,))
+    p = np.maximum(target * a * b / (span * span), 1e-30)  # the ideal switch's P (too large)
+    todo = np.flatnonzero(ok)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        for _ in range(40):  # Newton steps in ln P
+            if len(todo) == 0:
+                break
+            t = period(p[todo], todo)
+            slope = (period(p[todo] * (1 + 1e-6), todo) - t) / 1e-6  # dT/d ln P
+            step = np.where(slope > 0, (target[todo] - t) / np.where(slope > 0, slope, 1.0), 0.0)
+            step = np.clip(np.where(np.isfinite(step), step, 0.0), -2.0, 2.0)
+            p[todo] = p[todo] * np.exp(step)
+            todo = todo[np.abs(step) >= 1e-12]
+        push = 1e-12
+        todo = np.flatnonzero(ok)
+        for _ in range(60):
+            t = period(p[todo], todo)
+            bad = ~(t < target[todo]) if side < 0 else ~(t > target[todo])
+            todo = todo[bad]
+            if len(todo) == 0:
+                break
+            p[todo] = p[todo] * (1 + side * push)
+            push = min(2 * push, 0.5)
+    # Where no push settles it (or nothing is claimed), keep every P on that side: a wider
+    # window only costs rows.
+    far = 0.0 if side < 0 else np.inf
+    unsettled = np.zeros(n, dtype=bool)
+    unsettled[todo] = True
+    return np.asarray(np.where(ok & ~unsettled, p, far), dtype=float)
 
 
 def overshoot_fraction_cap(max_timing_share: float, t_max_over_t_min: float) -> float:
     """An upper bound of ε = (A - k·span)/(k·span) for every row whose timing share is at
     most s and whose period lies in a band with T_max/T_min = r: ε ≤ s·r/(1 - s).
 
-    Each overshoot is the ramp's slope times td + t_g + V/(2·SR) ≤ d (V ≤ span), so
-    A - k·span ≤ (k/P)·(b·d_r + a·d_f) = (k/P)·a·b·D/span with D = T - T_i ≤ s·T_max; and
-    T_i = span²·P/(a·b) ≥ (1 - s)·T_min. Dividing gives the bound, whatever a, b and P.
+    Each overshoot is at most drive·(o + τi)/RC' ≤ drive·d/RC' ≤ drive·d·k/P, since o ≤ c
+    (G3: the drive is at most the span, so L0 ≤ W) and RC' ≥ RC. So
+    A - k·span ≤ (k/P)·(b·d_r + a·d_f) = (k/P)·a·b·(d_r/a + d_f/b) ≤ (k/P)·a·b·D/span with
+    D = T - T_i ≤ s·T_max; and T_i = span²·P/(a·b) ≥ (1 - s)·T_min. Dividing gives the bound,
+    whatever a, b and P.
     """
     s = max_timing_share
     return s * t_max_over_t_min / (1.0 - s)

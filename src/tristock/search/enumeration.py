@@ -32,7 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.bounds import amplitude_bounds, timing_share_floor, window
+from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
 from tristock.search.guarantee import pair_limits
 from tristock.search.model import SearchModel
 from tristock.search.rows import Rows, best, empty_rows, evaluate
@@ -133,18 +133,26 @@ def _pairs(model: SearchModel, products: _Products) -> _Pairs:
         keep = use_r1[i1] & use_r2[i2]
         i1, i2 = i1[keep], i2[keep]
         k = res.value[i1] / res.value[i2]
-        u = np.full(len(i1), o.index, dtype=np.int64)
-        loop = model.loops(u)
-        w = window(loop, k, np.full(len(k), t_min), np.full(len(k), t_max))
-        # P outside what the product table can make is no use either.
-        p_lo = np.maximum(w.lo, k * math.exp(products.ln[0]))
-        p_hi = np.minimum(w.hi, k * math.exp(products.ln[-1]))
-        reach = p_lo <= p_hi
-        amp = amplitude_bounds(loop, k, p_lo, p_hi)
-        share = timing_share_floor(loop, k, p_lo, p_hi)
+        # Pairs of equal ratio share everything below: work on the distinct k.
+        uk, inv = np.unique(k, return_inverse=True)
+        loop = model.loops(np.full(len(uk), o.index, dtype=np.int64))
+        w = window(loop, uk, np.full(len(uk), t_min), np.full(len(uk), t_max))
+        # P outside what the product table can make is no use either, nor P below the
+        # timing-share limit's floor.
+        p_lo = np.maximum(w.lo, uk * math.exp(products.ln[0]))
+        p_lo = np.maximum(p_lo, share_p_floor(loop, uk, spec.limits.max_timing_share))
+        p_hi = np.minimum(w.hi, uk * math.exp(products.ln[-1]))
+        amp = amplitude_bounds(loop, uk, p_lo, p_hi)
+        share = timing_share_floor(loop, uk, p_lo, p_hi)
         with np.errstate(invalid="ignore", divide="ignore"):
             e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
-        keep = reach & (e_a_hi >= aa) & (e_a_lo <= ab) & (share <= spec.limits.max_timing_share)
+        ok = (p_lo <= p_hi) & (e_a_hi >= aa) & (e_a_lo <= ab)
+        ok &= share <= spec.limits.max_timing_share
+        keep = ok[inv]
+        i1, i2, k, inv = i1[keep], i2[keep], k[keep], inv[keep]
+        p_lo, p_hi, share, e_a_lo, e_a_hi = (x[inv] for x in (p_lo, p_hi, share, e_a_lo, e_a_hi))
+        u = np.full(len(i1), o.index, dtype=np.int64)
+        keep = np.ones(len(i1), dtype=bool)
         if spec.limits.guarantee == "worst_case":
             limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
             keep &= limits.keep

@@ -161,6 +161,7 @@ def probe_loop(model: SearchModel, u: I64, probe: Probe, temp: F64) -> OpAmpLoop
         col("slew_fall_v_per_s") * slew,
         col("delay_s") * delay,
         col("gbw_hz"),
+        col("gbw_hz"),
         np.minimum(ve_a, ve_b),
         np.maximum(ve_a, ve_b),
     )

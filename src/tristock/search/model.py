@@ -302,6 +302,7 @@ def _opamp(index: int, part: OpAmp, spec: Spec, r3_values: NDArray[np.float64]) 
                 model.slew_fall_v_per_s,
                 model.delay_s,
                 model.gbw_hz,
+                model.gbw_hz,
                 ve.min(),
                 ve.max(),
             )

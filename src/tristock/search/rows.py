@@ -174,12 +174,8 @@ class RowPrediction:
 
     @property
     def timing_share(self) -> F64:
-        """1 - T_ideal/T with T_ideal = (VH + VL)²·P/(a·b), a = VH - Ve, b = VL + Ve: the
-        period of the same drives with instant switching."""
-        span = self.vh + self.vl
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ideal = span * span * self.p / ((self.vh - self.ve) * (self.vl + self.ve))
-            return np.asarray(1.0 - ideal / np.asarray(self.pred.period_s))
+        """The prediction's 1 - T_ideal/T (``circuit.Prediction.timing_share``)."""
+        return np.asarray(self.pred.timing_share)
 
     def inside_model(self, max_share: float) -> NDArray[np.bool_]:
         """The loop is inside the model's ground (module docstring)."""
@@ -296,7 +292,9 @@ def _guard_bounds(model: SearchModel, u: I64, rp: RowPrediction) -> None:
     """Hold every row the full model evaluated to the bounds that windowed it: if one falls
     outside, the completeness argument has failed and ``model.bounds_violated`` withdraws
     every proof (cheap insurance against a model change that breaks a monotonicity)."""
-    n = np.flatnonzero(rp.valid)
+    # the bounds are claimed where a row can be accepted: the timing share within the limit
+    with np.errstate(invalid="ignore"):
+        n = np.flatnonzero(rp.valid & (rp.timing_share <= model.spec.limits.max_timing_share))
     if len(n) == 0:
         return
     loop = model.loops(u[n])
