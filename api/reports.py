@@ -104,16 +104,28 @@ class Measured(_Out):
 
 
 class Headline(_Out):
+    """The full model's prediction the simulation is compared with."""
+
     frequency_hz: float
     amplitude_vpp: float
     duty_high: float
+    timing_share: float
+
+
+class Difference(_Out):
+    """The simulation against the full model: ``frequency_rel`` and ``amplitude_rel`` are
+    simulated/predicted - 1, ``duty_abs`` simulated - predicted (fraction of the period)."""
+
+    frequency_rel: float
+    amplitude_rel: float
+    duty_abs: float
 
 
 class SimulationReport(_Out):
     """``tristock simulate --json``: measured values, the waveforms (``t_s`` from the start
     of the measured window; ``triangle_v``, ``square_v`` node voltages, equal lengths, at most
-    ``max_points``), and the model's prediction: ``predicted`` the full model,
-    ``predicted_same_physics`` without the finite-GBW delay the simulation leaves out."""
+    ``max_points``), the full model's prediction (``predicted``: delay, slew and both
+    channels' GBW, as the simulation) and the ``difference`` between them."""
 
     measured: Measured
     periods_measured: int
@@ -126,4 +138,4 @@ class SimulationReport(_Out):
     triangle_v: list[float]
     square_v: list[float]
     predicted: Headline
-    predicted_same_physics: Headline
+    difference: Difference

@@ -324,3 +324,25 @@ def test_spec_round_trips_through_the_result() -> None:
     """The result carries the validated spec, equal to what was asked."""
     spec: Spec = parse_spec(base())
     assert nominal_result("cpsat").spec == spec
+
+
+def test_designs_whose_period_the_op_amps_set_are_refused_with_the_share() -> None:
+    """20 kHz on ±15 V with the demo's op amps: their delay, slew and GBW would set over a
+    quarter of the period, so by default (limits.max_timing_share 0.10, common practice)
+    nothing is offered and the reason says why; allowing 0.4, every answer stays within it
+    and reports its share."""
+    data = {
+        "supply": {"positive_v": 15.0, "negative_v": -15.0},
+        "frequency": {"target_hz": 20e3, "tolerance_pct": 5.0},
+        "triangle": {"amplitude_vpp": 10.0, "tolerance_pct": 10.0},
+        "ranking": {"top": 3},
+    }
+    strict = design(parse_spec(data), demo(), samples=SAMPLES)
+    assert not strict.candidates and strict.search.proven_optimal
+    assert strict.infeasible is not None
+    assert "max_timing_share" in strict.infeasible.reasons[0]
+    data["limits"] = {"max_timing_share": 0.4}
+    loose = design(parse_spec(data), demo(), samples=SAMPLES)
+    assert loose.candidates
+    for c in loose.candidates:
+        assert 0.10 < c.predicted.timing_share <= 0.4

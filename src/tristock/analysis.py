@@ -368,6 +368,7 @@ class Analysis:
                 "offset_v": float(p.offset_v),
                 "square_high_v": float(p.square_high_v),
                 "square_low_v": float(p.square_low_v),
+                "timing_share": float(p.timing_share),
             },
             "worst_case": self.worst_case.to_dict(),
             "yield_fraction": self.yield_fraction,

@@ -27,12 +27,16 @@ class PartOut(_Out):
 
 
 class Predicted(_Out):
+    """The full model at nominal values, rails and 25 °C. ``timing_share``: the share of the
+    period set by op-amp delay, slew and GBW, 1 - T_ideal/T (``limits.max_timing_share``)."""
+
     frequency_hz: float
     amplitude_vpp: float
     duty_high: float
     offset_v: float
     square_high_v: float
     square_low_v: float
+    timing_share: float
 
 
 class ErrorOut(_Out):

@@ -61,10 +61,15 @@ def _capacitor(c: Candidate, designator: str = "C1") -> str:
     return c.parts[designator].display.replace(" %", "%")
 
 
+def spec_is_fixed(result: DesignResult) -> bool:
+    return result.spec.tuning is None and not result.spec.trimmed
+
+
 def _fixed_table(result: DesignResult) -> list[str]:
     head = (
         f"{'#':>2}  {'U1':<9} {'R1':>9} {'R2':>9} {'R3':>9} {'C1':>14}  "
-        f"{'f':>10} {'err':>7} {'Vpp':>6} {'worst-case f':>17} {'yield':>6} {'cost':>6}"
+        f"{'f':>10} {'err':>7} {'Vpp':>6} {'timing':>6} {'worst-case f':>17} {'yield':>6} "
+        f"{'cost':>6}"
     )
     lines = [head, "-" * len(head)]
     for c in result.candidates:
@@ -74,6 +79,7 @@ def _fixed_table(result: DesignResult) -> list[str]:
             f"{_ohms(c, 'R3'):>9} {_capacitor(c):>14}  "
             f"{format_value(c.predicted.frequency_hz, 'Hz', 5):>10} "
             f"{c.error.frequency_pct:>+6.2f}% {c.predicted.amplitude_vpp:>6.3f} "
+            f"{c.predicted.timing_share:>6.1%} "
             f"{format_value(wc[0], '', 4):>8}..{format_value(wc[1], 'Hz', 4):<8} "
             f"{c.yield_fraction:>6.1%} {c.cost:>6.3f}"
         )
@@ -149,6 +155,11 @@ def render_design(result: DesignResult) -> str:
         lines.append("")
         best = result.candidates[0]
         lines.append("Rank 1 parts: " + ", ".join(f"{k} {v.id}" for k, v in best.parts.items()))
+        if spec_is_fixed(result):
+            lines.append(
+                "timing: the share of the period set by op-amp delay, slew and GBW "
+                f"(at most {result.spec.limits.max_timing_share:.0%}, limits.max_timing_share)"
+            )
         for w in best.warnings:
             lines.append(f"  {w.severity}: {w.message}")
     lines += [
