@@ -143,7 +143,7 @@ def trim_cases(draw: st.DrawFn) -> tuple[Spec, Catalog, int]:
     vh, vl = 12.0 - u.swing_pos_v, 12.0 - u.swing_neg_v
     aim = predict(r1.value_ohm, r2.value_ohm, r3.value_ohm + 0.5 * pot.value_ohm, cap.value_f,
                   vh, vl, slew_rise=u.slew_v_per_s, slew_fall=u.slew_v_per_s, delay=u.delay_s,
-                  gbw=u.gbw_hz)  # fmt: skip
+                  gbw=u.gbw_hz, integrator_gbw=u.gbw_hz)  # fmt: skip
     target, amplitude = float(aim.frequency_hz), float(aim.amplitude_vpp)
     assume(20.0 < target < 50e3 and amplitude < 16.0)
     trim: dict[str, Any] = {"margin_pct": draw(st.sampled_from([10.0, 5.0, 20.0]))}

@@ -115,6 +115,7 @@ def model_metrics(design: Design, spec: Spec, setting: FloatArray) -> FloatArray
         slew_fall=c["slew"],
         delay=c["delay"],
         gbw=u.gbw_hz,
+        integrator_gbw=u.gbw_hz,
         vos1=c["vos1"],
         ib1=c["bias"],
         vos2=c["vos2"],

@@ -68,8 +68,9 @@ def _period(u: OpAmp, vh: float, vl: float, r1: F64, r2: F64, r: F64, c: F64) ->
     out = np.full(len(r), np.nan)
     if ok.any():
         p = predict(r1[ok], r2[ok], r[ok], c[ok], vh, vl, slew_rise=u.slew_v_per_s,
-                    slew_fall=u.slew_v_per_s, delay=u.delay_s, gbw=u.gbw_hz, vos1=u.offset_v,
-                    ib1=u.bias_a, vos2=u.offset_v, ib2=u.bias_a)  # fmt: skip
+                    slew_fall=u.slew_v_per_s, delay=u.delay_s, gbw=u.gbw_hz,
+                    integrator_gbw=u.gbw_hz, vos1=u.offset_v, ib1=u.bias_a, vos2=u.offset_v,
+                    ib2=u.bias_a)  # fmt: skip
         out[ok] = p.period_s
     return out
 
@@ -143,8 +144,8 @@ def _key(
                                            d.c1.value_f, d.rv1.value_ohm))  # fmt: skip
     r_eff = r3 + d.wiper * rv
     p = predict(r1, r2, r_eff, c, vh, vl, slew_rise=u.slew_v_per_s, slew_fall=u.slew_v_per_s,
-                delay=u.delay_s, gbw=u.gbw_hz, vos1=u.offset_v, ib1=u.bias_a, vos2=u.offset_v,
-                ib2=u.bias_a)  # fmt: skip
+                delay=u.delay_s, gbw=u.gbw_hz, integrator_gbw=u.gbw_hz, vos1=u.offset_v,
+                ib1=u.bias_a, vos2=u.offset_v, ib2=u.bias_a)  # fmt: skip
     ve = u.offset_v + u.bias_a * float(r_eff[0])
     a, b = vh - ve, vl + ve
     rc = float(r_eff[0] * c[0])

@@ -18,15 +18,18 @@ of R3. A cell whose window holds no eligible R3, or whose cheapest row is over
 (``Entries``: each condition taken with the trimmers' most favourable factors).
 
 **Resolution bound.** The resolution of a row is RV·(dT/dR_eff)/T at α0, where T = T_t, and
-dT/dR_eff = k·C1·∂T/∂P + Ib1·∂T/∂Ve. From the period of ``search.bounds``,
-T = span·(span·P/(a·b) + d_r/a + d_f/b):
+dT/dR_eff = k·C1·∂T/∂P + Ib1·∂T/∂Ve. From the period of ``tristock.looptiming``,
+T = span·(span·(P + k/ωt)/(a·b) + d_r/a + d_f/b), d = td + G/λ + τi (``search.bounds``):
 
-- ∂T/∂P ≥ span²/(a·b): the comparator delays d_r, d_f only grow with P (the GBW delay's
-  g(ρ) rises with ρ = SR·P/V);
+- ∂T/∂P ≥ span²/(a·b): the delays d_r, d_f only grow with P (the integrator's lag τi rises,
+  and the edge's mean time G with it, since μ ∝ 1/RC' falls: property G1);
 - |∂T/∂Ve| ≤ T·(1/a + 1/b) = T·span/(a·b): Ve moves a and b by ∓1, and -a·∂T/∂a ≤ T because
-  the terms of T are span²·P/(a·b), span·d_r/a and span·d_f/b, the first two scaling as 1/a
-  and the last moving with a only through d_f's GBW delay g(ρ_f), ρ_f = SR·P/a, where
-  -a·∂g/∂a = ρ·g'(ρ) ≤ g(ρ) (g(ρ)/ρ falls, ``search.bounds``); likewise for b.
+  the terms of T are span²·(P + k/ωt)/(a·b), span·d_r/a and span·d_f/b, the first two
+  scaling as 1/a and the last moving with a only through d_f's edge, μ_f ∝ a, where
+  -μ·∂G/∂μ ≤ G (G1 and G2: μ·G does not fall); likewise for b.
+
+Both rest on G1 and G2, which ``search.bounds`` claims only where the edge's scaled level is
+at least ``EDGE_LEVEL_MIN`` (``claimed``); elsewhere the bound is 0.
 
 So res ≥ RV·span·(k·C1·span/T_t - |Ib1|)/(a·b) ≥ RV·X with
 X = span·(k·C1·span/T_t - |Ib1|)/ab_max, ab_max the largest a·b over the nominal Ve range

@@ -19,7 +19,13 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.bounds import OpAmpLoop, amplitude_bounds, timing_share_floor, window
+from tristock.search.bounds import (
+    OpAmpLoop,
+    amplitude_bounds,
+    claimed,
+    timing_share_floor,
+    window,
+)
 from tristock.trim.context import F64, I64, TrimContext
 from tristock.trim.probes import SLACK, pair_windows
 
@@ -176,7 +182,9 @@ def _windowed(
         p_hi,
         *probes,
         span=np.asarray(loop.vh + loop.vl, dtype=np.float64),
-        ab_max=largest_drive_product(loop),
+        # the resolution bound rests on the edge's monotone mean time (search.bounds): where
+        # that is not claimed, a·b "unbounded" makes the bound 0, which every row meets
+        ab_max=np.where(claimed(loop, k), largest_drive_product(loop), np.inf),
         bias=bias,
         cost=u_cost + res.cost[i1] + res.cost[i2],
     )
