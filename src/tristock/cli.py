@@ -172,6 +172,11 @@ def render_design(result: DesignResult) -> str:
     if result.infeasible:
         lines.append("No design meets the spec:")
         lines += [f"  - {r}" for r in result.infeasible.reasons]
+    elif not result.candidates:
+        lines.append(
+            f"No design found within the time limit ({result.search.time_limit_s:g} s): the "
+            "search was cut short, so this does not mean none exists (raise --time-limit)."
+        )
     else:
         if result.spec.tuning is not None:
             lines += _tuning_table(result)

@@ -98,6 +98,13 @@ def reoptimise(
     samples: int = 4000,
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``."""
+    if spec.tuning is not None:
+        from tristock.tuning import reoptimise_tuned
+
+        return reoptimise_tuned(
+            spec, catalog, current, without=without, boards=boards, top=top,
+            time_limit_s=time_limit_s, samples=samples,
+        )  # fmt: skip
     t0 = time.perf_counter()
     if boards is not None or top is not None:
         # Validated again (model_copy would not): a bad override is named like a bad spec field.
