@@ -33,7 +33,7 @@ from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.search.model import in_series
 from tristock.spec import Spec
 
-DIAL_GRID = 17
+DIAL_GRID = 9
 
 
 def eligible(
@@ -138,6 +138,14 @@ def box(spec: Spec, d: Design) -> tuple[float, float, float, float] | None:
 def reference(spec: Spec, catalog: Catalog) -> list[tuple[Any, ...]]:
     """Rank keys and stock codes of the brute force's top ``spec.ranking.top``:
     (n, cost, evenness, ids)."""
+    keyed = accepted(spec, catalog)
+    if spec.tuning is not None and spec.tuning.ranges == "auto" and keyed:
+        keyed = [k for k in keyed if k[0] == keyed[0][0]]
+    return keyed[: spec.ranking.top]
+
+
+def accepted(spec: Spec, catalog: Catalog) -> list[tuple[Any, ...]]:
+    """Every accepted design's (n, cost, evenness, ids), in rank order, any range count."""
     assert spec.tuning is not None
     tu = spec.tuning
     ops, res, caps, pots = eligible(spec, catalog)
@@ -203,6 +211,4 @@ def reference(spec: Spec, catalog: Catalog) -> list[tuple[Any, ...]]:
                 )  # fmt: skip
                 keyed.append((n, cost, even, ids))
     keyed.sort()
-    if tu.ranges == "auto" and keyed:
-        keyed = [k for k in keyed if k[0] == keyed[0][0]]
-    return keyed[: spec.ranking.top]
+    return keyed
