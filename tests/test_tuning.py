@@ -33,7 +33,7 @@ import pytest
 from tristock import cli
 from tristock.analysis import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.catalog import Catalog, load_catalog
-from tristock.circuit import OpAmpModel, Rails
+from tristock.circuit import Rails
 from tristock.design import Control, Design, rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.results import Candidate, DesignResult

@@ -20,11 +20,9 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pytest
 from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 from numpy.typing import NDArray
-from tuned_reference import accepted, reference
 
 from tristock.catalog import Catalog
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
@@ -46,6 +44,7 @@ from tristock.tuning.corners import pair_factors
 from tristock.tuning.dial import Limits, check_dial, point_ok
 from tristock.tuning.model import build_tuned_model
 from tristock.tuning.network import Shared, at_wiper, dial_ends, nominal_board
+from tuned_reference import accepted, reference
 
 F64 = NDArray[np.float64]
 SLOW = settings(max_examples=12, deadline=None, suppress_health_check=list(HealthCheck))
@@ -204,7 +203,7 @@ def test_bounds_hold_for_every_accepted_design(room: tuple[Spec, Catalog]) -> No
     fewest-ranges bound, C1 is at least the smallest C1, Cn at most the largest Cn, and the
     chain floor at the pair's k is at most the capacitors' cost (``bounds``)."""
     spec, catalog = room
-    for n, cost, _, ids in accepted(spec, catalog)[:40]:
+    for n, _cost, _, ids in accepted(spec, catalog)[:40]:
         model, sh, chain = _shared(spec, catalog, ids)
         res = model.resistors
         k = res.value[sh.i1] / res.value[sh.i2]
