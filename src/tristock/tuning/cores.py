@@ -346,7 +346,9 @@ def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
     pairs = {o.index: model.pairs(o) for o in model.opamps}
     blocks = []
     for o in model.opamps:
-        if not use_u[o.index] or len(pairs[o.index]) == 0 or len(model.capacitors) == 0:
+        if not use_u[o.index] or len(pairs[o.index]) == 0:
+            continue
+        if len(model.capacitors) == 0 or not model.pots or not use_v.any():
             continue
         u3 = np.full(len(use3), o.index, dtype=np.int64)
         top3 = use3[top_feasible(model, u3, use3, window_factors(model, u3))]
