@@ -177,7 +177,7 @@ def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> ND
     kf1 low) and β_k at its largest (T rises with P and falls with β_k); the least cost of a
     chain over those wider ranges (``chains.least_cost_envelope``) cannot exceed the true
     one."""
-    from tristock.tuning.chains import least_cost_envelope
+    from tristock.tuning.chains import INF, least_cost_envelope
 
     assert model.spec.tuning is not None
     tu = model.spec.tuning
@@ -188,41 +188,56 @@ def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> ND
     p1 = (k_a * c.kf1_lo * c.r31)[:, None] * cap.value[None, :] * cf1
     t2 = _period(c, p2, beta_k(k_a * c.kf2_lo), bottom=True)
     t1 = _period(c, p1, beta_k(k_b * c.kf1_hi), bottom=False)
-    ok = c.valid[:, None] & _nominal_ends_ok(model, c, k_a, k_b)
     with np.errstate(divide="ignore", invalid="ignore"):
-        gl = np.where(ok, (1 - 1e-9) / t2, np.inf)
-        gh = np.where(ok, (1 + 1e-9) / t1, 0.0)
-    return least_cost_envelope(
-        np.nan_to_num(gl, nan=np.inf), np.nan_to_num(gh, nan=0.0), model.capacitor_cost,
-        cap.value, n, tu.low_hz, tu.high_hz, tu.overlap_pct / 100,
+        gl = np.where(c.valid[:, None], (1 - 1e-9) / t2, np.inf)
+        gh = np.where(c.valid[:, None], (1 + 1e-9) / t1, 0.0)
+    # The nominal rules only where the range can count at all (cheaper, same floor).
+    live = np.nonzero(np.nan_to_num(gl, nan=np.inf) < np.nan_to_num(gh, nan=0.0))
+    live = tuple(x[(gh[live] >= tu.low_hz) & (gl[live] <= tu.high_hz)] for x in live)
+    ok = np.zeros(gl.shape, dtype=bool)
+    ok[live] = _nominal_ends_ok(model, c, k_a, k_b, live)
+    # A capacitor no combination here can use cannot be in any chain: leave its column out.
+    cols = np.flatnonzero(ok.any(axis=0))
+    rows = ok.any(axis=1)
+    out = np.full(len(ok), INF, dtype=np.int64)
+    if len(cols) == 0 or not rows.any():
+        return out
+    gl = np.where(ok, gl, np.inf)[np.ix_(rows, cols)]
+    gh = np.where(ok, gh, 0.0)[np.ix_(rows, cols)]
+    out[rows] = least_cost_envelope(
+        gl, gh, model.capacitor_cost[cols], cap.value[cols], n, tu.low_hz, tu.high_hz,
+        tu.overlap_pct / 100,
     )  # fmt: skip
+    return out
 
 
-def _nominal_ends_ok(model: TunedModel, c: Corners, k_a: F64, k_b: F64) -> NDArray[np.bool_]:
-    """Per (combination, capacitor): whether the nominal rules of ``tuning.dial`` can hold
-    at both ends of the dial for some k in [k_a, k_b]: the amplitude at the bottom (at most
-    k_b·span + overshoot(k_b, P(k_a)), since at a fixed P the overshoot rises with k and it
-    falls with P) reaching the band's floor; at the top the amplitude (at least
-    k_a·span + overshoot(k_a, P(k_b))) within the band's top, the timing share (at least its
-    value at P(k_b) and k_b, falling with both) within the limit, and the slopes b/(R3·C)
-    and a/(R3·C) (independent of k) within the slew rate."""
+def _nominal_ends_ok(
+    model: TunedModel, c: Corners, k_a: F64, k_b: F64, at: tuple[I64, I64]
+) -> NDArray[np.bool_]:
+    """For the (combination, capacitor) entries ``at``: whether the nominal rules of
+    ``tuning.dial`` can hold at both ends of the dial for some k in [k_a, k_b]: the amplitude
+    at the bottom (at most k_b·span + overshoot(k_b, P(k_a)), since at a fixed P the
+    overshoot rises with k and it falls with P) reaching the band's floor; at the top the
+    amplitude (at least k_a·span + overshoot(k_a, P(k_b))) within the band's top, the timing
+    share (at least its value at P(k_b) and k_b, falling with both) within the limit, and the
+    slopes b/(R3·C) and a/(R3·C) (independent of k) within the slew rate."""
     limits = Limits.of(model.spec)
-    value = model.capacitors.value[None, :]
-    col = lambda x: np.asarray(x)[:, None]  # noqa: E731
-    ab, bb, at, bt = (col(x) for x in c.nominal)
-    span, slew, delay, gbw = col(c.span_n), col(c.slew_n), col(c.delay_n), col(c.gbw)
-    ka, kb = col(k_a), col(k_b)
+    row, j = at
+    value = model.capacitors.value[j]
+    ab, bb, at_, bt = (x[row] for x in c.nominal)
+    span, slew, delay, gbw = c.span_n[row], c.slew_n[row], c.delay_n[row], c.gbw[row]
+    ka, kb = k_a[row], k_b[row]
 
-    def timing(k: F64, p: F64, a: F64, b: F64):
+    def timing(k: F64, p: F64, a: F64, b: F64) -> LoopTiming:
         return loop_timing(k, p, span, a, b, slew_rise=slew, slew_fall=slew, delay=delay, gbw=gbw)
 
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        rb, r3 = col(c.rbn) * value, col(c.r3n) * value
+        rb, r3 = c.rbn[row] * value, c.r3n[row] * value
         bottom_hi = kb * span + timing(kb, ka * rb, ab, bb).overshoot_v
-        top_lo = ka * span + timing(ka, kb * r3, at, bt).overshoot_v
+        top_lo = ka * span + timing(ka, kb * r3, at_, bt).overshoot_v
         ok = (bottom_hi >= limits.a_min) & (top_lo <= limits.a_max)
-        ok &= timing(kb, kb * r3, at, bt).timing_share <= limits.share
-        ok &= (bt <= slew * r3) & (at <= slew * r3)
+        ok &= timing(kb, kb * r3, at_, bt).timing_share <= limits.share
+        ok &= (bt <= slew * r3) & (at_ <= slew * r3)
     return np.asarray(ok)
 
 

@@ -211,20 +211,17 @@ def least_cost_envelope(
 
 
 def _count_at_least(desc: F64, x: F64) -> I64:
-    """Per (row, column): how many of the row's non-increasing ``desc`` are ≥ x (binary
-    search, vectorised)."""
+    """Per (row, column): how many of the row's values ``desc`` are ≥ x, by one stable sort of
+    both per row (on equal keys the row's own values come first, so they count)."""
     rows, m = desc.shape
-    lo = np.zeros(x.shape, dtype=np.int64)
-    hi = np.full(x.shape, m, dtype=np.int64)
-    r = np.broadcast_to(np.arange(rows)[:, None], x.shape)
-    while True:
-        open_ = lo < hi
-        if not open_.any():
-            return lo
-        mid = np.where(open_, (lo + hi) // 2, 0)
-        cond = desc[r, np.minimum(mid, m - 1)] >= x
-        lo = np.where(open_ & cond, mid + 1, lo)
-        hi = np.where(open_ & ~cond, mid, hi)
+    keys = np.concatenate([-desc, -x], axis=1)
+    order = np.argsort(keys, axis=1, kind="stable")
+    is_x = order >= m
+    before = np.cumsum(~is_x, axis=1)
+    out = np.zeros((rows, m), dtype=np.int64)
+    r = np.nonzero(is_x)[0]
+    out[r, order[is_x] - m] = before[is_x]
+    return out
 
 
 def _sparse_min(best: I64) -> list[I64]:

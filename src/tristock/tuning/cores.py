@@ -34,6 +34,8 @@ I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]
 #: Cores expanded into combinations at a time (each with up to every pair of its op amp).
 CHUNK = 64
+#: Combinations whose bound is tightened at a time (between two looks at the clock).
+TIGHTEN_BATCH = 8192
 #: Width of a bin of k = R1/R2 (in ln k) for the chain floor.
 BIN_WIDTH = 0.01
 MAX_BINS = 1 << 12
@@ -283,9 +285,13 @@ class Cores:
                 sh = sh.take(stock_ok(model, sh))
                 keys = shared_keys(model, sh, self.ids)
                 known, tight = tights.get(keys)
-                if not known.all():
-                    tight[~known] = tighten(model, sh.take(~known), n)
-                    tights.put(keys[~known], tight[~known])
+                new = np.flatnonzero(~known)
+                for at in range(0, len(new), TIGHTEN_BATCH):
+                    if time.perf_counter() > deadline:
+                        raise TimeUp
+                    part = new[at : at + TIGHTEN_BATCH]
+                    tight[part] = tighten(model, sh.take(part), n)
+                    tights.put(keys[part], tight[part])
                 keep = tight <= theta
                 parts.append((sh.take(keep), tight[keep]))
         if not parts:
@@ -323,9 +329,11 @@ def tighten(model: TunedModel, sh: Shared, n: int) -> I64:
     res = model.resistors
     k = res.value[sh.i1] / res.value[sh.i2]
     b, c = shared_bounds(model, sh.u, sh.i3, sh.i4, sh.v, pair_factors(model, sh.i1, sh.i2, k))
-    ok = b.feasible & (b.fewest <= n)
-    floor = chain_floor(model, c, k, k, n)
-    out = np.where(ok & (floor < INF), sh.cost + floor, INF)
+    ok = np.flatnonzero(b.feasible & (b.fewest <= n))
+    floor = np.full(len(sh), INF, dtype=np.int64)
+    if len(ok):
+        floor[ok] = chain_floor(model, c.take(ok), k[ok], k[ok], n)
+    out = np.where(floor < INF, sh.cost + floor, INF)
     cap = model.spec.limits.max_cost
     if cap is not None:
         out = np.where(out <= round(cap * 1e6), out, INF)
