@@ -192,8 +192,9 @@ def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> ND
         gl = np.where(c.valid[:, None], (1 - 1e-9) / t2, np.inf)
         gh = np.where(c.valid[:, None], (1 + 1e-9) / t1, 0.0)
     # The nominal rules only where the range can count at all (cheaper, same floor).
-    live = np.nonzero(np.nan_to_num(gl, nan=np.inf) < np.nan_to_num(gh, nan=0.0))
-    live = tuple(x[(gh[live] >= tu.low_hz) & (gl[live] <= tu.high_hz)] for x in live)
+    row, col = np.nonzero(np.nan_to_num(gl, nan=np.inf) < np.nan_to_num(gh, nan=0.0))
+    span = (gh[row, col] >= tu.low_hz) & (gl[row, col] <= tu.high_hz)
+    live = (row[span].astype(np.int64), col[span].astype(np.int64))
     ok = np.zeros(gl.shape, dtype=bool)
     ok[live] = _nominal_ends_ok(model, c, k_a, k_b, live)
     # A capacitor no combination here can use cannot be in any chain: leave its column out.

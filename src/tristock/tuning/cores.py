@@ -285,11 +285,11 @@ class Cores:
                 sh = sh.take(stock_ok(model, sh))
                 keys = shared_keys(model, sh, self.ids)
                 known, tight = tights.get(keys)
-                new = np.flatnonzero(~known)
-                for at in range(0, len(new), TIGHTEN_BATCH):
+                fresh = np.flatnonzero(~known)
+                for at in range(0, len(fresh), TIGHTEN_BATCH):
                     if time.perf_counter() > deadline:
                         raise TimeUp
-                    part = new[at : at + TIGHTEN_BATCH]
+                    part = fresh[at : at + TIGHTEN_BATCH]
                     tight[part] = tighten(model, sh.take(part), n)
                     tights.put(keys[part], tight[part])
                 keep = tight <= theta
