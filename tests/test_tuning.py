@@ -582,3 +582,24 @@ def test_cli_unknown_range_exits_2_with_one_line(
     assert captured.out == ""
     lines = captured.err.strip().splitlines()
     assert len(lines) == 1 and "range" in lines[0] and "C9" in lines[0]
+
+
+def test_yield_guarantee_holds_at_both_ends_of_every_range() -> None:
+    """Under guarantee = "yield" each answer's Monte Carlo amplitude yield (the analysis's
+    sampling, seeded; scipy-checked elsewhere) at both ends of every range is at least
+    min_yield, counted against a ±50 % window around that end's nominal frequency."""
+    from tristock.analysis import monte_carlo
+    from tristock.tuning import proxy_spec_at
+
+    data = bench_spec().model_dump()
+    data["limits"].update({"guarantee": "yield", "min_yield": 0.95})
+    spec = parse_spec(data)
+    result = design_tuned(spec, bench_catalog(), time_limit_s=60.0, samples=400)
+    assert result.candidates and result.search.proven_optimal
+    for c in result.candidates:
+        d = design_of(c, bench_catalog(), "series")
+        for s in range(len(d.capacitors)):
+            for w in (0.0, 1.0):
+                at = dataclasses.replace(d, selected=s, wiper=w)
+                y = monte_carlo(at, proxy_spec_at(spec, at), samples=400, seed=0)
+                assert y.fraction >= 0.95, (c.rank, s, w, y.fraction)
