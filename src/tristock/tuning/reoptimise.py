@@ -25,8 +25,6 @@ import time
 from collections.abc import Iterator, Sequence
 from itertools import combinations
 
-import numpy as np
-
 from tristock.analysis import analyse
 from tristock.catalog import Catalog
 from tristock.designfile import resolve
@@ -38,7 +36,6 @@ from tristock.results import (
     ReoptimisedCandidate,
     ReoptimiseResult,
     SearchInfo,
-    Shortfall,
 )
 from tristock.search.model import SCORE_RESOLUTION, PartTable
 from tristock.spec import Spec, SpecError, parse_spec
@@ -46,6 +43,7 @@ from tristock.tuning.chains import Changes
 from tristock.tuning.cores import build_cores
 from tristock.tuning.coverage import proxy_spec_at
 from tristock.tuning.model import MAX_RANGES, TunedModel, build_tuned_model
+from tristock.tuning.pins import masks, part_index, tuned_shortfall
 from tristock.tuning.report import design_from, reasons, tuned_candidate
 from tristock.tuning.search import Found, Lister, Walk
 from tristock.tuning.verdict import Verdicts
@@ -62,45 +60,6 @@ def shared_designators(spec: Spec) -> tuple[str, ...]:
 
 def slots_of(current: dict[str, str]) -> list[str]:
     return [f"C{s}" for s in range(1, 9) if f"C{s}" in current]
-
-
-def tuned_shortfall(catalog: Catalog, current: dict[str, str], boards: int) -> list[Shortfall]:
-    """Parts short for ``boards`` boards and by how many pieces (a code in several positions
-    needs one piece per position; a single-channel op amp two)."""
-    uses: dict[str, int] = {}
-    for name, pid in current.items():
-        part = catalog.get(pid) if pid in catalog else None
-        per = getattr(part, "packages_per_board", 1) if name == "U1" else 1
-        uses[pid] = uses.get(pid, 0) + per
-    out, seen = [], set()
-    for name, pid in current.items():
-        if pid in seen:
-            continue
-        seen.add(pid)
-        stock = catalog.get(pid).stock if pid in catalog else 0
-        needed = boards * uses[pid]
-        if stock < needed:
-            out.append(
-                Shortfall(designator=name, id=pid, needed=needed, stock=stock, short=needed - stock)
-            )
-    return out
-
-
-def _index(model: TunedModel, designator: str, pid: str) -> int | None:
-    if designator == "U1":
-        return next((o.index for o in model.opamps if o.part.id == pid), None)
-    if designator == "RV1":
-        return next((i for i, p in enumerate(model.pots) if p.id == pid), None)
-    table = model.capacitors if designator.startswith("C") else model.resistors
-    return next((i for i, p in enumerate(table.parts) if p.id == pid), None)
-
-
-def _size(model: TunedModel, designator: str) -> int:
-    if designator == "U1":
-        return len(model.opamps)
-    if designator == "RV1":
-        return len(model.pots)
-    return len(model.resistors)
 
 
 def reoptimise_tuned(
@@ -164,7 +123,7 @@ def reoptimise_tuned(
         pots=tuple(p for p in catalog.pots if p.id not in without),
     )
     model = build_tuned_model(spec, reduced)
-    pinned = {d: _index(model, d, current[d]) for d in designators}
+    pinned = {d: part_index(model, d, current[d]) for d in designators}
     for d in designators:
         if pinned[d] is None and d not in blocked:
             blocked[d] = f"{current[d]} is outside the spec's limits or stock"
@@ -288,10 +247,10 @@ def _streams(
         for changed in combinations(plan.shared, k):
             if not set(plan.forced) <= set(changed):
                 continue
-            masks = _masks(model, plan.shared, changed, plan.pinned)
-            if masks is None:
+            pins = masks(model, plan.shared, changed, plan.pinned)
+            if pins is None:
                 continue
-            sub = dataclasses.replace(model, allowed=masks)
+            sub = dataclasses.replace(model, allowed=pins)
             for n in _counts(spec):
                 if abs(n - len(plan.slots)) > c - k:
                     continue
@@ -343,29 +302,6 @@ def _counts(spec: Spec) -> list[int]:
 def _stream(lister: Lister, n: int) -> Iterator[tuple[int, Found]]:
     for f in lister:
         yield n, f
-
-
-def _masks(
-    model: TunedModel,
-    shared: tuple[str, ...],
-    changed: tuple[str, ...],
-    pinned: dict[str, int | None],
-) -> dict[str, np.ndarray] | None:
-    """Pinned designators keep their part; changed ones must take another (None when a
-    pinned part cannot be used)."""
-    masks = {}
-    for d in shared:
-        mask = np.zeros(_size(model, d), dtype=bool)
-        if d in changed:
-            mask[:] = True
-            if pinned[d] is not None:
-                mask[pinned[d]] = False
-        else:
-            if pinned[d] is None:
-                return None
-            mask[pinned[d]] = True
-        masks[d] = mask
-    return masks
 
 
 def _candidate(

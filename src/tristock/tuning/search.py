@@ -39,7 +39,8 @@ from tristock.tuning.chains import (
     least_cost,
     steps,
 )
-from tristock.tuning.cores import Cores, TimeUp, build_cores
+from tristock.tuning.cores import Cores, build_cores
+from tristock.tuning.keys import TimeUp
 from tristock.tuning.model import MAX_RANGES, TunedModel
 from tristock.tuning.network import Shared
 from tristock.tuning.ranges import RangeData, evaluate_ranges
