@@ -98,6 +98,13 @@ def reoptimise(
     samples: int = 4000,
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``."""
+    if spec.tuning is not None:
+        from tristock.tuning import reoptimise_tuned
+
+        return reoptimise_tuned(
+            spec, catalog, current, without=without, boards=boards, top=top,
+            time_limit_s=time_limit_s, samples=samples,
+        )  # fmt: skip
     t0 = time.perf_counter()
     if spec.tuning is not None:  # the fixed-design search below ignores RV1 and C2..Cn
         raise SpecError(["spec: re-optimising a tuned design is not supported yet"])

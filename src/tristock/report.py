@@ -53,9 +53,9 @@ def analysis_report(
     rails: its figures would describe nothing."""
     require_oscillation(spec, design)
     if spec.tuning is not None:
-        from tristock.tuning import _proxy_at
+        from tristock.tuning import proxy_spec_at
 
-        spec = _proxy_at(spec, design)
+        spec = proxy_spec_at(spec, design)
     result = analyse(design, spec, samples=samples, seed=seed, distribution=distribution)
     return {
         "parts": {k: v.model_dump() for k, v in parts_report(design).items()},

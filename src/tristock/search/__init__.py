@@ -286,7 +286,7 @@ def design(
     if spec.tuning is not None:
         from tristock.tuning import design_tuned
 
-        return design_tuned(spec, catalog, time_limit_s=time_limit_s)
+        return design_tuned(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
     model = build_model(spec, catalog)
