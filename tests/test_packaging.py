@@ -87,7 +87,7 @@ def test_editable_install_imports_tristock_api_from_the_checkout(tmp_path: Path)
 
 
 def _finder_module() -> ModuleType:
-    path = REPO / "build_hooks" / "tristock_api_finder.py"
+    path = REPO / ".packaging" / "tristock_api_finder.py"
     spec = importlib.util.spec_from_file_location("finder_under_test", path)
     assert spec is not None and spec.loader is not None
     module = importlib.util.module_from_spec(spec)

@@ -5,7 +5,7 @@ The wheel maps the repository's top-level ``api/`` folder to ``tristock/api``
 puts ``src/`` on the path (so ``tristock`` is ``src/tristock``, without ``api``), refuses a
 ``sources`` rewrite that adds a prefix, and copies force-included files into site-packages,
 where ``src/tristock`` shadows them and they go stale. So the editable wheel gets, instead of
-those copies, ``_tristock_api_finder.py`` (``build_hooks/tristock_api_finder.py``) and
+those copies, ``_tristock_api_finder.py`` (``.packaging/tristock_api_finder.py``) and
 ``_tristock_api.pth``, whose one line installs the finder with this checkout's ``api/``.
 Regular wheels and sdists are left as they are.
 """
@@ -38,7 +38,7 @@ class EditableApiHook(BuildHookInterface):  # type: ignore[type-arg]
         pth.write_text(line, encoding="utf-8")
         # Replaces the wheel's force-include map in the editable wheel only.
         build_data["force_include_editable"] = {
-            str(root / "build_hooks" / "tristock_api_finder.py"): f"{FINDER_MODULE}.py",
+            str(root / ".packaging" / "tristock_api_finder.py"): f"{FINDER_MODULE}.py",
             str(pth): PTH_NAME,
         }
 
