@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from tristock.results import PartOut, Predicted, WarningOut
+from tristock.designs.results import PartOut, Predicted, WarningOut
 
 
 class _Out(BaseModel):

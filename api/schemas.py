@@ -12,8 +12,8 @@ from typing import Any, Literal, TypeAlias
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.spec import RankBy, Spec
+from tristock.spec.model import RankBy, Spec
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 from .settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 

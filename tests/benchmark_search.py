@@ -29,8 +29,7 @@ from typing import Any
 
 import numpy as np
 
-from tristock.catalog import Catalog, load_catalog
-from tristock.search import design
+from tristock.designs.fixed import design
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import (
@@ -41,7 +40,8 @@ from tristock.search.model import (
     evaluate,
     rank_key,
 )
-from tristock.spec import Spec, load_spec, parse_spec
+from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.stock.catalog import Catalog, load_catalog
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO = REPO / "catalogs" / "demo"

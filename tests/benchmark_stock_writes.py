@@ -27,7 +27,7 @@ import time
 from pathlib import Path
 
 from tristock import cli
-from tristock.catalog import StockError, WritePolicy, adjust_stock, load_catalog
+from tristock.stock.catalog import StockError, WritePolicy, adjust_stock, load_catalog
 
 RACE_POLICY = WritePolicy(quiet_s=1.5, max_wait_s=5.0)
 EDITOR = (

@@ -24,22 +24,22 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from tristock.catalog import load_catalog
-from tristock.design import DESIGNATORS, Design
-from tristock.designfile import design_for
-from tristock.search import design
-from tristock.spec import Spec, load_spec, parse_spec
+from tristock.circuits.board import DESIGNATORS, Design
+from tristock.designs.fixed import design
+from tristock.export.designfile import design_for
+from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.stock.catalog import load_catalog
 
 try:
-    from tristock.worstcase import box_extremes, worst_case
+    from tristock.analysis.worstcase import box_extremes, worst_case
 
     def coverage_bound(d: Design, spec: Spec) -> dict[str, tuple[float, float]]:
         return box_extremes(d, spec, ["frequency_hz"])
 
     CODE = "box search (tristock.worstcase)"
 except ImportError:  # an older tree: corners and an offset/bias refinement
-    from tristock.analysis import corner_extremes as coverage_bound  # type: ignore
-    from tristock.analysis import worst_case  # type: ignore
+    from tristock.analysis.bundle import corner_extremes as coverage_bound  # type: ignore
+    from tristock.analysis.bundle import worst_case  # type: ignore
 
     CODE = "corners (analysis.worst_case, analysis.corner_extremes)"
 

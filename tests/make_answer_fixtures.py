@@ -29,14 +29,14 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
-from tristock.catalog import Catalog, load_catalog
-from tristock.designfile import resolve
+from tristock.designs.fixed import design
+from tristock.designs.reoptimise import reoptimise
 from tristock.examples import demo_catalog_dir, example_spec_path
-from tristock.reoptimise import reoptimise
-from tristock.report import analysis_report, simulation_report
-from tristock.search import design
-from tristock.spec import Spec, load_spec, parse_spec
-from tristock.tablegen import generate_capacitors, generate_resistors
+from tristock.export.designfile import resolve
+from tristock.report.board import analysis_report, simulation_report
+from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.tablegen import generate_capacitors, generate_resistors
 
 ANSWERS = Path(__file__).resolve().parent / "fixtures" / "answers"
 #: Every search gets far more time than it needs: a cut search would freeze a load-dependent

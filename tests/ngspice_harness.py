@@ -38,7 +38,7 @@ from typing import Any, Literal
 
 import pytest
 
-from tristock.circuit import Oscillator, square_levels
+from tristock.circuits.oscillator import Oscillator, square_levels
 
 Comparator = Literal["ideal", "slew", "macro"]
 

@@ -12,7 +12,7 @@ from dataclasses import replace
 import pytest
 from scipy import stats
 
-from tristock.analysis import (
+from tristock.analysis.bundle import (
     DELAY_SPREAD,
     SLEW_SPREAD,
     analyse,
@@ -22,10 +22,10 @@ from tristock.analysis import (
     wilson_interval,
     worst_case,
 )
-from tristock.circuit import Oscillator
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.spec import Spec, parse_spec
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import Oscillator
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 INF = math.inf
 

@@ -21,7 +21,7 @@ from tristock.api.app import create_app
 from tristock.api.settings import Settings
 
 from tristock import cli
-from tristock.catalog import COLUMNS, load_catalog, set_stock
+from tristock.stock.catalog import COLUMNS, load_catalog, set_stock
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")  # the TestClient's note about its HTTP client

@@ -23,8 +23,8 @@ from pathlib import Path
 import httpx
 import pytest
 
-from tristock.catalog import load_catalog
 from tristock.cli import demo_catalog_dir
+from tristock.stock.catalog import load_catalog
 
 START_TIMEOUT_S = 60.0
 

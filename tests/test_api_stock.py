@@ -23,7 +23,7 @@ from tristock.api.app import create_app
 from tristock.api.settings import Settings
 
 from tristock import cli
-from tristock.catalog import STOCK_MAX, WritePolicy, load_catalog, part_version
+from tristock.stock.catalog import STOCK_MAX, WritePolicy, load_catalog, part_version
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")  # the TestClient's note about its HTTP client

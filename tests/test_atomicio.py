@@ -12,7 +12,7 @@ from typing import BinaryIO
 
 import pytest
 
-from tristock.atomicio import clean_stale_temps, is_temp_of, temp_name, write_atomic
+from tristock.stock.atomicio import clean_stale_temps, is_temp_of, temp_name, write_atomic
 
 
 def test_replaces_keeps_mode_and_returns_the_new_files_stamp(tmp_path: Path) -> None:

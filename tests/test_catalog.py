@@ -11,15 +11,15 @@ from pathlib import Path
 
 import pytest
 
-from tristock import eseries
-from tristock.catalog import (
+from tristock.stock import eseries
+from tristock.stock.catalog import (
     Catalog,
     CatalogError,
     CatalogIssue,
     load_catalog,
     read_table,
 )
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 FIXTURES = Path(__file__).resolve().parent / "fixtures"

@@ -9,8 +9,8 @@ from pathlib import Path
 import pytest
 
 from tristock import cli
-from tristock.catalog import CatalogError, load_catalog, read_table
-from tristock.parts import DELAY_MEANING, OpAmp, delay_from_delay_to_mid
+from tristock.stock.catalog import CatalogError, load_catalog, read_table
+from tristock.stock.parts import DELAY_MEANING, OpAmp, delay_from_delay_to_mid
 
 FIXTURES = Path(__file__).resolve().parent / "fixtures"
 COMMON = "id,channels,supply_min_v,supply_max_v,swing_pos_v,swing_neg_v,slew_v_per_us,gbw_hz"

@@ -12,10 +12,10 @@ import math
 
 import pytest
 
-from tristock.checks import Warning, check, oscillation_failure
-from tristock.circuit import OpAmpModel, Oscillator, Rails
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.units import format_value
+from tristock.circuits.checks import Warning, check, oscillation_failure
+from tristock.circuits.oscillator import OpAmpModel, Oscillator, Rails
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
+from tristock.stock.units import format_value
 
 AMP = OpAmpModel(
     swing_pos_v=1.0,

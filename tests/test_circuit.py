@@ -21,7 +21,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from tristock.circuit import (
+from tristock.circuits.oscillator import (
     OpAmpModel,
     Oscillator,
     Rails,
@@ -29,7 +29,7 @@ from tristock.circuit import (
     predict,
     square_levels,
 )
-from tristock.parts import OpAmp
+from tristock.stock.parts import OpAmp
 
 inf = math.inf
 

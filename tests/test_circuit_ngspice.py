@@ -21,7 +21,14 @@ from ngspice_harness import (
     require_ngspice,
     simulate_many,
 )
-from tristock.circuit import OpAmpModel, Oscillator, Prediction, Rails, predict, square_levels
+from tristock.circuits.oscillator import (
+    OpAmpModel,
+    Oscillator,
+    Prediction,
+    Rails,
+    predict,
+    square_levels,
+)
 
 pytestmark = pytest.mark.ngspice
 

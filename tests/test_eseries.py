@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tristock.eseries import (
+from tristock.stock.eseries import (
     SERIES,
     is_member,
     nearest,

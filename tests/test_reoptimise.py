@@ -30,18 +30,18 @@ import pytest
 from hypothesis import HealthCheck, event, given, note, settings
 from hypothesis import strategies as st
 
-from tristock.analysis import analyse
-from tristock.catalog import Catalog, load_catalog
+from tristock.analysis.bundle import analyse
+from tristock.circuits.board import DESIGNATORS, Design, rails_from_supply
 from tristock.cli import main
-from tristock.design import DESIGNATORS, Design, rails_from_supply
-from tristock.designfile import resolve
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.reoptimise import reoptimise, shortfall
-from tristock.results import ReoptimiseResult, Shortfall
-from tristock.search import design, passes
+from tristock.designs.fixed import design, passes
+from tristock.designs.reoptimise import reoptimise, shortfall
+from tristock.designs.results import ReoptimiseResult, Shortfall
+from tristock.export.designfile import resolve
 from tristock.search.model import build_model
 from tristock.search.rows import evaluate, rank_key
-from tristock.spec import Spec, SpecError, load_spec, parse_spec
+from tristock.spec.model import Spec, SpecError, load_spec, parse_spec
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO_CATALOG = REPO / "catalogs" / "demo"

@@ -17,8 +17,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tristock.circuit import predict
-from tristock.looptiming import loop_timing
+from tristock.circuits.looptiming import loop_timing
+from tristock.circuits.oscillator import predict
+from tristock.circuits.transition import LN_LEVEL, LN_MU, Q_DELAY, scaled_mean_time
 from tristock.search.bounds import (
     EDGE_LEVEL_MIN,
     OpAmpLoop,
@@ -30,7 +31,6 @@ from tristock.search.bounds import (
     timing_share_floor,
     window,
 )
-from tristock.transition import LN_LEVEL, LN_MU, Q_DELAY, scaled_mean_time
 
 RNG_POINTS = 4000
 
@@ -205,12 +205,12 @@ def test_a_row_outside_its_bounds_withdraws_the_proof(monkeypatch: pytest.Monkey
     that windowed them: the search then reports nothing as proven."""
     from pathlib import Path
 
-    from tristock.catalog import load_catalog
     from tristock.search import rows as search_rows
     from tristock.search.bounds import Bounds
     from tristock.search.enumeration import enumerate_top
     from tristock.search.model import build_model
-    from tristock.spec import parse_spec
+    from tristock.spec.model import parse_spec
+    from tristock.stock.catalog import load_catalog
 
     demo = load_catalog(Path(__file__).resolve().parent.parent / "catalogs" / "demo")
     spec = parse_spec(

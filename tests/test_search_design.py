@@ -17,14 +17,14 @@ from typing import Any
 
 import pytest
 
-from tristock import eseries
-from tristock.catalog import Catalog, load_catalog
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.results import DesignResult
-from tristock.search import design
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.designs.fixed import design
+from tristock.designs.results import DesignResult
 from tristock.search.model import build_model
-from tristock.spec import Spec, SpecError, parse_spec
+from tristock.spec.model import Spec, SpecError, parse_spec
+from tristock.stock import eseries
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 SAMPLES = 1000  # Monte Carlo samples per candidate: enough for the fields, quick

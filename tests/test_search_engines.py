@@ -19,15 +19,15 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tristock import eseries
-from tristock.catalog import Catalog, load_catalog
-from tristock.circuit import predict
-from tristock.parts import Capacitor, OpAmp, Resistor
+from tristock.circuits.oscillator import predict
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import SECONDARY_SPAN, SearchModel, build_model
 from tristock.search.rows import Rows, evaluate, rank_key
-from tristock.spec import Spec, parse_spec
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock import eseries
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 MODES = ("balanced", "frequency_error", "cost", "yield")

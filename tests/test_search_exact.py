@@ -23,15 +23,15 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tristock import eseries
-from tristock.analysis import monte_carlo, worst_case
-from tristock.catalog import Catalog
-from tristock.circuit import OpAmpModel, predict, square_levels
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.search import design
+from tristock.analysis.bundle import monte_carlo, worst_case
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, predict, square_levels
+from tristock.designs.fixed import design
 from tristock.search.model import SearchModel, build_model
-from tristock.spec import Spec, parse_spec
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock import eseries
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 SAMPLES = 300  # Monte Carlo samples in both the reference and the search's re-check
 IDS = ("U1", "R1", "R2", "R3", "C1")

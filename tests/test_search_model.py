@@ -25,11 +25,9 @@ import numpy as np
 import pytest
 from numpy.typing import NDArray
 
-from tristock.catalog import Catalog, load_catalog
-from tristock.circuit import OpAmpModel, predict, square_levels
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.search import design
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, predict, square_levels
+from tristock.designs.fixed import design
 from tristock.search import model as search_model
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import enumerate_top
@@ -41,7 +39,9 @@ from tristock.search.model import (
     build_model,
 )
 from tristock.search.rows import Rows, evaluate
-from tristock.spec import Spec, parse_spec
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO = REPO / "catalogs" / "demo"
@@ -241,7 +241,7 @@ def test_constants_reproduce_the_target_exactly(op_id: str) -> None:
 
 
 def _e24_catalog(op: OpAmp) -> Catalog:
-    from tristock import eseries
+    from tristock.stock import eseries
 
     res = tuple(resistor(f"TR-{n:03d}", v) for n, v in enumerate(eseries.values("E24", 1e3, 1e6)))
     caps = tuple(

@@ -19,8 +19,8 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from tristock.circuit import OpAmpModel, Oscillator, Rails, predict, square_levels
-from tristock.plot import plot_waveforms
+from tristock.circuits.oscillator import OpAmpModel, Oscillator, Rails, predict, square_levels
+from tristock.report.plot import plot_waveforms
 from tristock.simulate import Measured, SimulationError, SimulationResult, simulate
 
 EXACT = 1e-9

@@ -21,8 +21,8 @@ import numpy as np
 import pytest
 
 from tristock import cli
-from tristock.circuit import OpAmpModel, Oscillator, Rails
-from tristock.report import headline_difference, simulation_report_of
+from tristock.circuits.oscillator import OpAmpModel, Oscillator, Rails
+from tristock.report.board import headline_difference, simulation_report_of
 from tristock.simulate import SimulationError, simulate
 
 REPO = Path(__file__).resolve().parent.parent

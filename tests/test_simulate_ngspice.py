@@ -31,7 +31,7 @@ from ngspice_harness import (
     run_ngspice,
     simulate_many,
 )
-from tristock.circuit import OpAmpModel, Oscillator, Rails
+from tristock.circuits.oscillator import OpAmpModel, Oscillator, Rails
 from tristock.simulate import Measured, SimulationError, simulate
 
 pytestmark = pytest.mark.ngspice

@@ -12,11 +12,10 @@ from typing import Any
 import pytest
 from pydantic import BaseModel
 
-from tristock import limits
-from tristock.catalog import load_catalog
+from tristock.designs.fixed import design
 from tristock.examples import demo_catalog_dir
-from tristock.search import design
-from tristock.spec import (
+from tristock.spec import limits
+from tristock.spec.model import (
     MIN_AMPLITUDE_VPP,
     MIN_BAND_PCT,
     MIN_FREQUENCY_HZ,
@@ -25,6 +24,7 @@ from tristock.spec import (
     parse_spec,
     read_mapping,
 )
+from tristock.stock.catalog import load_catalog
 
 FIXED: dict[str, Any] = {
     "supply": {"positive_v": 12.0, "negative_v": -12.0, "tolerance_pct": 5.0},

@@ -28,7 +28,7 @@ from tristock.api.app import create_app
 from tristock.api.settings import Settings
 
 from tristock import cli
-from tristock.catalog import WritePolicy, load_catalog
+from tristock.stock.catalog import WritePolicy, load_catalog
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")

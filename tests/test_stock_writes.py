@@ -22,7 +22,8 @@ from pathlib import Path
 import pytest
 
 from tristock import cli
-from tristock.catalog import (
+from tristock.stock import journal as journal_module
+from tristock.stock.catalog import (
     JOURNAL_NAME,
     KINDS,
     LOCK_NAME,
@@ -44,7 +45,6 @@ from tristock.catalog import (
     set_stock,
     update_stock,
 )
-from tristock.stock import journal as journal_module
 
 SMALL = Path(__file__).resolve().parent / "fixtures" / "small_catalog"
 #: Short waits for tests that make other programs' edits on purpose.
@@ -379,7 +379,7 @@ def test_the_journal_is_compacted_without_expired_keys(
 _KILLED_WRITER = textwrap.dedent(
     """
     import os, signal, sys
-    from tristock.catalog import RequestKey, update_stock
+    from tristock.stock.catalog import RequestKey, update_stock
 
     real_replace = os.replace
 

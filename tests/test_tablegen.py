@@ -8,10 +8,10 @@ from pathlib import Path
 import eseries as reference_eseries  # the `eseries` package, an outside reference
 import pytest
 
-from tristock import eseries, units
-from tristock.catalog import CatalogError, load_catalog, read_table
-from tristock.parts import Capacitor, Resistor
-from tristock.tablegen import (
+from tristock.stock import eseries, units
+from tristock.stock.catalog import CatalogError, load_catalog, read_table
+from tristock.stock.parts import Capacitor, Resistor
+from tristock.stock.tablegen import (
     format_cell_value,
     generate_capacitors,
     generate_resistors,

@@ -34,9 +34,9 @@ from test_trim import example_spec as trimmed_spec
 from test_tuning import design_of as tuned_design
 from test_tuning import example_result as tuned_result
 from test_tuning import example_spec as tuned_spec
-from tristock.circuit import OpAmpModel, Oscillator, square_levels
-from tristock.design import Design, rails_from_supply
-from tristock.spec import Spec
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, Oscillator, square_levels
+from tristock.spec.model import Spec
 
 pytestmark = pytest.mark.ngspice
 

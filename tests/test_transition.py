@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from tristock.transition import (
+from tristock.circuits.transition import (
     growth_rate,
     scaled_level_time,
     scaled_mean_time,

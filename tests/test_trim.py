@@ -32,16 +32,16 @@ import pytest
 from numpy.typing import NDArray
 
 from tristock import cli
-from tristock.analysis import DELAY_SPREAD, SLEW_SPREAD
-from tristock.catalog import Catalog, load_catalog
-from tristock.circuit import predict
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.results import Candidate, DesignResult
-from tristock.search import design
+from tristock.analysis.bundle import DELAY_SPREAD, SLEW_SPREAD
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import predict
+from tristock.designs.fixed import design
+from tristock.designs.results import Candidate, DesignResult
+from tristock.designs.trimmed import coverage, design_trimmed
 from tristock.search.model import SCORE_RESOLUTION
-from tristock.spec import Spec, parse_spec, read_mapping
-from tristock.trim import coverage, design_trimmed
+from tristock.spec.model import Spec, parse_spec, read_mapping
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO_DIR = REPO / "catalogs" / "demo"

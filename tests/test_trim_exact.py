@@ -28,14 +28,14 @@ from trim_reference import (
     small_catalog,
     small_spec,
 )
-from tristock import eseries
-from tristock.catalog import Catalog
-from tristock.circuit import predict
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.spec import Spec, parse_spec
-from tristock.trim.context import trim_context
-from tristock.trim.probes import row_reach
-from tristock.trim.walk import TrimSearch
+from tristock.circuits.oscillator import predict
+from tristock.designs.trimmed.context import trim_context
+from tristock.designs.trimmed.probes import row_reach
+from tristock.designs.trimmed.walk import TrimSearch
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock import eseries
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 
 def test_search_equals_brute_force_on_the_small_catalog() -> None:

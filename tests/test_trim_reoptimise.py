@@ -24,14 +24,14 @@ import pytest
 
 from test_trim import DEMO_DIR, demo, design_corners, design_of, example_result, example_spec
 from trim_reference import accepted_rows, box_covers, small_catalog, small_spec
-from tristock.catalog import Catalog
 from tristock.cli import main
-from tristock.parts import Part
-from tristock.reoptimise import reoptimise
-from tristock.results import ReoptimiseResult
-from tristock.spec import Spec, SpecError, parse_spec
-from tristock.trim import design_trimmed
-from tristock.trim.context import TRIM_DESIGNATORS
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import ReoptimiseResult
+from tristock.designs.trimmed import design_trimmed
+from tristock.designs.trimmed.context import TRIM_DESIGNATORS
+from tristock.spec.model import Spec, SpecError, parse_spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Part
 
 TIME_LIMIT_S = 120.0
 SAMPLES = 200

@@ -31,15 +31,15 @@ import numpy as np
 import pytest
 
 from tristock import cli
-from tristock.analysis import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
-from tristock.catalog import Catalog, load_catalog
-from tristock.circuit import Rails
-from tristock.design import Control, Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.results import Candidate, DesignResult
-from tristock.search import design
-from tristock.spec import Spec, parse_spec, read_mapping
-from tristock.tuning import DIAL_POINTS, design_tuned, dial_law
+from tristock.analysis.bundle import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
+from tristock.circuits.board import Control, Design, rails_from_supply
+from tristock.circuits.oscillator import Rails
+from tristock.designs.fixed import design
+from tristock.designs.results import Candidate, DesignResult
+from tristock.designs.tuned import DIAL_POINTS, design_tuned, dial_law
+from tristock.spec.model import Spec, parse_spec, read_mapping
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO_DIR = REPO / "catalogs" / "demo"
@@ -489,7 +489,7 @@ def test_a_search_cut_by_its_time_limit_is_unproven_and_never_infeasible() -> No
 def test_worst_case_amplitude_is_held_over_the_box() -> None:
     """Under guarantee = "worst_case" every answer's amplitude over the spread box at both
     ends of every range (the analysis's box) lies in the band."""
-    from tristock.worstcase import box_extremes
+    from tristock.analysis.worstcase import box_extremes
 
     data = bench_spec().model_dump()
     data["limits"]["guarantee"] = "worst_case"
@@ -592,8 +592,8 @@ def test_yield_guarantee_holds_at_both_ends_of_every_range() -> None:
     """Under guarantee = "yield" each answer's Monte Carlo amplitude yield (the analysis's
     sampling, seeded; scipy-checked elsewhere) at both ends of every range is at least
     min_yield, counted against a ±50 % window around that end's nominal frequency."""
-    from tristock.analysis import monte_carlo
-    from tristock.tuning import proxy_spec_at
+    from tristock.analysis.bundle import monte_carlo
+    from tristock.designs.tuned import proxy_spec_at
 
     data = bench_spec().model_dump()
     data["limits"].update({"guarantee": "yield", "min_yield": 0.95})

@@ -24,12 +24,9 @@ from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 from numpy.typing import NDArray
 
-from tristock.catalog import Catalog
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.spec import Spec, parse_spec
-from tristock.tuning import design_tuned
-from tristock.tuning.bounds import chain_floor, shared_bounds
-from tristock.tuning.chains import (
+from tristock.designs.tuned import design_tuned
+from tristock.designs.tuned.bounds import chain_floor, shared_bounds
+from tristock.designs.tuned.chains import (
     INF,
     Changes,
     Ranges,
@@ -40,10 +37,13 @@ from tristock.tuning.chains import (
     least_cost_envelope,
     steps,
 )
-from tristock.tuning.corners import pair_factors
-from tristock.tuning.dial import Limits, check_dial, point_ok
-from tristock.tuning.model import build_tuned_model
-from tristock.tuning.network import Shared, at_wiper, dial_ends, nominal_board
+from tristock.designs.tuned.corners import pair_factors
+from tristock.designs.tuned.dial import Limits, check_dial, point_ok
+from tristock.designs.tuned.model import build_tuned_model
+from tristock.designs.tuned.network import Shared, at_wiper, dial_ends, nominal_board
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 from tuned_reference import accepted, reference
 
 F64 = NDArray[np.float64]

@@ -23,12 +23,12 @@ from typing import Any
 import pytest
 
 from tristock import cli
-from tristock.catalog import Catalog, load_catalog
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.reoptimise import reoptimise
-from tristock.results import ReoptimiseResult
-from tristock.search import design
-from tristock.spec import Spec, parse_spec, read_mapping
+from tristock.designs.fixed import design
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import ReoptimiseResult
+from tristock.spec.model import Spec, parse_spec, read_mapping
+from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 from tuned_reference import accepted
 
 REPO = Path(__file__).resolve().parent.parent
@@ -199,7 +199,7 @@ def test_pot_withdrawn_stops_within_its_limit_and_says_what_it_proved() -> None:
 
 def test_unknown_designators_and_ids_are_named() -> None:
     spec, current = demo_design()
-    from tristock.spec import SpecError
+    from tristock.spec.model import SpecError
 
     with pytest.raises(SpecError, match=r"parts\.RV1: missing"):
         reoptimise(spec, demo(), {k: v for k, v in current.items() if k != "RV1"})

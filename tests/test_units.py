@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from tristock.units import format_code, format_value, parse_value
+from tristock.stock.units import format_code, format_value, parse_value
 
 # --- parse_value: the accepted forms ------------------------------------------------------------
 

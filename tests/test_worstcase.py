@@ -17,12 +17,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tristock.circuit import predict
-from tristock.design import Design
-from tristock.parts import Capacitor, OpAmp, Resistor
-from tristock.spec import Spec, parse_spec
-from tristock.spread import DELAY_SPREAD, SLEW_SPREAD
-from tristock.worstcase import box_extremes, worst_case
+from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
+from tristock.analysis.worstcase import box_extremes, worst_case
+from tristock.circuits.board import Design
+from tristock.circuits.oscillator import predict
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 FloatArray = npt.NDArray[np.float64]
 METRICS = ("frequency_hz", "amplitude_vpp", "duty_high")

@@ -27,15 +27,15 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock import eseries
-from tristock.catalog import Catalog
-from tristock.circuit import OpAmpModel, predict, square_levels
-from tristock.design import Design, rails_from_supply
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
+from tristock.analysis.worstcase import box_extremes
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, predict, square_levels
+from tristock.designs.trimmed import design_trimmed
 from tristock.search.model import SCORE_RESOLUTION
-from tristock.spec import Spec, parse_spec
-from tristock.trim import design_trimmed
-from tristock.worstcase import box_extremes
+from tristock.spec.model import Spec, parse_spec
+from tristock.stock import eseries
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 F64 = NDArray[np.float64]
 TIME_LIMIT_S = 120.0

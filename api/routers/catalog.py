@@ -17,7 +17,7 @@ from typing import Annotated, Any, Final
 
 from fastapi import APIRouter, Depends, Header, HTTPException, Query, Response
 
-from tristock.catalog import (
+from tristock.stock.catalog import (
     ALTERNATIVE_COLUMNS,
     Catalog,
     CatalogBusy,
@@ -32,7 +32,7 @@ from tristock.catalog import (
     part_version,
     update_stock,
 )
-from tristock.parts import Capacitor, Part, Pot, PotKind, Resistor
+from tristock.stock.parts import Capacitor, Part, Pot, PotKind, Resistor
 
 from ..deps import SettingsDep, StoreDep, require_writer
 from ..errors import FieldProblem

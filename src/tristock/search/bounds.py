@@ -49,7 +49,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.looptiming import LoopTiming, loop_timing
+from tristock.circuits.looptiming import LoopTiming, loop_timing
 
 Array = NDArray[np.float64]
 

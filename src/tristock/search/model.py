@@ -20,14 +20,14 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.catalog import Catalog
-from tristock.circuit import OpAmpModel, square_levels
-from tristock.design import rails_from_supply
-from tristock.eseries import is_member
-from tristock.parts import Capacitor, OpAmp, Resistor
+from tristock.circuits.board import rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, square_levels
 from tristock.search.bounds import OpAmpLoop, overshoot_fraction_cap
 from tristock.search.targetpoint import TargetPoint, target_point
-from tristock.spec import Spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.eseries import is_member
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 SCORE_RESOLUTION = 1e-6
 #: Secondary keys (tie-breakers) are packed below the primary score: primary·SECONDARY_SPAN + s.

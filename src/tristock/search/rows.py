@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuit import OpAmpModel, Prediction, predict
+from tristock.circuits.oscillator import OpAmpModel, Prediction, predict
 from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.guarantee import (
     FAST,
@@ -38,7 +38,7 @@ from tristock.search.guarantee import (
     probe_values,
 )
 from tristock.search.model import SECONDARY_SPAN, SearchModel
-from tristock.spec import Spec
+from tristock.spec.model import Spec
 
 I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]

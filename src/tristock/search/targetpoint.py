@@ -21,11 +21,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import DELAY_SPREAD, SLEW_SPREAD
-from tristock.circuit import OpAmpModel, Prediction, predict, square_levels
-from tristock.design import rails_from_supply
-from tristock.parts import OpAmp
-from tristock.spec import Spec
+from tristock.analysis.bundle import DELAY_SPREAD, SLEW_SPREAD
+from tristock.circuits.board import rails_from_supply
+from tristock.circuits.oscillator import OpAmpModel, Prediction, predict, square_levels
+from tristock.spec.model import Spec
+from tristock.stock.parts import OpAmp
 
 if TYPE_CHECKING:
     from tristock.search.model import SearchModel

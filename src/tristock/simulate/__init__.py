@@ -49,7 +49,7 @@ from __future__ import annotations
 
 import math
 
-from tristock.circuit import Oscillator
+from tristock.circuits.oscillator import Oscillator
 from tristock.simulate.loop import MIN_POINTS, loop_from
 from tristock.simulate.ode import measure_ode, run_ode, sample_ode
 from tristock.simulate.piecewise import measure_trace, run_piecewise, sample_trace

@@ -6,8 +6,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from tristock.circuit import Oscillator
-from tristock.units import format_value
+from tristock.circuits.oscillator import Oscillator
+from tristock.stock.units import format_value
 
 #: Successive periods must agree to this relative difference before measuring.
 SETTLE_TOLERANCE = 1e-9

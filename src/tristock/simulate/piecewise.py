@@ -26,7 +26,7 @@ from tristock.simulate.loop import (
     unfinished_message,
 )
 from tristock.simulate.results import Measured, SimulationError
-from tristock.units import format_value
+from tristock.stock.units import format_value
 
 
 class _Segment(NamedTuple):
