@@ -132,9 +132,9 @@ def load(
 def where_the_time_goes(spec_data: dict[str, Any]) -> None:
     """One design in-process: total, and the part spent re-checking candidates."""
     from tristock.analysis.bundle import analyse
-    from tristock.designs.fixed import design
-    from tristock.export.designfile import resolve
-    from tristock.spec.model import parse_spec
+    from tristock.circuits.board import resolve
+    from tristock.designs import design
+    from tristock.spec.loading import parse_spec
     from tristock.stock.catalog import load_catalog
 
     catalog = load_catalog(demo_catalog_dir())

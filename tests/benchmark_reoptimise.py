@@ -24,8 +24,8 @@ from typing import Any
 
 import tristock.designs.reoptimise as reopt_module
 from tristock.circuits.board import DESIGNATORS
-from tristock.designs.fixed import design
-from tristock.spec.model import load_spec
+from tristock.designs import design
+from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent

@@ -29,7 +29,7 @@ from typing import Any
 
 import numpy as np
 
-from tristock.designs.fixed import design
+from tristock.designs import design
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import (
@@ -40,7 +40,8 @@ from tristock.search.model import (
     evaluate,
     rank_key,
 )
-from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
 
 REPO = Path(__file__).resolve().parent.parent

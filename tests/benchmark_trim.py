@@ -21,11 +21,11 @@ import statistics
 import time
 from pathlib import Path
 
-from tristock.designs.fixed import design
+from tristock.designs import design
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.trimmed.context import TRIM_DESIGNATORS, trim_context
 from tristock.designs.trimmed.walk import TrimSearch, walk
-from tristock.spec.model import load_spec
+from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent

@@ -21,7 +21,7 @@ from pathlib import Path
 from tristock import cli
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.tuned import design_tuned
-from tristock.spec.model import parse_spec, read_mapping
+from tristock.spec.loading import parse_spec, read_mapping
 from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent

@@ -25,9 +25,10 @@ from pathlib import Path
 from typing import Any
 
 from tristock.circuits.board import DESIGNATORS, Design
-from tristock.designs.fixed import design
+from tristock.designs import design
 from tristock.export.designfile import design_for
-from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import load_catalog
 
 try:
@@ -39,7 +40,7 @@ try:
     CODE = "box search (tristock.worstcase)"
 except ImportError:  # an older tree: corners and an offset/bias refinement
     from tristock.analysis.bundle import corner_extremes as coverage_bound  # type: ignore
-    from tristock.analysis.bundle import worst_case  # type: ignore
+    from tristock.analysis.worstcase import worst_case  # type: ignore
 
     CODE = "corners (analysis.worst_case, analysis.corner_extremes)"
 

@@ -29,12 +29,13 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
-from tristock.designs.fixed import design
+from tristock.circuits.board import resolve
+from tristock.designs import design
 from tristock.designs.reoptimise import reoptimise
 from tristock.examples import demo_catalog_dir, example_spec_path
-from tristock.export.designfile import resolve
 from tristock.report.board import analysis_report, simulation_report
-from tristock.spec.model import Spec, load_spec, parse_spec
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
 from tristock.stock.tablegen import generate_capacitors, generate_resistors
 

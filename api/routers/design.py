@@ -8,10 +8,10 @@ from typing import Any
 
 from fastapi import APIRouter
 
-from tristock.designs.fixed import design
+from tristock.circuits.board import part_ids
+from tristock.designs import design
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import DesignResult, ReoptimiseResult
-from tristock.export.designfile import part_ids
 from tristock.spec.model import Spec
 
 from ..compute import Parcel

@@ -18,9 +18,9 @@ from pathlib import Path
 from typing import Any
 
 from tristock.cli import main
-from tristock.designs.fixed import design
+from tristock.designs import design
 from tristock.examples import demo_catalog_dir, example_spec_path
-from tristock.spec.model import load_spec
+from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parents[2]

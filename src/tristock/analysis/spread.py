@@ -40,8 +40,16 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from tristock.circuits.board import Design, rails_from_supply, value_at
-from tristock.circuits.oscillator import Prediction, Rails, predict, timing_network
+from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.opamp_schmitt.point import (
+    POINT_FIELDS,
+    SpreadPoint,
+    predict_point,
+    square_levels_of,
+    swing_imbalance,
+)
+from tristock.circuits.rails import Rails
+from tristock.circuits.topology import Prediction
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
@@ -62,34 +70,6 @@ METRICS = ("frequency_hz", "amplitude_vpp", "duty_high")
 
 
 @dataclass(frozen=True)
-class SpreadPoint:
-    """Every argument of ``predict`` plus the rails; floats or broadcastable arrays."""
-
-    r1: Value
-    r2: Value
-    r3: Value
-    c1: Value
-    v_pos: Value
-    v_neg: Value
-    swing_pos: Value
-    swing_neg: Value
-    slew_rise: Value
-    slew_fall: Value
-    delay: Value
-    gbw: Value
-    vos1: Value
-    ib1: Value
-    vos2: Value
-    ib2: Value
-    rv: Value = 0.0  # RV1 end to end (Ω); 0 without a pot
-    r4: Value = 0.0  # divider end stop (Ω)
-    alpha: Value = 0.0  # wiper position
-
-
-POINT_FIELDS = tuple(SpreadPoint.__dataclass_fields__)
-
-
-@dataclass(frozen=True)
 class Board:
     """A point plus how the reference node follows the rails and how a pot is wired."""
 
@@ -99,83 +79,9 @@ class Board:
 
     @classmethod
     def of(cls, design: Design, rails: Rails, temp_c: float) -> Board:
-        """The design's values at ``temp_c``; R3, RV1, R4 and the selected range capacitor
-        are kept apart (``predict_point`` combines them through ``circuit.timing_network``)."""
-        osc = design.oscillator(rails, temp_c)
-        m = osc.opamp
-        cap = design.timing_capacitor
-        c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
-        rv, r4 = design.rv1, design.r4
-        point = SpreadPoint(
-            r1=osc.r1,
-            r2=osc.r2,
-            r3=value_at(design.r3.value_ohm, design.r3.tempco_ppm, temp_c),
-            c1=value_at(cap.value_f, c_tc, temp_c),
-            rv=value_at(rv.value_ohm, rv.tempco_ppm, temp_c) if rv else 0.0,
-            r4=value_at(r4.value_ohm, r4.tempco_ppm, temp_c) if r4 else 0.0,
-            alpha=design.wiper if rv else 0.0,
-            v_pos=osc.rails.v_pos,
-            v_neg=osc.rails.v_neg,
-            swing_pos=m.swing_pos_v,
-            swing_neg=m.swing_neg_v,
-            slew_rise=m.slew_rise_v_per_s,
-            slew_fall=m.slew_fall_v_per_s,
-            delay=m.delay_s,
-            gbw=m.gbw_hz,
-            vos1=m.offset_v,
-            ib1=m.bias_a,
-            vos2=m.comparator_offset_v,
-            ib2=m.comparator_bias_a,
-        )
-        return cls(point, osc.rails.v_ref, design.control)
-
-
-def square_levels_of(point: SpreadPoint, v_ref: float | None) -> tuple[FloatArray, FloatArray]:
-    """(VH, VL), vectorised ``circuit.square_levels``: VH = V+ - swing_pos - Vref,
-    VL = Vref - (V- + swing_neg); Vref is the fixed reference, else 0 V for split rails and
-    (V+ + V-)/2 for a single supply (V- = 0)."""
-    v_pos = np.asarray(point.v_pos, dtype=float)
-    v_neg = np.asarray(point.v_neg, dtype=float)
-    if v_ref is not None:
-        ref: Value = v_ref
-    else:
-        ref = np.where(v_neg < 0.0, 0.0, (v_pos + v_neg) / 2.0)
-    return v_pos - point.swing_pos - ref, ref - (v_neg + point.swing_neg)
-
-
-def predict_point(point: SpreadPoint, v_ref: float | None, control: str = "series") -> Prediction:
-    """``predict`` at ``point`` with the square levels of ``square_levels_of`` and a pot
-    folded in by ``timing_network`` (R3 -> R_eff, C1 -> C1/β, Vos1 and Ib1 -> /β)."""
-    vh, vl = square_levels_of(point, v_ref)
-    r_eff, beta = timing_network(point.r3, point.rv, point.alpha, control, point.r4)
-    return predict(
-        point.r1,
-        point.r2,
-        r_eff,
-        np.asarray(point.c1) / beta,
-        vh,
-        vl,
-        slew_rise=point.slew_rise,
-        slew_fall=point.slew_fall,
-        delay=point.delay,
-        gbw=point.gbw,
-        vos1=np.asarray(point.vos1) / beta,
-        ib1=np.asarray(point.ib1) / beta,
-        vos2=point.vos2,
-        ib2=point.ib2,
-        integrator_gbw=point.gbw,
-    )
-
-
-def swing_imbalance(point: SpreadPoint, v_ref: float | None, control: str = "series") -> FloatArray:
-    """(VH - Ve) - (VL + Ve) in volts: the difference of the two integrator drives, zero where
-    the ramps up and down are equally steep. Ve = (Vos1 + Ib1·R_eff)/β is the integrator's
-    error voltage (``circuit.predict``). Affine in each rail while the reference is fixed
-    or 0 V; independent of V+ for a mid-rail single supply."""
-    vh, vl = square_levels_of(point, v_ref)
-    r_eff, beta = timing_network(point.r3, point.rv, point.alpha, control, point.r4)
-    ve = (np.asarray(point.vos1) + np.asarray(point.ib1) * r_eff) / beta
-    return np.asarray(vh - vl - 2.0 * ve, dtype=float)
+        """The design's values at ``temp_c`` (its topology's ``board_point``)."""
+        point = design.topology.board_point(design, rails, temp_c)
+        return cls(point, rails.v_ref, design.control)
 
 
 def metric_table(pred: Prediction, rows: int) -> FloatArray:

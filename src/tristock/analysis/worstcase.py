@@ -65,9 +65,9 @@ from tristock.analysis.spread import (
     evaluate,
     point_at,
     spread_board,
-    swing_imbalance,
 )
 from tristock.circuits.board import Design
+from tristock.circuits.opamp_schmitt.point import swing_imbalance
 from tristock.spec.model import Spec
 
 FloatArray = npt.NDArray[np.float64]

@@ -7,13 +7,17 @@ C1 integrator capacitor, U1 the op amp (one dual, or a single-channel part used 
 
 from __future__ import annotations
 
-import dataclasses
 from collections import Counter
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
-from tristock.circuits.oscillator import OpAmpModel, Oscillator, Rails, timing_network
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
+from tristock.circuits.opamp_schmitt.physics import Oscillator
+from tristock.circuits.rails import Rails
+from tristock.circuits.topology import Topology
+from tristock.spec.loading import SpecError
 from tristock.spec.model import SupplySpec
+from tristock.stock.catalog import Catalog
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 
 DESIGNATORS = ("U1", "R1", "R2", "R3", "C1")
@@ -28,11 +32,6 @@ def rails_from_supply(supply: SupplySpec, scale: float = 1.0) -> Rails:
     """
     v_ref = supply.reference_v if supply.negative_v == 0 else None
     return Rails(supply.positive_v * scale, supply.negative_v * scale, v_ref)
-
-
-def value_at(value: float, tempco_ppm: float, temp_c: float) -> float:
-    """value(T) = value(25 °C)·(1 + tc·(T - 25 °C)), tc in ppm/°C."""
-    return value * (1.0 + tempco_ppm * 1e-6 * (temp_c - 25.0))
 
 
 @dataclass(frozen=True)
@@ -55,6 +54,7 @@ class Design:
     r4: Resistor | None = None
     range_caps: tuple[Capacitor, ...] = ()
     selected: int = 0
+    topology: Topology = OPAMP_SCHMITT
 
     def __post_init__(self) -> None:
         if not 0.0 <= self.wiper <= 1.0:
@@ -104,31 +104,83 @@ class Design:
         return len(self.uses())
 
     def oscillator(self, rails: Rails, temp_c: float = 25.0) -> Oscillator:
-        """The oscillator at temperature ``temp_c`` (°C): each value moved by its tempco.
+        """The oscillator at temperature ``temp_c`` (°C), built by the board's topology."""
+        built: Oscillator = self.topology.oscillator(self, rails, temp_c)
+        return built
 
-        A class II capacitor has no linear tempco; its nominal value is used here and its
-        temperature band is handled by the worst-case analysis.
-        """
-        cap = self.timing_capacitor
-        c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
-        r3 = value_at(self.r3.value_ohm, self.r3.tempco_ppm, temp_c)
-        c1 = value_at(cap.value_f, c_tc, temp_c)
-        opamp = OpAmpModel.from_part(self.u1)
-        if self.rv1 is not None:
-            rv = value_at(self.rv1.value_ohm, self.rv1.tempco_ppm, temp_c)
-            r4 = value_at(self.r4.value_ohm, self.r4.tempco_ppm, temp_c) if self.r4 else 0.0
-            r_eff, beta = timing_network(r3, rv, self.wiper, self.control, r4)
-            r3, c1 = float(r_eff), c1 / float(beta)
-            # The integrator's error voltage works against β·V, so in the equivalent (V, C1/β)
-            # it is Ve/β: scale the integrator's offset and bias current by 1/β.
-            opamp = dataclasses.replace(
-                opamp, offset_v=opamp.offset_v / float(beta), bias_a=opamp.bias_a / float(beta)
+
+_RANGE_CAPS = tuple(f"C{n}" for n in range(2, 9))
+OPTIONAL = ("R4", "RV1", *_RANGE_CAPS)
+_KINDS: dict[str, type] = {
+    "U1": OpAmp,
+    "R1": Resistor,
+    "R2": Resistor,
+    "R3": Resistor,
+    "C1": Capacitor,
+    "R4": Resistor,
+    "RV1": Pot,
+    **{c: Capacitor for c in _RANGE_CAPS},
+}
+
+
+def part_ids(parts: Any) -> dict[str, str]:
+    """Designator -> stock code from a ``parts`` mapping; errors name the field."""
+    if not isinstance(parts, dict):
+        raise SpecError(["parts: expected a table of designator = stock code"])
+    errors: list[str] = []
+    out: dict[str, str] = {}
+    for name in (*DESIGNATORS, *OPTIONAL):
+        item = parts.get(name)
+        if item is None and name in OPTIONAL:
+            continue
+        if isinstance(item, dict):
+            item = item.get("id")
+        if not isinstance(item, str) or not item:
+            errors.append(f"parts.{name}: missing (a stock code, or an object with an id)")
+        else:
+            out[name] = item
+    errors += [f"parts.{k}: unknown designator" for k in parts if k not in _KINDS]
+    caps = [c for c in _RANGE_CAPS if c in out]
+    if caps and caps != list(_RANGE_CAPS[: len(caps)]):
+        errors.append("parts: range capacitors must be numbered C2, C3, ... without gaps")
+    if errors:
+        raise SpecError(errors)
+    return out
+
+
+def resolve(
+    ids: dict[str, str],
+    catalog: Catalog,
+    *,
+    wiper: float = 0.0,
+    control: str = "series",
+    selected: int = 0,
+) -> Design:
+    """The Design for these stock codes; unknown or wrong-kind ids raise SpecError."""
+    errors: list[str] = []
+    found: dict[str, Any] = {}
+    for name, pid in ids.items():
+        try:
+            part = catalog.get(pid)
+        except KeyError:
+            errors.append(f"parts.{name}: {pid!r} is not in the catalog {catalog.path}")
+            continue
+        if not isinstance(part, _KINDS[name]):
+            errors.append(
+                f"parts.{name}: {pid!r} is a {type(part).__name__}, not a {_KINDS[name].__name__}"
             )
-        return Oscillator(
-            r1=value_at(self.r1.value_ohm, self.r1.tempco_ppm, temp_c),
-            r2=value_at(self.r2.value_ohm, self.r2.tempco_ppm, temp_c),
-            r3=r3,
-            c1=c1,
-            opamp=opamp,
-            rails=rails,
+            continue
+        found[name.lower()] = part
+    if errors:
+        raise SpecError(errors)
+    range_caps = tuple(found.pop(c.lower()) for c in _RANGE_CAPS if c.lower() in found)
+    try:
+        return Design(
+            **found,
+            range_caps=range_caps,
+            wiper=wiper,
+            control=control,  # type: ignore[arg-type]
+            selected=selected,
         )
+    except ValueError as err:
+        raise SpecError([str(err)]) from None

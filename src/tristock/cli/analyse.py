@@ -15,7 +15,7 @@ from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file
 from tristock.cli.design import spec_lines
 from tristock.cli.output import emit, emit_json
-from tristock.designs.fixed import CAUTIONS
+from tristock.designs.candidate import CAUTIONS
 from tristock.report.board import analysis_report
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value

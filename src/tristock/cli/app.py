@@ -50,7 +50,7 @@ def known_failure(err: Exception) -> int | None:
     # the library's errors, imported here so that ``--help`` never loads the library
     from tristock.circuits.checks import DoesNotOscillate
     from tristock.simulate import SimulationError
-    from tristock.spec.model import SpecError
+    from tristock.spec.loading import SpecError
     from tristock.stock.catalog import CatalogError, StockError
 
     if isinstance(err, SpecError):

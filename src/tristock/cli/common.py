@@ -13,7 +13,8 @@ from tristock.circuits.board import Design
 from tristock.cli.exits import UsageError
 from tristock.examples import demo_catalog_dir
 from tristock.export.designfile import parse_design
-from tristock.spec.model import Spec, SpecError, parse_spec, read_mapping
+from tristock.spec.loading import SpecError, parse_spec, read_mapping
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
 
 T = TypeVar("T")

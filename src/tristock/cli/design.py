@@ -13,7 +13,8 @@ from tristock.cli import exits
 from tristock.cli.common import catalog_from, plot_target, spec_from_file, with_ranking
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
-from tristock.designs.fixed import CAUTIONS, design
+from tristock.designs import design
+from tristock.designs.candidate import CAUTIONS
 from tristock.designs.results import Candidate, DesignResult
 from tristock.examples import example_spec_path
 from tristock.spec.model import Spec

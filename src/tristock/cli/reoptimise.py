@@ -10,15 +10,15 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from tristock.circuits.board import part_ids
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, parsed_in, read_file
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import ReoptimiseResult
-from tristock.export.designfile import part_ids
 from tristock.spec import limits
-from tristock.spec.model import parse_spec
+from tristock.spec.loading import parse_spec
 from tristock.stock.units import format_value
 
 

@@ -66,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
     require_oscillation(spec, d, corners=False)  # the simulation runs on the nominal rails
     osc = d.oscillator(rails_from_supply(spec.supply))
     try:
-        result = simulate(osc, periods=args.periods)
+        result = simulate(osc, periods=args.periods, topology=d.topology)
         data = (
             simulation_report(spec, d, periods=args.periods, max_points=args.max_points)
             if args.json

@@ -1,6 +1,6 @@
-"""The design search: best parts from a catalog for a spec, each answer re-checked in full.
+"""Fixed designs: best parts from a catalog for a spec, each answer re-checked in full.
 
-``design(spec, catalog)`` builds the search model (``model``), runs one engine (``cpsat``, the
+``design_fixed(spec, catalog)`` builds the search model (``model``), runs one engine (``cpsat``, the
 default, or ``enumerate``), then re-evaluates every answer with the full circuit model and the
 tolerance analysis; an answer the full model rejects is dropped and the search asks for more.
 """
@@ -12,39 +12,19 @@ import time
 from dataclasses import dataclass
 from typing import Literal
 
-import numpy as np
-from numpy.typing import NDArray
-
-from tristock.analysis.bundle import (
-    Analysis,
-    WorstCase,
-    YieldResult,
-    analyse,
-    worst_case,
-    yield_count,
-)
-from tristock.circuits.board import Design, rails_from_supply
-from tristock.circuits.oscillator import OpAmpModel, square_levels
-from tristock.designs.results import (
-    Candidate,
-    DesignResult,
-    ErrorOut,
-    Infeasible,
-    PartOut,
-    Predicted,
-    SearchInfo,
-    WarningOut,
-)
-from tristock.report.board import parts_report, warnings_for
+from tristock.analysis.bundle import analyse
+from tristock.analysis.montecarlo import yield_count
+from tristock.analysis.worstcase import worst_case
+from tristock.circuits.board import Design
+from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
+from tristock.designs.results import DesignResult, Infeasible, SearchInfo
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
-from tristock.search.rows import RowPrediction, Rows
+from tristock.search.rows import Rows
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
-from tristock.stock.units import format_value
 
 Engine = Literal["cpsat", "enumerate"]
 #: For one design the enumeration's rows come in exact rank order with every constraint
@@ -52,44 +32,6 @@ Engine = Literal["cpsat", "enumerate"]
 #: several designs) only re-derives them, more slowly.
 DEFAULT_ENGINE: Engine = "enumerate"
 DEFAULT_TIME_LIMIT_S = 5.0
-
-CAUTIONS = [
-    "Check every supply rail against the op amp's absolute maximum ratings, including "
-    "start-up and fault conditions.",
-    "Capacitor voltage ratings and resistor power ratings are checked against the model's "
-    "peaks only; derate them as your own practice requires.",
-    "Predictions are models: build and measure a prototype before release. Follow local "
-    "codes and licensed practice for anything connected to mains or to people.",
-]
-
-
-def part_out(part: Part, pieces: int) -> PartOut:
-    """A part as it appears in a result."""
-    if isinstance(part, Resistor):
-        kind, value, unit, tol = "resistor", part.value_ohm, "Ω", part.tolerance_pct
-    elif isinstance(part, Capacitor):
-        kind, value, unit, tol = "capacitor", part.value_f, "F", part.tolerance_pct
-    elif isinstance(part, Pot):
-        kind, value, unit, tol = "pot", part.value_ohm, "Ω", part.tolerance_pct
-    else:
-        assert isinstance(part, OpAmp)
-        kind, value, unit, tol = "opamp", None, "", None
-    if value is None:
-        ch = "dual" if part.channels >= 2 else "single, two used"  # type: ignore[union-attr]
-        display = f"{part.id} ({ch})"
-    else:
-        extra = f" {part.dielectric}" if isinstance(part, Capacitor) else ""
-        display = f"{format_value(value, unit)} {tol:g} %{extra}"
-    return PartOut(
-        id=part.id,
-        kind=kind,
-        value=value,
-        display=display,
-        tolerance_pct=tol,
-        unit_cost=part.unit_cost,
-        pieces_per_board=pieces,
-        stock=part.stock,
-    )
 
 
 def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
@@ -101,83 +43,6 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
         r2=res[rows.i2[n]],
         r3=res[rows.i3[n]],
         c1=cap[rows.j[n]],
-    )
-
-
-def accepts(spec: Spec, design: Design) -> bool:
-    """The search's acceptance of one fixed design at nominal values (``search.rows``): the
-    bands, the model's ground (peaks inside the integrator's swing, its slew above the
-    triangle's slope, the timing share within the limit) and C1's voltage rating."""
-    model = OpAmpModel.from_part(design.u1)
-    try:
-        vh, vl = square_levels(rails_from_supply(spec.supply), model)
-    except ValueError:
-        return False
-
-    def one(x: float) -> NDArray[np.float64]:
-        return np.array([x], dtype=np.float64)
-
-    values = (
-        one(design.r1.value),
-        one(design.r2.value),
-        one(design.r3.value),
-        one(design.c1.value),
-    )
-    rp = RowPrediction([model], np.zeros(1, dtype=np.int64), values, one(vh), one(vl))
-    return bool(rp.accepted(spec, one(design.c1.voltage_v))[0])
-
-
-def passes(spec: Spec, design: Design, result: Analysis) -> bool:
-    """The full model's verdict: ``accepts`` and the spec's guarantee, from the analysis
-    (worst case over the whole spread box, or the Monte Carlo yield)."""
-    if not accepts(spec, design):
-        return False
-    return _guarantee_holds(spec, result.worst_case, result.yield_result)
-
-
-def _guarantee_holds(spec: Spec, wc: WorstCase | None, y: YieldResult | None) -> bool:
-    (fa, fb), (aa, ab) = spec.frequency_band_ln, spec.amplitude_band_ln
-    f0, a0 = spec.target.target_hz, spec.triangle.amplitude_vpp
-
-    def inside(f: float, a: float) -> bool:
-        return fa <= math.log(f / f0) <= fb and aa <= math.log(a / a0) <= ab
-
-    if spec.limits.guarantee == "worst_case":
-        assert wc is not None
-        return inside(wc.frequency_hz[0], wc.amplitude_vpp[0]) and inside(
-            wc.frequency_hz[1], wc.amplitude_vpp[1]
-        )
-    if spec.limits.guarantee == "yield":
-        assert y is not None
-        return y.fraction >= spec.limits.min_yield
-    return True
-
-
-def candidate(spec: Spec, design: Design, result: Analysis, rank: int, score: int) -> Candidate:
-    """One design as reported: parts, prediction, errors, spread, cost and warnings."""
-    d = result.to_dict()
-    parts = parts_report(design)
-    warnings = warnings_for(design, spec)
-    p = d["predicted"]
-    return Candidate(
-        rank=rank,
-        parts=parts,
-        predicted=Predicted(**p),
-        error=ErrorOut(
-            frequency_pct=100 * (p["frequency_hz"] / spec.target.target_hz - 1),
-            amplitude_pct=100 * (p["amplitude_vpp"] / spec.triangle.amplitude_vpp - 1),
-        ),
-        worst_case=d["worst_case"],
-        yield_fraction=d["yield_fraction"],
-        yield_detail=d["yield"],
-        sensitivity=d["sensitivity"],
-        drift=d["drift"],
-        cost=round(design.cost_per_board, 6),
-        bom_lines=design.bom_lines,
-        score=score,
-        warnings=[
-            WarningOut(code=w.code, severity=w.severity, message=w.message) for w in warnings
-        ],
     )
 
 
@@ -205,7 +70,7 @@ def _recheck(spec: Spec, design: Design, samples: int, seed: int, beat: int) -> 
     limits = spec.limits
     if limits.guarantee == "worst_case":
         wc = worst_case(design, spec)
-        if not _guarantee_holds(spec, wc, None):
+        if not guarantee_holds(spec, wc, None):
             return _Verdict(False, None)
     if limits.guarantee != "yield" and spec.ranking.by != "yield":
         return _Verdict(True, None)
@@ -269,7 +134,7 @@ def _walk(
     return kept, dropped, settled(), False
 
 
-def design(
+def design_fixed(
     spec: Spec,
     catalog: Catalog,
     *,
@@ -278,22 +143,13 @@ def design(
     samples: int = 4000,
     seed: int = 0,
 ) -> DesignResult:
-    """Best ``spec.ranking.top`` designs from ``catalog``, optimal under the full model.
+    """Best ``spec.ranking.top`` fixed designs from ``catalog``, optimal under the full model.
 
     The engines list rows in rank order, each scored by the full model at nominal values;
     the guarantee (worst case over the spread box, Monte Carlo yield) and the yield ranking
     are then decided by the analysis, row by row in that order, until no unchecked row can
-    enter the top (``_walk``). A spec with ``[trim]`` is searched by ``tristock.trim``, one
-    with ``[tuning]`` by ``tristock.tuning``; both return the same result model.
+    enter the top (``_walk``).
     """
-    if spec.trimmed:
-        from tristock.designs.trimmed import design_trimmed
-
-        return design_trimmed(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
-    if spec.tuning is not None:
-        from tristock.designs.tuned import design_tuned
-
-        return design_tuned(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
     model = build_model(spec, catalog)
@@ -346,4 +202,4 @@ def search_space(model: SearchModel) -> int:
     return len(model.opamps) * len(model.resistors) ** 3 * len(model.capacitors)
 
 
-__all__ = ["CAUTIONS", "DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design"]
+__all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design_fixed"]

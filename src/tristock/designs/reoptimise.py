@@ -19,8 +19,9 @@ from itertools import combinations
 import numpy as np
 
 from tristock.analysis.bundle import analyse
-from tristock.circuits.board import DESIGNATORS
-from tristock.designs.fixed import candidate, design_of, passes, search_space
+from tristock.circuits.board import DESIGNATORS, resolve
+from tristock.designs.candidate import candidate, passes
+from tristock.designs.fixed import design_of, search_space
 from tristock.designs.results import (
     Change,
     Infeasible,
@@ -29,14 +30,14 @@ from tristock.designs.results import (
     ReoptimisedCandidate,
     ReoptimiseResult,
     SearchInfo,
-    Shortfall,
 )
-from tristock.export.designfile import resolve
+from tristock.designs.shortfall import shortfall
 from tristock.search.enumeration import enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.rows import Rows, rank_key
-from tristock.spec.model import Spec, SpecError, parse_spec
+from tristock.spec.loading import SpecError, parse_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
 _POSITION_TABLE = {
@@ -46,31 +47,6 @@ _POSITION_TABLE = {
     "R3": "resistors",
     "C1": "capacitors",
 }
-
-
-def shortfall(catalog: Catalog, current: dict[str, str], boards: int) -> list[Shortfall]:
-    """Parts of the design short for ``boards`` boards, and by how many pieces.
-
-    A stock code in two positions needs two pieces a board; a single-channel op amp two.
-    """
-    uses: dict[str, int] = {}
-    for name, pid in current.items():
-        part = catalog.get(pid) if pid in catalog else None
-        per = getattr(part, "packages_per_board", 1) if name == "U1" else 1
-        uses[pid] = uses.get(pid, 0) + per
-    out = []
-    seen: set[str] = set()
-    for name, pid in current.items():
-        if pid in seen:
-            continue
-        seen.add(pid)
-        stock = catalog.get(pid).stock if pid in catalog else 0
-        needed = boards * uses[pid]
-        if stock < needed:
-            out.append(
-                Shortfall(designator=name, id=pid, needed=needed, stock=stock, short=needed - stock)
-            )
-    return out
 
 
 def _index_of(model: SearchModel, designator: str, part_id: str) -> int | None:

@@ -4,35 +4,15 @@ from __future__ import annotations
 
 from typing import Any
 
-from tristock.analysis.bundle import Distribution, analyse
+from tristock.analysis.bundle import analyse
+from tristock.analysis.montecarlo import Distribution
 from tristock.circuits.board import Design, rails_from_supply
-from tristock.circuits.checks import DoesNotOscillate, Warning, check, oscillation_failure
-from tristock.circuits.oscillator import Prediction
-from tristock.designs.results import PartOut
+from tristock.circuits.checks import DoesNotOscillate
+from tristock.circuits.opamp_schmitt.checks import oscillation_failure
+from tristock.circuits.topology import Prediction
+from tristock.designs.candidate import parts_report, warnings_for
 from tristock.simulate.results import Measured, SimulationResult
 from tristock.spec.model import Spec
-
-
-def warnings_for(design: Design, spec: Spec) -> list[Warning]:
-    """Every design check of ``design`` on the spec's nominal rails (see ``checks``)."""
-    osc = design.oscillator(rails_from_supply(spec.supply))
-    return check(
-        osc,
-        capacitor=design.c1,
-        resistors={"R1": design.r1, "R2": design.r2, "R3": design.r3},
-        opamp_part=design.u1,
-    )
-
-
-def parts_report(design: Design) -> dict[str, PartOut]:
-    """Designator -> part as reported (a single-channel U1 counts two pieces)."""
-    from tristock.designs.fixed import part_out
-
-    uses = design.uses()
-    return {
-        name: part_out(part, uses[part.id] if name == "U1" else 1)
-        for name, part in design.parts().items()
-    }
 
 
 def analysis_report(
@@ -101,7 +81,7 @@ def simulation_report(
     from tristock.simulate import simulate
 
     osc = design.oscillator(rails_from_supply(spec.supply))
-    result = simulate(osc, periods=periods, max_points=max_points)
+    result = simulate(osc, periods=periods, max_points=max_points, topology=design.topology)
     return simulation_report_of(result, osc.prediction())
 
 

@@ -21,7 +21,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.board import rails_from_supply
-from tristock.circuits.oscillator import OpAmpModel, square_levels
+from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.search.bounds import OpAmpLoop, overshoot_fraction_cap
 from tristock.search.targetpoint import TargetPoint, target_point
 from tristock.spec.model import Spec

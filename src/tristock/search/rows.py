@@ -26,7 +26,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.oscillator import OpAmpModel, Prediction, predict
+from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.topology import Prediction
 from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.guarantee import (
     FAST,

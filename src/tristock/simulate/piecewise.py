@@ -16,12 +16,12 @@ from typing import Literal, NamedTuple
 
 import numpy as np
 
+from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.simulate.loop import (
     EVENTS_PER_PERIOD,
     MAX_EXTRA_SETTLE_PERIODS,
     MAX_UNFINISHED_TRANSITIONS,
     SETTLE_TOLERANCE,
-    Loop,
     stuck_message,
     unfinished_message,
 )

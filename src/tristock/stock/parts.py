@@ -170,3 +170,8 @@ class Pot:
 
 
 Part = Resistor | Capacitor | OpAmp | Pot
+
+
+def value_at(value: float, tempco_ppm: float, temp_c: float) -> float:
+    """value(T) = value(25 °C)·(1 + tc·(T - 25 °C)), tc in ppm/°C."""
+    return value * (1.0 + tempco_ppm * 1e-6 * (temp_c - 25.0))

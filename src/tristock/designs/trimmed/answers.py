@@ -5,7 +5,7 @@ from __future__ import annotations
 import time
 
 from tristock.analysis.bundle import analyse
-from tristock.designs.fixed import CAUTIONS, candidate
+from tristock.designs.candidate import CAUTIONS, candidate
 from tristock.designs.results import Candidate, DesignResult, Infeasible, SearchInfo, TrimOut
 from tristock.designs.trimmed.checks import frequency_range
 from tristock.designs.trimmed.context import TrimContext, trim_context

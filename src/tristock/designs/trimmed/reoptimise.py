@@ -22,7 +22,7 @@ from itertools import combinations
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.board import rails_from_supply
+from tristock.circuits.board import rails_from_supply, resolve
 from tristock.designs.results import (
     Change,
     Infeasible,
@@ -38,9 +38,9 @@ from tristock.designs.trimmed.checks import nominal_wiper
 from tristock.designs.trimmed.context import TRIM_DESIGNATORS, TrimContext, trim_context
 from tristock.designs.trimmed.explain import trimmed_reasons
 from tristock.designs.trimmed.walk import Accepted, TrimSearch, WalkResult, walk
-from tristock.export.designfile import resolve
 from tristock.search.model import SCORE_RESOLUTION
-from tristock.spec.model import Spec, SpecError
+from tristock.spec.loading import SpecError
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
 
@@ -169,7 +169,7 @@ def reoptimise_trimmed(
 ) -> ReoptimiseResult:
     """Trimmed designs meeting ``spec`` that change the fewest designators of ``current``
     (module docstring). ``spec`` carries the build's boards and the ranking's top."""
-    from tristock.designs.reoptimise import shortfall
+    from tristock.designs.shortfall import shortfall
 
     assert spec.trim is not None
     t0 = time.perf_counter()

@@ -35,7 +35,7 @@ from __future__ import annotations
 import time
 
 from tristock.circuits.board import Design
-from tristock.designs.fixed import CAUTIONS
+from tristock.designs.candidate import CAUTIONS
 from tristock.designs.results import DesignResult, Infeasible, SearchInfo
 from tristock.designs.tuned.cores import build_cores
 from tristock.designs.tuned.coverage import RangeVerdict, proxy_spec_at

@@ -53,7 +53,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.oscillator import timing_network
+from tristock.circuits.timing import timing_network
 from tristock.designs.tuned.corners import (
     Corners,
     KFactors,

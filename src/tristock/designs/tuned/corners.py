@@ -16,8 +16,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis.bundle import BIAS_SPREAD, DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
-from tristock.circuits.oscillator import timing_network
+from tristock.analysis.spread import BIAS_SPREAD, DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
+from tristock.circuits.timing import timing_network
 from tristock.designs.tuned.model import TunedModel
 from tristock.designs.tuned.network import dial_ends, rail_choice, temperatures
 

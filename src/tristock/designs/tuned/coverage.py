@@ -21,7 +21,7 @@ import dataclasses
 import math
 from dataclasses import dataclass
 
-from tristock.analysis.bundle import yield_count
+from tristock.analysis.montecarlo import yield_count
 from tristock.analysis.worstcase import box_extremes as spread_box_extremes
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.designs.tuned.network import dial_ends

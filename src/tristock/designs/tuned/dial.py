@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.oscillator import timing_network
+from tristock.circuits.timing import timing_network
 from tristock.designs.tuned.network import AtWiper, Board, at_wiper
 from tristock.search.bounds import loop_timing
 from tristock.spec.model import Spec

@@ -25,7 +25,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.board import rails_from_supply
-from tristock.circuits.oscillator import OpAmpModel, square_levels
+from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.search.model import Exclusion, PartTable, in_series
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog

@@ -26,6 +26,7 @@ from collections.abc import Iterator, Sequence
 from itertools import combinations
 
 from tristock.analysis.bundle import analyse
+from tristock.circuits.board import resolve
 from tristock.designs.results import (
     Change,
     Infeasible,
@@ -43,9 +44,9 @@ from tristock.designs.tuned.pins import masks, part_index, tuned_shortfall
 from tristock.designs.tuned.report import design_from, reasons, tuned_candidate
 from tristock.designs.tuned.search import Found, Lister, Walk
 from tristock.designs.tuned.verdict import Verdicts
-from tristock.export.designfile import resolve
 from tristock.search.model import SCORE_RESOLUTION, PartTable
-from tristock.spec.model import Spec, SpecError, parse_spec
+from tristock.spec.loading import SpecError, parse_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
 #: After this many changes without an answer, check once that any design meets the spec.

@@ -7,7 +7,7 @@ import math
 
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import Design, rails_from_supply
-from tristock.designs.fixed import candidate
+from tristock.designs.candidate import candidate
 from tristock.designs.results import Candidate, RangeOut, TuningOut
 from tristock.designs.tuned.coverage import RangeVerdict, proxy_spec_at
 from tristock.designs.tuned.model import MAX_RANGES, TunedModel
