@@ -1,9 +1,9 @@
 """Request bodies (pydantic, unknown keys rejected, numbers strict: a boolean or a string is
 not a number) and the small response shapes of the API: problem details and health.
 
-Results themselves are the library's: ``tristock.results.DesignResult``, the dicts of
-``tristock.report`` (described by ``tristock.api.reports``); part items are the ``tristock.parts``
-dataclasses, field for field the columns of the tables.
+Results themselves are the library's: ``tristock.designs.results.DesignResult``, the dicts of
+``tristock.report.board`` (described by ``tristock.api.reports``); part items are the
+``tristock.stock.parts`` dataclasses, field for field the columns of the tables.
 """
 
 from __future__ import annotations

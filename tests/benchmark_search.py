@@ -140,7 +140,7 @@ def peak_memory() -> tuple[str, float, int]:
         if probe.returncode == 0 and "--example" in probe.stdout:
             return _rss([exe, "design", "--example", "--json"], "tristock design --example --json")
     code = (
-        "from tristock.catalog import load_catalog\n"
+        "from tristock.stock.catalog import load_catalog\n"
         "from tristock.search import design\n"
         "from tristock.spec import parse_spec\n"
         f"r = design(parse_spec({FALLBACK_SPEC!r}), load_catalog({str(DEMO)!r}))\n"

@@ -8,7 +8,7 @@ each, 0..70 °C). Times, by ``time.perf_counter`` over ``--runs`` calls each (me
 ``worst_case`` (six extremes) and the coverage bound (``box_extremes``; frequency only, as
 ``trim.coverage`` asks). Prints the model evaluations per call and the frequency bounds.
 
-Before/after: the script also runs on a tree older than ``tristock.worstcase`` (where
+Before/after: the script also runs on a tree older than ``tristock.analysis.worstcase`` (where
 ``analysis.worst_case`` refined only the offset and bias variables and
 ``analysis.corner_extremes`` evaluated the corners), e.g.
 ``PYTHONPATH=<old tree>/src python tests/benchmark_worstcase.py``, so both are timed alike.
@@ -37,7 +37,7 @@ try:
     def coverage_bound(d: Design, spec: Spec) -> dict[str, tuple[float, float]]:
         return box_extremes(d, spec, ["frequency_hz"])
 
-    CODE = "box search (tristock.worstcase)"
+    CODE = "box search (tristock.analysis.worstcase)"
 except ImportError:  # an older tree: corners and an offset/bias refinement
     from tristock.analysis.bundle import corner_extremes as coverage_bound  # type: ignore
     from tristock.analysis.worstcase import worst_case  # type: ignore

@@ -1,7 +1,7 @@
-"""Tests for tristock.worstcase: extremes over the whole spread box, not only its corners.
+"""Tests for tristock.analysis.worstcase: extremes over the whole spread box, not only its corners.
 
 The reference is brute force over the model, written here from the spread variables'
-definitions (``tristock.spread`` docstring) straight onto ``tristock.circuit.predict``: every
+definitions (``tristock.analysis.spread`` docstring) straight onto ``physics.predict``: every
 corner of every variable except the rails, times a dense grid over each rail. All parts are
 invented test rows (stock codes RT-/CT-/UT-).
 """
@@ -88,7 +88,7 @@ COLUMNS = ("r1", "r2", "r3", "c1", "temp", "vos1", "vos2", "bias", "slew", "dela
 
 def model_metrics(design: Design, spec: Spec, setting: FloatArray) -> FloatArray:
     """Frequency, amplitude and duty (rows, 3) at settings (rows, COLUMNS) by
-    ``circuit.predict``: each value moved by value·(1 + tc·(T - 25 °C)); square levels
+    ``physics.predict``: each value moved by value·(1 + tc·(T - 25 °C)); square levels
     VH = V+ - swing_pos - ref, VL = ref - (V- + swing_neg), ref 0 V for split rails, the
     spec's reference or (V+ + V-)/2 for a single supply."""
     u, supply = design.u1, spec.supply
@@ -161,7 +161,7 @@ def setting_of(
     design: Design, spec: Spec, names: tuple[str, ...], z: tuple[float, ...]
 ) -> FloatArray:
     """The setting (1, COLUMNS) at deviations z of the named spread variables, from their
-    definitions (``tristock.spread`` docstring); a variable not named sits at its centre."""
+    definitions (``analysis.spread`` docstring); a variable not named sits at its centre."""
     u, env, supply = design.u1, spec.environment, spec.supply
     dev = dict(zip(names, z, strict=True))
     tol_v = supply.tolerance_pct / 100

@@ -1,4 +1,4 @@
-"""Design checks (tristock.checks): each code from a constructed case, and a clean case.
+"""Design checks (tristock.circuits.checks): each code from a constructed case, and a clean case.
 
 The margins tested (2x slew, 50 % of a rating, 2x capacitor voltage, 10 % swing headroom,
 2 %/20 % of the period) are common practice; the loads and voltages come from Ohm's law on

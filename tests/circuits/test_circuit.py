@@ -1,4 +1,4 @@
-"""The closed-form oscillator model (tristock.circuit).
+"""The closed-form oscillator model (tristock.circuits).
 
 Outside references, named beside each check:
 - the textbook result for the op-amp integrator + non-inverting Schmitt trigger (Sedra & Smith,

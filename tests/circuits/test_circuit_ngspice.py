@@ -13,14 +13,8 @@ from dataclasses import dataclass
 
 import pytest
 
-from ngspice_harness import (
-    NgspiceError,
-    SimCase,
-    case_from,
-    parse_measurements,
-    require_ngspice,
-    simulate_many,
-)
+from ngspice_harness import NgspiceError, parse_measurements, require_ngspice, simulate_many
+from tristock.circuits.opamp_schmitt.netlist import SimCase, case_from
 from tristock.circuits.opamp_schmitt.physics import Oscillator, predict
 from tristock.circuits.rails import OpAmpModel, Rails, square_levels
 from tristock.circuits.topology import Prediction

@@ -15,9 +15,10 @@ import re
 
 import pytest
 
-from ngspice_harness import MEASURES, require_ngspice, run_ngspice
+from ngspice_harness import require_ngspice, run_ngspice
 from tristock.circuits import TOPOLOGIES
 from tristock.circuits.board import Design, resolve
+from tristock.circuits.opamp_schmitt.netlist import MEASURES
 from tristock.circuits.rails import Rails
 from tristock.circuits.topology import TABLES, Topology
 from tristock.examples import demo_catalog_dir

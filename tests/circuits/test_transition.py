@@ -1,4 +1,4 @@
-"""The comparator's switching transition (tristock.transition) against an independent solution
+"""The comparator's switching transition (circuits.transition) against an independent solution
 of its delay differential equation with scipy.integrate.solve_ivp (method of steps: on each
 interval of length D the delayed term comes from the previous interval's dense output), and
 against limits derived by hand (common practice: linear slew, pure delay)."""

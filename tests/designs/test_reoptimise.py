@@ -1,4 +1,4 @@
-"""Re-optimisation (tristock.reoptimise): fewest changed designators, then best by the ranking.
+"""Re-optimisation (designs.reoptimise): fewest changed designators, then best by the ranking.
 
 Outside references, named beside each check:
 - plain brute force over every (U1, R1, R2, R3, C1) of small catalogs: each combination is

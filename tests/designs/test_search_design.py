@@ -1,8 +1,8 @@
 """design(): the whole search on the demo stock room, as a user or pipeline sees it.
 
 Outside references, named beside each check: the full circuit model
-(``tristock.design.Design.oscillator``, offsets and bias as catalogued) re-run here on each
-answer's parts; IEC 60063 E6 values (the ``tristock.eseries`` tables) to find the nearest
+(``tristock.circuits.board.Design.oscillator``, offsets and bias as catalogued) re-run here on each
+answer's parts; IEC 60063 E6 values (the ``tristock.stock.eseries`` tables) to find the nearest
 R1/R2 ratio independently; the catalog's own stock and price columns for the infeasible cases.
 """
 

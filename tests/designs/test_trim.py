@@ -1,10 +1,10 @@
-"""Trimmed designs (``tristock.trim``): coverage, nominal wiper, resolution, drift, ranking,
+"""Trimmed designs (``designs.trimmed``): coverage, nominal wiper, resolution, drift, ranking,
 the model's ground at the trimmed point, time limits, JSON and CLI.
 
 Outside references, named beside each check:
 
 - corner brute force written here (``corner_frequencies``): the closed-form model
-  ``tristock.circuit.predict`` evaluated at every corner of part tolerances (RV1 and R4
+  ``physics.predict`` evaluated at every corner of part tolerances (RV1 and R4
   included), each rail, the temperature ends, the op-amp slew and delay spread
   (``analysis.SLEW_SPREAD``/``DELAY_SPREAD``), offsets ±typical and bias 0..2x typical;
   the pot wired by hand (series: R3 + α·RV; divider: Thévenin of the two track halves);

@@ -1,5 +1,5 @@
 """The trimmed search against brute force over the FULL circuit model (``trim_reference``:
-every combination of a small catalog by ``circuit.predict``, the README's rules, the box
+every combination of a small catalog by ``physics.predict``, the README's rules, the box
 coverage from the analysis itself), on a fixed catalog and on random ones; the relaxations
 (pair bounds, R3 windows, probe corners) and the resolution bound checked on their own.
 """

@@ -1,5 +1,5 @@
-"""Re-optimisation of trimmed designs (``tristock.trim.reoptimise``, through
-``tristock.reoptimise.reoptimise`` and the CLI): fewest changed designators, then the trimmed
+"""Re-optimisation of trimmed designs (``designs.trimmed.reoptimise``, through
+``designs.reoptimise.reoptimise`` and the CLI): fewest changed designators, then the trimmed
 ranking, proven; a trimmer that runs short, boards beyond every part's stock, time limits.
 
 Reference: the full-model brute force of ``test_trim_exact`` (``accepted_rows`` narrowed per

@@ -3,9 +3,9 @@ search's tests; not a test module).
 
 Reference, written here and independent of the search's pairs, windows, bounds, probes and
 walk: every (U1, R1, R2, R3, C1, RV1) of a small catalog evaluated with
-``tristock.circuit.predict`` (itself checked against ngspice), the trimmer wired in series
-(R_eff = R3 + α·RV, ``circuit.timing_network``), accepted by the rules the README and
-``tristock.trim.rows`` state: the nominal board (25 °C, nominal rails, op amp as catalogued)
+``physics.predict`` (itself checked against ngspice), the trimmer wired in series
+(R_eff = R3 + α·RV, ``timing.timing_network``), accepted by the rules the README and
+``designs.trimmed.rows`` state: the nominal board (25 °C, nominal rails, op amp as catalogued)
 reaches the target inside the margins, f(m) ≥ f_target ≥ f(1 - m); at the nominal wiper α0
 (bisection on the full model here) the amplitude lies in its band, the peaks inside the
 integrator's swing, its slew covers the slope, the timing share 1 - T_ideal/T is within

@@ -1,7 +1,7 @@
 """The bounds that make the search exact under the full model (tristock.search.bounds).
 
 Outside references, named beside each check:
-- the full closed-form model ``tristock.circuit.predict`` (checked against ngspice in
+- the full closed-form model ``physics.predict`` (checked against ngspice in
   test_circuit_ngspice.py): ``loop_timing`` must equal it wherever a + b = VH + VL, and every
   bound must hold for its values at random points (brute force over the model);
 - the inequality ln(1 + x) > 2x/(2 + x) for x > 0 (a standard bound, from memory), on which

@@ -1,7 +1,7 @@
 """Both engines against brute force over the FULL circuit model, not the search's own rows.
 
 Reference, written here and independent of the search's windows, bounds and pruning: every
-(U1, R1, R2, R3, C1) of a small random catalog evaluated with ``tristock.circuit.predict``
+(U1, R1, R2, R3, C1) of a small random catalog evaluated with ``physics.predict``
 (itself checked against ngspice), accepted by the spec's rules as the README states them
 (bands; peaks inside the integrator's swing; integrator slew at least the triangle's slope;
 timing share 1 - T_ideal/T within ``max_timing_share``; C1's rating over the largest peak with

@@ -1,7 +1,7 @@
 """The search model (tristock.search.model, search.rows): rows are the full circuit model.
 
 Outside references, named beside each check:
-- the full closed-form model ``tristock.circuit.predict`` (itself checked against ngspice and
+- the full closed-form model ``physics.predict`` (itself checked against ngspice and
   an event simulation in test_circuit.py), run here on the same part values with the
   op amp as catalogued;
 - the textbook result for the ideal op amp, f = R2/(4·R1·R3·C1) and a triangle of
@@ -10,7 +10,7 @@ Outside references, named beside each check:
 - for unequal square levels, the integrator's constant slope V/(R3·C1) over the threshold
   span k·(VH + VL), which gives T = k·R3·C1·(VH + VL)·(1/VH + 1/VL) (derived here, common
   practice);
-- distinct-stock-code counts from ``tristock.design.Design`` (a plain Counter of ids).
+- distinct-stock-code counts from ``tristock.circuits.board.Design`` (a plain Counter of ids).
 """
 
 from __future__ import annotations

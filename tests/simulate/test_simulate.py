@@ -391,7 +391,7 @@ def valid_oscillators(draw: st.DrawFn) -> Oscillator:
 @settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.filter_too_much])
 @given(valid_oscillators())
 def test_simulation_agrees_with_the_closed_form(osc: Oscillator) -> None:
-    # tristock.circuit.predict with gbw = inf (the simulation has no GBW term): within its
+    # physics.predict with gbw = inf (the simulation has no GBW term): within its
     # stated domain the closed form is exact for this model (DESIGN.md), so the two must agree
     # to rounding; 1e-9 relative (voltages: 1e-9 of the swing) leaves rounding a wide margin
     # while every correction in these cases (delay, slew, Ve, Vos2) is at least ~1e-4.

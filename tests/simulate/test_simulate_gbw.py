@@ -3,7 +3,7 @@ tristock.simulate) and the simulation report's headline against the full model.
 
 References: the exact piecewise path of the same module (the ODE path must reduce to it as the
 GBW grows; it shares no code with it but the loop's parameters), the closed-form model
-(tristock.circuit, whose finite-GBW terms were derived separately and are checked against
+(tristock.circuits, whose finite-GBW terms were derived separately and are checked against
 ngspice in test_circuit_ngspice.py; the simulation's own ngspice checks are in
 test_simulate_ngspice.py), and hand-derived limits named beside each check.
 """

@@ -22,15 +22,8 @@ from dataclasses import dataclass
 
 import pytest
 
-from ngspice_harness import (
-    NgspiceError,
-    SimCase,
-    case_from,
-    netlist,
-    require_ngspice,
-    run_ngspice,
-    simulate_many,
-)
+from ngspice_harness import NgspiceError, require_ngspice, run_ngspice, simulate_many
+from tristock.circuits.opamp_schmitt.netlist import SimCase, case_from, netlist
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import OpAmpModel, Rails
 from tristock.simulate import Measured, SimulationError, simulate

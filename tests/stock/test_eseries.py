@@ -1,4 +1,4 @@
-"""Tests for tristock.eseries: the IEC 60063 tables and the look-ups over decades."""
+"""Tests for tristock.stock.eseries: the IEC 60063 tables and the look-ups over decades."""
 
 from __future__ import annotations
 

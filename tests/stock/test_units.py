@@ -1,4 +1,4 @@
-"""Tests for tristock.units: parsing and formatting component values."""
+"""Tests for tristock.stock.units: parsing and formatting component values."""
 
 from __future__ import annotations
 

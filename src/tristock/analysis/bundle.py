@@ -1,8 +1,8 @@
 """Tolerance analysis of one design: worst case, Monte Carlo yield, sensitivities, drift.
 
-Every figure comes from the vectorised closed-form model ``tristock.circuit.predict`` over the
-spread box of ``tristock.spread`` (the variables, their ranges and units are listed there);
-``tristock.worstcase`` searches that box for the extremes, this module samples it (Monte
+Every figure comes from the vectorised closed-form model ``physics.predict`` over the
+spread box of ``tristock.analysis.spread`` (the variables, their ranges and units are listed there);
+``tristock.analysis.worstcase`` searches that box for the extremes, this module samples it (Monte
 Carlo) and differentiates the model at the nominal point.
 
 The nominal operating point (``analyse().predicted``, ``sensitivities``,

@@ -15,7 +15,6 @@ from tristock.analysis.spread import (
     Board,
     check_inputs,
     metric_table,
-    predict_point,
 )
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.circuits.opamp_schmitt.physics import Oscillator
@@ -83,7 +82,7 @@ def sensitivities(design: Design, spec: Spec) -> Sensitivity:
             factors[f][2 * i] = math.exp(SENSITIVITY_STEP)
             factors[f][2 * i + 1] = math.exp(-SENSITIVITY_STEP)
     point = replace(board.point, **{f: getattr(board.point, f) * factors[f] for f in factors})
-    vals = metric_table(predict_point(point, board.v_ref, board.control), rows)
+    vals = metric_table(board.predict(point), rows)
     with np.errstate(invalid="ignore"):
         logs = np.log(vals[:, :2])
     slopes = (logs[0::2] - logs[1::2]) / (2 * SENSITIVITY_STEP)

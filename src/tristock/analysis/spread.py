@@ -1,6 +1,6 @@
 """The spread box of one design: its variables and the vectorised model over them.
 
-Every figure comes from the vectorised closed-form model ``tristock.circuit.predict``; this
+Every figure comes from the vectorised closed-form model ``physics.predict``; this
 module only decides which part values, rails, temperatures and op-amp parameters to feed it.
 ``worstcase`` searches the box for extremes, ``analysis`` samples it (Monte Carlo).
 
@@ -41,6 +41,7 @@ import numpy as np
 import numpy.typing as npt
 
 from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.opamp_schmitt.point import (
     POINT_FIELDS,
     SpreadPoint,
@@ -49,7 +50,7 @@ from tristock.circuits.opamp_schmitt.point import (
     swing_imbalance,
 )
 from tristock.circuits.rails import Rails
-from tristock.circuits.topology import Prediction
+from tristock.circuits.topology import Prediction, Topology
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
@@ -76,12 +77,17 @@ class Board:
     point: SpreadPoint
     v_ref: float | None
     control: str = "series"
+    topology: Topology = OPAMP_SCHMITT
 
     @classmethod
     def of(cls, design: Design, rails: Rails, temp_c: float) -> Board:
         """The design's values at ``temp_c`` (its topology's ``board_point``)."""
         point = design.topology.board_point(design, rails, temp_c)
-        return cls(point, rails.v_ref, design.control)
+        return cls(point, rails.v_ref, design.control, design.topology)
+
+    def predict(self, point: SpreadPoint) -> Prediction:
+        """The topology's vectorised model at ``point`` (this board's reference and wiring)."""
+        return self.topology.predict(point, self.v_ref, self.control)
 
 
 def metric_table(pred: Prediction, rows: int) -> FloatArray:
@@ -272,16 +278,18 @@ def point_at(board: Board, variables: list[SpreadVariable], z: FloatArray) -> Sp
 
 def evaluate(board: Board, variables: list[SpreadVariable], z: FloatArray) -> FloatArray:
     """Metrics (rows, 3) at the deviations ``z`` (rows, n), columns as ``METRICS``."""
-    pred = predict_point(point_at(board, variables, z), board.v_ref, board.control)
+    pred = board.predict(point_at(board, variables, z))
     return metric_table(pred, z.shape[0])
 
 
 def check_inputs(design: object, spec: object) -> None:
     """TypeError naming the argument unless ``design`` is a Design and ``spec`` a Spec."""
     if not isinstance(design, Design):
-        raise TypeError(f"design: expected a tristock.design.Design, got {type(design).__name__}")
+        raise TypeError(
+            f"design: expected a tristock.circuits.board.Design, got {type(design).__name__}"
+        )
     if not isinstance(spec, Spec):
-        raise TypeError(f"spec: expected a tristock.spec.Spec, got {type(spec).__name__}")
+        raise TypeError(f"spec: expected a tristock.spec.model.Spec, got {type(spec).__name__}")
 
 
 __all__ = [

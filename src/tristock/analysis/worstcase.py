@@ -1,6 +1,6 @@
 """Worst case over the whole spread box: extremes of frequency, amplitude and duty.
 
-The box is every combination of the spread variables of ``tristock.spread`` (tolerances,
+The box is every combination of the spread variables of ``tristock.analysis.spread`` (tolerances,
 each rail, temperature, op-amp offsets, bias, slew and delay), each a deviation z in [-1, 1].
 An extreme is sought for each of the six objectives max ±ln y, y one of frequency, triangle
 amplitude and duty, in three steps (``WorstCase.method``):
@@ -94,7 +94,7 @@ class WorstCase:
     "corners+box" or "local_search+box" (module docstring: first step, then balanced swing and
     projected Newton). ``evaluations`` counts model evaluations. ``deviations`` gives the
     same settings as numbers: the deviation z in [-1, 1] of each of ``variables``, in order
-    (``tristock.spread``; library only, not in ``to_dict``).
+    (``tristock.analysis.spread``; library only, not in ``to_dict``).
     """
 
     frequency_hz: tuple[float, float]
@@ -279,8 +279,9 @@ def worst_case(
     design: Design, spec: Spec, *, max_corner_variables: int = MAX_CORNER_VARIABLES
 ) -> WorstCase:
     """Worst-case extremes of f, triangle amplitude and duty over the spread box (tolerances,
-    rails, temperature, op-amp spread; ``tristock.spread``), by corners, balanced-swing points
-    and projected Newton (the module docstring says how, and what that proves)."""
+    rails, temperature, op-amp spread; ``tristock.analysis.spread``), by corners,
+    balanced-swing points and projected Newton (the module docstring says how, and what that
+    proves)."""
     check_inputs(design, spec)
     if isinstance(max_corner_variables, bool) or not isinstance(max_corner_variables, int):
         raise TypeError(f"max_corner_variables: expected an int, got {max_corner_variables!r}")

@@ -40,7 +40,7 @@ class Design:
     its wiper position), R4 (the divider's end stop) and the range capacitors C2..Cn.
 
     ``selected`` picks the range in use: 0 for C1, 1 for C2, ... . ``wiper`` is the pot's
-    position in [0, 1]; see ``circuit.timing_network`` for what it means under each control.
+    position in [0, 1]; see ``timing.timing_network`` for what it means under each control.
     """
 
     u1: OpAmp

@@ -1,5 +1,5 @@
 """The loop's timing with the integrator's two drives as independent inputs: the core that
-``circuit.predict`` evaluates, and that ``search.bounds`` bounds.
+``physics.predict`` evaluates, and that ``search.bounds`` bounds.
 
 Notation (volts from the reference, seconds): k = R1/R2, RC = R3·C1, span = VH + VL, a the
 drive of the falling ramp (VH - Ve in the circuit), b the drive of the rising ramp (VL + Ve).

@@ -19,7 +19,7 @@ from tristock.stock.catalog import Catalog, load_catalog
 
 T = TypeVar("T")
 
-#: Plot formats by file suffix (lower case), as ``tristock.plot`` writes them.
+#: Plot formats by file suffix (lower case), as ``tristock.report.plot`` writes them.
 PLOT_SUFFIXES = (".png", ".svg")
 
 

@@ -1,7 +1,8 @@
 """Plots: the waveforms of a time-domain simulation, and the dial law of a tuned design.
 
 Drawn with matplotlib's Agg canvas (no screen needed) and written atomically
-(:func:`tristock.atomicio.write_atomic`: temporary file in the target directory, fsync, rename).
+(:func:`tristock.stock.atomicio.write_atomic`: temporary file in the target directory, fsync,
+rename).
 The format follows the suffix: ``.png`` (raster, 150 dpi) or ``.svg``.
 """
 
@@ -125,6 +126,6 @@ def _target(path: Path) -> tuple[Path, str]:
 
 
 def _write(fig: Figure, path: Path, fmt: str) -> Path:
-    """Write ``fig`` atomically (:func:`tristock.atomicio.write_atomic`)."""
+    """Write ``fig`` atomically (:func:`tristock.stock.atomicio.write_atomic`)."""
     write_atomic(path, lambda stream: fig.savefig(stream, format=fmt, dpi=150))
     return path

@@ -1,6 +1,6 @@
 """Necessary conditions of ``guarantee = "worst_case"``: probes inside the analysis's box.
 
-The analysis (``tristock.analysis.worst_case``) bounds frequency and amplitude over a box of
+The analysis (``analysis.worstcase.worst_case``) bounds frequency and amplitude over a box of
 spread variables: every part's tolerance (and a class II band), each rail, temperature, the
 op amp's slew and delay spread, offsets and bias. Any point of that box is a lower bound of
 the maximum and an upper bound of the minimum, so if the full model at one point leaves a

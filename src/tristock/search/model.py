@@ -1,7 +1,7 @@
 """The search model: eligible parts, each op amp's loop on the spec's rails, integer scores.
 
 A row is one combination (U1, R1, R2, R3, C1). Its scores come from the full circuit model
-(``tristock.circuit.predict``) at nominal values, 25 °C and nominal rails, exactly as the
+(``physics.predict``) at nominal values, 25 °C and nominal rails, exactly as the
 analysis of an answer reports them (``search.rows.evaluate``). The engines only need, besides
 that, windows and bounds that every row obeys (``search.bounds``), so an answer they call
 optimal is optimal under the full model.

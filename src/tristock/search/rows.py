@@ -1,7 +1,7 @@
 """Rows: combinations of parts scored and checked by the full circuit model.
 
 ``evaluate`` is the search's definition of a row and of its acceptance. Every number in it
-comes from ``tristock.circuit.predict`` at nominal values, 25 °C and the nominal rails, the
+comes from ``physics.predict`` at nominal values, 25 °C and the nominal rails, the
 same prediction the analysis of an answer reports. A row is accepted when
 
 - its frequency and triangle amplitude lie in the spec's bands;

@@ -1,6 +1,6 @@
 """One op amp's loop linearised at the target: constants for the trimmed and tuned searches.
 
-At the target frequency and amplitude the full model (``tristock.circuit.predict``) reduces to
+At the target frequency and amplitude the full model (``physics.predict``) reduces to
 
     T(P) = c·(P + d),   P = k·R3·C1,   c = (VH + VL)² / (VH·VL),   k = R1/R2
     A(k) = k·(VH + VL)·(1 + ε)

@@ -1,6 +1,6 @@
 """Time-domain verification of the two-op-amp loop.
 
-This package is the independent check on the closed forms of ``tristock.circuit``: it uses none
+This package is the independent check on the closed forms of ``tristock.circuits``: it uses none
 of them. It integrates the loop's own equations from a stated start state and measures what a
 scope would show. Two engines, chosen by the op amp's gain-bandwidth:
 

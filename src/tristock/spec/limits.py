@@ -32,7 +32,7 @@ WITHOUT_MAX: Final = 1000
 
 #: Search time limit (s): finite and above zero; an hour at most, so every search ends.
 TIME_LIMIT_MAX_S: Final = 3600.0
-#: The search time limit when none is given (s); ``tristock.search.DEFAULT_TIME_LIMIT_S``.
+#: The search time limit when none is given (s); ``tristock.designs.fixed.DEFAULT_TIME_LIMIT_S``.
 DEFAULT_TIME_LIMIT_S: Final = 5.0
 
 #: TCP port of ``tristock serve`` (0: any free port) and its worker processes.

@@ -15,7 +15,7 @@ This module gathers the public names of the ``tristock.stock`` package:
   :mod:`~tristock.stock.errors`): stock writes under a cross-platform lock that wait for other
   programs to finish, validate what they change, lose nothing written meanwhile, and remember
   idempotency keys;
-- :func:`write_atomic` from :mod:`tristock.atomicio`.
+- :func:`write_atomic` from :mod:`tristock.stock.atomicio`.
 """
 
 from tristock.stock.atomicio import write_atomic

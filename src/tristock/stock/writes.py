@@ -10,7 +10,7 @@ Under the catalog's writer lock (:mod:`tristock.stock.locking`), :func:`update_s
    refuses the write), finds the part, checks the caller's expected version, and applies the
    change to what was just read, never to a cached copy;
 4. changes only the bytes of that part's stock field (CRLF, BOM, quoting and every other byte
-   stay) and writes the table atomically (:func:`tristock.atomicio.write_atomic`); just before
+   stay) and writes the table atomically (:func:`tristock.stock.atomicio.write_atomic`); just before
    the rename it checks that every table still has the stamp and hash it was read with, and
    starts over (up to ``attempts`` times) if one changed.
 

@@ -255,7 +255,7 @@ def oscillation_failure(osc: Oscillator) -> str | None:
     The integrator's output stops at the square levels +VH and -VL (the same op amp, the same
     swing). Rising (square low) the triangle must reach the upper threshold
     th_hi = VL·k + s below VH; falling, the lower threshold th_lo = -VH·k + s above -VL
-    (k = R1/R2, s the comparator offset shift; see ``circuit.predict``). Otherwise the
+    (k = R1/R2, s the comparator offset shift; see ``physics.predict``). Otherwise the
     integrator saturates first and the loop latches: with s = 0 that is k >= min(VH/VL, VL/VH).
     """
     p = osc.prediction()

@@ -24,7 +24,7 @@ channels are single-pole amplifiers with a tanh input stage that slew-limits at 
 comparator's delay is a transport delay ahead of its stage. Within that model the period and
 duty are exact but for the triangle's slope being held constant through each edge (its error
 grows with the share of the period the edges take: 4e-4 at 22 %), and every result is checked
-against ngspice macromodels of the same circuit (tests/test_circuit_ngspice.py).
+against ngspice macromodels of the same circuit (tests/circuits/test_circuit_ngspice.py).
 """
 
 from __future__ import annotations

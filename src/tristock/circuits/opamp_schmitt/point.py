@@ -49,7 +49,7 @@ POINT_FIELDS = tuple(SpreadPoint.__dataclass_fields__)
 
 
 def square_levels_of(point: SpreadPoint, v_ref: float | None) -> tuple[FloatArray, FloatArray]:
-    """(VH, VL), vectorised ``circuit.square_levels``: VH = V+ - swing_pos - Vref,
+    """(VH, VL), vectorised ``rails.square_levels``: VH = V+ - swing_pos - Vref,
     VL = Vref - (V- + swing_neg); Vref is the fixed reference, else 0 V for split rails and
     (V+ + V-)/2 for a single supply (V- = 0)."""
     v_pos = np.asarray(point.v_pos, dtype=float)
@@ -88,7 +88,7 @@ def predict_point(point: SpreadPoint, v_ref: float | None, control: str = "serie
 def swing_imbalance(point: SpreadPoint, v_ref: float | None, control: str = "series") -> FloatArray:
     """(VH - Ve) - (VL + Ve) in volts: the difference of the two integrator drives, zero where
     the ramps up and down are equally steep. Ve = (Vos1 + Ib1·R_eff)/β is the integrator's
-    error voltage (``circuit.predict``). Affine in each rail while the reference is fixed
+    error voltage (``physics.predict``). Affine in each rail while the reference is fixed
     or 0 V; independent of V+ for a mid-rail single supply."""
     vh, vl = square_levels_of(point, v_ref)
     r_eff, beta = timing_network(point.r3, point.rv, point.alpha, control, point.r4)

@@ -1,7 +1,7 @@
 """Trimmed designs: a trimmer RV1 in series with R3 brings every board to the target.
 
 With the wiper at α (0 = none of RV1 added) the integrator's resistance is
-R_eff = R3 + α·RV (``circuit.timing_network``, series). A trimmed design is accepted when
+R_eff = R3 + α·RV (``timing.timing_network``, series). A trimmed design is accepted when
 every board, at every point of the analysis's spread box (tolerances, RV1's included; each
 rail; temperature; op-amp offsets, bias, slew and delay), reaches the target with the wiper
 inside [m, 1 - m] (m = ``trim.margin_pct``), when the nominal board's trimmed operating point
@@ -17,7 +17,7 @@ Ranking, for every ``ranking.by``: finest trim resolution |d ln f/dα| at the no
 after trimming (the change of f over the temperature range with the wiper left at α0), then
 cost, then the stock codes of U1, R1, R2, R3, C1 and RV1.
 
-Exact under the full model (``tristock.circuit.predict``): every row scored is evaluated with
+Exact under the full model (``physics.predict``): every row scored is evaluated with
 it; a cell (U1, R1, R2, C1, RV1) or an R3 is left out only by a relaxation (bounds of the full
 model from ``search.bounds``, or the full model at corners of the spread box,
 ``trim.probes``), and cells are opened in order of a lower bound of the resolution valid for

@@ -49,8 +49,8 @@ def design_trimmed(
     spec: Spec, catalog: Catalog, *, time_limit_s: float, samples: int = 4000, seed: int = 0
 ) -> DesignResult:
     """The ``spec.ranking.top`` best trimmed designs, optimal under the full model (see the
-    ``tristock.trim`` docstring). The time limit bounds the search and the coverage checks;
-    the analysis of each answer reported comes on top."""
+    ``tristock.designs.trimmed`` docstring). The time limit bounds the search and the coverage
+    checks; the analysis of each answer reported comes on top."""
     assert spec.trim is not None
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s

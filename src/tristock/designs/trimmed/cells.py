@@ -18,7 +18,7 @@ of R3. A cell whose window holds no eligible R3, or whose cheapest row is over
 (``Entries``: each condition taken with the trimmers' most favourable factors).
 
 **Resolution bound.** The resolution of a row is RV·(dT/dR_eff)/T at α0, where T = T_t, and
-dT/dR_eff = k·C1·∂T/∂P + Ib1·∂T/∂Ve. From the period of ``tristock.looptiming``,
+dT/dR_eff = k·C1·∂T/∂P + Ib1·∂T/∂Ve. From the period of ``tristock.circuits.looptiming``,
 T = span·(span·(P + k/ωt)/(a·b) + d_r/a + d_f/b), d = td + G/λ + τi (``search.bounds``):
 
 - ∂T/∂P ≥ span²/(a·b): the delays d_r, d_f only grow with P (the integrator's lag τi rises,

@@ -1,6 +1,6 @@
 """Re-optimise a trimmed design when stock changes: the fewest changed designators.
 
-The same proof as for fixed designs (``tristock.reoptimise``), over the six designators
+The same proof as for fixed designs (``tristock.designs.reoptimise``), over the six designators
 U1, R1, R2, R3, C1 and RV1: parts named unavailable, parts no longer in the catalog and parts
 whose stock cannot cover the boards in the positions they fill must change. For
 n = 0, 1, ..., 6 every set S of n designators that holds those is searched exactly by the

@@ -1,7 +1,7 @@
 """Rows (U1, R1, R2, R3, C1, RV1) of the trimmed search, evaluated with the full model.
 
-Every number comes from ``tristock.circuit.predict`` through ``search.rows.RowPrediction``,
-with the trimmer wired as ``circuit.timing_network`` has it in series with R3:
+Every number comes from ``physics.predict`` through ``search.rows.RowPrediction``,
+with the trimmer wired as ``timing.timing_network`` has it in series with R3:
 R_eff = R3 + α·RV (α the wiper, 0 = none of RV1 added). The nominal board is
 ``Design.oscillator`` at 25 °C and nominal rails, the op amp as catalogued. A row is a
 candidate (the final coverage check, ``trim.checks.coverage``, then decides) when:

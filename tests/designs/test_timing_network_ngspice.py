@@ -9,7 +9,7 @@ node to the end stop R4 at the reference, its wiper driving R3 (a zero-length ha
 source). The rest of the oscillator comes from tests/ngspice_harness.py: high-gain VCVS
 integrator, slew-and-delay comparator with the catalogued slew rate, delay, offsets and bias.
 
-The model compared is ``Design.oscillator`` (``circuit.timing_network``: R3 -> R_eff,
+The model compared is ``Design.oscillator`` (``timing.timing_network``: R3 -> R_eff,
 C1 -> C1/β) with the comparator's finite-GBW delay left out (the harness's slew comparator has
 none). The step is 10 ns, or a 40,000th of the period for slower runs. Measured model-vs-ngspice
 frequency errors (``pytest -s`` prints them): tuned bottom (92 Hz) +4.8e-5, tuned top (8.6 kHz)
@@ -33,8 +33,9 @@ from test_tuning import design_of as tuned_design
 from test_tuning import example_result as tuned_result
 from test_tuning import example_spec as tuned_spec
 
-from ngspice_harness import MEASURES, NgspiceError, SimCase, netlist, require_ngspice, run_ngspice
+from ngspice_harness import NgspiceError, require_ngspice, run_ngspice
 from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.opamp_schmitt.netlist import MEASURES, SimCase, netlist
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.spec.model import Spec
