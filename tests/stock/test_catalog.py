@@ -22,7 +22,7 @@ from tristock.stock.catalog import (
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 REPO = Path(__file__).resolve().parents[2]
-FIXTURES = Path(__file__).resolve().parents[2] / "fixtures"
+FIXTURES = Path(__file__).resolve().parents[1] / "fixtures"
 SMALL = FIXTURES / "small_catalog"
 
 RESISTOR_HEADER = "id,value_ohm,tolerance_pct,tempco_ppm,series,power_w,package,unit_cost,stock"

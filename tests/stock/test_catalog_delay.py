@@ -12,7 +12,7 @@ from tristock import cli
 from tristock.stock.catalog import CatalogError, load_catalog, read_table
 from tristock.stock.parts import DELAY_MEANING, OpAmp, delay_from_delay_to_mid
 
-FIXTURES = Path(__file__).resolve().parents[2] / "fixtures"
+FIXTURES = Path(__file__).resolve().parents[1] / "fixtures"
 COMMON = "id,channels,supply_min_v,supply_max_v,swing_pos_v,swing_neg_v,slew_v_per_us,gbw_hz"
 TAIL = "offset_v,bias_a,output_a,unit_cost,stock"
 #: 36 V span less 1.5 V headroom each side: a 33 V step; 13 V/µs

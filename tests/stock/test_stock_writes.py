@@ -46,7 +46,7 @@ from tristock.stock.catalog import (
     update_stock,
 )
 
-SMALL = Path(__file__).resolve().parents[2] / "fixtures" / "small_catalog"
+SMALL = Path(__file__).resolve().parents[1] / "fixtures" / "small_catalog"
 #: Short waits for tests that make other programs' edits on purpose.
 FAST = WritePolicy(quiet_s=0.3, max_wait_s=3.0)
 #: A quiet period no test waits out: a write under it succeeds only without waiting.

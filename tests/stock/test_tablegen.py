@@ -19,7 +19,7 @@ from tristock.stock.tablegen import (
     write_table,
 )
 
-SMALL = Path(__file__).resolve().parents[2] / "fixtures" / "small_catalog"
+SMALL = Path(__file__).resolve().parents[1] / "fixtures" / "small_catalog"
 RESISTOR_LETTERS = {0: "R", 3: "K", 6: "M", 9: "G", 12: "T"}
 CAPACITOR_LETTERS = {-15: "F", -12: "P", -9: "N", -6: "U", -3: "M"}
 
