@@ -72,9 +72,10 @@ class OpAmpSchmitt(Topology):
     #: (tests/circuits/test_topology_contract.py): frequency and amplitude, and duty.
     accuracy = 2e-3
     duty_accuracy = 2e-3
-    #: Against the gm-stage macromodels of ``netlist`` (the bounds of
-    #: tests/circuits/test_circuit_ngspice.py's finite-GBW case).
-    spice_accuracy = 1e-2
+    #: Against the gm-stage macromodels of ``netlist``: the 0.3 % the model is held to against
+    #: ngspice (tests/circuits/test_circuit_ngspice.py); the demo board measures 8e-6 in
+    #: frequency and 2.5e-5 in amplitude.
+    spice_accuracy = 3e-3
     #: Rank 1 of the bundled demo example (2.5 kHz, 6 Vpp on ±12 V).
     demo_board = MappingProxyType(
         {"U1": "UA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
