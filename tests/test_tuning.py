@@ -31,7 +31,7 @@ import numpy as np
 import pytest
 
 from tristock import cli
-from tristock.analysis import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
+from tristock.spread import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.catalog import Catalog, load_catalog
 from tristock.circuit import Rails
 from tristock.design import Control, Design, rails_from_supply

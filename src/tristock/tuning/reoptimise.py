@@ -45,7 +45,7 @@ from tristock.tuning.coverage import proxy_spec_at
 from tristock.tuning.model import MAX_RANGES, TunedModel, build_tuned_model
 from tristock.tuning.pins import masks, part_index, tuned_shortfall
 from tristock.tuning.report import design_from, reasons, tuned_candidate
-from tristock.tuning.search import Found, Lister, Walk
+from tristock.tuning.search import Found, Lister, Walk, certified
 from tristock.tuning.verdict import Verdicts
 
 #: After this many changes without an answer, check once that any design meets the spec.
@@ -220,6 +220,7 @@ def _fewest_changes(
             ok, detail = verdicts(f)
             if ok:
                 accepted.append((f, detail))
+                walk.proven &= certified(f)
                 if len(accepted) >= spec.ranking.top:
                     break
             else:

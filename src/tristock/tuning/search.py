@@ -82,6 +82,13 @@ class Walk:
     candidates: int = 0
 
 
+def certified(f: Found) -> bool:
+    """Whether every range of the candidate had its dial decided at every wiper position (a
+    board whose comparator edge is not claimed is decided at grid points only, and an
+    answer with such a range is not proven)."""
+    return bool(all(f.data.certified[f.index, j] for j in f.chain))
+
+
 def ids_of(model: TunedModel, row: Row, chain: tuple[int, ...]) -> tuple[str, ...]:
     u, i1, i2, i3, i4, v = row
     res = model.resistors.parts
@@ -261,6 +268,7 @@ def walk(model: TunedModel, top: int, deadline: float, decide) -> Walk:
             ok, detail = decide(f)
             if ok:
                 out.accepted.append((f, detail))
+                out.proven &= certified(f)
                 if len(out.accepted) >= top:
                     out.ranges = n
                     return out
