@@ -2,5 +2,5 @@
 
 The routers only translate requests into library calls (``tristock.search.design``,
 ``tristock.report``, ``tristock.reoptimise``, ``tristock.catalog``) and answer with the same
-models and dicts as the CLI's ``--json``. Build an app with :func:`api.app.create_app`.
+models and dicts as the CLI's ``--json``. Build an app with :func:`tristock.api.app.create_app`.
 """

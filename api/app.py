@@ -1,11 +1,11 @@
 """The FastAPI app: ``create_app(settings)``, the factory ``app_from_env`` that uvicorn calls
-once per worker (``tristock serve``), and ``python -m api.app --write-openapi`` to refresh the
-committed schema. Importing this module builds no app and configures no logging.
+once per worker (``tristock serve``), and ``python -m tristock.api.app --write-openapi`` to
+refresh the committed schema. Importing this module builds no app and configures no logging.
 
 Middleware, outermost first: catch-all (a generic 500 problem, traceback in the log only),
 the body-size limit (413), then the compute gate (503 at once when the compute queue is
 full). Compute endpoints are ``async`` and run their work in
-compute processes (``ComputeSlots``, ``api.compute``), so the event loop and FastAPI's
+compute processes (``ComputeSlots``, ``tristock.api.compute``), so the event loop and FastAPI's
 threadpool (catalog reads, ``/health``) never wait for compute.
 """
 
@@ -24,19 +24,20 @@ from typing import Any
 from fastapi import FastAPI
 from fastapi.routing import APIRoute
 
-from api import errors, openapi
-from api.cache import AnswerCache
-from api.errors import CatchAll
-from api.limits import BodyLimit, ComputeGate, ComputeSlots
-from api.routers import analysis, catalog, design, health, problems
-from api.settings import Settings
-from api.store import CatalogStore
 from tristock import __version__
+
+from . import errors, openapi
+from .cache import AnswerCache
+from .errors import CatchAll
+from .limits import BodyLimit, ComputeGate, ComputeSlots
+from .routers import analysis, catalog, design, health, problems
+from .settings import Settings
+from .store import CatalogStore
 
 log = logging.getLogger("tristock.api")
 
 OPENAPI_PATH = Path(__file__).with_name("openapi.json")
-REGENERATE = "python -m api.app --write-openapi"
+REGENERATE = "python -m tristock.api.app --write-openapi"
 #: The endpoints whose work runs in a compute slot.
 COMPUTE_PATHS = frozenset({"/v1/design", "/v1/reoptimise", "/v1/analyse", "/v1/simulate"})
 
@@ -52,7 +53,7 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
 
     ``supervised``: the app runs in a worker process of ``tristock serve``: it starts its
     compute processes at start-up and stops serving when the worker's supervisor dies (see
-    ``api.connections.watch_supervisor``)."""
+    ``tristock.api.connections.watch_supervisor``)."""
 
     slots = ComputeSlots(
         settings.max_searches, settings.search_wait_s, settings.max_queue, settings.compute_nice
@@ -61,7 +62,7 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     @asynccontextmanager
     async def lifespan(_: FastAPI) -> AsyncIterator[None]:
         if supervised:
-            from api.connections import watch_supervisor
+            from .connections import watch_supervisor
 
             watch_supervisor(settings.shutdown_grace_s)
             slots.pool.warm()  # compute processes ready before the first request
@@ -114,7 +115,7 @@ def render_openapi(doc: dict[str, Any]) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m api.app")
+    parser = argparse.ArgumentParser(prog="python -m tristock.api.app")
     parser.add_argument("--write-openapi", action="store_true", help=f"rewrite {OPENAPI_PATH.name}")
     args = parser.parse_args(argv)
     text = render_openapi(openapi_document())

@@ -37,7 +37,7 @@ T = TypeVar("T")
 log = logging.getLogger("tristock.api")
 
 #: Imported once by the fork server, so children start with the library loaded.
-PRELOAD = ["api.routers.design", "api.routers.analysis"]
+PRELOAD = ["tristock.api.routers.design", "tristock.api.routers.analysis"]
 #: Catalogs a child keeps (a reload makes a new one; the old is dropped after this many).
 KEPT_CATALOGS = 2
 

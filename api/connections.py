@@ -27,9 +27,9 @@ from typing import Any
 import h11
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
-from api.errors import PROBLEM_JSON, problem_body
-from api.jsonout import to_json_bytes
-from api.settings import Settings
+from .errors import PROBLEM_JSON, problem_body
+from .jsonout import to_json_bytes
+from .settings import Settings
 
 log = logging.getLogger("tristock.api")
 

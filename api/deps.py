@@ -13,11 +13,12 @@ from typing import Annotated
 from fastapi import Depends, HTTPException, Request
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 
-from api.cache import AnswerCache
-from api.limits import ComputeSlots
-from api.settings import Settings
-from api.store import CatalogStore
 from tristock.catalog import Catalog
+
+from .cache import AnswerCache
+from .limits import ComputeSlots
+from .settings import Settings
+from .store import CatalogStore
 
 _bearer = HTTPBearer(auto_error=False, description="TRISTOCK_TOKEN, when the server has one")
 

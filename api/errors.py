@@ -32,9 +32,10 @@ from starlette.responses import Response
 from starlette.routing import compile_path
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from api.jsonout import to_json_bytes
-from api.store import CatalogUnavailable
 from tristock.spec import SpecError
+
+from .jsonout import to_json_bytes
+from .store import CatalogUnavailable
 
 log = logging.getLogger("tristock.api")
 

@@ -4,7 +4,7 @@ Bodies are read in full before the app sees them (at most ``max_bytes`` + one ch
 so a body without Content-Length is bounded too.
 
 Compute (design, reoptimise, analyse, simulate) runs in processes of its own
-(``api.compute``), at most ``slots`` at once per worker; a request waiting for a slot holds
+(``tristock.api.compute``), at most ``slots`` at once per worker; a request waiting for a slot holds
 no thread, so ``/health``, catalog reads and the FastAPI threadpool never queue behind it.
 """
 
@@ -18,9 +18,10 @@ import anyio
 from anyio.lowlevel import RunVar
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from api.compute import Parcel, ProcessPool
-from api.errors import ServiceProblem, problem_response
 from tristock.catalog import Catalog
+
+from .compute import Parcel, ProcessPool
+from .errors import ServiceProblem, problem_response
 
 T = TypeVar("T")
 
@@ -166,7 +167,7 @@ class ComputeSlots:
             return state
 
     def parcel(self, catalog: Catalog) -> Parcel:
-        """``catalog`` ready to send to a compute process (see ``api.compute.Parcel``)."""
+        """``catalog`` ready to send to a compute process (see ``tristock.api.compute.Parcel``)."""
         return self.pool.parcel(catalog)
 
     def full(self) -> bool:

@@ -11,7 +11,7 @@ from typing import Any
 
 from fastapi import FastAPI
 
-from api.errors import PROBLEM_JSON
+from .errors import PROBLEM_JSON
 
 _REF = "#/components/schemas/"
 _PROBLEM_SCHEMAS = ("Problem", "ValidationProblem")

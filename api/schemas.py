@@ -2,7 +2,7 @@
 not a number) and the small response shapes of the API: problem details and health.
 
 Results themselves are the library's: ``tristock.results.DesignResult``, the dicts of
-``tristock.report`` (described by ``api.reports``); part items are the ``tristock.parts``
+``tristock.report`` (described by ``tristock.api.reports``); part items are the ``tristock.parts``
 dataclasses, field for field the columns of the tables.
 """
 
@@ -12,9 +12,10 @@ from typing import Any, Literal, TypeAlias
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from api.settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.spec import RankBy, Spec
+
+from .settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 
 Kind = Literal["resistors", "capacitors", "opamps", "pots"]
 Engine = Literal["cpsat", "enumerate"]

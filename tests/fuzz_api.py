@@ -76,8 +76,8 @@ class FuzzReport:
 def fuzz_app(catalog: Path) -> schemathesis.BaseSchema:
     """The API on a private copy of the small test catalog (writes change only the copy), with
     search time cut to 0.5 s and analyses to 2,000 samples so that valid requests are quick."""
-    from api.app import create_app
-    from api.settings import Settings
+    from tristock.api.app import create_app
+    from tristock.api.settings import Settings
 
     shutil.copytree(SMALL, catalog)
     app = create_app(

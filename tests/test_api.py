@@ -17,8 +17,8 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from api.app import create_app
-from api.settings import Settings
+from tristock.api.app import create_app
+from tristock.api.settings import Settings
 
 from tristock import cli
 from tristock.catalog import COLUMNS, load_catalog, set_stock

@@ -20,12 +20,12 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from api.app import COMPUTE_PATHS, REGENERATE, create_app, openapi_document, render_openapi
-from api.errors import PROBLEM_JSON, PROBLEM_TYPES
-from api.jsonout import StrictJSON
-from api.reports import AnalysisReport, SimulationReport
-from api.routers.problems import ProblemName
-from api.settings import Settings
+from tristock.api.app import COMPUTE_PATHS, REGENERATE, create_app, openapi_document, render_openapi
+from tristock.api.errors import PROBLEM_JSON, PROBLEM_TYPES
+from tristock.api.jsonout import StrictJSON
+from tristock.api.reports import AnalysisReport, SimulationReport
+from tristock.api.routers.problems import ProblemName
+from tristock.api.settings import Settings
 
 from test_api import catalog_copy, client, demo_spec, no_service_environment, problem, problems
 from tristock import cli

@@ -24,7 +24,7 @@ from typing import Any
 import h11
 import httpx
 import pytest
-from api.connections import DeadlineH11Protocol
+from tristock.api.connections import DeadlineH11Protocol
 from uvicorn.config import Config
 from uvicorn.server import ServerState
 

@@ -1,6 +1,6 @@
 """Service settings from ``TRISTOCK_*`` variables (pydantic-settings): every field settable,
 bad values refused in one line naming the variable, the README table in step with the code,
-and ``tristock serve`` validating them before it starts anything; importing ``api.app``
+and ``tristock serve`` validating them before it starts anything; importing ``tristock.api.app``
 builds no app and configures no logging.
 """
 
@@ -17,7 +17,7 @@ from typing import Any
 
 import annotated_types
 import pytest
-from api.settings import Settings, SettingsError, env_name, unknown_env_names
+from tristock.api.settings import Settings, SettingsError, env_name, unknown_env_names
 
 from tristock import cli, serve
 
@@ -187,8 +187,8 @@ def test_serve_passes_settings_and_logging_to_uvicorn(
     env.setenv("TRISTOCK_SHUTDOWN_GRACE_S", "7")
     env.setenv("TRISTOCK_MAX_SERCHES", "4")
     serve.serve(catalog=tmp_path, workers=2, allow_open_writes=True)
-    assert seen["app"] == "api.app:app_from_env" and seen["factory"] is True
-    assert seen["http"] == "api.connections:DeadlineH11Protocol"
+    assert seen["app"] == "tristock.api.app:app_from_env" and seen["factory"] is True
+    assert seen["http"] == "tristock.api.connections:DeadlineH11Protocol"
     assert (seen["timeout_keep_alive"], seen["timeout_graceful_shutdown"]) == (3, 7)
     assert seen["workers"] == 2
     assert "tristock" in seen["log_config"]["loggers"]
@@ -200,7 +200,7 @@ def test_serve_passes_settings_and_logging_to_uvicorn(
 
 def test_importing_the_app_builds_nothing_and_configures_no_logging() -> None:
     code = (
-        "import logging, fastapi, api.app as m;"
+        "import logging, fastapi, tristock.api.app as m;"
         "apps = [k for k, v in vars(m).items() if isinstance(v, fastapi.FastAPI)];"
         "assert apps == [], apps;"
         "assert logging.getLogger().handlers == [];"

@@ -19,8 +19,8 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from api.app import create_app
-from api.settings import Settings
+from tristock.api.app import create_app
+from tristock.api.settings import Settings
 
 from tristock import cli
 from tristock.catalog import STOCK_MAX, WritePolicy, load_catalog, part_version

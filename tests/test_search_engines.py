@@ -371,20 +371,20 @@ def test_engines_agree_on_the_demo_catalog_with_limits(extra: dict[str, object])
 
 @cache
 def cut_down_demo() -> Catalog:
-    """About 40 resistors (every 9th in 1 kΩ..1 MΩ), 17 capacitors (every 7th usable one)
-    and 3 op amps from the demo catalog: 3·42³·17 = 3.8 million combinations."""
+    """About 34 resistors (every 11th in 1 kΩ..1 MΩ), 15 capacitors (every 8th usable one)
+    and 3 op amps from the demo catalog: about a million combinations."""
     cat = demo()
-    res = tuple(r for r in cat.resistors if 1e3 <= r.value_ohm <= 1e6 and r.stock > 0)[::9]
-    caps = tuple(c for c in cat.capacitors if c.dielectric != "X7R" and c.stock > 0)[::7]
+    res = tuple(r for r in cat.resistors if 1e3 <= r.value_ohm <= 1e6 and r.stock > 0)[::11]
+    caps = tuple(c for c in cat.capacitors if c.dielectric != "X7R" and c.stock > 0)[::8]
     ops = tuple(o for o in cat.opamps if o.id in {"UA-JF2", "UA-GP2", "UA-LP2"})
     return Catalog(cat.path, res, caps, ops)
 
 
-@pytest.mark.parametrize("by", MODES)
+@pytest.mark.parametrize("by", ["balanced", "cost"])  # every mode: test_search_exact.py
 def test_engines_equal_brute_force_on_a_cut_down_demo_catalog(by: str) -> None:
-    spec = demo_spec(by, frequency={"target_hz": 2000.0, "tolerance_pct": 3.0})
+    spec = demo_spec(by, frequency={"target_hz": 2000.0, "tolerance_pct": 5.0})
     model = build_model(spec, cut_down_demo())
-    assert len(model.opamps) == 3 and len(model.resistors) >= 40
+    assert len(model.opamps) == 3 and len(model.resistors) >= 32
     expected = brute_force_chunked(model, 10)
     assert len(expected) == 10
     assert_same(

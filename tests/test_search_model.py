@@ -200,7 +200,7 @@ def test_rows_are_the_full_model(op_id: str) -> None:
     """Every accepted row's e_f and e_a are ``predict``'s own, to rounding: the search scores
     and accepts with the full model, not a linearised one."""
     model, part, spec = _one_opamp_model(op_id)
-    rows = random_rows(model, 400_000, seed=7)
+    rows = random_rows(model, 150_000, seed=7)
     assert len(rows) >= 30
     ef_full, ea_full = _full(model, part, spec, rows)
     np.testing.assert_allclose(rows.e_f, ef_full, rtol=0, atol=1e-13)
@@ -261,7 +261,7 @@ def test_ideal_symmetric_frequency_is_the_textbook_formula() -> None:
         }
     )
     model = build_model(spec, _e24_catalog(ideal_opamp()))
-    rows = random_rows(model, 300_000, seed=3)
+    rows = random_rows(model, 120_000, seed=3)
     assert len(rows) > 200
     r1, r2, r3, c1 = values(model, rows)
     textbook_f = r2 / (4 * r1 * r3 * c1)
@@ -283,7 +283,7 @@ def test_ideal_unequal_levels_follow_the_slope_argument() -> None:
     )
     model = build_model(spec, _e24_catalog(ideal_opamp(swing_pos=1.0, swing_neg=0.2)))
     assert (model.opamps[0].vh, model.opamps[0].vl) == pytest.approx((4.0, 4.8))
-    rows = random_rows(model, 300_000, seed=4)
+    rows = random_rows(model, 120_000, seed=4)
     assert len(rows) > 200
     r1, r2, r3, c1 = values(model, rows)
     k = r1 / r2

@@ -24,8 +24,8 @@ import warnings
 from pathlib import Path
 
 import pytest
-from api.app import create_app
-from api.settings import Settings
+from tristock.api.app import create_app
+from tristock.api.settings import Settings
 
 from tristock import cli
 from tristock.catalog import WritePolicy, load_catalog

@@ -25,13 +25,13 @@ from typing import Any
 
 import numpy as np
 
-from tristock.worstcase import box_extremes
 from tristock.catalog import Catalog
 from tristock.circuit import OpAmpModel, square_levels
 from tristock.design import Design, rails_from_supply
 from tristock.parts import Capacitor, OpAmp, Pot, Resistor
 from tristock.search.model import in_series
 from tristock.spec import Spec
+from tristock.worstcase import box_extremes
 
 DIAL_GRID = 9
 

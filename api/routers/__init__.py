@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from api.schemas import ErrorBody, ValidationBody
+from ..schemas import ErrorBody, ValidationBody
 
 #: Error answers every compute endpoint may give, for the OpenAPI schema.
 COMPUTE_ERRORS: dict[int | str, dict[str, Any]] = {

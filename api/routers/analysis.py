@@ -5,16 +5,17 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from api.deps import CatalogDep, SettingsDep, SlotsDep
-from api.errors import FieldProblem
-from api.jsonout import RenderedJSON, to_json_bytes
-from api.reports import AnalysisReport, SimulationReport
-from api.routers import COMPUTE_ERRORS
-from api.schemas import AnalyseRequest, SimulateRequest
 from tristock.design import Design
 from tristock.designfile import design_for
 from tristock.report import analysis_report, simulation_report
 from tristock.simulate import SimulationError
+
+from ..deps import CatalogDep, SettingsDep, SlotsDep
+from ..errors import FieldProblem
+from ..jsonout import RenderedJSON, to_json_bytes
+from ..reports import AnalysisReport, SimulationReport
+from ..schemas import AnalyseRequest, SimulateRequest
+from . import COMPUTE_ERRORS
 
 router = APIRouter(prefix="/v1", tags=["design"])
 

@@ -17,12 +17,6 @@ from typing import Annotated, Any, Final
 
 from fastapi import APIRouter, Depends, Header, HTTPException, Query, Response
 
-from api.deps import SettingsDep, StoreDep, require_writer
-from api.errors import FieldProblem
-from api.jsonout import StrictJSON, answer
-from api.schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
-from api.settings import MAX_PAGE, MAX_STOCK
-from api.store import CatalogStore
 from tristock.catalog import (
     ALTERNATIVE_COLUMNS,
     Catalog,
@@ -39,6 +33,13 @@ from tristock.catalog import (
     update_stock,
 )
 from tristock.parts import Capacitor, Part, Pot, PotKind, Resistor
+
+from ..deps import SettingsDep, StoreDep, require_writer
+from ..errors import FieldProblem
+from ..jsonout import StrictJSON, answer
+from ..schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
+from ..settings import MAX_PAGE, MAX_STOCK
+from ..store import CatalogStore
 
 router = APIRouter(prefix="/v1/catalog", tags=["catalog"])
 

@@ -8,18 +8,19 @@ from typing import Any
 
 from fastapi import APIRouter
 
-from api.compute import Parcel
-from api.deps import CacheDep, CatalogDep, SettingsDep, SlotsDep, VersionedCatalogDep
-from api.errors import FieldProblem
-from api.jsonout import RenderedJSON, to_json_bytes
-from api.routers import COMPUTE_ERRORS
-from api.schemas import DesignRequest, Engine, ReoptimiseRequest
-from api.settings import Settings
 from tristock.designfile import part_ids
 from tristock.reoptimise import reoptimise
 from tristock.results import DesignResult, ReoptimiseResult
 from tristock.search import design
 from tristock.spec import Spec
+
+from ..compute import Parcel
+from ..deps import CacheDep, CatalogDep, SettingsDep, SlotsDep, VersionedCatalogDep
+from ..errors import FieldProblem
+from ..jsonout import RenderedJSON, to_json_bytes
+from ..schemas import DesignRequest, Engine, ReoptimiseRequest
+from ..settings import Settings
+from . import COMPUTE_ERRORS
 
 router = APIRouter(prefix="/v1", tags=["design"])
 

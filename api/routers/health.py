@@ -10,12 +10,13 @@ from __future__ import annotations
 import anyio.to_thread
 from fastapi import APIRouter
 
-from api.deps import SettingsDep, SlotsDep, StoreDep
-from api.jsonout import StrictJSON, answer
-from api.schemas import Health
-from api.store import CatalogStore, CatalogUnavailable
 from tristock import __version__
 from tristock.catalog import Catalog
+
+from ..deps import SettingsDep, SlotsDep, StoreDep
+from ..jsonout import StrictJSON, answer
+from ..schemas import Health
+from ..store import CatalogStore, CatalogUnavailable
 
 router = APIRouter(tags=["service"])
 

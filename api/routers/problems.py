@@ -8,9 +8,9 @@ from typing import Literal
 from fastapi import APIRouter, HTTPException
 from pydantic import BaseModel
 
-from api.errors import PROBLEM_TYPES
-from api.jsonout import StrictJSON, answer
-from api.schemas import ErrorBody, ValidationBody
+from ..errors import PROBLEM_TYPES
+from ..jsonout import StrictJSON, answer
+from ..schemas import ErrorBody, ValidationBody
 
 router = APIRouter(tags=["service"])
 

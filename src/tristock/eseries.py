@@ -118,7 +118,8 @@ def _member(figure: int, digits: int, decade: int) -> float:
     shift = decade - digits + 1
     if shift >= 0:
         return float(figure * 10**shift)
-    return figure / 10**-shift
+    divisor: int = 10**-shift  # a positive power of ten
+    return figure / divisor
 
 
 @functools.lru_cache(maxsize=4096)

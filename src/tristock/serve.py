@@ -1,10 +1,13 @@
-"""``tristock serve``: run the HTTP API (``api.app``) with uvicorn, on loopback by default.
+"""``tristock serve``: run the HTTP API (``tristock.api.app``) with uvicorn, on loopback by
+default.
 
-This command is where the CLI hands over to the HTTP layer (``api/``): it validates the
-service settings once (``TRISTOCK_*`` variables, see ``api.settings``), configures logging,
-and starts uvicorn with the factory ``api.app:app_from_env``, which builds exactly one app in
-each worker. Connections use ``api.connections.DeadlineH11Protocol`` (a complete request
-within ``request_timeout_s``, else 408 and close).
+This command is where the CLI hands over to the HTTP layer (``tristock.api``, the repository's
+``api/`` folder): it validates the service settings once (``TRISTOCK_*`` variables, see
+``tristock.api.settings``), configures logging, and starts uvicorn with the factory
+``tristock.api.app:app_from_env``, which builds exactly one app in each worker. Connections use
+``tristock.api.connections.DeadlineH11Protocol`` (a complete request within
+``request_timeout_s``, else 408 and close). This is the only module under ``src/tristock``
+that imports ``tristock.api`` (the CLI's ``serve`` command calls it).
 """
 
 from __future__ import annotations
@@ -18,8 +21,8 @@ from typing import Any
 
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8000
-APP_FACTORY = "api.app:app_from_env"
-HTTP_PROTOCOL = "api.connections:DeadlineH11Protocol"
+APP_FACTORY = "tristock.api.app:app_from_env"
+HTTP_PROTOCOL = "tristock.api.connections:DeadlineH11Protocol"
 
 log = logging.getLogger("tristock.serve")
 
@@ -60,7 +63,8 @@ def serve(
     reach the workers through the environment. Raises ValueError (one line) on a bad value.
     """
     import uvicorn
-    from api.settings import CATALOG_ENV, Settings, unknown_env_names
+
+    from tristock.api.settings import CATALOG_ENV, Settings, unknown_env_names
 
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
         raise ValueError(f"workers: must be an integer >= 1, got {workers!r}")

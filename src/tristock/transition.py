@@ -127,7 +127,8 @@ def _delayed_curves(mus: FloatArray, delays: FloatArray) -> list[tuple[FloatArra
     tanh = np.zeros_like(phi)
 
     def f(j: int) -> FloatArray:
-        return tanh[cols, np.maximum(j - m, 0)]  # tanh(Φ_0) = 0 stands for "before D"
+        row: FloatArray = tanh[cols, np.maximum(j - m, 0)]  # tanh(Φ_0) = 0 stands for "before D"
+        return row
 
     stop = np.full(delays.size, -1)
     window = [f(-1), f(0), f(1)]
@@ -291,7 +292,8 @@ def scaled_level_time(mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayL
     (as ``scaled_mean_time``; past L = 200, v = L + u0). Within 0.02 over the same range:
     v(L) has a kink in D where v(L) = D (the feedback arrives just as L is reached), which
     the spline rounds."""
-    return _lookup(1, mu, delay, level) + np.asarray(level, dtype=float)
+    v: FloatArray = _lookup(1, mu, delay, level) + np.asarray(level, dtype=float)
+    return v
 
 
 class SwitchTimes(NamedTuple):

@@ -230,7 +230,8 @@ def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatAr
     ok = (i_lo * i_hi <= 0.0) & (i_lo != i_hi)
     root = lo[ok]
     root[np.arange(len(root)), column[ok]] = -1.0 + 2.0 * i_lo[ok] / (i_lo[ok] - i_hi[ok])
-    return np.clip(root, -1.0, 1.0)
+    clipped: npt.NDArray[np.float64] = np.clip(root, -1.0, 1.0)
+    return clipped
 
 
 def _search(

@@ -85,7 +85,7 @@ def test_option_out_of_range_is_one_line_exit_2(argv: list[str], option: str) ->
 
 def test_ranges_are_the_api_ranges() -> None:
     """The API's request limits (api/schemas.py, api/settings.py) are the same numbers."""
-    from api import settings
+    from tristock.api import settings
 
     assert limits.SAMPLES[1] == settings.MAX_SAMPLES
     assert limits.PERIODS[1] == settings.MAX_PERIODS

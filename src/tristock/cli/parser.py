@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 import sys
-from typing import Any, NoReturn
+from typing import Any, NoReturn, TypeAlias
 
 from tristock import __version__, limits
 from tristock.cli.exits import EPILOG, UsageError
@@ -17,7 +17,8 @@ from tristock.cli.options import finite, seconds, text, whole
 from tristock.cli.output import write_quietly
 from tristock.examples import EXAMPLES
 
-Subparsers = argparse._SubParsersAction  # the type argparse gives add_subparsers' result
+# The type argparse gives add_subparsers' result (generic only in the type stubs).
+Subparsers: TypeAlias = "argparse._SubParsersAction[_Parser]"
 
 RANKINGS = ("balanced", "frequency_error", "cost", "yield")
 ENGINES = ("cpsat", "enumerate")

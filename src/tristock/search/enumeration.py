@@ -99,7 +99,9 @@ def _products(model: SearchModel) -> _Products:
     return _Products(ln[order], i3[order], j[order], term[order])
 
 
-def _period_band(model: SearchModel, e_lo: NDArray[np.float64], e_hi: NDArray[np.float64]):
+def _period_band(
+    model: SearchModel, e_lo: NDArray[np.float64], e_hi: NDArray[np.float64]
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Periods (s) of the frequency errors e_lo..e_hi: T = T_target·e^(-e), a little wider."""
     t_target = 1.0 / model.spec.target.target_hz
     return t_target * np.exp(-e_hi) * (1 - _EDGE), t_target * np.exp(-e_lo) * (1 + _EDGE)

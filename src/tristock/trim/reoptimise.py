@@ -147,6 +147,7 @@ def _original(
         offset_v=float(p.offset_v),
         square_high_v=float(p.square_high_v),
         square_low_v=float(p.square_low_v),
+        timing_share=float(p.timing_share),
     )
     m = spec.trim.margin_pct
     if not m / 100 <= alpha <= 1 - m / 100:

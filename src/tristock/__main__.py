@@ -1,0 +1,7 @@
+"""``python -m tristock``: the ``tristock`` command."""
+
+import sys
+
+from tristock.cli.app import main
+
+sys.exit(main())
