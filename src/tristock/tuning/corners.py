@@ -148,7 +148,9 @@ def cap_factors(model: TunedModel, z: float) -> F64:
     )
 
 
-def _drives(vh: F64, vl: F64, vos: F64, ib: F64, r_eff: F64, beta: F64, balanced: bool):
+def _drives(
+    vh: F64, vl: F64, vos: F64, ib: F64, r_eff: F64, beta: F64, balanced: bool
+) -> tuple[F64, F64]:
     """Drives (a, b) at the offset and bias ends ``network.Corner.drives`` picks."""
     gaps, values = [], []
     for s in (-1.0, 1.0):

@@ -34,6 +34,9 @@ every μ in a grid cell [μj, μj+1]:
     upper:  g(μ) ≤ min(gj, μj+1·gj+1/μ)        (G1 at μj; G2 at μj+1)
     lower:  g(μ) ≥ max(gj+1, μj·gj/μ)          (G1 at μj+1; G2 at μj)
 
+For an overshoot's table the chain runs g(k, V) ≤ g(k_i, V) (G4) ≤ g(k_i, V') (G3, V' the grid's
+drive at or above V) and g(k, V) ≥ g(k_j, V) ≥ g(k_j, V'') likewise, so the level λ(k_i)·V/SR
+(the smallest along both chains) must be at least EDGE_LEVEL_MIN as well as every table's.
 Both envelopes are continuous, do not rise with μ and μ times them does not fall: the same
 shape as g, so every monotonicity derived from G1 and G2 holds for bounds built from them.
 Above the table's top μ (where the model clamps it) g is exact; below the grid the upper
@@ -46,6 +49,7 @@ V/(2·SR) (G0). An ideal comparator (GBW = inf) has the linear slew, g = V/(2·S
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
@@ -66,6 +70,11 @@ LN_GRID = np.append(np.arange(LN_MU_LOW, LN_MU[-1], GRID_STEP), LN_MU[-1])
 MU_GRID = np.exp(LN_GRID)
 #: Rounding allowed when a table is checked for G1 and G2 on its grid (relative).
 ROUNDING = 1e-9
+#: Slack of the envelopes (relative) for μ's cell found through a rounded logarithm: a μ
+#: within about 1e-14 of a cell's end may be placed in its neighbour.
+CELL_ROUNDING = 1e-12
+#: Answers of ``EdgeTables.ends`` kept (arrays are never changed in place here).
+RECENT = 8
 #: The k grid of the tables: ln k from LN_K_LOW in steps of K_STEP, K_CELLS points (k up to
 #: about 1.3, past any k = R1/R2 a design can use).
 LN_K_LOW = math.log(1e-4)
@@ -110,6 +119,7 @@ class EdgeTables:
         self._rows = np.zeros(0, dtype=np.int64)  # the table of each key
         self._values = np.zeros((0, len(MU_GRID)))
         self._ok = np.zeros(0, dtype=bool)
+        self._recent: list[tuple[tuple[object, ...], Ends]] = []
 
     @property
     def wt(self) -> F64:
@@ -166,82 +176,106 @@ class EdgeTables:
         self._keys = all_keys[order]
         self._rows = np.concatenate([self._rows, rows])[order]
 
-    def _ends(
-        self, u: I64, k_a: F64, k_b: F64, drive: F64 | None
-    ) -> tuple[I64, I64, NDArray[np.bool_]]:
-        """Rows of the upper table (k at or below k_a, drive at or above) and the lower one
-        (k at or above k_b, drive at or below), and whether the envelopes are claimed."""
+    def ends(self, u: I64, k_a: F64, k_b: F64, drive: F64 | None = None) -> Ends:
+        """The tables of the upper envelope (k at or below k_a, drive at or above) and of the
+        lower one (k at or above k_b, drive at or below) for rows with k in [k_a, k_b], and
+        whether the envelopes are claimed (module docstring). The last few answers are kept
+        for the same argument objects (the bounds ask again for the same rows at other P)."""
+        for known, found in self._recent:
+            if all(x is y for x, y in zip(known, (u, k_a, k_b, drive), strict=True)):
+                return found
+        found = self._ends(u, k_a, k_b, drive)
+        self._recent = [((u, k_a, k_b, drive), found), *self._recent[: RECENT - 1]]
+        return found
+
+    def _ends(self, u: I64, k_a: F64, k_b: F64, drive: F64 | None) -> Ends:
+        u = np.asarray(u, dtype=np.int64)
         if drive is None:
             v_up = v_down = np.full(np.shape(u), V_CELLS, dtype=np.int64)
         else:
             v_up, v_down = v_cell(drive, up=True), v_cell(drive, up=False)
-        high = self._tables(u, k_cell(k_a, up=False), v_up)
+        k_low = k_cell(k_a, up=False)
+        high = self._tables(u, k_low, v_up)
         low = self._tables(u, k_cell(k_b, up=True), v_down)
         ok = self._ok[high] & self._ok[low] & ~self.ideal[u]
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             ok &= (np.log(k_a) >= LN_K_LOW) & (np.log(k_b) <= LN_K_LOW + (K_CELLS - 1) * K_STEP)
             if drive is not None:
                 ln_v = np.log(drive)
                 ok &= (ln_v >= LN_V_LOW) & (ln_v <= LN_V_LOW + (V_CELLS - 1) * V_STEP)
-        return high, low, np.asarray(ok)
+                # G4 and G3 are used from the row's own drive at the smallest rate, which
+                # may lie just below the tables' levels: it must be claimed too.
+                lam = edge_rate(np.exp(LN_K_LOW + k_low * K_STEP), self.gbw[u])
+                ok &= lam * drive / self.slew[u] >= EDGE_LEVEL_MIN
+        return Ends(high, low, np.asarray(ok), u, self.linear(u, drive), self.ideal[u])
 
     def claimed(self, u: I64, k_a: F64, k_b: F64, drive: F64 | None = None) -> B:
         """Whether the envelopes for k in [k_a, k_b] rest on G1-G4 (module docstring)."""
-        return self._ends(np.asarray(u, dtype=np.int64), k_a, k_b, drive)[2]
+        return self.ends(u, k_a, k_b, drive).ok
+
+    def _cell(self, table: I64, mu: F64) -> tuple[F64, F64, I64, F64]:
+        """g at both ends of μ's grid cell in ``table`` (s), the cell, and μ clamped to the
+        grid (where the model clamps it too at the top)."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = (np.log(mu) - LN_MU_LOW) / GRID_STEP
+        j = np.fmin(np.fmax(np.floor(x), 0.0), len(MU_GRID) - 2).astype(np.intp)
+        flat = table * len(MU_GRID) + j
+        values = self._values.reshape(-1)
+        mu_c = np.fmin(np.fmax(mu, MU_GRID[0]), MU_GRID[-1])
+        return values[flat], values[flat + 1], j, mu_c
+
+    def hi_at(self, e: Ends, mu: F64) -> F64:
+        """Upper envelope of the edge time g (s) at μ for the rows of ``e``."""
+        mu = np.asarray(mu, dtype=float)
+        g0, g1, j, mu_c = self._cell(e.high, mu)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            val = np.minimum(g0, MU_GRID[j + 1] * g1 / mu_c) * (1 + CELL_ROUNDING)
+        val = np.where(~(mu >= MU_GRID[0]) | ~e.ok, np.inf, val)  # NaN μ too
+        return np.asarray(np.where(e.ideal, e.linear, val))
+
+    def lo_at(self, e: Ends, mu: F64) -> F64:
+        """Lower envelope of the edge time g (s) at μ for the rows of ``e``."""
+        mu = np.asarray(mu, dtype=float)
+        g0, g1, j, mu_c = self._cell(e.low, mu)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            val = np.maximum(g1, MU_GRID[j] * g0 / mu_c) * (1 - CELL_ROUNDING)
+        val = np.where(np.isnan(mu) | ~e.ok, 0.0, val)
+        return np.asarray(np.maximum(val, e.linear))  # (G0)
 
     def hi(self, u: I64, k_a: F64, k_b: F64, mu: F64, drive: F64 | None = None) -> F64:
         """Upper envelope of the edge time g (s) at μ, for every k in [k_a, k_b]."""
-        u = np.asarray(u, dtype=np.int64)
-        mu = np.asarray(mu, dtype=float)
-        t, _, ok = self._ends(u, k_a, k_b, drive)
-        j = _mu_cell(mu)
-        g0, g1 = self._values[t, j], self._values[t, j + 1]
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            val = np.minimum(g0, MU_GRID[j + 1] * g1 / mu)
-        val = np.where(mu >= MU_GRID[-1], self._values[t, -1], val)
-        val = np.where(mu < MU_GRID[0], np.inf, val)
-        val = np.where(np.isnan(mu) | ~ok, np.inf, val)
-        return np.asarray(np.where(self.ideal[u], self.linear(u, drive), val))
+        return self.hi_at(self.ends(u, k_a, k_b, drive), mu)
 
     def lo(self, u: I64, k_a: F64, k_b: F64, mu: F64, drive: F64 | None = None) -> F64:
         """Lower envelope of the edge time g (s) at μ, for every k in [k_a, k_b]."""
-        u = np.asarray(u, dtype=np.int64)
-        mu = np.asarray(mu, dtype=float)
-        _, t, ok = self._ends(u, k_a, k_b, drive)
-        j = _mu_cell(mu)
-        g0, g1 = self._values[t, j], self._values[t, j + 1]
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            val = np.maximum(g1, MU_GRID[j] * g0 / mu)
-        val = np.where(mu >= MU_GRID[-1], self._values[t, -1], val)
-        val = np.where(mu < MU_GRID[0], self._values[t, 0], val)
-        val = np.where(np.isnan(mu) | ~ok, 0.0, val)
-        return np.asarray(np.maximum(val, self.linear(u, drive)))  # (G0)
+        return self.lo_at(self.ends(u, k_a, k_b, drive), mu)
+
+
+class Ends(NamedTuple):
+    """What ``EdgeTables.ends`` finds for a set of rows: the upper and the lower envelope's
+    tables, whether they are claimed, the rows' op amps, their pure-slew time V/(2·SR) (s)
+    and whether their comparator is ideal."""
+
+    high: I64
+    low: I64
+    ok: B
+    u: I64
+    linear: F64
+    ideal: B
 
 
 def v_cell(drive: F64, *, up: bool) -> I64:
     """Index of the drive grid's point at or below the drive (``up``: at or above)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         x = (np.log(np.asarray(drive, dtype=float)) - LN_V_LOW) / V_STEP
-    x = np.nan_to_num(x, nan=0.0, posinf=V_CELLS - 1, neginf=0.0)
     i = np.ceil(x + 1e-9) if up else np.floor(x - 1e-9)
-    return np.clip(i, 0, V_CELLS - 1).astype(np.int64)
+    return np.asarray(np.fmin(np.fmax(i, 0), V_CELLS - 1), dtype=np.int64)  # NaN: 0
 
 
 def k_cell(k: F64, *, up: bool) -> I64:
     """Index of the k grid's point at or below k (``up``: at or above), clipped to the grid."""
     with np.errstate(divide="ignore", invalid="ignore"):
         x = (np.log(np.asarray(k, dtype=float)) - LN_K_LOW) / K_STEP
-    x = np.nan_to_num(x, nan=0.0, posinf=K_CELLS - 1, neginf=0.0)
     # rounding of the logarithm is taken outwards (a farther grid point is still valid, G4)
     i = np.ceil(x + 1e-9) if up else np.floor(x - 1e-9)
-    return np.clip(i, 0, K_CELLS - 1).astype(np.int64)
-
-
-def _mu_cell(mu: F64) -> I64:
-    """j with μ in [μj, μj+1] (clipped to the grid)."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        x = (np.log(mu) - LN_MU_LOW) / GRID_STEP
-    top = len(MU_GRID) - 2
-    return np.clip(np.nan_to_num(np.floor(x), nan=0.0, posinf=top, neginf=0), 0, top).astype(
-        np.int64
-    )
+    return np.asarray(np.fmin(np.fmax(i, 0), K_CELLS - 1), dtype=np.int64)  # NaN: 0

@@ -106,9 +106,10 @@ def slow_part(c: CornerRows, p: F64, k_a: F64, k_b: F64, *, upper: bool) -> F64:
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         q = p + k_q / wt
         tau = np.where(p > 0, p / (wt * p + k_t), 0.0)
-        edge = c.tables.hi if upper else c.tables.lo
-        g_r = edge(c.u, k_a, k_b, b / (sr * q))
-        g_f = edge(c.u, k_a, k_b, a / (sr * q))
+        ends = c.tables.ends(c.u, k_a, k_b)
+        edge = c.tables.hi_at if upper else c.tables.lo_at
+        g_r = edge(ends, b / (sr * q))
+        g_f = edge(ends, a / (sr * q))
         const = span**2 * k_q / (wt * a * b)
         out = const + span * ((td + g_r + tau) / a + (td + g_f + tau) / b)
     return np.asarray(out)
@@ -169,9 +170,10 @@ def overshoot_floor(c: CornerRows, k_a: F64, k_b: F64, p_max: F64) -> tuple[F64,
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for drive in (b, a):
             mu = drive / (sr * (p_max + k_b / wt))
-            tight = k_a * sr * mu * (td + c.tables.lo(c.u, k_a, k_b, mu, drive))
+            ends = c.tables.ends(c.u, k_a, k_b, drive)
+            tight = k_a * sr * mu * (td + c.tables.lo_at(ends, mu))
             loose = drive * (td + drive / (2.0 * sr)) * k_a / (p_max + k_a / wt)
-            claimed = c.tables.claimed(c.u, k_a, k_b, drive) | c.tables.ideal[c.u]
+            claimed = ends.ok | ends.ideal
             out.append(np.asarray(np.where(claimed, np.fmax(tight, loose), loose)))
     return out[0], out[1]
 
@@ -191,8 +193,9 @@ def overshoot_ceiling(c: CornerRows, k_a: F64, k_b: F64, p_min: F64) -> tuple[F6
         lag = lag_peak(k_b / (wt * p_min))
         for drive in (b, a):
             mu = drive / (sr * q)
-            edge = td + c.tables.hi(c.u, k_a, k_b, mu, drive)
-            claimed = c.tables.claimed(c.u, k_a, k_b, drive) | c.tables.ideal[c.u]
+            ends = c.tables.ends(c.u, k_a, k_b, drive)
+            edge = td + c.tables.hi_at(ends, mu)
+            claimed = ends.ok | ends.ideal
             value = k_b * (drive / q) * edge + drive * lag
             out.append(np.asarray(np.where(claimed, value, np.inf)))
     return out[0], out[1]

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import heapq
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -254,7 +254,12 @@ def counts(model: TunedModel, cores: Cores) -> list[int]:
     return list(range(max(1, cores.min_fewest()), MAX_RANGES + 1))
 
 
-def walk(model: TunedModel, top: int, deadline: float, decide) -> Walk:
+def walk(
+    model: TunedModel,
+    top: int,
+    deadline: float,
+    decide: Callable[[Found], tuple[bool, list[object]]],
+) -> Walk:
     """Accepted designs in rank order (module docstring). ``decide(found)`` is the verdict:
     (accepted, per-range details)."""
     out = Walk()
