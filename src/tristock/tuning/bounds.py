@@ -127,7 +127,11 @@ def shared_bounds(
         p_bottom = p2_min * (np.asarray(reff_n) / np.asarray(beta_n)) / (c.kf2_hi * c.rb2 * cf2)
     feasible = c.valid & (p1_max > 0) & (fewest <= MAX_RANGES)
     top_p = np.full(n, np.nan) if top_checked else p_top * (1 + 1e-9)
-    feasible &= span_end_checks(model, u, kf.k_lo, kf.k_hi, i3, i4, v, top_p, p_bottom * (1 - 1e-9))
+    live = np.flatnonzero(feasible)  # the span's ends only where anything is left
+    feasible[live] = span_end_checks(
+        model, u[live], kf.k_lo[live], kf.k_hi[live], i3[live], i4[live], v[live],
+        top_p[live], p_bottom[live] * (1 - 1e-9),
+    )  # fmt: skip
     bounds = CoreBounds(fewest, c_min * (1 - 1e-9), c_max * (1 + 1e-9), p_top, p_bottom, feasible)
     return bounds, c
 

@@ -64,8 +64,8 @@ B = NDArray[np.bool_]
 #: δ of (G3r): the overshoot's edge time is at most 1 + δ times the centroid's.
 OVERSHOOT_EXCESS = 0.02
 #: The envelope grid: ln μ from LN_MU_LOW to the model's clamp in steps of GRID_STEP.
-LN_MU_LOW = -46.0
-GRID_STEP = 0.02
+LN_MU_LOW = -30.0
+GRID_STEP = 0.05
 LN_GRID = np.append(np.arange(LN_MU_LOW, LN_MU[-1], GRID_STEP), LN_MU[-1])
 MU_GRID = np.exp(LN_GRID)
 #: Rounding allowed when a table is checked for G1 and G2 on its grid (relative).
