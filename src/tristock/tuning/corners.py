@@ -129,6 +129,8 @@ def window_factors(model: TunedModel, u: I64) -> KFactors:
     def ends(z: float, t: float) -> tuple[float, float]:
         up = _factor(res.tol, z, res.tempco, t)
         down = _factor(res.tol, -z, res.tempco, t)
+        if up.size == 0:  # no resistor: no pair, nothing to bound
+            return 1.0, 1.0
         return float(up.min() / down.max()), float(up.max() / down.min())
 
     def stack(z: float, which: int) -> F64:
