@@ -229,7 +229,8 @@ def test_analyse_of_a_tuned_range_matches_cli_json(
     """A tuned design with a wiper and a selected range: the API and the CLI (DESIGN file with
     ``wiper`` and ``range``) analyse the same board."""
     spec = tomllib.loads(cli.example_spec_path("tuned").read_text(encoding="utf-8"))
-    found = api.post("/v1/design", json={"spec": spec, "top": 1})
+    # the tuned search needs about 5 s of CPU time: more than the default limit under load
+    found = api.post("/v1/design", json={"spec": spec, "top": 1, "time_limit_s": 30})
     assert found.status_code == 200, found.text
     parts = {k: v["id"] for k, v in found.json()["candidates"][0]["parts"].items()}
     assert "RV1" in parts and "C2" in parts

@@ -192,7 +192,8 @@ def test_analyse_and_simulate_answers_match_their_models(api: TestClient) -> Non
     the documented models (which refuse unknown keys), field for field."""
     tuned = tomllib.loads(cli.example_spec_path("tuned").read_text(encoding="utf-8"))
     for spec, extra in ((demo_spec(), {}), (tuned, {"wiper": 0.7, "range": "C2"})):
-        found = api.post("/v1/design", json={"spec": spec, "top": 1})
+        # the tuned search needs about 5 s of CPU time: more than the default limit under load
+        found = api.post("/v1/design", json={"spec": spec, "top": 1, "time_limit_s": 30})
         assert found.status_code == 200, found.text
         parts = {k: v["id"] for k, v in found.json()["candidates"][0]["parts"].items()}
         body = {"spec": spec, "parts": parts, **extra}

@@ -12,8 +12,8 @@ integrator, slew-and-delay comparator with the catalogued slew rate, delay, offs
 The model compared is ``Design.oscillator`` (``timing.timing_network``: R3 -> R_eff,
 C1 -> C1/β) with the comparator's finite-GBW delay left out (the harness's slew comparator has
 none). The step is 10 ns, or a 40,000th of the period for slower runs. Measured model-vs-ngspice
-frequency errors (``pytest -s`` prints them): tuned bottom (92 Hz) +4.8e-5, tuned top (8.6 kHz)
-+2.3e-5; trim at m +2.9e-5, trim at 1 - m -5.1e-7 (the 5 kHz trimmed example).
+frequency errors (``pytest -s`` prints them): tuned bottom (62 Hz) +5.3e-5, tuned top (6.0 kHz)
+-1.5e-5; trim at m +8.9e-6, trim at 1 - m -3.6e-5 (the 5 kHz trimmed example).
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Panel-tuned designs (``tristock.tuning``): dial law, ranges, coverage, limits, JSON and CLI.
+"""Panel-tuned designs (``tristock.designs.tuned``): dial law, ranges, coverage, limits, JSON, CLI.
 
 Outside references, named beside each check:
 
@@ -427,18 +427,20 @@ def test_fixed_range_count_is_honoured() -> None:
 
 
 def test_too_few_fixed_ranges_says_how_many_work() -> None:
-    """With only the 10 kΩ pot each range spans about 10:1, so 300..6000 Hz needs two."""
+    """With only the 10 kΩ pot each range spans at most about 7:1 at every corner, so
+    300..4000 Hz needs two. (Under the full model no design reaches 5 kHz here at all: op-amp
+    timing passes 10 % of the period first; a brute force over the model agrees.)"""
     values = (1e-9, 2.2e-9, 4.7e-9, 10e-9, 22e-9, 47e-9, 100e-9, 220e-9, 470e-9)
     catalog = dataclasses.replace(
         bench_catalog(), pots=(panel(10e3),), capacitors=tuple(capacitor(v) for v in values)
     )
-    auto = _tuned(bench_spec(high_hz=6e3), catalog)
+    auto = _tuned(bench_spec(high_hz=4e3), catalog)
     assert auto.search.proven_optimal
     assert {len(c.tuning.ranges) for c in auto.candidates if c.tuning} == {2}
-    result = _tuned(bench_spec(high_hz=6e3, ranges=1), catalog)
+    result = _tuned(bench_spec(high_hz=4e3, ranges=1), catalog)
     assert not result.candidates and result.infeasible is not None
     text = " ".join(result.infeasible.reasons)
-    assert "no set of 1 ranges" in text and "300..6000 Hz" in text and "(x20)" in text
+    assert "no set of 1 ranges" in text and "300..4000 Hz" in text and "(x13.3)" in text
     assert "the fewest that work is 2" in text
 
 
@@ -517,7 +519,9 @@ def test_cli_design_example_tuned_prints_ranges_and_plots_the_dial(
     tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
     png = tmp_path / "dial.png"
-    assert cli.main(["design", "--example", "tuned", "--plot", str(png)]) == 0
+    # the search's speed is a benchmark's business (tests/benchmark_tuning.py), not this one's
+    argv = ["design", "--example", "tuned", "--plot", str(png), "--time-limit", "60"]
+    assert cli.main(argv) == 0
     out = capsys.readouterr().out
     best = example_result().candidates[0]
     assert best.tuning is not None

@@ -33,6 +33,8 @@ design ranks before everything not yet decided. A search cut by its time limit s
 from __future__ import annotations
 
 import time
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 from tristock.circuits.board import Design
 from tristock.designs.candidate import CAUTIONS
@@ -52,6 +54,9 @@ from tristock.designs.tuned.verdict import Verdicts
 from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
+
+if TYPE_CHECKING:
+    from tristock.designs.results import ReoptimiseResult
 
 __all__ = [
     "DIAL_POINTS",
@@ -127,8 +132,21 @@ def _fewest_that_work(spec: Spec, catalog: Catalog, deadline: float) -> int | No
     return found.ranges if found.accepted else None
 
 
-def reoptimise_tuned(*args, **kwargs):
-    """See ``tristock.tuning.reoptimise.reoptimise_tuned``."""
+def reoptimise_tuned(
+    spec: Spec,
+    catalog: Catalog,
+    current: dict[str, str],
+    *,
+    without: Sequence[str] = (),
+    boards: int | None = None,
+    top: int | None = None,
+    time_limit_s: float = 5.0,
+    samples: int = 4000,
+) -> ReoptimiseResult:
+    """See ``tristock.designs.tuned.reoptimise.reoptimise_tuned`` (imported when first called)."""
     from tristock.designs.tuned.reoptimise import reoptimise_tuned as run
 
-    return run(*args, **kwargs)
+    return run(
+        spec, catalog, current, without=without, boards=boards, top=top,
+        time_limit_s=time_limit_s, samples=samples,
+    )  # fmt: skip

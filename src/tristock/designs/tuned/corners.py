@@ -1,15 +1,17 @@
-"""The two corners of the spread box the bounds use, as period coefficients.
+"""The two corners of the spread box the bounds use, and the nominal operating point.
 
 For a combination S, z2 (``network.FAST_BOTTOM``) is a corner at the bottom of the dial and
-z1 (``network.SLOW_TOP``) one at the top. At each, the period as a function of P is
-T = A·P + B + G(P) (``bounds`` module docstring); ``corners`` gives A, B, G'(0)·β_k, the
-drives, spans and slews, the k factors of the pairs allowed (``KFactors``), R_eff/β at z2,
-R3 at z1, and the nominal values the bounds' nominal checks use.
+z1 (``network.SLOW_TOP``) one at the top. At each the full model's period is a function of
+P = k·R·C (R = R_eff/β at z2, R3 at z1; k the nominal k times the corner's factor), which
+``loopbounds`` bounds over a range of k from the edge tables (``edges``). ``corners`` gives,
+per combination, each corner's drives, the k factors of the pairs allowed (``KFactors``),
+R_eff/β at z2, R3 at z1 and the nominal drives and resistances the nominal checks use;
+``corner_tables`` the edge tables of every op amp at z2, z1 and nominal values (span, slew
+and delay at the corner, k over everything the op amp's rows can have there).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -18,6 +20,8 @@ from numpy.typing import NDArray
 
 from tristock.analysis.spread import BIAS_SPREAD, DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.circuits.timing import timing_network
+from tristock.designs.tuned.edges import EdgeTables
+from tristock.designs.tuned.loopbounds import CornerRows
 from tristock.designs.tuned.model import TunedModel
 from tristock.designs.tuned.network import dial_ends, rail_choice, temperatures
 
@@ -40,16 +44,15 @@ class KFactors:
 
 @dataclass
 class Corners:
-    """Per combination, the period at z2 (bottom) and z1 (top) as T = A·P + B + G(P) (module
-    docstring): ``a2``, ``b2``, ``g2`` = G2'(0)·β_k (divide by β_k of the k in use), the k
-    factors, R_eff/β at z2 (``rb2``), R3 at z1 (``r31``), the temperature end of each (index
-    into ``temperatures``), and the corners' drives, slews and spans for the ratio bound."""
+    """Per combination: the op amp (``u``), the k factors at z2 and z1, R_eff/β at z2
+    (``rb2``), R3 at z1 (``r31``), the temperature end of each (index into
+    ``temperatures``), the corners' drives (a2, b2, a1, b1; 1 V where a corner cannot
+    oscillate), whether z2 and z1 (``valid``) or z1 alone (``valid_top``) can oscillate, and
+    at nominal values R_eff/β at the bottom (``rbn``), R3 (``r3n``) and the drives at the
+    bottom and the top of the dial (``nominal``: a, b, a, b). ``tables`` are the model's
+    edge tables (``corner_tables``)."""
 
-    a2: F64
-    b2: F64
-    g2: F64
-    a1: F64
-    b1: F64
+    u: I64
     kf2_lo: F64
     kf2_hi: F64
     kf1_lo: F64
@@ -59,26 +62,38 @@ class Corners:
     t2: I64
     t1: I64
     drive: tuple[F64, F64, F64, F64]  # a2, b2, a1, b1 (V)
-    span: tuple[F64, F64]
-    slew: tuple[F64, F64]
-    gbw: F64
     valid: NDArray[np.bool_]
     valid_top: NDArray[np.bool_]
-    # Nominal values: R_eff/β at the bottom, R3 (top), drives (a, b) at bottom and top,
-    # VH + VL, slew and delay (the op amp as catalogued).
     rbn: F64
     r3n: F64
     nominal: tuple[F64, F64, F64, F64]
-    span_n: F64
-    slew_n: F64
-    delay_n: F64
+    tables: dict[str, EdgeTables]
 
     def take(self, sel: I64 | NDArray[np.bool_]) -> Corners:
         out: dict[str, Any] = {}
         for name in self.__dataclass_fields__:
             x = getattr(self, name)
-            out[name] = tuple(y[sel] for y in x) if isinstance(x, tuple) else x[sel]
+            if name == "tables":
+                out[name] = x
+            else:
+                out[name] = tuple(y[sel] for y in x) if isinstance(x, tuple) else x[sel]
         return Corners(**out)
+
+    @property
+    def z2(self) -> CornerRows:
+        return CornerRows(self.tables["z2"], self.u, self.drive[0], self.drive[1])
+
+    @property
+    def z1(self) -> CornerRows:
+        return CornerRows(self.tables["z1"], self.u, self.drive[2], self.drive[3])
+
+    @property
+    def nominal_bottom(self) -> CornerRows:
+        return CornerRows(self.tables["nom"], self.u, self.nominal[0], self.nominal[1])
+
+    @property
+    def nominal_top(self) -> CornerRows:
+        return CornerRows(self.tables["nom"], self.u, self.nominal[2], self.nominal[3])
 
 
 def col(model: TunedModel, u: I64, name: str) -> F64:
@@ -114,6 +129,8 @@ def window_factors(model: TunedModel, u: I64) -> KFactors:
     def ends(z: float, t: float) -> tuple[float, float]:
         up = _factor(res.tol, z, res.tempco, t)
         down = _factor(res.tol, -z, res.tempco, t)
+        if up.size == 0:  # no resistor: no pair, nothing to bound
+            return 1.0, 1.0
         return float(up.min() / down.max()), float(up.max() / down.min())
 
     def stack(z: float, which: int) -> F64:
@@ -133,18 +150,9 @@ def cap_factors(model: TunedModel, z: float) -> F64:
     )
 
 
-def g_unit(span: F64, a: F64, b: F64, slew: F64, gbw: F64) -> F64:
-    """G'(0)·β_k = span·SR/(a·b·2π·GBW) (0 for an infinite GBW)."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        out = span * slew / (a * b * 2 * math.pi * gbw)
-    return np.asarray(np.where(np.isinf(gbw), 0.0, out))
-
-
-def beta_k(k: F64) -> F64:
-    return np.asarray(k / (1 + k))
-
-
-def _drives(vh: F64, vl: F64, vos: F64, ib: F64, r_eff: F64, beta: F64, balanced: bool):
+def _drives(
+    vh: F64, vl: F64, vos: F64, ib: F64, r_eff: F64, beta: F64, balanced: bool
+) -> tuple[F64, F64]:
     """Drives (a, b) at the offset and bias ends ``network.Corner.drives`` picks."""
     gaps, values = [], []
     for s in (-1.0, 1.0):
@@ -188,8 +196,6 @@ def corners(model: TunedModel, u: I64, i3: I64, i4: I64, v: I64, kf: KFactors) -
     t1 = (net1[1][0] > net1[0][0]).astype(np.int64)
     r31 = np.where(t1 == 1, net1[1][0], net1[0][0])
     at = np.arange(n)
-    slew, delay = col(model, u, "slew_rise_v_per_s"), col(model, u, "delay_s")
-    gbw = col(model, u, "gbw_hz")
     vos = np.abs(col(model, u, "offset_v")) * OFFSET_BOUND
     ib = col(model, u, "bias_a")
     zp2, zn2 = rail_choice(model, "fast")
@@ -198,12 +204,6 @@ def corners(model: TunedModel, u: I64, i3: I64, i4: I64, v: I64, kf: KFactors) -
     vh1, vl1 = levels_at(model, u, zp1[u], zn1[u])
     a2, b2 = _drives(vh2, vl2, vos, ib, reff2, beta2, True)
     a1, b1 = _drives(vh1, vl1, vos, ib, r31, np.ones(n), False)
-    valid_top = (a1 > 0) & (b1 > 0)
-    valid = (a2 > 0) & (b2 > 0) & valid_top
-    a2, b2, a1, b1 = (np.where(valid, x, 1.0) for x in (a2, b2, a1, b1))
-    span2, span1 = vh2 + vl2, vh1 + vl1
-    sr2, sr1 = slew * (1 + SLEW_SPREAD), slew * (1 - SLEW_SPREAD)
-    td2, td1 = delay * (1 - DELAY_SPREAD), delay * (1 + DELAY_SPREAD)
     vh = np.array([o.vh for o in model.opamps])[u]
     vl = np.array([o.vl for o in model.opamps])[u]
     vos1, ib1 = col(model, u, "offset_v"), col(model, u, "bias_a")
@@ -213,36 +213,57 @@ def corners(model: TunedModel, u: I64, i3: I64, i4: I64, v: I64, kf: KFactors) -
     beta_n = np.asarray(beta_n) * np.ones(n)
     vd_b = (vos1 + ib1 * reff_n) / beta_n
     vd_t = vos1 + ib1 * res.value[i3]
-    valid_top &= (vh - vd_t > 0) & (vl + vd_t > 0)
-    valid &= (vh - vd_b > 0) & (vl + vd_b > 0) & valid_top
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        return Corners(
-            a2=span2**2 / (a2 * b2),
-            b2=span2 * (td2 + span2 / (2 * sr2)) * (1 / a2 + 1 / b2),
-            g2=g_unit(span2, a2, b2, sr2, gbw),
-            a1=span1**2 / (a1 * b1),
-            b1=span1 * (td1 + span1 / (2 * sr1)) * (1 / a1 + 1 / b1),
-            kf2_lo=kf.f2_lo[t2, at],
-            kf2_hi=kf.f2_hi[t2, at],
-            kf1_lo=kf.f1_lo[t1, at],
-            kf1_hi=kf.f1_hi[t1, at],
-            rb2=reff2 / beta2,
-            r31=r31,
-            t2=t2,
-            t1=t1,
-            drive=(a2, b2, a1, b1),
-            span=(span2, span1),
-            slew=(sr2, sr1),
-            gbw=gbw,
-            valid=valid,
-            valid_top=valid_top,
-            rbn=reff_n / beta_n,
-            r3n=res.value[i3],
-            nominal=(vh - vd_b, vl + vd_b, vh - vd_t, vl + vd_t),
-            span_n=vh + vl,
-            slew_n=slew,
-            delay_n=delay,
-        )
+    valid_top = (a1 > 0) & (b1 > 0) & (vh - vd_t > 0) & (vl + vd_t > 0)
+    valid_bottom = (a2 > 0) & (b2 > 0) & (vh - vd_b > 0) & (vl + vd_b > 0)
+    valid = valid_bottom & valid_top
+    a2, b2, ab, bb = (np.where(valid_bottom, x, 1.0) for x in (a2, b2, vh - vd_b, vl + vd_b))
+    a1, b1, at_, bt = (np.where(valid_top, x, 1.0) for x in (a1, b1, vh - vd_t, vl + vd_t))
+    return Corners(
+        u=np.asarray(u, dtype=np.int64),
+        kf2_lo=kf.f2_lo[t2, at],
+        kf2_hi=kf.f2_hi[t2, at],
+        kf1_lo=kf.f1_lo[t1, at],
+        kf1_hi=kf.f1_hi[t1, at],
+        rb2=reff2 / beta2,
+        r31=r31,
+        t2=t2,
+        t1=t1,
+        drive=(a2, b2, a1, b1),
+        valid=valid,
+        valid_top=valid_top,
+        rbn=reff_n / beta_n,
+        r3n=res.value[i3],
+        nominal=(ab, bb, at_, bt),
+        tables=corner_tables(model),
+    )
+
+
+def corner_tables(model: TunedModel) -> dict[str, EdgeTables]:
+    """The edge tables of every op amp at z2 (fast rails, slew up, delay down), z1 (slow
+    rails, slew down, delay up) and nominal values. Kept in ``model.cache``: they fill as
+    rows need them."""
+    known = model.cache.get("edge_tables")
+    if isinstance(known, dict):
+        return known
+    n = len(model.opamps)
+    u = np.arange(n, dtype=np.int64)
+    slew, delay = col(model, u, "slew_rise_v_per_s"), col(model, u, "delay_s")
+    gbw = col(model, u, "gbw_hz")
+    out: dict[str, EdgeTables] = {}
+    for name, rails, s_slew, s_delay in (
+        ("z2", "fast", SLEW_SPREAD, -DELAY_SPREAD),
+        ("z1", "slow", -SLEW_SPREAD, DELAY_SPREAD),
+        ("nom", "", 0.0, 0.0),
+    ):
+        if rails:
+            zp, zn = rail_choice(model, rails)
+            vh, vl = levels_at(model, u, zp, zn)
+        else:
+            vh = np.array([o.vh for o in model.opamps])
+            vl = np.array([o.vl for o in model.opamps])
+        out[name] = EdgeTables(vh + vl, slew * (1 + s_slew), delay * (1 + s_delay), gbw)
+    model.cache["edge_tables"] = out
+    return out
 
 
 def levels_at(model: TunedModel, u: I64, z_pos: F64, z_neg: F64) -> tuple[F64, F64]:

@@ -10,11 +10,17 @@ Costs are integers in micro-units of the catalog's currency (``micro``), so sums
 comparisons are exact.
 
 The amplitude window of k = R1/R2 (``k_window``): the triangle is A = k·span + overshoots,
-span = VH + VL, overshoots ≥ 0, and at a point whose timing share 1 - T_ideal/T is at most s
-the overshoots are at most k·span·s/(1 - s) (each overshoot is the ramp's slope times
-td + t_g + V/(2·SR) ≤ d, so their sum is at most (k/P)·a·b·D/span = k·span·D/T_ideal, and
-D/T_ideal = s/(1 - s)). Every accepted design keeps A in its band and the share within s at
-nominal values, so A_min·(1 - s)/span ≤ k ≤ A_max/span.
+span = VH + VL. In the full model (``tristock.looptiming``) the top overshoot is
+(b·(o_r + τi) - A_r)/RC' with 0 ≤ A_r ≤ b·τi, so it lies between b·o_r/RC' ≥ 0 (o ≥ td ≥ 0:
+(G0) of ``tuning.edges``) and b·(o_r + τi)/RC'; by (G3r) o_r ≤ td + (1 + δ)·(c_r - td) ≤
+(1 + δ)·c_r (c the edge's centroid), so the top overshoot is at most (1 + δ)·b·d_r/RC'
+(d = c + τi), the bottom one (1 + δ)·a·d_f/RC'. Their sum is at most
+(1 + δ)·(k/Q)·a·b·(d_r/a + d_f/b) with Q = k·RC' ≥ P, and
+span·(d_r/a + d_f/b) ≤ D = T - T_i, T_i = span²·P/(a·b): so at most (1 + δ)·k·span·D/T_i,
+and D/T_i = s/(1 - s) at a point whose timing share 1 - T_i/T is s. Every accepted design
+keeps A in its band and the share within s at nominal values (both properties hold
+everywhere, not only where the edge's finer properties are claimed), so
+A_min·(1 - s)/(span·(1 + δ·s)) ≤ k ≤ A_max/span.
 """
 
 from __future__ import annotations
@@ -26,6 +32,7 @@ from numpy.typing import NDArray
 
 from tristock.circuits.board import rails_from_supply
 from tristock.circuits.rails import OpAmpModel, square_levels
+from tristock.designs.tuned.edges import OVERSHOOT_EXCESS
 from tristock.search.model import Exclusion, PartTable, in_series
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -81,7 +88,7 @@ class TunedModel:
     ``resistors`` and ``capacitors`` are ``PartTable``s sorted by value (ascending); a chain of
     ranges takes capacitors in descending value (C1, the largest, is the lowest range).
     ``allowed`` optionally restricts a designator (U1, R1, R2, R3, R4, RV1) to a mask over its
-    table, for re-optimisation.
+    table, for re-optimisation; copies made with other masks or capacitors share ``cache``.
     """
 
     spec: Spec
@@ -91,6 +98,8 @@ class TunedModel:
     pots: list[Pot]
     exclusions: list[Exclusion] = field(default_factory=list)
     allowed: dict[str, NDArray[np.bool_]] = field(default_factory=dict)
+    #: values derived from the op amps and the spec once (``corners.corner_tables``)
+    cache: dict[str, object] = field(default_factory=dict)
 
     @property
     def divider(self) -> bool:
@@ -146,7 +155,8 @@ def k_window(spec: Spec, vh: float, vl: float) -> tuple[float, float]:
     a = spec.triangle.amplitude_vpp
     ta = spec.triangle.tolerance_pct / 100
     s = spec.limits.max_timing_share
-    return a * (1 - ta) * (1 - s) / span * (1 - 1e-12), a * (1 + ta) / span * (1 + 1e-12)
+    lo = a * (1 - ta) * (1 - s) / (span * (1 + OVERSHOOT_EXCESS * s))
+    return lo * (1 - 1e-12), a * (1 + ta) / span * (1 + 1e-12)
 
 
 def _opamp(index: int, part: OpAmp, spec: Spec) -> TunedOpAmp | str:

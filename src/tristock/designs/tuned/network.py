@@ -85,7 +85,7 @@ def empty_shared() -> Shared:
 class Board:
     """One board per item, everything the full model needs (SI units): R1, R2, R3, RV, R4
     and C (R4 unused by the series control), the square levels VH and VL, the op amp's slew,
-    delay, GBW, offsets and bias currents."""
+    delay, GBW (both channels'), offsets and bias currents."""
 
     r1: F64
     r2: F64
@@ -122,7 +122,8 @@ class AtWiper:
 
 
 def at_wiper(board: Board, alpha: float | F64, control: str) -> AtWiper:
-    """The full model at wiper ``alpha`` (``circuit.predict`` through the pot network)."""
+    """The full model at wiper ``alpha`` (``circuit.predict`` through the pot network, the
+    part's GBW in both channels, as ``Design.oscillator``)."""
     r_eff, beta = timing_network(board.r3, board.rv, alpha, control, board.r4)
     r_eff = np.asarray(r_eff, dtype=float) * np.ones_like(board.r3)
     beta = np.asarray(beta, dtype=float) * np.ones_like(board.r3)
@@ -148,6 +149,7 @@ def at_wiper(board: Board, alpha: float | F64, control: str) -> AtWiper:
             ib1=b.ib1 / beta[ok],
             vos2=b.vos2,
             ib2=b.ib2,
+            integrator_gbw=b.gbw,
         )
         for name in Prediction._fields:
             getattr(out, name)[ok] = np.asarray(getattr(part, name))

@@ -42,7 +42,8 @@ SLACK = 1e-12
 @dataclass
 class RangeData:
     """``Ranges`` (optimistic ends) plus, per (combination, capacitor), the corner values as
-    computed (Hz, Vpp; NaN where not evaluated) and the nominal ends (Hz)."""
+    computed (Hz, Vpp; NaN where not evaluated), the nominal ends (Hz) and whether the dial
+    check was decided at every wiper position (``dial.DialResult.certified``)."""
 
     ranges: Ranges
     corner_bottom: F64
@@ -51,6 +52,7 @@ class RangeData:
     amp_low: F64
     f_bottom: F64
     f_top: F64
+    certified: NDArray[np.bool_]
 
 
 def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
@@ -90,6 +92,7 @@ def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
             usable[idx[~good]] = False
     f_bottom = np.full(len(j), np.nan)
     f_top = np.full(len(j), np.nan)
+    certified = np.ones(len(j), dtype=bool)
     idx = np.flatnonzero(usable)
     if len(idx):
         part = flat.take(idx)
@@ -98,6 +101,7 @@ def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
         usable[idx[~dial.ok]] = False
         f_bottom[idx] = dial.f_bottom
         f_top[idx] = dial.f_top
+        certified[idx] = dial.certified
     shape = (nb, nc)
     return RangeData(
         ranges=Ranges(
@@ -113,4 +117,5 @@ def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
         amp_low=amp_low.reshape(shape),
         f_bottom=f_bottom.reshape(shape),
         f_top=f_top.reshape(shape),
+        certified=certified.reshape(shape),
     )

@@ -42,7 +42,7 @@ from tristock.designs.tuned.coverage import proxy_spec_at
 from tristock.designs.tuned.model import MAX_RANGES, TunedModel, build_tuned_model
 from tristock.designs.tuned.pins import masks, part_index, tuned_shortfall
 from tristock.designs.tuned.report import design_from, reasons, tuned_candidate
-from tristock.designs.tuned.search import Found, Lister, Walk
+from tristock.designs.tuned.search import Found, Lister, Walk, certified
 from tristock.designs.tuned.verdict import Verdicts
 from tristock.search.model import SCORE_RESOLUTION, PartTable
 from tristock.spec.loading import SpecError, parse_spec
@@ -221,6 +221,7 @@ def _fewest_changes(
             ok, detail = verdicts(f)
             if ok:
                 accepted.append((f, detail))
+                walk.proven &= certified(f)
                 if len(accepted) >= spec.ranking.top:
                     break
             else:

@@ -7,10 +7,12 @@ import math
 
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.looptiming import LoopTiming
+from tristock.circuits.rails import OpAmpModel
 from tristock.designs.candidate import candidate
 from tristock.designs.results import Candidate, RangeOut, TuningOut
 from tristock.designs.tuned.coverage import RangeVerdict, proxy_spec_at
-from tristock.designs.tuned.model import MAX_RANGES, TunedModel
+from tristock.designs.tuned.model import MAX_RANGES, TunedModel, TunedOpAmp
 from tristock.designs.tuned.network import dial_ends
 from tristock.spec.model import Spec
 from tristock.stock.parts import Resistor
@@ -144,8 +146,10 @@ def reasons(
 
 def fastest_top(model: TunedModel) -> tuple[str, float] | None:
     """The op amp with the highest nominal frequency at which the timing share reaches the
-    limit (symmetric drives, the amplitude's k), and that frequency (Hz)."""
-    from tristock.search.bounds import loop_timing
+    limit (symmetric drives, the amplitude's k, the full model's loop timing), and that
+    frequency (Hz). The share falls as P grows (``tuning.loopbounds``, (H2)), so a bisection
+    in P finds where it crosses the limit."""
+    from tristock.circuits.looptiming import loop_timing
 
     best: tuple[str, float] | None = None
     s = model.spec.limits.max_timing_share
@@ -153,22 +157,22 @@ def fastest_top(model: TunedModel) -> tuple[str, float] | None:
     for o in model.opamps:
         m = o.model
         kk = min(k / (o.vh + o.vl), 0.99)
+
+        def timing(p: float, kk: float = kk, m: OpAmpModel = m, o: TunedOpAmp = o) -> LoopTiming:
+            return loop_timing(
+                kk, p / kk, o.vh + o.vl, o.vh, o.vl, slew_rise=m.slew_rise_v_per_s,
+                slew_fall=m.slew_fall_v_per_s, delay=m.delay_s, gbw=m.gbw_hz,
+                integrator_gbw=m.gbw_hz,
+            )  # fmt: skip
+
         lo, hi = 1e-12, 10.0
         for _ in range(200):
             p = math.sqrt(lo * hi)
-            lt = loop_timing(
-                kk, p, o.vh + o.vl, o.vh, o.vl, slew_rise=m.slew_rise_v_per_s,
-                slew_fall=m.slew_fall_v_per_s, delay=m.delay_s, gbw=m.gbw_hz,
-            )  # fmt: skip
-            if float(lt.timing_share) > s:
+            if float(timing(p).timing_share) > s:
                 lo = p
             else:
                 hi = p
-        lt = loop_timing(
-            kk, hi, o.vh + o.vl, o.vh, o.vl, slew_rise=m.slew_rise_v_per_s,
-            slew_fall=m.slew_fall_v_per_s, delay=m.delay_s, gbw=m.gbw_hz,
-        )  # fmt: skip
-        f = 1.0 / float(lt.period_s)
+        f = 1.0 / float(timing(hi).period_s)
         if best is None or f > best[1]:
             best = (o.part.id, f)
     return best

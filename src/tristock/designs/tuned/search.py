@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import heapq
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -80,6 +80,13 @@ class Walk:
     combinations: int = 0
     dropped: int = 0
     candidates: int = 0
+
+
+def certified(f: Found) -> bool:
+    """Whether every range of the candidate had its dial decided at every wiper position (a
+    board whose comparator edge is not claimed is decided at grid points only, and an
+    answer with such a range is not proven)."""
+    return bool(all(f.data.certified[f.index, j] for j in f.chain))
 
 
 def ids_of(model: TunedModel, row: Row, chain: tuple[int, ...]) -> tuple[str, ...]:
@@ -247,7 +254,12 @@ def counts(model: TunedModel, cores: Cores) -> list[int]:
     return list(range(max(1, cores.min_fewest()), MAX_RANGES + 1))
 
 
-def walk(model: TunedModel, top: int, deadline: float, decide) -> Walk:
+def walk(
+    model: TunedModel,
+    top: int,
+    deadline: float,
+    decide: Callable[[Found], tuple[bool, list[object]]],
+) -> Walk:
     """Accepted designs in rank order (module docstring). ``decide(found)`` is the verdict:
     (accepted, per-range details)."""
     out = Walk()
@@ -261,6 +273,7 @@ def walk(model: TunedModel, top: int, deadline: float, decide) -> Walk:
             ok, detail = decide(f)
             if ok:
                 out.accepted.append((f, detail))
+                out.proven &= certified(f)
                 if len(out.accepted) >= top:
                     out.ranges = n
                     return out
