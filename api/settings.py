@@ -88,6 +88,9 @@ class Settings(BaseSettings):
     max_body_bytes: int = Field(256 * 1024, ge=1024, le=16 * 1024 * 1024, description="413 above")
     max_top: int = Field(MAX_TOP, ge=1, le=MAX_TOP, description="designs per request")
     default_time_limit_s: float = Field(5.0, gt=0, description="search time without one asked")
+    default_tuned_time_limit_s: float = Field(
+        30.0, gt=0, description="the same for a tuned spec (its exact search takes longer)"
+    )
     max_time_limit_s: float = Field(
         30.0, gt=0, le=MAX_TIME_LIMIT_S, description="a larger time_limit_s is cut to this"
     )
@@ -135,11 +138,12 @@ class Settings(BaseSettings):
 
     @model_validator(mode="after")
     def _default_within_cap(self) -> Settings:
-        if self.default_time_limit_s > self.max_time_limit_s:
-            raise ValueError(
-                f"{env_name('default_time_limit_s')}={self.default_time_limit_s:g} is above "
-                f"{env_name('max_time_limit_s')}={self.max_time_limit_s:g}"
-            )
+        for name in ("default_time_limit_s", "default_tuned_time_limit_s"):
+            if getattr(self, name) > self.max_time_limit_s:
+                raise ValueError(
+                    f"{env_name(name)}={getattr(self, name):g} is above "
+                    f"{env_name('max_time_limit_s')}={self.max_time_limit_s:g}"
+                )
         return self
 
     @classmethod

@@ -25,11 +25,13 @@ from . import COMPUTE_ERRORS
 router = APIRouter(prefix="/v1", tags=["design"])
 
 
-def _time_limit(settings: Settings, asked: float | None) -> float:
-    """The request's time limit, or the default, cut to the server's cap (seconds)."""
-    return min(
-        asked if asked is not None else settings.default_time_limit_s, settings.max_time_limit_s
-    )
+def _time_limit(settings: Settings, asked: float | None, spec: Spec) -> float:
+    """The request's time limit, or the default of the spec's job, cut to the server's cap
+    (seconds)."""
+    if asked is None:
+        tuned = spec.tuning is not None
+        asked = settings.default_tuned_time_limit_s if tuned else settings.default_time_limit_s
+    return min(asked, settings.max_time_limit_s)
 
 
 def _check_top(settings: Settings, top: int, loc: list[str]) -> None:
@@ -75,7 +77,7 @@ async def post_design(
         spec = Spec.model_validate({**spec.model_dump(), "ranking": ranking.model_dump()})
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, spec.ranking.top, where)
-    limit = _time_limit(settings, body.time_limit_s)
+    limit = _time_limit(settings, body.time_limit_s, spec)
     key = cache.key("design", generation, [spec.model_dump(mode="json"), body.engine, limit])
     cached = cache.get(key)
     if cached is None:
@@ -124,7 +126,7 @@ async def post_reoptimise(
     top = body.top if body.top is not None else body.spec.ranking.top
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, top, where)
-    limit = _time_limit(settings, body.time_limit_s)
+    limit = _time_limit(settings, body.time_limit_s, body.spec)
     with FieldProblem.from_value_errors(["body"]):
         data, rendered = await slots.run(_reoptimised, body, slots.parcel(catalog), current, limit)
     return RenderedJSON(rendered, headers=_headers(data["search"]["proven_optimal"]))

@@ -31,6 +31,7 @@ NON_DEFAULTS: dict[str, tuple[str, Any]] = {
     "max_body_bytes": ("65536", 65536),
     "max_top": ("7", 7),
     "default_time_limit_s": ("1.5", 1.5),
+    "default_tuned_time_limit_s": ("11", 11.0),
     "max_time_limit_s": ("12", 12.0),
     "max_searches": ("3", 3),
     "search_wait_s": ("0.25", 0.25),

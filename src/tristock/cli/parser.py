@@ -65,10 +65,11 @@ def _time_limit(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--time-limit",
         type=seconds(limits.TIME_LIMIT_MAX_S),
-        default=limits.DEFAULT_TIME_LIMIT_S,
+        default=None,
         metavar="S",
         help=f"seconds for the whole search, above 0, at most {limits.TIME_LIMIT_MAX_S:g} "
-        f"(default {limits.DEFAULT_TIME_LIMIT_S:g}); the full-model re-check comes on top",
+        f"(default {limits.DEFAULT_TIME_LIMIT_S:g}, {limits.DEFAULT_TUNED_TIME_LIMIT_S:g} for "
+        "a tuned spec); the full-model re-check comes on top",
     )
 
 

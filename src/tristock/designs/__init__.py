@@ -11,6 +11,7 @@ from __future__ import annotations
 from tristock.designs.fixed import DEFAULT_ENGINE, DEFAULT_TIME_LIMIT_S, Engine, design_fixed
 from tristock.designs.results import DesignResult
 from tristock.designs.trimmed import design_trimmed
+from tristock.spec.limits import default_time_limit_s
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
@@ -20,12 +21,15 @@ def design(
     catalog: Catalog,
     *,
     engine: Engine = DEFAULT_ENGINE,
-    time_limit_s: float = DEFAULT_TIME_LIMIT_S,
+    time_limit_s: float | None = None,
     samples: int = 4000,
     seed: int = 0,
 ) -> DesignResult:
     """Best ``spec.ranking.top`` designs from ``catalog``, optimal under the full model, by
-    the job the spec asks for (``engine`` applies to fixed designs)."""
+    the job the spec asks for (``engine`` applies to fixed designs). ``time_limit_s``: None
+    takes ``tristock.spec.limits.default_time_limit_s`` of the spec's job (5 s; 30 s tuned)."""
+    if time_limit_s is None:
+        time_limit_s = default_time_limit_s(spec.tuning is not None)
     if spec.trimmed:
         return design_trimmed(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
     if spec.tuning is not None:

@@ -36,6 +36,7 @@ from tristock.search.enumeration import enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.rows import Rows, rank_key
+from tristock.spec.limits import default_time_limit_s
 from tristock.spec.loading import SpecError, parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -70,10 +71,13 @@ def reoptimise(
     without: Sequence[str] = (),
     boards: int | None = None,
     top: int | None = None,
-    time_limit_s: float = 5.0,
+    time_limit_s: float | None = None,
     samples: int = 4000,
 ) -> ReoptimiseResult:
-    """Designs meeting ``spec`` that change the fewest designators of ``current``."""
+    """Designs meeting ``spec`` that change the fewest designators of ``current``.
+    ``time_limit_s``: None takes the default of the spec's job (``spec.limits``)."""
+    if time_limit_s is None:
+        time_limit_s = default_time_limit_s(spec.tuning is not None)
     if spec.tuning is not None:
         from tristock.designs.tuned import reoptimise_tuned
 
@@ -82,8 +86,6 @@ def reoptimise(
             time_limit_s=time_limit_s, samples=samples,
         )  # fmt: skip
     t0 = time.perf_counter()
-    if spec.tuning is not None:  # the fixed-design search below ignores RV1 and C2..Cn
-        raise SpecError(["spec: re-optimising a tuned design is not supported yet"])
     if boards is not None or top is not None:
         # Validated again (model_copy would not): a bad override is named like a bad spec field.
         data = spec.model_dump()

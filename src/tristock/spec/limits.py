@@ -32,8 +32,17 @@ WITHOUT_MAX: Final = 1000
 
 #: Search time limit (s): finite and above zero; an hour at most, so every search ends.
 TIME_LIMIT_MAX_S: Final = 3600.0
-#: The search time limit when none is given (s); ``tristock.designs.fixed.DEFAULT_TIME_LIMIT_S``.
+#: The search time limit when none is given (s): fixed and trimmed designs, and tuned designs,
+#: whose exact search over pots, end stops and range capacitors takes several seconds of CPU
+#: on the demo (README, Figures).
 DEFAULT_TIME_LIMIT_S: Final = 5.0
+DEFAULT_TUNED_TIME_LIMIT_S: Final = 30.0
+
+
+def default_time_limit_s(tuned: bool) -> float:
+    """The search time limit (s) when none is asked: 30 for a tuned spec, else 5."""
+    return DEFAULT_TUNED_TIME_LIMIT_S if tuned else DEFAULT_TIME_LIMIT_S
+
 
 #: TCP port of ``tristock serve`` (0: any free port) and its worker processes.
 PORT: Final = (0, 65535)
