@@ -150,9 +150,9 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
 
     l0 = search(())
     if l0 is None:  # nothing meets the spec on the residual stock at all (proven)
-        bounds = (Bound(reduces=(), changes=None),)
+        none = (Bound(reduces=(), changes=None),)
         return DesignOptions(
-            task.name, task.revision, (), bounds, proven, time.perf_counter() - t0, searches
+            task.name, task.revision, (), none, proven, time.perf_counter() - t0, searches
         )
     bounds = [Bound(reduces=(), changes=max(l0, 0))]
     for subset in _subsets(task.over)[1:]:

@@ -17,7 +17,8 @@ import os
 from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
 
-import dask
+from dask.base import compute
+from dask.delayed import delayed as delay
 
 from tristock.catalog import Catalog
 
@@ -53,26 +54,26 @@ def run_all(
         return []
     scheduler = scheduler or os.environ.get(SCHEDULER_ENV) or None
     if scheduler is None and not workers:
-        delayed = [dask.delayed(function, pure=True)(task, catalog) for task in tasks]
-        return list(dask.compute(*delayed, scheduler="synchronous"))
+        graph = [delay(function, pure=True)(task, catalog) for task in tasks]
+        return list(compute(*graph, scheduler="synchronous"))  # type: ignore[no-untyped-call]
     from distributed import Client, LocalCluster
 
     if scheduler is not None:
         try:
-            client = Client(scheduler, timeout="10s")
+            client = Client(scheduler, timeout="10s")  # type: ignore[no-untyped-call]
         except (OSError, TimeoutError) as err:
             raise SchedulerUnavailable(f"dask scheduler {scheduler}: {err}") from None
         with client:
             return _on(client, function, tasks, catalog)
     with (
-        LocalCluster(
+        LocalCluster(  # type: ignore[no-untyped-call]
             n_workers=workers,
             threads_per_worker=1,
             processes=True,
             dashboard_address=None,
             silence_logs=40,
         ) as cluster,
-        Client(cluster) as client,
+        Client(cluster) as client,  # type: ignore[no-untyped-call]
     ):
         return _on(client, function, tasks, catalog)
 

@@ -45,8 +45,11 @@ def parse_what_if(text: str, source: str) -> list[StockChange]:
     if not rows:
         raise WhatIfError([f"{source}: empty (expected a header `id,stock` or `id,delta`)"])
     (first, header), body = rows[0], rows[1:]
-    column = {("id", "stock"): "stock", ("id", "delta"): "delta"}.get(
-        tuple(c.lower() for c in header)
+    names = [c.lower() for c in header]
+    column = (
+        names[1]
+        if len(names) == 2 and names[0] == "id" and names[1] in ("stock", "delta")
+        else None
     )
     if column is None:
         raise WhatIfError([f"{source}:{first}: header must be `id,stock` or `id,delta`"])
