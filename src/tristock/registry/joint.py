@@ -11,7 +11,7 @@ on every run (one search worker, fixed seed).
 Lower bound (CP-SAT over a relaxation, ``tristock.registry.options``): per design a boolean
 y[d, c] for each over-subscribed code it uses (the option reduces c) and an integer cost
 k[d] ≥ L0, k[d] ≥ Σ_c y[d, c], k[d] ≥ n_S·(Σ_{c∈S} y[d, c] - |S| + 1) for each bound
-(S, n_S), Σ_{c∈S} y[d, c] ≤ |S| - 1 where no design without S exists; per over-subscribed
+(S, n_S), Σ_{c∈S} y[d, c] ≤ |S| - 1 where no design reduces all of S; per over-subscribed
 code Σ_d need_d(c)·(1 - y[d, c]) ≤ stock(c) (an option that reduces c is taken to need none of
 it, an optimistic count). Every joint proposal maps onto a solution of the relaxation with
 k[d] at most its changes, so the relaxation's optimum is a lower bound. The proposal is

@@ -9,18 +9,19 @@ the joint problem too.
   stock (``tristock.reoptimise``, exact and proven, dispatching fixed, trimmed and tuned
   designs). Its answers (up to ``top``) are options; when the design fits as it is, its
   0-change answer is the option "keep".
-- For each non-empty set S of the over-subscribed codes the design uses (at most
-  ``MAX_SUBSETS`` of them): the fewest changes of a design using none of S (``without=S``), and
-  its answers as options.
+- For each non-empty set S of the over-subscribed codes the design uses (every set when there
+  are at most ``MAX_SUBSETS`` codes; else each code alone and all of them): the fewest
+  changes of a design that uses every code of S fewer times than released, found by the same
+  re-optimisation on the residual catalog with the stock of each code c of S lowered to
+  boards x (released pieces of c - 1) (at most its residual); its answers are options too.
 
 The relaxation (``tristock.registry.joint``) bounds the changes of every option by how it
 treats the over-subscribed codes. An option *reduces* the codes whose pieces per board it
 lowers (it keeps or raises the others). Its changes are at least L0, at least the number of
-codes it reduces (one changed designator lowers one code), and, for a set S of codes that each
-sit at one designator only, at least the fewest changes without S whenever it reduces every
-code of S (to lower such a code is to drop it); when no design without S exists, no option
-reduces all of S. ``Bound(S, n)`` records these; a re-optimisation cut by its time limit gives
-no bound (the weaker ones remain) and clears ``proven``.
+codes it reduces (one changed designator lowers one code), and at least the fewest changes
+for S whenever it reduces every code of S; when no design reduces all of S (proven), no option
+does. ``Bound(S, n)`` records these; a re-optimisation cut by its time limit gives no bound
+(the weaker ones remain) and clears ``proven``.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ from itertools import combinations
 from typing import Any
 
 from tristock.catalog import Catalog
+from tristock.registry.release import with_stock
 from tristock.reoptimise import reoptimise
 from tristock.results import ReoptimisedCandidate, ReoptimiseResult
 from tristock.spec import parse_spec
@@ -122,18 +124,20 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
     t0 = time.perf_counter()
     spec = parse_spec(task.spec)
     parts: dict[str, str] = dict(task.design["parts"])
-    positions = {c: sum(1 for p in parts.values() if p == c) for c in task.over}
+    released = _pieces(parts, residual)
     options: dict[tuple[tuple[str, str], ...], Option] = {}
     proven = True
     searches = 0
 
-    def search(without: tuple[str, ...]) -> int | None:
+    def search(reduced: tuple[str, ...]) -> int | None:
         nonlocal proven, searches
+        lowered = {
+            c: max(min(task.boards * (released[c] - 1), residual.get(c).stock), 0) for c in reduced
+        }
         result = reoptimise(
             spec,
-            residual,
+            with_stock(residual, lowered),
             parts,
-            without=without,
             boards=task.boards,
             top=task.top,
             time_limit_s=task.time_limit_s,
@@ -156,14 +160,9 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
         )
     bounds = [Bound(reduces=(), changes=max(l0, 0))]
     for subset in _subsets(task.over)[1:]:
-        if all(positions[c] == 1 for c in subset):
-            fewest = search(subset)
-            if fewest is None:
-                bounds.append(Bound(reduces=subset, changes=None))
-            elif fewest >= 0:
-                bounds.append(Bound(reduces=subset, changes=fewest))
-        elif len(subset) == len(task.over):
-            search(subset)  # its answers are options; |S| bounds the cost of reducing S
+        fewest = search(subset)
+        if fewest is None or fewest >= 0:
+            bounds.append(Bound(reduces=subset, changes=fewest))
     ordered = sorted(
         options.values(), key=lambda o: (len(o.changed), o.cost, sorted(o.parts.items()))
     )
