@@ -26,6 +26,8 @@ T = TypeVar("T")
 R = TypeVar("R")
 
 SCHEDULER_ENV = "TRISTOCK_SCHEDULER"
+#: Seconds to wait for an existing scheduler to answer.
+CONNECT_TIMEOUT_S = 10.0
 
 
 class SchedulerUnavailable(RuntimeError):
@@ -60,7 +62,7 @@ def run_all(
 
     if scheduler is not None:
         try:
-            client = Client(scheduler, timeout="10s")  # type: ignore[no-untyped-call]
+            client = Client(scheduler, timeout=CONNECT_TIMEOUT_S)  # type: ignore[no-untyped-call]
         except (OSError, TimeoutError) as err:
             raise SchedulerUnavailable(f"dask scheduler {scheduler}: {err}") from None
         with client:
