@@ -9,11 +9,11 @@ import pytest
 from distributed import LocalCluster
 from test_registry_impact import SCENARIOS, TIME_LIMIT_S, released, small_catalog
 
+from tristock.registry import runner
 from tristock.registry.impact import ImpactSettings, impact
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.records import RevisionOut
 from tristock.registry.release import with_stock
-from tristock.registry import runner
 from tristock.registry.runner import SchedulerUnavailable, run_all
 
 __all__ = ["released"]  # the module fixture, shared
