@@ -128,3 +128,34 @@ def test_exit_codes_of_bad_input_and_faults(
     gone = "postgresql+psycopg://x@/x?host=/nonexistent-socket-dir&port=1"
     code, _, err = tristock(capsys, "designs", "list", "--db", gone)
     assert code == 1 and err.startswith("tristock designs list: registry ") and err.count("\n") == 1
+
+
+BAD_VALUES = ["0", "-1", "abc", "", "nan", "inf", "1e9", "10000001", "65", " 3", "x@y", "a b"]
+REGISTRY_OPTIONS = {
+    ("release", "DESIGN", "--name", "n1"): ["--boards", "--rank", "--name", "--note"],
+    ("designs", "plan", "n1"): ["--boards"],
+    ("designs", "show"): [],
+    ("impact",): ["--workers", "--time-limit", "--top", "--what-if"],
+}
+
+
+@pytest.mark.parametrize("value", BAD_VALUES)
+@pytest.mark.parametrize("head", list(REGISTRY_OPTIONS), ids=" ".join)
+def test_bad_option_values_are_one_line(
+    head: tuple[str, ...],
+    value: str,
+    shop: Path,
+    tmp_path: Path,
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    """Every bad value: exit 2 (bad input) or 1 (no registry yet for `impact`), one line on
+    stderr, no traceback, no database left half made (common practice)."""
+    design = demo_design_file(tmp_path)
+    argv = [str(design) if a == "DESIGN" else a for a in head]
+    options = REGISTRY_OPTIONS[head]
+    db = tmp_path / "r.sqlite"
+    for option in options or [None]:
+        line = [*argv, *([option, value] if option else [value])]
+        code, _, err = tristock(capsys, *line, "--catalog", str(shop), "--db", str(db))
+        assert code in (0, 1, 2, 3), line
+        assert err.count("\n") <= 1 and "Traceback" not in err, (line, err)
