@@ -30,7 +30,7 @@ from . import errors, openapi
 from .cache import AnswerCache
 from .errors import CatchAll
 from .limits import BodyLimit, ComputeGate, ComputeSlots
-from .routers import analysis, catalog, design, health, problems
+from .routers import analysis, catalog, design, health, problems, registry
 from .settings import Settings
 from .store import CatalogStore
 
@@ -85,7 +85,8 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     app.state.slots = slots
     app.state.cache = AnswerCache(settings.cache_size)
     errors.install(app)
-    for r in (design.router, analysis.router, catalog.router, health.router, problems.router):
+    routers = (design.router, analysis.router, catalog.router, registry.router, health.router)
+    for r in (*routers, problems.router):
         app.include_router(r)
     app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS)
     app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)

@@ -23,8 +23,12 @@ class ReleaseRefused(RegistryError):
     """The design does not meet its spec; ``reasons`` says why (CLI exit 3, HTTP 422)."""
 
     def __init__(self, name: str, reasons: list[str]) -> None:
+        self.name = name
         self.reasons = reasons
         super().__init__(f"{name}: the design does not meet its spec: " + "; ".join(reasons))
+
+    def __reduce__(self) -> tuple[type[ReleaseRefused], tuple[str, list[str]]]:
+        return (ReleaseRefused, (self.name, self.reasons))  # pickles to a compute process
 
 
 class StaleProposal(RegistryError):

@@ -80,6 +80,15 @@ def over_subscribed(active: list[RevisionOut], catalog: Catalog) -> list[OverSub
     return out
 
 
+def affected_by(active: list[RevisionOut], catalog: Catalog, part_id: str) -> list[str]:
+    """Names of the active designs using ``part_id`` when their planned builds together need
+    more than its stock (empty when the stock covers them all)."""
+    users = {r.name: r.boards * r.pieces[part_id] for r in active if part_id in r.pieces}
+    if sum(users.values()) <= stock_of(catalog, part_id):
+        return []
+    return sorted(users)
+
+
 def impact(
     active: list[RevisionOut],
     catalog: Catalog,
@@ -280,4 +289,4 @@ def _proposal(
     )
 
 
-__all__ = ["ImpactSettings", "impact", "over_subscribed", "planned_needs"]
+__all__ = ["ImpactSettings", "affected_by", "impact", "over_subscribed", "planned_needs"]

@@ -27,6 +27,9 @@ class WhatIfError(ValueError):
         self.lines = lines
         super().__init__("; ".join(lines))
 
+    def __reduce__(self) -> tuple[type[WhatIfError], tuple[list[str]]]:
+        return (WhatIfError, (self.lines,))  # pickles to a compute process
+
 
 @dataclass(frozen=True)
 class StockChange:
