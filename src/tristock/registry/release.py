@@ -36,10 +36,25 @@ def catalog_fingerprint(catalog: Catalog) -> str:
 
 
 def with_stock(catalog: Catalog, stock: dict[str, int]) -> Catalog:
-    """``catalog`` with the stock of the parts named in ``stock`` replaced (others kept)."""
-    for part_id, count in stock.items():
-        catalog = catalog.with_part(dataclasses.replace(catalog.get(part_id), stock=count))
-    return catalog
+    """``catalog`` with the stock of the parts named in ``stock`` replaced (others kept);
+    KeyError for a code not in the catalog."""
+    for part_id in stock:
+        catalog.get(part_id)
+    if not stock:
+        return catalog
+
+    def fix(parts: tuple[Any, ...]) -> tuple[Any, ...]:
+        return tuple(
+            dataclasses.replace(p, stock=stock[p.id]) if p.id in stock else p for p in parts
+        )
+
+    return dataclasses.replace(
+        catalog,
+        resistors=fix(catalog.resistors),
+        capacitors=fix(catalog.capacitors),
+        opamps=fix(catalog.opamps),
+        pots=fix(catalog.pots),
+    )
 
 
 def ample(catalog: Catalog) -> Catalog:

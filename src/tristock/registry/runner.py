@@ -56,7 +56,8 @@ def run_all(
         return []
     scheduler = scheduler or os.environ.get(SCHEDULER_ENV) or None
     if scheduler is None and not workers:
-        graph = [delay(function, pure=True)(task, catalog) for task in tasks]
+        shared = delay(catalog, pure=False)  # one node, not one copy per task
+        graph = [delay(function, pure=False)(task, shared) for task in tasks]
         return list(compute(*graph, scheduler="synchronous"))  # type: ignore[no-untyped-call]
     from distributed import Client, LocalCluster
 
