@@ -167,14 +167,14 @@ def _joint_minimum(
     for rev in active:
         for code, k in rev.pieces.items():
             need[code] = need.get(code, 0) + rev.boards * k
-    over = {c for c, n in need.items() if n > catalog.get(c).stock}
+    over = {c for c, n in need.items() if n > (catalog.get(c).stock if c in catalog else 0)}
     hit = {r.name for r in active if over & set(r.pieces)}
     left = {p.id: p.stock for p in catalog}
     for rev in active:
         if rev.name not in hit:
             for code, k in rev.pieces.items():
-                left[code] -= rev.boards * k
-    residual = with_stock(catalog, {c: max(v, 0) for c, v in left.items()})
+                left[code] = left.get(code, 0) - rev.boards * k
+    residual = with_stock(catalog, {c: max(v, 0) for c, v in left.items() if c in catalog})
     choices = [(r, options_by_brute_force(r, residual)) for r in active if r.name in hit]
     best: int | None = None
     for combo in itertools.product(*(opts for _, opts in choices)):
@@ -185,7 +185,7 @@ def _joint_minimum(
         for (rev, _), (_, _, pieces) in zip(choices, combo, strict=True):
             for code, k in pieces.items():
                 used[code] = used.get(code, 0) + rev.boards * k
-        if all(n <= left[c] for c, n in used.items()):
+        if all(n <= left.get(c, 0) for c, n in used.items()):
             best = total
     return over, hit, best
 
@@ -250,6 +250,20 @@ def test_fewer_answers_per_design_never_claim_a_false_proof(released: list[Revis
         if report.proposal.proven:
             assert report.proposal.total_changes == minimum
         check_allocation(report, released, catalog)
+
+
+def test_a_part_gone_from_the_catalog_is_over_subscribed(released: list[RevisionOut]) -> None:
+    """TR-2700 deleted from the tables: both designs using it are affected and change R1."""
+    full = small_catalog()
+    kept = tuple(r for r in full.resistors if r.id != "TR-2700")
+    catalog = Catalog(full.path, kept, full.capacitors, full.opamps)
+    over, hit, minimum = joint_minimum(released, catalog)
+    report = run(released, catalog)
+    assert over == {"TR-2700"} and hit == {"osc-a", "osc-c"}
+    assert report.over_subscribed[0].stock == 0
+    assert report.proposal is not None and report.proposal.proven
+    assert report.proposal.total_changes == minimum
+    check_allocation(report, released, catalog)
 
 
 def test_nothing_over_subscribed_lists_nothing(released: list[RevisionOut]) -> None:

@@ -131,8 +131,10 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
 
     def search(reduced: tuple[str, ...]) -> int | None:
         nonlocal proven, searches
-        lowered = {
-            c: max(min(task.boards * (released[c] - 1), residual.get(c).stock), 0) for c in reduced
+        lowered = {  # a code gone from the catalog cannot be used at all already
+            c: max(min(task.boards * (released[c] - 1), residual.get(c).stock), 0)
+            for c in reduced
+            if c in residual
         }
         result = reoptimise(
             spec,
