@@ -19,6 +19,7 @@ import multiprocessing
 import multiprocessing.connection
 import os
 import signal
+import socket
 import threading
 import time
 from http import HTTPStatus
@@ -54,6 +55,18 @@ def _raw_problem(status: int, detail: str) -> bytes:
     return head.encode("ascii") + body
 
 
+def set_nodelay(transport: asyncio.BaseTransport) -> None:
+    """Send each response at once (TCP_NODELAY) on a TCP connection.
+
+    asyncio sets the option only on sockets whose protocol number is IPPROTO_TCP; with
+    ``--workers`` > 1 uvicorn binds its listening socket with protocol 0, so accepted
+    connections inherit 0 and a response's last segment waited for the client's delayed ACK
+    (about 40 ms per request on Linux loopback)."""
+    sock = transport.get_extra_info("socket")
+    if sock is not None and sock.family in (socket.AF_INET, socket.AF_INET6):
+        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+
+
 class DeadlineH11Protocol(H11Protocol):
     """uvicorn's h11 protocol with a deadline for each request (see the module docstring)."""
 
@@ -63,6 +76,7 @@ class DeadlineH11Protocol(H11Protocol):
         self._deadline: asyncio.TimerHandle | None = None
 
     def connection_made(self, transport: asyncio.Transport) -> None:  # type: ignore[override]
+        set_nodelay(transport)
         super().connection_made(transport)
         self._arm()
 
