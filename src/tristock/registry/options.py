@@ -14,6 +14,8 @@ the joint problem too.
   changes of a design that uses every code of S fewer times than released, found by the same
   re-optimisation on the residual catalog with the stock of each code c of S lowered to
   boards x (released pieces of c - 1) (at most its residual); its answers are options too.
+  When one of the L0 answers already reduces every code of S, that fewest is L0 (it cannot be
+  less) and no search is needed: the usual case of a code whose stock is gone.
 
 The relaxation (``tristock.registry.joint``) bounds the changes of every option by how it
 treats the over-subscribed codes. An option *reduces* the codes whose pieces per board it
@@ -161,7 +163,12 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
             task.name, task.revision, (), none, proven, time.perf_counter() - t0, searches
         )
     bounds = [Bound(reduces=(), changes=max(l0, 0))]
+    first = list(options.values())  # the L0 answers
     for subset in _subsets(task.over)[1:]:
+        if l0 >= 0 and any(all(o.pieces.get(c, 0) < released[c] for c in subset) for o in first):
+            # an answer with the fewest changes of all reduces S already: S's fewest is L0
+            bounds.append(Bound(reduces=subset, changes=l0))
+            continue
         fewest = search(subset)
         if fewest is None or fewest >= 0:
             bounds.append(Bound(reduces=subset, changes=fewest))
