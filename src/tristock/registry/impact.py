@@ -11,6 +11,7 @@ proposal's change as a new revision.
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from dataclasses import dataclass
 from typing import Any
@@ -31,7 +32,14 @@ from tristock.registry.impact_report import (
     StockOverride,
 )
 from tristock.registry.joint import Affected, JointAnswer, solve_joint
-from tristock.registry.options import Option, OptionTask, design_options
+from tristock.registry.options import (
+    DesignOptions,
+    Option,
+    OptionTask,
+    design_options,
+    more_options,
+    option_order,
+)
 from tristock.registry.records import RevisionOut
 from tristock.registry.release import catalog_fingerprint, with_stock
 from tristock.registry.runner import describe, run_all
@@ -45,6 +53,7 @@ class ImpactSettings:
     top: int = 5
     time_limit_s: float = 5.0
     joint_time_limit_s: float = 30.0
+    extra_rounds: int = 2
     workers: int | None = None
     scheduler: str | None = None
 
@@ -118,6 +127,7 @@ def impact(
         no_proposal_reason=None,
         message="",
         work=[],
+        extra_rounds=0,
         scheduler=describe(settings.workers, settings.scheduler),
         elapsed_s=0.0,
     )
@@ -161,6 +171,32 @@ def impact(
     ]
     stock = {p.id: p.stock for p in catalog}
     answer = solve_joint(affected, residual, stock, settings.joint_time_limit_s)
+    withheld: set[str] = set()
+    rounds = 0
+    while not answer.proven and rounds < settings.extra_rounds:
+        congested = _congested(affected, residual)
+        if congested <= withheld:
+            break
+        withheld |= congested
+        crowded = [
+            n
+            for n, a in enumerate(affected)
+            if all(set(o.pieces) & withheld for o in a.options.options)
+        ]
+        if not crowded:
+            break
+        more = run_all(
+            more_options,
+            [dataclasses.replace(tasks[n], without=tuple(sorted(withheld))) for n in crowded],
+            residual_catalog,
+            workers=settings.workers,
+            scheduler=settings.scheduler,
+        )
+        for n, extra in zip(crowded, more, strict=True):
+            affected[n] = _widened(affected[n], extra)
+        rounds += 1
+        answer = solve_joint(affected, residual, stock, settings.joint_time_limit_s)
+    found = [a.options for a in affected]
     work = [
         DesignWork(
             name=o.name,
@@ -180,9 +216,38 @@ def impact(
             "no_proposal_reason": reason,
             "message": message,
             "work": work,
+            "extra_rounds": rounds,
             "elapsed_s": round(time.perf_counter() - t0, 4),
         }
     )
+
+
+def _congested(affected: list[Affected], residual: dict[str, int]) -> set[str]:
+    """Codes that the options could ask more of than the residual stock holds: for each code,
+    the sum over designs of the most any one of its options needs."""
+    demand: dict[str, int] = {}
+    for a in affected:
+        most: dict[str, int] = {}
+        for option in a.options.options:
+            for code, pieces in option.pieces.items():
+                most[code] = max(most.get(code, 0), a.boards * pieces)
+        for code, need in most.items():
+            demand[code] = demand.get(code, 0) + need
+    return {c for c, need in demand.items() if need > residual.get(c, 0)}
+
+
+def _widened(a: Affected, extra: DesignOptions) -> Affected:
+    """``a`` with the new options of ``extra`` added (in the options' order)."""
+    known = {tuple(sorted(o.parts.items())) for o in a.options.options}
+    new = [o for o in extra.options if tuple(sorted(o.parts.items())) not in known]
+    merged = dataclasses.replace(
+        a.options,
+        options=tuple(sorted([*a.options.options, *new], key=option_order)),
+        proven=a.options.proven and extra.proven,
+        elapsed_s=a.options.elapsed_s + extra.elapsed_s,
+        searches=a.options.searches + extra.searches,
+    )
+    return dataclasses.replace(a, options=merged)
 
 
 def _affected(rev: RevisionOut, catalog: Catalog, over: set[str]) -> AffectedDesign:

@@ -112,5 +112,6 @@ class ImpactReport(_Out):
     no_proposal_reason: str | None
     message: str
     work: list[DesignWork]
+    extra_rounds: int  # rounds that widened crowded designs' options (see ImpactSettings)
     scheduler: str
     elapsed_s: float

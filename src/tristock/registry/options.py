@@ -56,6 +56,7 @@ class OptionTask:
     over: tuple[str, ...]  # the over-subscribed codes this design uses
     top: int
     time_limit_s: float
+    without: tuple[str, ...] = ()  # codes withheld (a later round: codes in contention)
 
 
 @dataclass(frozen=True)
@@ -114,6 +115,11 @@ def _option(c: ReoptimisedCandidate, catalog: Catalog) -> Option:
     )
 
 
+def option_order(option: Option) -> tuple[int, float, list[tuple[str, str]]]:
+    """A design's options in order: fewest changes, then cost, then stock codes."""
+    return (len(option.changed), option.cost, sorted(option.parts.items()))
+
+
 def _fewest(result: ReoptimiseResult) -> int | None:
     """The proven fewest changes of a re-optimisation; None when none exists (proven)."""
     if result.candidates:
@@ -142,6 +148,7 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
             spec,
             with_stock(residual, lowered),
             parts,
+            without=task.without,
             boards=task.boards,
             top=task.top,
             time_limit_s=task.time_limit_s,
@@ -172,9 +179,7 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
         fewest = search(subset)
         if fewest is None or fewest >= 0:
             bounds.append(Bound(reduces=subset, changes=fewest))
-    ordered = sorted(
-        options.values(), key=lambda o: (len(o.changed), o.cost, sorted(o.parts.items()))
-    )
+    ordered = sorted(options.values(), key=option_order)
     return DesignOptions(
         task.name,
         task.revision,
@@ -183,6 +188,31 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
         proven,
         time.perf_counter() - t0,
         searches,
+    )
+
+
+def more_options(task: OptionTask, residual: Catalog) -> DesignOptions:
+    """More options of one design for a later round: the fewest-changes answers without the
+    codes ``task.without`` (those in contention). No bounds: the first round's stand."""
+    t0 = time.perf_counter()
+    result = reoptimise(
+        parse_spec(task.spec),
+        residual,
+        dict(task.design["parts"]),
+        without=task.without,
+        boards=task.boards,
+        top=task.top,
+        time_limit_s=task.time_limit_s,
+    )
+    found = tuple(_option(c, residual) for c in result.candidates)
+    return DesignOptions(
+        task.name,
+        task.revision,
+        found,
+        (),
+        result.search.proven_optimal,
+        time.perf_counter() - t0,
+        1,
     )
 
 
