@@ -5,7 +5,11 @@ that use it need together (boards x pieces per board, the latest revision of eve
 not retired). Every design using an over-subscribed code is *affected*; only those are
 re-solved (``tristock.registry.options``, one task per design on Dask), the others keep their
 parts and their builds are reserved first. The joint proposal and its proof:
-``tristock.registry.joint``. Nothing is written: ``tristock designs accept`` records a
+``tristock.registry.joint``. When the proposal is not proven, the designs whose every option
+uses a congested code (one the options together could ask more of than its residual stock)
+are re-optimised without the congested codes, and the proposal is made again (up to
+``extra_rounds`` times); the lower bound does not depend on the options, so the proof stays
+sound. Nothing is written: ``tristock designs accept`` records a
 proposal's change as a new revision.
 """
 

@@ -3,10 +3,10 @@ the fewest changed designators in total; and the lower bound that proves it.
 
 Proposal (CP-SAT): a boolean x[d, o] per design d and option o, exactly one per design; for
 every stock code c, Σ boards_d · pieces_o(c) · x[d, o] ≤ R(c), the residual stock (stock less
-the unaffected designs' needs). Minimise W·Σ changes(o)·x + Σ position(o)·x, where position
-is the option's place in its design's list (fewest changes, then cost, then stock codes) and
-W exceeds every sum of positions, so the change count comes first and ties fall the same way
-on every run (one search worker, fixed seed).
+the unaffected designs' needs). Minimise Σ changes(o)·x; once that is proven, fix it and
+minimise Σ position(o)·x, where position is the option's place in its design's list (fewest
+changes, then cost, then stock codes), so ties fall the same way on every run (one search
+worker, fixed seed).
 
 Lower bound (CP-SAT over a relaxation, ``tristock.registry.options``): per design a boolean
 y[d, c] for each over-subscribed code it uses (the option reduces c) and an integer cost
@@ -70,35 +70,47 @@ def _solver(time_limit_s: float) -> cp_model.CpSolver:
 def propose(
     affected: list[Affected], residual: dict[str, int], time_limit_s: float
 ) -> tuple[dict[str, Option] | None, int | None, str]:
-    """The proposal over the options found: (choice, total changes, status name)."""
+    """The proposal over the options found: (choice, total changes, status name of the
+    change count's solve)."""
     model = cp_model.CpModel()
     choice: dict[str, list[tuple[cp_model.IntVar, Option]]] = {}
     usage: dict[str, list[tuple[int, cp_model.IntVar]]] = {}
-    weight = sum(len(a.options.options) for a in affected) + 1
-    objective = []
+    changes, positions = [], []
     for a in affected:
         name = a.options.name
         row = []
         for position, option in enumerate(a.options.options):
             x = model.new_bool_var(f"x[{name},{position}]")
             row.append((x, option))
-            objective.append((weight * len(option.changed) + position) * x)
+            changes.append(len(option.changed) * x)
+            positions.append(position * x)
             for code, pieces in option.pieces.items():
                 usage.setdefault(code, []).append((a.boards * pieces, x))
         model.add_exactly_one(x for x, _ in row)
         choice[name] = row
     for code, terms in usage.items():
         model.add(sum(n * x for n, x in terms) <= max(residual.get(code, 0), 0))
-    model.minimize(sum(objective))
+    model.minimize(sum(changes))
     solver = _solver(time_limit_s)
     status = solver.solve(model)
     if status not in (cp_model.OPTIMAL, cp_model.FEASIBLE):
         return None, None, solver.status_name(status)
+    name_of_status = solver.status_name(status)
+    if status == cp_model.OPTIMAL:  # then the ties: each design's own order
+        best = round(solver.objective_value)
+        for row in choice.values():
+            for x, _ in row:
+                model.add_hint(x, solver.value(x))
+        model.add(sum(changes) == best)
+        model.minimize(sum(positions))
+        tie_break = _solver(time_limit_s)
+        if tie_break.solve(model) in (cp_model.OPTIMAL, cp_model.FEASIBLE):
+            solver = tie_break
     chosen = {
         name: next(option for x, option in row if solver.value(x)) for name, row in choice.items()
     }
     total = sum(len(o.changed) for o in chosen.values())
-    return chosen, total, solver.status_name(status)
+    return chosen, total, name_of_status
 
 
 def lower_bound(
