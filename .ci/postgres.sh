@@ -8,8 +8,17 @@ set -euo pipefail
 dir="$1"
 port="${2:-55432}"
 if ! ls -d /usr/lib/postgresql/*/bin >/dev/null 2>&1; then
+  # The package would start a default cluster on port 5432: a policy-rc.d that refuses
+  # service starts keeps the install to the binaries (removed again if we put it there).
+  policy=""
+  if [ ! -e /usr/sbin/policy-rc.d ]; then
+    printf '#!/bin/sh\nexit 101\n' > /usr/sbin/policy-rc.d
+    chmod 755 /usr/sbin/policy-rc.d
+    policy=/usr/sbin/policy-rc.d
+  fi
   apt-get update -qq >&2
   DEBIAN_FRONTEND=noninteractive apt-get install -y -qq postgresql >/dev/null
+  if [ -n "$policy" ]; then rm -f "$policy"; fi
 fi
 bin="$(ls -d /usr/lib/postgresql/*/bin | sort -V | tail -1)"
 as_postgres() {
