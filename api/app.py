@@ -39,7 +39,19 @@ log = logging.getLogger("tristock.api")
 OPENAPI_PATH = Path(__file__).with_name("openapi.json")
 REGENERATE = "python -m tristock.api.app --write-openapi"
 #: The endpoints whose work runs in a compute slot.
-COMPUTE_PATHS = frozenset({"/v1/design", "/v1/reoptimise", "/v1/analyse", "/v1/simulate"})
+#: (An accept's path holds the design's name, so the gate, which matches whole paths, does not
+#: see it; its compute slot still waits and refuses like every other.)
+COMPUTE_PATHS = frozenset(
+    {
+        "/v1/design",
+        "/v1/reoptimise",
+        "/v1/analyse",
+        "/v1/simulate",
+        "/v1/designs",
+        "/v1/designs/{name}/accept",
+        "/v1/impact",
+    }
+)
 
 
 def operation_id(route: APIRoute) -> str:

@@ -11,7 +11,7 @@ from __future__ import annotations
 import logging
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends, HTTPException, Query, Request
+from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request
 
 from tristock.catalog import Catalog
 from tristock.registry import (
@@ -177,7 +177,9 @@ def get_design(name: str, registry: RegistryDep) -> StrictJSON:
     responses=_READ_ERRORS,
     summary="One revision of a released design",
 )
-def get_revision(name: str, revision: int, registry: RegistryDep) -> StrictJSON:
+def get_revision(
+    name: str, revision: Annotated[int, Path(ge=1, le=2**31 - 1)], registry: RegistryDep
+) -> StrictJSON:
     try:
         return answer(registry.revision(name, revision).model_dump(mode="json"))
     except Exception as err:

@@ -147,19 +147,7 @@ def impact(
     residual_catalog = with_stock(
         catalog, {k: max(v, 0) for k, v in residual.items() if k in needs}
     )
-    tasks = [
-        OptionTask(
-            name=n,
-            revision=by_name[n].revision,
-            spec=by_name[n].spec,
-            design=by_name[n].design,
-            boards=by_name[n].boards,
-            over=tuple(sorted(c for c in by_name[n].pieces if c in over_codes)),
-            top=settings.top,
-            time_limit_s=settings.time_limit_s,
-        )
-        for n in hit
-    ]
+    tasks = [_task(by_name[n], over_codes, settings) for n in hit]
     found = run_all(
         design_options,
         tasks,
@@ -175,29 +163,11 @@ def impact(
     ]
     stock = {p.id: p.stock for p in catalog}
     answer = solve_joint(affected, residual, stock, settings.joint_time_limit_s)
-    withheld: set[str] = set()
     rounds = 0
+    withheld: set[str] = set()
     while not answer.proven and rounds < settings.extra_rounds:
-        congested = _congested(affected, residual)
-        if congested <= withheld:
+        if not _widen(affected, tasks, residual, residual_catalog, withheld, settings):
             break
-        withheld |= congested
-        crowded = [
-            n
-            for n, a in enumerate(affected)
-            if all(set(o.pieces) & withheld for o in a.options.options)
-        ]
-        if not crowded:
-            break
-        more = run_all(
-            more_options,
-            [dataclasses.replace(tasks[n], without=tuple(sorted(withheld))) for n in crowded],
-            residual_catalog,
-            workers=settings.workers,
-            scheduler=settings.scheduler,
-        )
-        for n, extra in zip(crowded, more, strict=True):
-            affected[n] = _widened(affected[n], extra)
         rounds += 1
         answer = solve_joint(affected, residual, stock, settings.joint_time_limit_s)
     found = [a.options for a in affected]
@@ -224,6 +194,53 @@ def impact(
             "elapsed_s": round(time.perf_counter() - t0, 4),
         }
     )
+
+
+def _task(rev: RevisionOut, over: set[str], settings: ImpactSettings) -> OptionTask:
+    return OptionTask(
+        name=rev.name,
+        revision=rev.revision,
+        spec=rev.spec,
+        design=rev.design,
+        boards=rev.boards,
+        over=tuple(sorted(c for c in rev.pieces if c in over)),
+        top=settings.top,
+        time_limit_s=settings.time_limit_s,
+    )
+
+
+def _widen(
+    affected: list[Affected],
+    tasks: list[OptionTask],
+    residual: dict[str, int],
+    residual_catalog: Catalog,
+    withheld: set[str],
+    settings: ImpactSettings,
+) -> bool:
+    """One widening round: add the congested codes to ``withheld`` and give every design
+    whose options all use one of them the answers without them (``affected`` is updated in
+    place). False when there is nothing new to withhold or no design to widen."""
+    congested = _congested(affected, residual)
+    if congested <= withheld:
+        return False
+    withheld |= congested
+    crowded = [
+        n
+        for n, a in enumerate(affected)
+        if all(set(o.pieces) & withheld for o in a.options.options)
+    ]
+    if not crowded:
+        return False
+    more = run_all(
+        more_options,
+        [dataclasses.replace(tasks[n], without=tuple(sorted(withheld))) for n in crowded],
+        residual_catalog,
+        workers=settings.workers,
+        scheduler=settings.scheduler,
+    )
+    for n, extra in zip(crowded, more, strict=True):
+        affected[n] = _widened(affected[n], extra)
+    return True
 
 
 def _congested(affected: list[Affected], residual: dict[str, int]) -> set[str]:

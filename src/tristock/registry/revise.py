@@ -126,8 +126,11 @@ def accept(
         raise SpecError([f"proposal.designs[{name}].design_after: expected an object"])
     if not mine.get("changed"):
         return latest  # nothing to change: no new revision
+    listed = mine.get("changes")
     changes = ", ".join(
-        f"{c['designator']} {c['from_id']} -> {c['to_id']}" for c in mine.get("changes", [])
+        f"{c.get('designator')} {c.get('from_id')} -> {c.get('to_id')}"
+        for c in (listed if isinstance(listed, list) else [])
+        if isinstance(c, dict)
     )
     draft = draft_from(
         name,
