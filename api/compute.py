@@ -31,7 +31,7 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
-from tristock.catalog import Catalog
+from tristock.stock.catalog import Catalog
 
 T = TypeVar("T")
 log = logging.getLogger("tristock.api")

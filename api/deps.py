@@ -13,7 +13,7 @@ from typing import Annotated
 from fastapi import Depends, HTTPException, Request
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 
-from tristock.catalog import Catalog
+from tristock.stock.catalog import Catalog
 
 from .cache import AnswerCache
 from .limits import ComputeSlots

@@ -32,7 +32,7 @@ from starlette.responses import Response
 from starlette.routing import compile_path
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from tristock.spec import SpecError
+from tristock.spec.loading import SpecError
 
 from .jsonout import to_json_bytes
 from .store import CatalogUnavailable

@@ -18,7 +18,7 @@ import anyio
 from anyio.lowlevel import RunVar
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from tristock.catalog import Catalog
+from tristock.stock.catalog import Catalog
 
 from .compute import Parcel, ProcessPool
 from .errors import ServiceProblem, problem_response

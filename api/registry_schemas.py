@@ -6,7 +6,7 @@ from typing import Any
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from tristock.limits import BOARDS, STOCK
+from tristock.spec.limits import BOARDS, STOCK
 
 from .schemas import TIME_LIMIT_HELP, DesignBody
 

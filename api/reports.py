@@ -1,5 +1,5 @@
 """Response models of ``POST /v1/analyse`` and ``POST /v1/simulate``: the shape of the dicts
-``tristock.report`` builds for the CLI's ``--json`` (field for field; unknown keys are
+``tristock.report.board`` builds for the CLI's ``--json`` (field for field; unknown keys are
 refused, so a test that validates real answers notices when the two drift apart).
 
 Units are in the names: ``_hz``, ``_vpp`` (volts peak to peak), ``_v``, ``_s``,
@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from tristock.results import PartOut, Predicted, WarningOut
+from tristock.designs.results import PartOut, Predicted, WarningOut
 
 
 class _Out(BaseModel):

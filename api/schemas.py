@@ -1,9 +1,9 @@
 """Request bodies (pydantic, unknown keys rejected, numbers strict: a boolean or a string is
 not a number) and the small response shapes of the API: problem details and health.
 
-Results themselves are the library's: ``tristock.results.DesignResult``, the dicts of
-``tristock.report`` (described by ``tristock.api.reports``); part items are the ``tristock.parts``
-dataclasses, field for field the columns of the tables.
+Results themselves are the library's: ``tristock.designs.results.DesignResult``, the dicts of
+``tristock.report.board`` (described by ``tristock.api.reports``); part items are the
+``tristock.stock.parts`` dataclasses, field for field the columns of the tables.
 """
 
 from __future__ import annotations
@@ -12,8 +12,8 @@ from typing import Any, Literal, TypeAlias
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from tristock.parts import Capacitor, OpAmp, Pot, Resistor
-from tristock.spec import RankBy, Spec
+from tristock.spec.model import RankBy, Spec
+from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 from .settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 

@@ -20,7 +20,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from tristock.catalog import (
+from tristock.stock.catalog import (
     DEFAULT_POLICY,
     KINDS,
     Catalog,

@@ -131,11 +131,11 @@ def load(
 
 def where_the_time_goes(spec_data: dict[str, Any]) -> None:
     """One design in-process: total, and the part spent re-checking candidates."""
-    from tristock.analysis import analyse
-    from tristock.catalog import load_catalog
-    from tristock.designfile import resolve
-    from tristock.search import design
-    from tristock.spec import parse_spec
+    from tristock.analysis.bundle import analyse
+    from tristock.circuits.board import resolve
+    from tristock.designs import design
+    from tristock.spec.loading import parse_spec
+    from tristock.stock.catalog import load_catalog
 
     catalog = load_catalog(demo_catalog_dir())
     spec = parse_spec(spec_data)

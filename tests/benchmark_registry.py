@@ -24,16 +24,17 @@ from typing import Any
 
 import numpy as np
 
-from tristock.catalog import Catalog, load_catalog
+from tristock.designs import design
+from tristock.designs.results import Candidate
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.registry import Registry
 from tristock.registry.impact import ImpactSettings, impact, planned_needs
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.records import Draft
 from tristock.registry.release import catalog_fingerprint, kind_of, with_stock
-from tristock.results import Candidate
-from tristock.search import design
-from tristock.spec import Spec, load_spec, parse_spec
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog, load_catalog
 
 #: The demo's stock counts times this: replacements for hundreds of builds exist.
 STOCK_SCALE = 10

@@ -22,11 +22,11 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-import tristock.reoptimise as reopt_module
-from tristock.catalog import load_catalog
-from tristock.design import DESIGNATORS
-from tristock.search import design
-from tristock.spec import load_spec
+import tristock.designs.reoptimise as reopt_module
+from tristock.circuits.board import DESIGNATORS
+from tristock.designs import design
+from tristock.spec.loading import load_spec
+from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent
 TARGET_MEDIAN_S = 0.200

@@ -29,8 +29,7 @@ from typing import Any
 
 import numpy as np
 
-from tristock.catalog import Catalog, load_catalog
-from tristock.search import design
+from tristock.designs import design
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import (
@@ -41,7 +40,9 @@ from tristock.search.model import (
     evaluate,
     rank_key,
 )
-from tristock.spec import Spec, load_spec, parse_spec
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog, load_catalog
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO = REPO / "catalogs" / "demo"
@@ -139,7 +140,7 @@ def peak_memory() -> tuple[str, float, int]:
         if probe.returncode == 0 and "--example" in probe.stdout:
             return _rss([exe, "design", "--example", "--json"], "tristock design --example --json")
     code = (
-        "from tristock.catalog import load_catalog\n"
+        "from tristock.stock.catalog import load_catalog\n"
         "from tristock.search import design\n"
         "from tristock.spec import parse_spec\n"
         f"r = design(parse_spec({FALLBACK_SPEC!r}), load_catalog({str(DEMO)!r}))\n"

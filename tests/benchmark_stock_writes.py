@@ -9,7 +9,7 @@ a table (full validation; its quiet wait excluded by ageing the file).
 
 Race: an editor truncates resistors.csv, writes half (cut mid-row or at a row end), pauses
 0.2 s, writes the rest; 4 threads add 1 to one part meanwhile (quiet period 1.5 s). Each run
-checks the exact invariant of tests/test_stock_race.py: the editor's content with every
+checks the exact invariant of tests/stock/test_stock_race.py: the editor's content with every
 acknowledged delta applied, acknowledged answers in sequence.
 """
 
@@ -27,7 +27,7 @@ import time
 from pathlib import Path
 
 from tristock import cli
-from tristock.catalog import StockError, WritePolicy, adjust_stock, load_catalog
+from tristock.stock.catalog import StockError, WritePolicy, adjust_stock, load_catalog
 
 RACE_POLICY = WritePolicy(quiet_s=1.5, max_wait_s=5.0)
 EDITOR = (

@@ -21,12 +21,12 @@ import statistics
 import time
 from pathlib import Path
 
-from tristock.catalog import load_catalog
-from tristock.reoptimise import reoptimise
-from tristock.search import design
-from tristock.spec import load_spec
-from tristock.trim.context import TRIM_DESIGNATORS, trim_context
-from tristock.trim.walk import TrimSearch, walk
+from tristock.designs import design
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.trimmed.context import TRIM_DESIGNATORS, trim_context
+from tristock.designs.trimmed.walk import TrimSearch, walk
+from tristock.spec.loading import load_spec
+from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent
 DEMO = REPO / "catalogs" / "demo"

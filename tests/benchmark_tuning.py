@@ -19,10 +19,10 @@ import time
 from pathlib import Path
 
 from tristock import cli
-from tristock.catalog import load_catalog
-from tristock.reoptimise import reoptimise
-from tristock.spec import parse_spec, read_mapping
-from tristock.tuning import design_tuned
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.tuned import design_tuned
+from tristock.spec.loading import parse_spec, read_mapping
+from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parent.parent
 

@@ -8,7 +8,7 @@ each, 0..70 °C). Times, by ``time.perf_counter`` over ``--runs`` calls each (me
 ``worst_case`` (six extremes) and the coverage bound (``box_extremes``; frequency only, as
 ``trim.coverage`` asks). Prints the model evaluations per call and the frequency bounds.
 
-Before/after: the script also runs on a tree older than ``tristock.worstcase`` (where
+Before/after: the script also runs on a tree older than ``tristock.analysis.worstcase`` (where
 ``analysis.worst_case`` refined only the offset and bias variables and
 ``analysis.corner_extremes`` evaluated the corners), e.g.
 ``PYTHONPATH=<old tree>/src python tests/benchmark_worstcase.py``, so both are timed alike.
@@ -24,22 +24,23 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from tristock.catalog import load_catalog
-from tristock.design import DESIGNATORS, Design
-from tristock.designfile import design_for
-from tristock.search import design
-from tristock.spec import Spec, load_spec, parse_spec
+from tristock.circuits.board import DESIGNATORS, Design
+from tristock.designs import design
+from tristock.export.designfile import design_for
+from tristock.spec.loading import load_spec, parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import load_catalog
 
 try:
-    from tristock.worstcase import box_extremes, worst_case
+    from tristock.analysis.worstcase import box_extremes, worst_case
 
     def coverage_bound(d: Design, spec: Spec) -> dict[str, tuple[float, float]]:
         return box_extremes(d, spec, ["frequency_hz"])
 
-    CODE = "box search (tristock.worstcase)"
+    CODE = "box search (tristock.analysis.worstcase)"
 except ImportError:  # an older tree: corners and an offset/bias refinement
-    from tristock.analysis import corner_extremes as coverage_bound  # type: ignore
-    from tristock.analysis import worst_case  # type: ignore
+    from tristock.analysis.bundle import corner_extremes as coverage_bound  # type: ignore
+    from tristock.analysis.worstcase import worst_case  # type: ignore
 
     CODE = "corners (analysis.worst_case, analysis.corner_extremes)"
 

@@ -7,7 +7,7 @@ same cases every time) and bounded per operation (``BUDGET``, scaled by ``--scal
 
     python tests/fuzz_api.py [--scale 10]     # about 10,000 cases; prints the counts
 
-``tests/test_api_fuzz.py`` runs it in CI at scale 1 (at least 1,000 cases).
+``tests/api/test_api_fuzz.py`` runs it in CI at scale 1 (at least 1,000 cases).
 """
 
 from __future__ import annotations

@@ -9,7 +9,7 @@ import sys
 import textwrap
 from pathlib import Path
 
-from tristock.catalog import load_catalog
+from tristock.stock.catalog import load_catalog
 
 SMALL = Path(__file__).resolve().parent / "fixtures" / "small_catalog"
 
@@ -34,7 +34,7 @@ WITHOUT_FCNTL = textwrap.dedent(
         importlib.import_module(name)
     assert "fcntl" not in sys.modules or sys.modules["fcntl"] is None
 
-    from tristock.catalog import adjust_stock
+    from tristock.stock.catalog import adjust_stock
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # filelock notes that only a soft lock is available
         assert adjust_stock(sys.argv[1], "TR-2K20", 1) == 4001

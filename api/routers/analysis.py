@@ -5,9 +5,9 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from tristock.design import Design
-from tristock.designfile import design_for
-from tristock.report import analysis_report, simulation_report
+from tristock.circuits.board import Design
+from tristock.export.designfile import design_for
+from tristock.report.board import analysis_report, simulation_report
 from tristock.simulate import SimulationError
 
 from ..deps import CatalogDep, SettingsDep, SlotsDep

@@ -1,8 +1,8 @@
 """``/v1/catalog/{kind}``: list (filters, paging), one part, and stock updates.
 
-Items are the ``tristock.parts`` rows as parsed: the table's columns, values in SI units. An
-item's ``ETag`` is its ``tristock.catalog.part_version`` (strong: it changes with any field).
-Stock writes go through ``tristock.catalog.update_stock`` (lock, quiet wait, validation of the
+Items are the ``tristock.stock.parts`` rows as parsed: the table's columns, values in SI units. An
+item's ``ETag`` is its ``tristock.stock.catalog.part_version`` (strong: it changes with any field).
+Stock writes go through ``tristock.stock.catalog.update_stock`` (lock, quiet wait, validation of the
 catalog as it is on disk, a check that nothing changed before the rename, idempotency keys);
 this module only maps its outcomes to HTTP statuses.
 """
@@ -17,7 +17,7 @@ from typing import Annotated, Any, Final
 
 from fastapi import APIRouter, Depends, Header, HTTPException, Query, Request, Response
 
-from tristock.catalog import (
+from tristock.stock.catalog import (
     ALTERNATIVE_COLUMNS,
     Catalog,
     CatalogBusy,
@@ -32,7 +32,7 @@ from tristock.catalog import (
     part_version,
     update_stock,
 )
-from tristock.parts import Capacitor, Part, Pot, PotKind, Resistor
+from tristock.stock.parts import Capacitor, Part, Pot, PotKind, Resistor
 
 from ..deps import SettingsDep, StoreDep, require_writer
 from ..errors import FieldProblem

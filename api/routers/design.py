@@ -8,11 +8,11 @@ from typing import Any
 
 from fastapi import APIRouter
 
-from tristock.designfile import part_ids
-from tristock.reoptimise import reoptimise
-from tristock.results import DesignResult, ReoptimiseResult
-from tristock.search import design
-from tristock.spec import Spec
+from tristock.circuits.board import part_ids
+from tristock.designs import design
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import DesignResult, ReoptimiseResult
+from tristock.spec.model import Spec
 
 from ..compute import Parcel
 from ..deps import CacheDep, CatalogDep, SettingsDep, SlotsDep, VersionedCatalogDep

@@ -11,7 +11,7 @@ import anyio.to_thread
 from fastapi import APIRouter
 
 from tristock import __version__
-from tristock.catalog import Catalog
+from tristock.stock.catalog import Catalog
 
 from ..deps import SettingsDep, SlotsDep, StoreDep
 from ..jsonout import StrictJSON, answer

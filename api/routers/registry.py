@@ -13,7 +13,6 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request
 
-from tristock.catalog import Catalog
 from tristock.registry import (
     Registry,
     RegistryUnavailable,
@@ -29,6 +28,7 @@ from tristock.registry.release import draft_from
 from tristock.registry.revise import accept
 from tristock.registry.runner import SchedulerUnavailable
 from tristock.registry.whatif import StockChange, WhatIfError, apply_what_if
+from tristock.stock.catalog import Catalog
 
 from ..compute import Parcel
 from ..deps import CatalogDep, SettingsDep, SlotsDep, require_writer

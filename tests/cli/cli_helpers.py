@@ -17,11 +17,11 @@ from functools import cache
 from pathlib import Path
 from typing import Any
 
-from tristock.catalog import load_catalog
 from tristock.cli import main
+from tristock.designs import design
 from tristock.examples import demo_catalog_dir, example_spec_path
-from tristock.search import design
-from tristock.spec import load_spec
+from tristock.spec.loading import load_spec
+from tristock.stock.catalog import load_catalog
 
 REPO = Path(__file__).resolve().parents[2]
 SMALL_CATALOG = REPO / "tests" / "fixtures" / "small_catalog"

@@ -26,15 +26,16 @@ from cli_helpers import (
     write_design,
 )
 
-from tristock import limits
-from tristock.catalog import load_catalog
 from tristock.cli import design as design_command
 from tristock.cli import exits
 from tristock.cli.common import PLOT_SUFFIXES
 from tristock.cli.output import json_text
-from tristock.plot import FORMATS
-from tristock.search import DEFAULT_TIME_LIMIT_S, design
-from tristock.spec import parse_spec
+from tristock.designs import design
+from tristock.designs.fixed import DEFAULT_TIME_LIMIT_S
+from tristock.report.plot import FORMATS
+from tristock.spec import limits
+from tristock.spec.loading import parse_spec
+from tristock.stock.catalog import load_catalog
 
 
 @pytest.fixture(autouse=True)

@@ -18,7 +18,7 @@ from tristock.api.app import create_app
 from tristock.api.settings import Settings
 
 from tristock.examples import demo_catalog_dir, example_spec_path
-from tristock.spec import load_spec
+from tristock.spec.loading import load_spec
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")  # the TestClient's note about its HTTP client

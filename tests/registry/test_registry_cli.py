@@ -27,7 +27,7 @@ def shop(tmp_path: Path) -> Path:
 
 def demo_design_file(folder: Path, **parts: str) -> Path:
     from tristock.examples import example_spec_path
-    from tristock.spec import load_spec
+    from tristock.spec.loading import load_spec
 
     spec = load_spec(example_spec_path("demo")).model_dump(mode="json")
     path = folder / "demo-design.json"

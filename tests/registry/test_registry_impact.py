@@ -25,19 +25,19 @@ import eseries
 import numpy as np
 import pytest
 
-from tristock.catalog import Catalog
-from tristock.design import DESIGNATORS, Design, rails_from_supply
-from tristock.designfile import resolve
-from tristock.parts import Capacitor, OpAmp, Resistor
+from tristock.circuits.board import DESIGNATORS, Design, rails_from_supply, resolve
+from tristock.designs.candidate import accepts
 from tristock.registry import Registry
 from tristock.registry.impact import ImpactSettings, impact
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.records import RevisionOut
 from tristock.registry.release import draft_from, with_stock
-from tristock.search import accepts
 from tristock.search.model import build_model
 from tristock.search.rows import evaluate
-from tristock.spec import Spec, parse_spec
+from tristock.spec.loading import parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 E12_OHMS = [float(v) for v in eseries.erange(eseries.E12, 2.2e3, 50e3)]  # IEC 60063 via eseries
 E6_FARADS = [float(v) for v in eseries.erange(eseries.E6, 4.7e-9, 0.23e-6)]

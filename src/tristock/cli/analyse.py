@@ -10,15 +10,15 @@ import argparse
 from pathlib import Path
 from typing import Any
 
+from tristock.circuits.board import Design, rails_from_supply
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file
 from tristock.cli.design import spec_lines
 from tristock.cli.output import emit, emit_json
-from tristock.design import Design, rails_from_supply
-from tristock.report import analysis_report
-from tristock.search import CAUTIONS
-from tristock.spec import Spec
-from tristock.units import format_value
+from tristock.designs.candidate import CAUTIONS
+from tristock.report.board import analysis_report
+from tristock.spec.model import Spec
+from tristock.stock.units import format_value
 
 
 def render_analysis(spec: Spec, d: Design, data: dict[str, Any]) -> str:

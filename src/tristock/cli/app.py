@@ -48,10 +48,10 @@ def known_failure(err: Exception) -> int | None:
         complain(str(err))
         return exits.BAD_INPUT
     # the library's errors, imported here so that ``--help`` never loads the library
-    from tristock.catalog import CatalogError, StockError
-    from tristock.checks import DoesNotOscillate
+    from tristock.circuits.checks import DoesNotOscillate
     from tristock.simulate import SimulationError
-    from tristock.spec import SpecError
+    from tristock.spec.loading import SpecError
+    from tristock.stock.catalog import CatalogError, StockError
 
     if isinstance(err, SpecError):
         complain("tristock: " + "; ".join(err.lines))

@@ -11,13 +11,13 @@ import argparse
 import math
 import sys
 
-from tristock import limits
-from tristock.catalog import Catalog, CatalogError, load_catalog, parse_number, set_stock
 from tristock.cli import exits
 from tristock.cli.exits import UsageError
 from tristock.cli.output import emit, write_quietly
-from tristock.parts import DELAY_MEANING
-from tristock.units import format_value
+from tristock.spec import limits
+from tristock.stock.catalog import Catalog, CatalogError, load_catalog, parse_number, set_stock
+from tristock.stock.parts import DELAY_MEANING
+from tristock.stock.units import format_value
 
 
 def _value(text: str, option: str) -> float:
@@ -28,7 +28,7 @@ def _value(text: str, option: str) -> float:
 
 
 def _table_text(args: argparse.Namespace) -> str:
-    from tristock.tablegen import generate_capacitors, generate_resistors
+    from tristock.stock.tablegen import generate_capacitors, generate_resistors
 
     low, high = _value(args.low, "--from"), _value(args.high, "--to")
     if not 0 < low <= high:
@@ -73,7 +73,7 @@ def _table_text(args: argparse.Namespace) -> str:
 
 
 def generate(args: argparse.Namespace) -> int:
-    from tristock.tablegen import write_table
+    from tristock.stock.tablegen import write_table
 
     try:
         text = _table_text(args)

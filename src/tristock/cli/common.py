@@ -9,16 +9,17 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
 
-from tristock.catalog import Catalog, load_catalog
+from tristock.circuits.board import Design
 from tristock.cli.exits import UsageError
-from tristock.design import Design
-from tristock.designfile import parse_design
 from tristock.examples import demo_catalog_dir
-from tristock.spec import Spec, SpecError, parse_spec, read_mapping
+from tristock.export.designfile import parse_design
+from tristock.spec.loading import SpecError, parse_spec, read_mapping
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog, load_catalog
 
 T = TypeVar("T")
 
-#: Plot formats by file suffix (lower case), as ``tristock.plot`` writes them.
+#: Plot formats by file suffix (lower case), as ``tristock.report.plot`` writes them.
 PLOT_SUFFIXES = (".png", ".svg")
 
 

@@ -13,11 +13,12 @@ from tristock.cli import exits
 from tristock.cli.common import catalog_from, plot_target, spec_from_file, with_ranking
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
+from tristock.designs import design
+from tristock.designs.candidate import CAUTIONS
+from tristock.designs.results import Candidate, DesignResult
 from tristock.examples import example_spec_path
-from tristock.results import Candidate, DesignResult
-from tristock.search import CAUTIONS, design
-from tristock.spec import Spec
-from tristock.units import format_value
+from tristock.spec.model import Spec
+from tristock.stock.units import format_value
 
 
 def spec_lines(spec: Spec) -> list[str]:
@@ -184,7 +185,7 @@ def exit_code(result: DesignResult) -> int:
 
 def _plot(result: DesignResult, path: Path) -> None:
     """Rank 1's dial law (tuned designs)."""
-    from tristock.plot import plot_dial_law
+    from tristock.report.plot import plot_dial_law
 
     best = result.candidates[0]
     assert best.tuning is not None

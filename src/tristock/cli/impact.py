@@ -16,11 +16,11 @@ from tristock.cli.common import catalog_from
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
 from tristock.cli.registry import needed_catalog, open_registry, registry_failures
-from tristock.limits import SPEC_FILE_MAX_BYTES
 from tristock.registry.impact import ImpactSettings, impact
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.whatif import apply_what_if, parse_what_if
-from tristock.units import format_value
+from tristock.spec.limits import SPEC_FILE_MAX_BYTES
+from tristock.stock.units import format_value
 
 
 def _freq(value: float | None) -> str:

@@ -2,7 +2,7 @@
 
 A value out of range raises ``argparse.ArgumentTypeError``; the parser reports it as one line
 naming the option ("argument --top: must be 1..100, got 0"). The ranges are
-``tristock.limits``, the same for every face.
+``tristock.spec.limits``, the same for every face.
 """
 
 from __future__ import annotations

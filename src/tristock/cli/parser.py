@@ -11,12 +11,13 @@ import argparse
 import sys
 from typing import Any, NoReturn, TypeAlias
 
-from tristock import __version__, limits
+from tristock import __version__
 from tristock.cli.exits import EPILOG, UsageError
 from tristock.cli.options import finite, seconds, text, whole
 from tristock.cli.output import write_quietly
 from tristock.cli.registry_parser import add_registry_commands
 from tristock.examples import EXAMPLES
+from tristock.spec import limits
 
 # The type argparse gives add_subparsers' result (generic only in the type stubs).
 Subparsers: TypeAlias = "argparse._SubParsersAction[_Parser]"

@@ -34,7 +34,7 @@ from tristock.registry.release import design_mapping, draft_from
 from tristock.registry.revise import accept, diff, plan
 from tristock.registry.runner import SchedulerUnavailable
 from tristock.registry.whatif import WhatIfError
-from tristock.units import format_value
+from tristock.stock.units import format_value
 
 CATALOG_ENV = "TRISTOCK_CATALOG"
 

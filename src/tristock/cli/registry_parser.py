@@ -8,7 +8,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from tristock import limits
+from tristock.spec import limits
 from tristock.cli.exits import EPILOG
 from tristock.cli.options import seconds, text, whole
 

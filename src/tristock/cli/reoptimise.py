@@ -10,16 +10,16 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from tristock import limits
+from tristock.circuits.board import part_ids
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, parsed_in, read_file
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
-from tristock.designfile import part_ids
-from tristock.reoptimise import reoptimise
-from tristock.results import ReoptimiseResult
-from tristock.spec import parse_spec
-from tristock.units import format_value
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import ReoptimiseResult
+from tristock.spec import limits
+from tristock.spec.loading import parse_spec
+from tristock.stock.units import format_value
 
 
 def render_reoptimise(result: ReoptimiseResult) -> str:

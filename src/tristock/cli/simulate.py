@@ -10,15 +10,15 @@ import argparse
 import math
 from pathlib import Path
 
+from tristock.circuits.board import Design, rails_from_supply
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file, plot_target
 from tristock.cli.exits import WorkFailed
 from tristock.cli.output import emit, emit_json
-from tristock.design import Design, rails_from_supply
-from tristock.report import headline_difference, require_oscillation, simulation_report
+from tristock.report.board import headline_difference, require_oscillation, simulation_report
 from tristock.simulate import SimulationError, SimulationResult, simulate
-from tristock.spec import Spec
-from tristock.units import format_value
+from tristock.spec.model import Spec
+from tristock.stock.units import format_value
 
 
 def render_simulation(spec: Spec, d: Design, result: SimulationResult) -> str:
@@ -66,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
     require_oscillation(spec, d, corners=False)  # the simulation runs on the nominal rails
     osc = d.oscillator(rails_from_supply(spec.supply))
     try:
-        result = simulate(osc, periods=args.periods)
+        result = simulate(osc, periods=args.periods, topology=d.topology)
         data = (
             simulation_report(spec, d, periods=args.periods, max_points=args.max_points)
             if args.json
@@ -75,7 +75,7 @@ def run(args: argparse.Namespace) -> int:
     except SimulationError as err:
         raise WorkFailed(f"tristock simulate: {err}") from None
     if plot is not None:
-        from tristock.plot import plot_waveforms
+        from tristock.report.plot import plot_waveforms
 
         plot_waveforms(result, plot, title=f"{d.u1.id}: R3 {d.r3.id}, C1 {d.c1.id}")
     if data is not None:

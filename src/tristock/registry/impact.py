@@ -20,7 +20,6 @@ import time
 from dataclasses import dataclass
 from typing import Any
 
-from tristock.catalog import Catalog
 from tristock.registry.impact_report import (
     AffectedDesign,
     Allocation,
@@ -47,6 +46,7 @@ from tristock.registry.options import (
 from tristock.registry.records import RevisionOut
 from tristock.registry.release import catalog_fingerprint, with_stock
 from tristock.registry.runner import describe, run_all
+from tristock.stock.catalog import Catalog
 
 
 @dataclass(frozen=True)

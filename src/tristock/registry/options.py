@@ -6,7 +6,7 @@ Every option of the joint proposal must fit there on its own, so everything belo
 the joint problem too.
 
 - ``L0``: the fewest changed designators of any design meeting the spec that fits the residual
-  stock (``tristock.reoptimise``, exact and proven, dispatching fixed, trimmed and tuned
+  stock (``tristock.designs.reoptimise``, exact and proven, dispatching fixed, trimmed and tuned
   designs). Its answers (up to ``top``) are options; when the design fits as it is, its
   0-change answer is the option "keep".
 - For each non-empty set S of the over-subscribed codes the design uses (every set when there
@@ -33,11 +33,11 @@ from dataclasses import dataclass, field
 from itertools import combinations
 from typing import Any
 
-from tristock.catalog import Catalog
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import ReoptimisedCandidate, ReoptimiseResult
 from tristock.registry.release import with_stock
-from tristock.reoptimise import reoptimise
-from tristock.results import ReoptimisedCandidate, ReoptimiseResult
-from tristock.spec import parse_spec
+from tristock.spec.loading import parse_spec
+from tristock.stock.catalog import Catalog
 
 #: Over-subscribed codes of one design whose subsets are bounded one by one (more: the set of
 #: all of them only, with the |S| bound for the rest).

@@ -1,6 +1,6 @@
 """A release: a DESIGN file checked against its spec, with the full model's snapshot.
 
-The check is the re-optimisation's verdict on the design as it is (``tristock.reoptimise``,
+The check is the re-optimisation's verdict on the design as it is (``tristock.designs.reoptimise``,
 which dispatches fixed, trimmed and tuned designs alike) on the catalog with every stock count
 lifted to the ceiling: the spec, its limits and the full model decide; stock does not (a
 planned build short of stock is what ``tristock impact`` reports). A design that passes is its
@@ -13,14 +13,15 @@ import dataclasses
 import hashlib
 from typing import Any
 
-from tristock.catalog import Catalog, part_version
-from tristock.designfile import parse_design
-from tristock.limits import STOCK
+from tristock.designs.reoptimise import reoptimise
+from tristock.designs.results import ReoptimiseResult
+from tristock.export.designfile import parse_design
 from tristock.registry.errors import ReleaseRefused
 from tristock.registry.records import Draft
-from tristock.reoptimise import reoptimise
-from tristock.results import ReoptimiseResult
-from tristock.spec import Spec, SpecError, parse_spec
+from tristock.spec.limits import STOCK
+from tristock.spec.loading import SpecError, parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog, part_version
 
 #: Monte Carlo samples of a release's snapshot (the re-optimisation's default).
 SNAPSHOT_SAMPLES = 4000

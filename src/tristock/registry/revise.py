@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from typing import Any
 
-from tristock.catalog import Catalog
 from tristock.registry.errors import StaleProposal, UnknownDesign
 from tristock.registry.impact import planned_needs, stock_of
 from tristock.registry.records import (
@@ -17,7 +16,8 @@ from tristock.registry.records import (
 )
 from tristock.registry.release import draft_from
 from tristock.registry.store import Registry
-from tristock.spec import SpecError
+from tristock.spec.loading import SpecError
+from tristock.stock.catalog import Catalog
 
 
 def _flat(data: Any, prefix: str = "") -> dict[str, Any]:

@@ -20,7 +20,7 @@ from typing import Any, TypeVar
 from dask.base import compute
 from dask.delayed import delayed as delay
 
-from tristock.catalog import Catalog
+from tristock.stock.catalog import Catalog
 
 T = TypeVar("T")
 R = TypeVar("R")

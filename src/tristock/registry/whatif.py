@@ -13,8 +13,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from tristock.catalog import Catalog
-from tristock.limits import STOCK
+from tristock.spec.limits import STOCK
+from tristock.stock.catalog import Catalog
 
 #: Largest what-if file read (bytes).
 MAX_BYTES = 1 << 20

@@ -1,15 +1,15 @@
 """Bounds of the full circuit model over what a search row can reach.
 
-The search proves answers optimal under the full model (``tristock.circuit.predict``), not
+The search proves answers optimal under the full model (``physics.predict``), not
 under a simplified one. For that it needs, for every (op amp, R1/R2 pair), a window of
 P = k·R3·C1 outside which no row can meet the frequency band, and bounds of the amplitude and
 the timing share over that window, valid for every R3 the catalog offers. They come from the
 loop's timing written with the two integrator drives a and b as separate inputs
-(``tristock.looptiming``, the function ``predict`` itself evaluates): over a range of the
+(``tristock.circuits.looptiming``, the function ``predict`` itself evaluates): over a range of the
 integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is chosen) each
 quantity is monotone in each input, so its extremes sit at the ends of the ranges.
 
-Notation as in ``tristock.looptiming``: span = VH + VL, RC' = RC + 1/ωt (ε = 1/(ωt·RC)),
+Notation as in ``tristock.circuits.looptiming``: span = VH + VL, RC' = RC + 1/ωt (ε = 1/(ωt·RC)),
 τi = RC/(ωt·RC + 1) the integrator's lag; each edge's centroid c = td + G(W; μ, D)/λ and
 overshoot time o = td + G(L0; μ, D)/λ with λ = 2π·GBW·k/(1 + k), μ = slope/(k·SR) (slope =
 drive/RC'), W = λ·span/SR the whole edge and L0 = λ·drive/SR the part up to the integrator's
@@ -17,7 +17,7 @@ neutral level, G the comparator edge's mean passage time (``transition.scaled_me
 for GBW = inf a linear slew: c = td + span/(2·SR), o = td + drive/(2·SR)).
 
 Three properties of G carry everything, exact for the linear slew and verified for the
-tabulated edge (tests/test_search_bounds.py, on a grid three times finer than the table in
+tabulated edge (tests/search/test_search_bounds.py, on a grid three times finer than the table in
 every axis and past its ends) wherever the scaled level is at least ``EDGE_LEVEL_MIN``:
 (G1) G does not rise with μ (a steeper triangle builds the edge up sooner);
 (G2) μ·G does not fall with μ (the slope times the overshoot time grows with the slope);
@@ -49,7 +49,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.looptiming import LoopTiming, loop_timing
+from tristock.circuits.looptiming import LoopTiming, loop_timing
 
 Array = NDArray[np.float64]
 

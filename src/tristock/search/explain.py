@@ -9,11 +9,11 @@ from __future__ import annotations
 import math
 from collections import Counter
 
-from tristock.catalog import Catalog
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import SearchModel, build_model
-from tristock.spec import Spec
-from tristock.units import format_value
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.units import format_value
 
 #: The largest timing share the model itself allows (``spec.LimitsSpec.max_timing_share``).
 MODEL_TIMING_LIMIT = 0.4

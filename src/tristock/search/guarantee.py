@@ -1,6 +1,6 @@
 """Necessary conditions of ``guarantee = "worst_case"``: probes inside the analysis's box.
 
-The analysis (``tristock.analysis.worst_case``) bounds frequency and amplitude over a box of
+The analysis (``analysis.worstcase.worst_case``) bounds frequency and amplitude over a box of
 spread variables: every part's tolerance (and a class II band), each rail, temperature, the
 op amp's slew and delay spread, offsets and bias. Any point of that box is a lower bound of
 the maximum and an upper bound of the minimum, so if the full model at one point leaves a
@@ -24,7 +24,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis import DELAY_SPREAD, SLEW_SPREAD
+from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.search.bounds import OpAmpLoop, amplitude_bounds, highest_p, lowest_p
 from tristock.search.model import SearchModel
 

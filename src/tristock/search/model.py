@@ -1,7 +1,7 @@
 """The search model: eligible parts, each op amp's loop on the spec's rails, integer scores.
 
 A row is one combination (U1, R1, R2, R3, C1). Its scores come from the full circuit model
-(``tristock.circuit.predict``) at nominal values, 25 °C and nominal rails, exactly as the
+(``physics.predict``) at nominal values, 25 °C and nominal rails, exactly as the
 analysis of an answer reports them (``search.rows.evaluate``). The engines only need, besides
 that, windows and bounds that every row obeys (``search.bounds``), so an answer they call
 optimal is optimal under the full model.
@@ -20,14 +20,14 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.catalog import Catalog
-from tristock.circuit import OpAmpModel, square_levels
-from tristock.design import rails_from_supply
-from tristock.eseries import is_member
-from tristock.parts import Capacitor, OpAmp, Resistor
+from tristock.circuits.board import rails_from_supply
+from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.search.bounds import OpAmpLoop, overshoot_fraction_cap
 from tristock.search.targetpoint import TargetPoint, target_point
-from tristock.spec import Spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog
+from tristock.stock.eseries import is_member
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 SCORE_RESOLUTION = 1e-6
 #: Secondary keys (tie-breakers) are packed below the primary score: primary·SECONDARY_SPAN + s.

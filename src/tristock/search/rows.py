@@ -1,7 +1,7 @@
 """Rows: combinations of parts scored and checked by the full circuit model.
 
 ``evaluate`` is the search's definition of a row and of its acceptance. Every number in it
-comes from ``tristock.circuit.predict`` at nominal values, 25 °C and the nominal rails, the
+comes from ``physics.predict`` at nominal values, 25 °C and the nominal rails, the
 same prediction the analysis of an answer reports. A row is accepted when
 
 - its frequency and triangle amplitude lie in the spec's bands;
@@ -26,7 +26,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuit import OpAmpModel, Prediction, predict
+from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.topology import Prediction
 from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.guarantee import (
     FAST,
@@ -38,7 +40,7 @@ from tristock.search.guarantee import (
     probe_values,
 )
 from tristock.search.model import SECONDARY_SPAN, SearchModel
-from tristock.spec import Spec
+from tristock.spec.model import Spec
 
 I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]

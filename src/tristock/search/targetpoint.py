@@ -1,6 +1,6 @@
 """One op amp's loop linearised at the target: constants for the trimmed and tuned searches.
 
-At the target frequency and amplitude the full model (``tristock.circuit.predict``) reduces to
+At the target frequency and amplitude the full model (``physics.predict``) reduces to
 
     T(P) = c·(P + d),   P = k·R3·C1,   c = (VH + VL)² / (VH·VL),   k = R1/R2
     A(k) = k·(VH + VL)·(1 + ε)
@@ -16,19 +16,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
-import numpy as np
-from numpy.typing import NDArray
-
-from tristock.analysis import DELAY_SPREAD, SLEW_SPREAD
-from tristock.circuit import OpAmpModel, Prediction, predict, square_levels
-from tristock.design import rails_from_supply
-from tristock.parts import OpAmp
-from tristock.spec import Spec
-
-if TYPE_CHECKING:
-    from tristock.search.model import SearchModel
+from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
+from tristock.circuits.board import rails_from_supply
+from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.rails import OpAmpModel, square_levels
+from tristock.circuits.topology import Prediction
+from tristock.spec.model import Spec
+from tristock.stock.parts import OpAmp
 
 
 @dataclass(frozen=True)
@@ -159,35 +154,3 @@ def _rail_spread(
                 lf.append(math.log(float(pr.frequency_hz) / f0))
                 la.append(math.log(float(pr.amplitude_vpp) / a0))
     return (-min(lf), max(lf)), (-min(la), max(la))
-
-
-def pair_spread(
-    model: SearchModel, u: NDArray[np.int64], i1: NDArray[np.int64], i2: NDArray[np.int64]
-) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
-    """Worst-case ln spreads (f down, f up, A down, A up) from U1, R1 and R2 alone, in the
-    linearised model (op amps in ``u`` must have a target point).
-
-    For the amplitude R3 and C1 do not move it; for the frequency a floor that R3, C1 and
-    temperature only add to. Rails and op-amp spread enter through ``TargetPoint``.
-    """
-    res = model.resistors
-    points = [o.target for o in model.opamps]
-    t1, t2 = res.tol[i1], res.tol[i2]
-    gain = np.array([p.gain if p else math.nan for p in points])[u]
-    rail_f = np.array([p.rail_f if p else (math.nan, math.nan) for p in points]).reshape(-1, 2)[u]
-    rail_a = np.array([p.rail_a if p else (math.nan, math.nan) for p in points]).reshape(-1, 2)[u]
-    env = model.spec.environment
-    s_a = (res.tempco[i1] - res.tempco[i2]) * 1e-6
-    ends = (s_a * (env.temp_min_c - 25.0), s_a * (env.temp_max_c - 25.0))
-    up_f = gain * (-np.log1p(-t1) + np.log1p(t2)) + rail_f[:, 1]
-    dn_f = gain * (np.log1p(t1) - np.log1p(-t2)) + rail_f[:, 0]
-    up_a = np.log1p(t1) - np.log1p(-t2) + np.maximum(0, np.maximum(*ends)) + rail_a[:, 1]
-    dn_a = -np.log1p(-t1) + np.log1p(t2) + np.maximum(0, -np.minimum(*ends)) + rail_a[:, 0]
-    return dn_f, up_f, dn_a, up_a
-
-
-def target_array(model: SearchModel, name: str) -> NDArray[np.float64]:
-    """One ``TargetPoint`` field over the model's op amps (NaN where there is none)."""
-    return np.array(
-        [getattr(o.target, name) if o.target is not None else math.nan for o in model.opamps]
-    )

@@ -1,6 +1,6 @@
 """Time-domain verification of the two-op-amp loop.
 
-This package is the independent check on the closed forms of ``tristock.circuit``: it uses none
+This package is the independent check on the closed forms of ``tristock.circuits``: it uses none
 of them. It integrates the loop's own equations from a stated start state and measures what a
 scope would show. Two engines, chosen by the op amp's gain-bandwidth:
 
@@ -49,8 +49,10 @@ from __future__ import annotations
 
 import math
 
-from tristock.circuit import Oscillator
-from tristock.simulate.loop import MIN_POINTS, loop_from
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
+from tristock.circuits.opamp_schmitt.physics import Oscillator
+from tristock.circuits.topology import Topology
+from tristock.simulate.loop import MIN_POINTS
 from tristock.simulate.ode import measure_ode, run_ode, sample_ode
 from tristock.simulate.piecewise import measure_trace, run_piecewise, sample_trace
 from tristock.simulate.results import Measured, SimulationError, SimulationResult
@@ -59,13 +61,20 @@ __all__ = ["Measured", "SimulationError", "SimulationResult", "simulate"]
 
 
 def simulate(
-    osc: Oscillator, *, periods: int = 10, max_points: int = 4000, settle_periods: int = 3
+    osc: Oscillator,
+    *,
+    periods: int = 10,
+    max_points: int = 4000,
+    settle_periods: int = 3,
+    topology: Topology = OPAMP_SCHMITT,
 ) -> SimulationResult:
     """Simulate ``osc`` in the time domain and measure ``periods`` settled periods.
 
     Frequency = periods / (time between the first and last rising mid-swing crossing of the
     square in the window); duty, peaks, amplitude and square levels as described on
     ``Measured``. Waveforms have at most ``max_points`` samples.
+
+    The loop's parameters come from ``topology.time_domain(osc)`` (the board's topology).
 
     Raises ValueError naming the field for bad input, SimulationError (with the numbers) when
     the loop does not oscillate or does not settle.
@@ -77,7 +86,7 @@ def simulate(
     ):
         if isinstance(value, bool) or not isinstance(value, int) or value < least:
             raise ValueError(f"{name}: {value!r} must be an integer >= {least}")
-    loop = loop_from(osc)
+    loop = topology.time_domain(osc)
     if math.isfinite(loop.gbw_hz):
         ode = run_ode(loop, periods, settle_periods, loop.time_scale_s())
         measured = measure_ode(loop, ode)

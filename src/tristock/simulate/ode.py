@@ -32,15 +32,15 @@ import numpy.typing as npt
 from scipy.integrate import LSODA
 from scipy.optimize import brentq
 
+from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.simulate.loop import (
     MAX_EXTRA_SETTLE_PERIODS,
     MAX_UNFINISHED_TRANSITIONS,
-    Loop,
     stuck_message,
     unfinished_message,
 )
 from tristock.simulate.results import Measured, SimulationError
-from tristock.units import format_value
+from tristock.stock.units import format_value
 
 FloatArray = npt.NDArray[np.float64]
 

@@ -16,17 +16,17 @@ from typing import Literal, NamedTuple
 
 import numpy as np
 
+from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.simulate.loop import (
     EVENTS_PER_PERIOD,
     MAX_EXTRA_SETTLE_PERIODS,
     MAX_UNFINISHED_TRANSITIONS,
     SETTLE_TOLERANCE,
-    Loop,
     stuck_message,
     unfinished_message,
 )
 from tristock.simulate.results import Measured, SimulationError
-from tristock.units import format_value
+from tristock.stock.units import format_value
 
 
 class _Segment(NamedTuple):

@@ -1,4 +1,4 @@
 """Part tables: their columns and CSV dialect, validation, catalogs, and safe stock writes.
 
-``tristock.catalog`` re-exports the public names; import from there.
+``tristock.stock.catalog`` re-exports the public names; import from there.
 """

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Final, Literal
 
-from tristock.atomicio import fsync_directory, write_atomic
+from tristock.stock.atomicio import fsync_directory, write_atomic
 
 JOURNAL_NAME: Final[str] = ".tristock-writes.jsonl"
 KEY_LIFETIME_S: Final[float] = 24 * 3600.0

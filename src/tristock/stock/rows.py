@@ -12,8 +12,9 @@ import math
 from collections.abc import Callable
 from typing import Final
 
-from tristock import eseries, units
-from tristock.parts import (
+from tristock.stock import eseries, units
+from tristock.stock.columns import CatalogIssue
+from tristock.stock.parts import (
     CLASS_I_DIELECTRICS,
     CLASS_II_DIELECTRICS,
     FILM_DIELECTRICS,
@@ -26,7 +27,6 @@ from tristock.parts import (
     Resistor,
     delay_from_delay_to_mid,
 )
-from tristock.stock.columns import CatalogIssue
 
 #: Tolerance range accepted for resistors, capacitors and pots: (0, 50] %.
 TOLERANCE_MAX_PCT: Final[float] = 50.0

@@ -19,8 +19,7 @@ from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from tristock.atomicio import clean_stale_temps
-from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
+from tristock.stock.atomicio import clean_stale_temps
 from tristock.stock.columns import (
     ALTERNATIVE_COLUMNS,
     COLUMNS,
@@ -36,6 +35,7 @@ from tristock.stock.csvtext import (
     physical_lines,
     split_fields,
 )
+from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.rows import BUILDERS, RowReader
 
 #: What a table file held when read: its bytes, None when it does not exist, or the error.

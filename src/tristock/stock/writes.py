@@ -10,7 +10,7 @@ Under the catalog's writer lock (:mod:`tristock.stock.locking`), :func:`update_s
    refuses the write), finds the part, checks the caller's expected version, and applies the
    change to what was just read, never to a cached copy;
 4. changes only the bytes of that part's stock field (CRLF, BOM, quoting and every other byte
-   stay) and writes the table atomically (:func:`tristock.atomicio.write_atomic`); just before
+   stay) and writes the table atomically (:func:`tristock.stock.atomicio.write_atomic`); just before
    the rename it checks that every table still has the stamp and hash it was read with, and
    starts over (up to ``attempts`` times) if one changed.
 
@@ -30,8 +30,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Final
 
-from tristock.atomicio import clean_stale_temps, write_atomic
-from tristock.parts import Capacitor, OpAmp, Part, Pot, Resistor
+from tristock.stock.atomicio import clean_stale_temps, write_atomic
 from tristock.stock.columns import KINDS
 from tristock.stock.csvtext import is_skipped, line_content, physical_lines, split_fields
 from tristock.stock.errors import (
@@ -45,6 +44,7 @@ from tristock.stock.errors import (
 )
 from tristock.stock.journal import JOURNAL_NAME, KEY_LIFETIME_S, FileStamp, WriteJournal
 from tristock.stock.locking import LOCK_TIMEOUT_S, catalog_lock
+from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.snapshot import Snapshot, read_settled, sha256_hex
 from tristock.stock.tables import Catalog, parse_catalog, part_version
 

@@ -1,0 +1,186 @@
+"""A design: one chosen part per designator, and how it becomes an oscillator.
+
+Designators (DESIGN.md): R1 threshold resistor (triangle node to the comparator's + input),
+R2 threshold feedback resistor (square node to the + input), R3 integrator input resistor,
+C1 integrator capacitor, U1 the op amp (one dual, or a single-channel part used twice).
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass
+from typing import Any, Literal
+
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
+from tristock.circuits.opamp_schmitt.physics import Oscillator
+from tristock.circuits.rails import Rails
+from tristock.circuits.topology import Topology
+from tristock.spec.loading import SpecError
+from tristock.spec.model import SupplySpec
+from tristock.stock.catalog import Catalog
+from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
+
+DESIGNATORS = ("U1", "R1", "R2", "R3", "C1")
+Control = Literal["series", "divider"]
+
+
+def rails_from_supply(supply: SupplySpec, scale: float = 1.0) -> Rails:
+    """Rails scaled by ``scale`` (1 ± tolerance for rail corners).
+
+    A single-supply reference given in the spec stays where it is set (a regulated
+    reference); a default mid-rail reference follows the rail.
+    """
+    v_ref = supply.reference_v if supply.negative_v == 0 else None
+    return Rails(supply.positive_v * scale, supply.negative_v * scale, v_ref)
+
+
+@dataclass(frozen=True)
+class Design:
+    """The parts of one board: U1, R1, R2, R3, C1, and for trimmed or tuned boards RV1 (with
+    its wiper position), R4 (the divider's end stop) and the range capacitors C2..Cn.
+
+    ``selected`` picks the range in use: 0 for C1, 1 for C2, ... . ``wiper`` is the pot's
+    position in [0, 1]; see ``timing.timing_network`` for what it means under each control.
+    """
+
+    u1: OpAmp
+    r1: Resistor
+    r2: Resistor
+    r3: Resistor
+    c1: Capacitor
+    rv1: Pot | None = None
+    wiper: float = 0.0
+    control: Control = "series"
+    r4: Resistor | None = None
+    range_caps: tuple[Capacitor, ...] = ()
+    selected: int = 0
+    topology: Topology = OPAMP_SCHMITT
+
+    def __post_init__(self) -> None:
+        if not 0.0 <= self.wiper <= 1.0:
+            raise ValueError(f"wiper: must lie in [0, 1], got {self.wiper}")
+        if not 0 <= self.selected <= len(self.range_caps):
+            raise ValueError(f"range: C{self.selected + 1} is not on this design")
+        if self.control == "divider" and (self.rv1 is None or self.r4 is None):
+            raise ValueError("parts: a divider control needs RV1 and the end-stop resistor R4")
+
+    @property
+    def capacitors(self) -> tuple[Capacitor, ...]:
+        """C1, C2, ..., Cn."""
+        return (self.c1, *self.range_caps)
+
+    @property
+    def timing_capacitor(self) -> Capacitor:
+        return self.capacitors[self.selected]
+
+    def parts(self) -> dict[str, Part]:
+        """Designator -> part, in BOM order."""
+        out: dict[str, Part] = {"U1": self.u1, "R1": self.r1, "R2": self.r2, "R3": self.r3}
+        if self.r4 is not None:
+            out["R4"] = self.r4
+        if self.rv1 is not None:
+            out["RV1"] = self.rv1
+        for n, cap in enumerate(self.capacitors, start=1):
+            out[f"C{n}"] = cap
+        return out
+
+    def uses(self) -> Counter[str]:
+        """Pieces of each stock code one board takes (a single op amp counts twice)."""
+        n: Counter[str] = Counter()
+        for name, part in self.parts().items():
+            n[part.id] += self.u1.packages_per_board if name == "U1" else 1
+        return n
+
+    @property
+    def cost_per_board(self) -> float:
+        """Σ unit_cost x pieces per board, the catalog's currency."""
+        return sum(
+            p.cost_per_board if isinstance(p, OpAmp) else p.unit_cost for p in self.parts().values()
+        )
+
+    @property
+    def bom_lines(self) -> int:
+        """Distinct stock codes on the BOM."""
+        return len(self.uses())
+
+    def oscillator(self, rails: Rails, temp_c: float = 25.0) -> Oscillator:
+        """The oscillator at temperature ``temp_c`` (°C), built by the board's topology."""
+        built: Oscillator = self.topology.oscillator(self, rails, temp_c)
+        return built
+
+
+_RANGE_CAPS = tuple(f"C{n}" for n in range(2, 9))
+OPTIONAL = ("R4", "RV1", *_RANGE_CAPS)
+_KINDS: dict[str, type] = {
+    "U1": OpAmp,
+    "R1": Resistor,
+    "R2": Resistor,
+    "R3": Resistor,
+    "C1": Capacitor,
+    "R4": Resistor,
+    "RV1": Pot,
+    **{c: Capacitor for c in _RANGE_CAPS},
+}
+
+
+def part_ids(parts: Any) -> dict[str, str]:
+    """Designator -> stock code from a ``parts`` mapping; errors name the field."""
+    if not isinstance(parts, dict):
+        raise SpecError(["parts: expected a table of designator = stock code"])
+    errors: list[str] = []
+    out: dict[str, str] = {}
+    for name in (*DESIGNATORS, *OPTIONAL):
+        item = parts.get(name)
+        if item is None and name in OPTIONAL:
+            continue
+        if isinstance(item, dict):
+            item = item.get("id")
+        if not isinstance(item, str) or not item:
+            errors.append(f"parts.{name}: missing (a stock code, or an object with an id)")
+        else:
+            out[name] = item
+    errors += [f"parts.{k}: unknown designator" for k in parts if k not in _KINDS]
+    caps = [c for c in _RANGE_CAPS if c in out]
+    if caps and caps != list(_RANGE_CAPS[: len(caps)]):
+        errors.append("parts: range capacitors must be numbered C2, C3, ... without gaps")
+    if errors:
+        raise SpecError(errors)
+    return out
+
+
+def resolve(
+    ids: dict[str, str],
+    catalog: Catalog,
+    *,
+    wiper: float = 0.0,
+    control: str = "series",
+    selected: int = 0,
+) -> Design:
+    """The Design for these stock codes; unknown or wrong-kind ids raise SpecError."""
+    errors: list[str] = []
+    found: dict[str, Any] = {}
+    for name, pid in ids.items():
+        try:
+            part = catalog.get(pid)
+        except KeyError:
+            errors.append(f"parts.{name}: {pid!r} is not in the catalog {catalog.path}")
+            continue
+        if not isinstance(part, _KINDS[name]):
+            errors.append(
+                f"parts.{name}: {pid!r} is a {type(part).__name__}, not a {_KINDS[name].__name__}"
+            )
+            continue
+        found[name.lower()] = part
+    if errors:
+        raise SpecError(errors)
+    range_caps = tuple(found.pop(c.lower()) for c in _RANGE_CAPS if c.lower() in found)
+    try:
+        return Design(
+            **found,
+            range_caps=range_caps,
+            wiper=wiper,
+            control=control,  # type: ignore[arg-type]
+            selected=selected,
+        )
+    except ValueError as err:
+        raise SpecError([str(err)]) from None

@@ -1,0 +1,205 @@
+"""Fixed designs: best parts from a catalog for a spec, each answer re-checked in full.
+
+``design_fixed(spec, catalog)`` builds the search model (``model``), runs one engine (``cpsat``, the
+default, or ``enumerate``), then re-evaluates every answer with the full circuit model and the
+tolerance analysis; an answer the full model rejects is dropped and the search asks for more.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+from typing import Literal
+
+from tristock.analysis.bundle import analyse
+from tristock.analysis.montecarlo import yield_count
+from tristock.analysis.worstcase import worst_case
+from tristock.circuits.board import Design
+from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
+from tristock.designs.results import DesignResult, Infeasible, SearchInfo
+from tristock.search.cpsat import cpsat_top
+from tristock.search.enumeration import EngineResult, enumerate_top
+from tristock.search.explain import infeasible_reasons
+from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
+from tristock.search.rows import Rows
+from tristock.spec.model import Spec
+from tristock.stock.catalog import Catalog
+
+Engine = Literal["cpsat", "enumerate"]
+#: For one design the enumeration's rows come in exact rank order with every constraint
+#: applied, so CP-SAT (kept as an independent cross-check, and for problems that couple
+#: several designs) only re-derives them, more slowly.
+DEFAULT_ENGINE: Engine = "enumerate"
+DEFAULT_TIME_LIMIT_S = 5.0
+
+
+def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
+    """The Design of row ``n`` (indices into the model's tables)."""
+    res, cap = model.resistors.parts, model.capacitors.parts
+    return Design(
+        u1=model.opamps[rows.u[n]].part,
+        r1=res[rows.i1[n]],
+        r2=res[rows.i2[n]],
+        r3=res[rows.i3[n]],
+        c1=cap[rows.j[n]],
+    )
+
+
+def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
+    if engine == "cpsat":
+        return cpsat_top(model, top, time_limit_s)
+    return enumerate_top(model, top, time_limit_s)
+
+
+@dataclass
+class _Verdict:
+    """The full model's re-check of one row: whether it meets the guarantee and, when the
+    ranking needs it, its Monte Carlo pass count (an upper bound when ``exact`` is False:
+    the count stopped once the row could no longer matter)."""
+
+    ok: bool
+    passed: int | None
+    exact: bool = True
+
+
+def _recheck(spec: Spec, design: Design, samples: int, seed: int, beat: int) -> _Verdict:
+    """What the guarantee and the ranking need beyond the search's own acceptance. In the
+    yield ranking a row must pass more than ``beat`` samples to enter the top; counting
+    stops as soon as it cannot (``analysis.yield_count``)."""
+    limits = spec.limits
+    if limits.guarantee == "worst_case":
+        wc = worst_case(design, spec)
+        if not guarantee_holds(spec, wc, None):
+            return _Verdict(False, None)
+    if limits.guarantee != "yield" and spec.ranking.by != "yield":
+        return _Verdict(True, None)
+    allowed = samples
+    if limits.guarantee == "yield":
+        allowed = math.floor((1.0 - limits.min_yield) * samples + 1e-9)
+    if spec.ranking.by == "yield":
+        allowed = min(allowed, samples - beat - 1)
+    passed, exact = yield_count(
+        design, spec, samples=samples, seed=seed, max_failures=max(allowed, -1)
+    )
+    if limits.guarantee == "yield" and passed < limits.min_yield * samples:
+        return _Verdict(False, passed, exact)
+    return _Verdict(True, passed, exact)
+
+
+def _walk(
+    spec: Spec,
+    model: SearchModel,
+    rows: Rows,
+    verdicts: dict[tuple[str, ...], _Verdict],
+    samples: int,
+    seed: int,
+    deadline: float,
+) -> tuple[list[tuple[Design, int, int | None]], int, bool, bool]:
+    """Re-check rows in rank order until the top is settled.
+
+    Returns the rows that pass (design, score, yield count), how many were dropped, whether
+    the top is settled (no unchecked row can rank above the ``top``-th kept one) and whether
+    the deadline cut the walk. In the yield ranking the key is (-yield, search order): a row
+    never checked can at best tie at yield 1, after every checked row, so the top is settled
+    once ``top`` kept rows have every sample passing; a row whose count cannot beat the
+    ``top``-th kept one is not counted to the end.
+    """
+    top = spec.ranking.top
+    by_yield = spec.ranking.by == "yield"
+    kept: list[tuple[Design, int, int | None]] = []
+    dropped = 0
+
+    def settled() -> bool:
+        if not by_yield:
+            return len(kept) >= top
+        return sum(p == samples for _, _, p in kept) >= top
+
+    for n in range(len(rows)):
+        if settled():
+            return kept, dropped, True, False
+        if time.perf_counter() > deadline and n:
+            return kept, dropped, False, True
+        d = design_of(model, rows, n)
+        ids = tuple(p.id for p in d.parts().values())
+        counts = sorted((p or 0 for _, _, p in kept), reverse=True)
+        beat = counts[top - 1] if by_yield and len(counts) >= top else -1
+        if ids not in verdicts or (not verdicts[ids].exact and (verdicts[ids].passed or 0) > beat):
+            verdicts[ids] = _recheck(spec, d, samples, seed, beat)
+        v = verdicts[ids]
+        if not v.ok:
+            dropped += 1
+        elif v.exact:
+            kept.append((d, int(rows.primary[n]), v.passed))
+    return kept, dropped, settled(), False
+
+
+def design_fixed(
+    spec: Spec,
+    catalog: Catalog,
+    *,
+    engine: Engine = DEFAULT_ENGINE,
+    time_limit_s: float = DEFAULT_TIME_LIMIT_S,
+    samples: int = 4000,
+    seed: int = 0,
+) -> DesignResult:
+    """Best ``spec.ranking.top`` fixed designs from ``catalog``, optimal under the full model.
+
+    The engines list rows in rank order, each scored by the full model at nominal values;
+    the guarantee (worst case over the spread box, Monte Carlo yield) and the yield ranking
+    are then decided by the analysis, row by row in that order, until no unchecked row can
+    enter the top (``_walk``).
+    """
+    t0 = time.perf_counter()
+    deadline = t0 + time_limit_s
+    model = build_model(spec, catalog)
+    top = spec.ranking.top
+    want = top
+    verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done
+    evaluated = 0
+    while True:
+        remaining = max(deadline - time.perf_counter(), 0.0)
+        found = run_engine(model, engine, want, remaining)
+        evaluated += found.evaluated
+        kept, dropped, settled, cut = _walk(
+            spec, model, found.rows, verdicts, samples, seed, deadline
+        )
+        exhausted = len(found.rows) < want
+        if settled or exhausted or cut or time.perf_counter() > deadline:
+            proven = found.proven_optimal and (settled or exhausted) and not cut
+            break
+        want *= 4
+    if spec.ranking.by == "yield":
+        kept.sort(key=lambda k: -(k[2] or 0))  # stable: search order within a yield
+    kept = kept[:top]
+    candidates = [
+        candidate(spec, d, analyse(d, spec, samples=samples, seed=seed), i + 1, score)
+        for i, (d, score, _) in enumerate(kept)
+    ]
+    infeasible = None
+    if not candidates and proven:
+        infeasible = Infeasible(reasons=infeasible_reasons(model, catalog, dropped))
+    return DesignResult(
+        spec=spec,
+        candidates=candidates,
+        infeasible=infeasible,
+        search=SearchInfo(
+            engine=engine,
+            proven_optimal=proven,
+            elapsed_s=round(time.perf_counter() - t0, 4),
+            combinations=search_space(model),
+            evaluated=evaluated,
+            score_resolution=SCORE_RESOLUTION,
+            dropped_by_full_model=dropped,
+            time_limit_s=time_limit_s,
+        ),
+        cautions=CAUTIONS,
+    )
+
+
+def search_space(model: SearchModel) -> int:
+    """Combinations of eligible parts: |U1| x |R|³ x |C1|."""
+    return len(model.opamps) * len(model.resistors) ** 3 * len(model.capacitors)
+
+
+__all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design_fixed"]

@@ -1,0 +1,158 @@
+"""Result models shared by the CLI's ``--json`` and the HTTP API (same field names)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from pydantic import BaseModel, ConfigDict
+
+from tristock.spec.model import Spec
+
+
+class _Out(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class PartOut(_Out):
+    """One designator's part: stock code, value in SI units, and what the BOM needs."""
+
+    id: str
+    kind: str
+    value: float | None
+    display: str
+    tolerance_pct: float | None = None
+    unit_cost: float
+    pieces_per_board: int
+    stock: int
+
+
+class Predicted(_Out):
+    """The full model at nominal values, rails and 25 °C. ``timing_share``: the share of the
+    period set by op-amp delay, slew and GBW, 1 - T_ideal/T (``limits.max_timing_share``)."""
+
+    frequency_hz: float
+    amplitude_vpp: float
+    duty_high: float
+    offset_v: float
+    square_high_v: float
+    square_low_v: float
+    timing_share: float
+
+
+class ErrorOut(_Out):
+    """Nominal prediction against the target, percent."""
+
+    frequency_pct: float
+    amplitude_pct: float
+
+
+class WarningOut(_Out):
+    code: str
+    severity: str
+    message: str
+
+
+class TrimOut(_Out):
+    """A trimmed design: RV1 in series with R3; wiper 0 adds no resistance."""
+
+    wiper_nominal: float
+    range_hz: list[float]  # nominal frequency at wiper 1 and 0 (full travel)
+    reach_hz: list[float]  # every board of the spread box reaches this span inside the margins
+    margin_pct: float
+    resolution_pct_per_pct: float  # % of frequency per % of travel at the target
+    drift_after_trim_pct: float  # over the temperature range, wiper fixed after trimming
+
+
+class RangeOut(_Out):
+    capacitor: str
+    low_hz: float
+    high_hz: float
+    guaranteed_low_hz: float
+    guaranteed_high_hz: float
+
+
+class TuningOut(_Out):
+    """A panel-tuned design: one capacitor per range, ranges from low to high frequency."""
+
+    control: str
+    ranges: list[RangeOut]
+    dial_law: dict[str, list[float]]  # "wiper" and one list of frequencies per range capacitor
+
+
+class Candidate(_Out):
+    rank: int
+    parts: dict[str, PartOut]
+    predicted: Predicted
+    error: ErrorOut
+    worst_case: dict[str, Any]
+    yield_fraction: float
+    yield_detail: dict[str, Any]
+    sensitivity: dict[str, dict[str, float]]
+    drift: dict[str, float]
+    cost: float
+    bom_lines: int
+    score: int
+    warnings: list[WarningOut]
+    trim: TrimOut | None = None
+    tuning: TuningOut | None = None
+
+
+class Infeasible(_Out):
+    reasons: list[str]
+
+
+class SearchInfo(_Out):
+    engine: str
+    proven_optimal: bool
+    elapsed_s: float
+    combinations: int
+    evaluated: int
+    score_resolution: float
+    dropped_by_full_model: int
+    time_limit_s: float
+
+
+class DesignResult(_Out):
+    spec: Spec
+    candidates: list[Candidate]
+    infeasible: Infeasible | None
+    search: SearchInfo
+    cautions: list[str]
+
+
+class Change(_Out):
+    designator: str
+    from_id: str
+    to_id: str
+    why: str
+
+
+class ReoptimisedCandidate(Candidate):
+    changed: list[str]
+    changes: list[Change]
+
+
+class Shortfall(_Out):
+    """A part of the design whose stock does not cover the planned build."""
+
+    designator: str
+    id: str
+    needed: int
+    stock: int
+    short: int
+
+
+class OriginalDesign(_Out):
+    parts: dict[str, str]
+    passes: bool
+    reasons: list[str]
+    predicted: Predicted | None
+
+
+class ReoptimiseResult(_Out):
+    spec: Spec
+    original: OriginalDesign
+    candidates: list[ReoptimisedCandidate]
+    infeasible: Infeasible | None
+    shortfall: list[Shortfall]
+    search: SearchInfo

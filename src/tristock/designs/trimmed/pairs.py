@@ -1,0 +1,213 @@
+"""(U1, R1, R2) pairs of the trimmed search and their P bounds.
+
+The nominal board must meet the target at a wiper α0 in [m, 1 - m]; its P0 = k·R_eff·C1
+(k = R1/R2, R_eff = R3 + α0·RV) then lies in ``search.bounds.window`` at the target period,
+[P_lo, P_hi], for any integrator error voltage Ve = Vos1 + Ib1·R_eff its R_eff can give, and
+inside what the tables can make. Over that range the amplitude bounds must reach the
+amplitude band and the timing-share floor must be within ``limits.max_timing_share``
+(acceptance at α0, ``trim.rows``), else no row through the pair is accepted. Each kept pair
+also carries the P bounds of its probe corners (``trim.probes.pair_windows``) and the op-amp
+terms of the resolution bound (``trim.cells``).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.designs.trimmed.context import F64, I64, TrimContext
+from tristock.designs.trimmed.probes import SLACK, pair_windows
+from tristock.search.bounds import (
+    OpAmpLoop,
+    amplitude_bounds,
+    claimed,
+    timing_share_floor,
+    window,
+)
+
+#: Windows are widened by this relative amount so rounding never drops a row on an edge.
+EDGE = 1e-9
+#: Pairs whose windows are sought in one vectorised step (the deadline is checked between).
+PAIR_CHUNK = 2048
+
+
+@dataclass
+class Pairs:
+    """(U1, R1, R2) pairs that can meet the amplitude band and the timing limit, with the P
+    bounds of their rows (module docstring) and the op-amp terms of the resolution bound."""
+
+    u: I64
+    i1: I64
+    i2: I64
+    k: F64
+    p_lo: F64
+    p_hi: F64
+    k_slow: F64
+    t_slow: F64
+    p_slow_max: F64
+    k_fast: F64
+    t_fast: F64
+    p_fast_min: F64
+    span: F64
+    ab_max: F64
+    bias: F64
+    cost: F64  # U1 + R1 + R2 per board
+
+    def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> Pairs:
+        return Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
+
+    def __len__(self) -> int:
+        return len(self.u)
+
+
+def nominal_loop(ctx: TrimContext, u: I64) -> OpAmpLoop:
+    """Each op amp's nominal loop with Ve = Vos1 + Ib1·R_eff over every R_eff = R3 + α·RV a
+    row can have (the model's own loop covers R3 alone)."""
+    res, pots = ctx.model.resistors, ctx.pots
+    loop = ctx.model.loops(u)
+    r_lo = float(res.value.min())
+    r_hi = float(res.value.max() + (pots.value.max() if len(pots) else 0.0))
+    vos = np.array([o.model.offset_v for o in ctx.model.opamps])[u]
+    ib = np.array([o.model.bias_a for o in ctx.model.opamps])[u]
+    ve_a, ve_b = vos + ib * r_lo, vos + ib * r_hi
+    return loop._replace(ve_lo=np.minimum(ve_a, ve_b), ve_hi=np.maximum(ve_a, ve_b))
+
+
+def largest_drive_product(loop: OpAmpLoop) -> F64:
+    """max (VH - Ve)·(VL + Ve) over Ve in [ve_lo, ve_hi] (concave: the vertex, clipped)."""
+    ve = np.clip((loop.vh - loop.vl) / 2, loop.ve_lo, loop.ve_hi)
+    return np.asarray((loop.vh - ve) * (loop.vl + ve), dtype=np.float64)
+
+
+def _pair_indices(ctx: TrimContext) -> tuple[I64, I64, I64]:
+    """Every (U1, R1, R2) with k inside the op amp's ``k_range`` and the masks."""
+    model = ctx.model
+    ln_r = model.resistors.ln_value
+    use_u = model.allows("U1", len(model.opamps))
+    use_r1 = model.allows("R1", len(ln_r))
+    use_r2 = model.allows("R2", len(ln_r))
+    us, i1s, i2s = [], [], []
+    for o in model.opamps:
+        if not use_u[o.index]:
+            continue
+        k_lo, k_hi = o.k_range
+        lo = np.searchsorted(ln_r, ln_r - math.log(k_hi) - 1e-12, side="left")
+        hi = np.searchsorted(ln_r, ln_r - math.log(k_lo) + 1e-12, side="right")
+        counts = np.maximum(hi - lo, 0)
+        i1 = np.repeat(np.arange(len(ln_r), dtype=np.int64), counts)
+        i2 = (
+            np.repeat(lo, counts)
+            + np.arange(len(i1))
+            - np.repeat(np.cumsum(counts) - counts, counts)
+        )
+        keep = use_r1[i1] & use_r2[i2]
+        us.append(np.full(int(keep.sum()), o.index, dtype=np.int64))
+        i1s.append(i1[keep])
+        i2s.append(i2[keep].astype(np.int64))
+    if not us:
+        z = np.zeros(0, dtype=np.int64)
+        return z, z, z
+    return np.concatenate(us), np.concatenate(i1s), np.concatenate(i2s)
+
+
+def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
+    """Pairs that can meet the amplitude band and the timing limit at the target (module
+    docstring), with their nominal and probe P bounds; False when the deadline cut the
+    listing (the pairs are then incomplete)."""
+    model, spec = ctx.model, ctx.spec
+    res, cap, pots = model.resistors, model.capacitors, ctx.pots
+    u, i1, i2 = _pair_indices(ctx)
+    if len(u) == 0 or len(cap) == 0 or len(pots) == 0:
+        return _no_pairs(), True
+    k = res.value[i1] / res.value[i2]
+    loop = nominal_loop(ctx, u)
+    t_t = ctx.target_period_s
+    m = ctx.margin
+    # P0 = k·(R3 + α0·RV)·C1 with α0 in [m, 1 - m]: what the tables can make at all; and,
+    # before any root is sought, the ideal-switch part T_i = span²·P/(a·b) of the period,
+    # at most T_t and at least (1 - max_timing_share)·T_t.
+    span = loop.vh + loop.vl
+    ab_lo = np.minimum((loop.vh - loop.ve_lo) * (loop.vl + loop.ve_lo),
+                       (loop.vh - loop.ve_hi) * (loop.vl + loop.ve_hi))  # fmt: skip
+    share_max = spec.limits.max_timing_share
+    p_lo = np.maximum(
+        k * (res.value.min() + m * pots.value.min()) * cap.value.min(),
+        (1 - share_max) * t_t * ab_lo / span**2 * (1 - EDGE),
+    )
+    p_hi = np.minimum(
+        k * (res.value.max() + (1 - m) * pots.value.max()) * cap.value.max(),
+        t_t * largest_drive_product(loop) / span**2 * (1 + EDGE),
+    )
+    sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))
+    parts: list[Pairs] = []
+    for start in range(0, len(sel), PAIR_CHUNK):
+        if time.perf_counter() > deadline:
+            return _no_pairs(), False
+        n = sel[start : start + PAIR_CHUNK]
+        parts.append(_windowed(ctx, loop.take(n), u[n], i1[n], i2[n], k[n], p_lo[n], p_hi[n]))
+    if not parts:
+        return _no_pairs(), True
+    return Pairs(
+        **{f: np.concatenate([getattr(p, f) for p in parts]) for f in Pairs.__dataclass_fields__}
+    ), True
+
+
+def _windowed(
+    ctx: TrimContext, loop: OpAmpLoop, u: I64, i1: I64, i2: I64, k: F64, p_lo: F64, p_hi: F64
+) -> Pairs:
+    """The pairs whose exact window at the target keeps the amplitude and the timing share
+    possible, with their probe bounds."""
+    model = ctx.model
+    res = model.resistors
+    t_t = ctx.target_period_s
+    w = window(loop, k, np.full(len(u), t_t * (1 - SLACK)), np.full(len(u), t_t * (1 + SLACK)))
+    p_lo, p_hi = np.maximum(p_lo, w.lo), np.minimum(p_hi, w.hi)
+    sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))
+    u, i1, i2 = u[sel], i1[sel], i2[sel]
+    k, p_lo, p_hi = k[sel], p_lo[sel], p_hi[sel]
+    loop = loop.take(sel)
+    probes = pair_windows(ctx, u, i1, i2)
+    u_cost = np.array([o.part.cost_per_board for o in model.opamps])[u]
+    bias = np.abs(np.array([o.model.bias_a for o in model.opamps])[u])
+    return Pairs(
+        u,
+        i1,
+        i2,
+        k,
+        p_lo,
+        p_hi,
+        *probes,
+        span=np.asarray(loop.vh + loop.vl, dtype=np.float64),
+        # the resolution bound rests on the edge's monotone mean time (search.bounds): where
+        # that is not claimed, a·b "unbounded" makes the bound 0, which every row meets
+        ab_max=np.where(claimed(loop, k), largest_drive_product(loop), np.inf),
+        bias=bias,
+        cost=u_cost + res.cost[i1] + res.cost[i2],
+    )
+
+
+def _amplitude_and_share(
+    ctx: TrimContext, loop: OpAmpLoop, k: F64, p_lo: F64, p_hi: F64
+) -> NDArray[np.bool_]:
+    """Pairs whose P range is not empty and over which the amplitude bounds reach the band
+    and the timing-share floor is within the limit (``search.bounds``)."""
+    spec = ctx.spec
+    amp = amplitude_bounds(loop, k, p_lo, p_hi)
+    share = timing_share_floor(loop, k, p_lo, p_hi)
+    aa, ab = ctx.model.band_a
+    a_t = spec.triangle.amplitude_vpp
+    with np.errstate(invalid="ignore", divide="ignore"):
+        keep = p_lo <= p_hi * (1 + EDGE)
+        keep &= (np.log(amp.hi / a_t) >= aa - SLACK) & (np.log(amp.lo / a_t) <= ab + SLACK)
+        keep &= share <= spec.limits.max_timing_share + SLACK
+    return np.asarray(keep)
+
+
+def _no_pairs() -> Pairs:
+    z = np.zeros(0, dtype=np.int64)
+    f = np.zeros(0)
+    return Pairs(z, z, z, f, f, f, f, f, f, f, f, f, f, f, f, f)

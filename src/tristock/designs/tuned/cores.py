@@ -1,0 +1,357 @@
+"""Shared-part combinations in order of a lower bound on the cost of any design they make.
+
+A core is (U1, RV1, R4, R3) (R4 only for the divider); a combination adds an (R1, R2) pair
+from the op amp's window (``model.Pairs``). ``shared_bounds`` gives each core, for every pair
+it may take, the fewest ranges it can cover the span with and the capacitor window (smallest
+C1, largest Cn). The cost of any design with n ranges through the core is then at least
+
+    cost(U1, RV1, R4, R3) + cheapest pair + chain(n),
+    chain(n) = cheapest capacitor ≥ C1min + cheapest ≤ Cnmax + (n - 2)·cheapest capacitor
+
+(for n = 1 the larger of the first two). ``Cores.select`` lists every combination whose bound
+(with its own pair's cost) is at most a threshold θ, for designs with n ranges; the same
+bounds with the pair's exact k and tolerances (``pair_factors``) then tighten each one.
+Nothing is left out that could cost θ or less.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.designs.tuned.bounds import chain_floor, shared_bounds, top_feasible
+from tristock.designs.tuned.chains import INF
+from tristock.designs.tuned.corners import KFactors, corners, pair_factors, window_factors
+from tristock.designs.tuned.keys import IntCache, TimeUp, shared_keys
+from tristock.designs.tuned.model import MAX_RANGES, Pairs, TunedModel
+from tristock.designs.tuned.network import Shared, empty_shared
+
+I64 = NDArray[np.int64]
+F64 = NDArray[np.float64]
+#: Cores expanded into combinations at a time (each with up to every pair of its op amp).
+CHUNK = 64
+#: Combinations whose bound is tightened at a time (between two looks at the clock).
+TIGHTEN_BATCH = 8192
+#: Width of a bin of k = R1/R2 (in ln k) for the chain floor.
+BIN_WIDTH = 0.01
+MAX_BINS = 1 << 12
+
+
+@dataclass
+class CapCosts:
+    """Cheapest capacitor at or above / at or below a value (micro-units, ``INF`` if none)."""
+
+    value: F64
+    at_least: I64  # suffix minimum over ascending values
+    at_most: I64  # prefix minimum
+    cheapest: int
+
+    @classmethod
+    def of(cls, model: TunedModel) -> CapCosts:
+        cost = model.capacitor_cost
+        value = model.capacitors.value
+        if len(cost) == 0:
+            z = np.zeros(0, dtype=np.int64)
+            return cls(value, z, z, INF)
+        return cls(
+            value,
+            np.minimum.accumulate(cost[::-1])[::-1],
+            np.minimum.accumulate(cost),
+            int(cost.min()),
+        )
+
+    def chain(self, c_min: F64, c_max: F64, n: int) -> I64:
+        """Lower bound of the capacitors' cost of a chain of n (module docstring)."""
+        if len(self.value) == 0:
+            return np.full(len(c_min), INF, dtype=np.int64)
+        i = np.searchsorted(self.value, c_min, side="left")
+        first = np.where(
+            i < len(self.value), self.at_least[np.minimum(i, len(self.value) - 1)], INF
+        )
+        k = np.searchsorted(self.value, c_max, side="right") - 1
+        last = np.where(k >= 0, self.at_most[np.maximum(k, 0)], INF)
+        out = np.maximum(first, last) if n == 1 else first + last + (n - 2) * self.cheapest
+        return np.asarray(np.where((first >= INF) | (last >= INF), INF, out), dtype=np.int64)
+
+
+@dataclass
+class Bins:
+    """One op amp's pairs grouped by k into bins of width ``BIN_WIDTH`` in ln k, each sorted
+    by cost: per bin its pairs' smallest and largest k and cheapest cost, and the k factors
+    at the corners z2 and z1 allowing every resistor of the catalog as R1 and R2
+    (``bounds.window_factors``). ``k_bottom``/``k_top``: the op amp's window (the cores'
+    capacitor window was taken at them)."""
+
+    pairs: Pairs
+    start: I64
+    end: I64
+    k_a: F64
+    k_b: F64
+    cheapest: I64
+    window: KFactors
+    k_bottom: float
+    k_top: float
+
+    def __len__(self) -> int:
+        return len(self.start)
+
+    @classmethod
+    def of(cls, model: TunedModel, u: int, pairs: Pairs, k_lo: float, k_hi: float) -> Bins:
+        which = np.floor((np.log(pairs.k) - np.log(k_lo)) / BIN_WIDTH).astype(np.int64)
+        order = np.lexsort((pairs.i2, pairs.i1, pairs.cost, which))
+        pairs = pairs.take(order)
+        which = which[order]
+        _, start = np.unique(which, return_index=True)
+        end = np.append(start[1:], len(which))
+        window = window_factors(model, np.array([u], dtype=np.int64))
+        if len(start) == 0:
+            z, f = np.zeros(0, dtype=np.int64), np.zeros(0)
+            return cls(pairs, z, z, f, f, z, window, k_lo, k_hi)
+        k_a = np.minimum.reduceat(pairs.k, start)
+        k_b = np.maximum.reduceat(pairs.k, start)
+        return cls(pairs, start, end, k_a, k_b, pairs.cost[start], window, k_lo, k_hi)
+
+    def factors(self, rows_bin: I64) -> KFactors:
+        """Every class's k factors, k over each bin's interval."""
+        w = self.window
+        n = len(rows_bin)
+
+        def wide(x: F64) -> F64:
+            return np.repeat(x[:, :1], n, axis=1)
+
+        return KFactors(
+            self.k_a[rows_bin],
+            self.k_b[rows_bin],
+            wide(w.f2_lo),
+            wide(w.f2_hi),
+            wide(w.f1_lo),
+            wide(w.f1_hi),
+        )
+
+    def expand(self, rows_core: I64, rows_bin: I64, room: I64) -> tuple[I64, I64]:
+        """(core, pair index) for every pair of each row's bin costing at most its room."""
+        big = int(self.pairs.cost.max()) + 1 if len(self.pairs) else 1
+        which = np.repeat(np.arange(len(self.start)), self.end - self.start)
+        key = which * big + self.pairs.cost
+        upto = np.searchsorted(key, rows_bin * big + np.minimum(room, big - 1), side="right")
+        counts = np.maximum(upto - self.start[rows_bin], 0)
+        core = np.repeat(rows_core, counts)
+        first = np.repeat(self.start[rows_bin], counts)
+        p = first + np.arange(len(core)) - np.repeat(np.cumsum(counts) - counts, counts)
+        return core, p.astype(np.int64)
+
+
+@dataclass
+class Cores:
+    """Every feasible core with its bounds; ``pairs`` per op amp."""
+
+    u: I64
+    v: I64
+    i3: I64
+    i4: I64
+    cost: I64  # U1 + RV1 + R3 + R4
+    fewest: I64
+    c_min: F64
+    c_max: F64
+    pairs: dict[int, Pairs]
+    caps: CapCosts
+    bins: dict[int, Bins]
+    floors: dict[int, IntCache] = field(default_factory=dict)
+    tights: dict[int, IntCache] = field(default_factory=dict)
+    ids: dict[tuple[int, ...], int] = field(default_factory=dict)
+
+    def __len__(self) -> int:
+        return len(self.u)
+
+    def min_fewest(self) -> int:
+        return int(self.fewest.min()) if len(self.u) else MAX_RANGES + 1
+
+    def bound(self, n: int) -> I64:
+        """Least cost of a design with n ranges through each core (micro-units)."""
+        pair_min = np.array(
+            [int(self.pairs[u].cost[0]) if len(self.pairs[u]) else INF for u in range(_n(self))],
+            dtype=np.int64,
+        )
+        chain = self.caps.chain(self.c_min, self.c_max, n)
+        out = self.cost + pair_min[self.u] + chain
+        bad = (self.fewest > n) | (chain >= INF) | (pair_min[self.u] >= INF)
+        return np.asarray(np.where(bad, INF, out), dtype=np.int64)
+
+    def select(
+        self, model: TunedModel, n: int, theta: int, deadline: float = math.inf
+    ) -> tuple[Shared, I64]:
+        """Every combination whose cost bound for n ranges is at most ``theta``, with that
+        bound. Three sieves, each a lower bound of the cost of any design it passes on:
+        the core's (``bound``); per core and bin of k (``Bins``), the chain floor over every
+        k of the bin (``bounds.chain_floor``); per combination, its exact pair
+        (``tighten``). Floors and tightened bounds are kept, so raising ``theta`` costs
+        only what is new."""
+        bound = self.bound(n)
+        pick = np.flatnonzero(bound <= theta)
+        floors = self.floors.setdefault(n, IntCache())
+        tights = self.tights.setdefault(n, IntCache())
+        parts = []
+        for u in np.unique(self.u[pick]):
+            bins = self.bins[int(u)]
+            mine = pick[self.u[pick] == u]
+            for start in range(0, len(mine), CHUNK):
+                if time.perf_counter() > deadline:
+                    raise TimeUp
+                chunk = mine[start : start + CHUNK]
+                rows_core = np.repeat(chunk, len(bins))
+                rows_bin = np.tile(np.arange(len(bins)), len(chunk))
+                crude = self.caps.chain(
+                    self.c_min[rows_core] * bins.k_top / bins.k_b[rows_bin],
+                    self.c_max[rows_core] * bins.k_bottom / bins.k_a[rows_bin],
+                    n,
+                )
+                base = self.cost[rows_core] + bins.cheapest[rows_bin]
+                live = base + crude <= theta
+                rows_core, rows_bin, base = rows_core[live], rows_bin[live], base[live]
+                if len(rows_core) == 0:
+                    continue
+                keys = rows_core * len(bins) + rows_bin
+                known, floor = floors.get(keys)
+                if not known.all():
+                    new = ~known
+                    floor[new] = self.floor(model, rows_core[new], bins, rows_bin[new], n)
+                    floors.put(keys[new], floor[new])
+                live = base + floor <= theta
+                rows_core, rows_bin, floor = rows_core[live], rows_bin[live], floor[live]
+                core, p = bins.expand(rows_core, rows_bin, theta - self.cost[rows_core] - floor)
+                if len(core) == 0:
+                    continue
+                pairs = bins.pairs
+                sh = Shared(
+                    u=self.u[core],
+                    i1=pairs.i1[p],
+                    i2=pairs.i2[p],
+                    i3=self.i3[core],
+                    i4=self.i4[core],
+                    v=self.v[core],
+                    cost=self.cost[core] + pairs.cost[p],
+                )
+                sh = sh.take(stock_ok(model, sh))
+                keys = shared_keys(model, sh, self.ids)
+                known, tight = tights.get(keys)
+                fresh = np.flatnonzero(~known)
+                for at in range(0, len(fresh), TIGHTEN_BATCH):
+                    if time.perf_counter() > deadline:
+                        raise TimeUp
+                    part = fresh[at : at + TIGHTEN_BATCH]
+                    tight[part] = tighten(model, sh.take(part), n)
+                    tights.put(keys[part], tight[part])
+                keep = tight <= theta
+                parts.append((sh.take(keep), tight[keep]))
+        if not parts:
+            return empty_shared(), np.zeros(0, dtype=np.int64)
+        return Shared.concat([x[0] for x in parts]), np.concatenate([x[1] for x in parts])
+
+    def floor(self, model: TunedModel, rows: I64, bins: Bins, rows_bin: I64, n: int) -> I64:
+        """The chain floor of each (core, bin): ``bounds.chain_floor`` over the bin's k."""
+        kf = bins.factors(rows_bin)
+        c = corners(model, self.u[rows], self.i3[rows], self.i4[rows], self.v[rows], kf)
+        return chain_floor(model, c, kf.k_lo, kf.k_hi, n)
+
+
+def _n(cores: Cores) -> int:
+    return max(cores.pairs) + 1 if cores.pairs else 0
+
+
+def stock_ok(model: TunedModel, sh: Shared) -> NDArray[np.bool_]:
+    """Stock for every resistor position a code fills (R1, R2, R3, R4), and the cost cap."""
+    res = model.resistors
+    boards = model.boards
+    codes = [sh.i1, sh.i2, sh.i3, sh.i4]
+    ok = np.ones(len(sh), dtype=bool)
+    for x in codes:
+        uses = sum((x == y) & (y >= 0) for y in codes)
+        ok &= (x < 0) | (res.stock[np.maximum(x, 0)] >= boards * uses)
+    return ok
+
+
+def tighten(model: TunedModel, sh: Shared, n: int) -> I64:
+    """The cost bound of each combination with its exact pair (``INF`` when it cannot make a
+    design with n ranges)."""
+    if len(sh) == 0:
+        return np.zeros(0, dtype=np.int64)
+    res = model.resistors
+    k = res.value[sh.i1] / res.value[sh.i2]
+    b, c = shared_bounds(model, sh.u, sh.i3, sh.i4, sh.v, pair_factors(model, sh.i1, sh.i2, k))
+    ok = np.flatnonzero(b.feasible & (b.fewest <= n))
+    floor = np.full(len(sh), INF, dtype=np.int64)
+    if len(ok):
+        floor[ok] = chain_floor(model, c.take(ok), k[ok], k[ok], n)
+    out = np.where(floor < INF, sh.cost + floor, INF)
+    cap = model.spec.limits.max_cost
+    if cap is not None:
+        out = np.where(out <= round(cap * 1e6), out, INF)
+    return np.asarray(out, dtype=np.int64)
+
+
+def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
+    """Every core of the model that can make a design at all, with its bounds (None when
+    the deadline passes first)."""
+    res = model.resistors
+    nr = len(res)
+    use_u = model.allows("U1", len(model.opamps))
+    use_v = model.allows("RV1", len(model.pots))
+    use3 = np.flatnonzero(model.allows("R3", nr))
+    use4 = np.flatnonzero(model.allows("R4", nr)) if model.divider else np.array([-1])
+    r_cost = model.resistor_cost
+    pot_cost = model.pot_cost
+    pairs = {o.index: model.pairs(o) for o in model.opamps}
+    blocks = []
+    for o in model.opamps:
+        if not use_u[o.index] or len(pairs[o.index]) == 0:
+            continue
+        if len(model.capacitors) == 0 or not model.pots or not use_v.any():
+            continue
+        u3 = np.full(len(use3), o.index, dtype=np.int64)
+        top3 = use3[top_feasible(model, u3, use3, window_factors(model, u3))]
+        if len(top3) == 0:
+            continue
+        for v in np.flatnonzero(use_v):
+            if time.perf_counter() > deadline:
+                return None
+            i4 = np.repeat(use4, len(top3)).astype(np.int64)
+            i3 = np.tile(top3, len(use4)).astype(np.int64)
+            u = np.full(len(i3), o.index, dtype=np.int64)
+            vv = np.full(len(i3), v, dtype=np.int64)
+            b, _ = shared_bounds(model, u, i3, i4, vv, window_factors(model, u), top_checked=True)
+            keep = b.feasible
+            cost = (
+                o.cost + pot_cost[v] + r_cost[i3] + np.where(i4 >= 0, r_cost[np.maximum(i4, 0)], 0)
+            )
+            blocks.append((u[keep], vv[keep], i3[keep], i4[keep], cost[keep], b, keep))
+    caps = CapCosts.of(model)
+    bins = {o.index: Bins.of(model, o.index, pairs[o.index], o.k_lo, o.k_hi) for o in model.opamps}
+    if not blocks:
+        z = np.zeros(0, dtype=np.int64)
+        f = np.zeros(0)
+        return Cores(z, z, z, z, z, z, f, f, pairs, caps, bins)
+
+    def joined(i: int) -> I64:
+        return np.concatenate([blk[i] for blk in blocks])
+
+    def bound(name: str) -> Any:
+        return np.concatenate([getattr(blk[5], name)[blk[6]] for blk in blocks])
+
+    return Cores(
+        u=joined(0),
+        v=joined(1),
+        i3=joined(2),
+        i4=joined(3),
+        cost=joined(4),
+        fewest=bound("fewest"),
+        c_min=bound("c_min"),
+        c_max=bound("c_max"),
+        pairs=pairs,
+        caps=caps,
+        bins=bins,
+    )

@@ -1,0 +1,279 @@
+"""The exact walk: tuned designs in rank order, each decided by the full model's verdict.
+
+Rank key of a design with n ranges: (cost, evenness, stock codes), cost in micro-units,
+evenness the largest nominal excess overlap of neighbouring ranges (``chains.evenness``),
+stock codes in the order U1, R1, R2, R3, R4, RV1, C1..Cn. With ``ranges = "auto"`` the count
+is the fewest any accepted design has; every answer has that many.
+
+For one count n the walk raises a cost threshold θ in steps. At each step it lists every
+candidate with cost in (θ_prev, θ]: every combination whose cost bound is within θ
+(``cores``), its ranges with every capacitor (``ranges``), and every chain of n that covers the
+span with the optimistic ends and fits the window (``chains``). A design not listed either
+costs more than θ or fails a condition that every accepted design meets. The window's
+candidates are sorted by the rank key and each is decided by the verdict (``coverage``:
+guaranteed ends over the spread box, the amplitude guarantee). The walk stops when ``top``
+designs are accepted: every design not yet decided costs more than θ, so ranks after them.
+When every design with n ranges has been listed the count is exhausted: with answers found
+the ranking is settled with fewer than ``top``; without, "auto" goes on to n + 1.
+
+A time limit that cuts the walk returns what was accepted, marked unproven.
+"""
+
+from __future__ import annotations
+
+import heapq
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.designs.tuned.chains import (
+    INF,
+    Changes,
+    Ranges,
+    completion,
+    enumerate_chains,
+    evenness,
+    least_cost,
+    steps,
+)
+from tristock.designs.tuned.cores import Cores, build_cores
+from tristock.designs.tuned.keys import TimeUp
+from tristock.designs.tuned.model import MAX_RANGES, TunedModel
+from tristock.designs.tuned.network import Shared
+from tristock.designs.tuned.ranges import RangeData, evaluate_ranges
+
+I64 = NDArray[np.int64]
+Row = tuple[int, int, int, int, int, int]
+#: Combinations evaluated together (each with every capacitor).
+BATCH = 128
+FIRST_STEP = 4000  # micro-units: the first listing threshold above the least bound
+GROWTH = 1.25  # each later threshold: the least bound + this times the previous distance
+
+
+@dataclass
+class Found:
+    """One candidate design: its combination, chain (capacitor indices, C1 first), cost
+    (micro-units), evenness (1e-6) and rank key; ``data`` holds its combination's ranges."""
+
+    row: Row
+    chain: tuple[int, ...]
+    cost: int
+    evenness: int
+    key: tuple[object, ...]
+    data: RangeData
+    index: int  # the combination's row in ``data``
+    model: TunedModel  # the model its indices point into
+
+
+@dataclass
+class Walk:
+    """What the walk found: accepted designs in rank order, the count n, whether the order
+    is proven, and counters."""
+
+    accepted: list[tuple[Found, list[object]]] = field(default_factory=list)
+    ranges: int = 0
+    proven: bool = True
+    evaluated: int = 0
+    combinations: int = 0
+    dropped: int = 0
+    candidates: int = 0
+
+
+def ids_of(model: TunedModel, row: Row, chain: tuple[int, ...]) -> tuple[str, ...]:
+    u, i1, i2, i3, i4, v = row
+    res = model.resistors.parts
+    caps = model.capacitors.parts
+    return (
+        model.opamps[u].part.id,
+        res[i1].id,
+        res[i2].id,
+        res[i3].id,
+        res[i4].id if i4 >= 0 else "",
+        model.pots[v].id,
+        *(caps[j].id for j in chain),
+    )
+
+
+class Lister:
+    """Candidates with n ranges in exact rank order (module docstring).
+
+    Every design not yet listed comes from a combination still waiting (cost at least its
+    bound), a chain of an evaluated combination above the listing threshold θ, or a
+    combination above θ: so a listed candidate whose cost is below both the least waiting
+    bound and θ + 1 ranks before all of them and is released."""
+
+    def __init__(
+        self,
+        model: TunedModel,
+        cores: Cores,
+        n: int,
+        walk: Walk,
+        deadline: float,
+        changes: Changes | None = None,
+    ):
+        self.changes = changes
+        self.model = model
+        self.cores = cores
+        self.n = n
+        self.walk = walk
+        self.deadline = deadline
+        self.end = ceiling(model, cores, n)
+        bound = cores.bound(n)
+        finite = bound[bound < INF]
+        self.low = int(finite.min()) if len(finite) else INF
+        self.theta = -1
+        self.waiting: list[tuple[int, Row, int]] = []  # (bound, row, shared cost)
+        self.seen: set[Row] = set()
+        self.evaluated: dict[Row, tuple[RangeData, int, int, int]] = {}  # data, at, least, cost
+        self.heap: list[tuple[tuple[object, ...], int, Found]] = []
+        self.count = 0
+        self.cut = False
+
+    def __iter__(self) -> Iterator[Found]:
+        while True:
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                return
+            waiting = self.waiting[0][0] if self.waiting else INF
+            limit = min(waiting, self.theta + 1)
+            if self.heap and int(self.heap[0][2].cost) < limit:
+                yield heapq.heappop(self.heap)[2]
+                continue
+            if self.waiting and waiting <= self.theta:
+                self._evaluate_waiting()
+                continue
+            if self.theta >= self.end or self.low >= INF:
+                while self.heap:
+                    yield heapq.heappop(self.heap)[2]
+                return
+            try:
+                self._raise()
+            except TimeUp:
+                self.cut = True
+                return
+
+    def _raise(self) -> None:
+        """Raise θ: new combinations wait, evaluated ones list their chains up to θ."""
+        old = self.theta
+        step = FIRST_STEP if old < 0 else int((old - self.low) * GROWTH) + 1
+        new = self.low + step
+        new = min(max(new, old + 1), self.end)
+        sh, tight = self.cores.select(self.model, self.n, new, self.deadline)
+        fresh = []
+        for i in range(len(sh)):
+            r = sh.row(i)
+            if r not in self.seen:
+                self.seen.add(r)
+                fresh.append((int(tight[i]), r, int(sh.cost[i])))
+        self.waiting = sorted(self.waiting + fresh)
+        self.theta = new
+        for r, (data, at, least, cost) in self.evaluated.items():
+            if least + cost <= new:
+                self._list(r, data, at, cost, old, new)
+
+    def _evaluate_waiting(self) -> None:
+        """Evaluate the waiting combinations with the least bounds (a batch)."""
+        batch = self.waiting[:BATCH]
+        self.waiting = self.waiting[BATCH:]
+        model = self.model
+        assert model.spec.tuning is not None
+        tu = model.spec.tuning
+        rows = [r for _, r, _ in batch]
+        col = [np.array([r[f] for r in rows], dtype=np.int64) for f in range(6)]
+        sh = Shared(
+            u=col[0], i1=col[1], i2=col[2], i3=col[3], i4=col[4], v=col[5],
+            cost=np.array([c for _, _, c in batch], dtype=np.int64),
+        )  # fmt: skip
+        data = evaluate_ranges(model, sh)
+        self.walk.evaluated += int(data.ranges.usable.size)
+        self.walk.combinations += len(sh)
+        allowed = steps(data.ranges, tu.overlap_pct / 100)
+        comp = completion(data.ranges, allowed, self.n, tu.high_hz)
+        least = least_cost(data.ranges, comp, self.n, tu.low_hz)
+        for i, r in enumerate(rows):
+            if least[i] >= INF:
+                continue
+            cost = int(sh.cost[i])
+            self.evaluated[r] = (data, i, int(least[i]), cost)
+            if int(least[i]) + cost <= self.theta:
+                self._list(r, data, i, cost, -1, self.theta)
+
+    def _list(self, r: Row, data: RangeData, at: int, cost: int, lo: int, hi: int) -> None:
+        """Push the chains of combination ``r`` whose total cost lies in (lo, hi]."""
+        model = self.model
+        assert model.spec.tuning is not None
+        tu = model.spec.tuning
+        overlap = tu.overlap_pct / 100
+        single = _one(data.ranges, at)
+        allowed = steps(single, overlap)
+        comp = completion(single, allowed, self.n, tu.high_hz)
+        budget = (lo - cost, hi - cost)
+        for chain, c in enumerate_chains(
+            single, 0, allowed, comp, self.n, tu.low_hz, budget, self.changes
+        ):
+            total = cost + c
+            ev = evenness(data.f_top[at], data.f_bottom[at], chain, overlap)
+            key = (total, ev, ids_of(model, r, chain))
+            self.count += 1
+            found = Found(r, chain, total, ev, key, data, at, model)
+            heapq.heappush(self.heap, (key, self.count, found))
+            self.walk.candidates += 1
+
+
+def _one(r: Ranges, at: int) -> Ranges:
+    return Ranges(r.usable[at : at + 1], r.gl[at : at + 1], r.gh[at : at + 1], r.cost, r.value)
+
+
+def ceiling(model: TunedModel, cores: Cores, n: int) -> int:
+    """A cost no design with n ranges exceeds (micro-units)."""
+    if len(cores) == 0:
+        return 0
+    pair_max = max((int(p.cost[-1]) for p in cores.pairs.values() if len(p)), default=0)
+    caps = model.capacitor_cost
+    cap_max = int(caps.max()) if len(caps) else 0
+    top = int(cores.cost.max()) + pair_max + n * cap_max
+    limit = model.spec.limits.max_cost
+    return min(top, round(limit * 1e6)) if limit is not None else top
+
+
+def counts(model: TunedModel, cores: Cores) -> list[int]:
+    assert model.spec.tuning is not None
+    want = model.spec.tuning.ranges
+    if want != "auto":
+        return [int(want)]
+    return list(range(max(1, cores.min_fewest()), MAX_RANGES + 1))
+
+
+def walk(model: TunedModel, top: int, deadline: float, decide) -> Walk:
+    """Accepted designs in rank order (module docstring). ``decide(found)`` is the verdict:
+    (accepted, per-range details)."""
+    out = Walk()
+    cores = build_cores(model, deadline)
+    if cores is None:
+        out.proven = False
+        return out
+    for n in counts(model, cores):
+        lister = Lister(model, cores, n, out, deadline)
+        for f in lister:
+            ok, detail = decide(f)
+            if ok:
+                out.accepted.append((f, detail))
+                if len(out.accepted) >= top:
+                    out.ranges = n
+                    return out
+            else:
+                out.dropped += 1
+            if time.perf_counter() > deadline:
+                lister.cut = True
+                break
+        if lister.cut:
+            out.proven = False
+            out.ranges = n
+            return out
+        if out.accepted:
+            out.ranges = n
+            return out
+    return out

@@ -1,0 +1,1 @@
+"""Hand-off files: DESIGN files (``designfile``)."""

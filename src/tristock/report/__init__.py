@@ -1,0 +1,1 @@
+"""Reports of one board (``board``: analysis and simulation as JSON) and plots (``plot``)."""
