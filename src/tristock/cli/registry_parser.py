@@ -8,9 +8,9 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from tristock.spec import limits
 from tristock.cli.exits import EPILOG
 from tristock.cli.options import seconds, text, whole
+from tristock.spec import limits
 
 #: Answers kept per re-optimisation in ``impact`` (``--top``).
 IMPACT_TOP = (1, 20)
