@@ -85,6 +85,11 @@ class Settings(BaseSettings):
         None, repr=False, description="bearer token for stock writes (unset: no token)"
     )
     allow_open_writes: bool = Field(False, description="stock writes without a token")
+    db: str | None = Field(
+        None,
+        repr=False,
+        description="registry database URL or file (default: registry.sqlite beside the catalog)",
+    )
     max_body_bytes: int = Field(256 * 1024, ge=1024, le=16 * 1024 * 1024, description="413 above")
     max_top: int = Field(MAX_TOP, ge=1, le=MAX_TOP, description="designs per request")
     default_time_limit_s: float = Field(5.0, gt=0, description="search time without one asked")

@@ -54,6 +54,12 @@ BUDGET: dict[str, tuple[int, int]] = {
     "GET /v1/catalog/{kind}": (160, 90),
     "GET /v1/catalog/{kind}/{part_id}": (100, 60),
     "PATCH /v1/catalog/{kind}/{part_id}": (110, 70),
+    "POST /v1/designs": (30, 20),
+    "GET /v1/designs": (10, 0),  # a boolean query only: nothing invalid to generate
+    "GET /v1/designs/{name}": (15, 0),  # any text is a name: nothing invalid to generate
+    "GET /v1/designs/{name}/revisions/{revision}": (15, 10),
+    "POST /v1/designs/{name}/accept": (20, 15),
+    "POST /v1/impact": (20, 15),
     "GET /health": (5, 0),
     "GET /problems/{name}": (20, 30),
 }

@@ -26,7 +26,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("tristock.analysis", "tristock.simulate"),
     ("tristock.search",),
     ("tristock.designs",),
-    ("tristock.export", "tristock.report"),
+    ("tristock.export", "tristock.report", "tristock.registry"),
     ("tristock.cli", "tristock.serve", "tristock.__main__", "tristock.api"),
 )
 

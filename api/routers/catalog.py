@@ -15,7 +15,7 @@ import json
 import math
 from typing import Annotated, Any, Final
 
-from fastapi import APIRouter, Depends, Header, HTTPException, Query, Response
+from fastapi import APIRouter, Depends, Header, HTTPException, Query, Request, Response
 
 from tristock.stock.catalog import (
     ALTERNATIVE_COLUMNS,
@@ -40,6 +40,7 @@ from ..jsonout import StrictJSON, answer
 from ..schemas import ErrorBody, Item, Kind, Page, StockPatch, ValidationBody
 from ..settings import MAX_PAGE, MAX_STOCK
 from ..store import CatalogStore
+from .registry import affected_designs
 
 router = APIRouter(prefix="/v1/catalog", tags=["catalog"])
 
@@ -58,6 +59,12 @@ _RETRY_HEADER: Final[dict[str, Any]] = {
     "schema": {"type": "integer"},
 }
 _ITEM_HEADERS: Final[dict[str, Any]] = {"ETag": _ETAG_HEADER, "X-Catalog": _STALE_HEADER}
+_AFFECTED_HEADER: Final[dict[str, Any]] = {
+    "description": "stock writes: the released designs (comma-separated names) whose planned "
+    "builds this part's stock no longer covers together; empty when it covers them all, "
+    "absent when the registry cannot be reached",
+    "schema": {"type": "string"},
+}
 
 _READ_ERRORS: dict[int | str, dict[str, Any]] = {
     404: {"model": ErrorBody, "description": "no part with this id in this table"},
@@ -309,7 +316,10 @@ def _write(
 @router.patch(
     "/{kind}/{part_id}",
     response_model=Item,
-    responses={200: {"headers": _ITEM_HEADERS}, **_WRITE_ERRORS},
+    responses={
+        200: {"headers": {**_ITEM_HEADERS, "X-Affected-Designs": _AFFECTED_HEADER}},
+        **_WRITE_ERRORS,
+    },
     summary="Set (`stock`) or adjust (`stock_delta`) the pieces on hand of one part",
     description="Atomic on disk and serialised; waits (up to 5 s) until no other program is "
     "writing the tables, validates the whole catalog as it is on disk and refuses (409) to "
@@ -320,6 +330,7 @@ def _write(
     dependencies=[Depends(require_writer)],
 )
 def patch_part(
+    request: Request,
     kind: Kind,
     part_id: str,
     body: StockPatch,
@@ -340,4 +351,7 @@ def patch_part(
         headers.update(_stale_header(store))
     else:
         store.adopt(write)
+    affected = affected_designs(request, store.current(), part_id)
+    if affected is not None:
+        headers["X-Affected-Designs"] = ", ".join(affected)
     return answer(item(write.part), headers=headers)

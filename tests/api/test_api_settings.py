@@ -28,6 +28,7 @@ NON_DEFAULTS: dict[str, tuple[str, Any]] = {
     "catalog_dir": ("/somewhere/else", Path("/somewhere/else")),
     "token": ("s3cret", "s3cret"),
     "allow_open_writes": ("yes", True),
+    "db": ("postgresql+psycopg://team@/registry", "postgresql+psycopg://team@/registry"),
     "max_body_bytes": ("65536", 65536),
     "max_top": ("7", 7),
     "default_time_limit_s": ("1.5", 1.5),

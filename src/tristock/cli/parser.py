@@ -15,6 +15,7 @@ from tristock import __version__
 from tristock.cli.exits import EPILOG, UsageError
 from tristock.cli.options import finite, seconds, text, whole
 from tristock.cli.output import write_quietly
+from tristock.cli.registry_parser import add_registry_commands
 from tristock.examples import EXAMPLES
 from tristock.spec import limits
 
@@ -198,4 +199,5 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
     for add in (_design, _one_design, _reoptimise, _catalog, _serve):
         add(sub)
+    add_registry_commands(sub)
     return p

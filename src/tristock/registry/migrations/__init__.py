@@ -1,0 +1,1 @@
+"""Alembic migrations of the registry (``script_location`` ``tristock.registry:migrations``)."""
