@@ -95,6 +95,19 @@ def _design(sub: Subparsers) -> None:
     )
     _time_limit(d)
     d.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    d.add_argument(
+        "--save",
+        nargs=2,
+        metavar=("N", "FILE"),
+        help="write design N (its rank) as a DESIGN file, TOML or JSON by the suffix "
+        "(.toml or .json), for analyse, simulate, reoptimise and export",
+    )
+    d.add_argument(
+        "--save-all",
+        type=text("a folder"),
+        metavar="DIR",
+        help="write every design as DIR/rank-N.toml (DIR must exist)",
+    )
     d.set_defaults(handler="design")
 
 
