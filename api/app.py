@@ -30,7 +30,7 @@ from . import errors, openapi
 from .cache import AnswerCache
 from .errors import CatchAll
 from .limits import BodyLimit, ComputeGate, ComputeSlots
-from .routers import analysis, catalog, design, health, problems
+from .routers import analysis, catalog, design, export, health, problems
 from .settings import Settings
 from .store import CatalogStore
 
@@ -39,7 +39,16 @@ log = logging.getLogger("tristock.api")
 OPENAPI_PATH = Path(__file__).with_name("openapi.json")
 REGENERATE = "python -m tristock.api.app --write-openapi"
 #: The endpoints whose work runs in a compute slot.
-COMPUTE_PATHS = frozenset({"/v1/design", "/v1/reoptimise", "/v1/analyse", "/v1/simulate"})
+COMPUTE_PATHS = frozenset(
+    {
+        "/v1/design",
+        "/v1/reoptimise",
+        "/v1/analyse",
+        "/v1/simulate",
+        "/v1/export/bom",
+        "/v1/export/spice",
+    }
+)
 
 
 def operation_id(route: APIRoute) -> str:
@@ -85,7 +94,14 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     app.state.slots = slots
     app.state.cache = AnswerCache(settings.cache_size)
     errors.install(app)
-    for r in (design.router, analysis.router, catalog.router, health.router, problems.router):
+    for r in (
+        design.router,
+        analysis.router,
+        export.router,
+        catalog.router,
+        health.router,
+        problems.router,
+    ):
         app.include_router(r)
     app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS)
     app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
