@@ -3,6 +3,8 @@ files of one design, the same text as ``tristock export bom|spice DESIGN``."""
 
 from __future__ import annotations
 
+from typing import Literal
+
 from fastapi import APIRouter
 from fastapi.responses import Response
 from pydantic import Field
@@ -29,8 +31,16 @@ class BomRequest(DesignBody):
     )
 
 
-def _netlist(spec: Spec, design: Design) -> str:
-    return spice_netlist(spec, design)
+class SpiceRequest(DesignBody):
+    """``POST /v1/export/spice``: a design and, optionally, a worst-case corner."""
+
+    corner: Literal["fmin", "fmax", "amin", "amax"] | None = Field(
+        None, description="build at a worst-case extreme (default: nominal values)"
+    )
+
+
+def _netlist(spec: Spec, design: Design, corner: str | None) -> str:
+    return spice_netlist(spec, design, corner=corner)
 
 
 def _bom(design: Design, boards: int) -> str:
@@ -67,13 +77,14 @@ async def post_bom(body: BomRequest, catalog: CatalogDep, slots: SlotsDep) -> Re
         **COMPUTE_ERRORS,
     },
     summary="ngspice netlist of one design at nominal values",
-    description="The same netlist as `tristock export spice DESIGN`: behavioural op-amp "
-    "models from the catalog row, the transient run and `.meas` lines (`per`, `freq`, "
+    description="The same netlist as `tristock export spice DESIGN [--corner C]`: "
+    "behavioural op-amp models from the catalog row, at nominal values or at the worst-case "
+    "`corner`, the transient run and `.meas` lines (`per`, `freq`, "
     "`duty`, `vtmax`, `vtmin`, `vtpp`). Trimmed designs at their `wiper`; tuned designs are a "
     "422 (not exported yet).",
 )
-async def post_spice(body: DesignBody, catalog: CatalogDep, slots: SlotsDep) -> Response:
+async def post_spice(body: SpiceRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
     d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
     with FieldProblem.from_value_errors(["body"]):
-        text = await slots.run(_netlist, body.spec, d)
+        text = await slots.run(_netlist, body.spec, d, body.corner)
     return Response(text.encode("utf-8"), media_type="text/plain; charset=utf-8")

@@ -80,6 +80,9 @@ def test_spice_is_the_clis_netlist(api: TestClient, saved: dict[str, Any], tmp_p
     body = r.content.decode("utf-8").splitlines()
     assert body[1:] == cli.splitlines()[1:]  # the first line names the CLI's file
     assert body[-1] == ".end"
+    r = api.post("/v1/export/spice", json={**saved, "corner": "amax"})
+    assert r.status_code == 200 and "worst-case corner amax" in r.text
+    assert api.post("/v1/export/spice", json={**saved, "corner": "hot"}).status_code == 422
 
 
 def test_bad_part_and_tuned_design_are_422s_naming_the_field(

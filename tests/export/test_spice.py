@@ -12,9 +12,11 @@ from pathlib import Path
 import pytest
 
 from ngspice_harness import require_ngspice, run_ngspice
+from tristock.analysis.worstcase import worst_case
 from tristock.circuits.board import rails_from_supply
 from tristock.cli import main
 from tristock.examples import demo_catalog_dir, example_spec_path
+from tristock.export.corners import corner_oscillator
 from tristock.export.designfile import parse_design
 from tristock.spec.loading import read_mapping
 from tristock.stock.catalog import load_catalog
@@ -61,6 +63,30 @@ def test_demo_rank1_netlist_agrees_with_the_model_in_ngspice(tmp_path: Path) -> 
     assert meas["freq"] / f - 1 == pytest.approx(0, abs=3e-3)
     assert meas["vtpp"] / vpp - 1 == pytest.approx(0, abs=3e-3)
     assert meas["duty"] == pytest.approx(duty, abs=3e-3)
+
+
+@pytest.mark.ngspice
+def test_the_fmin_corner_is_the_worst_case_bound_and_agrees_in_ngspice(tmp_path: Path) -> None:
+    require_ngspice()
+    data = {"spec": read_mapping(example_spec_path("demo")), "parts": RANK1}
+    spec, design = parse_design(data, load_catalog(DEMO))
+    low_f = worst_case(design, spec).frequency_hz[0]
+    cir = tmp_path / "fmin.cir"
+    path = write(tmp_path / "d.json", data)
+    code, _, err = tristock(
+        "export", "spice", path, "--catalog", DEMO, "--corner", "fmin", "-o", cir
+    )
+    assert code == 0, err
+    text = cir.read_text(encoding="utf-8")
+    assert "worst-case corner fmin" in text
+    osc, _ = corner_oscillator(design, spec, "fmin")
+    assert float(osc.prediction().frequency_hz) == pytest.approx(low_f, rel=1e-12)
+    nominal_f, _, _ = model(data)
+    assert low_f < nominal_f * 0.97  # the corner is well away from nominal
+    meas = run_ngspice(text, timeout_s=180.0)
+    # source: ngspice (transient run of the exported netlist)
+    assert meas["freq"] / low_f - 1 == pytest.approx(0, abs=3e-3)
+    assert meas["vtpp"] / float(osc.prediction().amplitude_vpp) - 1 == pytest.approx(0, abs=3e-3)
 
 
 @pytest.mark.ngspice

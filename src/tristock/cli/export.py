@@ -39,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
         text = json_text(bom.to_dict()) + "\n" if args.json else bom_csv(bom)
     else:
         try:
-            text = spice_netlist(spec, design, source=source.name)
+            text = spice_netlist(spec, design, source=source.name, corner=args.corner)
         except SpecError as err:
             raise SpecError([f"{source}: {line}" for line in err.lines]) from None
     if target is None:

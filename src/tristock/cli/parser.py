@@ -208,6 +208,11 @@ def _export(sub: Subparsers) -> None:
     _add_count(b, "--boards", limits.BOARDS, "boards to build; default the spec's build.boards")
     b.add_argument("--json", action="store_true", help="one JSON object instead of CSV")
     b.set_defaults(handler="export", action="bom")
+    s.add_argument(
+        "--corner",
+        choices=["fmin", "fmax", "amin", "amax"],
+        help="build at a worst-case extreme of frequency or amplitude (default: nominal)",
+    )
     s.set_defaults(handler="export", action="spice")
 
 
