@@ -30,7 +30,7 @@ from . import errors, openapi
 from .cache import AnswerCache
 from .errors import CatchAll
 from .limits import BodyLimit, ComputeGate, ComputeSlots
-from .routers import analysis, catalog, design, health, problems, registry
+from .routers import analysis, catalog, design, export, health, problems, registry
 from .settings import Settings
 from .store import CatalogStore
 
@@ -50,6 +50,8 @@ COMPUTE_PATHS = frozenset(
         "/v1/designs",
         "/v1/designs/{name}/accept",
         "/v1/impact",
+        "/v1/export/bom",
+        "/v1/export/spice",
     }
 )
 
@@ -97,7 +99,14 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     app.state.slots = slots
     app.state.cache = AnswerCache(settings.cache_size)
     errors.install(app)
-    routers = (design.router, analysis.router, catalog.router, registry.router, health.router)
+    routers = (
+        design.router,
+        analysis.router,
+        export.router,
+        catalog.router,
+        registry.router,
+        health.router,
+    )
     for r in (*routers, problems.router):
         app.include_router(r)
     app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS)

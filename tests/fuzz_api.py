@@ -51,6 +51,8 @@ BUDGET: dict[str, tuple[int, int]] = {
     "POST /v1/reoptimise": (60, 45),
     "POST /v1/analyse": (60, 45),
     "POST /v1/simulate": (60, 45),
+    "POST /v1/export/bom": (40, 30),
+    "POST /v1/export/spice": (30, 30),
     "GET /v1/catalog/{kind}": (160, 90),
     "GET /v1/catalog/{kind}/{part_id}": (100, 60),
     "PATCH /v1/catalog/{kind}/{part_id}": (110, 70),

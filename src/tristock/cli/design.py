@@ -17,6 +17,7 @@ from tristock.designs import design
 from tristock.designs.candidate import CAUTIONS
 from tristock.designs.results import Candidate, DesignResult
 from tristock.examples import example_spec_path
+from tristock.export.saving import DESIGN_SUFFIXES, write_design
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
@@ -192,7 +193,49 @@ def _plot(result: DesignResult, path: Path) -> None:
     plot_dial_law(best.tuning.dial_law, path, title=f"dial law, {best.parts['RV1'].id}")
 
 
+def save_targets(save: list[str] | None, save_all: str | None) -> tuple[int, Path] | None:
+    """``--save N FILE`` checked before the search: N a rank from 1, FILE a .toml or .json
+    name in a folder that exists; ``--save-all DIR``: a folder that exists."""
+    if save_all is not None and not Path(save_all).is_dir():
+        raise UsageError(f"tristock design: --save-all: folder {save_all!r} does not exist")
+    if save is None:
+        return None
+    rank_text, name = save
+    if not rank_text.isdigit() or int(rank_text) < 1:
+        raise UsageError(f"tristock design: --save: N must be a rank from 1, got {rank_text!r}")
+    path = Path(name)
+    if path.suffix.lower() not in DESIGN_SUFFIXES:
+        raise UsageError(
+            f"tristock design: --save: {name!r} must end in .toml or .json (the file's format)"
+        )
+    if not path.parent.is_dir() or path.is_dir():
+        raise UsageError(f"tristock design: --save: cannot write {name!r} (no such folder)")
+    return int(rank_text), path
+
+
+def _save(result: DesignResult, target: tuple[int, Path] | None, folder: str | None) -> list[str]:
+    """Write the asked DESIGN files; the lines saying where they went."""
+    notes = []
+    if target is not None:
+        rank, path = target
+        if rank > len(result.candidates):
+            raise UsageError(
+                f"tristock design: --save {rank}: only {len(result.candidates)} designs were found"
+            )
+        saved = result.candidates[rank - 1].design_file
+        assert saved is not None
+        write_design(path, saved)
+        notes.append(f"design {rank} saved to {path}")
+    if folder is not None:
+        for c in result.candidates:
+            assert c.design_file is not None
+            write_design(Path(folder) / f"rank-{c.rank}.toml", c.design_file)
+        notes.append(f"{len(result.candidates)} designs saved to {folder}/rank-N.toml")
+    return notes
+
+
 def run(args: argparse.Namespace) -> int:
+    target = save_targets(args.save, args.save_all)
     if args.example and args.spec is not None:
         raise UsageError("tristock design: give a SPEC file or --example, not both")
     if args.example:
@@ -215,13 +258,14 @@ def run(args: argparse.Namespace) -> int:
     if plot is not None and result.candidates:
         _plot(result, plot)
     code = exit_code(result)
+    notes = _save(result, target, args.save_all) if result.candidates else []
     if args.json:
         emit_json(result.model_dump(mode="json"))
     else:
         text = render_design(result)
         if plot is not None and result.candidates:
             text += f"\nplot written to {plot}"
-        emit(text)
+        emit("\n".join([text, *notes]))
     if code == exits.NO_DESIGN and args.json:  # the reasons are in the JSON; say so here too
         reasons = result.infeasible.reasons if result.infeasible else []
         complain("tristock design: no design meets the spec: " + "; ".join(reasons))

@@ -97,6 +97,19 @@ def _design(sub: Subparsers) -> None:
     )
     _time_limit(d)
     d.add_argument("--json", action="store_true", help="one JSON object on stdout")
+    d.add_argument(
+        "--save",
+        nargs=2,
+        metavar=("N", "FILE"),
+        help="write design N (its rank) as a DESIGN file, TOML or JSON by the suffix "
+        "(.toml or .json), for analyse, simulate, reoptimise and export",
+    )
+    d.add_argument(
+        "--save-all",
+        type=text("a folder"),
+        metavar="DIR",
+        help="write every design as DIR/rank-N.toml (DIR must exist)",
+    )
     d.set_defaults(handler="design")
 
 
@@ -173,6 +186,38 @@ def _catalog(sub: Subparsers) -> None:
     ss.set_defaults(handler="catalog", action="set-stock")
 
 
+def _export(sub: Subparsers) -> None:
+    e = _command(sub, "export", "hand-off files of one design: a BOM or an ngspice netlist")
+    esub = e.add_subparsers(dest="export_command", required=True, parser_class=_Parser)
+    b = esub.add_parser(
+        "bom",
+        help="bill of materials for a build (CSV, UTF-8, header row, a total row)",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    s = esub.add_parser(
+        "spice",
+        help="ngspice netlist at nominal values with .meas lines (fixed and trimmed designs)",
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    for p in (b, s):
+        p.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
+        p.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+        p.add_argument(
+            "--output", "-o", type=text("a file name"), help="file to write (default: stdout)"
+        )
+    _add_count(b, "--boards", limits.BOARDS, "boards to build; default the spec's build.boards")
+    b.add_argument("--json", action="store_true", help="one JSON object instead of CSV")
+    b.set_defaults(handler="export", action="bom")
+    s.add_argument(
+        "--corner",
+        choices=["fmin", "fmax", "amin", "amax"],
+        help="build at a worst-case extreme of frequency or amplitude (default: nominal)",
+    )
+    s.set_defaults(handler="export", action="spice")
+
+
 def _serve(sub: Subparsers) -> None:
     sv = _command(sub, "serve", "run the HTTP API (loopback only by default)")
     sv.add_argument("--host", default="127.0.0.1", type=text("an address"), help="address")
@@ -197,7 +242,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--version", action="version", version=f"tristock {__version__}")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
-    for add in (_design, _one_design, _reoptimise, _catalog, _serve):
+    for add in (_design, _one_design, _reoptimise, _catalog, _export, _serve):
         add(sub)
     add_registry_commands(sub)
     return p

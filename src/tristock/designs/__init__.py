@@ -9,7 +9,7 @@ same result model.
 from __future__ import annotations
 
 from tristock.designs.fixed import DEFAULT_ENGINE, DEFAULT_TIME_LIMIT_S, Engine, design_fixed
-from tristock.designs.results import DesignResult
+from tristock.designs.results import Candidate, DesignResult, SavedDesign
 from tristock.designs.trimmed import design_trimmed
 from tristock.spec.limits import default_time_limit_s
 from tristock.spec.model import Spec
@@ -26,20 +26,34 @@ def design(
     seed: int = 0,
 ) -> DesignResult:
     """Best ``spec.ranking.top`` designs from ``catalog``, optimal under the full model, by
-    the job the spec asks for (``engine`` applies to fixed designs). ``time_limit_s``: None
-    takes ``tristock.spec.limits.default_time_limit_s`` of the spec's job (5 s; 30 s tuned)."""
+    the job the spec asks for (``engine`` applies to fixed designs); every candidate carries
+    its DESIGN file (``design_file``). ``time_limit_s``: None takes
+    ``tristock.spec.limits.default_time_limit_s`` of the spec's job (5 s; 30 s tuned)."""
     if time_limit_s is None:
         time_limit_s = default_time_limit_s(spec.tuning is not None)
     if spec.trimmed:
-        return design_trimmed(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
-    if spec.tuning is not None:
+        result = design_trimmed(
+            spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed
+        )
+    elif spec.tuning is not None:
         # Loaded on use: the tuned search is the heaviest import and most runs never need it.
         from tristock.designs.tuned import design_tuned
 
-        return design_tuned(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
-    return design_fixed(
-        spec, catalog, engine=engine, time_limit_s=time_limit_s, samples=samples, seed=seed
-    )
+        result = design_tuned(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
+    else:
+        result = design_fixed(
+            spec, catalog, engine=engine, time_limit_s=time_limit_s, samples=samples, seed=seed
+        )
+    for c in result.candidates:
+        c.design_file = saved_design(spec, c)
+    return result
 
 
-__all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design"]
+def saved_design(spec: Spec, c: Candidate) -> SavedDesign:
+    """The DESIGN file of candidate ``c``: its parts by stock code, at the trimmed design's
+    nominal wiper (other designs: wiper 0, range C1)."""
+    wiper = c.trim.wiper_nominal if c.trim is not None else 0.0
+    return SavedDesign(spec=spec, parts={k: p.id for k, p in c.parts.items()}, wiper=wiper)
+
+
+__all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design", "saved_design"]

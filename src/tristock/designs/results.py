@@ -79,6 +79,17 @@ class TuningOut(_Out):
     dial_law: dict[str, list[float]]  # "wiper" and one list of frequencies per range capacitor
 
 
+class SavedDesign(_Out):
+    """A candidate as a DESIGN file (``tristock design --save``): the spec, designator ->
+    stock code, the pot's wiper (0..1; trimmed designs: the nominal trim point) and the range
+    capacitor in use; ``analyse``, ``simulate``, ``reoptimise`` and ``export`` read it as is."""
+
+    spec: Spec
+    parts: dict[str, str]
+    wiper: float = 0.0
+    range: str = "C1"
+
+
 class Candidate(_Out):
     rank: int
     parts: dict[str, PartOut]
@@ -95,6 +106,7 @@ class Candidate(_Out):
     warnings: list[WarningOut]
     trim: TrimOut | None = None
     tuning: TuningOut | None = None
+    design_file: SavedDesign | None = None  # set by ``designs.design`` for every answer
 
 
 class Infeasible(_Out):
