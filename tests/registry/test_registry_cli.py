@@ -109,6 +109,38 @@ def test_impact_and_accept(
     assert code == 2 and "made for revision 1, the latest is 2" in err
 
 
+TUNED_DESIGN = {"U1": "UA-JF2", "R1": "R5J-2K40", "R2": "R1F-8K87", "R3": "R1F-976K",
+                "R4": "R5J-1K00", "RV1": "VP-100K", "C1": "CC0-1N50", "C2": "CC0-150P"}  # fmt: skip
+
+
+def test_a_tuned_design_is_released_and_re_solved(
+    shop: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """The bundled tuned example's rank 1 goes through the same path (SQLite only: the
+    backends are covered above): released, then its R1 made short by a what-if; the proposal
+    changes R1 alone, proven minimal, to a code whose stock covers the build."""
+    from tristock.examples import example_spec_path
+    from tristock.spec.loading import load_spec
+
+    where = ["--catalog", str(shop), "--db", str(tmp_path / "registry.sqlite")]
+    spec = load_spec(example_spec_path("tuned")).model_dump(mode="json")
+    design = tmp_path / "tuned-design.json"
+    design.write_text(json.dumps({"spec": spec, "parts": TUNED_DESIGN, "range": "C1"}))
+    code, out, _ = tristock(capsys, "release", str(design), "--name", "panel", "--boards", "20",
+                            *where, "--json")  # fmt: skip
+    assert code == 0 and json.loads(out)["kind"] == "tuned"
+    what_if = tmp_path / "short.csv"
+    what_if.write_text("id,stock\nR5J-2K40,10\n")
+    code, out, _ = tristock(capsys, "impact", "--what-if", str(what_if), *where, "--json")
+    proposal = json.loads(out)["proposal"]
+    assert code == 0 and proposal["proven"] and proposal["total_changes"] == 1
+    (changed,) = [d for d in proposal["designs"] if d["changed"]]
+    assert changed["changed"] == ["R1"]
+    new_r1 = changed["design_after"]["parts"]["R1"]
+    stock = {row.split(",")[0]: row for row in (shop / "resistors.csv").read_text().splitlines()}
+    assert new_r1 != "R5J-2K40" and new_r1 in stock
+
+
 def test_exit_codes_of_bad_input_and_faults(
     registry_url: str, shop: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
