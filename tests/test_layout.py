@@ -30,11 +30,6 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("tristock.cli", "tristock.serve", "tristock.__main__", "tristock.api"),
 )
 
-#: Known exceptions for this round. The tuned search (``designs/tuned``) is being ported to
-#: the current physics in parallel and moved here as a unit: it is excused from the layering
-#: and size rules until that port lands (issue 12's follow-up splits and re-layers it).
-EXCUSED = ("tristock.designs.tuned",)
-
 
 @dataclass(frozen=True)
 class Import:
@@ -107,10 +102,6 @@ def layer_of(name: str) -> int:
     return level
 
 
-def excused(name: str) -> bool:
-    return any(name == e or name.startswith(e + ".") for e in EXCUSED)
-
-
 MODULES = modules()
 IMPORTS = [i for n, p in MODULES.items() for i in imports_of(n, p, set(MODULES))]
 
@@ -125,7 +116,7 @@ def upward_imports(imports: list[Import]) -> list[str]:
         f"{i.source}:{i.line} imports {i.target} (layer {layer_of(i.target)} above "
         f"{layer_of(i.source)})"
         for i in imports
-        if layer_of(i.target) > layer_of(i.source) and not excused(i.source)
+        if layer_of(i.target) > layer_of(i.source)
     ]
 
 
@@ -191,7 +182,6 @@ def test_no_module_over_400_lines() -> None:
         name: n
         for name, path in MODULES.items()
         if (n := len(path.read_text(encoding="utf-8").splitlines())) > MAX_LINES
-        and not excused(name)
     }
     assert long == {}
 
