@@ -368,3 +368,19 @@ def test_help_lists_the_exit_codes() -> None:
 def test_real_process_bad_input_is_one_line() -> None:
     r = run_process("design", "--example", "--top", "0")
     assert r.code == exits.BAD_INPUT and "--top" in one_line(r.err) and r.out == ""
+
+
+def test_the_catalog_comes_from_tristock_catalog_when_not_given(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Without --catalog a command reads TRISTOCK_CATALOG (as `serve` does); with neither it
+    is bad input naming both."""
+    path = write_design(tmp_path / "d.json", demo_parts())
+    monkeypatch.delenv("TRISTOCK_CATALOG", raising=False)
+    r = run("analyse", path, "--samples", "200")
+    assert r.code == exits.BAD_INPUT and "TRISTOCK_CATALOG" in one_line(r.err)
+    monkeypatch.setenv("TRISTOCK_CATALOG", str(DEMO_CATALOG))
+    with_env = run("analyse", path, "--samples", "200", "--json")
+    given = run("analyse", path, "--samples", "200", "--json", "--catalog", DEMO_CATALOG)
+    assert with_env.code == given.code == exits.OK
+    assert json.loads(with_env.out) == json.loads(given.out)

@@ -439,6 +439,26 @@ def test_a_write_returns_the_catalog_and_stamps_now_on_disk(small: Path) -> None
 # The CLI: a write that cannot be done exits 1 with one line
 
 
+def test_cli_set_stock_delta_adds_and_takes_within_the_stock(
+    small: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """``--delta`` changes the count (a negative COUNT takes pieces); taking more than is on
+    hand is refused (exit 2) and leaves the table as it was."""
+    stock_of = {p.id: p.stock for p in load_catalog(small).resistors}
+    start = stock_of["TR-2K20"]
+    assert cli.main(["catalog", "set-stock", str(small), "TR-2K20", "7", "--delta"]) == 0
+    assert cli.main(["catalog", "set-stock", str(small), "TR-2K20", "-3", "--delta"]) == 0
+    out = capsys.readouterr().out
+    assert f"TR-2K20: stock {start + 7} -> {start + 4} (-3)" in out
+    assert {p.id: p.stock for p in load_catalog(small).resistors}["TR-2K20"] == start + 4
+    before = tables(small)
+    too_many = str(-(start + 5))
+    assert cli.main(["catalog", "set-stock", str(small), "TR-2K20", too_many, "--delta"]) == 2
+    assert cli.main(["catalog", "set-stock", str(small), "TR-2K20", "-1"]) == 2  # no --delta
+    assert "COUNT -1 is below 0" in capsys.readouterr().err
+    assert tables(small) == before
+
+
 def test_cli_set_stock_on_a_full_disk_exits_1_with_one_line(
     small: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
 ) -> None:

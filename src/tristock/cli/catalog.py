@@ -15,7 +15,14 @@ from tristock.cli import exits
 from tristock.cli.exits import UsageError
 from tristock.cli.output import emit, write_quietly
 from tristock.spec import limits
-from tristock.stock.catalog import Catalog, CatalogError, load_catalog, parse_number, set_stock
+from tristock.stock.catalog import (
+    Catalog,
+    CatalogError,
+    adjust_stock,
+    load_catalog,
+    parse_number,
+    set_stock,
+)
 from tristock.stock.parts import DELAY_MEANING
 from tristock.stock.units import format_value
 
@@ -119,6 +126,13 @@ def run(args: argparse.Namespace) -> int:
         return exits.OK
     if args.action == "generate":
         return generate(args)
+    if args.delta:
+        new = adjust_stock(args.dir, args.id, args.count)
+        emit(f"{args.id}: stock {new - args.count} -> {new} ({args.count:+d})")
+        return exits.OK
+    if args.count < 0:
+        raise UsageError(f"tristock catalog set-stock: COUNT {args.count} is below 0 (a change "
+                         "of stock takes --delta)")  # fmt: skip
     old = set_stock(args.dir, args.id, args.count)
-    emit(f"{args.id}: stock {old} -> {args.count}")
+    emit(f"{args.id}: stock {old} -> {args.count} ({args.count - old:+d})")
     return exits.OK

@@ -5,6 +5,7 @@ Errors name the file: a spec problem reads ``spec.toml: triangle.amplitude_vpp: 
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
@@ -23,12 +24,19 @@ T = TypeVar("T")
 PLOT_SUFFIXES = (".png", ".svg")
 
 
+#: The catalog folder when ``--catalog`` is not given (as for ``tristock serve``).
+CATALOG_ENV = "TRISTOCK_CATALOG"
+
+
 def catalog_from(path: str | None, *, example: bool = False) -> Catalog:
-    """The catalog in folder ``path``; with ``example`` and no path, the bundled demo."""
+    """The catalog in folder ``path``; without one, a bundled example's is the demo, and any
+    other command's is ``TRISTOCK_CATALOG``."""
     if path is None:
-        if not example:
-            raise UsageError("tristock: --catalog DIR is required")
-        return load_catalog(demo_catalog_dir())
+        if example:
+            return load_catalog(demo_catalog_dir())
+        path = os.environ.get(CATALOG_ENV) or None
+        if path is None:
+            raise UsageError(f"tristock: --catalog DIR is required (or {CATALOG_ENV})")
     return load_catalog(path)
 
 

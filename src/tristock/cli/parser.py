@@ -118,7 +118,9 @@ def _one_design(sub: Subparsers) -> None:
     s = _command(sub, "simulate", "time-domain simulation of one design against the model")
     for p in (a, s):
         p.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
-        p.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+        p.add_argument(
+            "--catalog", type=text("a folder"), help="catalog folder (default: TRISTOCK_CATALOG)"
+        )
         p.add_argument("--json", action="store_true", help="one JSON object on stdout")
     _add_count(a, "--samples", limits.SAMPLES, "Monte Carlo samples", 20000)
     _add_count(a, "--seed", limits.SEED, "Monte Carlo seed", 0)
@@ -138,7 +140,9 @@ def _one_design(sub: Subparsers) -> None:
 def _reoptimise(sub: Subparsers) -> None:
     r = _command(sub, "reoptimise", "fewest part changes that bring a design back in spec")
     r.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
-    r.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+    r.add_argument(
+        "--catalog", type=text("a folder"), help="catalog folder (default: TRISTOCK_CATALOG)"
+    )
     r.add_argument(
         "--without",
         action="append",
@@ -179,10 +183,16 @@ def _catalog(sub: Subparsers) -> None:
     g.add_argument("--force", action="store_true", help="replace an existing file")
     g.set_defaults(handler="catalog", action="generate")
 
-    ss = csub.add_parser("set-stock", help="set the pieces on hand of one part (atomic)")
+    ss = csub.add_parser(
+        "set-stock",
+        help="set the pieces on hand of one part, or change them by --delta (atomic)",
+        epilog="example: tristock catalog set-stock shop CPPG-2N20 -150 --delta",
+    )
     ss.add_argument("dir", type=text("a folder"))
     ss.add_argument("id", type=text("a stock code"))
-    _add_count(ss, "count", limits.STOCK, "pieces on hand")
+    most = limits.STOCK[1]
+    _add_count(ss, "count", (-most, most), "pieces on hand; with --delta, pieces added (< 0 taken)")
+    ss.add_argument("--delta", action="store_true", help="COUNT is a change, not the new count")
     ss.set_defaults(handler="catalog", action="set-stock")
 
 
@@ -203,7 +213,9 @@ def _export(sub: Subparsers) -> None:
     )
     for p in (b, s):
         p.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
-        p.add_argument("--catalog", required=True, type=text("a folder"), help="catalog folder")
+        p.add_argument(
+            "--catalog", type=text("a folder"), help="catalog folder (default: TRISTOCK_CATALOG)"
+        )
         p.add_argument(
             "--output", "-o", type=text("a file name"), help="file to write (default: stdout)"
         )

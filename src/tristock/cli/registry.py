@@ -16,7 +16,7 @@ from contextlib import contextmanager
 from pathlib import Path
 
 from tristock.cli import exits
-from tristock.cli.common import catalog_from, parsed_in, read_file
+from tristock.cli.common import CATALOG_ENV, catalog_from, parsed_in, read_file
 from tristock.cli.exits import UsageError, WorkFailed
 from tristock.cli.output import complain, emit, emit_json
 from tristock.registry import (
@@ -35,8 +35,6 @@ from tristock.registry.revise import accept, diff, plan
 from tristock.registry.runner import SchedulerUnavailable
 from tristock.registry.whatif import WhatIfError
 from tristock.stock.units import format_value
-
-CATALOG_ENV = "TRISTOCK_CATALOG"
 
 
 class Refused(Exception):
