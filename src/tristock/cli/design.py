@@ -134,6 +134,29 @@ def _tuning_table(result: DesignResult) -> list[str]:
     return lines
 
 
+#: Below this Monte Carlo yield of rank 1 the table says so (common practice: a build that
+#: rejects more than one board in ten needs a closer look).
+LOW_YIELD = 0.90
+
+
+def _count_and_yield_notes(result: DesignResult) -> list[str]:
+    """A line when fewer designs exist than ``top`` asked for, and one when rank 1's yield
+    into both bands is below ``LOW_YIELD`` with the spec's nominal guarantee."""
+    notes = []
+    found, asked = len(result.candidates), result.spec.ranking.top
+    if found < asked:
+        where = "meet the spec" if result.search.proven_optimal else "found within the time limit"
+        notes.append(f"note: {found} design(s) {where}; --top asked for {asked}")
+    best = result.candidates[0]
+    fixed = result.spec.tuning is None and not result.spec.trimmed
+    if fixed and best.yield_fraction < LOW_YIELD and result.spec.limits.guarantee == "nominal":
+        notes.append(
+            f"note: rank 1 puts {best.yield_fraction:.1%} of boards into both bands; "
+            'guarantee = "yield" (with min_yield) ranks by it, or a [trim] section adds a trimmer'
+        )
+    return notes
+
+
 def render_design(result: DesignResult) -> str:
     """The human answer: the spec, the table of designs (or why there is none), the search."""
     lines = ["tristock design", *("  " + x for x in spec_lines(result.spec)), ""]
@@ -154,6 +177,7 @@ def render_design(result: DesignResult) -> str:
             lines += _trim_table(result)
         else:
             lines += _fixed_table(result)
+        lines += _count_and_yield_notes(result)
         lines.append("")
         best = result.candidates[0]
         lines.append("Rank 1 parts: " + ", ".join(f"{k} {v.id}" for k, v in best.parts.items()))
