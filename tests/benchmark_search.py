@@ -126,7 +126,7 @@ def cut_down(catalog: Catalog) -> Catalog:
         catalog.path,
         catalog.resistors[::4],
         catalog.capacitors[::6],
-        tuple(o for o in catalog.opamps if o.id in {"UA-JF2", "UA-GP2", "UA-LN2"}),
+        tuple(o for o in catalog.opamps if o.id in {"GA-JF2", "GA-GP2", "GA-LN2"}),
     )
 
 

@@ -130,7 +130,7 @@ def _ranking_case(by: str, guarantee: str, catalog: Callable[[], Any]) -> Callab
                 "guarantee": guarantee,
                 "min_yield": 0.9,
                 # the yield ranking counts Monte Carlo passes row by row: fewer op amps
-                **({"opamps": ["UA-JF2", "UA-LP2"]} if by == "yield" else {}),
+                **({"opamps": ["GA-JF2", "GA-LP2"]} if by == "yield" else {}),
             },
             # wider bands where a guarantee or the yield ranking must find designs
             frequency={"target_hz": 3300.0, "tolerance_pct": 2.0 if loose else 5.0},

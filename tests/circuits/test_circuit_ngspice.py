@@ -109,7 +109,7 @@ RUNS: dict[str, Run] = {
         Oscillator(10e3, 33e3, 22e3, 7.5e-9, _opamp((1.5, 1.5), 10e6, 0.0, 3e6), Rails(12, -12)),
         "macro",
     ),
-    # the demo's rank 1 (UA-JF2: 3 MHz, 13 V/µs, 1.2 µs delay, 3 mV offsets; R1F-10K7,
+    # the demo's rank 1 (GA-JF2: 3 MHz, 13 V/µs, 1.2 µs delay, 3 mV offsets; R1F-10K7,
     # R0B-38K3, R1F-51K1, CPPG-6N80): a delay line ahead of the gm stage, both channels finite
     "demo_rank1": _run(
         Oscillator(

@@ -456,7 +456,7 @@ def test_a_top_beyond_the_timing_limit_is_infeasible_with_the_numbers() -> None:
     text = " ".join(result.infeasible.reasons)
     match = re.search(r"fastest op amp, (\S+), .* up to about ([0-9.]+) Hz", text)
     assert match, text
-    assert match.group(1) == "UA-JF2" and 5e3 < float(match.group(2)) < 10e3
+    assert match.group(1) == "GA-JF2" and 5e3 < float(match.group(2)) < 10e3
     # and raising the limit finds designs again
     data["limits"] = {"max_timing_share": 0.25}
     assert design(parse_spec(data), demo(), time_limit_s=60.0).candidates

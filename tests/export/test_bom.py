@@ -20,7 +20,7 @@ from tristock.spec.loading import read_mapping
 from tristock.stock.catalog import load_catalog
 
 DEMO = demo_catalog_dir()
-RANK1 = {"U1": "UA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
+RANK1 = {"U1": "GA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
 
 
 def tristock(*argv: str | Path) -> tuple[int, str, str]:
@@ -50,8 +50,8 @@ def test_csv_rows_match_the_catalog_by_hand(design_file: Path, tmp_path: Path) -
     assert list(rows[0]) == list(COLUMNS)
     by_code = {r["stock_code"]: r for r in rows}
     assert list(by_code) == [*RANK1.values(), "TOTAL"]
-    # UA-JF2: dual, 0.24 each, 3000 on hand -> 300 pieces, 72.00, 2700 left
-    u1 = by_code["UA-JF2"]
+    # GA-JF2: dual, 0.24 each, 3000 on hand -> 300 pieces, 72.00, 2700 left
+    u1 = by_code["GA-JF2"]
     assert (u1["designators"], u1["pieces_for_build"], u1["stock_after"]) == ("U1", "300", "2700")
     assert float(u1["extended_cost"]) == pytest.approx(72.0)
     # R0B-21K5: 21.5 kΩ 0.1 % E96, 0.32 each, 250 on hand -> 50 short, 96.00
@@ -96,9 +96,9 @@ def test_totals_are_pieces_times_boards_and_shared_codes_share_a_row() -> None:
 def test_a_single_channel_op_amp_takes_two_pieces_a_board() -> None:
     catalog = load_catalog(DEMO)
     spec = read_mapping(example_spec_path("demo"))
-    _, design = parse_design({"spec": spec, "parts": {**RANK1, "U1": "UA-PR1"}}, catalog)
+    _, design = parse_design({"spec": spec, "parts": {**RANK1, "U1": "GA-PR1"}}, catalog)
     u1 = bill_of_materials(design, 10).rows[0]
-    # UA-PR1: one channel, 2.10 each, 120 on hand -> 20 pieces, 42.00, 100 left
+    # GA-PR1: one channel, 2.10 each, 120 on hand -> 20 pieces, 42.00, 100 left
     assert (u1.pieces_per_board, u1.pieces_for_build, u1.stock_after) == (2, 20, 100)
     assert u1.extended_cost == pytest.approx(42.0)
 

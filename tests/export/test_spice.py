@@ -23,7 +23,7 @@ from tristock.stock.catalog import load_catalog
 
 DEMO = demo_catalog_dir()
 #: Rank 1 of the demo example (``OPAMP_SCHMITT.demo_board``) and of the trimmed example.
-RANK1 = {"U1": "UA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
+RANK1 = {"U1": "GA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
 
 
 def tristock(*argv: str | Path) -> tuple[int, str, str]:

@@ -14,7 +14,7 @@ import pytest
 from tristock.cli import main
 from tristock.examples import demo_catalog_dir
 
-DEMO_DESIGN = {"U1": "UA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K",
+DEMO_DESIGN = {"U1": "GA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K",
                "C1": "CPPG-2N20"}  # fmt: skip
 
 
@@ -109,7 +109,7 @@ def test_impact_and_accept(
     assert code == 2 and "made for revision 1, the latest is 2" in err
 
 
-TUNED_DESIGN = {"U1": "UA-JF2", "R1": "R5J-2K40", "R2": "R1F-8K87", "R3": "R1F-976K",
+TUNED_DESIGN = {"U1": "GA-JF2", "R1": "R5J-2K40", "R2": "R1F-8K87", "R3": "R1F-976K",
                 "R4": "R5J-1K00", "RV1": "VP-100K", "C1": "CC0-1N50", "C2": "CC0-150P"}  # fmt: skip
 
 

@@ -377,7 +377,7 @@ def cut_down_demo() -> Catalog:
     cat = demo()
     res = tuple(r for r in cat.resistors if 1e3 <= r.value_ohm <= 1e6 and r.stock > 0)[::11]
     caps = tuple(c for c in cat.capacitors if c.dielectric != "X7R" and c.stock > 0)[::8]
-    ops = tuple(o for o in cat.opamps if o.id in {"UA-JF2", "UA-GP2", "UA-LP2"})
+    ops = tuple(o for o in cat.opamps if o.id in {"GA-JF2", "GA-GP2", "GA-LP2"})
     return Catalog(cat.path, res, caps, ops)
 
 

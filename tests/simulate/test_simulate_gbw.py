@@ -36,7 +36,7 @@ def _amp(swing: tuple[float, float], slew: float, delay: float, gbw: float, **kw
 
 
 DESIGNS = {
-    # the demo's rank 1 (UA-JF2: 3 MHz, 13 V/µs, 1.2 µs, 3 mV offsets)
+    # the demo's rank 1 (GA-JF2: 3 MHz, 13 V/µs, 1.2 µs, 3 mV offsets)
     "demo_rank1": Oscillator(
         10.7e3,
         38.3e3,
@@ -153,7 +153,7 @@ def _demo_design(tmp_path: Path) -> Path:
     spec = (REPO / "src" / "tristock" / "examples" / "demo.toml").read_text()
 
     parts = {
-        "U1": "UA-JF2",
+        "U1": "GA-JF2",
         "R1": "R1F-10K7",
         "R2": "R0B-38K3",
         "R3": "R1F-51K1",

@@ -109,7 +109,7 @@ RUNS: dict[str, Run] = {
 #: Finite GBW in both channels (simulate's ODE path against ngspice's gm-stage macromodels:
 #: the same physics, so the differences are again ngspice's own).
 GBW_RUNS: dict[str, Run] = {
-    # the demo's rank 1 (UA-JF2: 3 MHz, 13 V/µs, 1.2 µs delay line, 3 mV offsets)
+    # the demo's rank 1 (GA-JF2: 3 MHz, 13 V/µs, 1.2 µs delay line, 3 mV offsets)
     "demo_rank1": _run(
         Oscillator(
             10.7e3,

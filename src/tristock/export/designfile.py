@@ -1,6 +1,6 @@
 """DESIGN files: a spec and the chosen part of each designator, as TOML or JSON.
 
-    {"spec": {...}, "parts": {"U1": "UA-JF2", "R1": "R1F-10K7", ...}}
+    {"spec": {...}, "parts": {"U1": "GA-JF2", "R1": "R1F-10K7", ...}}
 
 A part may also be an object with an ``id`` field, so a candidate copied from
 ``tristock design --json`` works as it is. Trimmed and tuned designs add ``RV1`` (and ``R4``,

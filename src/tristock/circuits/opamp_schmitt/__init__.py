@@ -78,7 +78,7 @@ class OpAmpSchmitt(Topology):
     spice_accuracy = 3e-3
     #: Rank 1 of the bundled demo example (2.5 kHz, 6 Vpp on ±12 V).
     demo_board = MappingProxyType(
-        {"U1": "UA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
+        {"U1": "GA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
     )
     demo_rails = (12.0, -12.0)
 
