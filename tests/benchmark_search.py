@@ -32,14 +32,8 @@ import numpy as np
 from tristock.designs import design
 from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
-from tristock.search.model import (
-    SECONDARY_SPAN,
-    Rows,
-    SearchModel,
-    build_model,
-    evaluate,
-    rank_key,
-)
+from tristock.search.model import SECONDARY_SPAN, SearchModel, build_model
+from tristock.search.rows import Rows, evaluate, rank_key
 from tristock.spec.loading import load_spec, parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
@@ -141,8 +135,8 @@ def peak_memory() -> tuple[str, float, int]:
             return _rss([exe, "design", "--example", "--json"], "tristock design --example --json")
     code = (
         "from tristock.stock.catalog import load_catalog\n"
-        "from tristock.search import design\n"
-        "from tristock.spec import parse_spec\n"
+        "from tristock.designs import design\n"
+        "from tristock.spec.loading import parse_spec\n"
         f"r = design(parse_spec({FALLBACK_SPEC!r}), load_catalog({str(DEMO)!r}))\n"
         "print(r.model_dump_json()[:1])\n"
     )
