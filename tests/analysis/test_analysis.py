@@ -15,10 +15,10 @@ from scipy import stats
 from tristock.analysis.bundle import analyse
 from tristock.analysis.montecarlo import monte_carlo, wilson_interval
 from tristock.analysis.sensitivity import sensitivities, temperature_drift
-from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.analysis.worstcase import worst_case
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.circuits.opamp_schmitt.physics import Oscillator
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.parts import Capacitor, OpAmp, Resistor

@@ -17,10 +17,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.analysis.worstcase import box_extremes, worst_case
 from tristock.circuits.board import Design
 from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.parts import Capacitor, OpAmp, Resistor

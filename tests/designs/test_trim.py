@@ -32,9 +32,9 @@ import pytest
 from numpy.typing import NDArray
 
 from tristock import cli
-from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.designs import design
 from tristock.designs.results import Candidate, DesignResult
 from tristock.designs.trimmed import coverage, design_trimmed

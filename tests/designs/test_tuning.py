@@ -31,8 +31,8 @@ import numpy as np
 import pytest
 
 from tristock import cli
-from tristock.analysis.spread import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.circuits.board import Control, Design, rails_from_supply
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.circuits.rails import Rails
 from tristock.designs import design
 from tristock.designs.results import Candidate, DesignResult

@@ -1,7 +1,8 @@
 """Tolerance analysis of one design: worst case, Monte Carlo yield, sensitivities, drift.
 
-Every figure comes from the vectorised closed-form model ``physics.predict`` over the
-spread box of ``tristock.analysis.spread`` (the variables, their ranges and units are listed there);
+Every figure comes from the design's topology: its vectorised closed-form ``predict`` over
+the spread box it declares (``Topology.spread``; the variables, their ranges and units are
+listed in the topology's spread module);
 ``tristock.analysis.worstcase`` searches that box for the extremes, this module samples it (Monte
 Carlo) and differentiates the model at the nominal point.
 
@@ -27,9 +28,7 @@ from tristock.analysis.sensitivity import (
     sensitivities,
     temperature_drift,
 )
-from tristock.analysis.spread import (
-    check_inputs,
-)
+from tristock.analysis.spread import check_inputs
 from tristock.analysis.worstcase import WorstCase, worst_case
 from tristock.circuits.board import Design
 from tristock.circuits.topology import Prediction

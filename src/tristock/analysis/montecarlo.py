@@ -1,6 +1,6 @@
-"""Monte Carlo yield of one design: samples of the spread box (``spread``), each part's
-tolerance "normal" (truncated at ``NORMAL_SIGMAS``) or "uniform", counted against the spec's
-bands, with a Wilson score interval."""
+"""Monte Carlo yield of one design: samples of the spread box its topology declares
+(``spread``), each variable "normal" (truncated at ``NORMAL_SIGMAS``) or "uniform", the
+temperature uniform, counted against the spec's bands, with a Wilson score interval."""
 
 from __future__ import annotations
 
@@ -90,7 +90,7 @@ def _deviations(
     edge = float(special.ndtr(-NORMAL_SIGMAS))
     for i, var in enumerate(variables):
         u = rng.random(samples)
-        if var.temperature or distribution == "uniform":
+        if var.temperature is not None or distribution == "uniform":
             z[:, i] = 2.0 * u - 1.0
         else:
             z[:, i] = special.ndtri(edge + u * (1.0 - 2.0 * edge)) / NORMAL_SIGMAS

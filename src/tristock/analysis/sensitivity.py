@@ -3,21 +3,18 @@ temperature drift (end-point slope over the environment range) of one design."""
 
 from __future__ import annotations
 
+import dataclasses
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from tristock.analysis.spread import (
-    POINT_FIELDS,
-    Board,
-    check_inputs,
-    metric_table,
-)
-from tristock.circuits.board import Design, rails_from_supply
-from tristock.circuits.opamp_schmitt.physics import Oscillator
+from tristock.analysis.spread import Board, check_inputs, metric_table, point_fields
+from tristock.circuits.board import Design
+from tristock.circuits.rails import rails_from_supply
+from tristock.circuits.topology import BuiltCircuit
 from tristock.spec.model import Spec
 
 FloatArray = npt.NDArray[np.float64]
@@ -26,29 +23,12 @@ FloatArray = npt.NDArray[np.float64]
 SENSITIVITY_STEP = 1e-4
 
 
-#: Sensitivity name -> the fields of the point it scales.
-_SENSITIVITY_FIELDS: dict[str, tuple[str, ...]] = {
-    "R1": ("r1",),
-    "R2": ("r2",),
-    "R3": ("r3",),
-    "C1": ("c1",),
-    "V+": ("v_pos",),
-    "V-": ("v_neg",),
-    "U1.slew": ("slew_rise", "slew_fall"),
-    "U1.delay": ("delay",),
-    "U1.gbw": ("gbw",),
-    "U1.swing_pos": ("swing_pos",),
-    "U1.swing_neg": ("swing_neg",),
-    "U1.offset": ("vos1", "vos2"),
-    "U1.bias": ("ib1", "ib2"),
-}
-
-
 @dataclass(frozen=True)
 class Sensitivity:
     """Normalised sensitivities S = (x/y)·(∂y/∂x) = ∂ln y/∂ln x of y = frequency and y =
-    triangle amplitude, keyed by "R1", "R2", "R3", "C1", "V+", "V-", "U1.slew", "U1.delay",
-    "U1.gbw", "U1.swing_pos", "U1.swing_neg", "U1.offset", "U1.bias"."""
+    triangle amplitude, keyed by the topology's ``sensitivity_fields`` (the op-amp Schmitt
+    loop: "R1", "R2", "R3", "C1", "V+", "V-", "U1.slew", "U1.delay", "U1.gbw",
+    "U1.swing_pos", "U1.swing_neg", "U1.offset", "U1.bias")."""
 
     frequency: dict[str, float]
     amplitude: dict[str, float]
@@ -57,7 +37,7 @@ class Sensitivity:
         return {"frequency": dict(self.frequency), "amplitude": dict(self.amplitude)}
 
 
-def nominal_oscillator(design: Design, spec: Spec) -> Oscillator:
+def nominal_oscillator(design: Design, spec: Spec) -> BuiltCircuit:
     """The design at 25 °C on the nominal rails, the op amp as catalogued."""
     return design.oscillator(rails_from_supply(spec.supply), 25.0)
 
@@ -67,28 +47,32 @@ def sensitivities(design: Design, spec: Spec) -> Sensitivity:
     catalogued), by central differences in log space:
     S ≈ [ln y(x·e^h) - ln y(x·e^-h)]/(2h), h = SENSITIVITY_STEP.
 
-    "U1.slew" scales rise and fall slew together, "U1.offset" both channels' offsets, "U1.bias"
-    both bias currents (they are one part's parameters). A parameter that is zero (offset 0,
+    Each name scales the point fields the topology lists for it together (the op-amp Schmitt
+    loop: "U1.slew" rise and fall slew, "U1.offset" both channels' offsets, "U1.bias" both
+    bias currents: they are one part's parameters). A parameter that is zero (offset 0,
     a single supply's V- = 0) has S = x·∂ln y/∂x = 0 exactly and is reported as 0.0; an
     infinite one (slew or GBW = inf) has S = 0 in the limit and comes out as 0.0.
     """
     check_inputs(design, spec)
     board = Board.of(design, rails_from_supply(spec.supply), 25.0)
-    names = list(_SENSITIVITY_FIELDS)
+    fields_of = board.topology.sensitivity_fields
+    names = list(fields_of)
     rows = 2 * len(names)
-    factors = {f: np.ones(rows) for f in POINT_FIELDS}
+    factors = {f: np.ones(rows) for f in point_fields(board.point)}
     for i, name in enumerate(names):
-        for f in _SENSITIVITY_FIELDS[name]:
+        for f in fields_of[name]:
             factors[f][2 * i] = math.exp(SENSITIVITY_STEP)
             factors[f][2 * i + 1] = math.exp(-SENSITIVITY_STEP)
-    point = replace(board.point, **{f: getattr(board.point, f) * factors[f] for f in factors})
+    point = dataclasses.replace(
+        board.point, **{f: getattr(board.point, f) * factors[f] for f in factors}
+    )
     vals = metric_table(board.predict(point), rows)
     with np.errstate(invalid="ignore"):
         logs = np.log(vals[:, :2])
     slopes = (logs[0::2] - logs[1::2]) / (2 * SENSITIVITY_STEP)
     out: list[dict[str, float]] = [{}, {}]
     for i, name in enumerate(names):
-        zero = all(getattr(board.point, f) == 0 for f in _SENSITIVITY_FIELDS[name])
+        zero = all(getattr(board.point, f) == 0 for f in fields_of[name])
         for j in range(2):
             s = float(slopes[i, j])
             out[j][name] = 0.0 if zero or not math.isfinite(s) else s

@@ -1,7 +1,8 @@
 """Worst case over the whole spread box: extremes of frequency, amplitude and duty.
 
-The box is every combination of the spread variables of ``tristock.analysis.spread`` (tolerances,
-each rail, temperature, op-amp offsets, bias, slew and delay), each a deviation z in [-1, 1].
+The box is every combination of the spread variables the design's topology declares
+(``Topology.spread``; for the op-amp Schmitt loop: tolerances, each rail, temperature, op-amp
+offsets, bias, slew and delay), each a deviation z in [-1, 1].
 An extreme is sought for each of the six objectives max ±ln y, y one of frequency, triangle
 amplitude and duty, in three steps (``WorstCase.method``):
 
@@ -13,7 +14,8 @@ amplitude and duty, in three steps (``WorstCase.method``):
    are equal, so with independent rails the frequency maximum can lie inside the rail box,
    near its diagonal VH - Ve = VL + Ve (Ve the integrator's error voltage). From each of the
    best corners of an extreme, each rail is moved (the other rail at either end) to the point
-   where the drives balance: ``swing_imbalance`` is affine in a rail, so that point is exact.
+   where the drives balance: the topology's ``drive_imbalance`` is affine in a rail, so that
+   point is exact.
 3. **Projected Newton** ("+box" in the method): ``boxnewton.maximise`` from the
    ``CORNER_STARTS`` best corners and ``BALANCED_STARTS`` best balanced points of each
    extreme, all rows batched, over every variable as a continuous one (finite-difference
@@ -67,7 +69,6 @@ from tristock.analysis.spread import (
     spread_board,
 )
 from tristock.circuits.board import Design
-from tristock.circuits.opamp_schmitt.point import swing_imbalance
 from tristock.spec.model import Spec
 
 FloatArray = npt.NDArray[np.float64]
@@ -201,7 +202,7 @@ def _corner_starts(
 
 def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatArray) -> FloatArray:
     """From each row, each rail moved alone (the other rail at -1 and at +1) to where the
-    integrator's drives balance (``swing_imbalance`` = 0), where that lies in [-1, 1].
+    integrator's drives balance (``Topology.drive_imbalance`` = 0), where that lies in [-1, 1].
 
     The imbalance is affine in a rail's z (VH and VL are; Ve does not depend on the rails), so
     the root from its values at z = -1 and z = +1 is exact. (k, n), k <= 4·len(rows)."""
@@ -223,9 +224,8 @@ def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatAr
     column = np.repeat([r for r, _ in bases], rows.shape[0])
     at = np.arange(len(lo))
     lo[at, column], hi[at, column] = -1.0, 1.0
-    control = board.control
-    i_lo = swing_imbalance(point_at(board, variables, lo), board.v_ref, control)
-    i_hi = swing_imbalance(point_at(board, variables, hi), board.v_ref, control)
+    i_lo = board.drive_imbalance(point_at(board, variables, lo))
+    i_hi = board.drive_imbalance(point_at(board, variables, hi))
     i_lo, i_hi = np.broadcast_to(i_lo, (len(lo),)), np.broadcast_to(i_hi, (len(lo),))
     ok = (i_lo * i_hi <= 0.0) & (i_lo != i_hi)
     root = lo[ok]
@@ -278,8 +278,8 @@ def _search(
 def worst_case(
     design: Design, spec: Spec, *, max_corner_variables: int = MAX_CORNER_VARIABLES
 ) -> WorstCase:
-    """Worst-case extremes of f, triangle amplitude and duty over the spread box (tolerances,
-    rails, temperature, op-amp spread; ``tristock.analysis.spread``), by corners,
+    """Worst-case extremes of f, triangle amplitude and duty over the spread box (the
+    topology's variables: tolerances, rails, temperature, op-amp spread), by corners,
     balanced-swing points and projected Newton (the module docstring says how, and what that
     proves)."""
     check_inputs(design, spec)

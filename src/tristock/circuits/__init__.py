@@ -16,5 +16,7 @@ from tristock.circuits.topology import Topology
 
 #: Every topology by name.
 TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT,)}
+#: The topology of a board or spec that names none: today's circuit.
+DEFAULT_TOPOLOGY: Topology = OPAMP_SCHMITT
 
-__all__ = ["TOPOLOGIES"]
+__all__ = ["DEFAULT_TOPOLOGY", "TOPOLOGIES"]

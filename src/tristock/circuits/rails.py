@@ -7,6 +7,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from tristock.spec.model import SupplySpec
 from tristock.stock.parts import OpAmp
 
 inf = math.inf
@@ -60,6 +61,16 @@ class Rails:
     @property
     def is_single_supply(self) -> bool:
         return self.v_neg == 0.0
+
+
+def rails_from_supply(supply: SupplySpec, scale: float = 1.0) -> Rails:
+    """Rails scaled by ``scale`` (1 ± tolerance for rail corners).
+
+    A single-supply reference given in the spec stays where it is set (a regulated
+    reference); a default mid-rail reference follows the rail.
+    """
+    v_ref = supply.reference_v if supply.negative_v == 0 else None
+    return Rails(supply.positive_v * scale, supply.negative_v * scale, v_ref)
 
 
 @dataclass(frozen=True)

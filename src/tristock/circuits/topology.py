@@ -19,8 +19,19 @@ What a topology implements:
 - ``board_point(design, rails, temp_c)``: a board's values at a temperature as that point.
 - ``oscillator(design, rails, temp_c)``: the built circuit (``prediction()``, ``str``).
 - ``check(design, rails)``: design checks, a list of ``circuits.checks.Warning``.
-- ``time_domain(oscillator)``: the loop's parameters for the event-driven simulation.
+- ``time_domain(oscillator)``: the loop's parameters for the event-driven simulation
+  (``circuits.timeloop.Loop``).
 - ``netlist(oscillator, periods=...)``: an ngspice netlist of the same circuit.
+- ``spread(design, spec)``: the board's spread box on a spec (``circuits.spreadvars``): the
+  point at its centre and the tolerance variables, each naming the point fields it moves and
+  by which law; the analysis (worst case, Monte Carlo) works on nothing else.
+- ``drive_imbalance(point, v_ref, control)``: the difference of the integrator's two drives
+  (V), zero where the ramps are equally steep; affine in each rail variable's deviation, so
+  the worst case finds the balanced point along a rail exactly.
+- ``sensitivity_fields``: sensitivity name -> the point fields it scales together.
+
+The point is a frozen dataclass of floats or broadcastable arrays (``dataclasses.replace``
+builds moved points from it).
 """
 
 from __future__ import annotations
@@ -35,6 +46,9 @@ import numpy.typing as npt
 
 from tristock.circuits.checks import Warning
 from tristock.circuits.rails import Rails
+from tristock.circuits.spreadvars import SpreadBox
+from tristock.circuits.timeloop import Loop
+from tristock.spec.model import Spec
 from tristock.stock.parts import Part
 
 FloatArray = npt.NDArray[np.float64]
@@ -117,6 +131,12 @@ class BoardParts(Protocol):
     def parts(self) -> dict[str, Part]: ...
 
 
+class BuiltCircuit(Protocol):
+    """A built circuit (``Topology.oscillator``): it predicts itself."""
+
+    def prediction(self) -> Prediction: ...
+
+
 class Topology(ABC):
     """One oscillator circuit (see the module docstring for the contract)."""
 
@@ -136,6 +156,8 @@ class Topology(ABC):
     #: V-): the contract tests build and run it.
     demo_board: Mapping[str, str]
     demo_rails: tuple[float, float]
+    #: Sensitivity name ("R1", "V+", "U1.slew", ...) -> the point fields it scales together.
+    sensitivity_fields: Mapping[str, tuple[str, ...]]
 
     @abstractmethod
     def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
@@ -154,7 +176,7 @@ class Topology(ABC):
         """Every design check of the board on ``rails``."""
 
     @abstractmethod
-    def time_domain(self, oscillator: Any) -> Any:
+    def time_domain(self, oscillator: Any) -> Loop:
         """The loop's parameters for ``tristock.simulate`` (events, levels, rates)."""
 
     @abstractmethod
@@ -162,6 +184,16 @@ class Topology(ABC):
         """An ngspice netlist of the same circuit: a transient run past start-up, then
         ``periods`` periods measured (``.meas``: ``per`` (s), ``duty`` (fraction high),
         ``vtmax`` and ``vtmin`` (the triangle's peaks, V to ground))."""
+
+    @abstractmethod
+    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
+        """The board's spread box on ``spec``: the point at its centre and its variables
+        (tolerances, rails, temperature, active-part spreads; ``circuits.spreadvars``)."""
+
+    @abstractmethod
+    def drive_imbalance(self, point: Any, v_ref: float | None, control: str = "series") -> Any:
+        """The integrator's drive up minus its drive down (V) at ``point``, vectorised;
+        affine in each rail variable's deviation (the worst case's balanced-swing points)."""
 
     # Derived from the declarations ------------------------------------------------------
 

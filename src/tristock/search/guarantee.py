@@ -24,7 +24,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.search.bounds import OpAmpLoop, amplitude_bounds, highest_p, lowest_p
 from tristock.search.model import SearchModel
 

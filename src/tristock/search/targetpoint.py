@@ -17,9 +17,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from tristock.analysis.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.circuits.board import rails_from_supply
 from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.circuits.topology import Prediction
 from tristock.spec.model import Spec

@@ -49,9 +49,8 @@ from __future__ import annotations
 
 import math
 
-from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
-from tristock.circuits.opamp_schmitt.physics import Oscillator
-from tristock.circuits.topology import Topology
+from tristock.circuits import DEFAULT_TOPOLOGY
+from tristock.circuits.topology import BuiltCircuit, Topology
 from tristock.simulate.loop import MIN_POINTS
 from tristock.simulate.ode import measure_ode, run_ode, sample_ode
 from tristock.simulate.piecewise import measure_trace, run_piecewise, sample_trace
@@ -61,12 +60,12 @@ __all__ = ["Measured", "SimulationError", "SimulationResult", "simulate"]
 
 
 def simulate(
-    osc: Oscillator,
+    osc: BuiltCircuit,
     *,
     periods: int = 10,
     max_points: int = 4000,
     settle_periods: int = 3,
-    topology: Topology = OPAMP_SCHMITT,
+    topology: Topology = DEFAULT_TOPOLOGY,
 ) -> SimulationResult:
     """Simulate ``osc`` in the time domain and measure ``periods`` settled periods.
 
@@ -74,7 +73,8 @@ def simulate(
     square in the window); duty, peaks, amplitude and square levels as described on
     ``Measured``. Waveforms have at most ``max_points`` samples.
 
-    The loop's parameters come from ``topology.time_domain(osc)`` (the board's topology).
+    The loop's parameters come from ``topology.time_domain(osc)``: pass the board's topology
+    (``Design.topology``); the default is ``circuits.DEFAULT_TOPOLOGY``, today's circuit.
 
     Raises ValueError naming the field for bad input, SimulationError (with the numbers) when
     the loop does not oscillate or does not settle.

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.timeloop import Loop
 from tristock.stock.units import format_value
 
 #: Successive periods must agree to this relative difference before measuring.

@@ -32,7 +32,7 @@ import numpy.typing as npt
 from scipy.integrate import LSODA
 from scipy.optimize import brentq
 
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.timeloop import Loop
 from tristock.simulate.loop import (
     MAX_EXTRA_SETTLE_PERIODS,
     MAX_UNFINISHED_TRANSITIONS,

@@ -16,7 +16,7 @@ from typing import Literal, NamedTuple
 
 import numpy as np
 
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.timeloop import Loop
 from tristock.simulate.loop import (
     EVENTS_PER_PERIOD,
     MAX_EXTRA_SETTLE_PERIODS,

@@ -2,8 +2,9 @@
 non-inverting Schmitt trigger (U1B, R1, R2) whose square output drives the integrator.
 
 Its modules: ``physics`` (the closed-form model, ``Oscillator``), ``point`` (the vectorised
-point the analysis moves), ``checks``, ``timedomain`` (the loop for the event-driven
-simulation) and ``netlist`` (ngspice). ``OPAMP_SCHMITT`` is the topology object.
+point the analysis moves), ``spread`` (the board's tolerance variables on a spec), ``checks``,
+``timedomain`` (the loop for the event-driven simulation) and ``netlist`` (ngspice).
+``OPAMP_SCHMITT`` is the topology object.
 """
 
 from __future__ import annotations
@@ -22,10 +23,15 @@ from tristock.circuits.opamp_schmitt.point import (
     oscillator_of,
     part_of,
     predict_point,
+    swing_imbalance,
 )
-from tristock.circuits.opamp_schmitt.timedomain import Loop, loop_from
+from tristock.circuits.opamp_schmitt.spread import SENSITIVITY_FIELDS, spread_box
+from tristock.circuits.opamp_schmitt.timedomain import loop_from
 from tristock.circuits.rails import Rails
-from tristock.circuits.topology import BoardParts, PartRole, Prediction, Topology
+from tristock.circuits.spreadvars import SpreadBox
+from tristock.circuits.timeloop import Loop
+from tristock.circuits.topology import BoardParts, FloatArray, PartRole, Prediction, Topology
+from tristock.spec.model import Spec
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 SKETCH = r"""
@@ -81,6 +87,7 @@ class OpAmpSchmitt(Topology):
         {"U1": "GA-JF2", "R1": "R0B-21K5", "R2": "R1F-78K7", "R3": "R1F-158K", "C1": "CPPG-2N20"}
     )
     demo_rails = (12.0, -12.0)
+    sensitivity_fields = SENSITIVITY_FIELDS
 
     def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
         return predict_point(point, v_ref, control)
@@ -99,6 +106,14 @@ class OpAmpSchmitt(Topology):
             resistors={r: part_of(parts, r, Resistor) for r in ("R1", "R2", "R3")},
             opamp_part=part_of(parts, "U1", OpAmp),
         )
+
+    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
+        return spread_box(design, spec)
+
+    def drive_imbalance(
+        self, point: Any, v_ref: float | None, control: str = "series"
+    ) -> FloatArray:
+        return swing_imbalance(point, v_ref, control)
 
     def time_domain(self, oscillator: Any) -> Loop:
         return loop_from(oscillator)

@@ -31,7 +31,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from tristock.analysis.spread import BIAS_SPREAD, OFFSET_BOUND
+from tristock.circuits.opamp_schmitt.spread import BIAS_SPREAD, OFFSET_BOUND
 from tristock.circuits.rails import OpAmpModel
 from tristock.designs.trimmed.context import F64, I64, TrimContext
 from tristock.search.bounds import OpAmpLoop, highest_p, lowest_p

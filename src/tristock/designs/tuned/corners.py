@@ -18,7 +18,12 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis.spread import BIAS_SPREAD, DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
+from tristock.circuits.opamp_schmitt.spread import (
+    BIAS_SPREAD,
+    DELAY_SPREAD,
+    OFFSET_BOUND,
+    SLEW_SPREAD,
+)
 from tristock.circuits.timing import timing_network
 from tristock.designs.tuned.edges import EdgeTables
 from tristock.designs.tuned.loopbounds import CornerRows

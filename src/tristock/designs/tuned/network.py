@@ -22,8 +22,13 @@ from dataclasses import dataclass, replace
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.analysis.spread import BIAS_SPREAD, DELAY_SPREAD, OFFSET_BOUND, SLEW_SPREAD
 from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.opamp_schmitt.spread import (
+    BIAS_SPREAD,
+    DELAY_SPREAD,
+    OFFSET_BOUND,
+    SLEW_SPREAD,
+)
 from tristock.circuits.timing import timing_network
 from tristock.circuits.topology import Prediction
 from tristock.designs.tuned.model import TunedModel

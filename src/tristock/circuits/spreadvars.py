@@ -1,0 +1,168 @@
+"""Spread variables: how a topology declares the tolerances of a board (its "spread box").
+
+A spread variable is one normalised deviation z in [-1, 1] and the fields of the topology's
+point it moves. What it moves is data, one ``FieldMove`` per field, by one of four laws:
+
+- ``"scale"``: x·(1 + amount·z) (a tolerance, amount = tolerance_pct/100; a spread of a
+  typical value, amount its ± fraction);
+- ``"add"``: x + amount·z (an offset bounded by ± amount, in the field's unit);
+- ``"tempco"``: x·(1 + amount·1e-6·(T - 25 °C)), amount in ppm/°C (resistors, capacitors);
+- ``"tempco_abs"``: x + amount·(T - 25 °C), amount in the field's unit per °C (a zener's or a
+  diode's drop in V/°C).
+
+The two temperature laws take T = mid + half·z from the variable's ``temperature`` (mid,
+half): temperature is one variable that moves every value at once, so parts that share a
+tempco track each other. ``rail`` marks a supply rail (the worst case looks for balanced
+drives along it); ``temperature`` variables are sampled uniformly by the Monte Carlo.
+``describe`` turns a deviation into the words a report prints at an extreme.
+
+A topology's ``spread(design, spec)`` returns a ``SpreadBox``: the point at the box's centre
+(z = 0 everywhere) and its variables. ``tristock.analysis`` searches, samples and
+differentiates that box through the topology's ``predict`` and nothing else.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+import numpy.typing as npt
+
+from tristock.stock.units import format_value
+
+FloatArray = npt.NDArray[np.float64]
+#: A point's fields by name while spread variables are applied.
+PointValues = dict[str, Any]
+Law = Literal["scale", "add", "tempco", "tempco_abs"]
+LAWS: tuple[Law, ...] = ("scale", "add", "tempco", "tempco_abs")
+
+
+@dataclass(frozen=True)
+class FieldMove:
+    """One field of the point and how the variable's deviation moves it (module docstring)."""
+
+    field: str
+    law: Law
+    amount: float
+
+    def __post_init__(self) -> None:
+        if self.law not in LAWS:
+            raise ValueError(f"law: {self.law!r} is not one of {LAWS}")
+
+
+@dataclass(frozen=True)
+class SpreadVariable:
+    """One spread variable: its name (a designator, "V+", "T", "U1.delay", ...), the fields
+    it moves, its words at a deviation, and its kind."""
+
+    name: str
+    moves: tuple[FieldMove, ...]
+    describe: Callable[[float], str]
+    #: (mid, half) in °C for the temperature laws: T = mid + half·z.
+    temperature: tuple[float, float] | None = None
+    rail: bool = False
+
+    def __post_init__(self) -> None:
+        thermal = [m.field for m in self.moves if m.law in ("tempco", "tempco_abs")]
+        if thermal and self.temperature is None:
+            raise ValueError(f"{self.name}: a tempco move needs the temperature (mid, half)")
+
+    @property
+    def fields(self) -> tuple[str, ...]:
+        """The fields this variable moves, in order."""
+        return tuple(m.field for m in self.moves)
+
+    def apply(self, values: PointValues, z: FloatArray) -> None:
+        """Move ``values`` (the point's fields by name) in place to the deviation ``z``."""
+        mid, half = self.temperature if self.temperature is not None else (25.0, 0.0)
+        delta_t = mid + half * z - 25.0  # T - 25 °C; used by the tempco laws only
+        for m in self.moves:
+            if m.law == "scale":
+                values[m.field] = values[m.field] * (1.0 + m.amount * z)
+            elif m.law == "add":
+                values[m.field] = values[m.field] + m.amount * z
+            elif m.law == "tempco":
+                values[m.field] = values[m.field] * (1.0 + m.amount * 1e-6 * delta_t)
+            else:
+                values[m.field] = values[m.field] + m.amount * delta_t
+
+
+@dataclass(frozen=True)
+class SpreadBox:
+    """The centre of a board's spread (every z = 0) as the topology's point, and its
+    variables in report order."""
+
+    centre: Any
+    variables: tuple[SpreadVariable, ...]
+
+
+def percent(x: float) -> str:
+    """A signed fraction in percent, three figures: 0.01 -> "+1 %"."""
+    return f"{x * 100:+.3g} %"
+
+
+def signed_value(value: float, unit: str) -> str:
+    """``format_value`` with an explicit + on positive values."""
+    text = format_value(value, unit)
+    return text if text.startswith("-") or value == 0 else "+" + text
+
+
+def tolerance(
+    name: str, field: str, value: float, tol: float, unit: str, *, rail: bool = False
+) -> SpreadVariable:
+    """A part value (or a rail) ``value``·(1 + tol·z) at ``field``, described as the value
+    and its deviation ("21.48 kΩ (-0.1 %)")."""
+    return SpreadVariable(
+        name,
+        (FieldMove(field, "scale", tol),),
+        lambda z: f"{format_value(value * (1 + tol * z), unit)} ({percent(tol * z)})",
+        rail=rail,
+    )
+
+
+def scaled(
+    name: str, fields: tuple[str, ...], spread: float, describe: Callable[[float], str]
+) -> SpreadVariable:
+    """Every one of ``fields`` x·(1 + spread·z) together."""
+    return SpreadVariable(name, tuple(FieldMove(f, "scale", spread) for f in fields), describe)
+
+
+def added(
+    name: str, fields: tuple[str, ...], bound: float, describe: Callable[[float], str]
+) -> SpreadVariable:
+    """Every one of ``fields`` x + bound·z together."""
+    return SpreadVariable(name, tuple(FieldMove(f, "add", bound) for f in fields), describe)
+
+
+def temperature(
+    t_min: float,
+    t_max: float,
+    tempcos: Mapping[str, float],
+    drifts: Mapping[str, float] | None = None,
+) -> SpreadVariable:
+    """ "T" from ``t_min`` (z = -1) to ``t_max`` (z = +1) °C: each field of ``tempcos``
+    moved by its tempco (ppm/°C), each field of ``drifts`` by its drift (unit/°C)."""
+    mid, half = (t_min + t_max) / 2.0, (t_max - t_min) / 2.0
+    moves = [FieldMove(f, "tempco", tc) for f, tc in tempcos.items()]
+    moves += [FieldMove(f, "tempco_abs", d) for f, d in (drifts or {}).items()]
+    return SpreadVariable(
+        "T", tuple(moves), lambda z: f"{mid + half * z:.4g} °C", temperature=(mid, half)
+    )
+
+
+__all__ = [
+    "LAWS",
+    "FieldMove",
+    "Law",
+    "PointValues",
+    "SpreadBox",
+    "SpreadVariable",
+    "added",
+    "percent",
+    "scaled",
+    "signed_value",
+    "temperature",
+    "tolerance",
+]
