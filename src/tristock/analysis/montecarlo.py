@@ -105,7 +105,7 @@ def monte_carlo(
     seed: int = 0,
     distribution: Distribution = "normal",
 ) -> YieldResult:
-    """Monte Carlo yield over the spread variables of the module docstring.
+    """Monte Carlo yield over the spread variables the design's topology declares.
 
     ``distribution="normal"`` (default): each ± bound is 3σ of a normal truncated at the
     bound (tolerances, class II band, rails, offsets, bias, slew, delay alike; an offset's σ

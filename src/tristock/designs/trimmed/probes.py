@@ -103,7 +103,7 @@ def rail_levels(model: SearchModel, u: I64, probe: TrimProbe) -> tuple[F64, F64]
 def corner_models(model: SearchModel, vos_z: float, bias_z: float) -> list[OpAmpModel]:
     """The op amps with both offsets at vos_z·|typical| (comparator +|typical|: it does not
     move the period) and both bias currents at typical·(1 + BIAS_SPREAD·bias_z), the box's
-    centre being offsets 0 V and bias as catalogued (``analysis._spread_board``)."""
+    centre being offsets 0 V and bias as catalogued (``opamp_schmitt.spread.spread_box``)."""
     out = []
     for o in model.opamps:
         vos = abs(o.part.offset_v) * OFFSET_BOUND
