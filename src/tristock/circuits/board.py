@@ -14,24 +14,14 @@ from typing import Any, Literal
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import Rails
+from tristock.circuits.rails import rails_from_supply as rails_from_supply
 from tristock.circuits.topology import Topology
 from tristock.spec.loading import SpecError
-from tristock.spec.model import SupplySpec
 from tristock.stock.catalog import Catalog
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 
 DESIGNATORS = ("U1", "R1", "R2", "R3", "C1")
 Control = Literal["series", "divider"]
-
-
-def rails_from_supply(supply: SupplySpec, scale: float = 1.0) -> Rails:
-    """Rails scaled by ``scale`` (1 ± tolerance for rail corners).
-
-    A single-supply reference given in the spec stays where it is set (a regulated
-    reference); a default mid-rail reference follows the rail.
-    """
-    v_ref = supply.reference_v if supply.negative_v == 0 else None
-    return Rails(supply.positive_v * scale, supply.negative_v * scale, v_ref)
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from tristock.spec.model import SupplySpec
 from tristock.stock.parts import OpAmp
 
 inf = math.inf
@@ -151,3 +152,13 @@ def square_levels(rails: Rails, opamp: OpAmpModel) -> tuple[float, float]:
             f"not reach below the reference ({ref} V)"
         )
     return vh, vl
+
+
+def rails_from_supply(supply: SupplySpec, scale: float = 1.0) -> Rails:
+    """Rails scaled by ``scale`` (1 ± tolerance for rail corners).
+
+    A single-supply reference given in the spec stays where it is set (a regulated
+    reference); a default mid-rail reference follows the rail.
+    """
+    v_ref = supply.reference_v if supply.negative_v == 0 else None
+    return Rails(supply.positive_v * scale, supply.negative_v * scale, v_ref)
