@@ -1,23 +1,9 @@
-"""Run oscillator netlists in ngspice (batch mode) and read the .meas results; the netlists
-are the topology's (``tristock.circuits.opamp_schmitt.netlist``).
+"""Run oscillator netlists in ngspice (batch mode) and read the .meas results.
 
-The netlists follow the reference runs (ngspice 39): the integrator's + input sits at the
-reference plus Vos1, a bias current source on its - pin; the comparator is one of
-
-- ``"ideal"``: a tanh decision of gain 1e6 with a 1 ns output pole,
-- ``"slew"``: the tanh decision, a transport delay (matched lossless line, started full) and
-  a linear slew limiter with separate rise and fall rates,
-- ``"macro"``: an op-amp macromodel, a current-limited gm stage (tanh) into an integrating
-  node (finite GBW, slew SR = IMAX/CN, open-loop gain AOL) with a sharp clamp at the square's
-  levels, and (``delay_s`` > 0) a transport delay (matched line) ahead of the gm stage.
-
-The integrator is a VCVS of gain 1e6, or (finite ``integrator_gbw_hz``) the same gm-stage
-macromodel with a unity buffer.
-
-Pitfalls handled (reference/NOTES.md): ``uic`` with IC= on every state; a pole or slew state
-in the positive-feedback loop; gain 1e6; a small maximum step; ``method=gear``; the delay
-line starts full; ngspice always runs under a subprocess timeout; ``.meas`` values carry 6
-significant digits.
+The netlists are the topology's (``tristock.circuits.opamp_schmitt.netlist``, whose docstring
+describes them: the comparator kinds "ideal", "slew" and "macro", the integrator, and the
+simulator's pitfalls they handle). Here: ngspice always runs under a subprocess timeout, and
+``.meas`` values carry 6 significant digits.
 
 Import from tests as ``from ngspice_harness import ...`` (pytest puts tests/ on sys.path for
 test modules in a directory without __init__.py).

@@ -18,8 +18,8 @@ from make_answer_fixtures import ANSWERS, differences, fresh_answer, stored_case
 
 def test_the_answers_are_stored() -> None:
     names = stored_cases()
-    assert "demo_example" in names and "trimmed_example" in names
-    assert len(names) >= 19
+    assert {"demo_example", "trimmed_example", "tuned_example", "demo_tuned_seeded"} <= set(names)
+    assert len(names) >= 22
 
 
 @pytest.mark.parametrize("name", stored_cases())

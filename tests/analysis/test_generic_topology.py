@@ -138,6 +138,9 @@ class ClampedDouble(Topology):
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         raise NotImplementedError("test double: no netlist")
 
+    def search_form(self) -> Any:
+        raise NotImplementedError("test double: not searched")
+
     def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
         parts = design.parts()
         env = spec.environment

@@ -19,10 +19,10 @@ from hypothesis import strategies as st
 
 from tristock.circuits.looptiming import loop_timing
 from tristock.circuits.opamp_schmitt.physics import predict
+from tristock.circuits.searchform import StageLoop
 from tristock.circuits.transition import LN_LEVEL, LN_MU, Q_DELAY, scaled_mean_time
 from tristock.search.bounds import (
     EDGE_LEVEL_MIN,
-    OpAmpLoop,
     amplitude_bounds,
     claimed,
     overshoot_fraction_cap,
@@ -35,7 +35,7 @@ from tristock.search.bounds import (
 RNG_POINTS = 4000
 
 
-def random_loops(rng: np.random.Generator, n: int) -> tuple[OpAmpLoop, dict[str, np.ndarray]]:
+def random_loops(rng: np.random.Generator, n: int) -> tuple[StageLoop, dict[str, np.ndarray]]:
     """n op amps on random rails: levels 0.5..20 V, slew 0.02..1000 V/µs (some infinite),
     delay 0..20 µs, GBW 30 kHz..1 GHz (some infinite), Ve ranges inside ±20 % of a level."""
     vh = rng.uniform(0.5, 20, n)
@@ -50,21 +50,48 @@ def random_loops(rng: np.random.Generator, n: int) -> tuple[OpAmpLoop, dict[str,
     lim = 0.2 * np.minimum(vh, vl)
     ve_a = rng.uniform(-lim, lim)
     ve_b = rng.uniform(-lim, lim)
-    loop = OpAmpLoop(
-        vh, vl, slew, fall, delay, gbw, igbw, np.minimum(ve_a, ve_b), np.maximum(ve_a, ve_b)
+    loop = StageLoop(
+        vh, vh, vl, vl, slew, fall, delay, gbw, igbw, np.minimum(ve_a, ve_b), np.maximum(ve_a, ve_b)
     )
     return loop, {"k": 10 ** rng.uniform(-2, -0.01, n), "p": 10 ** rng.uniform(-9, -0.5, n)}
 
 
-def full(loop: OpAmpLoop, k: np.ndarray, p: np.ndarray, ve: np.ndarray):
-    """predict at R2 = 10 kΩ, R1 = k·R2, R3 = 10 kΩ, C1 = P/(k·R3), Vos1 = Ve."""
+def with_level_intervals(rng: np.random.Generator, loop: StageLoop) -> StageLoop:
+    """The same loops with each level an interval [V, V·(1 + w)], w up to 0.5 (levels that
+    depend on the row, as with a pull-up or a zener clamp)."""
+    n = len(loop.vh_lo)
+    return loop._replace(
+        vh_hi=loop.vh_lo * (1 + rng.uniform(0, 0.5, n)),
+        vl_hi=loop.vl_lo * (1 + rng.uniform(0, 0.5, n)),
+    )
+
+
+def levels_inside(rng: np.random.Generator, loop: StageLoop) -> tuple[np.ndarray, np.ndarray]:
+    """Random levels (VH, VL) inside the loops' intervals, ends included now and then."""
+    n = len(loop.vh_lo)
+    u = np.where(rng.random((2, n)) < 0.2, rng.integers(0, 2, (2, n)), rng.random((2, n)))
+    vh = loop.vh_lo + u[0] * (loop.vh_hi - loop.vh_lo)
+    vl = loop.vl_lo + u[1] * (loop.vl_hi - loop.vl_lo)
+    return vh, vl
+
+
+def full(
+    loop: StageLoop,
+    k: np.ndarray,
+    p: np.ndarray,
+    ve: np.ndarray,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
+):
+    """predict at R2 = 10 kΩ, R1 = k·R2, R3 = 10 kΩ, C1 = P/(k·R3), Vos1 = Ve, at the
+    loop's lower levels or at ``levels``."""
+    vh, vl = levels if levels is not None else (loop.vh_lo, loop.vl_lo)
     return predict(
         k * 1e4,
         1e4,
         1e4,
         p / (k * 1e4),
-        loop.vh,
-        loop.vl,
+        vh,
+        vl,
         slew_rise=loop.slew_rise,
         slew_fall=loop.slew_fall,
         delay=loop.delay,
@@ -82,9 +109,9 @@ def test_loop_timing_is_predict_when_the_drives_sum_to_the_span() -> None:
     t = loop_timing(
         x["k"],
         x["p"] / x["k"],
-        loop.vh + loop.vl,
-        loop.vh - ve,
-        loop.vl + ve,
+        loop.vh_lo + loop.vl_lo,
+        loop.vh_lo - ve,
+        loop.vl_lo + ve,
         slew_rise=loop.slew_rise,
         slew_fall=loop.slew_fall,
         delay=loop.delay,
@@ -92,25 +119,30 @@ def test_loop_timing_is_predict_when_the_drives_sum_to_the_span() -> None:
         integrator_gbw=loop.integrator_gbw,
     )
     np.testing.assert_allclose(t.period_s, pred.period_s, rtol=1e-12)
-    amp = x["k"] * (loop.vh + loop.vl) + t.overshoot_v
+    amp = x["k"] * (loop.vh_lo + loop.vl_lo) + t.overshoot_v
     np.testing.assert_allclose(amp, pred.amplitude_vpp, rtol=1e-12)
 
 
 @settings(max_examples=15, deadline=None)
-@given(seed=st.integers(0, 2**32 - 1))
-def test_every_point_lies_within_its_bounds(seed: int) -> None:
+@given(seed=st.integers(0, 2**32 - 1), intervals=st.booleans())
+def test_every_point_lies_within_its_bounds(seed: int, intervals: bool) -> None:
     """Brute force over the model: random Ve in the range and random P in [p1, p2] give a
     period inside period_bounds at that P, an amplitude inside amplitude_bounds over
-    [p1, p2], and a timing share above timing_share_floor over [p1, p2]."""
+    [p1, p2], and a timing share above timing_share_floor over [p1, p2]; with level
+    intervals, at random levels inside them too (``search.bounds``, (M5))."""
     rng = np.random.default_rng(seed)
     loop, x = random_loops(rng, 500)
+    levels = None
+    if intervals:
+        loop = with_level_intervals(rng, loop)
+        levels = levels_inside(rng, loop)
     k = x["k"]
     # the bounds are claimed where a row can meet a timing share of at most 0.4
     p1 = np.maximum(x["p"], share_p_floor(loop, k, 0.4))
     p2 = p1 * 10 ** rng.uniform(0, 0.3, len(p1))
     p = p1 * (p2 / p1) ** rng.random(len(p1))
     ve = rng.uniform(loop.ve_lo, loop.ve_hi)
-    pred = full(loop, k, p, ve)
+    pred = full(loop, k, p, ve, levels)
     tight = 1e-12
     t = period_bounds(loop, k, p)
     assert np.all(pred.period_s >= t.lo * (1 - tight)) and np.all(
@@ -124,15 +156,18 @@ def test_every_point_lies_within_its_bounds(seed: int) -> None:
 
 
 @settings(max_examples=15, deadline=None)
-@given(seed=st.integers(0, 2**32 - 1))
-def test_window_leaves_out_only_rows_outside_the_band(seed: int) -> None:
+@given(seed=st.integers(0, 2**32 - 1), intervals=st.booleans())
+def test_window_leaves_out_only_rows_outside_the_band(seed: int, intervals: bool) -> None:
     """P just outside the window (and far outside) cannot put the period in the band, at any
-    Ve of the range; P inside can (the window is not empty for a reachable band)."""
+    Ve of the range (and any levels inside the intervals); P inside can (the window is not
+    empty for a reachable band)."""
     rng = np.random.default_rng(seed)
     loop, x = random_loops(rng, 300)
+    if intervals:
+        loop = with_level_intervals(rng, loop)
     k = x["k"]
     ve = rng.uniform(loop.ve_lo, loop.ve_hi)
-    centre = np.asarray(full(loop, k, x["p"], ve).period_s)
+    centre = np.asarray(full(loop, k, x["p"], ve, levels_inside(rng, loop)).period_s)
     t_min = centre * (1 - 10 ** rng.uniform(-4, -1, len(k)))
     t_max = centre * (1 + 10 ** rng.uniform(-4, -1, len(k)))
     w = window(loop, k, t_min, t_max)
@@ -144,11 +179,12 @@ def test_window_leaves_out_only_rows_outside_the_band(seed: int) -> None:
     for factor in (1 - 1e-7, 0.9, 0.5):
         ve = rng.uniform(loop.ve_lo, loop.ve_hi)
         p = np.where(lo, w.lo, 1.0) * factor
-        below = np.asarray(full(loop, k, p, ve).period_s)
+        below = np.asarray(full(loop, k, p, ve, levels_inside(rng, loop)).period_s)
         assert np.all(below[lo] < t_min[lo])
     for factor in (1 + 1e-7, 1.1, 2.0):
         ve = rng.uniform(loop.ve_lo, loop.ve_hi)
-        above = np.asarray(full(loop, k, np.where(hi, w.hi, 1.0) * factor, ve).period_s)
+        p = np.where(hi, w.hi, 1.0) * factor
+        above = np.asarray(full(loop, k, p, ve, levels_inside(rng, loop)).period_s)
         assert np.all(above[hi] > t_max[hi])
 
 
@@ -190,7 +226,7 @@ def test_overshoot_fraction_cap_holds_for_rows_within_the_limits(
     k, p = x["k"], x["p"]
     ve = rng.uniform(loop.ve_lo, loop.ve_hi)
     pred = full(loop, k, p, ve)
-    span = loop.vh + loop.vl
+    span = loop.vh_lo + loop.vl_lo
     s = np.asarray(pred.timing_share)
     # every point is the centre of some band of relative half-width `band`
     ratio = (1 + band) / (1 - band)
@@ -223,7 +259,7 @@ def test_a_row_outside_its_bounds_withdraws_the_proof(monkeypatch: pytest.Monkey
     )
     assert enumerate_top(build_model(spec, demo), 3, 10.0).proven_optimal
 
-    def too_narrow(loop: OpAmpLoop, k: np.ndarray, p: np.ndarray) -> Bounds:
+    def too_narrow(loop: StageLoop, k: np.ndarray, p: np.ndarray) -> Bounds:
         b = period_bounds(loop, k, p)
         return Bounds(b.lo * 1.01, b.hi * 1.01)
 

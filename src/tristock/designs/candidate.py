@@ -14,6 +14,8 @@ from tristock.analysis.montecarlo import YieldResult
 from tristock.analysis.worstcase import WorstCase
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.circuits.checks import Warning
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
+from tristock.circuits.opamp_schmitt.searchform import board_stage
 from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.designs.results import Candidate, ErrorOut, PartOut, Predicted, WarningOut
 from tristock.search.rows import RowPrediction
@@ -94,7 +96,10 @@ def accepts(spec: Spec, design: Design) -> bool:
         one(design.r3.value),
         one(design.c1.value),
     )
-    rp = RowPrediction([model], np.zeros(1, dtype=np.int64), values, one(vh), one(vl))
+    stage = board_stage(design.u1, (vh, vl))
+    rp = RowPrediction(
+        OPAMP_SCHMITT.search_form(), [stage], np.zeros(1, dtype=np.int64), values, one(vh), one(vl)
+    )
     return bool(rp.accepted(spec, one(design.c1.voltage_v))[0])
 
 

@@ -11,7 +11,6 @@ capacitor (a design that keeps U1 ranks first, then one that keeps C1), then sto
 
 from __future__ import annotations
 
-import dataclasses
 import time
 from collections.abc import Sequence
 from itertools import combinations
@@ -21,9 +20,15 @@ import numpy as np
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import DESIGNATORS, resolve
 from tristock.designs.candidate import candidate, passes
+from tristock.designs.changes import (
+    blocked_positions,
+    changes_of,
+    check_withdrawn,
+    with_build,
+    without_parts,
+)
 from tristock.designs.fixed import design_of, search_space
 from tristock.designs.results import (
-    Change,
     Infeasible,
     OriginalDesign,
     Predicted,
@@ -37,7 +42,7 @@ from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.rows import Rows, rank_key
 from tristock.spec.limits import default_time_limit_s
-from tristock.spec.loading import SpecError, parse_spec
+from tristock.spec.loading import SpecError
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
@@ -86,14 +91,7 @@ def reoptimise(
             time_limit_s=time_limit_s, samples=samples,
         )  # fmt: skip
     t0 = time.perf_counter()
-    if boards is not None or top is not None:
-        # Validated again (model_copy would not): a bad override is named like a bad spec field.
-        data = spec.model_dump()
-        if boards is not None:
-            data["build"]["boards"] = boards
-        if top is not None:
-            data["ranking"]["top"] = top
-        spec = parse_spec(data)
+    spec = with_build(spec, boards, top)
     if spec.trimmed:
         from tristock.designs.trimmed.reoptimise import reoptimise_trimmed
 
@@ -103,32 +101,15 @@ def reoptimise(
     missing = [d for d in DESIGNATORS if d not in current]
     if missing:
         raise SpecError([f"parts.{d}: missing" for d in missing])
-    unknown = [w for w in without if w not in catalog]
-    if unknown:
-        raise SpecError([f"without: {w!r} is not in the catalog {catalog.path}" for w in unknown])
+    check_withdrawn(catalog, without)
     n_boards = spec.build.boards
 
     short = {s.id: s for s in shortfall(catalog, current, n_boards)}
-    blocked: dict[str, str] = {}
     # Short only because the code fills several positions: one position may keep it, and the
     # search's shared-stock constraint decides which (so these positions are not forced).
-    shared: dict[str, str] = {}
-    for name, pid in current.items():
-        if pid in without:
-            blocked[name] = f"{pid} is marked unavailable"
-        elif pid not in catalog:
-            blocked[name] = f"{pid} is no longer in the catalog"
-        elif pid in short:
-            s = short[pid]
-            positions = [d for d in DESIGNATORS if current[d] == pid]
-            alone = s.needed // len(positions)
-            if s.stock < alone:
-                blocked[name] = f"{pid}: stock {s.stock} < {alone} needed for {n_boards} boards"
-            else:
-                shared[name] = (
-                    f"{pid}: stock {s.stock} < {s.needed} needed for {n_boards} boards "
-                    f"in {' and '.join(positions)}"
-                )
+    blocked, shared = blocked_positions(
+        catalog, current, without, short, n_boards, list(current), DESIGNATORS
+    )
 
     reasons = list(dict.fromkeys([*blocked.values(), *shared.values()]))
     predicted = None
@@ -150,12 +131,7 @@ def reoptimise(
                     f"{p['amplitude_vpp']:.4g} Vpp, guarantee {spec.limits.guarantee})"
                 )
 
-    reduced = dataclasses.replace(
-        catalog,
-        resistors=tuple(r for r in catalog.resistors if r.id not in without),
-        capacitors=tuple(c for c in catalog.capacitors if c.id not in without),
-        opamps=tuple(o for o in catalog.opamps if o.id not in without),
-    )
+    reduced = without_parts(catalog, without)
     model = build_model(spec, reduced)
     pinned = {d: _index_of(model, d, current[d]) for d in DESIGNATORS}
     must_change = {d for d in DESIGNATORS if d in blocked or pinned[d] is None}
@@ -279,15 +255,6 @@ def _finish(
         base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]))
         names = [x for x in ("U1", "R1", "R2", "R3", "C1") if x in changed]
         new_ids = {k: v.id for k, v in base.parts.items()}
-        changes = []
-        for x in names:
-            if x in blocked:
-                why = blocked[x]
-            elif x in outside:
-                why = f"{current[x]} is outside the spec's limits or stock"
-            else:
-                others = ", ".join(o for o in names if o != x) or "nothing else"
-                why = f"re-chosen with {others} to bring the design back into spec"
-            changes.append(Change(designator=x, from_id=current[x], to_id=new_ids[x], why=why))
+        changes = changes_of(names, current, new_ids, blocked, outside)
         out.append(ReoptimisedCandidate(**base.model_dump(), changed=names, changes=changes))
     return out, consumed

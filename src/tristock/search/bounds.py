@@ -1,13 +1,19 @@
 """Bounds of the full circuit model over what a search row can reach.
 
 The search proves answers optimal under the full model (``physics.predict``), not
-under a simplified one. For that it needs, for every (op amp, R1/R2 pair), a window of
+under a simplified one. For that it needs, for every (stage option, R1/R2 pair), a window of
 P = k·R3·C1 outside which no row can meet the frequency band, and bounds of the amplitude and
 the timing share over that window, valid for every R3 the catalog offers. They come from the
 loop's timing written with the two integrator drives a and b as separate inputs
 (``tristock.circuits.looptiming``, the function ``predict`` itself evaluates): over a range of the
-integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is chosen) each
-quantity is monotone in each input, so its extremes sit at the ends of the ranges.
+integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is chosen) and of
+the square levels VH, VL (a topology's ``StageLoop`` gives them as intervals over the rows a
+stage can be in: equal ends for the op-amp Schmitt loop, a range where the levels depend on
+the row's resistors) each quantity is monotone in each input, so its extremes sit at the ends
+of the ranges. The levels enter in two ways, taken as independent inputs: through the span
+VH + VL in [VH_lo + VL_lo, VH_hi + VL_hi] and through the drives a = VH - Ve in
+[VH_lo - Ve_hi, VH_hi - Ve_lo] and b = VL + Ve in [VL_lo + Ve_lo, VL_hi + Ve_hi]; a box that
+holds every (span, a, b) of a row, so extremes over it bound the row.
 
 Notation as in ``tristock.circuits.looptiming``: span = VH + VL, RC' = RC + 1/ωt (ε = 1/(ωt·RC)),
 τi = RC/(ωt·RC + 1) the integrator's lag; each edge's centroid c = td + G(W; μ, D)/λ and
@@ -31,6 +37,12 @@ From them:
   rise, μ falls so c rises (G1).
 - (M2) T falls with a and with b, each alone: the first term directly; d_f depends on a only
   through μ_f ∝ a (G1), d_r on b likewise; 1/a and 1/b fall.
+- (M5) T rises with the span at fixed drives: the first term directly; the span enters d
+  only through the whole edge W ∝ span (G3; linear slew: c = td + span/(2·SR)). So does
+  D = T - T_i (same terms with RC' - RC), and so does T_i = span²·k·RC/(a·b).
+- The overshoots do not depend on the span: o = td + G(L0)/λ with L0 = λ·drive/SR, the
+  lag τi and RC' neither; the thresholds' distance is k·span. So the amplitude's upper end
+  takes span_hi, its lower end span_lo.
 - (M3, M4) for rows whose timing share is at most s ≤ 0.4 (the others are rejected anyway):
   T ≥ T_i·(1 + ε), so the share is at least ε/(1 + ε) and ε ≤ s/(1 - s) < 1, i.e.
   P ≥ ``share_p_floor``; there each overshoot lies between drive·o/RC' and
@@ -50,25 +62,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.looptiming import LoopTiming, loop_timing
+from tristock.circuits.searchform import StageLoop
 
 Array = NDArray[np.float64]
-
-
-class OpAmpLoop(NamedTuple):
-    """One op amp on the spec's rails, as the bounds need it (arrays over op amps or rows)."""
-
-    vh: Array
-    vl: Array
-    slew_rise: Array
-    slew_fall: Array
-    delay: Array
-    gbw: Array  # the comparator's
-    integrator_gbw: Array
-    ve_lo: Array  # integrator error voltage range over the R3 values a row can take (V)
-    ve_hi: Array
-
-    def take(self, idx: NDArray[np.int64]) -> OpAmpLoop:
-        return OpAmpLoop(*(np.asarray(x)[idx] for x in self))
 
 
 class Bounds(NamedTuple):
@@ -78,12 +74,12 @@ class Bounds(NamedTuple):
     hi: Array
 
 
-def _timing(loop: OpAmpLoop, k: Array, p: Array, a: Array, b: Array) -> LoopTiming:
-    """The loop's timing at P = k·RC with the drives a and b."""
+def _timing(loop: StageLoop, k: Array, p: Array, span: Array, a: Array, b: Array) -> LoopTiming:
+    """The loop's timing at P = k·RC with the span VH + VL and the drives a and b."""
     return loop_timing(
         k,
         p / k,
-        loop.vh + loop.vl,
+        span,
         a,
         b,
         slew_rise=loop.slew_rise,
@@ -94,25 +90,25 @@ def _timing(loop: OpAmpLoop, k: Array, p: Array, a: Array, b: Array) -> LoopTimi
     )
 
 
-def _weak(loop: OpAmpLoop) -> tuple[Array, Array]:
-    """The smallest drives (a, b) over the Ve range: a = VH - Ve_hi, b = VL + Ve_lo."""
-    return np.asarray(loop.vh - loop.ve_hi), np.asarray(loop.vl + loop.ve_lo)
+def _weak(loop: StageLoop) -> tuple[Array, Array, Array]:
+    """The longest period's inputs: the largest span and the smallest drives (M2, M5)."""
+    return (loop.span_hi, *loop.weak())
 
 
-def _strong(loop: OpAmpLoop) -> tuple[Array, Array]:
-    """The largest drives: a = VH - Ve_lo, b = VL + Ve_hi."""
-    return np.asarray(loop.vh - loop.ve_lo), np.asarray(loop.vl + loop.ve_hi)
+def _strong(loop: StageLoop) -> tuple[Array, Array, Array]:
+    """The shortest period's inputs: the smallest span and the largest drives."""
+    return (loop.span_lo, *loop.strong())
 
 
 #: The smallest scaled edge level λ·V/SR at which (G1)-(G3) are verified (module docstring).
 EDGE_LEVEL_MIN = 0.1
 
 
-def claimed(loop: OpAmpLoop, k: Array) -> NDArray[np.bool_]:
+def claimed(loop: StageLoop, k: Array) -> NDArray[np.bool_]:
     """Where the bounds hold: an ideal comparator (GBW = inf, a linear slew), or every edge's
     levels λ·V/SR at least EDGE_LEVEL_MIN for the smallest drive of the Ve range and the
     faster slew (the whole edge, λ·span/SR, is longer still)."""
-    a, b = _weak(loop)
+    a, b = loop.weak()
     lam = 2.0 * np.pi * np.asarray(loop.gbw, dtype=float) * k / (1.0 + k)
     fastest = np.maximum(loop.slew_rise, loop.slew_fall)
     with np.errstate(invalid="ignore", over="ignore"):
@@ -124,7 +120,7 @@ def _or_unbounded(ok: NDArray[np.bool_], bounds: Bounds) -> Bounds:
     return Bounds(np.where(ok, bounds.lo, 0.0), np.where(ok, bounds.hi, np.inf))
 
 
-def period_bounds(loop: OpAmpLoop, k: Array, p: Array) -> Bounds:
+def period_bounds(loop: StageLoop, k: Array, p: Array) -> Bounds:
     """Bounds of the period at (k, P) over the Ve range (s): by (M2) the weakest drives give
     the longest period and the strongest the shortest; (0, inf) where no bound is claimed."""
     t = Bounds(
@@ -133,25 +129,24 @@ def period_bounds(loop: OpAmpLoop, k: Array, p: Array) -> Bounds:
     return _or_unbounded(claimed(loop, k), t)
 
 
-def amplitude_bounds(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Bounds:
+def amplitude_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Bounds:
     """Bounds of the triangle's peak-to-peak over P in [p_lo, p_hi] and the Ve range (V):
     k·span plus the overshoots, the largest with the strongest drives at the smallest P
     (upper ends, lag areas left out), the smallest with the weakest at the largest P (lower
     ends, whole lags taken off); (M3, M4), claimed where ε ≤ 1 at p_lo (P ≥ k/ωt), else
     (0, inf)."""
-    span = loop.vh + loop.vl
     hi = _timing(loop, k, p_lo, *_strong(loop))
     lo = _timing(loop, k, p_hi, *_weak(loop))
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
     ok = claimed(loop, k) & (np.asarray(p_lo) * wt >= k)
     a = Bounds(
-        k * span + lo.floor_top_v + lo.floor_bottom_v,
-        k * span + hi.reach_top_v + hi.reach_bottom_v,
+        k * loop.span_lo + lo.floor_top_v + lo.floor_bottom_v,
+        k * loop.span_hi + hi.reach_top_v + hi.reach_bottom_v,
     )
     return _or_unbounded(ok, a)
 
 
-def timing_share_floor(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> Array:
+def timing_share_floor(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Array:
     """A lower bound of 1 - T_i/T over P in [p_lo, p_hi] and the Ve range.
 
     s = D/(T_i + D) with D = T - T_i = span·(span·k·(RC' - RC)/(a·b) + d_r/a + d_f/b): s rises
@@ -163,7 +158,7 @@ def timing_share_floor(loop: OpAmpLoop, k: Array, p_lo: Array, p_hi: Array) -> A
     return np.asarray(np.where(claimed(loop, k), d_min / (weak.ideal_period_s + d_min), 0.0))
 
 
-def share_p_floor(loop: OpAmpLoop, k: Array, max_share: float) -> Array:
+def share_p_floor(loop: StageLoop, k: Array, max_share: float) -> Array:
     """The smallest P a row with timing share at most s can have: T ≥ T_i·(1 + ε) gives
     s ≥ ε/(1 + ε), so ε = 1/(ωt·RC) ≤ s/(1 - s), i.e. P = k·RC ≥ k·(1 - s)/(s·ωt) (0 for an
     ideal integrator). Above it ε < 1, where τi/RC' = ε/(1 + ε)² falls as P grows (M3)."""
@@ -171,7 +166,7 @@ def share_p_floor(loop: OpAmpLoop, k: Array, max_share: float) -> Array:
     return np.asarray(k * (1.0 - max_share) / (max_share * wt), dtype=float)
 
 
-def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
+def window(loop: StageLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     """The range of P outside which the period cannot lie in [t_min, t_max], for any R3.
 
     By (M1) both period bounds rise with P, so the answer is [P_a, P_b] with
@@ -180,7 +175,7 @@ def window(loop: OpAmpLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     return Bounds(lowest_p(loop, k, t_min), highest_p(loop, k, t_max))
 
 
-def lowest_p(loop: OpAmpLoop, k: Array, t_min: Array) -> Array:
+def lowest_p(loop: StageLoop, k: Array, t_min: Array) -> Array:
     """P_a with T_hi(P) < t_min for every P < P_a (0 when the delays alone reach t_min, or no
     bound is claimed).
 
@@ -191,7 +186,7 @@ def lowest_p(loop: OpAmpLoop, k: Array, t_min: Array) -> Array:
     return _edge(loop, k, np.asarray(t_min, dtype=float), weak, -1.0)
 
 
-def highest_p(loop: OpAmpLoop, k: Array, t_max: Array) -> Array:
+def highest_p(loop: StageLoop, k: Array, t_max: Array) -> Array:
     """P_b with T_lo(P) > t_max for every P > P_b (inf when no root is found, or no bound is
     claimed): the strongest drives' period, as ``lowest_p``."""
     strong = _strong(loop)
@@ -199,20 +194,19 @@ def highest_p(loop: OpAmpLoop, k: Array, t_max: Array) -> Array:
 
 
 def _edge(
-    loop: OpAmpLoop, k: Array, target: Array, drives: tuple[Array, Array], side: float
+    loop: StageLoop, k: Array, target: Array, drives: tuple[Array, Array, Array], side: float
 ) -> Array:
     """Where the period at ``drives`` crosses ``target``, pushed outwards (side -1: down, the
     window's low end; +1: up, its high end) until it is strictly past, as computed."""
     k, target = np.broadcast_arrays(np.asarray(k, dtype=float), target)
     n = len(k)
-    a, b = (np.broadcast_to(x, (n,)) for x in drives)
+    span, a, b = (np.broadcast_to(x, (n,)) for x in drives)
     ok = np.broadcast_to(claimed(loop, k), (n,))
 
     def period(p: Array, sel: NDArray[np.int64]) -> Array:
-        sub = OpAmpLoop(*(np.broadcast_to(x, (n,))[sel] for x in loop))
-        return _timing(sub, k[sel], p, a[sel], b[sel]).period_s
+        sub = StageLoop(*(np.broadcast_to(x, (n,))[sel] for x in loop))
+        return _timing(sub, k[sel], p, span[sel], a[sel], b[sel]).period_s
 
-    span = np.broadcast_to(loop.vh + loop.vl, (n,))
     p = np.maximum(target * a * b / (span * span), 1e-30)  # the ideal switch's P (too large)
     todo = np.flatnonzero(ok)
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):

@@ -73,8 +73,8 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
                 cp.add(on_bom >= expr)
         resistor_line[i] = on_bom
     for o, expr in use_u1.items():
-        part = model.opamps[o].part
-        cp.add(boards * part.packages_per_board * expr <= part.stock)
+        for part, per_board in model.opamps[o].option.stock_needs:
+            cp.add(boards * per_board * expr <= part.stock)
     for j, expr in use_c1.items():
         cp.add(boards * expr <= int(cap.stock[j]))
 
@@ -83,7 +83,7 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
         return round(x / COST_RESOLUTION)
 
     cost = (
-        sum(cents(model.opamps[o].part.cost_per_board) * e for o, e in use_u1.items())
+        sum(cents(model.opamps[o].option.cost_per_board) * e for o, e in use_u1.items())
         + sum(cents(res.cost[i]) * e for i, e in use_r1.items())
         + sum(cents(res.cost[i]) * e for i, e in use_r2.items())
         + sum(cents(res.cost[i]) * e for i, e in use_r3.items())

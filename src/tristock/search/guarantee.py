@@ -25,7 +25,9 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
-from tristock.search.bounds import OpAmpLoop, amplitude_bounds, highest_p, lowest_p
+from tristock.circuits.rails import Rails
+from tristock.circuits.searchform import StageLoop
+from tristock.search.bounds import amplitude_bounds, highest_p, lowest_p
 from tristock.search.model import SearchModel
 
 I64 = NDArray[np.int64]
@@ -73,22 +75,26 @@ def _scaled(value: F64, tol: F64, z: float, tempco: F64, temp: F64) -> F64:
     return np.asarray(value * (1 + tol * z) * (1 + tempco * 1e-6 * (temp - 25.0)))
 
 
-def levels(model: SearchModel, u: I64, probe: Probe) -> tuple[F64, F64]:
-    """Square levels VH, VL on the probe's rails (each rail times 1 + tol·z), the reference
-    following the rails as ``design.rails_from_supply`` and the analysis have it."""
+def probe_rails(model: SearchModel, probe: Probe) -> Rails:
+    """The probe's rails (each rail times 1 + tol·z), the reference following the rails as
+    ``rails_from_supply`` and the analysis have it (a set single-supply reference stays)."""
     s = model.spec.supply
     tol = s.tolerance_pct / 100
     v_pos = s.positive_v * (1 + probe.v_pos * tol)
     v_neg = s.negative_v * (1 + probe.v_neg * tol)
-    if s.negative_v < 0:
-        ref = 0.0
-    elif s.reference_v is not None:
-        ref = s.reference_v
-    else:
-        ref = (v_pos + v_neg) / 2
-    sp = np.array([o.model.swing_pos_v for o in model.opamps])[u]
-    sn = np.array([o.model.swing_neg_v for o in model.opamps])[u]
-    return np.asarray(v_pos - sp - ref), np.asarray(ref - (v_neg + sn))
+    return Rails(v_pos, v_neg, s.reference_v if s.negative_v == 0 else None)
+
+
+def probe_levels(
+    model: SearchModel, u: I64, probe: Probe, values: tuple[F64, ...]
+) -> tuple[F64, F64]:
+    """Square levels VH, VL of the rows on the probe's rails, from the topology's search form
+    (``values``: the rows' part values at the probe, as ``probe_values`` gives them)."""
+    form = model.form
+    names = (*form.divider, *form.integrator, form.capacitor)
+    return form.row_levels(
+        model.stages, u, probe_rails(model, probe), dict(zip(names, values, strict=True))
+    )
 
 
 def probe_values(
@@ -134,14 +140,16 @@ def _row_factor_range(model: SearchModel, probe: Probe, temp: float) -> tuple[fl
     return float(f3.min() * fc.min()), float(f3.max() * fc.max())
 
 
-def probe_loop(model: SearchModel, u: I64, probe: Probe, temp: F64) -> OpAmpLoop:
-    """The op amps' loops at the probe: its rails, slew and delay, offsets at 0 V and the
-    integrator error voltage Ib1·R3 over every eligible R3 at the probe."""
-    vh, vl = levels(model, u, probe)
-    slew, delay = probe_scales(probe)
+def probe_loop(model: SearchModel, u: I64, probe: Probe, temp: F64) -> StageLoop:
+    """The stages' loops at the probe: the level intervals on its rails
+    (``SearchForm.level_bounds``), its slew and delay, offsets at 0 V and the integrator
+    error voltage Ib1·R3 over every eligible R3 at the probe."""
     res = model.resistors
-    ms = [o.model for o in model.opamps]
-    ib = np.array([m.bias_a for m in ms])[u]
+    stages = model.stages
+    levels = model.form.level_bounds(stages, u, probe_rails(model, probe))
+    slew, delay = probe_scales(probe)
+    loop = model.loops(u)
+    ib = np.array([s.integrator_bias_a for s in stages])[u]
     r3_lo = np.full(len(u), math.inf)
     r3_hi = np.zeros(len(u))
     for t in np.unique(temp):
@@ -151,17 +159,13 @@ def probe_loop(model: SearchModel, u: I64, probe: Probe, temp: F64) -> OpAmpLoop
         r3_hi = np.where(at, r3.max(), r3_hi)
     ve_a, ve_b = ib * r3_lo, ib * r3_hi
 
-    def col(name: str) -> F64:
-        return np.array([getattr(m, name) for m in ms], dtype=float)[u]
-
-    return OpAmpLoop(
-        vh,
-        vl,
-        col("slew_rise_v_per_s") * slew,
-        col("slew_fall_v_per_s") * slew,
-        col("delay_s") * delay,
-        col("gbw_hz"),
-        col("gbw_hz"),
+    return StageLoop(
+        *levels,
+        loop.slew_rise * slew,
+        loop.slew_fall * slew,
+        loop.delay * delay,
+        loop.gbw,
+        loop.integrator_gbw,
         np.minimum(ve_a, ve_b),
         np.maximum(ve_a, ve_b),
     )

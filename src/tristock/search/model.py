@@ -1,7 +1,9 @@
 """The search model: eligible parts, each op amp's loop on the spec's rails, integer scores.
 
-A row is one combination (U1, R1, R2, R3, C1). Its scores come from the full circuit model
-(``physics.predict``) at nominal values, 25 °C and nominal rails, exactly as the
+A row is one combination: a stage option of the topology's search form
+(``circuits.searchform``; for the op-amp Schmitt loop the op amp U1) × a divider pair (R1, R2)
+× the integrator element (R3) × C1. Its scores come from the topology's full model
+(``SearchForm.predict_rows``) at nominal values, 25 °C and nominal rails, exactly as the
 analysis of an answer reports them (``search.rows.evaluate``). The engines only need, besides
 that, windows and bounds that every row obeys (``search.bounds``), so an answer they call
 optimal is optimal under the full model.
@@ -12,22 +14,36 @@ that is 1 ppm of frequency), so both engines and brute force compare exactly.
 
 from __future__ import annotations
 
-import math
-from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.board import rails_from_supply
-from tristock.circuits.rails import OpAmpModel, square_levels
-from tristock.search.bounds import OpAmpLoop, overshoot_fraction_cap
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
+from tristock.circuits.opamp_schmitt.searchform import OpAmpStage
+from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.searchform import Exclusion, SearchForm, StageLoop, StageOption
+from tristock.circuits.topology import Topology
+from tristock.search.bounds import overshoot_fraction_cap
+from tristock.search.parts import PartTable, eligible_capacitors, eligible_resistors, in_series
 from tristock.search.targetpoint import TargetPoint, target_point
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-from tristock.stock.eseries import is_member
-from tristock.stock.parts import Capacitor, OpAmp, Resistor
+from tristock.stock.parts import OpAmp
+
+__all__ = [
+    "BALANCED_WEIGHTS",
+    "COST_RESOLUTION",
+    "SCORE_RESOLUTION",
+    "SECONDARY_SPAN",
+    "Exclusion",
+    "OpAmpTerms",
+    "PartTable",
+    "SearchModel",
+    "build_model",
+    "in_series",
+    "quantise",
+]
 
 SCORE_RESOLUTION = 1e-6
 #: Secondary keys (tie-breakers) are packed below the primary score: primary·SECONDARY_SPAN + s.
@@ -52,13 +68,16 @@ def quantise(x: NDArray[np.float64] | float) -> NDArray[np.int64]:
 
 @dataclass(frozen=True)
 class OpAmpTerms:
-    """One usable op amp on the spec's nominal rails.
+    """One stage option of the topology's search form, with what the search adds to it.
 
-    ``loop`` carries what the bounds need (levels, slew, delay, GBW, and the integrator error
-    voltage Ve = Vos1 + Ib1·R3 over the R3 values eligible); ``k_range`` holds every
-    k = R1/R2 a row can meet the spec with (see ``_k_range``); ``target`` the constants of
-    the loop linearised at the target, None where the full model cannot meet the target
-    exactly (the trimmed and tuned searches use them; ``target_note`` says why not).
+    ``stage`` is the form's ``StageOption`` (its parts, stock, cost and ``loop``, what the
+    bounds need: the timing parameters, the square levels and the integrator error voltage
+    Ve = Vos1 + Ib1·R3 over the R3 values eligible, as intervals); ``k_range`` holds every
+    k = R1/R2 a row can meet the spec with (see ``_k_range``). ``part``, ``model``, ``vh``,
+    ``vl`` and ``target`` are the op-amp Schmitt loop's: its op amp U1, the op amp's terms,
+    the square levels, and the constants of the loop linearised at the target, None where
+    the full model cannot meet the target exactly or the topology is another (the trimmed and
+    tuned searches, specific to that loop, use them; ``target_note`` says why not).
     """
 
     index: int
@@ -66,58 +85,18 @@ class OpAmpTerms:
     model: OpAmpModel
     vh: float
     vl: float
-    loop: OpAmpLoop
+    loop: StageLoop
     k_range: tuple[float, float]
     target: TargetPoint | None
     target_note: str = ""
+    stage: StageOption | None = None
 
-
-@dataclass(frozen=True)
-class Exclusion:
-    """Why a part or a whole designator was left out, in plain words."""
-
-    designator: str
-    part_id: str | None
-    reason: str
-
-
-@dataclass
-class PartTable:
-    """Eligible parts of one kind as arrays, sorted by value."""
-
-    parts: list[Any]  # Resistor or Capacitor rows, sorted by value
-    value: NDArray[np.float64]  # Ω or F
-    ln_value: NDArray[np.float64]
-    tol: NDArray[np.float64]  # fraction
-    tempco: NDArray[np.float64]  # ppm/°C
-    extra_band: NDArray[np.float64]  # class II temperature band, fraction
-    cost: NDArray[np.float64]
-    stock: NDArray[np.int64]
-    voltage: NDArray[np.float64]  # capacitors: rated DC voltage; resistors: inf
-
-    @classmethod
-    def of(cls, parts: Sequence[Resistor] | Sequence[Capacitor]) -> PartTable:
-        items: list[Any] = sorted(parts, key=lambda p: (p.value, p.id))
-        tempco = [p.tempco_ppm if p.tempco_ppm is not None else 0.0 for p in items]
-        band = [
-            (p.temp_band_pct or 0.0) / 100 if isinstance(p, Capacitor) and p.is_class_ii else 0.0
-            for p in items
-        ]
-        value = np.array([p.value for p in items], dtype=np.float64)
-        return cls(
-            parts=items,
-            value=value,
-            ln_value=np.log(value),
-            tol=np.array([p.tolerance_pct / 100 for p in items], dtype=np.float64),
-            tempco=np.array(tempco, dtype=np.float64),
-            extra_band=np.array(band, dtype=np.float64),
-            cost=np.array([p.unit_cost for p in items], dtype=np.float64),
-            stock=np.array([p.stock for p in items], dtype=np.int64),
-            voltage=np.array([getattr(p, "voltage_v", math.inf) for p in items], dtype=np.float64),
-        )
-
-    def __len__(self) -> int:
-        return len(self.parts)
+    @property
+    def option(self) -> StageOption:
+        """The stage option (always set by ``build_model``)."""
+        if self.stage is None:
+            raise ValueError("stage: this OpAmpTerms was not built from a stage option")
+        return self.stage
 
 
 @dataclass
@@ -127,6 +106,7 @@ class SearchModel:
     spec: Spec
     resistors: PartTable
     capacitors: PartTable
+    #: The stage options of the topology's search form, in the form's order.
     opamps: list[OpAmpTerms]
     exclusions: list[Exclusion] = field(default_factory=list)
     #: Optional per-designator masks (True = this part may fill the position), used to pin or
@@ -136,15 +116,22 @@ class SearchModel:
     #: Set when a row's full-model value fell outside the bounds that windowed it: the
     #: search's completeness argument failed, so nothing may be called proven.
     bounds_violated: bool = False
+    #: The topology's search form: its stage options, row levels and row model.
+    form: SearchForm = field(default_factory=OPAMP_SCHMITT.search_form)
+
+    @property
+    def stages(self) -> list[StageOption]:
+        """The stage options, in the order of ``opamps``."""
+        return [o.option for o in self.opamps]
 
     def allows(self, designator: str, size: int) -> NDArray[np.bool_]:
         mask = self.allowed.get(designator)
         return np.ones(size, dtype=bool) if mask is None else mask
 
-    def loops(self, u: NDArray[np.int64]) -> OpAmpLoop:
-        """The op amps' loop data, one entry per element of ``u``."""
-        table = OpAmpLoop(
-            *(np.array([getattr(o.loop, f) for o in self.opamps]) for f in OpAmpLoop._fields)
+    def loops(self, u: NDArray[np.int64]) -> StageLoop:
+        """The stages' loop data, one entry per element of ``u``."""
+        table = StageLoop(
+            *(np.array([getattr(o.loop, f) for o in self.opamps]) for f in StageLoop._fields)
         )
         return table.take(u)
 
@@ -194,13 +181,18 @@ class SearchModel:
         return np.zeros(np.shape(tol), dtype=np.int64)
 
     def opamp_term(self, u: OpAmpTerms) -> int:
+        """Primary-score term of a stage option: its cost per board and BOM lines."""
+        stage = u.option
         if self.mode == "balanced":
             w = BALANCED_WEIGHTS
             return int(
-                quantise(w["cost"] * u.part.cost_per_board / self.cost_scale + w["bom_lines"])
+                quantise(
+                    w["cost"] * stage.cost_per_board / self.cost_scale
+                    + w["bom_lines"] * stage.lines
+                )
             )
         if self.mode == "cost":
-            return round(u.part.cost_per_board / COST_RESOLUTION)
+            return round(stage.cost_per_board / COST_RESOLUTION)
         return 0
 
     def shared_line_credit(self) -> int:
@@ -255,117 +247,49 @@ class SearchModel:
 # ---- building the model ------------------------------------------------------------------
 
 
-def in_series(r: Resistor, names: Sequence[str]) -> bool:
-    """A resistor is "in" a series when its drawer says so or its value is a member: an E96
-    drawer's 10 kΩ is an E24 value too."""
-    return r.series in names or any(is_member(s, r.value_ohm) for s in names)
-
-
-def _k_range(spec: Spec, vh: float, vl: float) -> tuple[float, float]:
+def _k_range(spec: Spec, loop: StageLoop) -> tuple[float, float]:
     """Every k = R1/R2 of a row that meets the spec: A = k·span·(1 + ε) with 0 ≤ ε ≤ ε_max
-    (``bounds.overshoot_fraction_cap``, which the timing-share limit makes finite), so
-    A_min/(span·(1 + ε_max)) ≤ k ≤ A_max/span."""
-    span = vh + vl
+    (``bounds.overshoot_fraction_cap``, which the timing-share limit makes finite) and the
+    span VH + VL in the stage's interval, so A_min/(span_hi·(1 + ε_max)) ≤ k ≤
+    A_max/span_lo."""
     ta = spec.triangle.tolerance_pct / 100
     tf = spec.target.tolerance_pct / 100
     a_t = spec.triangle.amplitude_vpp
     eps = overshoot_fraction_cap(spec.limits.max_timing_share, (1 + tf) / (1 - tf))
-    return a_t * (1 - ta) / (span * (1 + eps)), a_t * (1 + ta) / span
+    span_lo, span_hi = float(loop.span_lo), float(loop.span_hi)
+    return a_t * (1 - ta) / (span_hi * (1 + eps)), a_t * (1 + ta) / span_lo
 
 
-def _opamp(index: int, part: OpAmp, spec: Spec, r3_values: NDArray[np.float64]) -> OpAmpTerms | str:
-    """The op amp's terms on the nominal rails, or why it cannot be used at all."""
-    supply = spec.supply
-    span_lo = supply.span_v * (1 - supply.tolerance_pct / 100)
-    span_hi = supply.span_v * (1 + supply.tolerance_pct / 100)
-    if span_lo < part.supply_min_v or span_hi > part.supply_max_v:
-        return (
-            f"supply span {span_lo:g}..{span_hi:g} V is outside its rating "
-            f"{part.supply_min_v:g}..{part.supply_max_v:g} V"
+def _terms(stage: StageOption, spec: Spec) -> OpAmpTerms:
+    """The search's terms of one stage option (the target point for an op-amp stage)."""
+    vh, vl = stage.levels
+    k_range = _k_range(spec, stage.loop)
+    if isinstance(stage, OpAmpStage):
+        point, note = target_point(stage.part, spec, vh, vl)
+        return OpAmpTerms(
+            stage.index, stage.part, stage.model, vh, vl, stage.loop, k_range, point, note, stage
         )
-    model = OpAmpModel.from_part(part)
-    try:
-        vh, vl = square_levels(rails_from_supply(supply), model)
-    except ValueError:
-        return "its output cannot swing both sides of the reference on these rails"
-    ve = model.offset_v + model.bias_a * r3_values
-    ve = ve[(vh - ve > 0) & (vl + ve > 0)]
-    if len(ve) == 0:
-        return "its integrator error voltage Vos + Ib·R3 reaches a square level for every R3"
-    loop = OpAmpLoop(
-        *(
-            np.asarray(x, dtype=np.float64)
-            for x in (
-                vh,
-                vl,
-                model.slew_rise_v_per_s,
-                model.slew_fall_v_per_s,
-                model.delay_s,
-                model.gbw_hz,
-                model.gbw_hz,
-                ve.min(),
-                ve.max(),
-            )
-        )
-    )
-    point, note = target_point(part, spec, vh, vl)
-    return OpAmpTerms(index, part, model, vh, vl, loop, _k_range(spec, vh, vl), point, note)
+    raise TypeError(f"{stage.key}: only op-amp stages have search terms yet")
 
 
-def build_model(spec: Spec, catalog: Catalog) -> SearchModel:
-    """Eligible parts and per-op-amp loops for ``spec``; exclusions say why parts dropped."""
-    lim = spec.limits
-    boards = spec.build.boards
-    excl: list[Exclusion] = []
+def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:
+    """Eligible parts and the stage options of ``topology``'s search form for ``spec``;
+    exclusions say why parts dropped."""
+    form = topology.search_form()
+    res_table, excl = eligible_resistors(spec, catalog)
 
-    resistors: list[Resistor] = []
-    for r in catalog.resistors:
-        if not lim.resistance_min_ohm <= r.value_ohm <= lim.resistance_max_ohm:
-            continue
-        if lim.resistor_series is not None and not in_series(r, lim.resistor_series):
-            continue
-        if r.stock < boards:
-            excl.append(Exclusion("R", r.id, f"stock {r.stock} < {boards} boards"))
-            continue
-        resistors.append(r)
-    res_table = PartTable.of(resistors)
+    stages, stage_excl = form.stage_options(spec, catalog, res_table.value)
+    excl += stage_excl
+    opamps = [_terms(stage, spec) for stage in stages]
 
-    opamps: list[OpAmpTerms] = []
-    for part in catalog.opamps:
-        if lim.opamps is not None and part.id not in lim.opamps:
-            continue
-        need = boards * part.packages_per_board
-        if part.stock < need:
-            excl.append(Exclusion("U1", part.id, f"stock {part.stock} < {need} needed"))
-            continue
-        terms = _opamp(len(opamps), part, spec, res_table.value)
-        if isinstance(terms, str):
-            excl.append(Exclusion("U1", part.id, terms))
-            continue
-        opamps.append(terms)
-
-    # C1 holds the triangle: its largest |peak| is at least half the smallest amplitude in
-    # the band, so a rating below that (with the amplitude margin) can never do.
-    a_lo = spec.triangle.amplitude_vpp * (1 - spec.triangle.tolerance_pct / 100)
-    peak_floor = a_lo / 2 * (1 + spec.triangle.tolerance_pct / 100)
-    capacitors: list[Capacitor] = []
-    for cap in catalog.capacitors:
-        if cap.dielectric not in lim.dielectrics or cap.is_polarised:
-            continue
-        if cap.stock < boards:
-            excl.append(Exclusion("C1", cap.id, f"stock {cap.stock} < {boards} boards"))
-            continue
-        if cap.voltage_v < peak_floor:
-            excl.append(
-                Exclusion("C1", cap.id, f"rated {cap.voltage_v:g} V < peak {peak_floor:.2f} V")
-            )
-            continue
-        capacitors.append(cap)
+    cap_table, cap_excl = eligible_capacitors(spec, catalog, "C1")
+    excl += cap_excl
 
     return SearchModel(
         spec=spec,
         resistors=res_table,
-        capacitors=PartTable.of(capacitors),
+        capacitors=cap_table,
         opamps=opamps,
         exclusions=excl,
+        form=form,
     )

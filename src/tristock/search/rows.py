@@ -26,16 +26,14 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.opamp_schmitt.physics import predict
-from tristock.circuits.rails import OpAmpModel
-from tristock.circuits.topology import Prediction
+from tristock.circuits.searchform import SearchForm, StageOption
 from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.guarantee import (
     FAST,
     PROBES,
     SLOW_A,
     SLOW_B,
-    levels,
+    probe_levels,
     probe_scales,
     probe_values,
 )
@@ -92,19 +90,23 @@ def empty_rows() -> Rows:
 
 
 class RowPrediction:
-    """``predict`` for every row, with what the acceptance needs beside it.
+    """The topology's full model (``SearchForm.predict_rows``) for every row, with what the
+    acceptance needs beside it.
 
-    ``models[u[n]]`` is row n's op amp, ``vh``/``vl`` its square levels (V). Rows whose
-    integrator error voltage Ve = Vos1 + Ib1·R3 reaches a square level cannot oscillate: their
-    values are NaN and ``valid`` is False. ``centred_offsets`` puts both offsets at 0 V (the
-    centre of the analysis's spread box) instead of the catalogued typical value.
+    ``stages[u[n]]`` is row n's stage option, ``values`` its part values in the order
+    divider pair, integrator element(s), capacitor (R1, R2, R3, C1 for the op-amp Schmitt
+    loop), ``vh``/``vl`` its square levels (V). Rows whose integrator error voltage Ve
+    reaches a square level cannot oscillate: their values are NaN and ``valid`` is False.
+    ``centred_offsets`` puts the offsets at 0 V (the centre of the analysis's spread box)
+    instead of the catalogued typical value.
     """
 
     def __init__(
         self,
-        models: Sequence[OpAmpModel],
+        form: SearchForm,
+        stages: Sequence[StageOption],
         u: I64,
-        values: tuple[F64, F64, F64, F64],
+        values: tuple[F64, ...],
         vh: F64,
         vl: F64,
         *,
@@ -112,52 +114,33 @@ class RowPrediction:
         delay_scale: F64 | float = 1.0,
         centred_offsets: bool = False,
     ) -> None:
-        def col(name: str) -> F64:
-            return np.array([getattr(x, name) for x in models], dtype=np.float64)[u]
-
-        r1, r2, r3, c1 = values
+        names = (*form.divider, *form.integrator, form.capacitor)
+        by_name = dict(zip(names, values, strict=True))
+        r1, r2 = (by_name[d] for d in form.divider)
+        rc = by_name[form.integrator[0]] * by_name[form.capacitor]
         self.vh, self.vl = vh, vl
-        vos1 = np.zeros(len(u)) if centred_offsets else col("offset_v")
-        vos2 = np.zeros(len(u)) if centred_offsets else col("comparator_offset_v")
-        ib1, ib2 = col("bias_a"), col("comparator_bias_a")
-        self.slew_rise = col("slew_rise_v_per_s") * slew_scale
-        self.slew_fall = col("slew_fall_v_per_s") * slew_scale
-        self.ve = vos1 + ib1 * r3
-        ok = (vh - self.ve > 0) & (vl + self.ve > 0) & (vh > 0) & (vl > 0)
-        self.valid = ok
+        row = form.predict_rows(
+            stages,
+            u,
+            by_name,
+            (vh, vl),
+            slew_scale=slew_scale,
+            delay_scale=delay_scale,
+            centred_offsets=centred_offsets,
+        )
+        self.slew_rise, self.slew_fall = row.slew_rise, row.slew_fall
+        self.ve = row.ve
+        self.valid = row.valid
         self.k = r1 / r2
-        self.p = self.k * r3 * c1
-        out = Prediction(*(np.full(len(u), np.nan) for _ in Prediction._fields))
-        if ok.any():
-            part = predict(
-                r1[ok],
-                r2[ok],
-                r3[ok],
-                c1[ok],
-                vh[ok],
-                vl[ok],
-                slew_rise=self.slew_rise[ok],
-                slew_fall=self.slew_fall[ok],
-                delay=(col("delay_s") * delay_scale)[ok],
-                gbw=col("gbw_hz")[ok],
-                integrator_gbw=col("gbw_hz")[ok],
-                vos1=vos1[ok],
-                ib1=ib1[ok],
-                vos2=vos2[ok],
-                ib2=ib2[ok],
-            )
-            for name in Prediction._fields:
-                getattr(out, name)[ok] = np.asarray(getattr(part, name))
-        self.pred = out
+        self.p = self.k * rc
+        self.pred = row.pred
 
     @classmethod
-    def nominal(
-        cls, model: SearchModel, u: I64, values: tuple[F64, F64, F64, F64]
-    ) -> RowPrediction:
-        """At nominal values, rails and 25 °C, the op amp as catalogued."""
+    def nominal(cls, model: SearchModel, u: I64, values: tuple[F64, ...]) -> RowPrediction:
+        """At nominal values, rails and 25 °C, the stage as catalogued."""
         vh = np.array([o.vh for o in model.opamps])[u]
         vl = np.array([o.vl for o in model.opamps])[u]
-        return cls([o.model for o in model.opamps], u, values, vh, vl)
+        return cls(model.form, model.stages, u, values, vh, vl)
 
     def peak_v(self) -> F64:
         """The largest |triangle - reference| (V): what C1 holds."""
@@ -202,15 +185,16 @@ class RowPrediction:
 def probe_extremes(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> F64:
     """Frequency and amplitude at the box points of ``search.guarantee.PROBES`` per row, as
     columns (f fast, f slow A, f slow B, A big, A small)."""
-    models = [o.model for o in model.opamps]
     out = []
     for probe in PROBES:
-        vh, vl = levels(model, u, probe)
+        values = probe_values(model, probe, i1, i2, i3, j)
+        vh, vl = probe_levels(model, u, probe, values)
         slew, delay = probe_scales(probe)
         rp = RowPrediction(
-            models,
+            model.form,
+            model.stages,
             u,
-            probe_values(model, probe, i1, i2, i3, j),
+            values,
             vh,
             vl,
             slew_scale=slew,
@@ -244,8 +228,10 @@ def evaluate(
         ok &= res.stock[i1] >= boards * (1 + same12 + same13)
         ok &= res.stock[i2] >= boards * (1 + same12 + same23)
         ok &= res.stock[i3] >= boards * (1 + same13 + same23)
-    lines = (3 + ~same12 + (~same13 & ~same23)).astype(np.int64)
-    u_cost = np.array([o.part.cost_per_board for o in model.opamps])[u]
+    resistor_lines = (1 + ~same12 + (~same13 & ~same23)).astype(np.int64)
+    stages = model.stages
+    lines = np.array([st.lines for st in stages], dtype=np.int64)[u] + 1 + resistor_lines
+    u_cost = np.array([st.cost_per_board for st in stages])[u]
     cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j]
     if coupled and spec.limits.max_cost is not None:
         ok &= cost <= spec.limits.max_cost + 1e-12
@@ -270,7 +256,7 @@ def evaluate(
         + model.resistor_term(i3)
         + model.capacitor_term(j)
         + model.row_term(np.nan_to_num(e_f), np.nan_to_num(e_a), np.nan_to_num(share))
-        - model.shared_line_credit() * (5 - lines)
+        - model.shared_line_credit() * (3 - resistor_lines)
     )
     rows = Rows(
         u=u,
@@ -317,7 +303,7 @@ def rank_key(model: SearchModel, rows: Rows, n: int) -> tuple[int, int, str, str
     return (
         int(rows.primary[n]),
         int(rows.secondary[n]),
-        model.opamps[rows.u[n]].part.id,
+        model.opamps[rows.u[n]].option.key,
         model.resistors.parts[rows.i1[n]].id,
         model.resistors.parts[rows.i2[n]].id,
         model.resistors.parts[rows.i3[n]].id,

@@ -1,10 +1,11 @@
 """The op-amp Schmitt loop, tristock's first topology: an integrator (U1A, R3, C1) driving a
 non-inverting Schmitt trigger (U1B, R1, R2) whose square output drives the integrator.
 
-Its modules: ``physics`` (the closed-form model, ``Oscillator``), ``point`` (the vectorised
-point the analysis moves), ``spread`` (the board's tolerance variables on a spec), ``checks``,
-``timedomain`` (the loop for the event-driven simulation) and ``netlist`` (ngspice).
-``OPAMP_SCHMITT`` is the topology object.
+Its modules: ``physics`` (the closed-form model, ``Oscillator``), ``searchform`` (the
+stage options and row model the exact search works through), ``point`` (the vectorised
+point the analysis moves), ``spread`` (the board's tolerance variables on a spec),
+``checks``, ``timedomain`` (the loop for the event-driven simulation) and ``netlist``
+(ngspice). ``OPAMP_SCHMITT`` is the topology object.
 """
 
 from __future__ import annotations
@@ -25,9 +26,11 @@ from tristock.circuits.opamp_schmitt.point import (
     predict_point,
     swing_imbalance,
 )
+from tristock.circuits.opamp_schmitt.searchform import SEARCH_FORM
 from tristock.circuits.opamp_schmitt.spread import SENSITIVITY_FIELDS, spread_box
 from tristock.circuits.opamp_schmitt.timedomain import loop_from
 from tristock.circuits.rails import Rails
+from tristock.circuits.searchform import SearchForm
 from tristock.circuits.spreadvars import SpreadBox
 from tristock.circuits.timeloop import Loop
 from tristock.circuits.topology import BoardParts, FloatArray, PartRole, Prediction, Topology
@@ -117,6 +120,10 @@ class OpAmpSchmitt(Topology):
 
     def time_domain(self, oscillator: Any) -> Loop:
         return loop_from(oscillator)
+
+    def search_form(self) -> SearchForm:
+        """Rows (U1, R1, R2, R3, C1); the stage is U1 (``opamp_schmitt.searchform``)."""
+        return SEARCH_FORM
 
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         """The board's own comparator: the op-amp macromodel when its GBW is finite and both

@@ -19,10 +19,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from tristock.circuits.searchform import StageLoop
 from tristock.designs.trimmed.context import F64, I64, TrimContext
 from tristock.designs.trimmed.probes import SLACK, pair_windows
 from tristock.search.bounds import (
-    OpAmpLoop,
     amplitude_bounds,
     claimed,
     timing_share_floor,
@@ -64,7 +64,7 @@ class Pairs:
         return len(self.u)
 
 
-def nominal_loop(ctx: TrimContext, u: I64) -> OpAmpLoop:
+def nominal_loop(ctx: TrimContext, u: I64) -> StageLoop:
     """Each op amp's nominal loop with Ve = Vos1 + Ib1·R_eff over every R_eff = R3 + α·RV a
     row can have (the model's own loop covers R3 alone)."""
     res, pots = ctx.model.resistors, ctx.pots
@@ -77,10 +77,12 @@ def nominal_loop(ctx: TrimContext, u: I64) -> OpAmpLoop:
     return loop._replace(ve_lo=np.minimum(ve_a, ve_b), ve_hi=np.maximum(ve_a, ve_b))
 
 
-def largest_drive_product(loop: OpAmpLoop) -> F64:
-    """max (VH - Ve)·(VL + Ve) over Ve in [ve_lo, ve_hi] (concave: the vertex, clipped)."""
-    ve = np.clip((loop.vh - loop.vl) / 2, loop.ve_lo, loop.ve_hi)
-    return np.asarray((loop.vh - ve) * (loop.vl + ve), dtype=np.float64)
+def largest_drive_product(loop: StageLoop) -> F64:
+    """max (VH - Ve)·(VL + Ve) over Ve in [ve_lo, ve_hi] (concave: the vertex, clipped); the
+    op-amp Schmitt loop's levels do not depend on the row (``vh_lo`` = ``vh_hi``)."""
+    vh, vl = loop.vh_lo, loop.vl_lo
+    ve = np.clip((vh - vl) / 2, loop.ve_lo, loop.ve_hi)
+    return np.asarray((vh - ve) * (vl + ve), dtype=np.float64)
 
 
 def _pair_indices(ctx: TrimContext) -> tuple[I64, I64, I64]:
@@ -130,9 +132,10 @@ def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
     # P0 = k·(R3 + α0·RV)·C1 with α0 in [m, 1 - m]: what the tables can make at all; and,
     # before any root is sought, the ideal-switch part T_i = span²·P/(a·b) of the period,
     # at most T_t and at least (1 - max_timing_share)·T_t.
-    span = loop.vh + loop.vl
-    ab_lo = np.minimum((loop.vh - loop.ve_lo) * (loop.vl + loop.ve_lo),
-                       (loop.vh - loop.ve_hi) * (loop.vl + loop.ve_hi))  # fmt: skip
+    vh, vl = loop.vh_lo, loop.vl_lo  # the op-amp loop's levels: equal interval ends
+    span = vh + vl
+    ab_lo = np.minimum((vh - loop.ve_lo) * (vl + loop.ve_lo),
+                       (vh - loop.ve_hi) * (vl + loop.ve_hi))  # fmt: skip
     share_max = spec.limits.max_timing_share
     p_lo = np.maximum(
         k * (res.value.min() + m * pots.value.min()) * cap.value.min(),
@@ -157,7 +160,7 @@ def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
 
 
 def _windowed(
-    ctx: TrimContext, loop: OpAmpLoop, u: I64, i1: I64, i2: I64, k: F64, p_lo: F64, p_hi: F64
+    ctx: TrimContext, loop: StageLoop, u: I64, i1: I64, i2: I64, k: F64, p_lo: F64, p_hi: F64
 ) -> Pairs:
     """The pairs whose exact window at the target keeps the amplitude and the timing share
     possible, with their probe bounds."""
@@ -181,7 +184,7 @@ def _windowed(
         p_lo,
         p_hi,
         *probes,
-        span=np.asarray(loop.vh + loop.vl, dtype=np.float64),
+        span=np.asarray(loop.span_lo, dtype=np.float64),
         # the resolution bound rests on the edge's monotone mean time (search.bounds): where
         # that is not claimed, a·b "unbounded" makes the bound 0, which every row meets
         ab_max=np.where(claimed(loop, k), largest_drive_product(loop), np.inf),
@@ -191,7 +194,7 @@ def _windowed(
 
 
 def _amplitude_and_share(
-    ctx: TrimContext, loop: OpAmpLoop, k: F64, p_lo: F64, p_hi: F64
+    ctx: TrimContext, loop: StageLoop, k: F64, p_lo: F64, p_hi: F64
 ) -> NDArray[np.bool_]:
     """Pairs whose P range is not empty and over which the amplitude bounds reach the band
     and the timing-share floor is within the limit (``search.bounds``)."""

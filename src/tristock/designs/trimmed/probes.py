@@ -31,11 +31,13 @@ from typing import NamedTuple
 
 import numpy as np
 
+from tristock.circuits.opamp_schmitt.searchform import OpAmpStage
 from tristock.circuits.opamp_schmitt.spread import BIAS_SPREAD, OFFSET_BOUND
 from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.searchform import StageLoop, StageOption
 from tristock.designs.trimmed.context import F64, I64, TrimContext
-from tristock.search.bounds import OpAmpLoop, highest_p, lowest_p
-from tristock.search.guarantee import Probe, levels, probe_scales
+from tristock.search.bounds import highest_p, lowest_p
+from tristock.search.guarantee import Probe, probe_rails, probe_scales
 from tristock.search.model import SearchModel
 from tristock.search.rows import RowPrediction
 
@@ -96,8 +98,11 @@ def factor(tol: F64, z: float, tempco: F64, temp: F64 | float, band: F64 | None 
 
 
 def rail_levels(model: SearchModel, u: I64, probe: TrimProbe) -> tuple[F64, F64]:
-    """VH, VL on the probe's rails (``search.guarantee.levels``)."""
-    return levels(model, u, Probe(0, 0, 0, 0, probe.v_pos, probe.v_neg, 0, 0, probe.k_up))
+    """VH, VL on the probe's rails (``SearchForm.level_bounds``; the op-amp Schmitt loop's
+    levels do not depend on the row, so the interval's ends agree)."""
+    rails = probe_rails(model, Probe(0, 0, 0, 0, probe.v_pos, probe.v_neg, 0, 0, probe.k_up))
+    vh, _, vl, _ = model.form.level_bounds(model.stages, u, rails)
+    return vh, vl
 
 
 def corner_models(model: SearchModel, vos_z: float, bias_z: float) -> list[OpAmpModel]:
@@ -158,7 +163,18 @@ def r_eff_range(ctx: TrimContext, probe: TrimProbe, temp: F64) -> tuple[F64, F64
     return lo, hi
 
 
-def probe_loop(ctx: TrimContext, u: I64, probe: TrimProbe, temp: F64) -> OpAmpLoop:
+def corner_stages(model: SearchModel, vos_z: float, bias_z: float) -> list[StageOption]:
+    """The stage options with ``corner_models``' op amps in place of the catalogued ones."""
+    out: list[StageOption] = []
+    for o, m in zip(model.opamps, corner_models(model, vos_z, bias_z), strict=True):
+        stage = o.option
+        if not isinstance(stage, OpAmpStage):
+            raise TypeError(f"U1: stage {stage.key} is not an op-amp Schmitt stage")
+        out.append(dataclasses.replace(stage, model=m))
+    return out
+
+
+def probe_loop(ctx: TrimContext, u: I64, probe: TrimProbe, temp: F64) -> StageLoop:
     """The op amps' loops at the probe (rails, slew, delay; offsets +typical, bias 2x) with the
     integrator error voltage Ve = Vos1 + Ib1·R_eff over every R_eff a row can have there."""
     model = ctx.model
@@ -171,8 +187,10 @@ def probe_loop(ctx: TrimContext, u: I64, probe: TrimProbe, temp: F64) -> OpAmpLo
     ve_a, ve_b = vos + ib * r_lo, vos + ib * r_hi
     loop = model.loops(u)
     return loop._replace(
-        vh=vh,
-        vl=vl,
+        vh_lo=vh,
+        vh_hi=vh,
+        vl_lo=vl,
+        vl_hi=vl,
         slew_rise=loop.slew_rise * slew,
         slew_fall=loop.slew_fall * slew,
         delay=loop.delay * delay,
@@ -225,7 +243,7 @@ def row_reach(
     m = ctx.margin
     slow = np.full(len(u), np.inf)
     fast = np.full(len(u), -np.inf)
-    corners = [(vz, bz, corner_models(model, vz, bz)) for vz, bz in _corners(model)]
+    corners = [(vz, bz, corner_stages(model, vz, bz)) for vz, bz in _corners(model)]
     for probes, wiper, is_slow in ((SLOW_PROBES, m, True), (FAST_PROBES, 1 - m, False)):
         for probe in probes:
             vh, vl = rail_levels(model, u, probe)
@@ -239,9 +257,9 @@ def row_reach(
                     cap.tol[j], probe.zc, cap.tempco[j], temp, cap.extra_band[j]
                 )
                 values = (r1, r2, r3 + wiper * rv, c)
-                for _, _, models in corners:
+                for _, _, stages in corners:
                     rp = RowPrediction(
-                        models, u, values, vh, vl, slew_scale=slew, delay_scale=delay
+                        model.form, stages, u, values, vh, vl, slew_scale=slew, delay_scale=delay
                     )
                     f = np.asarray(rp.pred.frequency_hz, dtype=np.float64)
                     if is_slow:

@@ -23,15 +23,19 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.board import rails_from_supply, resolve
+from tristock.designs.changes import (
+    blocked_positions,
+    changes_of,
+    check_withdrawn,
+    without_parts,
+)
 from tristock.designs.results import (
-    Change,
     Infeasible,
     OriginalDesign,
     Predicted,
     ReoptimisedCandidate,
     ReoptimiseResult,
     SearchInfo,
-    Shortfall,
 )
 from tristock.designs.trimmed.answers import ENGINE, search_space, trimmed_candidate
 from tristock.designs.trimmed.checks import nominal_wiper
@@ -42,37 +46,6 @@ from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec.loading import SpecError
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-
-
-def _blocked(
-    catalog: Catalog,
-    current: dict[str, str],
-    without: Sequence[str],
-    short: dict[str, Shortfall],
-    boards: int,
-) -> tuple[dict[str, str], dict[str, str]]:
-    """Positions that must change (with why), and positions short only because their code
-    fills several positions (one of them may keep it; the search's stock rule decides)."""
-    blocked: dict[str, str] = {}
-    shared: dict[str, str] = {}
-    for name in TRIM_DESIGNATORS:
-        pid = current[name]
-        if pid in without:
-            blocked[name] = f"{pid} is marked unavailable"
-        elif pid not in catalog:
-            blocked[name] = f"{pid} is no longer in the catalog"
-        elif pid in short:
-            s = short[pid]
-            positions = [d for d in TRIM_DESIGNATORS if current[d] == pid]
-            alone = s.needed // len(positions)
-            if s.stock < alone:
-                blocked[name] = f"{pid}: stock {s.stock} < {alone} needed for {boards} boards"
-            else:
-                shared[name] = (
-                    f"{pid}: stock {s.stock} < {s.needed} needed for {boards} boards "
-                    f"in {' and '.join(positions)}"
-                )
-    return blocked, shared
 
 
 def _pinned(ctx: TrimContext, current: dict[str, str]) -> dict[str, int | None]:
@@ -181,21 +154,15 @@ def reoptimise_trimmed(
             [f"parts.{d}: missing (a trimmed design has U1, R1, R2, R3, C1, RV1)" for d in missing]
             + [f"parts.{d}: not part of a trimmed design" for d in extra]
         )
-    unknown = [w for w in without if w not in catalog]
-    if unknown:
-        raise SpecError([f"without: {w!r} is not in the catalog {catalog.path}" for w in unknown])
+    check_withdrawn(catalog, without)
     boards = spec.build.boards
     short = {s.id: s for s in shortfall(catalog, current, boards)}
-    blocked, shared = _blocked(catalog, current, without, short, boards)
+    blocked, shared = blocked_positions(
+        catalog, current, without, short, boards, TRIM_DESIGNATORS, TRIM_DESIGNATORS
+    )
     predicted, first_reasons = _original(spec, catalog, current)
 
-    reduced = dataclasses.replace(
-        catalog,
-        resistors=tuple(r for r in catalog.resistors if r.id not in without),
-        capacitors=tuple(c for c in catalog.capacitors if c.id not in without),
-        opamps=tuple(o for o in catalog.opamps if o.id not in without),
-        pots=tuple(p for p in catalog.pots if p.id not in without),
-    )
+    reduced = without_parts(catalog, without)
     ctx = trim_context(spec, reduced)
     pinned = _pinned(ctx, current)
     must_change = {d for d in TRIM_DESIGNATORS if d in blocked or pinned[d] is None}
@@ -278,14 +245,5 @@ def _answer(
     base = trimmed_candidate(ctx, found, rank, samples=samples, seed=0)
     names = [x for x in TRIM_DESIGNATORS if x in changed]
     new_ids = {k: v.id for k, v in base.parts.items()}
-    changes = []
-    for x in names:
-        if x in blocked:
-            why = blocked[x]
-        elif x in outside:
-            why = f"{current[x]} is outside the spec's limits or stock"
-        else:
-            others = ", ".join(o for o in names if o != x) or "nothing else"
-            why = f"re-chosen with {others} to bring the design back into spec"
-        changes.append(Change(designator=x, from_id=current[x], to_id=new_ids[x], why=why))
+    changes = changes_of(names, current, new_ids, blocked, outside)
     return ReoptimisedCandidate(**base.model_dump(), changed=names, changes=changes)

@@ -126,7 +126,7 @@ def _monotone(ctx: TrimContext, u: I64, k: F64, r3: F64, rv: F64, c: F64) -> NDA
     ve_a, ve_b = vos + ib * r3, vos + ib * (r3 + rv)
     loop = ctx.model.loops(u)._replace(ve_lo=np.minimum(ve_a, ve_b), ve_hi=np.maximum(ve_a, ve_b))
     t_hi = period_bounds(loop, k, k * (r3 + rv) * c).hi
-    span = loop.vh + loop.vl
+    span = loop.span_lo  # the op-amp loop's levels do not depend on the row
     with np.errstate(invalid="ignore"):
         return np.asarray(np.abs(ib) * t_hi < k * c * span * (1 - 1e-12))
 

@@ -30,13 +30,14 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.board import rails_from_supply
-from tristock.circuits.rails import OpAmpModel, square_levels
+from tristock.circuits.opamp_schmitt.searchform import opamp_levels, stocked_opamps
+from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.searchform import Exclusion
 from tristock.designs.tuned.edges import OVERSHOOT_EXCESS
-from tristock.search.model import Exclusion, PartTable, in_series
+from tristock.search.parts import PartTable, eligible_capacitors, eligible_resistors
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
+from tristock.stock.parts import OpAmp, Pot
 
 I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]
@@ -160,19 +161,10 @@ def k_window(spec: Spec, vh: float, vl: float) -> tuple[float, float]:
 
 
 def _opamp(index: int, part: OpAmp, spec: Spec) -> TunedOpAmp | str:
-    supply = spec.supply
-    span_lo = supply.span_v * (1 - supply.tolerance_pct / 100)
-    span_hi = supply.span_v * (1 + supply.tolerance_pct / 100)
-    if span_lo < part.supply_min_v or span_hi > part.supply_max_v:
-        return (
-            f"supply span {span_lo:g}..{span_hi:g} V is outside its rating "
-            f"{part.supply_min_v:g}..{part.supply_max_v:g} V"
-        )
-    model = OpAmpModel.from_part(part)
-    try:
-        vh, vl = square_levels(rails_from_supply(supply), model)
-    except ValueError:
-        return "its output cannot swing both sides of the reference on these rails"
+    found = opamp_levels(part, spec)
+    if isinstance(found, str):
+        return found
+    model, vh, vl = found
     k_lo, k_hi = k_window(spec, vh, vl)
     if k_lo >= 1.0:
         return (
@@ -187,48 +179,15 @@ def build_tuned_model(spec: Spec, catalog: Catalog) -> TunedModel:
     """Eligible parts for ``spec`` (a spec with ``[tuning]``); exclusions say why parts
     dropped."""
     assert spec.tuning is not None
-    lim = spec.limits
     boards = spec.build.boards
-    excl: list[Exclusion] = []
-    resistors: list[Resistor] = []
-    for r in catalog.resistors:
-        if not lim.resistance_min_ohm <= r.value_ohm <= lim.resistance_max_ohm:
-            continue
-        if lim.resistor_series is not None and not in_series(r, lim.resistor_series):
-            continue
-        if r.stock < boards:
-            excl.append(Exclusion("R", r.id, f"stock {r.stock} < {boards} boards"))
-            continue
-        resistors.append(r)
-    opamps: list[TunedOpAmp] = []
-    for part in catalog.opamps:
-        if lim.opamps is not None and part.id not in lim.opamps:
-            continue
-        need = boards * part.packages_per_board
-        if part.stock < need:
-            excl.append(Exclusion("U1", part.id, f"stock {part.stock} < {need} needed"))
-            continue
-        terms = _opamp(len(opamps), part, spec)
-        if isinstance(terms, str):
-            excl.append(Exclusion("U1", part.id, terms))
-            continue
-        opamps.append(terms)
+    res_table, excl = eligible_resistors(spec, catalog)
+    opamps, opamp_excl = stocked_opamps(
+        spec, catalog, lambda index, part: _opamp(index, part, spec)
+    )
+    excl += opamp_excl
     # Every range's triangle has a peak of at least half the smallest amplitude in the band.
-    a_lo = spec.triangle.amplitude_vpp * (1 - spec.triangle.tolerance_pct / 100)
-    peak_floor = a_lo / 2 * (1 + spec.triangle.tolerance_pct / 100)
-    capacitors: list[Capacitor] = []
-    for cap in catalog.capacitors:
-        if cap.dielectric not in lim.dielectrics or cap.is_polarised:
-            continue
-        if cap.stock < boards:
-            excl.append(Exclusion("C", cap.id, f"stock {cap.stock} < {boards} boards"))
-            continue
-        if cap.voltage_v < peak_floor:
-            excl.append(
-                Exclusion("C", cap.id, f"rated {cap.voltage_v:g} V < peak {peak_floor:.2f} V")
-            )
-            continue
-        capacitors.append(cap)
+    cap_table, cap_excl = eligible_capacitors(spec, catalog, "C")
+    excl += cap_excl
     pots = sorted(
         (p for p in catalog.pots if p.kind == "panel" and p.stock >= boards),
         key=lambda p: (p.value_ohm, p.id),
@@ -240,8 +199,8 @@ def build_tuned_model(spec: Spec, catalog: Catalog) -> TunedModel:
     ]
     return TunedModel(
         spec=spec,
-        resistors=PartTable.of(resistors),
-        capacitors=PartTable.of(capacitors),
+        resistors=res_table,
+        capacitors=cap_table,
         opamps=opamps,
         pots=pots,
         exclusions=excl,

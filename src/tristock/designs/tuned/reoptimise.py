@@ -27,6 +27,7 @@ from itertools import combinations
 
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import resolve
+from tristock.designs.changes import blocked_positions, check_withdrawn, with_build, without_parts
 from tristock.designs.results import (
     Change,
     Infeasible,
@@ -44,8 +45,9 @@ from tristock.designs.tuned.pins import masks, part_index, tuned_shortfall
 from tristock.designs.tuned.report import design_from, reasons, tuned_candidate
 from tristock.designs.tuned.search import Found, Lister, Walk, certified
 from tristock.designs.tuned.verdict import Verdicts
-from tristock.search.model import SCORE_RESOLUTION, PartTable
-from tristock.spec.loading import SpecError, parse_spec
+from tristock.search.model import SCORE_RESOLUTION
+from tristock.search.parts import PartTable
+from tristock.spec.loading import SpecError
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
@@ -78,13 +80,7 @@ def reoptimise_tuned(
     assert spec.tuning is not None
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
-    if boards is not None or top is not None:
-        data = spec.model_dump()
-        if boards is not None:
-            data["build"]["boards"] = boards
-        if top is not None:
-            data["ranking"]["top"] = top
-        spec = parse_spec(data)
+    spec = with_build(spec, boards, top)
     shared = shared_designators(spec)
     tuning = spec.tuning
     assert tuning is not None
@@ -95,34 +91,16 @@ def reoptimise_tuned(
             [f"parts.{d}: missing" for d in missing]
             + [f"parts.{d}: only the divider control has an end stop R4" for d in extra]
         )
-    unknown = [w for w in without if w not in catalog]
-    if unknown:
-        raise SpecError([f"without: {w!r} is not in the catalog {catalog.path}" for w in unknown])
+    check_withdrawn(catalog, without)
     n_boards = spec.build.boards
     slots = slots_of(current)
     designators = [*shared, *slots]
     short = {s.id: s for s in tuned_shortfall(catalog, current, n_boards)}
-    blocked: dict[str, str] = {}
-    for name in designators:
-        pid = current[name]
-        if pid in without:
-            blocked[name] = f"{pid} is marked unavailable"
-        elif pid not in catalog:
-            blocked[name] = f"{pid} is no longer in the catalog"
-        elif pid in short:
-            s = short[pid]
-            positions = [d for d in designators if current[d] == pid]
-            alone = s.needed // max(len(positions), 1)
-            if s.stock < alone:
-                blocked[name] = f"{pid}: stock {s.stock} < {alone} needed for {n_boards} boards"
-
-    reduced = dataclasses.replace(
-        catalog,
-        resistors=tuple(r for r in catalog.resistors if r.id not in without),
-        capacitors=tuple(c for c in catalog.capacitors if c.id not in without),
-        opamps=tuple(o for o in catalog.opamps if o.id not in without),
-        pots=tuple(p for p in catalog.pots if p.id not in without),
+    # a code short only for filling several positions is left to the search's stock rule
+    blocked, _ = blocked_positions(
+        catalog, current, without, short, n_boards, designators, designators
     )
+    reduced = without_parts(catalog, without)
     model = build_tuned_model(spec, reduced)
     pinned = {d: part_index(model, d, current[d]) for d in designators}
     for d in designators:

@@ -1,0 +1,192 @@
+"""The search form of a topology: what the exact search needs of a circuit.
+
+The search (``tristock.search``) lists rows = stage option × divider pair (R1, R2 → k = R1/R2)
+× integrator element (R3) × C1 and proves its answers under the topology's full model. For
+that a topology declares, through ``Topology.search_form()``:
+
+- its **stage options** (``stage_options``): every usable Schmitt stage on the spec's rails,
+  one ``StageOption`` each: the parts by designator (an op amp U1 today; U1 + a comparator U2
+  (+ a pull-up R5), or U1 + zeners D1/D2 + R5 in the variants), the stock each board takes,
+  the cost per board and BOM lines of the stage, and what the bounds need: a ``StageLoop``
+  with the loop's timing parameters and the square levels as **intervals** [lo, hi] valid
+  for every row the stage can be in (equal ends when the levels do not depend on the row);
+- the designators of its divider pair, integrator element and capacitor (``divider``,
+  ``integrator``, ``capacitor``), whose parts come from the resistor and capacitor tables;
+- the square levels of rows on given rails (``row_levels``; rows differ when the levels
+  depend on the row's resistors, as with an open-drain pull-up or a zener clamp);
+- the full model of rows (``predict_rows``): the topology's own vectorised ``predict``.
+
+The bounds the engines apply (``search.bounds``) are written over a ``StageLoop``; they stay
+sound for level intervals (see that module: the period rises with the span at fixed drives
+and falls with each drive, the overshoots do not depend on the span).
+"""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, NamedTuple
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.circuits.prediction import Prediction
+from tristock.circuits.rails import Rails
+from tristock.stock.parts import Part
+
+if TYPE_CHECKING:
+    from tristock.spec.model import Spec
+    from tristock.stock.catalog import Catalog
+
+F64 = NDArray[np.float64]
+I64 = NDArray[np.int64]
+
+
+@dataclass(frozen=True)
+class Exclusion:
+    """Why a part or a whole designator was left out, in plain words."""
+
+    designator: str
+    part_id: str | None
+    reason: str
+
+
+class StageLoop(NamedTuple):
+    """A stage's loop as the bounds need it (arrays over stages or rows; V, V/s, s, Hz).
+
+    ``vh_lo``..``vh_hi`` and ``vl_lo``..``vl_hi`` hold the square levels (from the reference)
+    over every row the stage can be in; ``ve_lo``..``ve_hi`` the integrator error voltage
+    Ve = Vos1 + Ib1·R3 over the R3 values eligible. The drives of the falling and rising ramps
+    are a = VH - Ve and b = VL + Ve; the span VH + VL is the distance the thresholds scale
+    with and the comparator edge's length."""
+
+    vh_lo: F64
+    vh_hi: F64
+    vl_lo: F64
+    vl_hi: F64
+    slew_rise: F64
+    slew_fall: F64
+    delay: F64
+    gbw: F64  # the comparator's
+    integrator_gbw: F64
+    ve_lo: F64
+    ve_hi: F64
+
+    def take(self, idx: I64) -> StageLoop:
+        return StageLoop(*(np.asarray(x)[idx] for x in self))
+
+    @property
+    def span_lo(self) -> F64:
+        return np.asarray(self.vh_lo + self.vl_lo)
+
+    @property
+    def span_hi(self) -> F64:
+        return np.asarray(self.vh_hi + self.vl_hi)
+
+    def weak(self) -> tuple[F64, F64]:
+        """The smallest drives: a = VH_lo - Ve_hi, b = VL_lo + Ve_lo."""
+        return np.asarray(self.vh_lo - self.ve_hi), np.asarray(self.vl_lo + self.ve_lo)
+
+    def strong(self) -> tuple[F64, F64]:
+        """The largest drives: a = VH_hi - Ve_lo, b = VL_hi + Ve_hi."""
+        return np.asarray(self.vh_hi - self.ve_lo), np.asarray(self.vl_hi + self.ve_hi)
+
+
+def fixed_levels_loop(
+    vh: float, vl: float, *, slew_rise: float, slew_fall: float, delay: float, gbw: float,
+    integrator_gbw: float, ve_lo: float, ve_hi: float,
+) -> StageLoop:  # fmt: skip
+    """A ``StageLoop`` whose levels do not depend on the row (equal interval ends)."""
+    values = (vh, vh, vl, vl, slew_rise, slew_fall, delay, gbw, integrator_gbw, ve_lo, ve_hi)
+    return StageLoop(*(np.asarray(x, dtype=np.float64) for x in values))
+
+
+@dataclass(frozen=True)
+class StageOption:
+    """One usable Schmitt stage on the spec's rails.
+
+    ``parts`` are the stage's parts by designator; ``stock_needs`` each part with the pieces
+    one board takes; ``cost_per_board`` and ``lines`` (distinct stock codes) what the stage
+    adds to a board's cost and BOM; ``loop`` what the bounds need on the nominal rails;
+    ``levels`` the nominal square levels (VH, VL) where they do not depend on the row (the
+    trimmed and tuned searches use them), else any point of ``loop``'s intervals;
+    ``integrator_bias_a`` the integrator's input bias current Ib1 (A), which with its offset
+    makes the error voltage Ve = Vos1 + Ib1·R3."""
+
+    index: int
+    parts: Mapping[str, Part]
+    stock_needs: tuple[tuple[Part, int], ...]
+    cost_per_board: float
+    lines: int
+    loop: StageLoop
+    levels: tuple[float, float]
+    integrator_bias_a: float
+
+    @property
+    def key(self) -> str:
+        """The stage's stock codes in designator order: its place in the rank order."""
+        return "+".join(self.parts[d].id for d in sorted(self.parts))
+
+
+class RowModel(NamedTuple):
+    """The full model of a batch of rows: the prediction (NaN where ``valid`` is False: the
+    integrator error voltage Ve reaches a square level, no oscillation), Ve itself and the
+    slew rates of the integrator's two ramps (V/s) the acceptance checks the slopes against."""
+
+    pred: Prediction
+    ve: F64
+    valid: NDArray[np.bool_]
+    slew_rise: F64
+    slew_fall: F64
+
+
+class SearchForm(ABC):
+    """What a topology gives the exact search (module docstring)."""
+
+    #: Designators of the divider pair (k = R1/R2), the integrator element and the capacitor.
+    divider: tuple[str, str] = ("R1", "R2")
+    integrator: tuple[str, ...] = ("R3",)
+    capacitor: str = "C1"
+    #: The designators a stage option fills (its ``parts``' keys, optional ones included).
+    stage_designators: tuple[str, ...]
+
+    @abstractmethod
+    def stage_options(
+        self, spec: Spec, catalog: Catalog, r3_values: F64
+    ) -> tuple[list[StageOption], list[Exclusion]]:
+        """Every usable stage on the spec's nominal rails (stock for ``spec.build.boards``,
+        supply rating, levels both sides of the reference, Ve inside the levels for some R3
+        of ``r3_values``), and why each other candidate was left out."""
+
+    @abstractmethod
+    def level_bounds(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails
+    ) -> tuple[F64, F64, F64, F64]:
+        """(VH_lo, VH_hi, VL_lo, VL_hi) of stage ``u`` on ``rails`` over every row the stage
+        can be in (every eligible divider pair, integrator element and load): the level
+        intervals of a ``StageLoop`` at other rails (the worst-case probes use them)."""
+
+    @abstractmethod
+    def row_levels(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails, values: Mapping[str, F64]
+    ) -> tuple[F64, F64]:
+        """The square levels VH, VL (V from the reference) of rows with stage ``u`` on
+        ``rails`` and the row's part values (``values`` by designator)."""
+
+    @abstractmethod
+    def predict_rows(
+        self,
+        stages: Sequence[StageOption],
+        u: I64,
+        values: Mapping[str, F64],
+        levels: tuple[F64, F64],
+        *,
+        slew_scale: F64 | float = 1.0,
+        delay_scale: F64 | float = 1.0,
+        centred_offsets: bool = False,
+    ) -> RowModel:
+        """The topology's full model of each row: stage ``u`` with the part values ``values``
+        (Ω, F by designator) at the square levels ``levels``; slew rates and delays scaled by
+        the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
+        centre) instead of the catalogued typical values."""
