@@ -33,6 +33,8 @@ from tristock.search.model import OpAmpTerms, SearchModel
 
 #: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
 CHUNK_CANDIDATES = 1 << 20
+#: Ratios whose bounds are computed in one call, between deadline checks.
+RATIO_BATCH = 8192
 
 
 @dataclass
@@ -122,6 +124,7 @@ class PairSource:
         self.opamps: list[tuple[int, OpAmpTerms]] = [
             (pos, o) for pos, o in enumerate(model.opamps) if usable and use_u1[o.index]
         ]
+        self.indices = np.array([o.index for o in model.opamps], dtype=np.int64)
         self.position = np.zeros(max((o.index for o in model.opamps), default=-1) + 1, np.int64)
         for pos, o in enumerate(model.opamps):
             self.position[o.index] = pos
@@ -164,21 +167,68 @@ class PairSource:
         return mine.take(order)
 
     def _build(self, x: float) -> None:
+        todo = [(pos, o, chunk) for pos, o in self.opamps for chunk in self._candidates(o, x)]
+        if not self._learn_ratios(todo):
+            return
         parts = [self.pairs]
-        for pos, o in self.opamps:
-            for chunk in self._candidates(o, self.built_to, x):
-                if time.perf_counter() > self.deadline:
-                    self.cut = True
-                    self.pairs = Pairs.concat(parts)
-                    return
-                parts.append(self._figures(pos, o, *chunk))
+        for pos, o, (i1, i2) in todo:
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                break
+            parts.append(self._figures(pos, o, i1, i2))
         self.pairs = Pairs.concat(parts)
-        self.built_to = x
+        if not self.cut:
+            self.built_to = x
+
+    def _learn_ratios(
+        self, todo: list[tuple[int, OpAmpTerms, tuple[NDArray[np.int64], NDArray[np.int64]]]]
+    ) -> bool:
+        """Compute the figures of every ratio the new pairs have and no kept one does, all
+        op amps together (the bounds are vectorised over op amps too), in batches between
+        deadline checks; False if the deadline came first."""
+        value = self.model.resistors.value
+        wanted: dict[int, list[NDArray[np.float64]]] = {}
+        for pos, _, (i1, i2) in todo:
+            wanted.setdefault(pos, []).append(value[i1] / value[i2])
+        us, ks = [], []
+        for pos, parts in wanted.items():
+            uk = np.unique(np.concatenate(parts))
+            known = self.ratios.get(pos)
+            if known is not None and len(known.k):
+                at = np.minimum(np.searchsorted(known.k, uk), len(known.k) - 1)
+                uk = uk[known.k[at] != uk]
+            us.append(np.full(len(uk), pos, dtype=np.int64))
+            ks.append(uk)
+        if not us:
+            return True
+        u_all, k_all = np.concatenate(us), np.concatenate(ks)
+        fresh: list[_RatioFigures] = []
+        for start in range(0, len(k_all), RATIO_BATCH):
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                return False
+            part = slice(start, start + RATIO_BATCH)
+            fresh.append(self._compute_ratios(u_all[part], k_all[part]))
+        if not fresh:
+            return True
+        merged = _RatioFigures(*(np.concatenate([getattr(f, n) for f in fresh]) for n in _FIELDS))
+        for pos in np.unique(u_all):
+            mine = u_all == pos
+            new = _RatioFigures(*(getattr(merged, n)[mine] for n in _FIELDS))
+            known = self.ratios.get(int(pos))
+            if known is not None:
+                new = _RatioFigures(
+                    *(np.concatenate([getattr(known, n), getattr(new, n)]) for n in _FIELDS)
+                )
+            order = np.argsort(new.k, kind="stable")
+            self.ratios[int(pos)] = _RatioFigures(*(getattr(new, n)[order] for n in _FIELDS))
+        return True
 
     def _candidates(
-        self, o: OpAmpTerms, above: float, x: float
+        self, o: OpAmpTerms, x: float
     ) -> list[tuple[NDArray[np.int64], NDArray[np.int64]]]:
-        """(i1, i2) with above < part bound <= x for op amp ``o``, in chunks."""
+        """(i1, i2) with built_to < part bound <= x for op amp ``o``, in chunks."""
+        above = self.built_to
         c = self.model.opamp_term(o) + self.floor
         # R1 whose term leaves room for the cheapest R2 (the credit can only help).
         r1 = self.r1_by_term[
@@ -214,36 +264,21 @@ class PairSource:
             start = stop
         return out
 
-    def _ratio_figures(self, pos: int, o: OpAmpTerms, uk: NDArray[np.float64]) -> _RatioFigures:
-        """The window, amplitude and share floors of each k in ``uk`` (sorted, distinct) for
-        op amp ``o``, from the kept ones or computed."""
-        known = self.ratios.get(pos)
-        if known is not None:
-            at = np.minimum(np.searchsorted(known.k, uk), len(known.k) - 1)
-            new = uk[known.k[at] != uk]
-        else:
-            new = uk
-        if len(new):
-            fresh = self._compute_ratios(o, new)
-            if known is not None:
-                merged = [np.concatenate([getattr(known, n), getattr(fresh, n)]) for n in _FIELDS]
-                order = np.argsort(merged[0], kind="stable")
-                known = _RatioFigures(*(m[order] for m in merged))
-            else:
-                known = fresh
-            self.ratios[pos] = known
-        assert known is not None
+    def _ratio_figures(self, pos: int, uk: NDArray[np.float64]) -> _RatioFigures:
+        """The kept figures of each k in ``uk`` (sorted, distinct) for op amp ``pos``."""
+        known = self.ratios[pos]
         at = np.searchsorted(known.k, uk)
         return _RatioFigures(*(getattr(known, n)[at] for n in _FIELDS))
 
-    def _compute_ratios(self, o: OpAmpTerms, uk: NDArray[np.float64]) -> _RatioFigures:
+    def _compute_ratios(self, pos: NDArray[np.int64], uk: NDArray[np.float64]) -> _RatioFigures:
+        """The window, amplitude and share floors of ratio ``uk[n]`` on op amp ``pos[n]``."""
         model, products = self.model, self.products
         spec = model.spec
         (fa, fb), (aa, ab) = model.band_f, model.band_a
         t_target = 1.0 / spec.target.target_hz
         t_min = t_target * np.exp(-np.array(fb)) * (1 - PERIOD_EDGE)
         t_max = t_target * np.exp(-np.array(fa)) * (1 + PERIOD_EDGE)
-        loop = model.loops(np.full(len(uk), o.index, dtype=np.int64))
+        loop = model.loops(self.indices[pos])
         w = window(loop, uk, np.full(len(uk), t_min), np.full(len(uk), t_max))
         # P outside what the product table can make is no use either, nor P below the
         # timing-share limit's floor.
@@ -270,7 +305,7 @@ class PairSource:
         k = res.value[i1] / res.value[i2]
         # Pairs of equal ratio share everything below: work on the distinct k.
         uk, inv = np.unique(k, return_inverse=True)
-        fig = self._ratio_figures(pos, o, uk)
+        fig = self._ratio_figures(pos, uk)
         keep = fig.ok[inv]
         i1, i2, k, inv = i1[keep], i2[keep], k[keep], inv[keep]
         p_lo, p_hi, share, e_a_lo, e_a_hi = (
