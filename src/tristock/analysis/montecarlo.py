@@ -10,7 +10,7 @@ from typing import Any, Literal
 
 import numpy as np
 import numpy.typing as npt
-from scipy import special, stats
+from scipy import special
 
 from tristock.analysis.spread import (
     METRICS,
@@ -73,7 +73,7 @@ def wilson_interval(
         raise ValueError(f"passed: must be between 0 and samples ({samples}), got {passed}")
     if not 0 < confidence < 1:
         raise ValueError(f"confidence: must be between 0 and 1, got {confidence}")
-    z = float(stats.norm.ppf(0.5 + confidence / 2))
+    z = float(special.ndtri(0.5 + confidence / 2))  # the normal quantile
     p = passed / samples
     denom = 1 + z * z / samples
     centre = (p + z * z / (2 * samples)) / denom
@@ -134,13 +134,16 @@ def monte_carlo(
         & (amp <= at * (1 + ta))
     )
     passed = int(np.count_nonzero(ok))
+    # One percentile call for every metric (the same linear interpolation as one call each).
+    p1, p50, p99 = np.percentile(vals, [1, 50, 99], axis=0)
+    low, high = np.min(vals, axis=0), np.max(vals, axis=0)
     spread = {
         metric: {
-            "min": float(np.min(vals[:, m])),
-            "p1": float(np.percentile(vals[:, m], 1)),
-            "p50": float(np.percentile(vals[:, m], 50)),
-            "p99": float(np.percentile(vals[:, m], 99)),
-            "max": float(np.max(vals[:, m])),
+            "min": float(low[m]),
+            "p1": float(p1[m]),
+            "p50": float(p50[m]),
+            "p99": float(p99[m]),
+            "max": float(high[m]),
         }
         for m, metric in enumerate(METRICS)
     }

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 from tristock.designs.fixed import DEFAULT_ENGINE, DEFAULT_TIME_LIMIT_S, Engine, design_fixed
 from tristock.designs.results import Candidate, DesignResult, SavedDesign
-from tristock.designs.trimmed import design_trimmed
 from tristock.spec.limits import default_time_limit_s
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -32,6 +31,9 @@ def design(
     if time_limit_s is None:
         time_limit_s = default_time_limit_s(spec.tuning is not None)
     if spec.trimmed:
+        # Loaded on use, like the tuned search below (it brings scipy.optimize).
+        from tristock.designs.trimmed import design_trimmed
+
         result = design_trimmed(
             spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed
         )

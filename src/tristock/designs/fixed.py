@@ -18,7 +18,6 @@ from tristock.analysis.worstcase import worst_case
 from tristock.circuits.board import Design
 from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
 from tristock.designs.results import DesignResult, Infeasible, SearchInfo
-from tristock.search.cpsat import cpsat_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
@@ -48,6 +47,9 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
 
 def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
     if engine == "cpsat":
+        # Loaded on use: OR-Tools (and the pandas it pulls in) is most of a process's start-up.
+        from tristock.search.cpsat import cpsat_top
+
         return cpsat_top(model, top, time_limit_s)
     return enumerate_top(model, top, time_limit_s)
 

@@ -11,7 +11,10 @@ ln(R3·C1) once (the product table) and walks:
    a worst-case guarantee ``search.guarantee.pair_limits`` narrows the window and drops more
    pairs first). Each pair gets a lower bound on the score of any row through it: its exact
    terms (U1, R1, R2), the lower bounds of the amplitude and timing-share terms, and the
-   smallest R3 + C1 term in the product table (an R3 that repeats R1 or R2 credited);
+   smallest R3 + C1 term in the product table (an R3 that repeats R1 or R2 credited).
+   The pairs are built on demand (``search.pairs``): only those whose part terms alone
+   leave them a chance under the level the walk needs, in chunks, the deadline checked
+   between chunks, so a big catalog never holds its R² pairs;
 2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|,
    which narrows the period band and so the P window, one contiguous range of the product
    table (binary search again);
@@ -32,14 +35,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
-from tristock.search.guarantee import pair_limits
+from tristock.search.bounds import window
 from tristock.search.model import SearchModel
+from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource, Products, index_ranges
 from tristock.search.rows import Rows, best, empty_rows, evaluate
-
-#: The period band is widened by this relative amount before windows are taken, so a row on
-#: the band's edge whose computed period rounds differently from the bounds' stays inside.
-_EDGE = 1e-12
 
 
 @dataclass
@@ -52,42 +51,8 @@ class EngineResult:
     elapsed_s: float
 
 
-@dataclass
-class _Products:
-    """Every (R3, C1) sorted by ln(R3·C1), with its score term."""
-
-    ln: NDArray[np.float64]
-    i3: NDArray[np.int64]
-    j: NDArray[np.int64]
-    term: NDArray[np.int64]
-
-
-@dataclass
-class _Pairs:
-    u: NDArray[np.int64]
-    i1: NDArray[np.int64]
-    i2: NDArray[np.int64]
-    k: NDArray[np.float64]
-    p_min: NDArray[np.float64]  # the nominal P a row needs: band, product table, guarantee
-    p_max: NDArray[np.float64]
-    base: NDArray[np.int64]  # score terms of U1, R1, R2 and floors of the amplitude and share
-    bound: NDArray[np.int64]  # base + the best (R3, C1) term
-
-    def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> _Pairs:
-        return _Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
-
-
-def _ranges(
-    lo: NDArray[np.int64], hi: NDArray[np.int64]
-) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Flatten index ranges [lo[n], hi[n]): (n for each element, the element's index)."""
-    counts = np.maximum(hi - lo, 0)
-    which = np.repeat(np.arange(len(counts), dtype=np.int64), counts)
-    offsets = np.repeat(np.cumsum(counts) - counts, counts)
-    return which, (np.repeat(lo, counts) + np.arange(len(which)) - offsets).astype(np.int64)
-
-
-def _products(model: SearchModel) -> _Products:
+def product_table(model: SearchModel) -> Products:
+    """Every eligible (R3, C1) with its score term, sorted by ln(R3·C1)."""
     res, cap = model.resistors, model.capacitors
     i3 = np.repeat(np.arange(len(res), dtype=np.int64), len(cap))
     j = np.tile(np.arange(len(cap), dtype=np.int64), len(res))
@@ -96,7 +61,7 @@ def _products(model: SearchModel) -> _Products:
     ln = res.ln_value[i3] + cap.ln_value[j]
     term = model.resistor_term(i3) + model.capacitor_term(j)
     order = np.argsort(ln, kind="stable")
-    return _Products(ln[order], i3[order], j[order], term[order])
+    return Products(ln[order], i3[order], j[order], term[order])
 
 
 def _period_band(
@@ -104,87 +69,13 @@ def _period_band(
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Periods (s) of the frequency errors e_lo..e_hi: T = T_target·e^(-e), a little wider."""
     t_target = 1.0 / model.spec.target.target_hz
-    return t_target * np.exp(-e_hi) * (1 - _EDGE), t_target * np.exp(-e_lo) * (1 + _EDGE)
-
-
-def _pairs(model: SearchModel, products: _Products) -> _Pairs:
-    """(R1, R2) pairs that can meet the amplitude band and the timing limit, per op amp, with
-    a lower bound on the score of any row through each."""
-    res = model.resistors
-    ln_r = res.ln_value
-    spec = model.spec
-    a_t = spec.triangle.amplitude_vpp
-    (fa, fb), (aa, ab) = model.band_f, model.band_a
-    r_term = model.resistor_term(np.arange(len(ln_r)))
-    credit = model.shared_line_credit()
-    floor = int(products.term.min()) - credit if len(products.term) else 0
-    parts: list[_Pairs] = []
-    use_u1 = model.allows("U1", len(model.opamps))
-    use_r1 = model.allows("R1", len(ln_r))
-    use_r2 = model.allows("R2", len(ln_r))
-    if len(products.ln) == 0:
-        return _no_pairs()
-    t_min, t_max = _period_band(model, np.array(fa), np.array(fb))
-    for o in model.opamps:
-        if not use_u1[o.index]:
-            continue
-        k_lo, k_hi = o.k_range
-        lo = np.searchsorted(ln_r, ln_r - math.log(k_hi) - 1e-12, side="left")
-        hi = np.searchsorted(ln_r, ln_r - math.log(k_lo) + 1e-12, side="right")
-        i1, i2 = _ranges(lo, hi)
-        keep = use_r1[i1] & use_r2[i2]
-        i1, i2 = i1[keep], i2[keep]
-        k = res.value[i1] / res.value[i2]
-        # Pairs of equal ratio share everything below: work on the distinct k.
-        uk, inv = np.unique(k, return_inverse=True)
-        loop = model.loops(np.full(len(uk), o.index, dtype=np.int64))
-        w = window(loop, uk, np.full(len(uk), t_min), np.full(len(uk), t_max))
-        # P outside what the product table can make is no use either, nor P below the
-        # timing-share limit's floor.
-        p_lo = np.maximum(w.lo, uk * math.exp(products.ln[0]))
-        p_lo = np.maximum(p_lo, share_p_floor(loop, uk, spec.limits.max_timing_share))
-        p_hi = np.minimum(w.hi, uk * math.exp(products.ln[-1]))
-        amp = amplitude_bounds(loop, uk, p_lo, p_hi)
-        share = timing_share_floor(loop, uk, p_lo, p_hi)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
-        ok = (p_lo <= p_hi) & (e_a_hi >= aa) & (e_a_lo <= ab)
-        ok &= share <= spec.limits.max_timing_share
-        keep = ok[inv]
-        i1, i2, k, inv = i1[keep], i2[keep], k[keep], inv[keep]
-        p_lo, p_hi, share, e_a_lo, e_a_hi = (x[inv] for x in (p_lo, p_hi, share, e_a_lo, e_a_hi))
-        u = np.full(len(i1), o.index, dtype=np.int64)
-        keep = np.ones(len(i1), dtype=bool)
-        if spec.limits.guarantee == "worst_case":
-            limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
-            keep &= limits.keep
-            p_lo, p_hi = limits.p_min, limits.p_max
-        e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
-        base = (
-            model.opamp_term(o)
-            + r_term[i1]
-            + r_term[i2]
-            - credit * (i1 == i2)
-            + model.amplitude_term(e_a_gap)
-            + model.share_term(np.maximum(share, 0.0))
-        )
-        pairs = _Pairs(u, i1, i2, k, p_lo, p_hi, base, base + floor)
-        parts.append(pairs.take(keep))
-    if not parts:
-        return _no_pairs()
-    return _Pairs(
-        **{n: np.concatenate([getattr(p, n) for p in parts]) for n in _Pairs.__dataclass_fields__}
+    return t_target * np.exp(-e_hi) * (1 - PERIOD_EDGE), t_target * np.exp(-e_lo) * (
+        1 + PERIOD_EDGE
     )
 
 
-def _no_pairs() -> _Pairs:
-    z = np.zeros(0, dtype=np.int64)
-    f = np.zeros(0)
-    return _Pairs(z, z, z, f, f, f, z, z)
-
-
 def _open(
-    model: SearchModel, products: _Products, pairs: _Pairs, theta: int | None, coupled: bool
+    model: SearchModel, products: Products, pairs: Pairs, theta: int | None, coupled: bool
 ) -> tuple[Rows, int]:
     """Rows of the pairs' windows that can still score ``theta`` or better, and how many
     rows were scored."""
@@ -206,7 +97,7 @@ def _open(
         ln_hi = np.log(np.minimum(w.hi, pairs.p_max)) - ln_k
     lo = np.searchsorted(products.ln, ln_lo - 1e-12, side="left")
     hi = np.searchsorted(products.ln, ln_hi + 1e-12, side="right")
-    which, idx = _ranges(lo, hi)
+    which, idx = index_ranges(lo, hi)
     if theta is not None:
         keep = pairs.base[which] + products.term[idx] - credit <= theta
         which, idx = which[keep], idx[keep]
@@ -222,29 +113,52 @@ def _open(
     return rows, len(which)
 
 
+#: Each new level of part bounds lies this many times further above the lowest one.
+LEVEL_GROWTH = 1.5
+
+
+def _seed_pairs(source: PairSource, level: float, m: int) -> tuple[Pairs, float]:
+    """The pairs with bound <= a level holding more than ``m`` of them (or every pair), in
+    opening order, and that level."""
+    while True:
+        if source.everything or level >= source.highest:
+            return source.complete(math.inf), math.inf
+        pairs = source.complete(level)
+        if len(pairs) > m or source.cut:
+            return pairs, level
+        level = source.lowest + LEVEL_GROWTH * (level - source.lowest)
+
+
 def enumerate_top(
     model: SearchModel, top: int, time_limit_s: float, *, coupled: bool = True
 ) -> EngineResult:
     """The ``top`` best combinations, exact under the full model.
 
     ``coupled=False`` ignores stock shared between positions and the cost cap (the CP-SAT
-    engine lists its table this way and enforces those itself).
+    engine lists its table this way and enforces those itself). The pairs come from a
+    ``PairSource`` (``search.pairs``): only those that can still beat the current score bound
+    are built, so the pairs opened, and the rows scored, are those of the order (bound, U1,
+    R1, R2) over every pair. A deadline that stops the building leaves the answer unproven.
     """
     t0 = time.perf_counter()
-    products = _products(model)
-    pairs = _pairs(model, products)
-    order = np.argsort(pairs.bound, kind="stable")
-    pairs = pairs.take(order)
+    products = product_table(model)
+    source = PairSource(model, products, t0 + time_limit_s)
+    level = source.first_level()
+    found = empty_rows()
     evaluated = 0
     proven = True
     m = max(16, 2 * top)
     while True:
+        pairs, level = _seed_pairs(source, level, m)
+        if source.cut:
+            proven = False
+            break
         rows, scored = _open(
-            model, products, pairs.take(np.arange(min(m, len(pairs.u)))), None, coupled
+            model, products, pairs.take(np.arange(min(m, len(pairs)))), None, coupled
         )
         evaluated += scored
         found = best(model, rows, top)
-        if len(found) >= top or m >= len(pairs.u):
+        if len(found) >= top or (level == math.inf and m >= len(pairs)):
             break
         if time.perf_counter() - t0 > time_limit_s:
             proven = False
@@ -252,13 +166,15 @@ def enumerate_top(
         m = m * 8
     if len(found) >= top and proven:
         theta = int(found.primary[-1])
-        todo = pairs.take(pairs.bound <= theta)
+        todo = source.complete(theta)
+        todo = todo.take(todo.bound <= theta)
+        proven = not source.cut
         chunk = 4096
-        for start in range(0, len(todo.u), chunk):
+        for start in range(0, len(todo) if proven else 0, chunk):
             if time.perf_counter() - t0 > time_limit_s:
                 proven = False
                 break
-            sel = np.arange(start, min(start + chunk, len(todo.u)))
+            sel = np.arange(start, min(start + chunk, len(todo)))
             rows, scored = _open(model, products, todo.take(sel), theta, coupled)
             evaluated += scored
             found = best(model, Rows.concat([found, rows]), top)

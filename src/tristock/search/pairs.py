@@ -1,0 +1,335 @@
+"""The (R1, R2) pairs of the enumeration engine, built level by level against a score bound.
+
+A pair (U1, R1, R2) carries a lower bound on the score of every row through it (``bound``):
+its exact part terms, the floors of its amplitude and timing-share terms over its P window,
+and the smallest (R3, C1) term. The window and those floors cost a full-model bound each
+(``search.bounds``), and a big catalog has millions of pairs of which a few hundred can reach
+the top, so the pairs are not all built up front. Their *part bound*
+
+    part = term(U1) + term(R1) + term(R2) - credit·[R1 = R2] + floor,
+
+floor the smallest (R3, C1) term less the shared-line credit, needs no model and is never
+above ``bound`` (the amplitude and share terms are not negative). ``PairSource.complete(x)``
+builds, in chunks of R1 and per op amp, only the pairs whose part bound is at most ``x`` (R2
+drawn from the resistors whose own term leaves room, by binary search in value order), and
+returns every pair with ``bound`` <= x: a complete prefix of the pairs in the order (bound,
+U1, R1, R2), the order in which the engine opens them. The window of each distinct ratio
+k = R1/R2 is computed once per op amp and kept. Levels rise as the engine needs more pairs;
+a deadline checked between chunks stops the building (``PairSource.cut``).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
+from tristock.search.guarantee import pair_limits
+from tristock.search.model import OpAmpTerms, SearchModel
+
+#: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
+CHUNK_CANDIDATES = 1 << 20
+#: Ratios whose bounds are computed in one call, between deadline checks.
+RATIO_BATCH = 8192
+
+
+@dataclass
+class Products:
+    """Every (R3, C1) sorted by ln(R3·C1), with its score term."""
+
+    ln: NDArray[np.float64]
+    i3: NDArray[np.int64]
+    j: NDArray[np.int64]
+    term: NDArray[np.int64]
+
+
+@dataclass
+class Pairs:
+    u: NDArray[np.int64]
+    i1: NDArray[np.int64]
+    i2: NDArray[np.int64]
+    k: NDArray[np.float64]
+    p_min: NDArray[np.float64]  # the nominal P a row needs: band, product table, guarantee
+    p_max: NDArray[np.float64]
+    base: NDArray[np.int64]  # score terms of U1, R1, R2 and floors of the amplitude and share
+    bound: NDArray[np.int64]  # base + the best (R3, C1) term
+
+    def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> Pairs:
+        return Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
+
+    def __len__(self) -> int:
+        return len(self.u)
+
+    @staticmethod
+    def concat(parts: list[Pairs]) -> Pairs:
+        if not parts:
+            return no_pairs()
+        return Pairs(
+            **{
+                n: np.concatenate([getattr(p, n) for p in parts])
+                for n in Pairs.__dataclass_fields__
+            }
+        )
+
+
+def no_pairs() -> Pairs:
+    z = np.zeros(0, dtype=np.int64)
+    f = np.zeros(0)
+    return Pairs(z, z, z, f, f, f, z, z)
+
+
+def index_ranges(
+    lo: NDArray[np.int64], hi: NDArray[np.int64]
+) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """Flatten index ranges [lo[n], hi[n]): (n for each element, the element's index)."""
+    counts = np.maximum(hi - lo, 0)
+    which = np.repeat(np.arange(len(counts), dtype=np.int64), counts)
+    offsets = np.repeat(np.cumsum(counts) - counts, counts)
+    return which, (np.repeat(lo, counts) + np.arange(len(which)) - offsets).astype(np.int64)
+
+
+@dataclass
+class _RatioFigures:
+    """Per op amp, what each distinct k = R1/R2 allows (sorted by k)."""
+
+    k: NDArray[np.float64]
+    p_lo: NDArray[np.float64]
+    p_hi: NDArray[np.float64]
+    share: NDArray[np.float64]
+    e_a_lo: NDArray[np.float64]
+    e_a_hi: NDArray[np.float64]
+    ok: NDArray[np.bool_]
+
+
+class PairSource:
+    """The pairs of one search model, built on demand (module docstring)."""
+
+    def __init__(self, model: SearchModel, products: Products, deadline: float) -> None:
+        self.model = model
+        self.products = products
+        self.deadline = deadline
+        self.cut = False  # the deadline stopped the building: what is built is incomplete
+        res = model.resistors
+        self.r_term = model.resistor_term(np.arange(len(res)))
+        self.credit = model.shared_line_credit()
+        self.floor = int(products.term.min()) - self.credit if len(products.term) else 0
+        use_u1 = model.allows("U1", len(model.opamps))
+        self.use_r1 = model.allows("R1", len(res))
+        self.use_r2 = model.allows("R2", len(res))
+        usable = len(products.ln) > 0 and bool(np.any(self.use_r1)) and bool(np.any(self.use_r2))
+        self.opamps: list[tuple[int, OpAmpTerms]] = [
+            (pos, o) for pos, o in enumerate(model.opamps) if usable and use_u1[o.index]
+        ]
+        self.indices = np.array([o.index for o in model.opamps], dtype=np.int64)
+        self.position = np.zeros(max((o.index for o in model.opamps), default=-1) + 1, np.int64)
+        for pos, o in enumerate(model.opamps):
+            self.position[o.index] = pos
+        # R2 candidates in order of their term, to take those within a budget as a prefix.
+        r2 = np.flatnonzero(self.use_r2)
+        self.r2_by_term = r2[np.argsort(self.r_term[r2], kind="stable")]
+        self.r2_terms = self.r_term[self.r2_by_term]
+        r1 = np.flatnonzero(self.use_r1)
+        self.r1_by_term = r1[np.argsort(self.r_term[r1], kind="stable")]
+        self.r1_terms = self.r_term[self.r1_by_term]
+        self.lowest = np.inf
+        self.highest = -np.inf
+        if self.opamps:
+            op_terms = [model.opamp_term(o) for _, o in self.opamps]
+            least = int(self.r1_terms[0] + self.r2_terms[0]) - self.credit + self.floor
+            most = int(self.r1_terms[-1] + self.r2_terms[-1]) + self.floor
+            self.lowest, self.highest = min(op_terms) + least, max(op_terms) + most
+        self.built_to = -np.inf  # every pair with part bound <= built_to is in ``pairs``
+        self.pairs = no_pairs()
+        self.ratios: dict[int, _RatioFigures] = {}
+
+    @property
+    def everything(self) -> bool:
+        """Every pair is built."""
+        return self.built_to >= self.highest
+
+    def first_level(self) -> float:
+        """A first part-bound level: a 256th of the span of part bounds above the lowest."""
+        if not self.opamps:
+            return math.inf
+        return float(self.lowest + max((self.highest - self.lowest) / 256.0, 1.0))
+
+    def complete(self, x: float) -> Pairs:
+        """Every pair with ``bound`` <= x, in the order (bound, U1, R1, R2) (module
+        docstring); ``cut`` is set if the deadline stopped the building first."""
+        if x > self.built_to and not self.everything:
+            self._build(x)
+        mine = self.pairs.take(self.pairs.bound <= x)
+        order = np.lexsort((mine.i2, mine.i1, self.position[mine.u], mine.bound))
+        return mine.take(order)
+
+    def _build(self, x: float) -> None:
+        todo = [(pos, o, chunk) for pos, o in self.opamps for chunk in self._candidates(o, x)]
+        if not self._learn_ratios(todo):
+            return
+        parts = [self.pairs]
+        for pos, o, (i1, i2) in todo:
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                break
+            parts.append(self._figures(pos, o, i1, i2))
+        self.pairs = Pairs.concat(parts)
+        if not self.cut:
+            self.built_to = x
+
+    def _learn_ratios(
+        self, todo: list[tuple[int, OpAmpTerms, tuple[NDArray[np.int64], NDArray[np.int64]]]]
+    ) -> bool:
+        """Compute the figures of every ratio the new pairs have and no kept one does, all
+        op amps together (the bounds are vectorised over op amps too), in batches between
+        deadline checks; False if the deadline came first."""
+        value = self.model.resistors.value
+        wanted: dict[int, list[NDArray[np.float64]]] = {}
+        for pos, _, (i1, i2) in todo:
+            wanted.setdefault(pos, []).append(value[i1] / value[i2])
+        us, ks = [], []
+        for pos, parts in wanted.items():
+            uk = np.unique(np.concatenate(parts))
+            known = self.ratios.get(pos)
+            if known is not None and len(known.k):
+                at = np.minimum(np.searchsorted(known.k, uk), len(known.k) - 1)
+                uk = uk[known.k[at] != uk]
+            us.append(np.full(len(uk), pos, dtype=np.int64))
+            ks.append(uk)
+        if not us:
+            return True
+        u_all, k_all = np.concatenate(us), np.concatenate(ks)
+        fresh: list[_RatioFigures] = []
+        for start in range(0, len(k_all), RATIO_BATCH):
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                return False
+            part = slice(start, start + RATIO_BATCH)
+            fresh.append(self._compute_ratios(u_all[part], k_all[part]))
+        if not fresh:
+            return True
+        merged = _RatioFigures(*(np.concatenate([getattr(f, n) for f in fresh]) for n in _FIELDS))
+        for pos in np.unique(u_all):
+            mine = u_all == pos
+            new = _RatioFigures(*(getattr(merged, n)[mine] for n in _FIELDS))
+            known = self.ratios.get(int(pos))
+            if known is not None:
+                new = _RatioFigures(
+                    *(np.concatenate([getattr(known, n), getattr(new, n)]) for n in _FIELDS)
+                )
+            order = np.argsort(new.k, kind="stable")
+            self.ratios[int(pos)] = _RatioFigures(*(getattr(new, n)[order] for n in _FIELDS))
+        return True
+
+    def _candidates(
+        self, o: OpAmpTerms, x: float
+    ) -> list[tuple[NDArray[np.int64], NDArray[np.int64]]]:
+        """(i1, i2) with built_to < part bound <= x for op amp ``o``, in chunks."""
+        above = self.built_to
+        c = self.model.opamp_term(o) + self.floor
+        # R1 whose term leaves room for the cheapest R2 (the credit can only help).
+        r1 = self.r1_by_term[
+            : np.searchsorted(self.r1_terms, x - c - self.r2_terms[0] + self.credit, "right")
+        ]
+        if len(r1) == 0:
+            return []
+        r1 = np.sort(r1)
+        r2 = np.sort(
+            self.r2_by_term[
+                : np.searchsorted(
+                    self.r2_terms, x - c - self.r_term[r1].min() + self.credit, "right"
+                )
+            ]
+        )
+        ln_r = self.model.resistors.ln_value
+        k_lo, k_hi = o.k_range
+        lo = np.searchsorted(ln_r, ln_r[r1] - math.log(k_hi) - 1e-12, side="left")
+        hi = np.searchsorted(ln_r, ln_r[r1] - math.log(k_lo) + 1e-12, side="right")
+        lo, hi = np.searchsorted(r2, lo, "left"), np.searchsorted(r2, hi, "left")
+        counts = np.maximum(hi - lo, 0)
+        out = []
+        start = 0
+        total = np.cumsum(counts)
+        while start < len(r1):
+            base = total[start - 1] if start else 0
+            stop = max(int(np.searchsorted(total, base + CHUNK_CANDIDATES, "right")), start + 1)
+            which, at = index_ranges(lo[start:stop], hi[start:stop])
+            i1, i2 = r1[start:stop][which], r2[at]
+            part = c + self.r_term[i1] + self.r_term[i2] - self.credit * (i1 == i2)
+            keep = (part > above) & (part <= x)
+            out.append((i1[keep], i2[keep]))
+            start = stop
+        return out
+
+    def _ratio_figures(self, pos: int, uk: NDArray[np.float64]) -> _RatioFigures:
+        """The kept figures of each k in ``uk`` (sorted, distinct) for op amp ``pos``."""
+        known = self.ratios[pos]
+        at = np.searchsorted(known.k, uk)
+        return _RatioFigures(*(getattr(known, n)[at] for n in _FIELDS))
+
+    def _compute_ratios(self, pos: NDArray[np.int64], uk: NDArray[np.float64]) -> _RatioFigures:
+        """The window, amplitude and share floors of ratio ``uk[n]`` on op amp ``pos[n]``."""
+        model, products = self.model, self.products
+        spec = model.spec
+        (fa, fb), (aa, ab) = model.band_f, model.band_a
+        t_target = 1.0 / spec.target.target_hz
+        t_min = t_target * np.exp(-np.array(fb)) * (1 - PERIOD_EDGE)
+        t_max = t_target * np.exp(-np.array(fa)) * (1 + PERIOD_EDGE)
+        loop = model.loops(self.indices[pos])
+        w = window(loop, uk, np.full(len(uk), t_min), np.full(len(uk), t_max))
+        # P outside what the product table can make is no use either, nor P below the
+        # timing-share limit's floor.
+        p_lo = np.maximum(w.lo, uk * math.exp(products.ln[0]))
+        p_lo = np.maximum(p_lo, share_p_floor(loop, uk, spec.limits.max_timing_share))
+        p_hi = np.minimum(w.hi, uk * math.exp(products.ln[-1]))
+        amp = amplitude_bounds(loop, uk, p_lo, p_hi)
+        share = timing_share_floor(loop, uk, p_lo, p_hi)
+        a_t = spec.triangle.amplitude_vpp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
+        ok = (p_lo <= p_hi) & (e_a_hi >= aa) & (e_a_lo <= ab)
+        ok &= share <= spec.limits.max_timing_share
+        return _RatioFigures(uk, p_lo, p_hi, share, e_a_lo, e_a_hi, ok)
+
+    def _figures(
+        self, pos: int, o: OpAmpTerms, i1: NDArray[np.int64], i2: NDArray[np.int64]
+    ) -> Pairs:
+        """The pairs (i1, i2) of op amp ``o`` that can meet the spec, with their bounds."""
+        model = self.model
+        if len(i1) == 0:
+            return no_pairs()
+        res = model.resistors
+        k = res.value[i1] / res.value[i2]
+        # Pairs of equal ratio share everything below: work on the distinct k.
+        uk, inv = np.unique(k, return_inverse=True)
+        fig = self._ratio_figures(pos, uk)
+        keep = fig.ok[inv]
+        i1, i2, k, inv = i1[keep], i2[keep], k[keep], inv[keep]
+        p_lo, p_hi, share, e_a_lo, e_a_hi = (
+            x[inv] for x in (fig.p_lo, fig.p_hi, fig.share, fig.e_a_lo, fig.e_a_hi)
+        )
+        u = np.full(len(i1), o.index, dtype=np.int64)
+        keep = np.ones(len(i1), dtype=bool)
+        if model.spec.limits.guarantee == "worst_case":
+            limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
+            keep &= limits.keep
+            p_lo, p_hi = limits.p_min, limits.p_max
+        e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
+        base = (
+            model.opamp_term(o)
+            + self.r_term[i1]
+            + self.r_term[i2]
+            - self.credit * (i1 == i2)
+            + model.amplitude_term(e_a_gap)
+            + model.share_term(np.maximum(share, 0.0))
+        )
+        return Pairs(u, i1, i2, k, p_lo, p_hi, base, base + self.floor).take(keep)
+
+
+_FIELDS = tuple(_RatioFigures.__dataclass_fields__)
+#: The period band is widened by this relative amount before windows are taken, so a row on
+#: the band's edge whose computed period rounds differently from the bounds' stays inside.
+PERIOD_EDGE = 1e-12

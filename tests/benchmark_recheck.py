@@ -1,0 +1,91 @@
+"""The re-check against the search, Monte Carlo, and the command's start (a script, not a
+test): issue 15's targets 1 and 5, measured in one run.
+
+    python tests/benchmark_recheck.py [--runs 7]
+
+1. On the bundled demo (default engine, top 10): ``build_model`` + ``enumerate_top`` and the
+   whole ``design()`` (search, full-model re-check and analysis of the answers), interleaved
+   run by run; medians and their ratio.
+2. ``monte_carlo`` of the demo's rank 1 with 100,000 samples (seed 0), median.
+3. Whole processes: ``tristock --help`` and ``tristock design --example`` (wall and CPU time
+   from ``os.wait4``'s resource usage), median.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import subprocess
+import sys
+import time
+
+from tristock.analysis.montecarlo import monte_carlo
+from tristock.circuits.board import resolve
+from tristock.designs import design
+from tristock.examples import demo_catalog_dir, example_spec_path
+from tristock.search.enumeration import enumerate_top
+from tristock.search.model import build_model
+from tristock.spec.loading import load_spec
+from tristock.stock.catalog import load_catalog
+
+_LAUNCHER = (
+    "import os, subprocess, sys, time\n"
+    "t0 = time.perf_counter()\n"
+    "p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)\n"
+    "_, status, usage = os.wait4(p.pid, 0)\n"
+    "print(time.perf_counter() - t0, usage.ru_utime + usage.ru_stime)\n"
+)
+
+
+def process(argv: list[str], runs: int) -> tuple[float, float]:
+    """Median wall and CPU seconds of a whole process."""
+    walls, cpus = [], []
+    for _ in range(runs):
+        out = subprocess.run(
+            [sys.executable, "-c", _LAUNCHER, *argv], capture_output=True, text=True, check=True
+        ).stdout.split()
+        walls.append(float(out[0]))
+        cpus.append(float(out[1]))
+    return statistics.median(walls), statistics.median(cpus)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--runs", type=int, default=7)
+    args = ap.parse_args()
+    spec = load_spec(example_spec_path())
+    catalog = load_catalog(demo_catalog_dir())
+    result = design(spec, catalog)  # warm-up: the comparator-edge table, caches
+    searches, designs = [], []
+    for _ in range(args.runs):
+        t0 = time.perf_counter()
+        enumerate_top(build_model(spec, catalog), spec.ranking.top, 60.0)
+        t1 = time.perf_counter()
+        design(spec, catalog)
+        searches.append(t1 - t0)
+        designs.append(time.perf_counter() - t1)
+    s, d = statistics.median(searches), statistics.median(designs)
+    print(f"demo, {args.runs} runs interleaved (median)")
+    print(f"  build_model + enumerate_top  {s * 1e3:8.1f} ms")
+    print(f"  design()                     {d * 1e3:8.1f} ms   ({d / s:.2f}x the search)")
+    rank1 = resolve(result.candidates[0].design_file.parts, catalog)
+    monte_carlo(rank1, spec, samples=100_000)
+    mc = []
+    for _ in range(args.runs):
+        t0 = time.perf_counter()
+        monte_carlo(rank1, spec, samples=100_000)
+        mc.append(time.perf_counter() - t0)
+    print(f"  monte_carlo, 100,000 samples {statistics.median(mc) * 1e3:8.1f} ms")
+    tristock = [sys.executable, "-m", "tristock"]
+    for label, argv in (
+        ("tristock --help", [*tristock, "--help"]),
+        ("tristock design --example", [*tristock, "design", "--example"]),
+    ):
+        wall, cpu = process(argv, args.runs)
+        print(f"  {label:<28} wall {wall:6.2f} s   CPU {cpu:6.2f} s")
+    print(f"load average at the end: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
+
+
+if __name__ == "__main__":
+    main()
