@@ -4,8 +4,9 @@ leaves the model's ground.
 ``check`` returns a list of ``Warning`` (empty when all is well; see ``circuits.checks``).
 Codes: slew_integrator, swing_integrator, supply_range, load_comparator, load_integrator,
 input_common_mode, cap_voltage, resistor_power, cap_class_ii, cap_polarised, cap_small,
-transition_time, gbw_delay. The margins (2x slew, 50 % of a current or power rating, 2x capacitor voltage, 10 %
-swing headroom, 2 %/20 % of the period) are common practice, not taken from a standard.
+transition_time, gbw_delay. The margins (2x slew, 50 % of a current or power rating, 2x
+capacitor voltage, 10 % swing headroom, 2 %/20 % of the period) are common practice, not taken
+from a standard.
 """
 
 from __future__ import annotations
