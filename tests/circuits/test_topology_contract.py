@@ -24,9 +24,16 @@ from tristock.circuits.topology import TABLES, Topology
 from tristock.examples import demo_catalog_dir
 from tristock.simulate import simulate
 from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.comparators import Comparator
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
-KIND_OF_TABLE = {"opamps": OpAmp, "resistors": Resistor, "capacitors": Capacitor, "pots": Pot}
+KIND_OF_TABLE = {
+    "opamps": OpAmp,
+    "resistors": Resistor,
+    "capacitors": Capacitor,
+    "pots": Pot,
+    "comparators": Comparator,
+}
 NAMES = sorted(TOPOLOGIES)
 
 
