@@ -193,3 +193,28 @@ def test_oscillation_failure_at_the_threshold_limit() -> None:
     assert reason is not None and "lower threshold" in reason and "0.8182" in reason
     reason = oscillation_failure(osc(r1=270e3))  # R1/R2 = 10, symmetric ±11 V
     assert reason is not None and "upper threshold" in reason and "R1/R2 is 10" in reason
+
+
+def test_input_common_mode_of_both_channels() -> None:
+    # Superposition at the trigger's + input: (R2·vt + R1·vs)/(R1 + R2), widest just after a
+    # switch with the triangle at its peak (Ohm's law); the integrator's inputs at the reference.
+    o = osc(rails=Rails(12.0, 0.0))
+    p = o.prediction()
+    vh, vl, ref = float(p.square_high_v), -float(p.square_low_v), 6.0
+    bottom = ref + (27e3 * float(p.peak_low_v) - 10e3 * vl) / 37e3
+    top = ref + (27e3 * float(p.peak_high_v) + 10e3 * vh) / 37e3
+    rail_to_rail = OpAmp("OA-R", 2, 2.7, 36, 1.0, 1.0, 10.0, 10e6, 0.2e-6, 0.0, 0.0, 20e-3, 0.3, 10)
+    assert "input_common_mode" not in codes(check(o, opamp_part=rail_to_rail))
+    low_limit = bottom + 0.1  # the range ends 0.1 V above the lowest input
+    part = dataclasses.replace(rail_to_rail, input_cm_neg_v=low_limit, input_cm_pos_headroom_v=0.5)
+    (w,) = [w for w in check(o, opamp_part=part) if w.code == "input_common_mode"]
+    assert w.severity == "error" and "reverse phase" in w.message
+    assert format_value(bottom, "V", digits=3) in w.message
+    high_limit = 12.0 - top + 0.2  # the range ends 0.2 V below the highest input
+    part = dataclasses.replace(rail_to_rail, input_cm_pos_headroom_v=high_limit)
+    (w,) = [w for w in check(o, opamp_part=part) if w.code == "input_common_mode"]
+    assert "above" in w.message and "trigger" in w.message
+    # the integrator's inputs sit at the 6 V reference: a range ending at 5 V misses them
+    part = dataclasses.replace(rail_to_rail, input_cm_pos_headroom_v=7.0)
+    found = [w.message for w in check(o, opamp_part=part) if w.code == "input_common_mode"]
+    assert any("integrator" in m for m in found)

@@ -34,9 +34,16 @@ from tristock.simulate import simulate
 from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.comparators import Comparator
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
-KIND_OF_TABLE = {"opamps": OpAmp, "resistors": Resistor, "capacitors": Capacitor, "pots": Pot}
+KIND_OF_TABLE = {
+    "opamps": OpAmp,
+    "resistors": Resistor,
+    "capacitors": Capacitor,
+    "pots": Pot,
+    "comparators": Comparator,
+}
 NAMES = sorted(TOPOLOGIES)
 
 

@@ -5,17 +5,18 @@ comparator's switching edge), ``integrator`` (the single-pole integrator), ``loo
 loop's period, duty and overshoot from its drives), ``timing`` (pot wirings), ``checks`` (the
 finding type and checks every topology shares), ``board`` (a board: its topology and one part
 per designator). The interface: ``topology``. Each topology is one package beside them
-(``opamp_schmitt``), registered here in ``TOPOLOGIES``: the contract tests run over this
-mapping.
+(``opamp_schmitt``, ``comparator_schmitt``), registered here in ``TOPOLOGIES``: the contract
+tests run over this mapping.
 """
 
 from __future__ import annotations
 
+from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.topology import Topology
 
 #: Every topology by name.
-TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT,)}
+TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT, COMPARATOR_SCHMITT)}
 #: The topology of a board or spec that names none: today's circuit.
 DEFAULT_TOPOLOGY: Topology = OPAMP_SCHMITT
 

@@ -11,6 +11,7 @@ from collections import Counter
 from dataclasses import dataclass
 from typing import Any, Literal
 
+from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import Rails
@@ -18,6 +19,7 @@ from tristock.circuits.rails import rails_from_supply as rails_from_supply  # re
 from tristock.circuits.topology import Topology
 from tristock.spec.loading import SpecError
 from tristock.stock.catalog import Catalog
+from tristock.stock.comparators import Comparator
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 
 DESIGNATORS = ("U1", "R1", "R2", "R3", "C1")
@@ -45,6 +47,9 @@ class Design:
     range_caps: tuple[Capacitor, ...] = ()
     selected: int = 0
     topology: Topology = OPAMP_SCHMITT
+    # comparator-IC boards (``comparator_schmitt``): U2, and R5 for an open-drain U2
+    u2: Comparator | None = None
+    r5: Resistor | None = None
 
     def __post_init__(self) -> None:
         if not 0.0 <= self.wiper <= 1.0:
@@ -65,7 +70,12 @@ class Design:
 
     def parts(self) -> dict[str, Part]:
         """Designator -> part, in BOM order."""
-        out: dict[str, Part] = {"U1": self.u1, "R1": self.r1, "R2": self.r2, "R3": self.r3}
+        out: dict[str, Part] = {"U1": self.u1}
+        if self.u2 is not None:
+            out["U2"] = self.u2
+        out.update({"R1": self.r1, "R2": self.r2, "R3": self.r3})
+        if self.r5 is not None:
+            out["R5"] = self.r5
         if self.r4 is not None:
             out["R4"] = self.r4
         if self.rv1 is not None:
@@ -74,18 +84,25 @@ class Design:
             out[f"C{n}"] = cap
         return out
 
+    @property
+    def u1_packages(self) -> int:
+        """U1's packages per board: one channel with a comparator IC (U2), else two."""
+        return 1 if self.u2 is not None else self.u1.packages_per_board
+
     def uses(self) -> Counter[str]:
-        """Pieces of each stock code one board takes (a single op amp counts twice)."""
+        """Pieces of each stock code one board takes (a single op amp counts twice, unless
+        U2 does the comparing)."""
         n: Counter[str] = Counter()
         for name, part in self.parts().items():
-            n[part.id] += self.u1.packages_per_board if name == "U1" else 1
+            n[part.id] += self.u1_packages if name == "U1" else 1
         return n
 
     @property
     def cost_per_board(self) -> float:
         """Σ unit_cost x pieces per board, the catalog's currency."""
         return sum(
-            p.cost_per_board if isinstance(p, OpAmp) else p.unit_cost for p in self.parts().values()
+            p.unit_cost * self.u1_packages if isinstance(p, OpAmp) else p.unit_cost
+            for p in self.parts().values()
         )
 
     @property
@@ -100,9 +117,11 @@ class Design:
 
 
 _RANGE_CAPS = tuple(f"C{n}" for n in range(2, 9))
-OPTIONAL = ("R4", "RV1", *_RANGE_CAPS)
+OPTIONAL = ("R4", "RV1", *_RANGE_CAPS, "U2", "R5")
 _KINDS: dict[str, type] = {
     "U1": OpAmp,
+    "U2": Comparator,
+    "R5": Resistor,
     "R1": Resistor,
     "R2": Resistor,
     "R3": Resistor,
@@ -164,6 +183,8 @@ def resolve(
     if errors:
         raise SpecError(errors)
     range_caps = tuple(found.pop(c.lower()) for c in _RANGE_CAPS if c.lower() in found)
+    if "u2" in found:
+        found["topology"] = COMPARATOR_SCHMITT
     try:
         return Design(
             **found,

@@ -127,3 +127,53 @@ def capacitor_checks(name: str, capacitor: Capacitor, v_cap: float, why: str) ->
             )
         )
     return out
+
+
+def common_mode_range(
+    v_pos: float, v_neg: float, cm_neg_v: float | None, cm_pos_headroom_v: float | None
+) -> tuple[float, float]:
+    """An input's common-mode range (V to ground) on rails V+/V-: from V- + ``cm_neg_v`` to
+    V+ - ``cm_pos_headroom_v``; a None end (a blank catalog cell) reaches its rail."""
+    low = v_neg + (cm_neg_v if cm_neg_v is not None else 0.0)
+    high = v_pos - (cm_pos_headroom_v if cm_pos_headroom_v is not None else 0.0)
+    return low, high
+
+
+def common_mode_checks(
+    who: str,
+    lowest_v: float,
+    highest_v: float,
+    rails: tuple[float, float],
+    cm_range: tuple[float, float],
+) -> list[Warning]:
+    """An input that swings from ``lowest_v`` to ``highest_v`` (V to ground) against its
+    common-mode range ``cm_range`` (``common_mode_range``) on ``rails`` (V+, V-): an error
+    when it leaves the range. Below the range on a single supply (V- = 0) the message warns
+    of phase reversal (many inputs invert their output there, latching the loop)."""
+    low, high = cm_range
+    v_pos, v_neg = rails
+    out: list[Warning] = []
+    if lowest_v < low:
+        tail = (
+            ": on a single supply the output may reverse phase there and latch the loop"
+            if v_neg == 0.0
+            else ""
+        )
+        out.append(
+            Warning(
+                "input_common_mode",
+                "error",
+                f"{who} reaches {volts(lowest_v, 'V')}, below its common-mode range "
+                f"({volts(low, 'V')} to {volts(high, 'V')}){tail}",
+            )
+        )
+    if highest_v > high:
+        out.append(
+            Warning(
+                "input_common_mode",
+                "error",
+                f"{who} reaches {volts(highest_v, 'V')}, above its common-mode range "
+                f"({volts(low, 'V')} to {volts(high, 'V')}, V+ = {volts(v_pos, 'V')})",
+            )
+        )
+    return out

@@ -1,9 +1,9 @@
 """The stock room's part tables: load and validate them, and change stock counts safely.
 
 A catalog is a directory with ``resistors.csv``, ``capacitors.csv``, ``opamps.csv`` and,
-optionally, ``pots.csv``. Each file has one header row and one part per row; columns may come in
-any order. Loading is all-or-nothing: every problem in every file is raised once as a
-:class:`CatalogError` whose issues print as ``file:line: column: message``.
+optionally, ``pots.csv`` and ``comparators.csv``. Each file has one header row and one part per
+row; columns may come in any order. Loading is all-or-nothing: every problem in every file is
+raised once as a :class:`CatalogError` whose issues print as ``file:line: column: message``.
 
 This module gathers the public names of the ``tristock.stock`` package:
 
@@ -23,6 +23,7 @@ from tristock.stock.columns import (
     ALTERNATIVE_COLUMNS,
     COLUMNS,
     KINDS,
+    OPTIONAL_COLUMNS,
     OPTIONAL_KINDS,
     CatalogError,
     CatalogIssue,
@@ -57,6 +58,7 @@ __all__ = [
     "JOURNAL_NAME",
     "KINDS",
     "LOCK_NAME",
+    "OPTIONAL_COLUMNS",
     "OPTIONAL_KINDS",
     "POT_KINDS",
     "STOCK_MAX",

@@ -1,7 +1,8 @@
 """What the part tables hold, and how a problem in them is reported.
 
 A catalog is a directory with ``resistors.csv``, ``capacitors.csv``, ``opamps.csv`` and,
-optionally, ``pots.csv``; :data:`COLUMNS` lists each table's columns (any order in the file).
+optionally, ``pots.csv`` and ``comparators.csv``; :data:`COLUMNS` lists each table's columns
+(any order in the file).
 A problem prints as ``file:line: column: message``.
 """
 
@@ -52,6 +53,32 @@ COLUMNS: Final[dict[str, tuple[str, ...]]] = {
         "stock",
     ),
     "pots": ("id", "value_ohm", "tolerance_pct", "tempco_ppm", "kind", "unit_cost", "stock"),
+    # comparators.csv (comparator-IC Schmitt stage; ``stock.comparators``)
+    "comparators": (
+        "id",
+        "channels",
+        "output",
+        "supply_min_v",
+        "supply_max_v",
+        "delay_s",
+        "rise_s",
+        "fall_s",
+        "vol_v",
+        "voh_headroom_v",
+        "offset_v",
+        "bias_a",
+        "output_a",
+        "input_cm_neg_v",
+        "input_cm_pos_headroom_v",
+        "unit_cost",
+        "stock",
+    ),
+}
+
+#: Columns a table may leave out altogether (an absent column reads as blank cells): the op
+#: amps' input common-mode range (blank: the input reaches that rail).
+OPTIONAL_COLUMNS: Final[dict[str, tuple[str, ...]]] = {
+    "opamps": ("input_cm_neg_v", "input_cm_pos_headroom_v"),
 }
 
 #: Columns a table may have besides COLUMNS; each stands in for the required column it maps
@@ -61,8 +88,8 @@ ALTERNATIVE_COLUMNS: Final[dict[str, dict[str, str]]] = {
 }
 
 #: Table kinds in load order; the file of a kind is ``<kind>.csv``.
-KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots")
-OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots"})
+KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots", "comparators")
+OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots", "comparators"})
 
 
 @dataclass(frozen=True, slots=True)

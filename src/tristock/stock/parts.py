@@ -10,6 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
+from tristock.stock.comparators import Comparator
+
 #: Dielectrics the catalog accepts. Class I ceramics and plastic films are stable enough for an
 #: integrator; class II ceramics drift with temperature and DC bias; electrolytics are polarised.
 CLASS_I_DIELECTRICS = frozenset({"C0G", "NP0"})
@@ -114,6 +116,9 @@ class OpAmp:
     source or sink while holding its swing. ``delay_to_mid_s`` is the datasheet figure a
     table gave instead of ``delay_s`` (None when it gave ``delay_s``), kept for reference;
     ``delay_s`` then holds its conversion (``delay_from_delay_to_mid``).
+    ``input_cm_neg_v``: the lowest input common-mode voltage, from V- (negative: below the
+    rail); ``input_cm_pos_headroom_v``: how far below V+ the common-mode range ends
+    (negative: beyond the rail); None (a blank cell) means the input reaches that rail.
     """
 
     id: str
@@ -131,6 +136,8 @@ class OpAmp:
     unit_cost: float
     stock: int
     delay_to_mid_s: float | None = None
+    input_cm_neg_v: float | None = None
+    input_cm_pos_headroom_v: float | None = None
 
     @property
     def slew_v_per_s(self) -> float:
@@ -169,7 +176,7 @@ class Pot:
         return self.value_ohm
 
 
-Part = Resistor | Capacitor | OpAmp | Pot
+Part = Resistor | Capacitor | OpAmp | Pot | Comparator
 
 
 def value_at(value: float, tempco_ppm: float, temp_c: float) -> float:

@@ -215,6 +215,8 @@ def _build_opamp(row: RowReader) -> OpAmp | None:
     offset = row.number("offset_v")
     bias = row.number("bias_a")
     output = row.number("output_a", _positive)
+    cm_neg = row.optional_number("input_cm_neg_v")
+    cm_pos = row.optional_number("input_cm_pos_headroom_v")
     cost = row.number("unit_cost", _non_negative)
     stock = row.count("stock", 0)
     if not row.ok:
@@ -235,6 +237,8 @@ def _build_opamp(row: RowReader) -> OpAmp | None:
         cost,
         stock,
         delay_to_mid,
+        cm_neg,
+        cm_pos,
     )
 
 

@@ -15,7 +15,7 @@ import dataclasses
 import hashlib
 import json
 import os
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -24,10 +24,13 @@ from tristock.stock.columns import (
     ALTERNATIVE_COLUMNS,
     COLUMNS,
     KINDS,
+    OPTIONAL_COLUMNS,
     OPTIONAL_KINDS,
     CatalogError,
     CatalogIssue,
 )
+from tristock.stock.comparator_rows import build_comparator
+from tristock.stock.comparators import Comparator
 from tristock.stock.csvtext import (
     decode_table,
     is_skipped,
@@ -37,6 +40,12 @@ from tristock.stock.csvtext import (
 )
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.rows import BUILDERS, RowReader
+
+#: Row builders of every table kind.
+ROW_BUILDERS: dict[str, Callable[[RowReader], Part | None]] = {
+    **BUILDERS,
+    "comparators": build_comparator,
+}
 
 #: What a table file held when read: its bytes, None when it does not exist, or the error.
 TableData = bytes | OSError | None
@@ -51,6 +60,7 @@ class Catalog:
     capacitors: tuple[Capacitor, ...]
     opamps: tuple[OpAmp, ...]
     pots: tuple[Pot, ...] = ()
+    comparators: tuple[Comparator, ...] = ()
     _index: dict[str, tuple[str, Part]] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -60,6 +70,7 @@ class Catalog:
             ("capacitors", self.capacitors),
             ("opamps", self.opamps),
             ("pots", self.pots),
+            ("comparators", self.comparators),
         )
         for kind, parts in groups:
             for part in parts:
@@ -76,7 +87,8 @@ class Catalog:
             raise KeyError(f"no part with id {part_id!r} in catalog '{self.path}'") from None
 
     def kind_of(self, part_id: str) -> str:
-        """Which table holds ``part_id``: "resistors", "capacitors", "opamps" or "pots"."""
+        """Which table holds ``part_id``: "resistors", "capacitors", "opamps", "pots" or
+        "comparators"."""
         try:
             return self._index[part_id][0]
         except KeyError:
@@ -102,7 +114,8 @@ class Catalog:
         return (
             f"Catalog('{self.path}': {len(self.resistors)} resistors, "
             f"{len(self.capacitors)} capacitors, {len(self.opamps)} op amps, "
-            f"{len(self.pots)} pots)"
+            f"{len(self.pots)} pots"
+            + (f", {len(self.comparators)} comparators)" if self.comparators else ")")
         )
 
 
@@ -151,7 +164,7 @@ def _read_table(kind: str, text: str, file: str, issues: list[CatalogIssue]) -> 
             )
             continue
         cells = dict(zip(header, fields, strict=True))
-        part = BUILDERS[kind](RowReader(file, number, cells, issues))
+        part = ROW_BUILDERS[kind](RowReader(file, number, cells, issues))
         rows.append(_RowResult(number, cells["id"], part))
     if header is None:
         expected = ", ".join(COLUMNS[kind])
@@ -166,7 +179,7 @@ def _check_header(
     False (after recording why) otherwise."""
     expected = COLUMNS[kind]
     alternatives = ALTERNATIVE_COLUMNS.get(kind, {})
-    allowed = (*expected, *alternatives)
+    allowed = (*expected, *alternatives, *OPTIONAL_COLUMNS.get(kind, ()))
     before = len(issues)
     seen: set[str] = set()
     for name in header:
@@ -278,6 +291,7 @@ def parse_catalog(directory: Path, contents: Mapping[str, TableData]) -> Catalog
         tuple(p for p in parts("capacitors") if isinstance(p, Capacitor)),
         tuple(p for p in parts("opamps") if isinstance(p, OpAmp)),
         tuple(p for p in parts("pots") if isinstance(p, Pot)),
+        tuple(p for p in parts("comparators") if isinstance(p, Comparator)),
     )
 
 

@@ -3,9 +3,10 @@ leaves the model's ground.
 
 ``check`` returns a list of ``Warning`` (empty when all is well; see ``circuits.checks``).
 Codes: slew_integrator, swing_integrator, supply_range, load_comparator, load_integrator,
-cap_voltage, resistor_power, cap_class_ii, cap_polarised, cap_small, transition_time,
-gbw_delay. The margins (2x slew, 50 % of a current or power rating, 2x capacitor voltage, 10 %
-swing headroom, 2 %/20 % of the period) are common practice, not taken from a standard.
+input_common_mode, cap_voltage, resistor_power, cap_class_ii, cap_polarised, cap_small,
+transition_time, gbw_delay. The margins (2x slew, 50 % of a current or power rating, 2x
+capacitor voltage, 10 % swing headroom, 2 %/20 % of the period) are common practice, not taken
+from a standard.
 """
 
 from __future__ import annotations
@@ -18,6 +19,8 @@ from tristock.circuits.checks import (
     Severity,
     Warning,
     capacitor_checks,
+    common_mode_checks,
+    common_mode_range,
     load_limit,
     percent,
     supply_range,
@@ -172,6 +175,26 @@ def resistor_power_checks(lp: Loop, resistors: dict[str, Resistor]) -> list[Warn
     return out
 
 
+def input_range_checks(lp: Loop, part: OpAmp) -> list[Warning]:
+    """Both channels' inputs against the part's common-mode range: the trigger's + input
+    (triangle through R1, square through R2: (R2·vt + R1·vs)/(R1 + R2), widest just after
+    each switch, with the triangle at its peak) and the integrator's inputs (at the
+    reference plus Vos1)."""
+    osc = lp.osc
+    rails = osc.rails
+    ref = rails.reference_v
+    cm = common_mode_range(
+        rails.v_pos, rails.v_neg, part.input_cm_neg_v, part.input_cm_pos_headroom_v
+    )
+    r12 = osc.r1 + osc.r2
+    top = (osc.r2 * lp.peak_hi + osc.r1 * lp.vh) / r12
+    bottom = (osc.r2 * lp.peak_lo - osc.r1 * lp.vl) / r12
+    on = (rails.v_pos, rails.v_neg)
+    trigger = common_mode_checks("the trigger's + input (U1B)", ref + bottom, ref + top, on, cm)
+    at = ref + lp.m.offset_v
+    return trigger + common_mode_checks("the integrator's inputs (U1A)", at, at, on, cm)
+
+
 def timing_checks(lp: Loop) -> list[Warning]:
     """The comparator's transition and what both channels' finite GBW add, against the
     period."""
@@ -242,6 +265,8 @@ def check(
     s_max = opamp_part.supply_max_v if opamp_part else m.supply_max_v
     out += supply_range(osc.rails.span_v, s_min, s_max)
     out += load_checks(lp, opamp_part.output_a if opamp_part else m.output_a)
+    if opamp_part is not None:
+        out += input_range_checks(lp, opamp_part)
     if capacitor is not None:
         v_cap = max(abs(lp.peak_hi - m.offset_v), abs(lp.peak_lo - m.offset_v))
         why = "the integrator capacitor sees both polarities"
