@@ -1,7 +1,8 @@
 """What the part tables hold, and how a problem in them is reported.
 
 A catalog is a directory with ``resistors.csv``, ``capacitors.csv``, ``opamps.csv`` and,
-optionally, ``pots.csv``; :data:`COLUMNS` lists each table's columns (any order in the file).
+optionally, ``pots.csv`` and ``diodes.csv``; :data:`COLUMNS` lists each table's columns (any
+order in the file).
 A problem prints as ``file:line: column: message``.
 """
 
@@ -52,6 +53,20 @@ COLUMNS: Final[dict[str, tuple[str, ...]]] = {
         "stock",
     ),
     "pots": ("id", "value_ohm", "tolerance_pct", "tempco_ppm", "kind", "unit_cost", "stock"),
+    # diodes.csv (zener and signal diodes, stock.diodes)
+    "diodes": (
+        "id",
+        "kind",
+        "vz_v",
+        "iz_test_a",
+        "tolerance_pct",
+        "tempco_mv_per_c",
+        "rz_ohm",
+        "vf_v",
+        "power_w",
+        "unit_cost",
+        "stock",
+    ),
 }
 
 #: Columns a table may have besides COLUMNS; each stands in for the required column it maps
@@ -61,8 +76,8 @@ ALTERNATIVE_COLUMNS: Final[dict[str, dict[str, str]]] = {
 }
 
 #: Table kinds in load order; the file of a kind is ``<kind>.csv``.
-KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots")
-OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots"})
+KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots", "diodes")
+OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots", "diodes"})
 
 
 @dataclass(frozen=True, slots=True)

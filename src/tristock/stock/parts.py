@@ -10,6 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
+from tristock.stock.diodes import Diode
+
 #: Dielectrics the catalog accepts. Class I ceramics and plastic films are stable enough for an
 #: integrator; class II ceramics drift with temperature and DC bias; electrolytics are polarised.
 CLASS_I_DIELECTRICS = frozenset({"C0G", "NP0"})
@@ -169,7 +171,7 @@ class Pot:
         return self.value_ohm
 
 
-Part = Resistor | Capacitor | OpAmp | Pot
+Part = Resistor | Capacitor | OpAmp | Pot | Diode
 
 
 def value_at(value: float, tempco_ppm: float, temp_c: float) -> float:

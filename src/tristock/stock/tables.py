@@ -35,8 +35,14 @@ from tristock.stock.csvtext import (
     physical_lines,
     split_fields,
 )
+from tristock.stock.diode_rows import build_diode
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
-from tristock.stock.rows import BUILDERS, RowReader
+from tristock.stock.rows import BUILDERS as BASIC_BUILDERS
+from tristock.stock.rows import RowReader
+
+#: Row builders of every table kind: the basic tables' and the diode table's.
+BUILDERS = {**BASIC_BUILDERS, "diodes": build_diode}
 
 #: What a table file held when read: its bytes, None when it does not exist, or the error.
 TableData = bytes | OSError | None
@@ -51,6 +57,7 @@ class Catalog:
     capacitors: tuple[Capacitor, ...]
     opamps: tuple[OpAmp, ...]
     pots: tuple[Pot, ...] = ()
+    diodes: tuple[Diode, ...] = ()
     _index: dict[str, tuple[str, Part]] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -60,6 +67,7 @@ class Catalog:
             ("capacitors", self.capacitors),
             ("opamps", self.opamps),
             ("pots", self.pots),
+            ("diodes", self.diodes),
         )
         for kind, parts in groups:
             for part in parts:
@@ -76,7 +84,8 @@ class Catalog:
             raise KeyError(f"no part with id {part_id!r} in catalog '{self.path}'") from None
 
     def kind_of(self, part_id: str) -> str:
-        """Which table holds ``part_id``: "resistors", "capacitors", "opamps" or "pots"."""
+        """Which table holds ``part_id``: "resistors", "capacitors", "opamps", "pots" or
+        "diodes"."""
         try:
             return self._index[part_id][0]
         except KeyError:
@@ -102,8 +111,11 @@ class Catalog:
         return (
             f"Catalog('{self.path}': {len(self.resistors)} resistors, "
             f"{len(self.capacitors)} capacitors, {len(self.opamps)} op amps, "
-            f"{len(self.pots)} pots)"
+            f"{len(self.pots)} pots{self._diodes_note()})"
         )
+
+    def _diodes_note(self) -> str:
+        return f", {len(self.diodes)} diodes" if self.diodes else ""
 
 
 @dataclass(frozen=True, slots=True)
@@ -278,6 +290,7 @@ def parse_catalog(directory: Path, contents: Mapping[str, TableData]) -> Catalog
         tuple(p for p in parts("capacitors") if isinstance(p, Capacitor)),
         tuple(p for p in parts("opamps") if isinstance(p, OpAmp)),
         tuple(p for p in parts("pots") if isinstance(p, Pot)),
+        tuple(p for p in parts("diodes") if isinstance(p, Diode)),
     )
 
 

@@ -33,6 +33,7 @@ from typing import Any, Final
 from tristock.stock.atomicio import clean_stale_temps, write_atomic
 from tristock.stock.columns import KINDS
 from tristock.stock.csvtext import is_skipped, line_content, physical_lines, split_fields
+from tristock.stock.diodes import Diode
 from tristock.stock.errors import (
     STOCK_MAX,
     CatalogBusy,
@@ -59,6 +60,7 @@ _PART_TYPES: Final[dict[str, type[Part]]] = {
     "capacitors": Capacitor,
     "opamps": OpAmp,
     "pots": Pot,
+    "diodes": Diode,
 }
 
 
