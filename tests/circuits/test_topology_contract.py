@@ -17,16 +17,23 @@ import pytest
 
 from ngspice_harness import require_ngspice, run_ngspice
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import Design, resolve
+from tristock.circuits.board import Board, resolve_board
 from tristock.circuits.opamp_schmitt.netlist import MEASURES
 from tristock.circuits.rails import Rails
 from tristock.circuits.topology import TABLES, Topology
 from tristock.examples import demo_catalog_dir
 from tristock.simulate import simulate
 from tristock.stock.catalog import Catalog, load_catalog
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
-KIND_OF_TABLE = {"opamps": OpAmp, "resistors": Resistor, "capacitors": Capacitor, "pots": Pot}
+KIND_OF_TABLE = {
+    "opamps": OpAmp,
+    "resistors": Resistor,
+    "capacitors": Capacitor,
+    "pots": Pot,
+    "diodes": Diode,
+}
 NAMES = sorted(TOPOLOGIES)
 
 
@@ -35,8 +42,8 @@ def demo() -> Catalog:
     return load_catalog(demo_catalog_dir())
 
 
-def board_of(topology: Topology, catalog: Catalog) -> tuple[Design, Rails]:
-    design = resolve(dict(topology.demo_board), catalog)
+def board_of(topology: Topology, catalog: Catalog) -> tuple[Board, Rails]:
+    design = resolve_board(topology, dict(topology.demo_board), catalog)
     return design, Rails(*topology.demo_rails)
 
 

@@ -4,17 +4,19 @@ Building blocks: ``rails`` (rails, the op amp's terms and output levels), ``tran
 comparator's switching edge), ``integrator`` (the single-pole integrator), ``looptiming`` (the
 loop's period, duty and overshoot from its drives), ``timing`` (pot wirings), ``checks`` (the
 finding type and checks every topology shares), ``board`` (a board: its topology and one part
-per designator). The interface: ``topology``. Each topology is one package beside them
-(``opamp_schmitt``), registered here in ``TOPOLOGIES``: the contract tests run over this
-mapping.
+per designator), ``diode`` (junctions and zener pairs), ``spicelines`` (netlist pieces the
+variants share). The interface: ``topology``. Each topology is one package beside them
+(``opamp_schmitt``, ``clamped_schmitt``, ``duty_schmitt``), registered here in
+``TOPOLOGIES``: the contract tests run over this mapping.
 """
 
 from __future__ import annotations
 
+from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.topology import Topology
 
 #: Every topology by name.
-TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT,)}
+TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT, CLAMPED_SCHMITT)}
 
 __all__ = ["TOPOLOGIES"]

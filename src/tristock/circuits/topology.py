@@ -43,7 +43,7 @@ Value = float | FloatArray
 ArrayLike = float | npt.ArrayLike
 
 #: The catalog tables a part role may name (``stock.columns.KINDS``).
-TABLES = ("opamps", "resistors", "capacitors", "pots")
+TABLES = ("opamps", "resistors", "capacitors", "pots", "diodes")
 
 
 class Prediction(NamedTuple):
