@@ -13,10 +13,13 @@ variants share). The interface: ``topology``. Each topology is one package besid
 from __future__ import annotations
 
 from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT
+from tristock.circuits.duty_schmitt import DUTY_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.topology import Topology
 
 #: Every topology by name.
-TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (OPAMP_SCHMITT, CLAMPED_SCHMITT)}
+TOPOLOGIES: dict[str, Topology] = {
+    t.name: t for t in (OPAMP_SCHMITT, CLAMPED_SCHMITT, DUTY_SCHMITT)
+}
 
 __all__ = ["TOPOLOGIES"]
