@@ -10,8 +10,8 @@ One junction (the SPICE level-1 diode without charge storage, at its nominal tem
 
 From a table row (``stock.diodes.Diode``): the forward drop vf_v at 1 mA fixes IS with
 N = ``FORWARD_EMISSION``; a zener's vz_v at iz_test_a and its dynamic resistance rz_ohm there
-fix IBV = iz_test_a, NBV and RS with NBV·Vt/IBV + RS = rz_ohm (NBV = 1 while that leaves
-RS >= 0) and BV = vz_v - RS·IBV. Temperature moves vz_v (zener tempco column), vf_v (the
+fix IBV = iz_test_a, NBV and RS with NBV·Vt/IBV + RS = rz_ohm (``zener_terms``) and
+BV = vz_v - RS·IBV. Temperature moves vz_v (zener tempco column), vf_v (the
 zener's forward tempco ``ZENER_FORWARD_TEMPCO_MV_PER_C``, a signal diode's column) and Vt.
 
 A chain carrying current I in its conducting direction has V(I) = v0 + m·ln(I) + r·I
@@ -38,6 +38,8 @@ K_OVER_Q = 1.380649e-23 / 1.602176634e-19
 FORWARD_EMISSION = 1.8
 #: Forward-drop tempco of a zener's forward junction (mV/°C; from memory, about -2).
 ZENER_FORWARD_TEMPCO_MV_PER_C = -2.0
+#: A small zener's bulk series resistance (Ω; from memory, about 1 Ω for 0.5 W glass parts).
+ZENER_BULK_OHM = 1.0
 #: Bisection steps on ln I in ``chain_current`` (the bracket spans e^-41 .. I_max).
 BISECTIONS = 90
 
@@ -61,13 +63,25 @@ def diode_at(diode: Diode, temp_c: float) -> tuple[float, float, float, float]:
 
 
 def zener_terms(
-    vz: ArrayLike, rz: ArrayLike, izt: ArrayLike, vt: ArrayLike
+    vz: ArrayLike, rz: ArrayLike, izt: ArrayLike, vf: ArrayLike, vt: ArrayLike
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """(NBV, RS, BV) of a zener from vz at izt and dynamic resistance rz there:
-    NBV = min(1, rz·izt/Vt), RS = rz - NBV·Vt/izt, BV = vz - RS·izt."""
-    vz_a, rz_a, izt_a, vt_a = (np.asarray(x, dtype=float) for x in (vz, rz, izt, vt))
-    nbv = np.maximum(np.minimum(1.0, rz_a * izt_a / vt_a), 1e-3)
-    rs = np.maximum(rz_a - nbv * vt_a / izt_a, 0.0)
+    """(NBV, RS, BV) of a zener from vz at izt, its dynamic resistance rz there and its
+    forward drop vf at 1 mA: the breakdown takes as much of rz as NBV·Vt/izt as it can, RS
+    (the bulk resistance, which also carries the forward current) the rest, at least
+    min(``ZENER_BULK_OHM``, rz/2); BV = vz - RS·izt.
+
+    NBV is capped so that SPICE's breakdown region (it starts where the breakdown current
+    falls to IS, NBV·Vt·ln(izt/IS) below BV) begins at least half of BV in reverse: ngspice
+    loses its time step on a breakdown that reaches through 0 V (soft 2.4-3.9 V zeners).
+    Where the cap binds, RS takes tens of ohms, which the zener's forward conduction then
+    also sees: the model and its netlist agree, but such a zener's forward drop at 10 mA
+    and more is overstated (a level-1 diode has one RS for both directions)."""
+    vz_a, rz_a, izt_a, vf_a, vt_a = (np.asarray(x, dtype=float) for x in (vz, rz, izt, vf, vt))
+    bulk = np.minimum(ZENER_BULK_OHM, 0.5 * rz_a)
+    decades = np.log(izt_a / VF_TEST_A) + vf_a / (FORWARD_EMISSION * vt_a)
+    cap = 0.5 * vz_a / (vt_a * decades)
+    nbv = np.maximum(np.minimum((rz_a - bulk) * izt_a / vt_a, cap), 1e-3)
+    rs = rz_a - nbv * vt_a / izt_a
     return nbv, rs, vz_a - rs * izt_a
 
 
@@ -86,20 +100,17 @@ def forward_chain(vf: ArrayLike, rs: ArrayLike, vt: ArrayLike) -> Chain:
 
 
 def zener_chain(
-    vz: ArrayLike,
-    rz: ArrayLike,
-    izt: ArrayLike,
-    vf_other: ArrayLike,
-    rz_other: ArrayLike,
-    izt_other: ArrayLike,
+    breaking: tuple[ArrayLike, ArrayLike, ArrayLike, ArrayLike],
+    forward: tuple[ArrayLike, ArrayLike, ArrayLike, ArrayLike],
     vt: ArrayLike,
 ) -> Chain:
-    """A back-to-back zener pair in one direction, vectorised: the zener (vz at izt, rz) in
-    breakdown in series with the other zener (vf at 1 mA; its RS from its rz and izt)
-    forward."""
-    nbv, rs, bv = zener_terms(vz, rz, izt, vt)
-    _, rs_other, _ = zener_terms(0.0, rz_other, izt_other, vt)
-    fwd = forward_chain(vf_other, rs_other, vt)
+    """A back-to-back zener pair in one direction, vectorised: ``breaking`` = (vz, rz, izt,
+    vf) of the zener in breakdown, ``forward`` those of the other (forward, its RS from
+    ``zener_terms``)."""
+    vz, rz, izt, vf = breaking
+    nbv, rs, bv = zener_terms(vz, rz, izt, vf, vt)
+    _, rs_other, _ = zener_terms(*forward, vt)
+    fwd = forward_chain(forward[3], rs_other, vt)
     m_b = nbv * np.asarray(vt, dtype=float)
     v0 = bv - m_b * np.log(np.asarray(izt, dtype=float)) + np.asarray(fwd.v0)
     return Chain(v0, m_b + np.asarray(fwd.m), rs + np.asarray(fwd.r))
@@ -125,7 +136,7 @@ class Junction:
         vt = float(thermal_voltage(temp_c))
         vz, rz, izt, vf = diode_at(diode, temp_c)
         if diode.is_zener:
-            nbv, rs, bv = zener_terms(vz, rz, izt, vt)
+            nbv, rs, bv = zener_terms(vz, rz, izt, vf, vt)
             is_a = saturation_current(vf, rs, vt)
             return cls(FORWARD_EMISSION, float(is_a), float(rs), vt, float(bv), izt, float(nbv))
         return cls(FORWARD_EMISSION, float(saturation_current(vf, rz, vt)), rz, vt)

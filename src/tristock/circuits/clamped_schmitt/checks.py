@@ -84,8 +84,8 @@ def check(
                     "lower R5 or pick a lower zener voltage",
                 )
             )
-        current_max = out_a
-        power = current_max * (zener.vz_v or 0.0) + current_max * zeners[other].vf_v
+        # the zener in breakdown drops the level less the other's forward drop (taken at 1 mA)
+        power = out_a * (abs(level) - zeners[other].vf_v)
         w = load_limit("zener_power", power, zener.power_w, f"{designator} dissipation")
         found += [w] if w else []
         worst_out = max(worst_out, out_a)

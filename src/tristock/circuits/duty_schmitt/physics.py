@@ -206,4 +206,5 @@ def predict_point(p: DutyPoint, v_ref: float | None, control: str = "series") ->
     )
     if np.ndim(period) == 0:
         return Prediction(*(float(x) for x in fields))
-    return Prediction(*(np.asarray(x, dtype=float) for x in fields))
+    shape = np.shape(period)
+    return Prediction(*(np.broadcast_to(np.asarray(x, dtype=float), shape).copy() for x in fields))
