@@ -211,7 +211,9 @@ def predict_point(p: ClampPoint, v_ref: float | None, control: str = "series") -
     mean_b = net.drive_integral(lo_b, hi_b, vt_b) / (hi_b - lo_b)
     c_f = td + (vh - mean_b) / sr_f
     m_f = td + (vh - net.drive_of(s_mid, vt_b)) / sr_f
-    o_f = (hi_b - ve) * (td + vh / sr_f) - net.drive_integral(ve + 0 * vt_b, hi_b, vt_b) / sr_f
+    o_f = (hi_b - ve) * (td + vh / sr_f) - net.drive_integral(
+        np.broadcast_arrays(ve, vt_b)[0], hi_b, vt_b
+    ) / sr_f
     a_f = lag_overshoot_area(hi_b - ve, ve - lo_b, alpha * sr_f, lag)
     # rising edge at the top threshold: Vo from -VL up at SR_rise
     hi_t, _ = net.level(vh, vt_t, True)
@@ -219,7 +221,9 @@ def predict_point(p: ClampPoint, v_ref: float | None, control: str = "series") -
     mean_t = net.drive_integral(lo_t, hi_t, vt_t) / (hi_t - lo_t)
     c_r = td + (mean_t + vl) / sr_r
     m_r = td + (net.drive_of(s_mid, vt_t) + vl) / sr_r
-    o_r = (ve - lo_t) * (td + vl / sr_r) + net.drive_integral(lo_t, ve + 0 * vt_t, vt_t) / sr_r
+    o_r = (ve - lo_t) * (td + vl / sr_r) + net.drive_integral(
+        lo_t, np.broadcast_arrays(ve, vt_t)[0], vt_t
+    ) / sr_r
     a_r = lag_overshoot_area(ve - lo_t, hi_t - ve, alpha * sr_r, lag)
 
     d_f, d_r = c_f + lag, c_r + lag
