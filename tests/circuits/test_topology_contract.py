@@ -24,7 +24,7 @@ import pytest
 from ngspice_harness import require_ngspice, run_ngspice
 from tristock.analysis.spread import Board, evaluate, point_at, spread_board
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import Design, resolve
+from tristock.circuits.board import Board, resolve_board
 from tristock.circuits.opamp_schmitt.netlist import MEASURES
 from tristock.circuits.rails import Rails
 from tristock.circuits.spreadvars import LAWS, FieldMove, SpreadVariable
@@ -35,6 +35,7 @@ from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
 from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 KIND_OF_TABLE = {
@@ -43,6 +44,7 @@ KIND_OF_TABLE = {
     "capacitors": Capacitor,
     "pots": Pot,
     "comparators": Comparator,
+    "diodes": Diode,
 }
 NAMES = sorted(TOPOLOGIES)
 
@@ -52,8 +54,8 @@ def demo() -> Catalog:
     return load_catalog(demo_catalog_dir())
 
 
-def board_of(topology: Topology, catalog: Catalog) -> tuple[Design, Rails]:
-    design = resolve(dict(topology.demo_board), catalog)
+def board_of(topology: Topology, catalog: Catalog) -> tuple[Board, Rails]:
+    design = resolve_board(topology, dict(topology.demo_board), catalog)
     return design, Rails(*topology.demo_rails)
 
 

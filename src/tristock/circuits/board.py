@@ -20,6 +20,7 @@ from tristock.circuits.topology import Topology
 from tristock.spec.loading import SpecError
 from tristock.stock.catalog import Catalog
 from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 
 DESIGNATORS = ("U1", "R1", "R2", "R3", "C1")
@@ -195,3 +196,65 @@ def resolve(
         )
     except ValueError as err:
         raise SpecError([str(err)]) from None
+
+
+# --------------------------------------------------------------------------------------------
+# Boards of any topology (the variants' designators: R5, D1..D4, R3A, R3B, ...)
+
+#: The part type of each catalog table a topology's roles name.
+PART_TYPES: dict[str, type] = {
+    "opamps": OpAmp,
+    "resistors": Resistor,
+    "capacitors": Capacitor,
+    "pots": Pot,
+    "diodes": Diode,
+}
+
+
+@dataclass(frozen=True)
+class Board:
+    """The parts of one board of ``topology``: designator -> part (``BoardParts``); no pot,
+    so ``wiper`` 0, ``control`` "series" and ``selected`` 0 (C1)."""
+
+    topology: Topology
+    by_designator: tuple[tuple[str, Part], ...]
+    wiper: float = 0.0
+    control: str = "series"
+    selected: int = 0
+
+    def parts(self) -> dict[str, Part]:
+        """Designator -> part, in the topology's BOM order."""
+        found = dict(self.by_designator)
+        return {d: found[d] for d in self.topology.designators if d in found}
+
+    def oscillator(self, rails: Rails, temp_c: float = 25.0) -> Any:
+        """The oscillator at ``temp_c`` (°C), built by the board's topology."""
+        return self.topology.oscillator(self, rails, temp_c)
+
+
+def resolve_board(topology: Topology, ids: dict[str, str], catalog: Catalog) -> Board:
+    """The Board of ``topology`` for these stock codes; unknown designators, missing required
+    ones and unknown or wrong-kind ids raise SpecError naming each."""
+    errors: list[str] = []
+    found: list[tuple[str, Part]] = []
+    known = set(topology.designators)
+    errors += [f"parts.{d}: unknown designator for {topology.name}" for d in ids if d not in known]
+    errors += [f"parts.{d}: missing (a stock code)" for d in topology.required if d not in ids]
+    for name, pid in ids.items():
+        if name not in known:
+            continue
+        kind = PART_TYPES[topology.table_of(name)]
+        try:
+            part = catalog.get(pid)
+        except KeyError:
+            errors.append(f"parts.{name}: {pid!r} is not in the catalog {catalog.path}")
+            continue
+        if not isinstance(part, kind):
+            errors.append(
+                f"parts.{name}: {pid!r} is a {type(part).__name__}, not a {kind.__name__}"
+            )
+            continue
+        found.append((name, part))
+    if errors:
+        raise SpecError(errors)
+    return Board(topology, tuple(found))

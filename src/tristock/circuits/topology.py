@@ -63,7 +63,7 @@ __all__ = [
 ]
 
 #: The catalog tables a part role may name (``stock.columns.KINDS``).
-TABLES = ("opamps", "resistors", "capacitors", "pots", "comparators")
+TABLES = ("opamps", "resistors", "capacitors", "pots", "comparators", "diodes")
 
 
 @dataclass(frozen=True)

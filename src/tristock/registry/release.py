@@ -55,6 +55,7 @@ def with_stock(catalog: Catalog, stock: dict[str, int]) -> Catalog:
         capacitors=fix(catalog.capacitors),
         opamps=fix(catalog.opamps),
         pots=fix(catalog.pots),
+        diodes=fix(catalog.diodes),
     )
 
 
@@ -66,6 +67,7 @@ def ample(catalog: Catalog) -> Catalog:
         capacitors=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.capacitors),
         opamps=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.opamps),
         pots=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.pots),
+        diodes=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.diodes),
     )
 
 

@@ -1,8 +1,8 @@
 """What the part tables hold, and how a problem in them is reported.
 
 A catalog is a directory with ``resistors.csv``, ``capacitors.csv``, ``opamps.csv`` and,
-optionally, ``pots.csv`` and ``comparators.csv``; :data:`COLUMNS` lists each table's columns
-(any order in the file).
+optionally, ``pots.csv``, ``comparators.csv`` and ``diodes.csv``; :data:`COLUMNS` lists each
+table's columns (any order in the file).
 A problem prints as ``file:line: column: message``.
 """
 
@@ -73,6 +73,20 @@ COLUMNS: Final[dict[str, tuple[str, ...]]] = {
         "unit_cost",
         "stock",
     ),
+    # diodes.csv (zener and signal diodes, stock.diodes)
+    "diodes": (
+        "id",
+        "kind",
+        "vz_v",
+        "iz_test_a",
+        "tolerance_pct",
+        "tempco_mv_per_c",
+        "rz_ohm",
+        "vf_v",
+        "power_w",
+        "unit_cost",
+        "stock",
+    ),
 }
 
 #: Columns a table may leave out altogether (an absent column reads as blank cells): the op
@@ -88,8 +102,15 @@ ALTERNATIVE_COLUMNS: Final[dict[str, dict[str, str]]] = {
 }
 
 #: Table kinds in load order; the file of a kind is ``<kind>.csv``.
-KINDS: Final[tuple[str, ...]] = ("resistors", "capacitors", "opamps", "pots", "comparators")
-OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots", "comparators"})
+KINDS: Final[tuple[str, ...]] = (
+    "resistors",
+    "capacitors",
+    "opamps",
+    "pots",
+    "comparators",
+    "diodes",
+)
+OPTIONAL_KINDS: Final[frozenset[str]] = frozenset({"pots", "comparators", "diodes"})
 
 
 @dataclass(frozen=True, slots=True)

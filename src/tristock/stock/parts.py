@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 
 #: Dielectrics the catalog accepts. Class I ceramics and plastic films are stable enough for an
 #: integrator; class II ceramics drift with temperature and DC bias; electrolytics are polarised.
@@ -176,7 +177,7 @@ class Pot:
         return self.value_ohm
 
 
-Part = Resistor | Capacitor | OpAmp | Pot | Comparator
+Part = Resistor | Capacitor | OpAmp | Pot | Comparator | Diode
 
 
 def value_at(value: float, tempco_ppm: float, temp_c: float) -> float:

@@ -38,8 +38,14 @@ from tristock.stock.csvtext import (
     physical_lines,
     split_fields,
 )
+from tristock.stock.diode_rows import build_diode
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
-from tristock.stock.rows import BUILDERS, RowReader
+from tristock.stock.rows import BUILDERS as BASIC_BUILDERS
+from tristock.stock.rows import RowReader
+
+#: Row builders of every table kind: the basic tables' and the diode table's.
+BUILDERS = {**BASIC_BUILDERS, "diodes": build_diode}
 
 #: Row builders of every table kind.
 ROW_BUILDERS: dict[str, Callable[[RowReader], Part | None]] = {
@@ -61,6 +67,7 @@ class Catalog:
     opamps: tuple[OpAmp, ...]
     pots: tuple[Pot, ...] = ()
     comparators: tuple[Comparator, ...] = ()
+    diodes: tuple[Diode, ...] = ()
     _index: dict[str, tuple[str, Part]] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -71,6 +78,7 @@ class Catalog:
             ("opamps", self.opamps),
             ("pots", self.pots),
             ("comparators", self.comparators),
+            ("diodes", self.diodes),
         )
         for kind, parts in groups:
             for part in parts:
@@ -88,7 +96,7 @@ class Catalog:
 
     def kind_of(self, part_id: str) -> str:
         """Which table holds ``part_id``: "resistors", "capacitors", "opamps", "pots" or
-        "comparators"."""
+        "comparators", "diodes"."""
         try:
             return self._index[part_id][0]
         except KeyError:
@@ -115,8 +123,12 @@ class Catalog:
             f"Catalog('{self.path}': {len(self.resistors)} resistors, "
             f"{len(self.capacitors)} capacitors, {len(self.opamps)} op amps, "
             f"{len(self.pots)} pots"
-            + (f", {len(self.comparators)} comparators)" if self.comparators else ")")
+            + (f", {len(self.comparators)} comparators" if self.comparators else "")
+            + f"{self._diodes_note()})"
         )
+
+    def _diodes_note(self) -> str:
+        return f", {len(self.diodes)} diodes" if self.diodes else ""
 
 
 @dataclass(frozen=True, slots=True)
@@ -292,6 +304,7 @@ def parse_catalog(directory: Path, contents: Mapping[str, TableData]) -> Catalog
         tuple(p for p in parts("opamps") if isinstance(p, OpAmp)),
         tuple(p for p in parts("pots") if isinstance(p, Pot)),
         tuple(p for p in parts("comparators") if isinstance(p, Comparator)),
+        tuple(p for p in parts("diodes") if isinstance(p, Diode)),
     )
 
 

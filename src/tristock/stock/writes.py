@@ -34,6 +34,7 @@ from tristock.stock.atomicio import clean_stale_temps, write_atomic
 from tristock.stock.columns import KINDS
 from tristock.stock.comparators import Comparator
 from tristock.stock.csvtext import is_skipped, line_content, physical_lines, split_fields
+from tristock.stock.diodes import Diode
 from tristock.stock.errors import (
     STOCK_MAX,
     CatalogBusy,
@@ -61,6 +62,7 @@ _PART_TYPES: Final[dict[str, type[Part]]] = {
     "opamps": OpAmp,
     "pots": Pot,
     "comparators": Comparator,
+    "diodes": Diode,
 }
 
 

@@ -1,0 +1,147 @@
+"""Design checks of the zener-clamped loop. Codes: clamp_not_clamping, zener_power,
+load_comparator, resistor_power, supply_range, slew_integrator, comparator_buildup and the
+capacitor's (``circuits.checks.capacitor_checks``).
+
+The margins are common practice, not from a standard: the zener current at least
+``CLAMP_ERROR`` (error) and ``CLAMP_CAUTION`` (caution) of its test current, or the level
+rides on the op amp's swing; 50 % of a current or power rating; 2x slew; the comparator's
+GBW build-up (not in the model) under ``BUILDUP_CAUTION`` of the period.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from tristock.circuits.checks import (
+    Severity,
+    Warning,
+    capacitor_checks,
+    load_limit,
+    percent,
+    supply_range,
+    volts,
+)
+from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
+from tristock.circuits.clamped_schmitt.physics import Clamp
+from tristock.circuits.rails import square_levels
+from tristock.stock.diodes import Diode
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
+
+CLAMP_ERROR = 0.1
+CLAMP_CAUTION = 0.25
+SLEW_MARGIN = 2.0
+BUILDUP_CAUTION = 0.01
+
+
+def clamp_currents(osc: ClampedOscillator) -> dict[str, tuple[float, float, float]]:
+    """For each side ("high": D1 breaks, "low": D2 breaks): (least zener current (A), the
+    op amp's output current into R5 (A, most), the square level there (V)) over the triangle's
+    range (its two thresholds)."""
+    p = osc.prediction()
+    net = Clamp.of(osc.point())
+    vh, vl = square_levels(osc.rails, osc.opamp)
+    out: dict[str, tuple[float, float, float]] = {}
+    for side, vo in (("high", vh), ("low", -vl)):
+        levels = [
+            net.level(vo, float(vt), side == "high")
+            for vt in (p.threshold_low_v, p.threshold_high_v)
+        ]
+        currents = [float(i) for _, i in levels]
+        outputs = [abs(vo - float(s)) / osc.r5 for s, _ in levels]
+        out[side] = (min(currents), max(outputs), float(levels[0][0]))
+    return out
+
+
+def check(
+    osc: ClampedOscillator,
+    *,
+    opamp: OpAmp,
+    resistors: dict[str, Resistor],
+    capacitor: Capacitor,
+    zeners: dict[str, Diode],
+) -> list[Warning]:
+    """Every check of the clamped board (see the module notes)."""
+    found: list[Warning] = []
+    p = osc.prediction()
+    found += supply_range(osc.rails.span_v, opamp.supply_min_v, opamp.supply_max_v)
+    sides = clamp_currents(osc)
+    worst_out = 0.0
+    for side, designator, other in (("high", "D1", "D2"), ("low", "D2", "D1")):
+        least, out_a, level = sides[side]
+        zener = zeners[designator]
+        izt = zener.iz_test_a or 1e-3
+        if least < CLAMP_CAUTION * izt:
+            severity: Severity = "error" if least < CLAMP_ERROR * izt else "caution"
+            found.append(
+                Warning(
+                    "clamp_not_clamping",
+                    severity,
+                    f"{designator} {zener.id} carries only {volts(least, 'A')} with the square "
+                    f"{side} ({percent(least / izt)} of its {volts(izt, 'A')} test current): "
+                    "the op amp's swing barely exceeds the clamp, so the level follows the rails; "
+                    "lower R5 or pick a lower zener voltage",
+                )
+            )
+        # the zener in breakdown drops the level less the other's forward drop (taken at 1 mA)
+        power = out_a * (abs(level) - zeners[other].vf_v)
+        w = load_limit("zener_power", power, zener.power_w, f"{designator} dissipation")
+        found += [w] if w else []
+        worst_out = max(worst_out, out_a)
+        r5 = resistors["R5"]
+        vo = square_levels(osc.rails, osc.opamp)[0 if side == "high" else 1]
+        w = load_limit(
+            "resistor_power", (vo - abs(level)) ** 2 / osc.r5, r5.power_w, "R5 dissipation"
+        )
+        found += [w] if w else []
+    load = worst_out + max(abs(float(p.peak_high_v)), abs(float(p.peak_low_v))) / (osc.r1 + osc.r2)
+    w = load_limit("load_comparator", worst_out, opamp.output_a, "U1B output current into R5")
+    found += [w] if w else []
+    w = load_limit("load_integrator", load - worst_out, opamp.output_a, "U1A output current")
+    found += [w] if w else []
+    level = max(abs(float(p.square_high_v)), abs(float(p.square_low_v)))
+    w = load_limit("resistor_power", level**2 / osc.r3, resistors["R3"].power_w, "R3 dissipation")
+    found += [w] if w else []
+    slope = float(p.slope_v_per_s)
+    if slope * SLEW_MARGIN > osc.opamp.slew_rise_v_per_s:
+        found.append(
+            Warning(
+                "slew_integrator",
+                "caution" if slope < osc.opamp.slew_rise_v_per_s else "error",
+                f"the triangle's slope {slope * 1e-6:.3g} V/µs is within {SLEW_MARGIN:g}x of the "
+                f"op amp's slew rate {osc.opamp.slew_rise_v_per_s * 1e-6:.3g} V/µs",
+            )
+        )
+    found += buildup_check(osc)
+    v_cap = max(abs(float(p.peak_high_v)), abs(float(p.peak_low_v))) + abs(osc.opamp.offset_v)
+    found += capacitor_checks("C1", capacitor, v_cap, "the triangle swings both ways")
+    return found
+
+
+def buildup_check(osc: ClampedOscillator) -> list[Warning]:
+    """The comparator's GBW build-up, not in the model: while the square is clamped the loop
+    has no positive feedback, so the output leaves its rail as 2π·GBW·σ·t²/2 (σ the + input's
+    slope, slope·R2/(R1 + R2)) and takes about √(2Δ/(2π·GBW·σ)) to cover the Δ before the
+    square moves. Caution above BUILDUP_CAUTION of the period."""
+    m = osc.opamp
+    if math.isinf(m.gbw_hz):
+        return []
+    p = osc.prediction()
+    vh, _ = square_levels(osc.rails, m)
+    net = Clamp.of(osc.point())
+    margin = vh - float(net.drive_of(np.asarray(float(p.square_high_v)), np.asarray(0.0)))
+    sigma = float(p.slope_v_per_s) * osc.r2 / (osc.r1 + osc.r2)
+    build = math.sqrt(2.0 * max(margin, 0.0) / (2.0 * math.pi * m.gbw_hz * sigma))
+    share = 4.0 * build / float(p.period_s)  # about twice per edge, two edges
+    if share <= BUILDUP_CAUTION:
+        return []
+    return [
+        Warning(
+            "comparator_buildup",
+            "caution",
+            f"the comparator's gain-bandwidth build-up (about {volts(build, 's')} per edge, "
+            f"{percent(share)} of the period) is not in this model: use a faster op amp, or "
+            "expect the frequency lower by about that share",
+        )
+    ]
