@@ -19,6 +19,7 @@ from tristock.cli.registry import needed_catalog, open_registry, registry_failur
 from tristock.registry.impact import ImpactSettings, impact
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.whatif import apply_what_if, parse_what_if
+from tristock.report.text import pct
 from tristock.spec.limits import SPEC_FILE_MAX_BYTES
 from tristock.stock.units import format_value
 
@@ -28,7 +29,7 @@ def _freq(value: float | None) -> str:
 
 
 def _yield(value: float | None) -> str:
-    return f"{value:.1%}" if value is not None else "-"
+    return pct(value) if value is not None else "-"
 
 
 def render_impact(r: ImpactReport) -> str:

@@ -174,10 +174,16 @@ class Shortfall(_Out):
 
 
 class OriginalDesign(_Out):
+    """The design as it was: ``yield_fraction`` and ``worst_case`` (the analysis's, as in a
+    candidate) when the full model analysed it (fixed and tuned designs; a tuned one at
+    mid-dial of C1), for the before/after comparison."""
+
     parts: dict[str, str]
     passes: bool
     reasons: list[str]
     predicted: Predicted | None
+    yield_fraction: float | None = None
+    worst_case: dict[str, Any] | None = None
 
 
 class ReoptimiseResult(_Out):
