@@ -326,7 +326,7 @@ def _serve(sub: Subparsers) -> None:
         sub,
         "serve",
         "run the HTTP API (loopback only by default)",
-        "TRISTOCK_TOKEN=secret tristock serve --catalog shop --port 8000",
+        "tristock serve --catalog shop --port 8000   # stock writes need TRISTOCK_TOKEN",
     )
     sv.add_argument("--host", default="127.0.0.1", type=text("an address"), help="address")
     _add_count(sv, "--port", limits.PORT, "TCP port; 0 picks a free one", 8000)

@@ -165,7 +165,7 @@ def design_fixed(
     deadline = t0 + time_limit_s
     model = build_model(spec, catalog)
     top = spec.ranking.top
-    want = top
+    want = 2 * top if distinct else top  # distinct: variants take places in the row list
     verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done
     evaluated = 0
     while True:

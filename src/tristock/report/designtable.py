@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from tristock.designs.results import Candidate, DesignResult
-from tristock.report.text import WIDTH, pct, value_range
+from tristock.report.text import WIDTH, pct, value_range, wrap_items
 from tristock.stock.units import format_value
 
 
@@ -158,34 +158,43 @@ def tuning_table(result: DesignResult, style: TableStyle) -> list[str]:
 
 
 def legend(result: DesignResult, style: TableStyle) -> list[str]:
-    """What each column means, with its units (wrapped by the caller)."""
+    """What each column means, with its units: lines of at most 100 columns, broken between
+    items."""
     spec = result.spec
     best = result.candidates[0]
     samples = best.yield_detail.get("samples")
     n = f"{samples:,} Monte Carlo samples" if isinstance(samples, int) else "Monte Carlo"
-    cost = f"cost: per board, {style.currency}"
-    flags = "flag: ! error-level finding, * cautions (--explain N prints them)"
-    resist = "" if style.wide else "R in Ω; "
-    if spec.tuning is not None:
-        return [
-            "legend: nominal: each range's span at nominal values over the whole dial; "
-            "guaranteed: the span every board of the spread box reaches; "
-            f"{cost}; {flags}; also: variants (#rank among all, differing parts)"
-        ]
-    if spec.trimmed:
-        return [
-            f"legend: {resist}wiper: nominal trim point (share of travel); trim span: f over the "
-            "whole travel at nominal values; res %/%: % of f per % of travel at the target; "
-            f"drift: f change over the temperature range after trimming; {cost}; {flags}; "
-            "also: variants (#rank among all, differing parts)"
-        ]
-    timing = "timing: share of the period set by op-amp delay, slew and GBW; " if style.wide else ""
-    return [
-        f"legend: {resist}f: full model at nominal values, rails and 25 °C; err: f against the "
-        f"target; Vpp: triangle peak to peak, V; {timing}worst-case f: lowest-highest over "
-        f"tolerances, rails and temperature; yield: boards into both bands, {n}; {cost}; "
-        f"{flags}; also: variants (#rank among all, differing parts)"
+    tail = [
+        f"cost: per board, {style.currency}",
+        "flag: ! error-level finding, * cautions (--explain N prints them)",
+        "also: variants of the design (#place among all variants, differing parts)",
     ]
+    resist = [] if style.wide else ["R in Ω"]
+    if spec.tuning is not None:
+        items = [
+            "nominal: a range's span at nominal values over the whole dial",
+            "guaranteed: the span every board of the spread box reaches",
+        ]
+    elif spec.trimmed:
+        items = [
+            *resist,
+            "wiper: nominal trim point (share of travel)",
+            "trim span: f over the whole travel at nominal values",
+            "res %/%: % of f per % of travel at the target",
+            "drift: f change over the temperature range after trimming",
+        ]
+    else:
+        timing = ["timing: share of the period set by op-amp delay, slew and GBW"]
+        items = [
+            *resist,
+            "f: full model at nominal values, rails and 25 °C",
+            "err: f against the target",
+            "Vpp: triangle peak to peak, V",
+            *(timing if style.wide else []),
+            "worst-case f: lowest-highest over tolerances, rails and temperature",
+            f"yield: boards into both bands, {n}",
+        ]
+    return wrap_items("legend:", [*items, *tail], WIDTH)
 
 
 __all__ = ["TableStyle", "also_line", "fixed_table", "flag", "legend", "trim_table", "tuning_table"]

@@ -51,6 +51,23 @@ def wrapped(line: str, width: int = WIDTH, indent: str = "") -> list[str]:
     )
 
 
+def wrap_items(head: str, items: list[str], width: int = WIDTH) -> list[str]:
+    """``head`` and the items joined by "; ", broken between items only (an item longer
+    than a line is wrapped on its own); continuation lines indented two spaces."""
+    lines: list[str] = []
+    line = head
+    for n, item in enumerate(items):
+        piece = item + (";" if n < len(items) - 1 else "")
+        candidate = f"{line} {piece}" if line.strip() else line + piece
+        if len(candidate) <= width or not line.strip():
+            line = candidate
+        else:
+            lines.append(line)
+            line = "  " + piece
+    lines.append(line)
+    return [x for part in lines for x in wrapped(part, width, "")]
+
+
 def wrap_all(lines: Iterable[str], width: int = WIDTH) -> list[str]:
     """Every line (an item may hold several) wrapped at ``width``, keeping each line's own
     leading spaces."""
@@ -62,4 +79,4 @@ def wrap_all(lines: Iterable[str], width: int = WIDTH) -> list[str]:
     return out
 
 
-__all__ = ["WIDTH", "pct", "value_range", "wrap_all", "wrapped"]
+__all__ = ["WIDTH", "pct", "value_range", "wrap_all", "wrap_items", "wrapped"]
