@@ -32,7 +32,8 @@ def value_range(low: float, high: float, unit: str, digits: int = 3) -> str:
         return f"{format_value(low, unit, digits)}-{format_value(high, unit, digits)}"
     big = max(abs(low), abs(high))
     number, _, suffix = format_value(big, unit, digits).partition(" ")
-    scale = big / float(number) if float(number) else 1.0
+    power = round(math.log10(big / float(number)) / 3) * 3 if float(number) else 0
+    scale = 10.0**power  # the prefix's exact power of ten
     decimals = max(digits - 1 - math.floor(math.log10(abs(float(number)))), 0) if big else 0
     return f"{low / scale:.{decimals}f}-{high / scale:.{decimals}f} {suffix}".rstrip()
 
