@@ -5,9 +5,10 @@ two boards are variants when R1/R2 is the same ratio (cross-multiplied) with the
 tolerances and tempcos, U1 has the same electrical parameters (every op-amp column but id,
 channels, cost, stock), and every other part has the same value, tolerance, tempco (and
 dielectric). The expected distinct top k is the brute force's full ranked list (every
-accepted design, ``search.test_search_exact.reference`` and ``trim_reference.reference``,
-both over the full model) cut into classes by that rule: the first member of each of the
-first k classes, with the members ranked above the k-th class's first member as variants
+accepted design, ``search.test_search_exact.reference``, ``trim_reference.reference`` and
+``tuned_reference.reference``, all over the full model) cut into classes by that rule: the
+first member of each of the first k classes, with the members ranked above the k-th
+class's first member as variants
 (all members when fewer than k classes exist).
 """
 
@@ -22,6 +23,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from trim_reference import OPAMPS, small_spec
 from trim_reference import reference as trim_reference
+from tuned_reference import reference as tuned_reference
 
 from search.test_search_exact import SAMPLES, reference
 from tristock.circuits.board import Design, resolve
@@ -265,3 +267,70 @@ def test_distinct_trimmed_top_k_is_the_brute_force_top_k_over_classes(top: int) 
     assert got.search.proven_optimal
     assert len(every) == 12 and len(expected) == min(top, 2)
     assert got_distinct(got.candidates, names) == expected
+
+
+# --------------------------------------------------------------------------------------------
+# Tuned designs against brute force
+
+
+def test_distinct_tuned_top_k_is_the_brute_force_top_k_over_classes() -> None:
+    """The tuned brute force's ranked list (``tuned_reference``, every accepted design of the
+    fewest range count) on the tuned tests' case with answers, with a single-channel op amp
+    of the dual's electrical parameters (the same cost per board, so each design's two
+    packages rank side by side, the dual first by its stock code) and 10 k/22 k also as
+    100 k/220 k."""
+    res = tuple(
+        Resistor(f"TR-{v:g}", v, 1.0, 100.0, "E12", 0.25, "0603", 0.01, 500)
+        for v in (10e3, 22e3, 47e3, 100e3, 220e3)
+    )
+    caps = tuple(
+        Capacitor(f"TC-{v:g}", v, "C0G", 5.0, 30.0, None, 50.0, "0603", c, 500)
+        for v, c in ((1e-9, 0.02), (2.2e-9, 0.021), (4.7e-9, 0.03), (10e-9, 0.04), (22e-9, 0.05))
+    )
+    dual = OpAmp("TU-1", 2, 3.0, 40.0, 1.5, 1.5, 13.0, 3e6, 1.2e-6, 3e-3, 3e-11, 0.02, 0.3, 10**4)
+    single = dataclasses.replace(dual, id="TU-1S", channels=1, unit_cost=0.15)
+    pots = (Pot("VP-10K", 10e3, 20.0, 150.0, "panel", 1.5, 1000),)
+    catalog = Catalog(Path("<memory>"), res, caps, (dual, single), pots)
+    spec = parse_spec(
+        {
+            "supply": {"positive_v": 12.0, "negative_v": -12.0, "tolerance_pct": 2.0},
+            "triangle": {"amplitude_vpp": 7.0, "tolerance_pct": 15.0},
+            "environment": {"temp_min_c": 0.0, "temp_max_c": 50.0},
+            "tuning": {"low_hz": 300.0, "high_hz": 2.5e3, "control": "divider"},
+            "ranking": {"top": 3},
+        }
+    )
+    keyed = tuned_reference(_with_top(spec, 10**6), catalog)
+    every = [ids for *_, ids in keyed]
+    boards = [
+        resolve(
+            {"U1": i[0], "R1": i[1], "R2": i[2], "R3": i[3], "R4": i[4], "RV1": i[5],
+             **{f"C{n + 1}": c for n, c in enumerate(i[6:])}},
+            catalog, control="divider",
+        )
+        for i in every
+    ]  # fmt: skip
+    heads: list[int] = []
+    members: dict[int, list[int]] = {}
+    for n, b in enumerate(boards):
+        home = next((h for h in heads if same_class(boards[h], b)), None)
+        if home is None:
+            heads.append(n)
+            members[n] = []
+        else:
+            members[home].append(n)
+    top = 3
+    heads = heads[:top]
+    cut = heads[-1] if len(heads) == top else len(boards)
+    expected = [
+        ({k: p.id for k, p in boards[h].parts().items()},
+         [({k: p.id for k, p in boards[m].parts().items()}, m + 1) for m in members[h] if m < cut])
+        for h in heads
+    ]  # fmt: skip
+    got = design(spec, catalog, time_limit_s=300.0, samples=200, distinct=True)
+    assert got.search.proven_optimal
+    assert any(vs for _, vs in expected)  # the case has variants
+    assert [
+        ({k: p.id for k, p in c.parts.items()}, [(v.parts, v.rank_all) for v in c.variants])
+        for c in got.candidates
+    ] == expected

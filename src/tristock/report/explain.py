@@ -56,7 +56,10 @@ def explain(c: Candidate, sketch: str) -> list[str]:
         )
     samples = c.yield_detail.get("samples")
     if samples:
-        lines.append(f"  yield: {pct(c.yield_fraction)} of {samples:,} boards into both bands")
+        before = " untrimmed (wiper at its nominal point)" if c.trim is not None else ""
+        lines.append(
+            f"  yield: {pct(c.yield_fraction)} of {samples:,} boards into both bands{before}"
+        )
     drift = c.drift
     if "frequency_ppm_per_c" in drift:
         lines.append(
