@@ -281,7 +281,7 @@ def test_distinct_tuned_top_k_is_the_brute_force_top_k_over_classes() -> None:
     100 k/220 k."""
     res = tuple(
         Resistor(f"TR-{v:g}", v, 1.0, 100.0, "E12", 0.25, "0603", 0.01, 500)
-        for v in (10e3, 22e3, 47e3, 100e3, 220e3)
+        for v in (10e3, 22e3, 33e3, 47e3, 100e3, 220e3)
     )
     caps = tuple(
         Capacitor(f"TC-{v:g}", v, "C0G", 5.0, 30.0, None, 50.0, "0603", c, 500)
