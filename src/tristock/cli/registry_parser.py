@@ -173,6 +173,9 @@ def _impact(sub: Any) -> None:
         f"(default {limits.DEFAULT_TIME_LIMIT_S:g})",
     )
     _count(i, "--top", IMPACT_TOP, "answers kept from each re-optimisation", 5)
+    i.add_argument(
+        "--quiet", "-q", action="store_true", help="no progress (shown on a terminal only)"
+    )
     _json(i)
     i.set_defaults(handler="impact")
 
