@@ -289,7 +289,10 @@ def test_distinct_tuned_top_k_is_the_brute_force_top_k_over_classes() -> None:
     )
     dual = OpAmp("TU-1", 2, 3.0, 40.0, 1.5, 1.5, 13.0, 3e6, 1.2e-6, 3e-3, 3e-11, 0.02, 0.3, 10**4)
     single = dataclasses.replace(dual, id="TU-1S", channels=1, unit_cost=0.15)
-    pots = (Pot("VP-10K", 10e3, 20.0, 150.0, "panel", 1.5, 1000),)
+    pots = (
+        Pot("VP-10K", 10e3, 20.0, 150.0, "panel", 1.5, 1000),
+        Pot("VP-50K", 50e3, 20.0, 150.0, "panel", 1.2, 1000),
+    )
     catalog = Catalog(Path("<memory>"), res, caps, (dual, single), pots)
     spec = parse_spec(
         {
