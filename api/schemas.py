@@ -43,6 +43,13 @@ class DesignRequest(_Body):
     by: RankBy | None = Field(None, description="ranking (overrides spec.ranking.by)")
     engine: Engine = Field("enumerate", description="search engine; both are exact")
     time_limit_s: float | None = Field(None, gt=0, description=TIME_LIMIT_HELP)
+    all_variants: bool = Field(
+        False,
+        description="rank every variant on its own; by default the top are distinct designs, "
+        "each with its `variants` (R1/R2 scaled together, U1 of the same electrical "
+        "parameters in another package, a part of equal value, tolerance and tempco under "
+        "another stock code)",
+    )
 
 
 class DesignBody(_Body):

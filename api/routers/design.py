@@ -44,10 +44,10 @@ def _headers(proven: bool) -> dict[str, str]:
 
 
 def _designs(
-    spec: Spec, parcel: Parcel, engine: Engine, limit: float
+    spec: Spec, parcel: Parcel, engine: Engine, limit: float, distinct: bool
 ) -> tuple[dict[str, Any], bytes]:
     """The search (in a compute process): the answer as data and as JSON bytes."""
-    result = design(spec, parcel.open(), engine=engine, time_limit_s=limit)
+    result = design(spec, parcel.open(), engine=engine, time_limit_s=limit, distinct=distinct)
     data = result.model_dump(mode="json")
     return data, to_json_bytes(data)
 
@@ -58,7 +58,8 @@ def _designs(
     response_model=DesignResult,
     responses=COMPUTE_ERRORS,
     summary="Best designs for a spec",
-    description="The same answer as `tristock design SPEC --json`. An infeasible spec is a 200 "
+    description="The same answer as `tristock design SPEC --json` (distinct designs unless "
+    "`all_variants`). An infeasible spec is a 200 "
     "with `infeasible.reasons`; a search cut by its time limit has "
     "`search.proven_optimal: false` (and the header `X-Search: cut-by-time-limit`).",
 )
@@ -78,12 +79,15 @@ async def post_design(
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, spec.ranking.top, where)
     limit = _time_limit(settings, body.time_limit_s, spec)
-    key = cache.key("design", generation, [spec.model_dump(mode="json"), body.engine, limit])
+    distinct = not body.all_variants
+    key = cache.key(
+        "design", generation, [spec.model_dump(mode="json"), body.engine, limit, distinct]
+    )
     cached = cache.get(key)
     if cached is None:
         with FieldProblem.from_value_errors(["body", "spec"]):
             data, rendered = await slots.run(
-                _designs, spec, slots.parcel(catalog), body.engine, limit
+                _designs, spec, slots.parcel(catalog), body.engine, limit, distinct
             )
         if data["search"]["proven_optimal"]:  # an answer cut by time may improve on a retry
             cache.put(key, data)

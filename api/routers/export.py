@@ -80,8 +80,8 @@ async def post_bom(body: BomRequest, catalog: CatalogDep, slots: SlotsDep) -> Re
     description="The same netlist as `tristock export spice DESIGN [--corner C]`: "
     "behavioural op-amp models from the catalog row, at nominal values or at the worst-case "
     "`corner`, the transient run and `.meas` lines (`per`, `freq`, "
-    "`duty`, `vtmax`, `vtmin`, `vtpp`). Trimmed designs at their `wiper`; tuned designs are a "
-    "422 (not exported yet).",
+    "`duty`, `vtmax`, `vtmin`, `vtpp`). Trimmed designs at their `wiper`; tuned designs at "
+    "their `wiper` and `range` (the pot's divider as the board has it; no `corner`).",
 )
 async def post_spice(body: SpiceRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
     d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)

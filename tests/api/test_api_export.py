@@ -85,15 +85,20 @@ def test_spice_is_the_clis_netlist(api: TestClient, saved: dict[str, Any], tmp_p
     assert api.post("/v1/export/spice", json={**saved, "corner": "hot"}).status_code == 422
 
 
-def test_bad_part_and_tuned_design_are_422s_naming_the_field(
+def test_bad_part_and_a_tuned_corner_are_422s_naming_the_field(
     api: TestClient, saved: dict[str, Any]
 ) -> None:
+    """A tuned design exports at the body's ``wiper`` and ``range`` (the CLI's --dial and
+    --range); a worst-case corner is refused for it, naming the field."""
     bad = {**saved, "parts": {**saved["parts"], "R2": "NOPE"}}
     r = api.post("/v1/export/bom", json=bad)
     assert r.status_code == 422 and "R2" in r.text
     spec = tomllib.loads(example_spec_path("tuned").read_text(encoding="utf-8"))
-    tuned = {"spec": spec, "parts": {**saved["parts"], "RV1": "VP-1K00", "R4": "R1F-78K7"}}
+    parts = {**saved["parts"], "RV1": "VP-100K", "R4": "R5J-1K00"}
+    tuned = {"spec": spec, "parts": parts, "wiper": 0.4}
     r = api.post("/v1/export/spice", json=tuned)
-    assert r.status_code == 422 and "tuning" in r.text
+    assert r.status_code == 200 and "range 1 of 1" in r.text and "wiper 0.4" in r.text
+    r = api.post("/v1/export/spice", json={**tuned, "corner": "fmin"})
+    assert r.status_code == 422 and "corner" in r.text
     r = api.post("/v1/export/bom", json={**saved, "boards": 0})
     assert r.status_code == 422 and "boards" in r.text

@@ -15,7 +15,7 @@ from tristock.cli.common import catalog_from, design_from_file
 from tristock.cli.exits import UsageError
 from tristock.cli.output import emit, json_text
 from tristock.export.bom import bill_of_materials, bom_csv
-from tristock.export.spice import spice_netlist
+from tristock.export.spice import spice_netlist, tuned_at
 from tristock.spec.loading import SpecError
 from tristock.stock.atomicio import write_atomic
 
@@ -38,7 +38,19 @@ def run(args: argparse.Namespace) -> int:
         bom = bill_of_materials(design, args.boards or spec.build.boards)
         text = json_text(bom.to_dict()) + "\n" if args.json else bom_csv(bom)
     else:
+        tuned = spec.tuning is not None
+        if not tuned and (args.range is not None or args.dial is not None):
+            raise UsageError(
+                "tristock export spice: --range and --dial set a tuned design's range and "
+                "wiper; this design has no [tuning]"
+            )
         try:
+            if tuned:
+                design = tuned_at(
+                    design,
+                    args.range if args.range is not None else 1,
+                    args.dial if args.dial is not None else 0.5,
+                )
             text = spice_netlist(spec, design, source=source.name, corner=args.corner)
         except SpecError as err:
             raise SpecError([f"{source}: {line}" for line in err.lines]) from None

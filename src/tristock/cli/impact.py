@@ -15,10 +15,12 @@ from tristock.cli import exits
 from tristock.cli.common import catalog_from
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
+from tristock.cli.progress import progress
 from tristock.cli.registry import needed_catalog, open_registry, registry_failures
 from tristock.registry.impact import ImpactSettings, impact
 from tristock.registry.impact_report import ImpactReport
 from tristock.registry.whatif import apply_what_if, parse_what_if
+from tristock.report.text import pct
 from tristock.spec.limits import SPEC_FILE_MAX_BYTES
 from tristock.stock.units import format_value
 
@@ -28,7 +30,7 @@ def _freq(value: float | None) -> str:
 
 
 def _yield(value: float | None) -> str:
-    return f"{value:.1%}" if value is not None else "-"
+    return pct(value) if value is not None else "-"
 
 
 def render_impact(r: ImpactReport) -> str:
@@ -101,7 +103,8 @@ def run(args: argparse.Namespace) -> int:
             workers=args.workers,
             scheduler=args.scheduler,
         )
-        report = impact(active, catalog, settings, overrides)
+        with progress(f"re-solving the designs affected ({len(active)} active)", quiet=args.quiet):
+            report = impact(active, catalog, settings, overrides)
     code = exit_code(report)
     if args.json:
         emit_json(report.model_dump(mode="json"))

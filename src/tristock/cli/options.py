@@ -39,6 +39,14 @@ def finite(text: str) -> float:
     return value
 
 
+def fraction(text: str) -> float:
+    """A number in 0..1 (a wiper position)."""
+    value = finite(text)
+    if not 0.0 <= value <= 1.0:
+        raise argparse.ArgumentTypeError(f"must be 0..1, got {text}")
+    return value
+
+
 def seconds(most: float) -> Callable[[str], float]:
     """A duration in seconds: finite, above zero, at most ``most``."""
 

@@ -13,7 +13,7 @@ from typing import Any, NoReturn, TypeAlias
 
 from tristock import __version__
 from tristock.cli.exits import EPILOG, UsageError
-from tristock.cli.options import finite, seconds, text, whole
+from tristock.cli.options import finite, fraction, seconds, text, whole
 from tristock.cli.output import write_quietly
 from tristock.cli.registry_parser import add_registry_commands
 from tristock.examples import EXAMPLES
@@ -56,9 +56,26 @@ def _add_count(
     )
 
 
-def _command(sub: Subparsers, name: str, helptext: str) -> argparse.ArgumentParser:
+def examples(*lines: str) -> str:
+    """An epilog: the examples, then the exit codes."""
+    return "example:\n" + "".join(f"  {x}\n" for x in lines) + "\n" + EPILOG
+
+
+def _command(sub: Subparsers, name: str, helptext: str, *example: str) -> argparse.ArgumentParser:
     return sub.add_parser(
-        name, help=helptext, epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter
+        name,
+        help=helptext,
+        epilog=examples(*example) if example else EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+
+
+def _quiet(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--quiet",
+        "-q",
+        action="store_true",
+        help="print only the result: no progress, no notes (progress shows on a terminal only)",
     )
 
 
@@ -75,7 +92,13 @@ def _time_limit(p: argparse.ArgumentParser) -> None:
 
 
 def _design(sub: Subparsers) -> None:
-    d = _command(sub, "design", "search the catalog for the best designs for a spec")
+    d = _command(
+        sub,
+        "design",
+        "search the catalog for the best designs for a spec",
+        "tristock design --example --save 1 rank1.toml",
+        "tristock design spec.toml --catalog shop --top 5 --by cost --explain 2",
+    )
     d.add_argument("spec", nargs="?", type=text("a spec file"), help="spec file (TOML or JSON)")
     d.add_argument(
         "--example",
@@ -110,13 +133,39 @@ def _design(sub: Subparsers) -> None:
         metavar="DIR",
         help="write every design as DIR/rank-N.toml (DIR must exist)",
     )
+    d.add_argument(
+        "--all-variants",
+        action="store_true",
+        help="rank every variant on its own (default: the top are distinct designs, each "
+        "with an 'also:' line of its variants: R1/R2 scaled, U1 in another package, a part "
+        "of equal value, tolerance and tempco under another code)",
+    )
+    d.add_argument("--wide", action="store_true", help="the table with units and timing share")
+    d.add_argument(
+        "--explain",
+        type=whole(1, limits.TOP[1]),
+        metavar="N",
+        help="also print design N's findings, sensitivities and the circuit's sketch",
+    )
+    _quiet(d)
     d.set_defaults(handler="design")
 
 
 def _one_design(sub: Subparsers) -> None:
-    a = _command(sub, "analyse", "nominal, worst case, yield, sensitivities of one design")
-    s = _command(sub, "simulate", "time-domain simulation of one design against the model")
+    a = _command(
+        sub,
+        "analyse",
+        "nominal, worst case, yield, sensitivities of one design",
+        "tristock analyse rank1.toml --catalog catalogs/demo --samples 50000",
+    )
+    s = _command(
+        sub,
+        "simulate",
+        "time-domain simulation of one design against the model",
+        "tristock simulate rank1.toml --catalog catalogs/demo --plot wave.png",
+    )
     for p in (a, s):
+        _quiet(p)
         p.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
         p.add_argument(
             "--catalog", type=text("a folder"), help="catalog folder (default: TRISTOCK_CATALOG)"
@@ -138,7 +187,13 @@ def _one_design(sub: Subparsers) -> None:
 
 
 def _reoptimise(sub: Subparsers) -> None:
-    r = _command(sub, "reoptimise", "fewest part changes that bring a design back in spec")
+    r = _command(
+        sub,
+        "reoptimise",
+        "fewest part changes that bring a design back in spec",
+        "tristock reoptimise rank1.toml --catalog shop --without CPPG-2N20 --boards 200",
+    )
+    _quiet(r)
     r.add_argument("design", type=text("a design file"), help="DESIGN file: spec + parts")
     r.add_argument(
         "--catalog", type=text("a folder"), help="catalog folder (default: TRISTOCK_CATALOG)"
@@ -158,13 +213,31 @@ def _reoptimise(sub: Subparsers) -> None:
 
 
 def _catalog(sub: Subparsers) -> None:
-    c = _command(sub, "catalog", "check, generate or update part tables")
+    c = _command(
+        sub,
+        "catalog",
+        "check, generate or update part tables",
+        "tristock catalog check catalogs/demo",
+    )
     csub = c.add_subparsers(dest="catalog_command", required=True, parser_class=_Parser)
-    ck = csub.add_parser("check", help="validate every table of a catalog folder")
+    ck = csub.add_parser(
+        "check",
+        help="validate every table of a catalog folder (and its catalog.toml)",
+        epilog=examples("tristock catalog check catalogs/demo"),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     ck.add_argument("dir", type=text("a folder"))
     ck.set_defaults(handler="catalog", action="check")
 
-    g = csub.add_parser("generate", help="write a resistor or capacitor table for an E-series")
+    g = csub.add_parser(
+        "generate",
+        help="write a resistor or capacitor table for an E-series",
+        epilog=examples(
+            "tristock catalog generate --kind resistor --series E96 --from 10 --to 1M "
+            "--tolerance 1 --tempco 100 -o resistors.csv"
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     g.add_argument("--kind", choices=["resistor", "capacitor"], required=True)
     g.add_argument("--series", required=True, type=text("a series"), help="E3 .. E192")
     g.add_argument("--from", dest="low", required=True, help="lowest value (e.g. 10, 4k7, 10p)")
@@ -186,7 +259,8 @@ def _catalog(sub: Subparsers) -> None:
     ss = csub.add_parser(
         "set-stock",
         help="set the pieces on hand of one part, or change them by --delta (atomic)",
-        epilog="example: tristock catalog set-stock shop CPPG-2N20 -150 --delta",
+        epilog=examples("tristock catalog set-stock shop CPPG-2N20 -150 --delta"),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     ss.add_argument("dir", type=text("a folder"))
     ss.add_argument("id", type=text("a stock code"))
@@ -197,18 +271,28 @@ def _catalog(sub: Subparsers) -> None:
 
 
 def _export(sub: Subparsers) -> None:
-    e = _command(sub, "export", "hand-off files of one design: a BOM or an ngspice netlist")
+    e = _command(
+        sub,
+        "export",
+        "hand-off files of one design: a BOM or an ngspice netlist",
+        "tristock export bom rank1.toml --catalog catalogs/demo --boards 250 -o bom.csv",
+    )
     esub = e.add_subparsers(dest="export_command", required=True, parser_class=_Parser)
     b = esub.add_parser(
         "bom",
         help="bill of materials for a build (CSV, UTF-8, header row, a total row)",
-        epilog=EPILOG,
+        epilog=examples(
+            "tristock export bom rank1.toml --catalog catalogs/demo --boards 250 -o bom.csv"
+        ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     s = esub.add_parser(
         "spice",
-        help="ngspice netlist at nominal values with .meas lines (fixed and trimmed designs)",
-        epilog=EPILOG,
+        help="ngspice netlist with .meas lines (tuned designs at --range and --dial)",
+        epilog=examples(
+            "tristock export spice rank1.toml --catalog catalogs/demo -o osc.cir",
+            "tristock export spice tuned.toml --catalog catalogs/demo --range 2 --dial 0.25",
+        ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     for p in (b, s):
@@ -227,11 +311,23 @@ def _export(sub: Subparsers) -> None:
         choices=["fmin", "fmax", "amin", "amax"],
         help="build at a worst-case extreme of frequency or amplitude (default: nominal)",
     )
+    _add_count(s, "--range", (1, 8), "tuned designs: the range in use, C1 the lowest", None)
+    s.add_argument(
+        "--dial",
+        type=fraction,
+        metavar="X",
+        help="tuned designs: the pot's wiper, 0..1 as in the DESIGN file (default 0.5)",
+    )
     s.set_defaults(handler="export", action="spice")
 
 
 def _serve(sub: Subparsers) -> None:
-    sv = _command(sub, "serve", "run the HTTP API (loopback only by default)")
+    sv = _command(
+        sub,
+        "serve",
+        "run the HTTP API (loopback only by default)",
+        "tristock serve --catalog shop --port 8000   # stock writes need TRISTOCK_TOKEN",
+    )
     sv.add_argument("--host", default="127.0.0.1", type=text("an address"), help="address")
     _add_count(sv, "--port", limits.PORT, "TCP port; 0 picks a free one", 8000)
     sv.add_argument("--catalog", type=text("a folder"), help="catalog folder (default: the demo)")
@@ -244,6 +340,21 @@ def _serve(sub: Subparsers) -> None:
     sv.set_defaults(handler="serve")
 
 
+def _sketch(sub: Subparsers) -> None:
+    k = _command(
+        sub,
+        "sketch",
+        "print a circuit's ASCII sketch naming every designator",
+        "tristock sketch --circuit opamp_schmitt",
+    )
+    k.add_argument(
+        "--circuit",
+        type=text("a topology name"),
+        help="a registered topology (default: the first; an unknown name lists them)",
+    )
+    k.set_defaults(handler="sketch")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The whole ``tristock`` parser; ``args.handler`` names the command module to run."""
     p = _Parser(
@@ -254,7 +365,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--version", action="version", version=f"tristock {__version__}")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
-    for add in (_design, _one_design, _reoptimise, _catalog, _export, _serve):
+    for add in (_design, _one_design, _reoptimise, _catalog, _export, _serve, _sketch):
         add(sub)
     add_registry_commands(sub)
     return p

@@ -34,6 +34,7 @@ from tristock.registry.release import design_mapping, draft_from
 from tristock.registry.revise import accept, diff, plan
 from tristock.registry.runner import SchedulerUnavailable
 from tristock.registry.whatif import WhatIfError
+from tristock.report.text import pct
 from tristock.stock.units import format_value
 
 
@@ -79,7 +80,7 @@ def render_summary(rows: list[DesignSummary]) -> str:
     lines = [f"{'name':<20} {'rev':>4} {'kind':<8} {'boards':>7} {'frequency':>12} {'yield':>7}"]
     for r in rows:
         freq = format_value(r.frequency_hz, "Hz", 5) if r.frequency_hz else "-"
-        y = f"{r.yield_fraction:.1%}" if r.yield_fraction is not None else "-"
+        y = pct(r.yield_fraction) if r.yield_fraction is not None else "-"
         flag = "  (retired)" if r.retired else ""
         lines.append(
             f"{r.name:<20} {r.revision:>4} {r.kind:<8} {r.boards:>7} {freq:>12} {y:>7}{flag}"
@@ -94,7 +95,7 @@ def render_revision(r: RevisionOut) -> str:
         f"at {r.created_at}{'  (retired)' if r.retired else ''}",
         "  parts     " + ", ".join(f"{k} {v}" for k, v in r.parts.items()),
         f"  predicted {format_value(p.get('frequency_hz', 0.0), 'Hz', 5)}, "
-        f"{p.get('amplitude_vpp', 0.0):.4g} Vpp, yield {r.analysis.get('yield_fraction', 0):.1%}, "
+        f"{p.get('amplitude_vpp', 0.0):.4g} Vpp, yield {pct(r.analysis.get('yield_fraction', 0))}, "
         f"cost {r.analysis.get('cost', 0):.3f}",
         f"  catalog   {r.catalog_fingerprint}",
     ]

@@ -48,15 +48,29 @@ def _json(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="one JSON object on stdout")
 
 
-def _command(sub: Any, name: str, helptext: str) -> argparse.ArgumentParser:
+def _command(sub: Any, name: str, helptext: str, *example: str) -> argparse.ArgumentParser:
+    epilog = "example:\n" + "".join(f"  {x}\n" for x in example) + "\n" + EPILOG
     parser: argparse.ArgumentParser = sub.add_parser(
-        name, help=helptext, epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter
+        name, help=helptext, epilog=epilog, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    return parser
+
+
+def _sub(dsub: Any, name: str, helptext: str, example: str) -> argparse.ArgumentParser:
+    epilog = f"example:\n  {example}\n\n{EPILOG}"
+    parser: argparse.ArgumentParser = dsub.add_parser(
+        name, help=helptext, epilog=epilog, formatter_class=argparse.RawDescriptionHelpFormatter
     )
     return parser
 
 
 def _release(sub: Any) -> None:
-    r = _command(sub, "release", "store a design that meets its spec as the next revision")
+    r = _command(
+        sub,
+        "release",
+        "store a design that meets its spec as the next revision",
+        "tristock release demo.json --name sweep-ref --boards 100 --catalog shop",
+    )
     r.add_argument(
         "design", type=text("a design file"), help="DESIGN file, or a `design --json` answer"
     )
@@ -70,27 +84,55 @@ def _release(sub: Any) -> None:
 
 
 def _designs(sub: Any) -> None:
-    d = _command(sub, "designs", "list, show, compare, plan, retire or accept released designs")
+    d = _command(
+        sub,
+        "designs",
+        "list, show, compare, plan, retire or accept released designs",
+        "tristock designs list",
+        "tristock designs diff sweep-ref@1 sweep-ref@2",
+    )
     dsub = d.add_subparsers(dest="designs_command", required=True, parser_class=type(d))
-    ls = dsub.add_parser("list", help="every design with its latest revision")
+    ls = _sub(dsub, "list", "every design with its latest revision", "tristock designs list --all")
     ls.add_argument("--all", action="store_true", help="retired designs too")
-    show = dsub.add_parser("show", help="one revision (default: the latest)")
+    show = _sub(
+        dsub, "show", "one revision (default: the latest)", "tristock designs show sweep-ref@1"
+    )
     show.add_argument("ref", type=text("NAME or NAME@REV"), metavar="NAME[@REV]")
     show.add_argument(
         "--design-file", action="store_true", help="print the revision as a DESIGN file (JSON)"
     )
-    diff = dsub.add_parser("diff", help="what changed between two revisions")
+    diff = _sub(
+        dsub,
+        "diff",
+        "what changed between two revisions",
+        "tristock designs diff sweep-ref@1 sweep-ref@2",
+    )
     diff.add_argument("before", type=text("NAME@REV"), metavar="NAME@A")
     diff.add_argument("after", type=text("NAME@REV"), metavar="NAME@B")
-    plan = dsub.add_parser("plan", help="set the planned build (a new revision) and check stock")
+    plan = _sub(
+        dsub,
+        "plan",
+        "set the planned build (a new revision) and check stock",
+        "tristock designs plan sweep-ref --boards 300 --catalog shop",
+    )
     plan.add_argument("name", type=text("a name"), metavar="NAME")
     plan.add_argument(
         "--boards", required=True, type=whole(*limits.BOARDS), metavar="N",
         help=f"planned build ({limits.BOARDS[0]}..{limits.BOARDS[1]})",
     )  # fmt: skip
-    retire = dsub.add_parser("retire", help="retire a design: its builds no longer count")
+    retire = _sub(
+        dsub,
+        "retire",
+        "retire a design: its builds no longer count",
+        "tristock designs retire sweep-ref",
+    )
     retire.add_argument("name", type=text("a name"), metavar="NAME")
-    accept = dsub.add_parser("accept", help="record an impact proposal's change as a revision")
+    accept = _sub(
+        dsub,
+        "accept",
+        "record an impact proposal's change as a revision",
+        "tristock designs accept sweep-ref --proposal proposal.json --catalog shop",
+    )
     accept.add_argument("name", type=text("a name"), metavar="NAME")
     accept.add_argument(
         "--proposal", required=True, type=text("a file"), help="`tristock impact --json` output"
@@ -103,7 +145,12 @@ def _designs(sub: Any) -> None:
 
 
 def _impact(sub: Any) -> None:
-    i = _command(sub, "impact", "over-subscribed stock, affected designs, the fewest changes")
+    i = _command(
+        sub,
+        "impact",
+        "over-subscribed stock, affected designs, the fewest changes",
+        "tristock impact --catalog shop --what-if stock-change.csv --json > proposal.json",
+    )
     _where(i, catalog_needed=True)
     i.add_argument(
         "--what-if",
@@ -126,6 +173,9 @@ def _impact(sub: Any) -> None:
         f"(default {limits.DEFAULT_TIME_LIMIT_S:g})",
     )
     _count(i, "--top", IMPACT_TOP, "answers kept from each re-optimisation", 5)
+    i.add_argument(
+        "--quiet", "-q", action="store_true", help="no progress (shown on a terminal only)"
+    )
     _json(i)
     i.set_defaults(handler="impact")
 

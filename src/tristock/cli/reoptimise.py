@@ -9,52 +9,74 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
+from typing import Any
 
 from tristock.circuits.board import part_ids
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, parsed_in, read_file
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
+from tristock.cli.progress import progress
 from tristock.designs.reoptimise import reoptimise
-from tristock.designs.results import ReoptimiseResult
+from tristock.designs.results import Predicted, ReoptimiseResult
+from tristock.report.text import pct, value_range, wrap_all
 from tristock.spec import limits
 from tristock.spec.loading import parse_spec
 from tristock.stock.units import format_value
 
 
-def render_reoptimise(result: ReoptimiseResult) -> str:
+def _figures(predicted: Predicted | None, yield_fraction: float | None, wc: Any) -> list[str]:
+    """f, Vpp, yield and worst-case f of one design ("-" where not analysed)."""
+    f = format_value(predicted.frequency_hz, "Hz", 5) if predicted else "-"
+    a = f"{predicted.amplitude_vpp:.4g} Vpp" if predicted else "- Vpp"
+    y = pct(yield_fraction) if yield_fraction is not None else "-"
+    band = wc.get("frequency_hz") if isinstance(wc, dict) else None
+    w = value_range(band[0], band[1], "Hz", 4) if band else "-"
+    return [f, a, y, w]
+
+
+def render_reoptimise(result: ReoptimiseResult, *, quiet: bool = False) -> str:
+    """The original design, each answer's changes, and the figures before and after: f, Vpp,
+    yield into both bands and worst-case f."""
     o = result.original
-    lines = [
+    before = _figures(o.predicted, o.yield_fraction, o.worst_case)
+    lines = [] if quiet else [
         "tristock reoptimise",
         "  design    " + ", ".join(f"{k} {v}" for k, v in o.parts.items()),
         f"  status    {'passes the spec, nothing to change' if o.passes else 'needs changes'}",
         *(f"            - {r}" for r in o.reasons),
-    ]
-    if result.shortfall:
+        f"  before    f {before[0]}, {before[1]}, yield {before[2]}, worst-case f {before[3]}",
+    ]  # fmt: skip
+    if result.shortfall and not quiet:
         lines.append(f"  shortfall for {result.spec.build.boards} boards:")
         lines += [
             f"            {s.designator} {s.id}: need {s.needed}, have {s.stock}, short {s.short}"
             for s in result.shortfall
         ]
-    lines.append("")
+    lines += [] if quiet else [""]
     if result.infeasible:
         lines.append("No design meets the spec, even with every position free:")
         lines += [f"  - {r}" for r in result.infeasible.reasons]
     for c in result.candidates:
+        after = _figures(c.predicted, c.yield_fraction, c.worst_case)
         lines.append(
-            f"{c.rank:>2}. {len(c.changed)} change(s): "
-            f"{format_value(c.predicted.frequency_hz, 'Hz', 5)} ({c.error.frequency_pct:+.2f} %), "
-            f"{c.predicted.amplitude_vpp:.4g} Vpp, yield {c.yield_fraction:.1%}, cost {c.cost:.3f}"
+            f"{c.rank:>2}. {len(c.changed)} change(s), cost {c.cost:.3f}, "
+            f"f {pct(c.error.frequency_pct / 100, 2, sign=True)} from the target"
         )
         for ch in c.changes:
             lines.append(f"      {ch.designator}: {ch.from_id} -> {ch.to_id}  ({ch.why})")
+        names = ("f", "Vpp", "yield", "worst-case f")
+        for name, old, new in zip(names, before, after, strict=True):
+            lines.append(f"      {name:<13} {old:>16} -> {new}")
+    if quiet:
+        return "\n".join(wrap_all(lines))
     s = result.search
     lines += [
         "",
         f"search: fewest changes proven by exhaustive search of each smaller count; "
         f"{'proven' if s.proven_optimal else 'NOT proven (time limit)'}, {s.elapsed_s:.2f} s",
     ]
-    return "\n".join(lines)
+    return "\n".join(wrap_all(lines))
 
 
 def exit_code(result: ReoptimiseResult) -> int:
@@ -78,20 +100,21 @@ def run(args: argparse.Namespace) -> int:
     spec = parsed_in(path, parse_spec, data.get("spec", {}))
     current = parsed_in(path, part_ids, data.get("parts"))
     catalog = catalog_from(args.catalog)
-    result = reoptimise(
-        spec,
-        catalog,
-        current,
-        without=without,
-        boards=args.boards,
-        top=args.top,
-        time_limit_s=args.time_limit,
-    )
+    with progress("re-optimising", quiet=args.quiet):
+        result = reoptimise(
+            spec,
+            catalog,
+            current,
+            without=without,
+            boards=args.boards,
+            top=args.top,
+            time_limit_s=args.time_limit,
+        )
     code = exit_code(result)
     if args.json:
         emit_json(result.model_dump(mode="json"))
     else:
-        emit(render_reoptimise(result))
+        emit(render_reoptimise(result, quiet=args.quiet))
     if code == exits.NO_DESIGN and args.json:  # the reasons are in the JSON; say so here too
         reasons = result.infeasible.reasons if result.infeasible else []
         complain("tristock reoptimise: no design meets the spec: " + "; ".join(reasons))

@@ -15,7 +15,9 @@ from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file, plot_target
 from tristock.cli.exits import WorkFailed
 from tristock.cli.output import emit, emit_json
+from tristock.cli.progress import progress
 from tristock.report.board import headline_difference, require_oscillation, simulation_report
+from tristock.report.text import pct
 from tristock.simulate import SimulationError, SimulationResult, simulate
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
@@ -52,7 +54,7 @@ def render_simulation(spec: Spec, d: Design, result: SimulationResult) -> str:
                 "Vpp",
                 diff["amplitude_rel"],
             ),
-            f"  {'duty high':<10} {m.duty_high:>14.4%} {float(full.duty_high):>14.4%}"
+            f"  {'duty high':<10} {pct(m.duty_high, 4):>14} {pct(float(full.duty_high), 4):>14}"
             f" {100 * diff['duty_abs']:>+9.4f} pt",
             f"  simulation: {engine}; model: the full prediction (as analyse),",
             f"  op-amp timing {100 * float(full.timing_share):.1f} % of the period",
@@ -66,12 +68,13 @@ def run(args: argparse.Namespace) -> int:
     require_oscillation(spec, d, corners=False)  # the simulation runs on the nominal rails
     osc = d.oscillator(rails_from_supply(spec.supply))
     try:
-        result = simulate(osc, periods=args.periods, topology=d.topology)
-        data = (
-            simulation_report(spec, d, periods=args.periods, max_points=args.max_points)
-            if args.json
-            else None
-        )
+        with progress(f"simulating {args.periods} periods", quiet=args.quiet):
+            result = simulate(osc, periods=args.periods, topology=d.topology)
+            data = (
+                simulation_report(spec, d, periods=args.periods, max_points=args.max_points)
+                if args.json
+                else None
+            )
     except SimulationError as err:
         raise WorkFailed(f"tristock simulate: {err}") from None
     if plot is not None:
@@ -82,7 +85,7 @@ def run(args: argparse.Namespace) -> int:
         emit_json(data)
     else:
         text = render_simulation(spec, d, result)
-        if plot is not None:
+        if plot is not None and not args.quiet:
             text += f"\nplot written to {plot}"
         emit(text)
     return exits.OK

@@ -23,10 +23,13 @@ def design(
     time_limit_s: float | None = None,
     samples: int = 4000,
     seed: int = 0,
+    distinct: bool = False,
 ) -> DesignResult:
     """Best ``spec.ranking.top`` designs from ``catalog``, optimal under the full model, by
     the job the spec asks for (``engine`` applies to fixed designs); every candidate carries
-    its DESIGN file (``design_file``). ``time_limit_s``: None takes
+    its DESIGN file (``design_file``). ``distinct``: the top are distinct designs, each with
+    its variants (``designs.variants``; the CLI's and the API's default), else every variant
+    ranks on its own. ``time_limit_s``: None takes
     ``tristock.spec.limits.default_time_limit_s`` of the spec's job (5 s; 30 s tuned)."""
     if time_limit_s is None:
         time_limit_s = default_time_limit_s(spec.tuning is not None)
@@ -35,16 +38,24 @@ def design(
         from tristock.designs.trimmed import design_trimmed
 
         result = design_trimmed(
-            spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed
+            spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed, distinct=distinct
         )
     elif spec.tuning is not None:
         # Loaded on use: the tuned search is the heaviest import and most runs never need it.
         from tristock.designs.tuned import design_tuned
 
-        result = design_tuned(spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed)
+        result = design_tuned(
+            spec, catalog, time_limit_s=time_limit_s, samples=samples, seed=seed, distinct=distinct
+        )
     else:
         result = design_fixed(
-            spec, catalog, engine=engine, time_limit_s=time_limit_s, samples=samples, seed=seed
+            spec,
+            catalog,
+            engine=engine,
+            time_limit_s=time_limit_s,
+            samples=samples,
+            seed=seed,
+            distinct=distinct,
         )
     for c in result.candidates:
         c.design_file = saved_design(spec, c)

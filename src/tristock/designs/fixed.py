@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Hashable
 from dataclasses import dataclass
 from typing import Literal
 
@@ -18,6 +19,7 @@ from tristock.analysis.worstcase import worst_case
 from tristock.circuits.board import Design
 from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
 from tristock.designs.results import DesignResult, Infeasible, SearchInfo
+from tristock.designs.variants import distinct_top, variant_key, variants_out
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
@@ -97,25 +99,29 @@ def _walk(
     samples: int,
     seed: int,
     deadline: float,
+    distinct: bool,
 ) -> tuple[list[tuple[Design, int, int | None]], int, bool, bool]:
     """Re-check rows in rank order until the top is settled.
 
     Returns the rows that pass (design, score, yield count), how many were dropped, whether
-    the top is settled (no unchecked row can rank above the ``top``-th kept one) and whether
-    the deadline cut the walk. In the yield ranking the key is (-yield, search order): a row
-    never checked can at best tie at yield 1, after every checked row, so the top is settled
-    once ``top`` kept rows have every sample passing; a row whose count cannot beat the
-    ``top``-th kept one is not counted to the end.
+    the top is settled (no unchecked row can rank above the ``top``-th kept class) and
+    whether the deadline cut the walk. A class is one row, or with ``distinct`` every variant
+    of one design (``designs.variants``), ranked where its best row ranks. In the yield
+    ranking the key is (-yield, search order): a row never checked can at best tie at yield
+    1, after every checked row, so the top is settled once ``top`` classes have a kept row
+    with every sample passing; a row whose count cannot beat the ``top``-th class's best is
+    not counted to the end (it ranks after that class and after its own class's best).
     """
     top = spec.ranking.top
     by_yield = spec.ranking.by == "yield"
     kept: list[tuple[Design, int, int | None]] = []
+    best: dict[Hashable, int] = {}  # class -> best pass count of its kept rows (0 unranked)
     dropped = 0
 
     def settled() -> bool:
         if not by_yield:
-            return len(kept) >= top
-        return sum(p == samples for _, _, p in kept) >= top
+            return len(best) >= top
+        return sum(p == samples for p in best.values()) >= top
 
     for n in range(len(rows)):
         if settled():
@@ -124,7 +130,7 @@ def _walk(
             return kept, dropped, False, True
         d = design_of(model, rows, n)
         ids = tuple(p.id for p in d.parts().values())
-        counts = sorted((p or 0 for _, _, p in kept), reverse=True)
+        counts = sorted(best.values(), reverse=True)
         beat = counts[top - 1] if by_yield and len(counts) >= top else -1
         if ids not in verdicts or (not verdicts[ids].exact and (verdicts[ids].passed or 0) > beat):
             verdicts[ids] = _recheck(spec, d, samples, seed, beat)
@@ -133,6 +139,8 @@ def _walk(
             dropped += 1
         elif v.exact:
             kept.append((d, int(rows.primary[n]), v.passed))
+            cls = variant_key(d) if distinct else n
+            best[cls] = max(best.get(cls, 0), v.passed or 0)
     return kept, dropped, settled(), False
 
 
@@ -144,8 +152,11 @@ def design_fixed(
     time_limit_s: float = DEFAULT_TIME_LIMIT_S,
     samples: int = 4000,
     seed: int = 0,
+    distinct: bool = False,
 ) -> DesignResult:
-    """Best ``spec.ranking.top`` fixed designs from ``catalog``, optimal under the full model.
+    """Best ``spec.ranking.top`` fixed designs from ``catalog``, optimal under the full model;
+    with ``distinct`` the best ``top`` distinct designs (``designs.variants``), each with the
+    variants that rank above the last one reported.
 
     The engines list rows in rank order, each scored by the full model at nominal values;
     the guarantee (worst case over the spread box, Monte Carlo yield) and the yield ranking
@@ -156,7 +167,7 @@ def design_fixed(
     deadline = t0 + time_limit_s
     model = build_model(spec, catalog)
     top = spec.ranking.top
-    want = top
+    want = 2 * top if distinct else top  # distinct: variants take places in the row list
     verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done
     evaluated = 0
     while True:
@@ -164,7 +175,7 @@ def design_fixed(
         found = run_engine(model, engine, want, remaining)
         evaluated += found.evaluated
         kept, dropped, settled, cut = _walk(
-            spec, model, found.rows, verdicts, samples, seed, deadline
+            spec, model, found.rows, verdicts, samples, seed, deadline, distinct
         )
         exhausted = len(found.rows) < want
         if settled or exhausted or cut or time.perf_counter() > deadline:
@@ -173,11 +184,16 @@ def design_fixed(
         want *= 4
     if spec.ranking.by == "yield":
         kept.sort(key=lambda k: -(k[2] or 0))  # stable: search order within a yield
-    kept = kept[:top]
-    candidates = [
-        candidate(spec, d, analyse(d, spec, samples=samples, seed=seed), i + 1, score)
-        for i, (d, score, _) in enumerate(kept)
-    ]
+    if distinct:
+        chosen = distinct_top([d for d, _, _ in kept], top)
+    else:
+        chosen = [(n, []) for n in range(min(top, len(kept)))]
+    candidates = []
+    for rank, (n, others) in enumerate(chosen, start=1):
+        d, score, _ = kept[n]
+        c = candidate(spec, d, analyse(d, spec, samples=samples, seed=seed), rank, score)
+        c.variants = variants_out(d, others)
+        candidates.append(c)
     infeasible = None
     if not candidates and proven:
         infeasible = Infeasible(reasons=infeasible_reasons(model, catalog, dropped))
@@ -194,6 +210,7 @@ def design_fixed(
             score_resolution=SCORE_RESOLUTION,
             dropped_by_full_model=dropped,
             time_limit_s=time_limit_s,
+            distinct=distinct,
         ),
         cautions=CAUTIONS,
     )

@@ -14,6 +14,7 @@ from __future__ import annotations
 import time
 from collections.abc import Sequence
 from itertools import combinations
+from typing import Any
 
 import numpy as np
 
@@ -113,6 +114,7 @@ def reoptimise(
 
     reasons = list(dict.fromkeys([*blocked.values(), *shared.values()]))
     predicted = None
+    before: dict[str, Any] = {}  # the original's yield and worst case, when analysed
     full_model_passes = False
     if all(pid in catalog for pid in current.values()):
         original = resolve(current, catalog)
@@ -121,8 +123,10 @@ def reoptimise(
         except ValueError as err:  # it cannot even be built on these rails
             reasons.append(f"the full model cannot analyse it: {err}")
         else:
-            p = result.to_dict()["predicted"]
+            figures = result.to_dict()
+            p = figures["predicted"]
             predicted = Predicted(**p)
+            before = {k: figures[k] for k in ("yield_fraction", "worst_case")}
             if passes(spec, original, result):
                 full_model_passes = True
             else:
@@ -188,7 +192,11 @@ def reoptimise(
     return ReoptimiseResult(
         spec=spec,
         original=OriginalDesign(
-            parts=dict(current), passes=original_passes, reasons=reasons, predicted=predicted
+            parts=dict(current),
+            passes=original_passes,
+            reasons=reasons,
+            predicted=predicted,
+            **before,
         ),
         candidates=kept,
         infeasible=infeasible,

@@ -90,6 +90,19 @@ class SavedDesign(_Out):
     range: str = "C1"
 
 
+class VariantOut(_Out):
+    """Another board of a candidate's class (``designs.variants``: R1/R2 scaled together,
+    U1 of the same electrical parameters in another package, a part of equal value,
+    tolerance and tempco under another stock code). ``parts``: designator -> stock code;
+    ``differs``: the designators whose stock codes differ from the candidate's; ``cost``:
+    per board; ``rank_all``: its place in the list with every variant (``--all-variants``)."""
+
+    parts: dict[str, str]
+    differs: list[str]
+    cost: float
+    rank_all: int
+
+
 class Candidate(_Out):
     rank: int
     parts: dict[str, PartOut]
@@ -107,6 +120,9 @@ class Candidate(_Out):
     trim: TrimOut | None = None
     tuning: TuningOut | None = None
     design_file: SavedDesign | None = None  # set by ``designs.design`` for every answer
+    #: Distinct answers: the accepted variants of this design that rank above the last
+    #: distinct design reported, in rank order (empty when every variant is listed).
+    variants: list[VariantOut] = []
 
 
 class Infeasible(_Out):
@@ -122,6 +138,9 @@ class SearchInfo(_Out):
     score_resolution: float
     dropped_by_full_model: int
     time_limit_s: float
+    #: True: the top k are k distinct designs, variants listed under each (the default of
+    #: the CLI and the API); False: every variant ranked on its own.
+    distinct: bool = False
 
 
 class DesignResult(_Out):
@@ -155,10 +174,16 @@ class Shortfall(_Out):
 
 
 class OriginalDesign(_Out):
+    """The design as it was: ``yield_fraction`` and ``worst_case`` (the analysis's, as in a
+    candidate) when the full model analysed it (fixed and tuned designs; a tuned one at
+    mid-dial of C1), for the before/after comparison."""
+
     parts: dict[str, str]
     passes: bool
     reasons: list[str]
     predicted: Predicted | None
+    yield_fraction: float | None = None
+    worst_case: dict[str, Any] | None = None
 
 
 class ReoptimiseResult(_Out):

@@ -43,6 +43,7 @@ from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.rows import BUILDERS as BASIC_BUILDERS
 from tristock.stock.rows import RowReader
+from tristock.stock.settings import read_settings
 
 #: Row builders of every table kind: the basic tables' and the diode table's.
 BUILDERS = {**BASIC_BUILDERS, "diodes": build_diode}
@@ -319,7 +320,8 @@ def read_table_file(path: Path) -> TableData:
 
 
 def load_catalog(path: str | os.PathLike[str]) -> Catalog:
-    """Load and validate the catalog directory ``path``; CatalogError lists every problem.
+    """Load and validate the catalog directory ``path`` (its tables and the optional
+    ``catalog.toml``, ``stock.settings``); CatalogError lists every problem.
 
     First removes our temporary files older than a minute (left by a killed write; best
     effort, nothing happens in a read-only folder).
@@ -329,9 +331,20 @@ def load_catalog(path: str | os.PathLike[str]) -> Catalog:
         raise CatalogError([CatalogIssue(str(directory), None, None, "not a catalog directory")])
     files = table_files(directory)
     clean_stale_temps(directory, [f.name for f in files])
-    return parse_catalog(
-        directory, {kind: read_table_file(f) for kind, f in zip(KINDS, files, strict=True)}
-    )
+    issues: list[CatalogIssue] = []
+    try:
+        read_settings(directory)  # catalog.toml beside the tables, checked with them
+    except CatalogError as err:
+        issues = err.errors
+    try:
+        catalog = parse_catalog(
+            directory, {kind: read_table_file(f) for kind, f in zip(KINDS, files, strict=True)}
+        )
+    except CatalogError as err:
+        raise CatalogError(issues + err.errors) from None
+    if issues:
+        raise CatalogError(issues)
+    return catalog
 
 
 def part_version(part: Part) -> str:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Hashable
 
 from tristock.analysis.bundle import analyse
 from tristock.designs.candidate import CAUTIONS, candidate
@@ -12,6 +13,7 @@ from tristock.designs.trimmed.context import TrimContext, trim_context
 from tristock.designs.trimmed.explain import trimmed_reasons
 from tristock.designs.trimmed.rows import row_design
 from tristock.designs.trimmed.walk import Accepted, TrimSearch, walk
+from tristock.designs.variants import distinct_top, variant_key, variants_out
 from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -46,21 +48,38 @@ def search_space(ctx: TrimContext) -> int:
 
 
 def design_trimmed(
-    spec: Spec, catalog: Catalog, *, time_limit_s: float, samples: int = 4000, seed: int = 0
+    spec: Spec,
+    catalog: Catalog,
+    *,
+    time_limit_s: float,
+    samples: int = 4000,
+    seed: int = 0,
+    distinct: bool = False,
 ) -> DesignResult:
     """The ``spec.ranking.top`` best trimmed designs, optimal under the full model (see the
-    ``tristock.designs.trimmed`` docstring). The time limit bounds the search and the coverage
+    ``tristock.designs.trimmed`` docstring); with ``distinct`` the best ``top`` distinct
+    designs (``designs.variants``). The time limit bounds the search and the coverage
     checks; the analysis of each answer reported comes on top."""
     assert spec.trim is not None
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
     ctx = trim_context(spec, catalog)
     search = TrimSearch(ctx, deadline)
-    walked = walk([search], spec.ranking.top, deadline)
-    candidates = [
-        trimmed_candidate(ctx, found, rank, samples=samples, seed=seed)
-        for rank, found in enumerate(walked.accepted, start=1)
-    ]
+
+    def classify(found: Accepted) -> Hashable:
+        return variant_key(row_design(ctx, found.row, 0))
+
+    walked = walk([search], spec.ranking.top, deadline, classify=classify if distinct else None)
+    boards = [row_design(ctx, found.row, 0) for found in walked.accepted]
+    if distinct:
+        chosen = distinct_top(boards, spec.ranking.top)
+    else:
+        chosen = [(n, []) for n in range(len(boards))]
+    candidates = []
+    for rank, (n, others) in enumerate(chosen, start=1):
+        c = trimmed_candidate(ctx, walked.accepted[n], rank, samples=samples, seed=seed)
+        c.variants = variants_out(boards[n], others)
+        candidates.append(c)
     infeasible = None
     if not candidates and walked.proven:
         infeasible = Infeasible(reasons=trimmed_reasons([search], catalog, walked.dropped))
@@ -77,6 +96,7 @@ def design_trimmed(
             score_resolution=SCORE_RESOLUTION,
             dropped_by_full_model=walked.dropped,
             time_limit_s=time_limit_s,
+            distinct=distinct,
         ),
         cautions=CAUTIONS,
     )

@@ -21,7 +21,7 @@ from __future__ import annotations
 import heapq
 import math
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Hashable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -133,11 +133,14 @@ def walk(
     top: int,
     deadline: float,
     tiebreak: Callable[[int], tuple[object, ...]] = lambda _: (),
+    classify: Callable[[Accepted], Hashable] | None = None,
 ) -> WalkResult:
     """The ``top`` best rows of the searches that pass the box coverage check, in rank order
     (module docstring). ``tiebreak(search index)`` is inserted after (resolution, drift,
-    cost) in the key, before the stock codes."""
+    cost) in the key, before the stock codes. With ``classify`` (distinct designs) the walk
+    goes on until the passed rows fall into ``top`` classes."""
     out = WalkResult()
+    classes: set[Hashable] = set()
     if any(not s.complete for s in searches):
         return _cut(out)  # the deadline came while the cells were listed
     pool: list[tuple[int, int, int, tuple[object, ...], tuple[str, ...], int, int, int, TrimRows]]
@@ -157,7 +160,8 @@ def walk(
                 out.dropped += 1
                 continue
             out.accepted.append(Accepted(si, row, reach))
-            if len(out.accepted) >= top:
+            classes.add(classify(out.accepted[-1]) if classify else len(out.accepted))
+            if len(classes) >= top:
                 return _finish(out, searches)
         if bound >= EXHAUSTED:
             return _finish(out, searches)

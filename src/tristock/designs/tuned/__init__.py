@@ -33,7 +33,7 @@ design ranks before everything not yet decided. A search cut by its time limit s
 from __future__ import annotations
 
 import time
-from collections.abc import Sequence
+from collections.abc import Hashable, Sequence
 from typing import TYPE_CHECKING
 
 from tristock.circuits.board import Design
@@ -49,8 +49,9 @@ from tristock.designs.tuned.report import (
     reasons,
     tuned_candidate,
 )
-from tristock.designs.tuned.search import walk
+from tristock.designs.tuned.search import Found, walk
 from tristock.designs.tuned.verdict import Verdicts
+from tristock.designs.variants import distinct_top, variant_key, variants_out
 from tristock.search.model import SCORE_RESOLUTION
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -75,19 +76,32 @@ def design_tuned(
     time_limit_s: float,
     samples: int = 2000,
     seed: int = 0,
+    distinct: bool = False,
 ) -> DesignResult:
-    """Best panel-tuned designs (see the module docstring)."""
+    """Best panel-tuned designs (see the module docstring); with ``distinct`` the best
+    ``top`` distinct designs (``designs.variants``)."""
     assert spec.tuning is not None
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
     model = build_tuned_model(spec, catalog)
     decide = Verdicts(model, samples, seed)
-    found = walk(model, spec.ranking.top, deadline, decide)
+
+    def classify(f: Found) -> Hashable:
+        return variant_key(design_from(model, f.row, f.chain))
+
+    found = walk(model, spec.ranking.top, deadline, decide, classify if distinct else None)
+    boards: list[Design] = [design_from(model, f.row, f.chain) for f, _ in found.accepted]
+    if distinct:
+        chosen = distinct_top(boards, spec.ranking.top)
+    else:
+        chosen = [(n, []) for n in range(len(boards))]
     candidates = []
-    for rank, (f, detail) in enumerate(found.accepted, start=1):
-        d: Design = design_from(model, f.row, f.chain)
+    for rank, (n, others) in enumerate(chosen, start=1):
+        f, detail = found.accepted[n]
         verdicts = [v for v in detail if isinstance(v, RangeVerdict)]
-        candidates.append(tuned_candidate(spec, d, verdicts, rank, f.cost, samples, seed))
+        c = tuned_candidate(spec, boards[n], verdicts, rank, f.cost, samples, seed)
+        c.variants = variants_out(boards[n], others)
+        candidates.append(c)
     infeasible = None
     if not candidates and found.proven:
         fewest_found = None
@@ -109,6 +123,7 @@ def design_tuned(
             score_resolution=SCORE_RESOLUTION,
             dropped_by_full_model=found.dropped,
             time_limit_s=time_limit_s,
+            distinct=distinct,
         ),
         cautions=CAUTIONS,
     )

@@ -24,6 +24,7 @@ import heapq
 import time
 from collections.abc import Iterator, Sequence
 from itertools import combinations
+from typing import Any
 
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import resolve
@@ -122,12 +123,13 @@ def reoptimise_tuned(
     original_passes = bool(candidates) and not candidates[0].changed
     reasons_original = list(dict.fromkeys(blocked.values()))
     predicted = None
+    before: dict[str, Any] = {}  # the original's yield and worst case at mid-dial of C1
     if all(pid in catalog for pid in current.values()):
         board = resolve(current, catalog, wiper=0.5, control=tuning.control)
         proxy = proxy_spec_at(spec, board)
-        predicted = Predicted(
-            **analyse(board, proxy, samples=min(samples, 2000)).to_dict()["predicted"]
-        )
+        figures = analyse(board, proxy, samples=min(samples, 2000)).to_dict()
+        predicted = Predicted(**figures["predicted"])
+        before = {k: figures[k] for k in ("yield_fraction", "worst_case")}
         if not original_passes and not blocked:
             reasons_original.append(
                 "the full model puts it outside the spec (a range, the coverage or the "
@@ -145,6 +147,7 @@ def reoptimise_tuned(
             passes=original_passes,
             reasons=reasons_original,
             predicted=predicted,
+            **before,
         ),
         candidates=candidates,
         infeasible=infeasible,

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import heapq
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Hashable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -259,10 +259,13 @@ def walk(
     top: int,
     deadline: float,
     decide: Callable[[Found], tuple[bool, list[object]]],
+    classify: Callable[[Found], Hashable] | None = None,
 ) -> Walk:
     """Accepted designs in rank order (module docstring). ``decide(found)`` is the verdict:
-    (accepted, per-range details)."""
+    (accepted, per-range details). With ``classify`` (distinct designs) the walk goes on
+    until the accepted designs fall into ``top`` classes."""
     out = Walk()
+    classes: set[Hashable] = set()
     cores = build_cores(model, deadline)
     if cores is None:
         out.proven = False
@@ -274,7 +277,8 @@ def walk(
             if ok:
                 out.accepted.append((f, detail))
                 out.proven &= certified(f)
-                if len(out.accepted) >= top:
+                classes.add(classify(f) if classify else len(out.accepted))
+                if len(classes) >= top:
                     out.ranges = n
                     return out
             else:
