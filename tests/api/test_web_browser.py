@@ -250,3 +250,24 @@ def test_docs_page_is_served_from_here(page: tuple[Any, Watch], base: str) -> No
     pg.goto(base + "/docs")
     pg.wait_for_selector(".swagger-ui .info .title")
     assert "tristock" in (pg.text_content(".swagger-ui .info .title") or "")
+
+
+def test_release_then_reoptimise_the_released_design(page: tuple[Any, Watch], base: str) -> None:
+    pg, _ = page
+    run_demo(pg, base)
+    parts = dict(
+        item.split("=")
+        for item in (pg.get_attribute("#answers tr[data-rank='1']", "data-parts") or "").split()
+    )
+    pg.get_by_role("button", name="open #1", exact=True).click()
+    pg.evaluate(f"() => sessionStorage.setItem('tristock.token', '{TOKEN}')")
+    pg.fill("#release-name", "bench-sweep")
+    pg.get_by_role("button", name="Release", exact=True).click()
+    pg.wait_for_selector("#release-result.ok")
+    pg.goto(base + "/#registry")
+    pg.get_by_role("button", name="re-optimise bench-sweep", exact=True).click()
+    pg.fill("#reopt-without", parts["C1"])
+    pg.get_by_role("button", name="Re-optimise", exact=True).click()
+    pg.wait_for_selector("#reopt-table tbody tr")
+    changed = pg.locator("#reopt-table tbody tr").first.locator("td").nth(1).text_content()
+    assert changed is not None and "C1" in changed  # the unavailable capacitor is replaced

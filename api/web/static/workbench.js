@@ -315,6 +315,14 @@ function openDesign(c) {
         el("h3", { text: "Warnings" }),
         (c.warnings || []).length ? el("ul", {}, c.warnings.map((w) => el("li", {}, el("b", { text: `${w.code} (${w.severity}): ` }), w.message))) : el("p", { class: "info", text: "none" })),
       el("div", {}, el("h3", { text: "Circuit" }), el("pre", { id: "sketch", "aria-label": "circuit sketch with designators", text: sketches[topology] || "" }))),
+    c.parts.RV1 ? el("form", { id: "setting", class: "toolbar" },
+      el("label", { for: "set-wiper" }, "wiper (0..1)"), el("input", { id: "set-wiper", type: "text", inputmode: "decimal", value: String(c.design_file.wiper) }),
+      c.tuning ? [el("label", { for: "set-range" }, "range"), el("select", { id: "set-range" }, c.tuning.ranges.map((r) => el("option", { value: r.capacitor, selected: r.capacitor === c.design_file.range }, r.capacitor)))] : null,
+      el("button", { type: "submit" }, "Redraw at this setting"), el("span", { id: "err-setting", class: "error", role: "alert" })) : null,
+    el("form", { id: "release", class: "toolbar" },
+      el("label", { for: "release-name" }, "release as"), el("input", { id: "release-name", type: "text", placeholder: "name, e.g. sweep-ref" }),
+      el("label", { for: "release-note" }, "note"), el("input", { id: "release-note", type: "text" }),
+      el("button", { type: "submit" }, "Release"), el("span", { id: "release-result", role: "alert" })),
     el("h3", { text: "Waveform" }), el("div", { id: "fig-waveform", class: "figure", "aria-busy": "true" }, el("p", { class: "info", text: "simulating…" })),
     el("h3", { text: "Monte Carlo" }), el("div", { id: "fig-histograms", class: "figure", "aria-busy": "true" }, el("p", { class: "info", text: "sampling…" })),
     el("div", { id: "analysis", class: "grid2" }, el("p", { class: "info", text: "analysing…" })));
@@ -326,7 +334,31 @@ function openDesign(c) {
           [r.low_hz, r.high_hz, r.guaranteed_low_hz, r.guaranteed_high_hz].map((x) => el("td", { class: "num", text: fmt(x, 5) })))))));
   }
   go("design");
-  loadFigures(c);
+  if ($("#setting")) $("#setting").addEventListener("submit", (e) => { e.preventDefault(); redraw(c); });
+  $("#release").addEventListener("submit", (e) => { e.preventDefault(); release(c); });
+  loadFigures(c, designBody(c));
+}
+
+function redraw(c) {
+  const raw = $("#set-wiper").value.trim();
+  const body = designBody(c);
+  body.wiper = /^[\d.eE+-]+$/.test(raw) ? Number(raw) : raw;
+  if ($("#set-range")) body.range = $("#set-range").value;
+  $("#err-setting").textContent = "";
+  for (const id of ["fig-waveform", "fig-histograms"]) $(`#${id}`).setAttribute("aria-busy", "true");
+  loadFigures(c, body, true);
+}
+
+async function release(c) {
+  const headers = {};
+  const token = sessionStorage.getItem(TOKEN_KEY);
+  if (token) headers.Authorization = `Bearer ${token}`;
+  const body = { name: $("#release-name").value.trim(), design: designBody(c), note: $("#release-note").value };
+  const res = await call("POST", "/v1/designs", body, headers);
+  const out = $("#release-result");
+  out.className = res.ok ? "ok" : "bad";
+  out.textContent = res.ok ? `released ${res.data.name} revision ${res.data.revision}` : `refused: ${problemText(res.data)}`;
+  if (res.ok) $("#registry-box").replaceChildren();
 }
 
 async function figure(id, url, body) {
@@ -337,10 +369,9 @@ async function figure(id, url, body) {
   else target.replaceChildren(el("p", { class: "bad", text: problemText(res.data) }));
 }
 
-async function loadFigures(c) {
-  const body = designBody(c);
+async function loadFigures(c, body, again) {
   const tune = c.design_file.spec.tuning;
-  if (c.tuning) figure("fig-dial", "/ui/figures/dial-law.svg", { tuning: c.tuning, wanted_hz: tune ? [tune.low_hz, tune.high_hz] : null });
+  if (c.tuning && !again) figure("fig-dial", "/ui/figures/dial-law.svg", { tuning: c.tuning, wanted_hz: tune ? [tune.low_hz, tune.high_hz] : null });
   await Promise.all([loadAnalysis(body), figure("fig-waveform", "/ui/figures/waveform.svg", body)]);
   await figure("fig-histograms", "/ui/figures/histograms.svg", body);
 }
@@ -512,12 +543,32 @@ async function loadRegistry() {
   if (!res.ok) { box.replaceChildren(el("p", { class: "bad", text: problemText(res.data) })); return; }
   const rows = Array.isArray(res.data) ? res.data : res.data.designs || res.data.items || [];
   box.replaceChildren(table(rows, "registry-table"));
+  for (const tr of $$("#registry-table tbody tr")) {
+    const name = tr.firstChild.textContent;
+    tr.append(el("td", {}, el("button", { type: "button", onclick: () => reoptReleased(name) }, `re-optimise ${name}`)));
+  }
+}
+
+async function reoptReleased(name) {
+  const res = await call("GET", `/v1/designs/${encodeURIComponent(name)}`);
+  if (!res.ok) { status(problemText(res.data)); return; }
+  $("#reopt-text").value = JSON.stringify({ spec: res.data.spec, ...res.data.design }, null, 2);
+  go("reoptimise");
+}
+
+function whatIf() {
+  const out = [];
+  for (const item of $("#impact-what-if").value.split(",").map((x) => x.trim()).filter((x) => x)) {
+    const [id, count] = item.split("=").map((x) => x.trim());
+    out.push({ id, stock: /^\d+$/.test(count || "") ? Number(count) : count });
+  }
+  return out;
 }
 
 async function runImpact() {
   const box = $("#impact-box");
   box.replaceChildren(el("p", { class: "info", text: "computing the impact…" }));
-  const res = await call("POST", "/v1/impact", {});
+  const res = await call("POST", "/v1/impact", { what_if: whatIf() });
   if (!res.ok) { box.replaceChildren(el("p", { class: "bad", text: problemText(res.data) })); return; }
   box.replaceChildren(el("h3", { text: "Impact" }), ...Object.entries(res.data).map(([k, v]) =>
     Array.isArray(v) && v.length && typeof v[0] === "object" ? el("div", {}, el("h3", { text: k }), table(v))
@@ -539,7 +590,9 @@ function start() {
   $("#stock-edit").addEventListener("submit", saveStock);
   $("#stock-cancel").addEventListener("click", () => { $("#stock-edit").hidden = true; });
   $("#token").value = sessionStorage.getItem(TOKEN_KEY) || "";
-  $("#token-keep").addEventListener("click", () => { sessionStorage.setItem(TOKEN_KEY, $("#token").value); status("token kept for this tab"); });
+  const keep = (e) => { e.preventDefault(); sessionStorage.setItem(TOKEN_KEY, $("#token").value); status("token kept for this tab"); };
+  $("#token-keep").addEventListener("click", keep);
+  $("#token-form").addEventListener("submit", keep);
   $("#token-forget").addEventListener("click", () => { sessionStorage.removeItem(TOKEN_KEY); $("#token").value = ""; status("token forgotten"); });
   $("#reopt-form").addEventListener("submit", runReopt);
   $("#reopt-use-open").addEventListener("click", () => { if (state.candidate) fillReopt(state.candidate); else status("no design is open"); });

@@ -271,7 +271,7 @@ def dial_law_svg(
     ax.set_xlabel("pot rotation (% of travel)")
     ax.set_ylabel("frequency (Hz)")
     ax.grid(True, which="both", color=GRID_COLOUR, linewidth=0.8)
-    ax.legend(fontsize="small", ncols=2)
+    ax.legend(fontsize="small", ncols=2, loc="lower right")
     ax.set_title(
         "dial law (nominal); bands: guaranteed span; dotted: range targets", fontsize="medium"
     )
