@@ -92,7 +92,9 @@ function sectionOn(name) {
 }
 function markSections() {
   for (const box of $$("[data-include]")) {
-    $(`#sec-${box.dataset.include}`).classList.toggle("off", !box.checked);
+    const section = $(`#sec-${box.dataset.include}`);
+    section.classList.toggle("off", !box.checked);
+    section.disabled = !box.checked;  // the "use" box sits in the legend and stays enabled
   }
 }
 
