@@ -33,6 +33,8 @@ from .limits import BodyLimit, ComputeGate, ComputeSlots
 from .routers import analysis, catalog, design, export, health, problems, registry
 from .settings import Settings
 from .store import CatalogStore
+from .web import COMPUTE_PATHS as PAGE_COMPUTE_PATHS
+from .web import install as install_pages
 
 log = logging.getLogger("tristock.api")
 
@@ -93,6 +95,8 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
         "Every error is an RFC 9457 problem (`application/problem+json`).",
         generate_unique_id_function=operation_id,
         lifespan=lifespan,
+        docs_url=None,  # served by the workbench from vendored assets (api/web/pages.py)
+        redoc_url=None,
     )
     app.state.settings = settings
     app.state.store = CatalogStore(settings.catalog_dir)
@@ -109,7 +113,8 @@ def create_app(settings: Settings, *, supervised: bool = False) -> FastAPI:
     )
     for r in (*routers, problems.router):
         app.include_router(r)
-    app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS)
+    install_pages(app)
+    app.add_middleware(ComputeGate, slots=slots, paths=COMPUTE_PATHS | PAGE_COMPUTE_PATHS)
     app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
     app.add_middleware(CatchAll)
     openapi.install(app)

@@ -4,12 +4,14 @@
 
 Contents: nothing outside ``tristock/`` and its ``.dist-info`` (no top-level ``api``), every
 module of ``src/tristock`` and ``api/`` (as ``tristock/api``), ``tristock/py.typed``, the demo
-catalog's tables, the bundled examples, no caches, locks, journals or temporary files, and core
-metadata of a version that carries ``License-Expression``. Then (unless ``--contents-only``)
-the wheel is installed into a new venv (``--venv``, default a temporary folder; it must lie
-outside the repository) and run from a folder outside the repository: ``python -m tristock
---version``, ``python -m tristock design --example``, ``tristock.api`` imports and nothing named
-``api`` does. Prints what it checked; exit 1 with every problem listed. CI runs it
+catalog's tables, the bundled examples, the workbench's templates and static files, no caches,
+locks, journals or temporary files, and core metadata of a version that carries
+``License-Expression``. Then (unless ``--contents-only``) the wheel is installed into a new venv
+(``--venv``, default a temporary folder; it must lie outside the repository) and run from a
+folder outside the repository: ``python -m tristock --version``, ``python -m tristock design
+--example``, ``tristock.api`` imports and nothing named ``api`` does, the workbench's page
+renders and its script and Swagger UI are there. Prints what it checked; exit 1 with every
+problem listed. CI runs it
 (``.ci/run``); ``tests/test_check_wheel.py`` holds its rules to wheels that break them.
 """
 
@@ -33,12 +35,20 @@ LICENSE_EXPRESSION_FROM = (2, 4)
 
 
 def expected_files(repo: Path = REPO) -> set[str]:
-    """Wheel paths the source tree promises: modules, py.typed, demo tables, examples."""
+    """Wheel paths the source tree promises: modules, py.typed, demo tables, examples, the
+    workbench's templates and static files."""
     wanted = {"tristock/py.typed"}
     src = repo / "src" / "tristock"
     wanted |= {f"tristock/{p.relative_to(src).as_posix()}" for p in src.rglob("*.py")}
     api = repo / "api"
     wanted |= {f"tristock/api/{p.relative_to(api).as_posix()}" for p in api.rglob("*.py")}
+    web = api / "web"  # the workbench's templates and static files are package data
+    for folder in ("templates", "static"):
+        wanted |= {
+            f"tristock/api/{p.relative_to(api).as_posix()}"
+            for p in (web / folder).rglob("*")
+            if p.is_file()
+        }
     demo = repo / "catalogs" / "demo"
     wanted |= {f"tristock/demo_catalog/{p.name}" for p in demo.glob("*.csv")}
     wanted |= {f"tristock/examples/{name}.toml" for name in EXAMPLES}
@@ -111,6 +121,10 @@ def installed_problems(wheel: Path, venv: Path, version: str) -> list[str]:
         "assert importlib.util.find_spec('api') is None, 'a module named api imports'\n"
         "assert not (site / 'api').exists(), 'site-packages holds api'\n"
         "assert (site / 'tristock' / 'py.typed').is_file()\n"
+        "import tristock.api.web.pages as pages\n"
+        "assert pages.templates.get_template('index.html').render(sections=(), examples=())\n"
+        "assert (pathlib.Path(pages.__file__).parent / 'static' / 'workbench.js').is_file()\n"
+        "assert (pages.swagger_dir() / 'swagger-ui-bundle.js').is_file()\n"
     )
     imported = _run([python, "-c", probe], outside)
     if imported.returncode != 0:

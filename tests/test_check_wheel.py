@@ -24,6 +24,8 @@ def test_the_source_tree_promises_the_package_api_catalog_and_examples() -> None
         "tristock/__main__.py",
         "tristock/api/app.py",
         "tristock/api/routers/design.py",
+        "tristock/api/web/templates/index.html",
+        "tristock/api/web/static/workbench.js",
         "tristock/demo_catalog/resistors.csv",
         "tristock/demo_catalog/capacitors.csv",
         "tristock/demo_catalog/opamps.csv",

@@ -188,3 +188,20 @@ def yield_count(
         if max_failures is not None and failed > max_failures:
             return samples - failed, start + chunk >= samples
     return samples - failed, True
+
+
+def monte_carlo_samples(
+    design: Design,
+    spec: Spec,
+    *,
+    samples: int = 20000,
+    seed: int = 0,
+    distribution: Distribution = "normal",
+) -> FloatArray:
+    """The boards ``monte_carlo`` draws (same seed, same order): an array (samples, 3) with
+    columns as ``spread.METRICS`` (frequency in Hz, triangle amplitude in Vpp, duty as a
+    fraction of the period), for histograms."""
+    check_inputs(design, spec)
+    board, variables = spread_board(design, spec)
+    z = _deviations(np.random.default_rng(seed), variables, samples, distribution)
+    return evaluate(board, variables, z)
