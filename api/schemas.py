@@ -17,7 +17,7 @@ from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 from .settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
 
-Kind = Literal["resistors", "capacitors", "opamps", "pots"]
+Kind = Literal["resistors", "capacitors", "opamps", "pots", "comparators", "diodes"]
 Engine = Literal["cpsat", "enumerate"]
 #: A designator's part: a stock code, or an object with an ``id`` (a candidate's part as the
 #: design answer gives it).

@@ -103,6 +103,8 @@ def _table(catalog: Catalog, kind: Kind) -> tuple[Part, ...]:
         "capacitors": catalog.capacitors,
         "opamps": catalog.opamps,
         "pots": catalog.pots,
+        "comparators": catalog.comparators,
+        "diodes": catalog.diodes,
     }
     return tables[kind]
 

@@ -11,7 +11,7 @@ import anyio.to_thread
 from fastapi import APIRouter
 
 from tristock import __version__
-from tristock.stock.catalog import Catalog
+from tristock.stock.catalog import KINDS, Catalog
 
 from ..deps import SettingsDep, SlotsDep, StoreDep
 from ..jsonout import StrictJSON, answer
@@ -38,16 +38,7 @@ def _catalog_or_none(store: CatalogStore) -> Catalog | None:
 async def health(store: StoreDep, settings: SettingsDep, slots: SlotsDep) -> StrictJSON:
     catalog = await anyio.to_thread.run_sync(_catalog_or_none, store)
     error = store.last_error
-    counts = (
-        {
-            "resistors": len(catalog.resistors),
-            "capacitors": len(catalog.capacitors),
-            "opamps": len(catalog.opamps),
-            "pots": len(catalog.pots),
-        }
-        if catalog is not None
-        else {}
-    )
+    counts = {kind: len(getattr(catalog, kind)) for kind in KINDS} if catalog is not None else {}
     status = "unavailable" if catalog is None else ("degraded" if error else "ok")
     writes = "token" if settings.token else ("open" if settings.allow_open_writes else "disabled")
     return answer(

@@ -21,7 +21,7 @@ from tristock.api.app import create_app
 from tristock.api.settings import Settings
 
 from tristock import cli
-from tristock.stock.catalog import COLUMNS, load_catalog, set_stock
+from tristock.stock.catalog import COLUMNS, KINDS, OPTIONAL_COLUMNS, load_catalog, set_stock
 
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")  # the TestClient's note about its HTTP client
@@ -397,7 +397,7 @@ def test_reoptimise_errors_name_the_field(api: TestClient, demo_design: dict[str
 # ---- catalog ------------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("kind", ["resistors", "capacitors", "opamps", "pots"])
+@pytest.mark.parametrize("kind", KINDS)
 def test_catalog_lists_every_part_with_its_columns(
     api: TestClient, ro_catalog: Path, kind: str
 ) -> None:
@@ -414,10 +414,12 @@ def test_catalog_lists_every_part_with_its_columns(
         if offset >= page["total"]:
             break
     assert [x["id"] for x in seen] == [p.id for p in parts]
+    # the table's columns in table order, then the optional ones (blank: null)
+    columns = [*COLUMNS[kind], *OPTIONAL_COLUMNS.get(kind, ())]
     for got in seen:
-        assert list(got) == list(COLUMNS[kind])  # the table's columns, in table order
+        assert list(got) == columns
     first = parts[0]
-    assert seen[0] == {c: getattr(first, c) for c in COLUMNS[kind]}
+    assert seen[0] == {c: getattr(first, c) for c in columns}
 
 
 def test_catalog_filters(api: TestClient, ro_catalog: Path) -> None:
@@ -525,9 +527,7 @@ def test_health_reports_the_catalog(api: TestClient, ro_catalog: Path) -> None:
     body = api.get("/health").json()
     assert body["status"] == "ok"
     assert body["catalog"] == str(ro_catalog)
-    assert body["counts"] == {
-        k: len(getattr(catalog, k)) for k in ("resistors", "capacitors", "opamps", "pots")
-    }
+    assert body["counts"] == {k: len(getattr(catalog, k)) for k in KINDS}
     assert body["last_reload_error"] is None
     assert body["writes"] == "disabled"
 
