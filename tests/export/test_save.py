@@ -98,6 +98,23 @@ def test_trimmed_design_is_saved_at_its_nominal_wiper(tmp_path: Path) -> None:
     )
 
 
+def test_tuned_design_is_saved_at_mid_dial_and_an_edge_board_is_one_line(tmp_path: Path) -> None:
+    # The tuned example's rank 1 uses a divider control: at wiper 0 its drive nearly vanishes
+    # and the loop sits at the edge of oscillating, so the file is saved at mid dial.
+    path = tmp_path / "t.toml"
+    code, _, err = tristock("design", "--example", "tuned", "--top", "1", "--save", "1", path)
+    assert code == 0, err
+    text = path.read_text(encoding="utf-8")
+    assert tomllib.loads(text)["wiper"] == 0.5
+    code, out, err = tristock("analyse", path, "--catalog", DEMO, "--json")
+    assert code == 0, err
+    assert json.loads(out)["predicted"]["frequency_hz"] > 0
+    path.write_text(text.replace("wiper = 0.5", "wiper = 0.0"), encoding="utf-8")
+    code, out, err = tristock("analyse", path, "--catalog", DEMO)
+    assert code == 1 and out == ""
+    assert len(err.strip().splitlines()) == 1 and "cannot oscillate" in err or "edge" in err
+
+
 @pytest.mark.parametrize(
     ("argv", "words"),
     [

@@ -30,13 +30,22 @@ def analysis_report(
     candidates, so the yield counts the amplitude band only.
 
     Raises DoesNotOscillate (a ValueError) for a loop that cannot oscillate on the spec's
-    rails: its figures would describe nothing."""
+    rails, or that oscillates at nominal but fails within the steps and spread the analysis
+    takes (a board at the very edge): its figures would describe nothing."""
     require_oscillation(spec, design)
     if spec.tuning is not None:
         from tristock.designs.tuned import proxy_spec_at
 
         spec = proxy_spec_at(spec, design)
-    result = analyse(design, spec, samples=samples, seed=seed, distribution=distribution)
+    try:
+        result = analyse(design, spec, samples=samples, seed=seed, distribution=distribution)
+    except DoesNotOscillate:
+        raise
+    except ValueError as err:  # oscillates at nominal, but not everywhere the analysis looks
+        raise DoesNotOscillate(
+            f"the loop oscillates at nominal but not across its spread ({err}); "
+            "it sits at the edge of oscillating"
+        ) from None
     return {
         "parts": {k: v.model_dump() for k, v in parts_report(design).items()},
         **result.to_dict(),
