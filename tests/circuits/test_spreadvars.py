@@ -12,14 +12,23 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 
+from tristock.circuits.rails import Rails
 from tristock.circuits.spreadvars import (
     FieldMove,
     SpreadVariable,
     added,
+    part_tempcos,
+    part_tolerances,
+    rail_tolerances,
     scaled,
     temperature,
     tolerance,
 )
+from tristock.examples import demo_catalog_dir
+from tristock.spec.loading import parse_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import load_catalog
+from tristock.stock.parts import Capacitor, Resistor
 
 
 @dataclass(frozen=True)
@@ -102,3 +111,36 @@ def test_temperature_is_one_shared_variable() -> None:
     # equal tempcos track: the ratio R1/R2 does not move with temperature
     assert values["r1"][0] / values["r2"][0] == pytest.approx(0.5, rel=1e-15)
     assert values["vz"][0] == pytest.approx(5.1 + 25e-3, rel=1e-15)
+
+
+def test_the_shared_builders_read_the_catalog_and_the_spec() -> None:
+    """``part_tolerances``, ``part_tempcos``, ``rail_tolerances`` on demo parts (the values
+    are the catalog's columns and the spec's fields, restated)."""
+    demo = load_catalog(demo_catalog_dir())
+    r1, c_film, c_x7r = demo.get("R1F-10K0"), demo.get("CPPG-4N70"), demo.get("CX7-1N00")
+    assert isinstance(r1, Resistor)
+    assert isinstance(c_film, Capacitor) and isinstance(c_x7r, Capacitor)
+    assert c_x7r.is_class_ii and c_x7r.temp_band_pct
+    parts = {"R1": ("r1", r1), "C1": ("c1", c_film), "C2": ("c2", c_x7r)}
+    variables = {v.name: v for v in part_tolerances(parts)}
+    assert list(variables) == ["R1", "C1", "C2", "C2.temp"]
+    assert variables["R1"].moves == (FieldMove("r1", "scale", r1.tolerance_pct / 100),)
+    assert variables["C2.temp"].moves == (FieldMove("c2", "scale", c_x7r.temp_band_pct / 100),)
+    assert part_tempcos(parts) == {"r1": r1.tempco_ppm, "c1": c_film.tempco_ppm, "c2": 0.0}
+
+    def spec(v_neg: float, tol: float) -> Spec:
+        return parse_spec(
+            {
+                "supply": {"positive_v": 12.0, "negative_v": v_neg, "tolerance_pct": tol},
+                "frequency": {"target_hz": 1e3, "tolerance_pct": 2.0},
+                "triangle": {"amplitude_vpp": 2.0, "tolerance_pct": 5.0},
+            }
+        )
+
+    split = rail_tolerances(spec(-12.0, 5.0), Rails(12.0, -12.0))
+    assert [(v.name, v.rail, v.moves) for v in split] == [
+        ("V+", True, (FieldMove("v_pos", "scale", 0.05),)),
+        ("V-", True, (FieldMove("v_neg", "scale", 0.05),)),
+    ]
+    assert [v.name for v in rail_tolerances(spec(0.0, 5.0), Rails(12.0, 0.0))] == ["V+"]
+    assert rail_tolerances(spec(-12.0, 0.0), Rails(12.0, -12.0)) == []

@@ -24,7 +24,8 @@ import pytest
 from ngspice_harness import require_ngspice, run_ngspice
 from tristock.analysis.spread import Board, evaluate, point_at, spread_board
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import Board, resolve_board
+from tristock.circuits.board import Board as PartsBoard
+from tristock.circuits.board import resolve_board
 from tristock.circuits.opamp_schmitt.netlist import MEASURES
 from tristock.circuits.rails import Rails
 from tristock.circuits.spreadvars import LAWS, FieldMove, SpreadVariable
@@ -54,7 +55,7 @@ def demo() -> Catalog:
     return load_catalog(demo_catalog_dir())
 
 
-def board_of(topology: Topology, catalog: Catalog) -> tuple[Board, Rails]:
+def board_of(topology: Topology, catalog: Catalog) -> tuple[PartsBoard, Rails]:
     design = resolve_board(topology, dict(topology.demo_board), catalog)
     return design, Rails(*topology.demo_rails)
 
@@ -153,7 +154,7 @@ def test_the_netlist_runs_in_ngspice_and_agrees(name: str, demo: Catalog) -> Non
 DEVIATIONS = (-1.0, -0.37, 0.61, 1.0)
 
 
-def spread_spec(topology: Topology, design: Design) -> Spec:
+def spread_spec(topology: Topology, design: PartsBoard) -> Spec:
     """A spec around the demo board: its rails ±5 %, -20..70 °C, bands about its prediction."""
     v_pos, v_neg = topology.demo_rails
     predicted = topology.oscillator(design, Rails(v_pos, v_neg)).prediction()
@@ -198,7 +199,7 @@ def one_variable(variables: list[SpreadVariable], i: int, z: float) -> np.ndarra
 @pytest.fixture(scope="module", params=NAMES)
 def spread(
     request: pytest.FixtureRequest, demo: Catalog
-) -> tuple[Topology, Design, Board, list[SpreadVariable]]:
+) -> tuple[Topology, PartsBoard, Board, list[SpreadVariable]]:
     topology = TOPOLOGIES[request.param]
     design, _ = board_of(topology, demo)
     board, variables = spread_board(design, spread_spec(topology, design))
@@ -220,8 +221,9 @@ def test_spread_variables_name_point_fields_and_laws(spread: Any) -> None:
             assert isinstance(move, FieldMove) and move.law in LAWS, var.name
             assert move.field in fields, f"{var.name}: {move.field} is not a point field"
         assert isinstance(var.describe(1.0), str) and var.describe(-1.0) != var.describe(1.0)
-    # the spec spreads both rails and a temperature range: the box carries them
-    assert sum(v.rail for v in variables) == 2
+    # the spec spreads every rail that is not 0 V (a single supply's V- has no tolerance) and
+    # a temperature range: the box carries them
+    assert sum(v.rail for v in variables) == sum(v != 0 for v in topology.demo_rails)
     assert [v.name for v in variables if v.temperature is not None] == ["T"]
     assert variables[names.index("T")].temperature == (25.0, 45.0)
     for name, sens_fields in topology.sensitivity_fields.items():

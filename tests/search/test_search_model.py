@@ -25,6 +25,7 @@ import numpy as np
 import pytest
 from numpy.typing import NDArray
 
+from tristock.circuits import TOPOLOGIES
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.circuits.opamp_schmitt.physics import predict
 from tristock.circuits.rails import OpAmpModel, square_levels
@@ -512,3 +513,21 @@ def test_single_channel_opamp_needs_two_packages_per_board() -> None:
     model = build_model(shared_spec(8), shared_catalog(op=op))
     assert model.opamps == []
     assert any(e.part_id == "TU-SINGLE" and "16" in e.reason for e in model.exclusions)
+
+
+def test_a_topology_without_a_search_form_is_refused_in_one_line() -> None:
+    unsearchable = [t for t in TOPOLOGIES.values() if t.search_form() is None]
+    assert unsearchable  # the variants are not searchable yet
+    spec = spec_of(
+        {
+            "supply": {"positive_v": 12.0, "negative_v": -12.0},
+            "frequency": {"target_hz": 1000.0, "tolerance_pct": 2.0},
+            "triangle": {"amplitude_vpp": 4.0, "tolerance_pct": 5.0},
+        }
+    )
+    for topology in unsearchable:
+        with pytest.raises(ValueError, match=rf"^topology: {topology.name} has no search form"):
+            build_model(spec, demo(), topology)
+        with pytest.raises(ValueError) as err:
+            build_model(spec, demo(), topology)
+        assert "\n" not in str(err.value)

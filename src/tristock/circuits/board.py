@@ -207,6 +207,7 @@ PART_TYPES: dict[str, type] = {
     "resistors": Resistor,
     "capacitors": Capacitor,
     "pots": Pot,
+    "comparators": Comparator,
     "diodes": Diode,
 }
 

@@ -18,7 +18,9 @@ drives along it); ``temperature`` variables are sampled uniformly by the Monte C
 
 A topology's ``spread(design, spec)`` returns a ``SpreadBox``: the point at the box's centre
 (z = 0 everywhere) and its variables. ``tristock.analysis`` searches, samples and
-differentiates that box through the topology's ``predict`` and nothing else.
+differentiates that box through the topology's ``predict`` and nothing else. The builders
+``tolerance``, ``scaled``, ``added`` and ``temperature`` make one variable; ``part_tolerances``,
+``part_tempcos`` and ``rail_tolerances`` read a board's parts and the spec's supply for them.
 """
 
 from __future__ import annotations
@@ -30,6 +32,9 @@ from typing import Any, Literal
 import numpy as np
 import numpy.typing as npt
 
+from tristock.circuits.rails import Rails
+from tristock.spec.model import Spec
+from tristock.stock.parts import Capacitor, Pot, Resistor
 from tristock.stock.units import format_value
 
 FloatArray = npt.NDArray[np.float64]
@@ -103,6 +108,11 @@ def percent(x: float) -> str:
     return f"{x * 100:+.3g} %"
 
 
+def percent_of(spread: float) -> Callable[[float], str]:
+    """The words of a ± ``spread`` fraction at a deviation z: ``percent(spread·z)``."""
+    return lambda z: percent(spread * z)
+
+
 def signed_value(value: float, unit: str) -> str:
     """``format_value`` with an explicit + on positive values."""
     text = format_value(value, unit)
@@ -152,6 +162,52 @@ def temperature(
     )
 
 
+#: A part whose value a tolerance and a tempco move: designator -> (point field, part).
+ValuedParts = Mapping[str, tuple[str, Resistor | Capacitor | Pot]]
+
+
+def part_tolerances(parts: ValuedParts) -> list[SpreadVariable]:
+    """Each part's tolerance (``tolerance``, named by its designator, tol = tolerance_pct/100;
+    left out at 0), then each class II capacitor's band as ``<designator>.temp``:
+    value·(1 + band·z), band = temp_band_pct/100 (the catalog gives the band, not the curve,
+    so any value in it is taken as possible at any temperature: conservative)."""
+    variables: list[SpreadVariable] = []
+    for name, (field, part) in parts.items():
+        value = part.value_f if isinstance(part, Capacitor) else part.value_ohm
+        unit = "F" if isinstance(part, Capacitor) else "Ω"
+        if part.tolerance_pct > 0:
+            variables.append(tolerance(name, field, value, part.tolerance_pct / 100, unit))
+    for name, (field, part) in parts.items():
+        band_pct = part.temp_band_pct if isinstance(part, Capacitor) else None
+        if isinstance(part, Capacitor) and part.is_class_ii and band_pct is not None:
+            band = band_pct / 100
+            if band > 0:
+                variables.append(scaled(f"{name}.temp", (field,), band, percent_of(band)))
+    return variables
+
+
+def part_tempcos(parts: ValuedParts) -> dict[str, float]:
+    """Point field -> the part's tempco (ppm/°C) for ``temperature``; 0 where the catalog
+    gives none (a class II capacitor: its band is ``<designator>.temp``)."""
+    return {
+        field: part.tempco_ppm if part.tempco_ppm is not None else 0.0
+        for field, part in parts.values()
+    }
+
+
+def rail_tolerances(spec: Spec, rails: Rails) -> list[SpreadVariable]:
+    """``V+`` and ``V-``: each rail·(1 + tol·z), tol = supply.tolerance_pct/100, marked
+    ``rail``; a 0 V rail (a single supply's V-) and a 0 % tolerance have none."""
+    tol_v = spec.supply.tolerance_pct / 100
+    if not tol_v > 0:
+        return []
+    return [
+        tolerance(name, field, v, tol_v, "V", rail=True)
+        for name, field, v in (("V+", "v_pos", rails.v_pos), ("V-", "v_neg", rails.v_neg))
+        if v != 0
+    ]
+
+
 __all__ = [
     "LAWS",
     "FieldMove",
@@ -159,8 +215,13 @@ __all__ = [
     "PointValues",
     "SpreadBox",
     "SpreadVariable",
+    "ValuedParts",
     "added",
+    "part_tempcos",
+    "part_tolerances",
     "percent",
+    "percent_of",
+    "rail_tolerances",
     "scaled",
     "signed_value",
     "temperature",

@@ -30,9 +30,11 @@ What a topology implements:
   the worst case finds the balanced point along a rail exactly.
 - ``sensitivity_fields``: sensitivity name -> the point fields it scales together.
 
+- ``search_form()``: the ``circuits.searchform.SearchForm`` the exact search works through,
+  or None (the default): not searchable yet.
+
 The point is a frozen dataclass of floats or broadcastable arrays (``dataclasses.replace``
 builds moved points from it).
-- ``search_form()``: the ``circuits.searchform.SearchForm`` the exact search works through.
 """
 
 from __future__ import annotations
@@ -147,10 +149,12 @@ class Topology(ABC):
     def time_domain(self, oscillator: Any) -> Loop:
         """The loop's parameters for ``tristock.simulate`` (events, levels, rates)."""
 
-    @abstractmethod
-    def search_form(self) -> SearchForm:
+    def search_form(self) -> SearchForm | None:
         """What the exact search needs of this circuit (``circuits.searchform``): its stage
-        options, divider/integrator/capacitor designators, row levels and row model."""
+        options, divider/integrator/capacitor designators, row levels and row model; None
+        means the circuit is not searchable yet (the exact search refuses it, everything
+        else works)."""
+        return None
 
     @abstractmethod
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:

@@ -274,8 +274,11 @@ def _terms(stage: StageOption, spec: Spec) -> OpAmpTerms:
 
 def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:
     """Eligible parts and the stage options of ``topology``'s search form for ``spec``;
-    exclusions say why parts dropped."""
+    exclusions say why parts dropped. A topology without a search form (``search_form()``
+    None) raises ValueError naming it."""
     form = topology.search_form()
+    if form is None:
+        raise ValueError(f"topology: {topology.name} has no search form yet (not searchable)")
     res_table, excl = eligible_resistors(spec, catalog)
 
     stages, stage_excl = form.stage_options(spec, catalog, res_table.value)

@@ -5,7 +5,7 @@ current, not the rails.
 
 Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit), ``board``
 (a board at a temperature, its point and its equivalent loop for the simulation),
-``checks``, ``netlist`` (ngspice) and ``spread`` (the tolerance variables it will declare).
+``checks``, ``netlist`` (ngspice) and ``spread`` (the spread box on a spec).
 ``CLAMPED_SCHMITT`` is the topology object.
 """
 
@@ -13,6 +13,8 @@ from __future__ import annotations
 
 from types import MappingProxyType
 from typing import Any
+
+import numpy as np
 
 from tristock.circuits.checks import Warning
 from tristock.circuits.clamped_schmitt.board import (
@@ -25,9 +27,18 @@ from tristock.circuits.clamped_schmitt.checks import check
 from tristock.circuits.clamped_schmitt.netlist import netlist
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
 from tristock.circuits.clamped_schmitt.physics import ClampPoint, predict_point
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.clamped_schmitt.spread import SENSITIVITY_FIELDS, spread_box
 from tristock.circuits.rails import Rails
-from tristock.circuits.topology import BoardParts, PartRole, Prediction, Topology
+from tristock.circuits.spreadvars import SpreadBox
+from tristock.circuits.timeloop import Loop
+from tristock.circuits.topology import (
+    BoardParts,
+    FloatArray,
+    PartRole,
+    Prediction,
+    Topology,
+)
+from tristock.spec.model import Spec
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
@@ -89,6 +100,7 @@ class ClampedSchmitt(Topology):
         }
     )
     demo_rails = (12.0, -12.0)
+    sensitivity_fields = SENSITIVITY_FIELDS
 
     def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
         return predict_point(point, v_ref, control)
@@ -113,6 +125,18 @@ class ClampedSchmitt(Topology):
 
     def time_domain(self, oscillator: Any) -> Loop:
         return loop_from(oscillator)
+
+    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
+        """Parts, zeners, rails, T and the op amp (``clamped_schmitt.spread``)."""
+        return spread_box(design, spec)
+
+    def drive_imbalance(
+        self, point: Any, v_ref: float | None, control: str = "series"
+    ) -> FloatArray:
+        """Zeros: the clamp, not the rails, sets the square's levels and so the drives (the
+        worst case then looks for no balanced-swing point along a rail)."""
+        shape = np.broadcast_shapes(np.shape(point.v_pos), np.shape(point.v_neg))
+        return np.zeros(shape, dtype=float)
 
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         return netlist(oscillator, periods=periods)

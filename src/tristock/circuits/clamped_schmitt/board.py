@@ -12,8 +12,8 @@ import numpy as np
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
 from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint, output_levels
 from tristock.circuits.integrator import integrator_terms
-from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.circuits.rails import OpAmpModel, Rails
+from tristock.circuits.timeloop import Loop
 from tristock.circuits.topology import BoardParts
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor, value_at

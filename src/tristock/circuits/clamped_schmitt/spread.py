@@ -1,49 +1,143 @@
-"""The tolerance ("spread") variables the zener-clamped loop will declare once the analysis
-takes them from the topology (issue 12): what each moves in ``physics.ClampPoint`` and how.
+"""The spread box of a zener-clamped board on a spec: its centre and its variables
+(``circuits.spreadvars``), each moving fields of ``physics.ClampPoint``.
 
-Kinds: ``relative`` (field·(1 + tol·z), tol from the part's tolerance_pct), ``absolute``
-(field + typ·z, typ from the part's typical figure), ``tempco`` (moved with the board's
-temperature through the part's tempco), ``rail`` (the supply's tolerance). Data only: the
-analysis layer will read it; nothing here runs an analysis.
+The variables (a variable whose spread is zero is left out), in this order:
+
+- ``R1``, ``R2``, ``R3``, ``R5``, ``C1``: value·(1 + tol·z), tol = tolerance_pct/100;
+  ``C1.temp`` for a class II C1 (its band, as in ``opamp_schmitt.spread``).
+- ``D1``, ``D2``: the zener voltage vz·(1 + tol·z), tol = the diode's tolerance_pct/100.
+- ``D1.rz``, ``D2.rz``: the dynamic resistance rz·(1 + 0.3·z) (:data:`RZ_SPREAD`).
+- ``D1.vf``, ``D2.vf``: the forward drop vf + 30 mV·z (:data:`VF_BOUND`).
+- ``V+``, ``V-``: each rail·(1 + tol·z) (the op amp's levels; the clamp sets the square's).
+- ``T``: temperature over the spec's range; R1, R2, R3, R5 and C1 by their tempcos (ppm/°C),
+  each zener's vz by its tempco_mv_per_c, each forward drop by
+  ``diode.ZENER_FORWARD_TEMPCO_MV_PER_C`` and the thermal voltage by k/q (V/°C): exactly
+  what ``board_point`` does at that temperature (``circuits.diode.diode_at``).
+- ``U1.offset.integrator``, ``U1.offset.comparator``, ``U1.bias``, ``U1.slew``, ``U1.delay``:
+  as in ``opamp_schmitt.spread`` (``opamp_variables``).
+
+The centre is the board at 25 °C (at temp_min_c when the range is one temperature) with the
+op amp's offsets at 0 V and its bias currents as catalogued.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import dataclasses
+from collections.abc import Callable, Mapping
+from types import MappingProxyType
 
-
-@dataclass(frozen=True)
-class SpreadVariable:
-    """One tolerance variable: its ``name`` (designator.quantity), the point ``fields`` it
-    moves, its ``kind`` (see the module notes) and what sets its size."""
-
-    name: str
-    fields: tuple[str, ...]
-    kind: str
-    size: str
-
-
-SPREAD_VARIABLES: tuple[SpreadVariable, ...] = (
-    *(
-        SpreadVariable(d, (d.lower(),), "relative", f"{d} tolerance_pct")
-        for d in ("R1", "R2", "R3", "R5", "C1")
-    ),
-    SpreadVariable("D1.vz", ("vz1",), "relative", "D1 tolerance_pct (of vz_v)"),
-    SpreadVariable("D2.vz", ("vz2",), "relative", "D2 tolerance_pct (of vz_v)"),
-    SpreadVariable("D1.rz", ("rz1",), "relative", "common practice: ±30 % of rz_ohm"),
-    SpreadVariable("D2.rz", ("rz2",), "relative", "common practice: ±30 % of rz_ohm"),
-    SpreadVariable("D1.vf", ("vf1",), "absolute", "common practice: ±30 mV forward spread"),
-    SpreadVariable("D2.vf", ("vf2",), "absolute", "common practice: ±30 mV forward spread"),
-    SpreadVariable(
-        "T",
-        ("vz1", "vz2", "vf1", "vf2", "vt_therm", "r1", "r2", "r3", "r5", "c1"),
-        "tempco",
-        "spec temperature range (tempco_mv_per_c of D1/D2, forward -2 mV/°C, ppm of R and C)",
-    ),
-    SpreadVariable("V+", ("v_pos",), "rail", "supply tolerance"),
-    SpreadVariable("V-", ("v_neg",), "rail", "supply tolerance"),
-    SpreadVariable("U1.offset", ("vos1", "vos2"), "absolute", "U1 offset_v"),
-    SpreadVariable("U1.bias", ("ib1", "ib2"), "absolute", "U1 bias_a"),
-    SpreadVariable("U1.slew", ("slew_rise", "slew_fall"), "relative", "common practice: ±20 %"),
-    SpreadVariable("U1.delay", ("delay",), "relative", "common practice: ±20 %"),
+from tristock.circuits.clamped_schmitt.board import board_point, part_at
+from tristock.circuits.diode import K_OVER_Q, ZENER_FORWARD_TEMPCO_MV_PER_C
+from tristock.circuits.opamp_schmitt.spread import opamp_variables
+from tristock.circuits.rails import rails_from_supply
+from tristock.circuits.spreadvars import (
+    SpreadBox,
+    SpreadVariable,
+    ValuedParts,
+    added,
+    part_tempcos,
+    part_tolerances,
+    rail_tolerances,
+    scaled,
+    signed_value,
+    temperature,
+    tolerance,
 )
+from tristock.circuits.topology import BoardParts
+from tristock.spec.model import Spec
+from tristock.stock.diodes import Diode
+from tristock.stock.parts import Capacitor, OpAmp, Resistor
+from tristock.stock.units import format_value
+
+#: A zener's dynamic-resistance spread, ± fraction of the catalogued rz (common practice).
+RZ_SPREAD = 0.30
+#: A forward drop's spread at 1 mA, ± V (common practice: ±30 mV for small silicon parts).
+VF_BOUND = 0.030
+
+#: Sensitivity name -> the fields of ``ClampPoint`` it scales (``analysis.sensitivity``).
+SENSITIVITY_FIELDS: Mapping[str, tuple[str, ...]] = MappingProxyType(
+    {
+        "R1": ("r1",),
+        "R2": ("r2",),
+        "R3": ("r3",),
+        "R5": ("r5",),
+        "C1": ("c1",),
+        "D1": ("vz1",),
+        "D2": ("vz2",),
+        "D1.rz": ("rz1",),
+        "D2.rz": ("rz2",),
+        "V+": ("v_pos",),
+        "V-": ("v_neg",),
+        "U1.slew": ("slew_rise", "slew_fall"),
+        "U1.delay": ("delay",),
+        "U1.gbw": ("gbw",),
+        "U1.offset": ("vos1", "vos2"),
+        "U1.bias": ("ib1", "ib2"),
+    }
+)
+
+
+def valued_parts(design: BoardParts) -> ValuedParts:
+    """Designator -> (point field, part) of R1, R2, R3, R5 and C1."""
+    parts = design.parts()
+    out: dict[str, tuple[str, Resistor | Capacitor]] = {
+        d: (d.lower(), part_at(parts, d, Resistor)) for d in ("R1", "R2", "R3", "R5")
+    }
+    out["C1"] = ("c1", part_at(parts, "C1", Capacitor))
+    return out
+
+
+def ohms_at(rz: float, spread: float) -> Callable[[float], str]:
+    """The words of rz·(1 + spread·z) at a deviation z."""
+    return lambda z: format_value(rz * (1 + spread * z), "Ω")
+
+
+def zener_variables(zeners: Mapping[str, tuple[str, Diode]]) -> list[SpreadVariable]:
+    """Each zener's voltage tolerance, then each one's rz spread, then each forward-drop
+    spread; ``zeners`` maps a designator to (its field suffix, the part)."""
+    variables: list[SpreadVariable] = []
+    for name, (n, d) in zeners.items():
+        vz = d.vz_v if d.vz_v is not None else 0.0
+        if d.tolerance_pct > 0 and vz > 0:
+            variables.append(tolerance(name, f"vz{n}", vz, d.tolerance_pct / 100, "V"))
+    for name, (n, d) in zeners.items():
+        rz = d.rz_ohm
+        if rz > 0:
+            variables.append(
+                scaled(
+                    f"{name}.rz",
+                    (f"rz{n}",),
+                    RZ_SPREAD,
+                    ohms_at(rz, RZ_SPREAD),
+                )
+            )
+    for name, (n, _) in zeners.items():
+        variables.append(
+            added(f"{name}.vf", (f"vf{n}",), VF_BOUND, lambda z: signed_value(VF_BOUND * z, "V"))
+        )
+    return variables
+
+
+def spread_box(design: BoardParts, spec: Spec) -> SpreadBox:
+    """The centre (offsets 0 V, bias as catalogued) and the variables in the order of the
+    module docstring."""
+    env = spec.environment
+    ranged = env.temp_max_c > env.temp_min_c
+    rails = rails_from_supply(spec.supply)
+    parts = design.parts()
+    u1 = part_at(parts, "U1", OpAmp)
+    zeners = {d: (d[1], part_at(parts, d, Diode)) for d in ("D1", "D2")}
+    point = board_point(design, rails, 25.0 if ranged else env.temp_min_c)
+    centre = dataclasses.replace(point, vos1=0.0, vos2=0.0, ib1=u1.bias_a, ib2=u1.bias_a)
+    valued = valued_parts(design)
+    variables = part_tolerances(valued)
+    variables += zener_variables(zeners)
+    variables += rail_tolerances(spec, rails)
+    if ranged:
+        drifts = {"vt_therm": K_OVER_Q}
+        for n, d in zeners.values():
+            drifts[f"vz{n}"] = d.tempco_mv_per_c * 1e-3
+            drifts[f"vf{n}"] = ZENER_FORWARD_TEMPCO_MV_PER_C * 1e-3
+        variables.append(temperature(env.temp_min_c, env.temp_max_c, part_tempcos(valued), drifts))
+    variables += opamp_variables(u1)
+    return SpreadBox(centre, tuple(variables))

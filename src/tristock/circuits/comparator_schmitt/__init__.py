@@ -2,8 +2,9 @@
 with hysteresis from R1 and R2 makes the square; an open-drain U2 is pulled up by R5 from V+.
 
 Its modules: ``physics`` (the closed-form model), ``point`` (the vectorised point and the
-built oscillator), ``checks``, ``timedomain`` (the loop for the event-driven simulation) and
-``netlist`` (ngspice). ``COMPARATOR_SCHMITT`` is the topology object.
+built oscillator), ``checks``, ``spread`` (the spread box on a spec), ``timedomain`` (the
+loop for the event-driven simulation) and ``netlist`` (ngspice). ``COMPARATOR_SCHMITT`` is
+the topology object.
 """
 
 from __future__ import annotations
@@ -21,10 +22,23 @@ from tristock.circuits.comparator_schmitt.point import (
     part_of,
     predict_point,
 )
+from tristock.circuits.comparator_schmitt.spread import (
+    SENSITIVITY_FIELDS,
+    drive_imbalance,
+    spread_box,
+)
 from tristock.circuits.comparator_schmitt.timedomain import loop_of
-from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.circuits.rails import Rails
-from tristock.circuits.topology import BoardParts, PartRole, Prediction, Topology
+from tristock.circuits.spreadvars import SpreadBox
+from tristock.circuits.timeloop import Loop
+from tristock.circuits.topology import (
+    BoardParts,
+    FloatArray,
+    PartRole,
+    Prediction,
+    Topology,
+)
+from tristock.spec.model import Spec
 from tristock.stock.parts import Capacitor, OpAmp, Resistor, value_at
 
 SKETCH = r"""
@@ -77,6 +91,7 @@ class ComparatorSchmitt(Topology):
          "R3": "R1F-12K1", "C1": "CC0-2N70"}
     )  # fmt: skip
     demo_rails = (5.0, 0.0)
+    sensitivity_fields = SENSITIVITY_FIELDS
 
     def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
         """``point`` a ``ComparatorPoint``; ``control`` is unused (no pot in this loop)."""
@@ -102,6 +117,17 @@ class ComparatorSchmitt(Topology):
 
     def time_domain(self, oscillator: Any) -> Loop:
         return loop_of(oscillator)
+
+    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
+        """Parts, rails, T, U1's offset and bias, U2's delay, edges, offset and bias
+        (``comparator_schmitt.spread``)."""
+        return spread_box(design, spec)
+
+    def drive_imbalance(
+        self, point: Any, v_ref: float | None, control: str = "series"
+    ) -> FloatArray:
+        """``control`` is unused (no pot in this loop)."""
+        return drive_imbalance(point, v_ref)
 
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         """U1 as today's op-amp macromodel, U2 behavioural (delay, linear edges), R5 and its

@@ -17,7 +17,7 @@ from __future__ import annotations
 import math
 
 from tristock.circuits.comparator_schmitt.point import ComparatorOscillator
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.timeloop import Loop
 from tristock.stock.comparators import EDGE_SHARE, edge_start_s
 
 

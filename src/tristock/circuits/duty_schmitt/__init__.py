@@ -5,7 +5,7 @@ high share is about R3A/(R3A + R3B), and a ramp or sawtooth follows from unequal
 
 Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit), ``board``
 (a board at a temperature, its point and its equivalent loop for the simulation),
-``checks``, ``netlist`` (ngspice) and ``spread`` (the tolerance variables it will declare).
+``checks``, ``netlist`` (ngspice) and ``spread`` (the spread box on a spec).
 ``DUTY_SCHMITT`` is the topology object.
 """
 
@@ -21,9 +21,18 @@ from tristock.circuits.duty_schmitt.checks import check
 from tristock.circuits.duty_schmitt.netlist import netlist
 from tristock.circuits.duty_schmitt.oscillator import DutyOscillator
 from tristock.circuits.duty_schmitt.physics import DutyPoint, predict_point
-from tristock.circuits.opamp_schmitt.timedomain import Loop
+from tristock.circuits.duty_schmitt.spread import SENSITIVITY_FIELDS, drive_imbalance, spread_box
 from tristock.circuits.rails import Rails
-from tristock.circuits.topology import BoardParts, PartRole, Prediction, Topology
+from tristock.circuits.spreadvars import SpreadBox
+from tristock.circuits.timeloop import Loop
+from tristock.circuits.topology import (
+    BoardParts,
+    FloatArray,
+    PartRole,
+    Prediction,
+    Topology,
+)
+from tristock.spec.model import Spec
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
@@ -81,6 +90,7 @@ class DutySchmitt(Topology):
         }
     )
     demo_rails = (12.0, -12.0)
+    sensitivity_fields = SENSITIVITY_FIELDS
 
     def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
         return predict_point(point, v_ref, control)
@@ -103,6 +113,17 @@ class DutySchmitt(Topology):
 
     def time_domain(self, oscillator: Any) -> Loop:
         return loop_from(oscillator)
+
+    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
+        """Parts, diodes, rails, T and the op amp (``duty_schmitt.spread``)."""
+        return spread_box(design, spec)
+
+    def drive_imbalance(
+        self, point: Any, v_ref: float | None, control: str = "series"
+    ) -> FloatArray:
+        """The two branch drives' difference (``duty_schmitt.spread.drive_imbalance``);
+        ``control`` is unused (no pot in this loop)."""
+        return drive_imbalance(point, v_ref)
 
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         return netlist(oscillator, periods=periods)

@@ -6,8 +6,8 @@ from __future__ import annotations
 from tristock.circuits.clamped_schmitt.board import part_at, resistance_at
 from tristock.circuits.duty_schmitt.oscillator import DutyOscillator
 from tristock.circuits.duty_schmitt.physics import DutyPoint
-from tristock.circuits.opamp_schmitt.timedomain import Loop
 from tristock.circuits.rails import OpAmpModel, Rails, square_levels
+from tristock.circuits.timeloop import Loop
 from tristock.circuits.topology import BoardParts
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, value_at

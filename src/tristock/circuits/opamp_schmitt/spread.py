@@ -127,7 +127,7 @@ def _temperature_variable(design: BoardParts, t_min: float, t_max: float) -> Spr
     return temperature(t_min, t_max, tempcos)
 
 
-def _opamp_variables(u1: OpAmp) -> list[SpreadVariable]:
+def opamp_variables(u1: OpAmp) -> list[SpreadVariable]:
     """Offsets, bias, slew and delay of U1 (see the module docstring)."""
     variables: list[SpreadVariable] = []
     vos = abs(u1.offset_v) * OFFSET_BOUND
@@ -189,5 +189,5 @@ def spread_box(design: BoardParts, spec: Spec) -> SpreadBox:
                 variables.append(tolerance(name, field, v, tol_v, "V", rail=True))
     if ranged:
         variables.append(_temperature_variable(design, env.temp_min_c, env.temp_max_c))
-    variables.extend(_opamp_variables(u1))
+    variables.extend(opamp_variables(u1))
     return SpreadBox(centre, tuple(variables))
