@@ -66,10 +66,9 @@ def saved_design(spec: Spec, c: Candidate) -> SavedDesign:
     """The DESIGN file of candidate ``c``: its parts by stock code, at the trimmed design's
     nominal wiper, a tuned design's mid dial (wiper 0.5, range C1: an end of the dial may
     sit at the edge of oscillating), other designs wiper 0, range C1."""
+    wiper = 0.5 if spec.tuning is not None else 0.0
     if c.trim is not None:
         wiper = c.trim.wiper_nominal
-    else:
-        wiper = 0.5 if spec.tuning is not None else 0.0
     return SavedDesign(spec=spec, parts={k: p.id for k, p in c.parts.items()}, wiper=wiper)
 
 
