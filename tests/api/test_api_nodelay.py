@@ -41,10 +41,22 @@ def _bound_like_uvicorns_supervisor() -> socket.socket:
     return Config("tristock.api.app:app_from_env", host="127.0.0.1", port=0).bind_socket()
 
 
-def test_asyncio_leaves_nodelay_off_on_uvicorns_shared_socket() -> None:
-    """The premise: without our hook the option is off (if asyncio ever sets it, this fails
-    and the hook can go)."""
-    assert asyncio.run(_nodelay_of_accepted(_bound_like_uvicorns_supervisor(), ours=False)) == 0
+def _bound_with_protocol_zero() -> socket.socket:
+    """A listening socket made as uvicorn's supervisor made it before 0.55 (protocol 0)."""
+    sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
+    sock.bind(("127.0.0.1", 0))
+    return sock
+
+
+def test_asyncio_leaves_nodelay_off_on_a_protocol_zero_socket() -> None:
+    """The premise: asyncio sets the option only on sockets whose protocol is TCP, so on a
+    socket bound with protocol 0 it stays off without our hook (if asyncio ever sets it,
+    this fails and the hook can go). Newer uvicorn binds with protocol 6 (TCP) and asyncio
+    then sets it itself; the hook keeps every version and worker count alike."""
+    sock = _bound_with_protocol_zero()
+    assert sock.proto == 0
+    assert asyncio.run(_nodelay_of_accepted(sock, ours=False)) == 0
+    assert asyncio.run(_nodelay_of_accepted(_bound_with_protocol_zero(), ours=True)) != 0
 
 
 def test_the_connection_protocol_turns_nodelay_on() -> None:
