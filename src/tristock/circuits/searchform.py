@@ -14,7 +14,13 @@ that a topology declares, through ``Topology.search_form()``:
   ``integrator``, ``capacitor``), whose parts come from the resistor and capacitor tables;
 - the square levels of rows on given rails (``row_levels``; rows differ when the levels
   depend on the row's resistors, as with an open-drain pull-up or a zener clamp);
-- the full model of rows (``predict_rows``): the topology's own vectorised ``predict``.
+- the full model of rows (``predict_rows``): the topology's own vectorised ``predict``;
+- the board of a row (``board``) and, back, the stage option of a chosen board
+  (``board_stage``), so an answer is re-checked and reported as the topology's own board.
+
+A stage's parts may come from the resistor table too (a pull-up or a clamp's series resistor
+R5): ``stock_needs`` names them, and the search counts a stock code that fills a stage position
+and a divider/integrator position once per position (stock) and once on the BOM (lines).
 
 The bounds the engines apply (``search.bounds``) are written over a ``StageLoop``; they stay
 sound for level intervals (see that module: the period rises with the span at fixed drives
@@ -36,6 +42,7 @@ from tristock.circuits.rails import Rails
 from tristock.stock.parts import Part
 
 if TYPE_CHECKING:
+    from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
 
@@ -190,3 +197,14 @@ class SearchForm(ABC):
         (Ω, F by designator) at the square levels ``levels``; slew rates and delays scaled by
         the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
         centre) instead of the catalogued typical values."""
+
+    @abstractmethod
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+        """The board of a row: the stage's parts with ``parts`` (the divider pair, integrator
+        element(s) and capacitor by designator), as the topology's board object."""
+
+    @abstractmethod
+    def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
+        """The stage option (index 0) of a board already chosen, on the spec's nominal rails,
+        its loop's Ve range over the board's own integrator element (no stock checks); or
+        why the stage cannot be used on those rails (a reason, as ``stage_options`` gives)."""

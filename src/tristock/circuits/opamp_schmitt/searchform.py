@@ -26,9 +26,10 @@ from tristock.circuits.searchform import (
     StageOption,
     fixed_levels_loop,
 )
-from tristock.stock.parts import OpAmp
+from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
 
 if TYPE_CHECKING:
+    from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
 
@@ -229,6 +230,30 @@ class OpAmpSchmittForm(SearchForm):
             for name in Prediction._fields:
                 getattr(out, name)[ok] = np.asarray(getattr(part, name))
         return RowModel(out, ve, ok, slew_rise, slew_fall)
+
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+        """The op-amp Schmitt board (``circuits.board.Design``) of U1 and R1, R2, R3, C1."""
+        from tristock.circuits.board import Design  # the board module imports this package
+
+        u1, r1, r2, r3, c1 = (
+            stage.parts["U1"], parts["R1"], parts["R2"], parts["R3"], parts["C1"]
+        )  # fmt: skip
+        assert isinstance(u1, OpAmp) and isinstance(c1, Capacitor)
+        assert all(isinstance(r, Resistor) for r in (r1, r2, r3))
+        return Design(u1=u1, r1=r1, r2=r2, r3=r3, c1=c1)  # type: ignore[arg-type]
+
+    def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
+        """U1's stage at its saturation levels on the nominal rails (no rating check: the
+        search's eligibility is not asked of a board already chosen), Ve over the board's R3."""
+        u1, r3 = board.parts()["U1"], board.parts()["R3"]
+        assert isinstance(u1, OpAmp) and isinstance(r3, Resistor)
+        model = OpAmpModel.from_part(u1)
+        try:
+            levels = square_levels(rails_from_supply(spec.supply), model)
+        except ValueError:
+            return "its output cannot swing both sides of the reference on these rails"
+        ve = model.offset_v + model.bias_a * r3.value
+        return _stage(0, u1, model, levels, (ve, ve))
 
 
 SEARCH_FORM = OpAmpSchmittForm()
