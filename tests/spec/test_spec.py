@@ -77,8 +77,8 @@ def test_the_bases_are_valid_and_every_numeric_field_is_found() -> None:
     found = {".".join(p) for p in NUMERIC}
     assert {"frequency.target_hz", "triangle.amplitude_vpp", "build.boards", "ranking.top",
             "tuning.ranges", "limits.max_cost", "supply.reference_v"} <= found  # fmt: skip
-    assert len(NUMERIC) == 23  # supply 4, frequency 2, triangle 2, environment 2, build 1,
-    # limits 5, ranking 1, trim 2, tuning 4
+    assert len(NUMERIC) == 25  # supply 4, frequency 2, triangle 2, environment 2, build 1,
+    # limits 5, ranking 1, trim 2, tuning 4, circuit 2
 
 
 @pytest.mark.parametrize("path", NUMERIC, ids=".".join)
@@ -87,7 +87,8 @@ def test_booleans_strings_and_others_are_not_numbers(path: tuple[str, ...], valu
     if value == "auto" and path == ("tuning", "ranges"):
         return  # the one string a numeric field accepts
     if value is None and path in (("limits", "max_cost"), ("supply", "reference_v"),
-                                  ("trim", "drift_after_trim_pct")):  # fmt: skip
+                                  ("trim", "drift_after_trim_pct"),
+                                  ("circuit", "duty_tolerance_pct")):  # fmt: skip
         return  # optional: null means "not given"
     message = error_of(with_value(path, value))
     assert ".".join(path) in message

@@ -20,6 +20,7 @@ from pydantic import (
 )
 
 from tristock.spec import limits
+from tristock.spec.circuit import CircuitSpec
 from tristock.spec.fieldtypes import AtLeast, Count, Number, auto_or_count, strict_number
 from tristock.stock.eseries import parse_series
 
@@ -297,6 +298,9 @@ class Spec(_Section):
     ranking: RankingSpec = RankingSpec()
     trim: TrimSpec | None = None
     tuning: TuningSpec | None = None
+    #: Left out of dumps while it is the default, so answers and DESIGN files of today's
+    #: circuit read as before.
+    circuit: CircuitSpec = Field(CircuitSpec(), exclude_if=lambda c: c == CircuitSpec())
 
     @model_validator(mode="after")
     def _one_kind_of_design(self) -> Spec:
