@@ -30,7 +30,7 @@ from tristock.analysis.sensitivity import (
 )
 from tristock.analysis.spread import check_inputs
 from tristock.analysis.worstcase import WorstCase, worst_case
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.circuits.topology import Prediction
 from tristock.spec.model import Spec
 
@@ -74,7 +74,7 @@ class Analysis:
 
 
 def analyse(
-    design: Design,
+    design: AnyBoard,
     spec: Spec,
     *,
     samples: int = 20000,

@@ -19,7 +19,7 @@ from tristock.analysis.spread import (
     evaluate,
     spread_board,
 )
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.spec.model import Spec
 
 FloatArray = npt.NDArray[np.float64]
@@ -98,7 +98,7 @@ def _deviations(
 
 
 def monte_carlo(
-    design: Design,
+    design: AnyBoard,
     spec: Spec,
     *,
     samples: int = 20000,
@@ -160,7 +160,7 @@ def monte_carlo(
 
 
 def yield_count(
-    design: Design,
+    design: AnyBoard,
     spec: Spec,
     *,
     samples: int = 20000,
@@ -191,7 +191,7 @@ def yield_count(
 
 
 def monte_carlo_samples(
-    design: Design,
+    design: AnyBoard,
     spec: Spec,
     *,
     samples: int = 20000,

@@ -12,7 +12,7 @@ import numpy as np
 import numpy.typing as npt
 
 from tristock.analysis.spread import Board, check_inputs, metric_table, point_fields
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.circuits.rails import rails_from_supply
 from tristock.circuits.topology import BuiltCircuit
 from tristock.spec.model import Spec
@@ -37,12 +37,12 @@ class Sensitivity:
         return {"frequency": dict(self.frequency), "amplitude": dict(self.amplitude)}
 
 
-def nominal_oscillator(design: Design, spec: Spec) -> BuiltCircuit:
+def nominal_oscillator(design: AnyBoard, spec: Spec) -> BuiltCircuit:
     """The design at 25 °C on the nominal rails, the op amp as catalogued."""
     return design.oscillator(rails_from_supply(spec.supply), 25.0)
 
 
-def sensitivities(design: Design, spec: Spec) -> Sensitivity:
+def sensitivities(design: AnyBoard, spec: Spec) -> Sensitivity:
     """Normalised sensitivities at the nominal point (25 °C, nominal rails, op amp as
     catalogued), by central differences in log space:
     S ≈ [ln y(x·e^h) - ln y(x·e^-h)]/(2h), h = SENSITIVITY_STEP.
@@ -102,7 +102,7 @@ class Drift:
         }
 
 
-def temperature_drift(design: Design, spec: Spec) -> Drift:
+def temperature_drift(design: AnyBoard, spec: Spec) -> Drift:
     """Frequency and amplitude drift over the environment range (end-point slope; a range
     that is a single point T0 uses T0 ± 1 °C), at nominal rails with the op amp as catalogued.
 

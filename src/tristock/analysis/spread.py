@@ -18,7 +18,8 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard, Design
+from tristock.circuits.board import Board as GenericBoard
 from tristock.circuits.rails import Rails, rails_from_supply
 from tristock.circuits.spreadvars import PointValues, SpreadVariable
 from tristock.circuits.topology import Prediction, Topology
@@ -40,7 +41,7 @@ class Board:
     topology: Topology
 
     @classmethod
-    def of(cls, design: Design, rails: Rails, temp_c: float) -> Board:
+    def of(cls, design: AnyBoard, rails: Rails, temp_c: float) -> Board:
         """The design's values at ``temp_c`` (its topology's ``board_point``)."""
         point = design.topology.board_point(design, rails, temp_c)
         return cls(point, rails.v_ref, design.control, design.topology)
@@ -67,7 +68,7 @@ def metric_table(pred: Prediction, rows: int) -> FloatArray:
     return np.stack(cols, axis=1)
 
 
-def spread_board(design: Design, spec: Spec) -> tuple[Board, list[SpreadVariable]]:
+def spread_board(design: AnyBoard, spec: Spec) -> tuple[Board, list[SpreadVariable]]:
     """The board at the centre of its spread box and the box's variables (both declared by
     the design's topology, ``Topology.spread``)."""
     rails = rails_from_supply(spec.supply)
@@ -91,10 +92,12 @@ def evaluate(board: Board, variables: list[SpreadVariable], z: FloatArray) -> Fl
 
 
 def check_inputs(design: object, spec: object) -> None:
-    """TypeError naming the argument unless ``design`` is a Design and ``spec`` a Spec."""
-    if not isinstance(design, Design):
+    """TypeError naming the argument unless ``design`` is a board (``circuits.board``: a
+    Design or a generic Board) and ``spec`` a Spec."""
+    if not isinstance(design, Design | GenericBoard):
         raise TypeError(
-            f"design: expected a tristock.circuits.board.Design, got {type(design).__name__}"
+            f"design: expected a tristock.circuits.board.Design or Board, got "
+            f"{type(design).__name__}"
         )
     if not isinstance(spec, Spec):
         raise TypeError(f"spec: expected a tristock.spec.model.Spec, got {type(spec).__name__}")

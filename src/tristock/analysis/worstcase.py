@@ -68,7 +68,7 @@ from tristock.analysis.spread import (
     point_at,
     spread_board,
 )
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.spec.model import Spec
 
 FloatArray = npt.NDArray[np.float64]
@@ -276,7 +276,7 @@ def _search(
 
 
 def worst_case(
-    design: Design, spec: Spec, *, max_corner_variables: int = MAX_CORNER_VARIABLES
+    design: AnyBoard, spec: Spec, *, max_corner_variables: int = MAX_CORNER_VARIABLES
 ) -> WorstCase:
     """Worst-case extremes of f, triangle amplitude and duty over the spread box (the
     topology's variables: tolerances, rails, temperature, op-amp spread), by corners,
@@ -308,7 +308,7 @@ def worst_case(
 
 
 def box_extremes(
-    design: Design, spec: Spec, metrics: Sequence[str] = METRICS
+    design: AnyBoard, spec: Spec, metrics: Sequence[str] = METRICS
 ) -> dict[str, tuple[float, float]]:
     """(min, max) over the spread box of each of ``metrics`` (frequency_hz, amplitude_vpp,
     duty_high): the search of ``worst_case`` with every corner up to ``BOX_CORNER_VARIABLES``

@@ -232,6 +232,32 @@ class Board:
         """The oscillator at ``temp_c`` (°C), built by the board's topology."""
         return self.topology.oscillator(self, rails, temp_c)
 
+    def uses(self) -> Counter[str]:
+        """Pieces of each stock code one board takes: an op amp U1 does both the integrating
+        and the comparing (a single-channel part counts twice), every other part once."""
+        n: Counter[str] = Counter()
+        for part in self.parts().values():
+            n[part.id] += part.packages_per_board if isinstance(part, OpAmp) else 1
+        return n
+
+    @property
+    def cost_per_board(self) -> float:
+        """Σ unit_cost x pieces per board, the catalog's currency."""
+        return sum(
+            p.unit_cost * p.packages_per_board if isinstance(p, OpAmp) else p.unit_cost
+            for p in self.parts().values()
+        )
+
+    @property
+    def bom_lines(self) -> int:
+        """Distinct stock codes on the BOM."""
+        return len(self.uses())
+
+
+#: A board of any topology: the op-amp Schmitt loop's (and the comparator loop's) named
+#: fields, or the generic designator table of the other variants.
+AnyBoard = Design | Board
+
 
 def resolve_board(topology: Topology, ids: dict[str, str], catalog: Catalog) -> Board:
     """The Board of ``topology`` for these stock codes; unknown designators, missing required

@@ -59,16 +59,26 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
     use_r3 = {int(i): uses(rows.i3, int(i)) for i in np.unique(rows.i3)}
     use_u1 = {int(o): uses(rows.u, int(o)) for o in np.unique(rows.u)}
     use_c1 = {int(j): uses(rows.j, int(j)) for j in np.unique(rows.j)}
-    resistor_ids = sorted(set(use_r1) | set(use_r2) | set(use_r3))
+    # The stage's own resistors (a pull-up or clamp resistor R5): pieces per board and use.
+    stage_res, stage_pieces = (x[rows.u] for x in model.stage_resistors)  # (rows, m)
+    stage_codes = (stage_res >= 0).sum(axis=1)
+    use_stage_r = {
+        int(i): cp_model.LinearExpr.weighted_sum(
+            choose_row, [int(c) for c in (stage_pieces * (stage_res == i)).sum(axis=1)]
+        )
+        for i in np.unique(stage_res[stage_res >= 0])
+    }
+    resistor_ids = sorted(set(use_r1) | set(use_r2) | set(use_r3) | set(use_stage_r))
 
     # Stock: every position a stock code fills takes one piece per board.
     zero = cp_model.LinearExpr.sum([])
     resistor_line = {}
     for i in resistor_ids:
-        pieces = use_r1.get(i, zero) + use_r2.get(i, zero) + use_r3.get(i, zero)
+        positions = [d.get(i) for d in (use_r1, use_r2, use_r3, use_stage_r)]
+        pieces = sum((e for e in positions if e is not None), zero)
         cp.add(boards * pieces <= int(res.stock[i]))
         on_bom = cp.new_bool_var(f"bom_resistor_{res.parts[i].id}")
-        for expr in (use_r1.get(i), use_r2.get(i), use_r3.get(i)):
+        for expr in positions:
             if expr is not None:
                 cp.add(on_bom >= expr)
         resistor_line[i] = on_bom
@@ -96,7 +106,10 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
     r_term = model.resistor_term(np.arange(len(res)))
     c_term = model.capacitor_term(np.arange(len(cap)))
     row_term = model.row_term(rows.e_f, rows.e_a, rows.share)
-    saved_lines = 3 - cp_model.LinearExpr.sum(list(resistor_line.values()))
+    # Lines saved against one per resistor position (R1, R2, R3 and the stage's codes, which
+    # the stage's own term already counts).
+    slots = 3 + cp_model.LinearExpr.weighted_sum(choose_row, [int(c) for c in stage_codes])
+    saved_lines = slots - cp_model.LinearExpr.sum(list(resistor_line.values()))
     primary = (
         cp_model.LinearExpr.weighted_sum(choose_row, [int(e) for e in row_term])
         + sum(model.opamp_term(model.opamps[o]) * e for o, e in use_u1.items())

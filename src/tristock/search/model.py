@@ -15,13 +15,14 @@ that is 1 ppm of frequency), so both engines and brute force compare exactly.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.opamp_schmitt.searchform import OpAmpStage
-from tristock.circuits.rails import OpAmpModel
+from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply
 from tristock.circuits.searchform import Exclusion, SearchForm, StageLoop, StageOption
 from tristock.circuits.topology import Topology
 from tristock.search.bounds import overshoot_fraction_cap
@@ -124,6 +125,31 @@ class SearchModel:
         """The stage options, in the order of ``opamps``."""
         return [o.option for o in self.opamps]
 
+    @cached_property
+    def stage_resistors(self) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+        """The resistor-table rows of the stock codes each stage option takes from the
+        resistor table (a pull-up or clamp resistor R5), and the pieces of each per board:
+        two (stages, m) arrays padded with -1 and 0 (m ≥ 1). A row whose divider or
+        integrator repeats such a code shares its stock and its BOM line (``search.rows``)."""
+        where = {p.id: n for n, p in enumerate(self.resistors.parts)}
+        found = [
+            [(where[p.id], pieces) for p, pieces in o.option.stock_needs if p.id in where]
+            for o in self.opamps
+        ]
+        m = max((len(f) for f in found), default=0) or 1
+        index = np.full((len(found), m), -1, dtype=np.int64)
+        pieces = np.zeros((len(found), m), dtype=np.int64)
+        for n, uses in enumerate(found):
+            for slot, (i, count) in enumerate(uses):
+                index[n, slot], pieces[n, slot] = i, count
+        return index, pieces
+
+    def stage_line_credit(self, o: OpAmpTerms) -> int:
+        """The most a row can gain in BOM-line credit from repeating the stage's resistor
+        codes in the divider or integrator: one line per such code. The pair bounds take it
+        off the stage's term, so they stay below every row's score."""
+        return self.shared_line_credit() * int(np.sum(self.stage_resistors[0][o.index] >= 0))
+
     def allows(self, designator: str, size: int) -> NDArray[np.bool_]:
         mask = self.allowed.get(designator)
         return np.ones(size, dtype=bool) if mask is None else mask
@@ -136,6 +162,11 @@ class SearchModel:
         return table.take(u)
 
     # ---- the spec in the model's terms ---------------------------------------------------
+    @cached_property
+    def rails(self) -> Rails:
+        """The spec's nominal rails."""
+        return rails_from_supply(self.spec.supply)
+
     @property
     def mode(self) -> str:
         return self.spec.ranking.by
@@ -269,7 +300,12 @@ def _terms(stage: StageOption, spec: Spec) -> OpAmpTerms:
         return OpAmpTerms(
             stage.index, stage.part, stage.model, vh, vl, stage.loop, k_range, point, note, stage
         )
-    raise TypeError(f"{stage.key}: only op-amp stages have search terms yet")
+    u1 = stage.parts["U1"]
+    assert isinstance(u1, OpAmp)
+    note = "the trimmed and tuned searches model the op-amp Schmitt loop only"
+    return OpAmpTerms(
+        stage.index, u1, OpAmpModel.from_part(u1), vh, vl, stage.loop, k_range, None, note, stage
+    )
 
 
 def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:

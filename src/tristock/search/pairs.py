@@ -138,13 +138,18 @@ class PairSource:
         self.lowest = np.inf
         self.highest = -np.inf
         if self.opamps:
-            op_terms = [model.opamp_term(o) for _, o in self.opamps]
+            op_terms = [self.stage_term(o) for _, o in self.opamps]
             least = int(self.r1_terms[0] + self.r2_terms[0]) - self.credit + self.floor
             most = int(self.r1_terms[-1] + self.r2_terms[-1]) + self.floor
             self.lowest, self.highest = min(op_terms) + least, max(op_terms) + most
         self.built_to = -np.inf  # every pair with part bound <= built_to is in ``pairs``
         self.pairs = no_pairs()
         self.ratios: dict[int, _RatioFigures] = {}
+
+    def stage_term(self, o: OpAmpTerms) -> int:
+        """A lower bound of stage ``o``'s share of a row's score: its own term less the
+        line credit a row can gain from repeating its resistor codes."""
+        return self.model.opamp_term(o) - self.model.stage_line_credit(o)
 
     @property
     def everything(self) -> bool:
@@ -229,7 +234,7 @@ class PairSource:
     ) -> list[tuple[NDArray[np.int64], NDArray[np.int64]]]:
         """(i1, i2) with built_to < part bound <= x for op amp ``o``, in chunks."""
         above = self.built_to
-        c = self.model.opamp_term(o) + self.floor
+        c = self.stage_term(o) + self.floor
         # R1 whose term leaves room for the cheapest R2 (the credit can only help).
         r1 = self.r1_by_term[
             : np.searchsorted(self.r1_terms, x - c - self.r2_terms[0] + self.credit, "right")
@@ -319,7 +324,7 @@ class PairSource:
             p_lo, p_hi = limits.p_min, limits.p_max
         e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
         base = (
-            model.opamp_term(o)
+            self.stage_term(o)
             + self.r_term[i1]
             + self.r_term[i2]
             - self.credit * (i1 == i2)

@@ -137,10 +137,14 @@ class RowPrediction:
 
     @classmethod
     def nominal(cls, model: SearchModel, u: I64, values: tuple[F64, ...]) -> RowPrediction:
-        """At nominal values, rails and 25 °C, the stage as catalogued."""
-        vh = np.array([o.vh for o in model.opamps])[u]
-        vl = np.array([o.vl for o in model.opamps])[u]
-        return cls(model.form, model.stages, u, values, vh, vl)
+        """At nominal values, rails and 25 °C, the stage as catalogued; the square levels
+        from the form (``row_levels``: the same for every row of an op-amp stage, set by the
+        row's resistors behind a pull-up or a clamp)."""
+        form = model.form
+        names = (*form.divider, *form.integrator, form.capacitor)
+        by_name = dict(zip(names, values, strict=True))
+        vh, vl = form.row_levels(model.stages, u, model.rails, by_name)
+        return cls(form, model.stages, u, values, vh, vl)
 
     def peak_v(self) -> F64:
         """The largest |triangle - reference| (V): what C1 holds."""
@@ -222,15 +226,30 @@ def evaluate(
     share = rp.timing_share
     ok = rp.accepted(spec, cap.voltage[j])
 
-    # Stock: every position a stock code fills takes one piece per board.
+    # Stock: every position a stock code fills takes one piece per board, the stage's
+    # resistors (R5) included; a code the stage shares with R1..R3 is one BOM line.
     same12, same13, same23 = i1 == i2, i1 == i3, i2 == i3
+    stage_res, stage_pieces = (x[u] for x in model.stage_resistors)  # (rows, m)
+
+    def stage_uses(i: I64) -> I64:
+        return np.asarray((stage_pieces * (stage_res == i[:, None])).sum(axis=1))
+
     if coupled:
-        ok &= res.stock[i1] >= boards * (1 + same12 + same13)
-        ok &= res.stock[i2] >= boards * (1 + same12 + same23)
-        ok &= res.stock[i3] >= boards * (1 + same13 + same23)
+        ok &= res.stock[i1] >= boards * (1 + same12 + same13 + stage_uses(i1))
+        ok &= res.stock[i2] >= boards * (1 + same12 + same23 + stage_uses(i2))
+        ok &= res.stock[i3] >= boards * (1 + same13 + same23 + stage_uses(i3))
     resistor_lines = (1 + ~same12 + (~same13 & ~same23)).astype(np.int64)
+    shared_with_stage = (
+        (stage_res >= 0)
+        & ((stage_res == i1[:, None]) | (stage_res == i2[:, None]) | (stage_res == i3[:, None]))
+    ).sum(axis=1)
     stages = model.stages
-    lines = np.array([st.lines for st in stages], dtype=np.int64)[u] + 1 + resistor_lines
+    lines = (
+        np.array([st.lines for st in stages], dtype=np.int64)[u]
+        + 1
+        + resistor_lines
+        - shared_with_stage
+    )
     u_cost = np.array([st.cost_per_board for st in stages])[u]
     cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j]
     if coupled and spec.limits.max_cost is not None:
@@ -256,7 +275,7 @@ def evaluate(
         + model.resistor_term(i3)
         + model.capacitor_term(j)
         + model.row_term(np.nan_to_num(e_f), np.nan_to_num(e_a), np.nan_to_num(share))
-        - model.shared_line_credit() * (3 - resistor_lines)
+        - model.shared_line_credit() * (3 - resistor_lines + shared_with_stage)
     )
     rows = Rows(
         u=u,
