@@ -17,6 +17,7 @@ from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
 from tristock.circuits.duty_schmitt import DUTY_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.topology import Topology
+from tristock.spec.model import Spec
 
 #: Every topology by name.
 TOPOLOGIES: dict[str, Topology] = {
@@ -25,4 +26,14 @@ TOPOLOGIES: dict[str, Topology] = {
 #: The topology of a board or spec that names none: today's circuit.
 DEFAULT_TOPOLOGY: Topology = OPAMP_SCHMITT
 
-__all__ = ["DEFAULT_TOPOLOGY", "TOPOLOGIES"]
+
+def spec_topologies(spec: Spec) -> list[Topology]:
+    """The topologies the spec's ``[circuit]`` asks for: the one it names, or with
+    ``topology = "any"`` every searchable one (``Topology.search_form`` not None)."""
+    name = spec.circuit.topology_name
+    if name == "any":
+        return [t for t in TOPOLOGIES.values() if t.search_form() is not None]
+    return [TOPOLOGIES[name]]
+
+
+__all__ = ["DEFAULT_TOPOLOGY", "TOPOLOGIES", "spec_topologies"]

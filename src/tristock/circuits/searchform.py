@@ -42,6 +42,7 @@ from tristock.circuits.rails import Rails
 from tristock.stock.parts import Part
 
 if TYPE_CHECKING:
+    from tristock.circuits.board import AnyBoard
     from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
@@ -199,7 +200,7 @@ class SearchForm(ABC):
         centre) instead of the catalogued typical values."""
 
     @abstractmethod
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> AnyBoard:
         """The board of a row: the stage's parts with ``parts`` (the divider pair, integrator
         element(s) and capacitor by designator), as the topology's board object."""
 

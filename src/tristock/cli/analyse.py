@@ -10,7 +10,7 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, rails_from_supply
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file
 from tristock.cli.design import spec_lines
@@ -36,7 +36,7 @@ def _sensitivities(data: dict[str, Any]) -> list[str]:
     return lines
 
 
-def render_analysis(spec: Spec, d: Design, data: dict[str, Any], *, quiet: bool = False) -> str:
+def render_analysis(spec: Spec, d: AnyBoard, data: dict[str, Any], *, quiet: bool = False) -> str:
     """The analysis as text, lines within 100 columns; ``quiet``: the figures only."""
     osc = d.oscillator(rails_from_supply(spec.supply))
     p, wc = data["predicted"], data["worst_case"]

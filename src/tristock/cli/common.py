@@ -10,7 +10,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
 
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.cli.exits import UsageError
 from tristock.examples import demo_catalog_dir
 from tristock.export.designfile import parse_design
@@ -60,7 +60,7 @@ def spec_from_file(path: Path) -> Spec:
     return parsed_in(path, parse_spec, read_file(path))
 
 
-def design_from_file(path: Path, catalog: Catalog) -> tuple[Spec, Design]:
+def design_from_file(path: Path, catalog: Catalog) -> tuple[Spec, AnyBoard]:
     """The spec and the parts (on ``catalog``) of the DESIGN file ``path``."""
     data = read_file(path)
     return parsed_in(path, lambda d: parse_design(d, catalog), data)

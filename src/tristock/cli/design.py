@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from tristock.circuits.board import resolve
+from tristock.circuits import TOPOLOGIES
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, plot_target, spec_from_file, with_ranking
 from tristock.cli.exits import UsageError
@@ -95,8 +95,7 @@ def _explained(result: DesignResult, rank: int | None, catalog: Catalog) -> list
         )
     c = result.candidates[rank - 1]
     assert c.design_file is not None
-    board = resolve(c.design_file.parts, catalog)
-    return explain(c, board.topology.sketch)
+    return explain(c, TOPOLOGIES[c.topology].sketch)
 
 
 def _style(args: argparse.Namespace, catalog: Catalog) -> TableStyle:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from tristock.circuits.board import Design
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file
 from tristock.cli.exits import UsageError
@@ -46,6 +47,7 @@ def run(args: argparse.Namespace) -> int:
             )
         try:
             if tuned:
+                assert isinstance(design, Design)  # a tuned board is an op-amp Schmitt board
                 design = tuned_at(
                     design,
                     args.range if args.range is not None else 1,

@@ -105,7 +105,8 @@ def _design(sub: Subparsers) -> None:
         nargs="?",
         const=EXAMPLES[0],
         choices=EXAMPLES,
-        help="a bundled example spec on the demo catalog: demo (default), trimmed, tuned",
+        help="a bundled example spec on the demo catalog: demo (default), trimmed, tuned, "
+        "comparator, clamped",
     )
     d.add_argument(
         "--plot", type=text("a file name"), help="tuned designs: rank 1's dial law (.png/.svg)"

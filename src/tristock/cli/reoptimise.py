@@ -21,7 +21,7 @@ from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import Predicted, ReoptimiseResult
 from tristock.report.text import pct, value_range, wrap_all
 from tristock.spec import limits
-from tristock.spec.loading import parse_spec
+from tristock.spec.loading import SpecError, parse_spec
 from tristock.stock.units import format_value
 
 
@@ -98,6 +98,10 @@ def run(args: argparse.Namespace) -> int:
     path = Path(args.design)
     data = read_file(path)
     spec = parsed_in(path, parse_spec, data.get("spec", {}))
+    if data.get("topology", "opamp_schmitt") != "opamp_schmitt":
+        raise SpecError(
+            [f"{path}: topology: re-optimisation is built for the op-amp Schmitt loop only"]
+        )
     current = parsed_in(path, part_ids, data.get("parts"))
     catalog = catalog_from(args.catalog)
     with progress("re-optimising", quiet=args.quiet):

@@ -10,7 +10,7 @@ import argparse
 import math
 from pathlib import Path
 
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, rails_from_supply
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, design_from_file, plot_target
 from tristock.cli.exits import WorkFailed
@@ -23,7 +23,7 @@ from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
 
-def render_simulation(spec: Spec, d: Design, result: SimulationResult) -> str:
+def render_simulation(spec: Spec, d: AnyBoard, result: SimulationResult) -> str:
     """Simulated against the full model's frequency, amplitude and duty (the prediction
     ``analyse`` reports: delay, slew and both channels' GBW, as the simulation)."""
     osc = d.oscillator(rails_from_supply(spec.supply))
@@ -80,7 +80,8 @@ def run(args: argparse.Namespace) -> int:
     if plot is not None:
         from tristock.report.plot import plot_waveforms
 
-        plot_waveforms(result, plot, title=f"{d.u1.id}: R3 {d.r3.id}, C1 {d.c1.id}")
+        parts = d.parts()
+        plot_waveforms(result, plot, title=", ".join(f"{k} {parts[k].id}" for k in ("U1", "C1")))
     if data is not None:
         emit_json(data)
     else:

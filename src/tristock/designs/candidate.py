@@ -7,19 +7,17 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numpy.typing import NDArray
 
 from tristock.analysis.bundle import Analysis
 from tristock.analysis.montecarlo import YieldResult
 from tristock.analysis.worstcase import WorstCase
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, rails_from_supply
 from tristock.circuits.checks import Warning
-from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
-from tristock.circuits.opamp_schmitt.searchform import board_stage
-from tristock.circuits.rails import OpAmpModel, square_levels
 from tristock.designs.results import Candidate, ErrorOut, PartOut, Predicted, WarningOut
 from tristock.search.rows import RowPrediction
 from tristock.spec.model import Spec
+from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.units import format_value
 
@@ -41,14 +39,24 @@ def part_out(part: Part, pieces: int) -> PartOut:
         kind, value, unit, tol = "capacitor", part.value_f, "F", part.tolerance_pct
     elif isinstance(part, Pot):
         kind, value, unit, tol = "pot", part.value_ohm, "Ω", part.tolerance_pct
+    elif isinstance(part, Diode):
+        volts = part.vf_v if part.vz_v is None else part.vz_v
+        kind, value, unit, tol = "diode", volts, "V", part.tolerance_pct
+    elif isinstance(part, Comparator):
+        kind, value, unit, tol = "comparator", None, "", None
     else:
         assert isinstance(part, OpAmp)
         kind, value, unit, tol = "opamp", None, "", None
-    if value is None:
-        ch = "dual" if part.channels >= 2 else "single, two used"  # type: ignore[union-attr]
+    if isinstance(part, Comparator):
+        display = f"{part.id} ({part.output})"
+    elif isinstance(part, OpAmp):
+        ch = "dual" if part.channels >= 2 else "single, two used" if pieces > 1 else "single"
         display = f"{part.id} ({ch})"
     else:
+        assert value is not None
         extra = f" {part.dielectric}" if isinstance(part, Capacitor) else ""
+        if isinstance(part, Diode):
+            extra = " zener" if part.kind == "zener" else f" {part.kind} (Vf)"
         display = f"{format_value(value, unit)} {tol:g} %{extra}"
     return PartOut(
         id=part.id,
@@ -62,14 +70,21 @@ def part_out(part: Part, pieces: int) -> PartOut:
     )
 
 
-def warnings_for(design: Design, spec: Spec) -> list[Warning]:
+def value_of(part: Part) -> float:
+    """A resistor's or capacitor's value (Ω, F): what a search row holds of it."""
+    assert isinstance(part, Resistor | Capacitor)
+    return part.value
+
+
+def warnings_for(design: AnyBoard, spec: Spec) -> list[Warning]:
     """Every design check of ``design`` on the spec's nominal rails (its topology's
     ``check``)."""
     return design.topology.check(design, rails_from_supply(spec.supply))
 
 
-def parts_report(design: Design) -> dict[str, PartOut]:
-    """Designator -> part as reported (a single-channel U1 counts two pieces)."""
+def parts_report(design: AnyBoard) -> dict[str, PartOut]:
+    """Designator -> part as reported (a single-channel U1 doing both jobs counts two
+    pieces; a part in two positions counts one piece in each)."""
     uses = design.uses()
     return {
         name: part_out(part, uses[part.id] if name == "U1" else 1)
@@ -77,33 +92,30 @@ def parts_report(design: Design) -> dict[str, PartOut]:
     }
 
 
-def accepts(spec: Spec, design: Design) -> bool:
+def accepts(spec: Spec, design: AnyBoard) -> bool:
     """The search's acceptance of one fixed design at nominal values (``search.rows``): the
     bands, the model's ground (peaks inside the integrator's swing, its slew above the
-    triangle's slope, the timing share within the limit) and C1's voltage rating."""
-    model = OpAmpModel.from_part(design.u1)
-    try:
-        vh, vl = square_levels(rails_from_supply(spec.supply), model)
-    except ValueError:
+    triangle's slope, the timing share within the limit) and C1's voltage rating, through
+    its topology's search form (a topology without one accepts no design)."""
+    form = design.topology.search_form()
+    if form is None:
         return False
-
-    def one(x: float) -> NDArray[np.float64]:
-        return np.array([x], dtype=np.float64)
-
-    values = (
-        one(design.r1.value),
-        one(design.r2.value),
-        one(design.r3.value),
-        one(design.c1.value),
-    )
-    stage = board_stage(design.u1, (vh, vl))
-    rp = RowPrediction(
-        OPAMP_SCHMITT.search_form(), [stage], np.zeros(1, dtype=np.int64), values, one(vh), one(vl)
-    )
-    return bool(rp.accepted(spec, one(design.c1.voltage_v))[0])
+    stage = form.board_stage(design, spec)
+    if isinstance(stage, str):
+        return False
+    parts = design.parts()
+    names = (*form.divider, *form.integrator, form.capacitor)
+    values = tuple(np.array([value_of(parts[d])], dtype=np.float64) for d in names)
+    u = np.zeros(1, dtype=np.int64)
+    by_name = dict(zip(names, values, strict=True))
+    vh, vl = form.row_levels([stage], u, rails_from_supply(spec.supply), by_name)
+    rp = RowPrediction(form, [stage], u, values, vh, vl)
+    c1 = parts[form.capacitor]
+    assert isinstance(c1, Capacitor)
+    return bool(rp.accepted(spec, np.array([c1.voltage_v]))[0])
 
 
-def passes(spec: Spec, design: Design, result: Analysis) -> bool:
+def passes(spec: Spec, design: AnyBoard, result: Analysis) -> bool:
     """The full model's verdict: ``accepts`` and the spec's guarantee, from the analysis
     (worst case over the whole spread box, or the Monte Carlo yield)."""
     if not accepts(spec, design):
@@ -129,7 +141,7 @@ def guarantee_holds(spec: Spec, wc: WorstCase | None, y: YieldResult | None) -> 
     return True
 
 
-def candidate(spec: Spec, design: Design, result: Analysis, rank: int, score: int) -> Candidate:
+def candidate(spec: Spec, design: AnyBoard, result: Analysis, rank: int, score: int) -> Candidate:
     """One design as reported: parts, prediction, errors, spread, cost and warnings."""
     d = result.to_dict()
     parts = parts_report(design)
@@ -137,6 +149,7 @@ def candidate(spec: Spec, design: Design, result: Analysis, rank: int, score: in
     p = d["predicted"]
     return Candidate(
         rank=rank,
+        topology=design.topology.name,
         parts=parts,
         predicted=Predicted(**p),
         error=ErrorOut(

@@ -16,7 +16,9 @@ from typing import Literal
 from tristock.analysis.bundle import analyse
 from tristock.analysis.montecarlo import yield_count
 from tristock.analysis.worstcase import worst_case
-from tristock.circuits.board import Design
+from tristock.circuits import spec_topologies
+from tristock.circuits.board import AnyBoard
+from tristock.circuits.topology import Topology
 from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
 from tristock.designs.results import DesignResult, Infeasible, SearchInfo
 from tristock.designs.variants import distinct_top, variant_key, variants_out
@@ -35,16 +37,13 @@ DEFAULT_ENGINE: Engine = "enumerate"
 DEFAULT_TIME_LIMIT_S = 5.0
 
 
-def design_of(model: SearchModel, rows: Rows, n: int) -> Design:
-    """The Design of row ``n`` (indices into the model's tables)."""
+def design_of(model: SearchModel, rows: Rows, n: int) -> AnyBoard:
+    """The board of row ``n`` (indices into the model's tables), as its topology builds it."""
     res, cap = model.resistors.parts, model.capacitors.parts
-    return Design(
-        u1=model.opamps[rows.u[n]].part,
-        r1=res[rows.i1[n]],
-        r2=res[rows.i2[n]],
-        r3=res[rows.i3[n]],
-        c1=cap[rows.j[n]],
-    )
+    form = model.form
+    chosen = (res[rows.i1[n]], res[rows.i2[n]], res[rows.i3[n]], cap[rows.j[n]])
+    names = (*form.divider, *form.integrator, form.capacitor)
+    return form.board(model.stages[rows.u[n]], dict(zip(names, chosen, strict=True)))
 
 
 def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
@@ -67,7 +66,7 @@ class _Verdict:
     exact: bool = True
 
 
-def _recheck(spec: Spec, design: Design, samples: int, seed: int, beat: int) -> _Verdict:
+def _recheck(spec: Spec, design: AnyBoard, samples: int, seed: int, beat: int) -> _Verdict:
     """What the guarantee and the ranking need beyond the search's own acceptance. In the
     yield ranking a row must pass more than ``beat`` samples to enter the top; counting
     stops as soon as it cannot (``analysis.yield_count``)."""
@@ -100,7 +99,7 @@ def _walk(
     seed: int,
     deadline: float,
     distinct: bool,
-) -> tuple[list[tuple[Design, int, int | None]], int, bool, bool]:
+) -> tuple[list[tuple[AnyBoard, int, int | None]], int, bool, bool]:
     """Re-check rows in rank order until the top is settled.
 
     Returns the rows that pass (design, score, yield count), how many were dropped, whether
@@ -114,7 +113,7 @@ def _walk(
     """
     top = spec.ranking.top
     by_yield = spec.ranking.by == "yield"
-    kept: list[tuple[Design, int, int | None]] = []
+    kept: list[tuple[AnyBoard, int, int | None]] = []
     best: dict[Hashable, int] = {}  # class -> best pass count of its kept rows (0 unranked)
     dropped = 0
 
@@ -153,8 +152,10 @@ def design_fixed(
     samples: int = 4000,
     seed: int = 0,
     distinct: bool = False,
+    topology: Topology | None = None,
 ) -> DesignResult:
     """Best ``spec.ranking.top`` fixed designs from ``catalog``, optimal under the full model;
+    ``topology``: the circuit searched (None: the one the spec's ``[circuit]`` names);
     with ``distinct`` the best ``top`` distinct designs (``designs.variants``), each with the
     variants that rank above the last one reported.
 
@@ -165,7 +166,7 @@ def design_fixed(
     """
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
-    model = build_model(spec, catalog)
+    model = build_model(spec, catalog, topology or spec_topologies(spec)[0])
     top = spec.ranking.top
     want = 2 * top if distinct else top  # distinct: variants take places in the row list
     verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done

@@ -20,6 +20,7 @@ import numpy as np
 
 from tristock.analysis.bundle import analyse
 from tristock.circuits.board import DESIGNATORS, resolve
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.designs.candidate import candidate, passes
 from tristock.designs.changes import (
     blocked_positions,
@@ -93,6 +94,15 @@ def reoptimise(
         )  # fmt: skip
     t0 = time.perf_counter()
     spec = with_build(spec, boards, top)
+    if spec.circuit.topology_name != "opamp_schmitt" or set(current) - set(
+        OPAMP_SCHMITT.designators
+    ):
+        raise SpecError(
+            [
+                "circuit: re-optimisation is built for the op-amp Schmitt loop only; search "
+                "the variant again with the part withdrawn (limits or stock)"
+            ]
+        )
     if spec.trimmed:
         from tristock.designs.trimmed.reoptimise import reoptimise_trimmed
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from pydantic import BaseModel, ConfigDict
+from pydantic import BaseModel, ConfigDict, Field
 
 from tristock.spec.model import Spec
 
@@ -88,6 +88,9 @@ class SavedDesign(_Out):
     parts: dict[str, str]
     wiper: float = 0.0
     range: str = "C1"
+    #: The circuit (``tristock.circuits.TOPOLOGIES``); left out while it is the op-amp
+    #: Schmitt loop, so such files read as before.
+    topology: str = Field("opamp_schmitt", exclude_if=lambda t: t == "opamp_schmitt")
 
 
 class VariantOut(_Out):
@@ -105,6 +108,8 @@ class VariantOut(_Out):
 
 class Candidate(_Out):
     rank: int
+    #: The circuit this design builds (``tristock.circuits.TOPOLOGIES``).
+    topology: str = "opamp_schmitt"
     parts: dict[str, PartOut]
     predicted: Predicted
     error: ErrorOut

@@ -8,9 +8,9 @@ and pot wiring, and, designator by designator:
 - U1 has the same electrical parameters (supply range, swing to each rail, slew rate,
   gain-bandwidth, delay, offset, bias current, output current): another package or channel
   count, another stock code, another price or stock;
-- every other part (R3, R4, RV1, C1..Cn) has the same value, tolerance and tempco (and for a
-  capacitor the same dielectric and temperature band): another stock code, package, rating,
-  price or stock.
+- every other part (R3, R4, R5, RV1, C1..Cn) has the same value, tolerance and tempco (and for a
+  capacitor the same dielectric and temperature band), and a comparator U2 or a diode the
+  same electrical fields: another stock code, package, rating, price or stock.
 
 Values are compared exactly as the decimals the catalog gives (each value read to 12
 significant digits, then as a fraction), so the relation is an equivalence: ``variant_key``
@@ -22,13 +22,16 @@ in exact rank order, so the first k classes met in that order are the distinct t
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Hashable, Sequence
 from decimal import Decimal
 from fractions import Fraction
 from typing import TypeVar
 
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
 from tristock.designs.results import VariantOut
+from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 
 T = TypeVar("T")
@@ -54,6 +57,11 @@ def part_key(part: Part) -> tuple[object, ...]:
         )
     if isinstance(part, Pot):
         return ("RV", exact(part.value_ohm), part.tolerance_pct, part.tempco_ppm)
+    if isinstance(part, Comparator | Diode):
+        # every electrical field: all but the stock code, price and stock
+        skip = {"id", "unit_cost", "stock", "channels"}
+        fields = dataclasses.fields(part)
+        return (type(part).__name__, *(getattr(part, f.name) for f in fields if f.name not in skip))
     assert isinstance(part, OpAmp)
     return (
         "U",
@@ -70,11 +78,12 @@ def part_key(part: Part) -> tuple[object, ...]:
     )
 
 
-def variant_key(design: Design) -> Hashable:
+def variant_key(design: AnyBoard) -> Hashable:
     """The name of ``design``'s class: equal for two designs exactly when they are variants
     of one another (module docstring)."""
     parts = design.parts()
-    r1, r2 = design.r1, design.r2
+    r1, r2 = parts["R1"], parts["R2"]
+    assert isinstance(r1, Resistor) and isinstance(r2, Resistor)
     threshold = (
         exact(r1.value_ohm) / exact(r2.value_ohm),
         (r1.tolerance_pct, r1.tempco_ppm),
@@ -84,7 +93,7 @@ def variant_key(design: Design) -> Hashable:
     return (design.topology.name, design.control, threshold, rest)
 
 
-def differing(design: Design, other: Design) -> list[str]:
+def differing(design: AnyBoard, other: AnyBoard) -> list[str]:
     """The designators whose stock codes differ between two boards of one topology."""
     mine, theirs = design.parts(), other.parts()
     return [name for name, part in mine.items() if theirs[name].id != part.id]
@@ -105,7 +114,7 @@ def classes_in_order(items: Sequence[T], key: Callable[[T], Hashable]) -> list[l
     return list(groups.values())
 
 
-def variants_out(design: Design, others: Sequence[tuple[Design, int]]) -> list[VariantOut]:
+def variants_out(design: AnyBoard, others: Sequence[tuple[AnyBoard, int]]) -> list[VariantOut]:
     """The variants ``others`` (each with its rank among all variants) as reported under
     ``design``."""
     return [
@@ -119,7 +128,9 @@ def variants_out(design: Design, others: Sequence[tuple[Design, int]]) -> list[V
     ]
 
 
-def distinct_top(designs: Sequence[Design], top: int) -> list[tuple[int, list[tuple[Design, int]]]]:
+def distinct_top(
+    designs: Sequence[AnyBoard], top: int
+) -> list[tuple[int, list[tuple[AnyBoard, int]]]]:
     """From designs in rank order: the first ``top`` classes, each as (index of its best
     member, [(variant, rank among all), ...]). With ``top`` classes the variants are those
     that rank above the last class's best member (the searches stop there, so each rank is

@@ -19,7 +19,9 @@ import io
 from dataclasses import asdict, dataclass
 from typing import Any
 
-from tristock.circuits.board import Design
+from tristock.circuits.board import AnyBoard
+from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Pot, Resistor
 from tristock.stock.units import format_value
 
@@ -96,12 +98,18 @@ def _describe(part: Part) -> tuple[str, str, float | None, str, str]:
         )
     if isinstance(part, Pot):
         return "pot", format_value(part.value_ohm, "Ω"), part.tolerance_pct, part.kind, ""
+    if isinstance(part, Diode):
+        if part.vz_v is not None:
+            return "diode", f"zener {format_value(part.vz_v, 'V')}", part.tolerance_pct, "", ""
+        return "diode", f"{part.kind} diode", None, "", ""
+    if isinstance(part, Comparator):
+        return "comparator", f"{part.output} comparator", None, "", ""
     assert isinstance(part, OpAmp)
     channels = "dual" if part.channels >= 2 else "single"
     return "opamp", f"{channels} op amp", None, "", ""
 
 
-def bill_of_materials(design: Design, boards: int) -> Bom:
+def bill_of_materials(design: AnyBoard, boards: int) -> Bom:
     """The BOM of ``design`` for ``boards`` boards (see the module docstring)."""
     if boards < 1:
         raise ValueError(f"boards: must be at least 1, got {boards}")

@@ -25,7 +25,7 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, Design, rails_from_supply
 from tristock.circuits.rails import OpAmpModel
 from tristock.export.corners import CORNERS, corner_oscillator
 from tristock.spec.loading import SpecError
@@ -114,7 +114,7 @@ def _step_for(line: str, period_s: float) -> str:
 
 
 def spice_netlist(
-    spec: Spec, design: Design, *, source: str = "", corner: str | None = None
+    spec: Spec, design: AnyBoard, *, source: str = "", corner: str | None = None
 ) -> str:
     """The netlist text (see the module docstring); ``source`` names the DESIGN file in the
     header; ``corner`` (fmin, fmax, amin, amax) builds the board at that worst-case extreme
@@ -128,11 +128,13 @@ def spice_netlist(
     setting = ""
     if corner is None:
         osc = design.oscillator(rails_from_supply(spec.supply))
+    elif not isinstance(design, Design) or design.u2 is not None:
+        raise SpecError(["corner: corner netlists are built for the op-amp Schmitt loop only"])
     else:
         osc, setting = corner_oscillator(design, spec, corner)
     rails = osc.rails
     text = design.topology.netlist(osc, periods=PERIODS)
-    if tuned and design.control == "divider":
+    if tuned and isinstance(design, Design) and design.control == "divider":
         text = _wire_divider(text, design, osc)
     body = [_step_for(line, osc.period_s) for line in text.splitlines()]
     end = body.index(".end")
@@ -147,16 +149,17 @@ def spice_netlist(
     ]
     if setting:
         header.append(f"*   {setting}")
-    if tuned:
+    if tuned and isinstance(design, Design):
         header.append(
             f"* range {design.selected + 1} of {len(design.capacitors)} "
             f"(C{design.selected + 1} {design.timing_capacitor.id} in place of C1), "
             f"{design.control} control, wiper {design.wiper:g}"
         )
-    if design.rv1 is not None and not (tuned and design.control == "divider"):
+    rv1 = design.rv1 if isinstance(design, Design) else None
+    if rv1 is not None and not (tuned and design.control == "divider"):
         header.append(
             f"* RT = R3 + wiper x RV1 = {osc.r3:.6g} ohm (wiper {design.wiper:g} of "
-            f"{design.rv1.value_ohm:g} ohm)"
+            f"{rv1.value_ohm:g} ohm)"
         )
     header += [f"* {line}" for line in LEFT_OUT]
     p = osc.prediction()

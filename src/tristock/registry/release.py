@@ -121,11 +121,12 @@ def draft_from(
     )
     if not (result.original.passes and result.candidates and not result.candidates[0].changed):
         raise ReleaseRefused(name, result.original.reasons or ["the full model rejects it"])
-    pieces = {d: (design.u1.packages_per_board if d == "U1" else 1) for d in ids}
+    uses = design.uses()
+    pieces = {d: (uses[part_id] if d == "U1" else 1) for d, part_id in ids.items()}
     layout: dict[str, Any] = {"parts": ids}
-    if design.rv1 is not None:
+    if "RV1" in ids:
         layout["wiper"] = design.wiper
-    if design.range_caps:
+    if "C2" in ids:
         layout["range"] = f"C{design.selected + 1}"
     return Draft(
         name=name,

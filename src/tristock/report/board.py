@@ -6,7 +6,7 @@ from typing import Any
 
 from tristock.analysis.bundle import analyse
 from tristock.analysis.montecarlo import Distribution
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, Design, rails_from_supply
 from tristock.circuits.checks import DoesNotOscillate
 from tristock.circuits.opamp_schmitt.checks import oscillation_failure
 from tristock.circuits.topology import Prediction
@@ -17,7 +17,7 @@ from tristock.spec.model import Spec
 
 def analysis_report(
     spec: Spec,
-    design: Design,
+    design: AnyBoard,
     *,
     samples: int = 20000,
     seed: int = 0,
@@ -36,6 +36,7 @@ def analysis_report(
     if spec.tuning is not None:
         from tristock.designs.tuned import proxy_spec_at
 
+        assert isinstance(design, Design)  # a tuned board is an op-amp Schmitt board
         spec = proxy_spec_at(spec, design)
     try:
         result = analyse(design, spec, samples=samples, seed=seed, distribution=distribution)
@@ -58,7 +59,7 @@ def analysis_report(
     }
 
 
-def require_oscillation(spec: Spec, design: Design, *, corners: bool = True) -> None:
+def require_oscillation(spec: Spec, design: AnyBoard, *, corners: bool = True) -> None:
     """Raise DoesNotOscillate, saying why, when ``design`` cannot oscillate on the spec's
     nominal rails or (with ``corners``) at either rail corner, 1 ± supply tolerance: its
     output cannot swing past the reference, an error voltage reaches a square level, or a
@@ -82,7 +83,7 @@ def require_oscillation(spec: Spec, design: Design, *, corners: bool = True) -> 
 
 
 def simulation_report(
-    spec: Spec, design: Design, *, periods: int = 10, max_points: int = 4000
+    spec: Spec, design: AnyBoard, *, periods: int = 10, max_points: int = 4000
 ) -> dict[str, Any]:
     """The time-domain simulation of the board (nominal rails, 25 °C) with the full model's
     prediction beside it (the one ``analyse`` reports) and their difference; see

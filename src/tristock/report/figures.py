@@ -27,7 +27,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from tristock.analysis.montecarlo import Distribution, monte_carlo, monte_carlo_samples
-from tristock.circuits.board import Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, Design, rails_from_supply
 from tristock.report.board import require_oscillation
 from tristock.report.plot import (
     REFERENCE_COLOUR,
@@ -87,7 +87,7 @@ def rising_edge(t: np.ndarray, square: np.ndarray, level: float) -> tuple[float,
     return start, end
 
 
-def waveform_svg(spec: Spec, design: Design) -> str:
+def waveform_svg(spec: Spec, design: AnyBoard) -> str:
     """The board simulated at nominal rails and 25 °C (``tristock.simulate``, the same run as
     ``POST /v1/simulate``), two settled periods, and a zoom on the first rising edge.
 
@@ -164,7 +164,7 @@ def _traces(
 
 def histograms_svg(
     spec: Spec,
-    design: Design,
+    design: AnyBoard,
     *,
     samples: int = 20000,
     seed: int = 0,
@@ -180,6 +180,7 @@ def histograms_svg(
     if spec.tuning is not None:
         from tristock.designs.tuned import proxy_spec_at
 
+        assert isinstance(design, Design)  # a tuned board is an op-amp Schmitt board
         spec = proxy_spec_at(spec, design)
     values = monte_carlo_samples(
         design, spec, samples=samples, seed=seed, distribution=distribution

@@ -309,6 +309,12 @@ class Spec(_Section):
                 raise ValueError("trim and tuning cannot be combined: choose one")
         elif self.frequency is None:
             raise ValueError("frequency: missing (a [frequency] section, or a [tuning] section)")
+        if self.circuit != CircuitSpec() and (self.tuning is not None or self.trimmed):
+            kind = "tuned" if self.tuning is not None else "trimmed"
+            raise ValueError(
+                f"circuit: {kind} designs build the op-amp Schmitt loop only; drop [circuit] "
+                f"or the {'[tuning]' if kind == 'tuned' else '[trim]'} section"
+            )
         return self
 
     @property

@@ -29,6 +29,7 @@ from tristock.circuits.searchform import (
 from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
 
 if TYPE_CHECKING:
+    from tristock.circuits.board import AnyBoard
     from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
@@ -231,7 +232,7 @@ class OpAmpSchmittForm(SearchForm):
                 getattr(out, name)[ok] = np.asarray(getattr(part, name))
         return RowModel(out, ve, ok, slew_rise, slew_fall)
 
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> AnyBoard:
         """The op-amp Schmitt board (``circuits.board.Design``) of U1 and R1, R2, R3, C1."""
         from tristock.circuits.board import Design  # the board module imports this package
 

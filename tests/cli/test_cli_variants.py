@@ -1,0 +1,104 @@
+"""The variants through the CLI: DESIGN files of every circuit (``topology`` key) analysed,
+simulated and exported, the bundled variant examples searched, and the plain refusals
+(set duty not searched, trimmed/tuned/re-optimised variants) as one line with exit 2."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from cli_helpers import DEMO_CATALOG, run
+
+from tristock.circuits import TOPOLOGIES
+
+SPEC = (
+    "[spec.supply]\npositive_v = {vp}\nnegative_v = {vn}\n"
+    "[spec.frequency]\ntarget_hz = 1000.0\ntolerance_pct = 5.0\n"
+    "[spec.triangle]\namplitude_vpp = 2.0\ntolerance_pct = 10.0\n"
+)
+
+
+def design_file(tmp_path: Path, name: str) -> Path:
+    """A DESIGN file of ``name``'s demo board (its topology's own ``demo_board``)."""
+    t = TOPOLOGIES[name]
+    vp, vn = t.demo_rails
+    parts = "".join(f'{d} = "{code}"\n' for d, code in t.demo_board.items())
+    path = tmp_path / f"{name}.toml"
+    path.write_text(f'topology = "{name}"\n[parts]\n{parts}' + SPEC.format(vp=vp, vn=vn))
+    return path
+
+
+@pytest.mark.parametrize("name", list(TOPOLOGIES))
+def test_every_circuit_is_analysed_simulated_and_exported(tmp_path: Path, name: str) -> None:
+    path = design_file(tmp_path, name)
+    t = TOPOLOGIES[name]
+    analysed = run("analyse", path, "--catalog", DEMO_CATALOG, "--samples", "500", "--json")
+    assert analysed.code == 0, analysed.err
+    predicted = json.loads(analysed.out)["predicted"]
+    simulated = run(
+        "simulate", path, "--catalog", DEMO_CATALOG, "--periods", "4", "--json",
+        "--max-points", "16",
+    )  # fmt: skip
+    assert simulated.code == 0, simulated.err
+    sim = json.loads(simulated.out)
+    # the time-domain simulation of the same board (tristock.simulate) agrees with the model
+    # to the topology's stated accuracy
+    assert sim["predicted"]["frequency_hz"] == pytest.approx(predicted["frequency_hz"], 1e-12)
+    assert abs(sim["difference"]["frequency_rel"]) < t.accuracy
+    assert abs(sim["difference"]["amplitude_rel"]) < t.accuracy
+    bom = run("export", "bom", path, "--catalog", DEMO_CATALOG, "--json")
+    assert bom.code == 0, bom.err
+    rows = json.loads(bom.out)["rows"]
+    placed = sorted(d for r in rows for d in r["designators"].split())
+    assert placed == sorted(t.demo_board)  # every designator on one BOM line, once
+    spice = run("export", "spice", path, "--catalog", DEMO_CATALOG)
+    assert spice.code == 0, spice.err
+    assert f"topology {name}" in spice.out and spice.out.rstrip().endswith(".end")
+
+
+@pytest.mark.parametrize(("example", "topology"), [("comparator", "comparator_schmitt"),
+                                                   ("clamped", "clamped_schmitt")])  # fmt: skip
+def test_variant_examples_find_proven_designs_of_their_circuit(example: str, topology: str) -> None:
+    done = run("design", "--example", example, "--json", "--quiet")
+    assert done.code == 0, done.err
+    result = json.loads(done.out)
+    assert result["search"]["proven_optimal"]
+    assert result["candidates"], result.get("infeasible")
+    assert {c["topology"] for c in result["candidates"]} == {topology}
+    assert all(c["design_file"]["topology"] == topology for c in result["candidates"])
+
+
+def test_a_variant_answer_saved_is_read_back(tmp_path: Path) -> None:
+    target = tmp_path / "rank1.toml"
+    saved = run("design", "--example", "clamped", "--save", "1", target, "--quiet")
+    assert saved.code == 0, saved.err
+    analysed = run("analyse", target, "--catalog", DEMO_CATALOG, "--samples", "500")
+    assert analysed.code == 0, analysed.err
+    assert "D1" in analysed.out
+
+
+@pytest.mark.parametrize(
+    ("circuit", "field"),
+    [
+        ("duty_pct = 30", "circuit.duty_pct"),
+        ("duty_tolerance_pct = 3", "circuit.duty_tolerance_pct"),
+    ],
+)
+def test_what_is_not_searched_is_refused_in_one_line(
+    tmp_path: Path, circuit: str, field: str
+) -> None:
+    spec = tmp_path / "spec.toml"
+    body = SPEC.replace("[spec.", "[").format(vp=12.0, vn=-12.0)
+    spec.write_text(f"[circuit]\n{circuit}\n{body}")
+    done = run("design", spec, "--catalog", DEMO_CATALOG)
+    assert done.code == 2
+    assert field in done.err and "not searched" in done.err
+    assert len(done.err.strip().splitlines()) == 1
+
+
+def test_a_variant_board_is_not_reoptimised(tmp_path: Path) -> None:
+    path = design_file(tmp_path, "clamped_schmitt")
+    done = run("reoptimise", path, "--catalog", DEMO_CATALOG)
+    assert done.code == 2
+    assert "re-optimisation is built for the op-amp Schmitt loop only" in done.err

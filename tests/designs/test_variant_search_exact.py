@@ -1,0 +1,315 @@
+"""The variants' searches against brute force over each circuit's FULL model.
+
+Reference, written here and independent of the search forms, windows, bounds and pruning:
+every board of a small catalog (U1 × the stage's own parts: a comparator U2 (+ a pull-up R5
+for an open-drain one), or a zener for D1/D2 with its series resistor R5; × R1, R2, R3 × C1)
+built as its topology's board and predicted by the topology's own model at nominal values,
+25 °C and the nominal rails (``board.oscillator(...).prediction()``, itself checked against
+ngspice in tests/circuits), accepted by the spec's rules as the README states them (bands;
+the integrator error voltage inside the square levels; the triangle's peaks inside the
+levels; the integrator's slew at least each ramp's slope; timing share within
+``max_timing_share``; C1's rating over the largest peak with the amplitude margin; stock for
+every piece; cost), then by the worst case over the spread box (``analysis.worst_case``)
+under that guarantee, and ranked by the documented score (README, "Ranking": the stage's cost
+and lines as one term, each resistor and capacitor its own, a shared stock code credited
+once per line saved). ``topology = "any"`` must give the merge of the circuits' answers.
+"""
+
+from __future__ import annotations
+
+import itertools
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+
+from tristock.analysis.worstcase import worst_case
+from tristock.circuits import TOPOLOGIES
+from tristock.circuits.board import AnyBoard, Board, Design, rails_from_supply
+from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
+from tristock.circuits.rails import OpAmpModel
+from tristock.designs import design
+from tristock.search.model import (
+    BALANCED_WEIGHTS,
+    COST_RESOLUTION,
+    SearchModel,
+    build_model,
+    quantise,
+)
+from tristock.spec.loading import parse_spec
+from tristock.spec.model import Spec
+from tristock.stock import eseries
+from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
+from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
+from tristock.stock.tables import Catalog
+
+STAGE_DESIGNATORS = {
+    "comparator_schmitt": ("U1", "U2", "R5"),
+    "clamped_schmitt": ("U1", "D1", "D2", "R5"),
+}
+
+
+def stages(name: str, catalog: Catalog) -> list[dict[str, Part]]:
+    """Every stage a board of ``name`` can have from ``catalog`` (no eligibility applied)."""
+    out: list[dict[str, Part]] = []
+    for u1 in catalog.opamps:
+        if name == "comparator_schmitt":
+            for u2 in catalog.comparators:
+                if u2.is_open_drain:
+                    out += [{"U1": u1, "U2": u2, "R5": r5} for r5 in catalog.resistors]
+                else:
+                    out.append({"U1": u1, "U2": u2})
+        else:
+            for z in (d for d in catalog.diodes if d.is_zener):
+                out += [{"U1": u1, "D1": z, "D2": z, "R5": r5} for r5 in catalog.resistors]
+    return out
+
+
+def board_of(name: str, parts: dict[str, Part]) -> AnyBoard:
+    if name == "comparator_schmitt":
+        named: dict[str, Any] = {k.lower(): p for k, p in parts.items()}
+        return Design(**named, topology=COMPARATOR_SCHMITT)
+    return Board(TOPOLOGIES[name], tuple(parts.items()))
+
+
+def accepted(spec: Spec, board: AnyBoard) -> tuple[float, float, float] | None:
+    """(e_f, e_a, timing share) of a board the README's nominal rules accept, else None."""
+    rails = rails_from_supply(spec.supply)
+    try:
+        p = board.oscillator(rails).prediction()
+    except ValueError:  # cannot oscillate on these rails
+        return None
+    f, a = float(p.frequency_hz), float(p.amplitude_vpp)
+    if not (np.isfinite(f) and np.isfinite(a)):
+        return None
+    parts = board.parts()
+    u1, r3, c1 = parts["U1"], parts["R3"], parts["C1"]
+    assert isinstance(u1, OpAmp) and isinstance(r3, Resistor) and isinstance(c1, Capacitor)
+    m = OpAmpModel.from_part(u1)
+    ref = rails.reference_v
+    vh, vl = float(p.square_high_v) - ref, ref - float(p.square_low_v)
+    ve = m.offset_v + m.bias_a * r3.value_ohm
+    rc = r3.value_ohm * c1.value_f
+    top, bottom = float(p.peak_high_v) - ref, float(p.peak_low_v) - ref
+    tf, ta = spec.target.tolerance_pct / 100, spec.triangle.tolerance_pct / 100
+    e_f = float(np.log(f / spec.target.target_hz))
+    e_a = float(np.log(a / spec.triangle.amplitude_vpp))
+    ok = np.log1p(-tf) <= e_f <= np.log1p(tf) and np.log1p(-ta) <= e_a <= np.log1p(ta)
+    ok = ok and vh - ve > 0 and vl + ve > 0
+    ok = ok and top < vh and bottom > -vl
+    ok = ok and (vl + ve) <= m.slew_rise_v_per_s * rc and (vh - ve) <= m.slew_fall_v_per_s * rc
+    ok = ok and float(p.timing_share) <= spec.limits.max_timing_share
+    ok = ok and c1.voltage_v >= max(abs(top), abs(bottom)) * (1 + ta)
+    return (e_f, e_a, float(p.timing_share)) if ok else None
+
+
+def score_key(
+    model: SearchModel, spec: Spec, board: AnyBoard, stage: dict[str, Part], e: tuple[float, ...]
+) -> tuple[object, ...]:
+    """The documented rank key, the stage's cost and BOM lines one term."""
+    parts = board.parts()
+    res = {p.id: n for n, p in enumerate(model.resistors.parts)}
+    cap = {p.id: n for n, p in enumerate(model.capacitors.parts)}
+    stage_board = {k: p for k, p in parts.items() if k in stage}
+    u1 = stage_board["U1"]
+    assert isinstance(u1, OpAmp)
+    packages = 1 if "U2" in stage_board else u1.packages_per_board
+    stage_cost = sum(p.unit_cost * (packages if k == "U1" else 1) for k, p in stage_board.items())
+    stage_lines = len({p.id for p in stage_board.values()})
+    scale = spec.limits.max_cost or 1.0
+    if model.mode == "balanced":
+        w = BALANCED_WEIGHTS
+        stage_term = int(quantise(w["cost"] * stage_cost / scale + w["bom_lines"] * stage_lines))
+    elif model.mode == "cost":
+        stage_term = round(stage_cost / COST_RESOLUTION)
+    else:
+        stage_term = 0
+    idx = np.array([res[parts[d].id] for d in ("R1", "R2", "R3")])
+    e_f, e_a, share = e
+    positions = stage_lines + 4  # the stage's codes, R1, R2, R3, C1
+    primary = (
+        stage_term
+        + int(model.resistor_term(idx).sum())
+        + int(model.capacitor_term(np.array([cap[parts["C1"].id]]))[0])
+        + int(model.row_term(np.array([e_f]), np.array([e_a]), np.array([share]))[0])
+        - model.shared_line_credit() * (positions - board.bom_lines)
+    )
+    secondary = int(model.secondary(np.array([e_f]), np.array([board.cost_per_board]))[0])
+    return (primary, secondary)
+
+
+def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...]]:
+    """(score, stock codes by designator) of the brute force's top ``spec.ranking.top``,
+    the codes in the board's BOM order."""
+    model = build_model(spec, catalog, TOPOLOGIES[name])
+    boards = spec.build.boards
+    keyed = []
+    for stage in stages(name, catalog):
+        for r1, r2, r3, c1 in itertools.product(
+            catalog.resistors, catalog.resistors, catalog.resistors, catalog.capacitors
+        ):
+            board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
+            e = accepted(spec, board)
+            if e is None:
+                continue
+            if any(catalog.get(pid).stock < boards * n for pid, n in board.uses().items()):
+                continue
+            lim = spec.limits
+            if lim.max_cost is not None and board.cost_per_board > lim.max_cost + 1e-12:
+                continue
+            if lim.guarantee == "worst_case" and not inside_worst_case(spec, board):
+                continue
+            ids = tuple(p.id for p in board.parts().values())
+            keyed.append((score_key(model, spec, board, stage, e), ids))
+    keyed.sort()
+    return [(key[0], ids) for key, ids in keyed[: spec.ranking.top]]
+
+
+def inside_worst_case(spec: Spec, board: AnyBoard) -> bool:
+    wc = worst_case(board, spec)
+    f_t, a_t = spec.target.target_hz, spec.triangle.amplitude_vpp
+    tf, ta = spec.target.tolerance_pct / 100, spec.triangle.tolerance_pct / 100
+    (lo_f, hi_f), (lo_a, hi_a) = wc.frequency_hz, wc.amplitude_vpp
+    return bool(
+        f_t * (1 - tf) <= lo_f
+        and hi_f <= f_t * (1 + tf)
+        and a_t * (1 - ta) <= lo_a
+        and hi_a <= a_t * (1 + ta)
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Small seeded catalogs
+
+
+def small_catalog(seed: int, n_res: int = 7) -> Catalog:
+    """Resistors around the values these loops use, a few capacitors, one fast and one slow
+    op amp, a push-pull and an open-drain comparator, two zeners: invented test parts."""
+    rng = np.random.default_rng(seed)
+    pool = eseries.values("E24", 1e3, 2e5)
+    values = sorted(rng.choice(pool, n_res, replace=False))
+    res = tuple(
+        Resistor(f"TR-{n}", float(v), float(rng.choice([1.0, 0.1, 5.0])), 100.0, "E24", 0.25,
+                 "0603", float(rng.choice([0.002, 0.01, 0.05])), int(rng.choice([10**4, 70])))
+        for n, v in enumerate(values)
+    )  # fmt: skip
+    cvals = sorted(rng.choice(eseries.values("E6", 470e-12, 47e-9), 3, replace=False))
+    caps = tuple(
+        Capacitor(f"TC-{n}", float(v), "C0G", float(rng.choice([1.0, 5.0])), 0.0, None, 50.0,
+                  "0805", 0.05, 10**4)
+        for n, v in enumerate(cvals)
+    )  # fmt: skip
+    ops = (
+        OpAmp("TU-F", 2, 4.0, 36.0, 1.2, 1.2, 10.0, 8e6, 5e-8, 1e-3, 2e-11, 0.02, 0.6, 10**4),
+        OpAmp("TU-S", 1, 3.0, 36.0, 1.5, 0.8, 0.5, 1e6, 1e-6, 2e-3, 5e-8, 0.02, 0.3, 10**4),
+    )
+    comparators = (
+        Comparator("TK-PP", 1, "push-pull", 2.7, 36.0, 5e-8, 1e-8, 1e-8, 0.2, 0.3, 2e-3, 1e-9,
+                   0.02, -0.2, 1.5, 0.5, 10**4),
+        Comparator("TK-OD", 2, "open-drain", 2.0, 36.0, 3e-7, 1e-7, 5e-8, 0.25, None, 2e-3,
+                   25e-9, 0.006, -0.3, 1.5, 0.2, 10**4),
+    )  # fmt: skip
+    diodes = (
+        Diode("TD-Z47", "zener", 4.7, 5e-3, 2.0, -0.9, 70.0, 0.72, 0.5, 0.05, 10**4),
+        Diode("TD-Z62", "zener", 6.2, 5e-3, 5.0, 2.3, 10.0, 0.72, 0.5, 0.03, 10**4),
+    )
+    return Catalog(Path("<memory>"), res, caps, ops, comparators=comparators, diodes=diodes)
+
+
+def spec_near(name: str, catalog: Catalog, guarantee: str, by: str, pick: int) -> Spec:
+    """A spec whose target is one buildable board's nominal prediction (the ``pick``-th of
+    them in sorted order), so that several boards meet it."""
+    skeleton = parse_spec(spec_data(name, 1e3, 1.0, guarantee, by))
+    rails = rails_from_supply(skeleton.supply)
+    made = []
+    rng = np.random.default_rng(pick)
+    for stage in stages(name, catalog):
+        for r1, r2, r3, c1 in itertools.product(
+            catalog.resistors[::2], catalog.resistors, catalog.resistors[::3], catalog.capacitors
+        ):
+            if r1.value_ohm >= 0.8 * r2.value_ohm:
+                continue
+            board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
+            try:
+                p = board.oscillator(rails).prediction()
+            except ValueError:
+                continue
+            if np.isfinite(p.frequency_hz) and float(p.timing_share) < 0.1:
+                made.append((float(p.frequency_hz), float(p.amplitude_vpp)))
+    assert made, "the test catalog builds nothing"
+    made.sort()
+    f, a = made[(pick * 7919) % len(made)]
+    return parse_spec(spec_data(name, f * rng.uniform(0.99, 1.01), a, guarantee, by))
+
+
+def spec_data(name: str, f: float, a: float, guarantee: str, by: str) -> dict[str, object]:
+    circuit = {"schmitt": "comparator"} if name == "comparator_schmitt" else {"clamp": "zener"}
+    return {
+        "circuit": circuit,
+        "supply": {"positive_v": 12.0, "negative_v": -12.0, "tolerance_pct": 5.0},
+        "frequency": {"target_hz": f, "tolerance_pct": 10.0 if guarantee != "nominal" else 3.0},
+        "triangle": {"amplitude_vpp": a, "tolerance_pct": 10.0 if guarantee != "nominal" else 4.0},
+        "environment": {"temp_min_c": 15.0, "temp_max_c": 45.0},
+        "build": {"boards": 20},
+        "limits": {"guarantee": guarantee, "max_timing_share": 0.2},
+        "ranking": {"by": by, "top": 6},
+    }
+
+
+CASES = [
+    ("comparator_schmitt", "nominal", "balanced", 1),
+    ("comparator_schmitt", "nominal", "frequency_error", 2),
+    ("comparator_schmitt", "nominal", "cost", 3),
+    ("comparator_schmitt", "worst_case", "balanced", 4),
+    ("clamped_schmitt", "nominal", "balanced", 1),
+    ("clamped_schmitt", "nominal", "frequency_error", 2),
+    ("clamped_schmitt", "nominal", "cost", 3),
+    ("clamped_schmitt", "worst_case", "balanced", 4),
+]
+
+
+@pytest.mark.parametrize(("name", "guarantee", "by", "seed"), CASES)
+def test_both_engines_return_the_full_model_top_k(
+    name: str, guarantee: str, by: str, seed: int
+) -> None:
+    catalog = small_catalog(seed)
+    spec = spec_near(name, catalog, guarantee, by, seed)
+    expected = reference(name, spec, catalog)
+    assert expected, "the spec admits no board: the case tests nothing"
+    for engine in ("enumerate", "cpsat"):
+        result = design(spec, catalog, engine=engine, time_limit_s=60.0, samples=200)
+        assert result.search.proven_optimal, engine
+        got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
+        assert got == expected, engine
+        assert all(c.topology == name for c in result.candidates)
+
+
+def test_any_circuit_is_the_merge_of_each_circuits_answers() -> None:
+    """``topology = "any"``: every searchable circuit's answers, merged by score (the
+    README's rule), equal to running each circuit alone and merging."""
+    catalog = small_catalog(5)
+    base = spec_near("comparator_schmitt", catalog, "nominal", "balanced", 5)
+    data = base.model_dump(mode="json")
+    data["circuit"] = {"topology": "any"}
+    spec_any = parse_spec(data)
+    assert {n for n, t in TOPOLOGIES.items() if t.search_form() is not None} == set(CIRCUIT_OF)
+    alone = []
+    for name, circuit in CIRCUIT_OF.items():
+        result = design(parse_spec(dict(data, circuit=circuit)), catalog, time_limit_s=60.0)
+        alone += [(c.score, ORDER[name], c.rank, name, c) for c in result.candidates]
+    alone.sort(key=lambda x: x[:3])
+    merged = design(spec_any, catalog, time_limit_s=60.0)
+    assert merged.search.proven_optimal
+    want = [(name, tuple(p.id for p in c.parts.values())) for _, _, _, name, c in alone[:6]]
+    got = [(c.topology, tuple(p.id for p in c.parts.values())) for c in merged.candidates]
+    assert got == want
+
+
+CIRCUIT_OF = {
+    "opamp_schmitt": {},
+    "comparator_schmitt": {"schmitt": "comparator"},
+    "clamped_schmitt": {"clamp": "zener"},
+}
+ORDER = {name: n for n, name in enumerate(TOPOLOGIES)}
