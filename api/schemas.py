@@ -12,6 +12,7 @@ from typing import Any, Literal, TypeAlias
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
+from tristock.circuits import TOPOLOGIES
 from tristock.spec.model import RankBy, Spec
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
@@ -53,7 +54,8 @@ class DesignRequest(_Body):
 
 
 class DesignBody(_Body):
-    """A design: the spec and the stock code of each designator U1, R1, R2, R3, C1."""
+    """A design: the spec and the stock code of each designator (U1, R1, R2, R3, C1, and the
+    variants' own: U2, R5, D1..D4, R3A/R3B)."""
 
     spec: Spec
     parts: dict[str, PartRef] = Field(
@@ -63,6 +65,11 @@ class DesignBody(_Body):
     wiper: float = Field(0.0, ge=0.0, le=1.0, description="pot wiper position (RV1), 0..1")
     range: str = Field(
         "C1", pattern=r"^C[1-8]$", description="tuned designs: the range capacitor in use"
+    )
+    topology: str | None = Field(
+        None,
+        description="the circuit (" + ", ".join(TOPOLOGIES) + "); default: the spec's "
+        "[circuit], else opamp_schmitt. A DESIGN file names it when it is another",
     )
 
 

@@ -45,7 +45,14 @@ async def post_analyse(
 ) -> RenderedJSON:
     if body.samples > settings.max_samples:
         raise FieldProblem([(["body", "samples"], f"at most {settings.max_samples}")], "too_large")
-    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
+    d = design_for(
+        body.spec,
+        body.parts,
+        catalog,
+        wiper=body.wiper,
+        selected=body.range,
+        topology=body.topology,
+    )
     with FieldProblem.from_value_errors(["body"]):
         return RenderedJSON(await slots.run(_analysed, body, d))
 
@@ -63,7 +70,14 @@ async def post_analyse(
 async def post_simulate(
     body: SimulateRequest, catalog: CatalogDep, slots: SlotsDep
 ) -> RenderedJSON:
-    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
+    d = design_for(
+        body.spec,
+        body.parts,
+        catalog,
+        wiper=body.wiper,
+        selected=body.range,
+        topology=body.topology,
+    )
     with FieldProblem.from_value_errors(["body"]):
         try:
             return RenderedJSON(await slots.run(_simulated, body, d))

@@ -71,7 +71,14 @@ def _histograms(body: AnalyseRequest, design: Design) -> str:
 
 @router.post("/figures/waveform.svg")
 async def waveform(body: DesignBody, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
+    d = design_for(
+        body.spec,
+        body.parts,
+        catalog,
+        wiper=body.wiper,
+        selected=body.range,
+        topology=body.topology,
+    )
     with FieldProblem.from_value_errors(["body"]):
         try:
             return _svg(await slots.run(_waveform, body.spec, d))
@@ -81,7 +88,14 @@ async def waveform(body: DesignBody, catalog: CatalogDep, slots: SlotsDep) -> Re
 
 @router.post("/figures/histograms.svg")
 async def histograms(body: AnalyseRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(body.spec, body.parts, catalog, wiper=body.wiper, selected=body.range)
+    d = design_for(
+        body.spec,
+        body.parts,
+        catalog,
+        wiper=body.wiper,
+        selected=body.range,
+        topology=body.topology,
+    )
     with FieldProblem.from_value_errors(["body"]):
         return _svg(await slots.run(_histograms, body, d))
 

@@ -281,7 +281,7 @@ function sortBy(key) {
 // ---- one design --------------------------------------------------------------------------
 function designBody(c) {
   const f = c.design_file;
-  return { spec: f.spec, parts: f.parts, wiper: f.wiper, range: f.range };
+  return { spec: f.spec, parts: f.parts, wiper: f.wiper, range: f.range, topology: f.topology };
 }
 
 function kv(rows) {
@@ -293,7 +293,7 @@ function openDesign(c) {
   const box = $("#design-box");
   box.replaceChildren();
   const sketches = JSON.parse($("#sketches-data").textContent);
-  const topology = c.design_file.spec.circuit || $("#sketches-data").dataset.default;
+  const topology = c.topology || $("#sketches-data").dataset.default;
   const parts = el("table", { id: "parts" }, el("thead", {}, el("tr", {}, ["designator", "stock code", "kind", "value", "tolerance", "pieces/board", "unit cost", "stock"].map((h) => el("th", { scope: "col", text: h })))),
     el("tbody", {}, Object.entries(c.parts).map(([d, p]) => el("tr", {}, el("th", { scope: "row", text: d }), el("td", { text: p.id }), el("td", { text: p.kind }),
       el("td", { text: p.display }), el("td", { class: "num", text: p.tolerance_pct === null || p.tolerance_pct === undefined ? "" : `±${p.tolerance_pct} %` }),
