@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 from collections import Counter
 
+from tristock.circuits.topology import Topology
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import SearchModel, build_model
 from tristock.spec.model import Spec
@@ -31,7 +32,7 @@ def opamp_exclusions(model: SearchModel) -> str:
     return "; ".join(clauses)
 
 
-def _timing_reason(spec: Spec, catalog: Catalog) -> str | None:
+def _timing_reason(spec: Spec, catalog: Catalog, topology: Topology) -> str | None:
     """The reason when only the timing-share limit stands in the way: designs meet the bands
     once op-amp timing may set up to 40 % of the period (the model's own limit)."""
     lim = spec.limits
@@ -40,7 +41,7 @@ def _timing_reason(spec: Spec, catalog: Catalog) -> str | None:
     loose = spec.model_copy(
         update={"limits": lim.model_copy(update={"max_timing_share": MODEL_TIMING_LIMIT})}
     )
-    found = enumerate_top(build_model(loose, catalog), 1, 2.0, coupled=False)
+    found = enumerate_top(build_model(loose, catalog, topology), 1, 2.0, coupled=False)
     if len(found.rows) == 0:
         return None
     return (
@@ -60,15 +61,22 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
     r_lo = format_value(lim.resistance_min_ohm, "Ω")
     r_hi = format_value(lim.resistance_max_ohm, "Ω")
 
+    stage = model.form.stage_designators
     if not model.opamps:
         for e in model.exclusions:
-            if e.designator == "U1":
-                reasons.append(f"op amp {e.part_id}: {e.reason}")
+            if e.designator in stage:
+                what = "op amp" if e.designator == "U1" else e.designator
+                reasons.append(f"{what} {e.part_id or ''}: {e.reason}".replace(" :", ":"))
         if lim.opamps is not None:
             missing = [i for i in lim.opamps if i not in {o.id for o in catalog.opamps}]
             if missing:
                 reasons.append(f"limits.opamps names ids not in the catalog: {', '.join(missing)}")
-        reasons.insert(0, "no op amp in the catalog can be used:")
+        if stage == ("U1",):
+            reasons.insert(0, "no op amp in the catalog can be used:")
+        else:
+            reasons.insert(
+                0, f"no Schmitt stage ({', '.join(stage)}) can be built from the catalog:"
+            )
         return reasons
     if len(model.resistors) == 0:
         return [
@@ -91,7 +99,8 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
         if o.target is None:
             lo, hi = (math.log(x) for x in o.k_range)
             any_pair |= bool(((ratios >= lo) & (ratios <= hi)).any())
-            reasons.append(f"op amp {o.part.id}: {o.target_note}")
+            if model.topology.name == "opamp_schmitt":
+                reasons.append(f"op amp {o.part.id}: {o.target_note}")
             continue
         ln_kt = o.target.ln_k_target
         ok = (ratios - ln_kt >= aa) & (ratios - ln_kt <= ab)
@@ -109,9 +118,10 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
         return reasons
 
     nominal = spec.model_copy(update={"limits": lim.model_copy(update={"guarantee": "nominal"})})
-    relaxed = enumerate_top(build_model(nominal, catalog), 1, 2.0, coupled=False)
+    topology = model.topology
+    relaxed = enumerate_top(build_model(nominal, catalog, topology), 1, 2.0, coupled=False)
     if len(relaxed.rows) == 0:
-        timing = _timing_reason(nominal, catalog)
+        timing = _timing_reason(nominal, catalog, topology)
         if timing:
             return [timing]
         return [
@@ -137,7 +147,7 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
         by_cost = nominal.model_copy(
             update={"ranking": nominal.ranking.model_copy(update={"by": "cost"})}
         )
-        cheapest_row = enumerate_top(build_model(by_cost, catalog), 1, 2.0, coupled=False)
+        cheapest_row = enumerate_top(build_model(by_cost, catalog, topology), 1, 2.0, coupled=False)
         cheapest = float(cheapest_row.rows.cost.min()) if len(cheapest_row.rows) else math.nan
         out = []
         if lim.max_cost is not None:

@@ -119,6 +119,8 @@ class SearchModel:
     bounds_violated: bool = False
     #: The topology's search form: its stage options, row levels and row model.
     form: SearchForm = field(default_factory=OPAMP_SCHMITT.search_form)
+    #: The circuit searched (``form`` is its search form).
+    topology: Topology = OPAMP_SCHMITT
 
     @property
     def stages(self) -> list[StageOption]:
@@ -331,4 +333,5 @@ def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT
         opamps=opamps,
         exclusions=excl,
         form=form,
+        topology=topology,
     )
