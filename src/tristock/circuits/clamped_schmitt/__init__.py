@@ -5,7 +5,8 @@ current, not the rails.
 
 Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit: a board
 at a temperature, its point), ``timedomain`` (its equivalent loop for the simulation),
-``checks``, ``netlist`` (ngspice) and ``spread`` (the spread box on a spec). ``CLAMPED_SCHMITT``
+``checks``, ``netlist`` (ngspice), ``spread`` (the spread box on a spec) and the exact
+search's form (``searchform``, on ``clamplevels`` and ``stageoptions``). ``CLAMPED_SCHMITT``
 is the topology object, an ``opampvariant.OpAmpVariant`` delegating to these modules.
 """
 
@@ -17,6 +18,7 @@ from tristock.circuits.clamped_schmitt.checks import check
 from tristock.circuits.clamped_schmitt.netlist import netlist
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
 from tristock.circuits.clamped_schmitt.physics import predict_point
+from tristock.circuits.clamped_schmitt.searchform import ClampedSchmittForm
 from tristock.circuits.clamped_schmitt.spread import (
     SENSITIVITY_FIELDS,
     drive_imbalance,
@@ -97,5 +99,10 @@ class ClampedSchmitt(OpAmpVariant):
     )
     diode_keyword = "zeners"
 
+    def search_form(self) -> ClampedSchmittForm:
+        """The exact search's view of this loop (``searchform``): stages (U1, D1 = D2, R5)."""
+        return SEARCH_FORM
+
 
 CLAMPED_SCHMITT = ClampedSchmitt()
+SEARCH_FORM = ClampedSchmittForm(CLAMPED_SCHMITT)
