@@ -1,16 +1,18 @@
 """Boards of the variant topologies built from the demo stock room's parts, and a runner
-that measures them in ngspice from each topology's own netlist (shared by the variants'
-ngspice tests)."""
+that measures them in ngspice from each topology's own netlist and holds the model to it
+(shared by the variants' ngspice tests: ``measured_fixture`` and ``check_case``)."""
 
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
 
-from ngspice_harness import NgspiceError, run_ngspice
+import pytest
+
+from ngspice_harness import NgspiceError, require_ngspice, run_ngspice
 from tristock.circuits.board import Board, resolve_board
 from tristock.circuits.rails import Rails
 from tristock.circuits.spicelines import MEASURES
@@ -37,6 +39,20 @@ def case(
 ) -> Case:
     catalog = load_catalog(demo_catalog_dir())
     return Case(topology, resolve_board(topology, dict(ids), catalog), Rails(*rails), temp_c)
+
+
+def board_case(
+    topology: Topology,
+    designators: tuple[str, ...],
+    codes: str,
+    diodes: Mapping[str, str],
+    rails: tuple[float, float],
+    temp_c: float = 25.0,
+) -> Case:
+    """A case from the stock codes of ``designators`` (space-separated, in that order) and
+    the diodes' by designator."""
+    ids = dict(zip(designators, codes.split(), strict=True))
+    return case(topology, {**ids, **diodes}, rails, temp_c)
 
 
 def measure(case: Case) -> dict[str, float] | NgspiceError:
@@ -68,3 +84,43 @@ def errors(case: Case, meas: dict[str, float]) -> dict[str, float]:
         "amplitude": float(p.amplitude_vpp) / vpp - 1.0,
         "duty": float(p.duty_high) - meas["duty"],
     }
+
+
+Measured = dict[str, dict[str, float] | NgspiceError]
+
+#: The model against ngspice (issue 13): frequency and amplitude (relative), duty (points).
+FREQUENCY_LIMIT = 3e-3
+AMPLITUDE_LIMIT = 3e-3
+DUTY_LIMIT = 5e-3
+
+
+def measured_fixture(cases: Mapping[str, Case]) -> Callable[[], Measured]:
+    """A module fixture ``measured``: every case run once in ngspice (``measure_all``)."""
+
+    @pytest.fixture(scope="module")
+    def measured() -> Measured:
+        require_ngspice()
+        return measure_all(cases)
+
+    return measured
+
+
+def check_case(
+    name: str,
+    cases: Mapping[str, Case],
+    measured: Measured,
+    record_property: Callable[[str, object], None],
+) -> None:
+    """The model of case ``name`` against its ngspice run: the errors printed (``pytest -s``)
+    and recorded as properties, each held to its limit."""
+    meas = measured[name]
+    if isinstance(meas, NgspiceError):
+        pytest.fail(f"{name}: {meas}")
+    err = errors(cases[name], meas)
+    print(f"{name}: " + ", ".join(f"{k} {v:+.2e}" for k, v in err.items()))
+    for key, value in err.items():
+        record_property(key, value)
+    # reference: ngspice transient run of the case's own netlist (``Topology.netlist``)
+    assert abs(err["frequency"]) <= FREQUENCY_LIMIT
+    assert abs(err["amplitude"]) <= AMPLITUDE_LIMIT
+    assert abs(err["duty"]) <= DUTY_LIMIT

@@ -11,9 +11,8 @@ from collections.abc import Callable
 
 import pytest
 
-from ngspice_harness import NgspiceError, require_ngspice
 from tristock.circuits import TOPOLOGIES
-from variant_harness import Case, case, errors, measure_all
+from variant_harness import Case, Measured, board_case, check_case, measured_fixture
 
 pytestmark = pytest.mark.ngspice
 
@@ -24,8 +23,7 @@ def steered(
     parts: str, diodes: tuple[str, str], rails: tuple[float, float], temp_c: float = 25.0
 ) -> Case:
     names = ("U1", "R1", "R2", "R3A", "R3B", "C1")
-    ids = dict(zip(names, parts.split(), strict=True))
-    return case(DUTY, {**ids, "D3": diodes[0], "D4": diodes[1]}, rails, temp_c)
+    return board_case(DUTY, names, parts, {"D3": diodes[0], "D4": diodes[1]}, rails, temp_c)
 
 
 CASES: dict[str, Case] = {
@@ -50,29 +48,15 @@ CASES: dict[str, Case] = {
 }
 
 
-@pytest.fixture(scope="module")
-def measured() -> dict[str, dict[str, float] | NgspiceError]:
-    require_ngspice()
-    return measure_all(CASES)
+measured = measured_fixture(CASES)
 
 
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_duty_model_matches_ngspice(
-    name: str,
-    measured: dict[str, dict[str, float] | NgspiceError],
-    record_property: Callable[[str, object], None],
+    name: str, measured: Measured, record_property: Callable[[str, object], None]
 ) -> None:
-    meas = measured[name]
-    if isinstance(meas, NgspiceError):
-        pytest.fail(f"{name}: {meas}")
-    err = errors(CASES[name], meas)
-    print(f"{name}: " + ", ".join(f"{k} {v:+.2e}" for k, v in err.items()))
-    for key, value in err.items():
-        record_property(key, value)
-    # reference: ngspice transient run of the set-duty netlist
-    assert abs(err["frequency"]) <= 3e-3
-    assert abs(err["amplitude"]) <= 3e-3
-    assert abs(err["duty"]) <= 5e-3
+    # reference: ngspice transient run of the set-duty netlist (limits in ``check_case``)
+    check_case(name, CASES, measured, record_property)
 
 
 def test_the_cases_span_the_duty_range() -> None:

@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import resolve
+from tristock.circuits.board import resolve_board
 from tristock.circuits.rails import rails_from_supply
 from tristock.circuits.searchform import SearchForm, StageOption
 from tristock.circuits.topology import Topology
@@ -94,7 +94,7 @@ def test_the_demo_row_matches_the_built_oscillator(name: str, spec: Spec, demo: 
     form = form_of(topology)
     u, stages = demo_stage(topology, spec, demo)
     rails = rails_from_supply(spec.supply)
-    design = resolve(dict(topology.demo_board), demo)
+    design = resolve_board(topology, dict(topology.demo_board), demo)
     names = (*form.divider, *form.integrator, form.capacitor)
     values = {d: np.array([demo.get(topology.demo_board[d]).value]) for d in names}
     rows = np.array([u], dtype=np.int64)

@@ -3,44 +3,30 @@ resistor R5 from U1B's output and clamped by back-to-back zeners D1/D2 to the re
 the square's levels, and the triangle's amplitude, are ±(Vz + Vf) plus the zeners' rise with
 current, not the rails.
 
-Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit), ``board``
-(a board at a temperature, its point and its equivalent loop for the simulation),
-``checks``, ``netlist`` (ngspice) and ``spread`` (the spread box on a spec).
-``CLAMPED_SCHMITT`` is the topology object.
+Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit: a board
+at a temperature, its point), ``timedomain`` (its equivalent loop for the simulation),
+``checks``, ``netlist`` (ngspice), ``spread`` (the spread box on a spec) and the exact
+search's form (``searchform``, on ``clamplevels`` and ``stageoptions``). ``CLAMPED_SCHMITT``
+is the topology object, an ``opampvariant.OpAmpVariant`` delegating to these modules.
 """
 
 from __future__ import annotations
 
 from types import MappingProxyType
-from typing import Any
 
-import numpy as np
-
-from tristock.circuits.checks import Warning
-from tristock.circuits.clamped_schmitt.board import (
-    board_point,
-    loop_from,
-    oscillator_of,
-    part_at,
-)
 from tristock.circuits.clamped_schmitt.checks import check
 from tristock.circuits.clamped_schmitt.netlist import netlist
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
-from tristock.circuits.clamped_schmitt.physics import ClampPoint, predict_point
-from tristock.circuits.clamped_schmitt.spread import SENSITIVITY_FIELDS, spread_box
-from tristock.circuits.rails import Rails
-from tristock.circuits.spreadvars import SpreadBox
-from tristock.circuits.timeloop import Loop
-from tristock.circuits.topology import (
-    BoardParts,
-    FloatArray,
-    PartRole,
-    Prediction,
-    Topology,
+from tristock.circuits.clamped_schmitt.physics import predict_point
+from tristock.circuits.clamped_schmitt.searchform import ClampedSchmittForm
+from tristock.circuits.clamped_schmitt.spread import (
+    SENSITIVITY_FIELDS,
+    drive_imbalance,
+    spread_box,
 )
-from tristock.spec.model import Spec
-from tristock.stock.diodes import Diode
-from tristock.stock.parts import Capacitor, OpAmp, Resistor
+from tristock.circuits.clamped_schmitt.timedomain import loop_from
+from tristock.circuits.opampvariant import OpAmpVariant, VariantFunctions
+from tristock.circuits.topology import PartRole
 
 SKETCH = r"""
                     +------------R2-----------------------+
@@ -64,7 +50,7 @@ SKETCH = r"""
 """
 
 
-class ClampedSchmitt(Topology):
+class ClampedSchmitt(OpAmpVariant):
     """U1A integrates the clamped square through R3 into C1; U1B compares the triangle
     (through R1) against the reference with positive feedback from the clamped square
     (through R2); R5 feeds the clamp D1/D2 from U1B's output."""
@@ -81,7 +67,7 @@ class ClampedSchmitt(Topology):
         PartRole("D2", "diodes", "zener clamping the square low (in breakdown when low)"),
     )
     sketch = SKETCH
-    #: Against the simulation of the equivalent loop (``board.loop_from``): frequency and
+    #: Against the simulation of the equivalent loop (``timedomain.loop_from``): frequency and
     #: amplitude, and duty (the demo board measures about 1e-4).
     accuracy = 2e-3
     duty_accuracy = 2e-3
@@ -102,44 +88,21 @@ class ClampedSchmitt(Topology):
     demo_rails = (12.0, -12.0)
     sensitivity_fields = SENSITIVITY_FIELDS
 
-    def predict(self, point: Any, v_ref: float | None, control: str = "series") -> Prediction:
-        return predict_point(point, v_ref, control)
+    functions = VariantFunctions(
+        predict=predict_point,
+        oscillator=ClampedOscillator.of,
+        check=check,
+        time_domain=loop_from,
+        spread=spread_box,
+        drive_imbalance=drive_imbalance,
+        netlist=netlist,
+    )
+    diode_keyword = "zeners"
 
-    def board_point(self, design: BoardParts, rails: Rails, temp_c: float) -> ClampPoint:
-        return board_point(design, rails, temp_c)
-
-    def oscillator(
-        self, design: BoardParts, rails: Rails, temp_c: float = 25.0
-    ) -> ClampedOscillator:
-        return oscillator_of(design, rails, temp_c)
-
-    def check(self, design: BoardParts, rails: Rails) -> list[Warning]:
-        parts = design.parts()
-        return check(
-            self.oscillator(design, rails),
-            opamp=part_at(parts, "U1", OpAmp),
-            resistors={r: part_at(parts, r, Resistor) for r in ("R1", "R2", "R3", "R5")},
-            capacitor=part_at(parts, "C1", Capacitor),
-            zeners={d: part_at(parts, d, Diode) for d in ("D1", "D2")},
-        )
-
-    def time_domain(self, oscillator: Any) -> Loop:
-        return loop_from(oscillator)
-
-    def spread(self, design: BoardParts, spec: Spec) -> SpreadBox:
-        """Parts, zeners, rails, T and the op amp (``clamped_schmitt.spread``)."""
-        return spread_box(design, spec)
-
-    def drive_imbalance(
-        self, point: Any, v_ref: float | None, control: str = "series"
-    ) -> FloatArray:
-        """Zeros: the clamp, not the rails, sets the square's levels and so the drives (the
-        worst case then looks for no balanced-swing point along a rail)."""
-        shape = np.broadcast_shapes(np.shape(point.v_pos), np.shape(point.v_neg))
-        return np.zeros(shape, dtype=float)
-
-    def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
-        return netlist(oscillator, periods=periods)
+    def search_form(self) -> ClampedSchmittForm:
+        """The exact search's view of this loop (``searchform``): stages (U1, D1 = D2, R5)."""
+        return SEARCH_FORM
 
 
 CLAMPED_SCHMITT = ClampedSchmitt()
+SEARCH_FORM = ClampedSchmittForm(CLAMPED_SCHMITT)

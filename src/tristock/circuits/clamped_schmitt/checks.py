@@ -4,8 +4,9 @@ capacitor's (``circuits.checks.capacitor_checks``).
 
 The margins are common practice, not from a standard: the zener current at least
 ``CLAMP_ERROR`` (error) and ``CLAMP_CAUTION`` (caution) of its test current, or the level
-rides on the op amp's swing; 50 % of a current or power rating; 2x slew; the comparator's
-GBW build-up (not in the model) under ``BUILDUP_CAUTION`` of the period.
+rides on the op amp's swing; 50 % of a current or power rating; 2x slew
+(``opampvariant.SLEW_MARGIN``); the comparator's GBW build-up (not in the model) under
+``BUILDUP_CAUTION`` of the period.
 """
 
 from __future__ import annotations
@@ -17,7 +18,6 @@ import numpy as np
 from tristock.circuits.checks import (
     Severity,
     Warning,
-    capacitor_checks,
     load_limit,
     percent,
     supply_range,
@@ -25,13 +25,13 @@ from tristock.circuits.checks import (
 )
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
 from tristock.circuits.clamped_schmitt.physics import Clamp
+from tristock.circuits.opampvariant import dissipation, integrator_capacitor, integrator_slew
 from tristock.circuits.rails import square_levels
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
 CLAMP_ERROR = 0.1
 CLAMP_CAUTION = 0.25
-SLEW_MARGIN = 2.0
 BUILDUP_CAUTION = 0.01
 
 
@@ -86,36 +86,21 @@ def check(
             )
         # the zener in breakdown drops the level less the other's forward drop (taken at 1 mA)
         power = out_a * (abs(level) - zeners[other].vf_v)
-        w = load_limit("zener_power", power, zener.power_w, f"{designator} dissipation")
-        found += [w] if w else []
+        found += dissipation("zener_power", designator, power, zener.power_w)
         worst_out = max(worst_out, out_a)
-        r5 = resistors["R5"]
         vo = square_levels(osc.rails, osc.opamp)[0 if side == "high" else 1]
-        w = load_limit(
-            "resistor_power", (vo - abs(level)) ** 2 / osc.r5, r5.power_w, "R5 dissipation"
-        )
-        found += [w] if w else []
+        r5_watts = (vo - abs(level)) ** 2 / osc.r5
+        found += dissipation("resistor_power", "R5", r5_watts, resistors["R5"].power_w)
     load = worst_out + max(abs(float(p.peak_high_v)), abs(float(p.peak_low_v))) / (osc.r1 + osc.r2)
     w = load_limit("load_comparator", worst_out, opamp.output_a, "U1B output current into R5")
     found += [w] if w else []
     w = load_limit("load_integrator", load - worst_out, opamp.output_a, "U1A output current")
     found += [w] if w else []
     level = max(abs(float(p.square_high_v)), abs(float(p.square_low_v)))
-    w = load_limit("resistor_power", level**2 / osc.r3, resistors["R3"].power_w, "R3 dissipation")
-    found += [w] if w else []
-    slope = float(p.slope_v_per_s)
-    if slope * SLEW_MARGIN > osc.opamp.slew_rise_v_per_s:
-        found.append(
-            Warning(
-                "slew_integrator",
-                "caution" if slope < osc.opamp.slew_rise_v_per_s else "error",
-                f"the triangle's slope {slope * 1e-6:.3g} V/µs is within {SLEW_MARGIN:g}x of the "
-                f"op amp's slew rate {osc.opamp.slew_rise_v_per_s * 1e-6:.3g} V/µs",
-            )
-        )
+    found += dissipation("resistor_power", "R3", level**2 / osc.r3, resistors["R3"].power_w)
+    found += integrator_slew(p, osc.opamp)
     found += buildup_check(osc)
-    v_cap = max(abs(float(p.peak_high_v)), abs(float(p.peak_low_v))) + abs(osc.opamp.offset_v)
-    found += capacitor_checks("C1", capacitor, v_cap, "the triangle swings both ways")
+    found += integrator_capacitor(p, osc.opamp, capacitor)
     return found
 
 

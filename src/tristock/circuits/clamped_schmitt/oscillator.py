@@ -1,33 +1,26 @@
 """One built zener-clamped oscillator: its values at a temperature, the op amp, the rails and
-the two zeners; ``prediction()`` runs ``physics.predict_point`` and ``str`` prints it."""
+the two zeners; ``prediction()`` runs ``physics.predict_point`` and ``str`` prints it (the
+common half: ``circuits.opampvariant.VariantOscillator``)."""
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
-from functools import cached_property
 
 from tristock.circuits.clamped_schmitt.physics import ClampPoint, predict_point
-from tristock.circuits.diode import diode_at, thermal_voltage
+from tristock.circuits.diode import diode_at
+from tristock.circuits.opampvariant import VariantOscillator, fmt, signed
 from tristock.circuits.rails import OpAmpModel, Rails, square_levels
 from tristock.circuits.topology import Prediction
 from tristock.stock.diodes import Diode
-from tristock.stock.units import format_value
-
-
-def _fmt(value: float, unit: str) -> str:
-    return format_value(value, unit, digits=3)
-
-
-def _signed(value: float, unit: str) -> str:
-    text = _fmt(value, unit)
-    return text if text.startswith("-") or value == 0 else "+" + text
 
 
 @dataclass(frozen=True)
-class ClampedOscillator:
+class ClampedOscillator(VariantOscillator):
     """R1, R2, R3, R5 (Ω) and C1 (F) at ``temp_c`` (°C); U1 (both channels alike); D1 (its
     breakdown clamps the square high) and D2 (low), catalogued zeners moved to ``temp_c``."""
+
+    value_fields = ("r1", "r2", "r3", "r5", "c1")
+    diode_fields = ("d1", "d2")
 
     r1: float
     r2: float
@@ -40,19 +33,13 @@ class ClampedOscillator:
     d2: Diode
     temp_c: float = 25.0
 
-    def __post_init__(self) -> None:
-        for name in ("r1", "r2", "r3", "r5", "c1"):
-            v = getattr(self, name)
-            if not (math.isfinite(v) and v > 0.0):
-                raise ValueError(f"{name}: must be a positive finite value, got {v!r}")
-        for name in ("d1", "d2"):
+    def check_diodes(self) -> None:
+        for name in self.diode_fields:
             if not getattr(self, name).is_zener:
                 raise ValueError(f"{name}: {getattr(self, name).id} is not a zener")
-        square_levels(self.rails, self.opamp)
 
     def point(self) -> ClampPoint:
         """The model's inputs (``physics.ClampPoint``)."""
-        m = self.opamp
         vz1, rz1, izt1, vf1 = diode_at(self.d1, self.temp_c)
         vz2, rz2, izt2, vf2 = diode_at(self.d2, self.temp_c)
         return ClampPoint(
@@ -61,18 +48,6 @@ class ClampedOscillator:
             r3=self.r3,
             r5=self.r5,
             c1=self.c1,
-            v_pos=self.rails.v_pos,
-            v_neg=self.rails.v_neg,
-            swing_pos=m.swing_pos_v,
-            swing_neg=m.swing_neg_v,
-            slew_rise=m.slew_rise_v_per_s,
-            slew_fall=m.slew_fall_v_per_s,
-            delay=m.delay_s,
-            gbw=m.gbw_hz,
-            vos1=m.offset_v,
-            ib1=m.bias_a,
-            vos2=m.comparator_offset_v,
-            ib2=m.comparator_bias_a,
             vz1=vz1,
             rz1=rz1,
             izt1=izt1,
@@ -81,31 +56,11 @@ class ClampedOscillator:
             rz2=rz2,
             izt2=izt2,
             vf2=vf2,
-            vt_therm=float(thermal_voltage(self.temp_c)),
+            **self.loop_fields(),
         )
 
-    def prediction(self) -> Prediction:
-        return self._prediction
-
-    @cached_property
-    def _prediction(self) -> Prediction:
-        return predict_point(self.point(), self.rails.v_ref)
-
-    @property
-    def frequency_hz(self) -> float:
-        return float(self.prediction().frequency_hz)
-
-    @property
-    def period_s(self) -> float:
-        return float(self.prediction().period_s)
-
-    @property
-    def amplitude_vpp(self) -> float:
-        return float(self.prediction().amplitude_vpp)
-
-    @property
-    def duty_high(self) -> float:
-        return float(self.prediction().duty_high)
+    def predict(self, point: ClampPoint) -> Prediction:
+        return predict_point(point, self.rails.v_ref)
 
     def __str__(self) -> str:
         p = self.prediction()
@@ -114,20 +69,13 @@ class ClampedOscillator:
         return "\n".join(
             [
                 "zener-clamped triangle/square oscillator",
-                f"  R1 {_fmt(self.r1, 'Ω')}   R2 {_fmt(self.r2, 'Ω')}   R3 {_fmt(self.r3, 'Ω')}   "
-                f"R5 {_fmt(self.r5, 'Ω')}   C1 {_fmt(self.c1, 'F')}",
+                f"  R1 {fmt(self.r1, 'Ω')}   R2 {fmt(self.r2, 'Ω')}   R3 {fmt(self.r3, 'Ω')}   "
+                f"R5 {fmt(self.r5, 'Ω')}   C1 {fmt(self.c1, 'F')}",
                 f"  D1 {self.d1.id} / D2 {self.d2.id} at {self.temp_c:g} °C; op amp swings "
-                f"{_signed(vh, 'V')} / {_signed(-vl, 'V')} on rails {_signed(r.v_pos, 'V')} / "
-                f"{_signed(r.v_neg, 'V')}",
-                f"  square clamped at {_signed(float(p.square_high_v), 'V')} / "
-                f"{_signed(float(p.square_low_v), 'V')} from the reference",
-                f"  frequency {_fmt(float(p.frequency_hz), 'Hz')}, period "
-                f"{_fmt(float(p.period_s), 's')}, high {100.0 * float(p.duty_high):.2f} %",
-                f"  triangle {_fmt(float(p.amplitude_vpp), 'V')} p-p, midpoint "
-                f"{_signed(float(p.offset_v), 'V')}; thresholds "
-                f"{_signed(float(p.threshold_high_v), 'V')} / "
-                f"{_signed(float(p.threshold_low_v), 'V')}",
-                f"  effective switching delay {_fmt(float(p.effective_delay_s), 's')}, op-amp "
-                f"timing {100.0 * float(p.timing_share):.1f} % of the period",
+                f"{signed(vh, 'V')} / {signed(-vl, 'V')} on rails {signed(r.v_pos, 'V')} / "
+                f"{signed(r.v_neg, 'V')}",
+                f"  square clamped at {signed(float(p.square_high_v), 'V')} / "
+                f"{signed(float(p.square_low_v), 'V')} from the reference",
+                *self.timing_lines(),
             ]
         )

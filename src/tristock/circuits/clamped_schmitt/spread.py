@@ -22,31 +22,26 @@ op amp's offsets at 0 V and its bias currents as catalogued.
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Callable, Mapping
 from types import MappingProxyType
+from typing import Any
 
-from tristock.circuits.clamped_schmitt.board import board_point, part_at
-from tristock.circuits.diode import K_OVER_Q, ZENER_FORWARD_TEMPCO_MV_PER_C
-from tristock.circuits.opamp_schmitt.spread import opamp_variables
-from tristock.circuits.rails import rails_from_supply
+import numpy as np
+
+from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
+from tristock.circuits.diode import ZENER_FORWARD_TEMPCO_MV_PER_C
+from tristock.circuits.opampvariant import OPAMP_SENSITIVITY, part_at, variant_box
 from tristock.circuits.spreadvars import (
     SpreadBox,
     SpreadVariable,
-    ValuedParts,
     added,
-    part_tempcos,
-    part_tolerances,
-    rail_tolerances,
     scaled,
     signed_value,
-    temperature,
     tolerance,
 )
-from tristock.circuits.topology import BoardParts
+from tristock.circuits.topology import BoardParts, FloatArray
 from tristock.spec.model import Spec
 from tristock.stock.diodes import Diode
-from tristock.stock.parts import Capacitor, OpAmp, Resistor
 from tristock.stock.units import format_value
 
 #: A zener's dynamic-resistance spread, ± fraction of the catalogued rz (common practice).
@@ -66,25 +61,11 @@ SENSITIVITY_FIELDS: Mapping[str, tuple[str, ...]] = MappingProxyType(
         "D2": ("vz2",),
         "D1.rz": ("rz1",),
         "D2.rz": ("rz2",),
-        "V+": ("v_pos",),
-        "V-": ("v_neg",),
-        "U1.slew": ("slew_rise", "slew_fall"),
-        "U1.delay": ("delay",),
-        "U1.gbw": ("gbw",),
-        "U1.offset": ("vos1", "vos2"),
-        "U1.bias": ("ib1", "ib2"),
+        **OPAMP_SENSITIVITY,
     }
 )
-
-
-def valued_parts(design: BoardParts) -> ValuedParts:
-    """Designator -> (point field, part) of R1, R2, R3, R5 and C1."""
-    parts = design.parts()
-    out: dict[str, tuple[str, Resistor | Capacitor]] = {
-        d: (d.lower(), part_at(parts, d, Resistor)) for d in ("R1", "R2", "R3", "R5")
-    }
-    out["C1"] = ("c1", part_at(parts, "C1", Capacitor))
-    return out
+#: The resistors whose tolerances and tempcos spread (with C1).
+RESISTORS = ("R1", "R2", "R3", "R5")
 
 
 def ohms_at(rz: float, spread: float) -> Callable[[float], str]:
@@ -120,24 +101,25 @@ def zener_variables(zeners: Mapping[str, tuple[str, Diode]]) -> list[SpreadVaria
 
 def spread_box(design: BoardParts, spec: Spec) -> SpreadBox:
     """The centre (offsets 0 V, bias as catalogued) and the variables in the order of the
-    module docstring."""
-    env = spec.environment
-    ranged = env.temp_max_c > env.temp_min_c
-    rails = rails_from_supply(spec.supply)
+    module docstring (``opampvariant.variant_box``)."""
     parts = design.parts()
-    u1 = part_at(parts, "U1", OpAmp)
     zeners = {d: (d[1], part_at(parts, d, Diode)) for d in ("D1", "D2")}
-    point = board_point(design, rails, 25.0 if ranged else env.temp_min_c)
-    centre = dataclasses.replace(point, vos1=0.0, vos2=0.0, ib1=u1.bias_a, ib2=u1.bias_a)
-    valued = valued_parts(design)
-    variables = part_tolerances(valued)
-    variables += zener_variables(zeners)
-    variables += rail_tolerances(spec, rails)
-    if ranged:
-        drifts = {"vt_therm": K_OVER_Q}
-        for n, d in zeners.values():
-            drifts[f"vz{n}"] = d.tempco_mv_per_c * 1e-3
-            drifts[f"vf{n}"] = ZENER_FORWARD_TEMPCO_MV_PER_C * 1e-3
-        variables.append(temperature(env.temp_min_c, env.temp_max_c, part_tempcos(valued), drifts))
-    variables += opamp_variables(u1)
-    return SpreadBox(centre, tuple(variables))
+    drifts: dict[str, float] = {}
+    for n, d in zeners.values():
+        drifts[f"vz{n}"] = d.tempco_mv_per_c * 1e-3
+        drifts[f"vf{n}"] = ZENER_FORWARD_TEMPCO_MV_PER_C * 1e-3
+    return variant_box(
+        design,
+        spec,
+        oscillator=ClampedOscillator.of,
+        resistors=RESISTORS,
+        diode_variables=zener_variables(zeners),
+        drifts=drifts,
+    )
+
+
+def drive_imbalance(point: Any, v_ref: float | None) -> FloatArray:
+    """Zeros: the clamp, not the rails, sets the square's levels and so the drives (the
+    worst case then looks for no balanced-swing point along a rail)."""
+    shape = np.broadcast_shapes(np.shape(point.v_pos), np.shape(point.v_neg))
+    return np.zeros(shape, dtype=float)

@@ -3,29 +3,22 @@ load_comparator, resistor_power, supply_range, slew_integrator and the capacitor
 (``circuits.checks.capacitor_checks``).
 
 The margins are common practice, not from a standard: 50 % of a current or power rating; 2x
-slew; a reverse voltage above ``REVERSE_CAUTION_V`` asks for the datasheet's rating (the
-diode table has no reverse-voltage column; small-signal diodes are commonly rated 20-100 V);
-a reverse leakage above ``LEAK_CAUTION`` of the branch current (the model includes it, but it
-grows steeply with temperature).
+slew (``opampvariant.SLEW_MARGIN``); a reverse voltage above ``REVERSE_CAUTION_V`` asks for
+the datasheet's rating (the diode table has no reverse-voltage column; small-signal diodes
+are commonly rated 20-100 V); a reverse leakage above ``LEAK_CAUTION`` of the branch current
+(the model includes it, but it grows steeply with temperature).
 """
 
 from __future__ import annotations
 
-from tristock.circuits.checks import (
-    Warning,
-    capacitor_checks,
-    load_limit,
-    percent,
-    supply_range,
-    volts,
-)
+from tristock.circuits.checks import Warning, load_limit, percent, supply_range, volts
 from tristock.circuits.diode import saturation_current
 from tristock.circuits.duty_schmitt.oscillator import DutyOscillator
+from tristock.circuits.opampvariant import dissipation, integrator_capacitor, integrator_slew
 from tristock.circuits.rails import square_levels
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
-SLEW_MARGIN = 2.0
 REVERSE_CAUTION_V = 20.0
 LEAK_CAUTION = 0.005
 
@@ -60,18 +53,10 @@ def check(
                     "rated reverse voltage (the table does not give it)",
                 )
             )
-        w = load_limit(
-            "diode_power", current * diode.vf_v, diode.power_w, f"{designator} dissipation"
-        )
-        found += [w] if w else []
+        found += dissipation("diode_power", designator, current * diode.vf_v, diode.power_w)
         value = getattr(osc, resistor.lower())
-        w = load_limit(
-            "resistor_power",
-            (current * value) ** 2 / value,
-            resistors[resistor].power_w,
-            f"{resistor} dissipation",
-        )
-        found += [w] if w else []
+        watts = (current * value) ** 2 / value
+        found += dissipation("resistor_power", resistor, watts, resistors[resistor].power_w)
         leak = float(saturation_current(vf_other, rs_other, point.vt_therm))
         if leak > LEAK_CAUTION * current:
             other = "D4" if designator == "D3" else "D3"
@@ -93,16 +78,6 @@ def check(
         "U1B output current (R3A or R3B and R1 + R2)",
     )
     found += [w] if w else []
-    slope = float(p.slope_v_per_s)
-    if slope * SLEW_MARGIN > osc.opamp.slew_rise_v_per_s:
-        found.append(
-            Warning(
-                "slew_integrator",
-                "caution" if slope < osc.opamp.slew_rise_v_per_s else "error",
-                f"the triangle's slope {slope * 1e-6:.3g} V/µs is within {SLEW_MARGIN:g}x of the "
-                f"op amp's slew rate {osc.opamp.slew_rise_v_per_s * 1e-6:.3g} V/µs",
-            )
-        )
-    v_cap = peak + abs(osc.opamp.offset_v)
-    found += capacitor_checks("C1", capacitor, v_cap, "the triangle swings both ways")
+    found += integrator_slew(p, osc.opamp)
+    found += integrator_capacitor(p, osc.opamp, capacitor)
     return found

@@ -1,61 +1,16 @@
-"""A clamped board as the model sees it: its oscillator at a temperature, its point, and its
-equivalent loop for the event-driven simulation."""
+"""A clamped board's equivalent loop for the event-driven simulation (the board itself is
+built by ``ClampedOscillator.of``)."""
 
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
-from typing import TypeVar
 
 import numpy as np
 
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
-from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint, output_levels
+from tristock.circuits.clamped_schmitt.physics import Clamp, output_levels
 from tristock.circuits.integrator import integrator_terms
-from tristock.circuits.rails import OpAmpModel, Rails
 from tristock.circuits.timeloop import Loop
-from tristock.circuits.topology import BoardParts
-from tristock.stock.diodes import Diode
-from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor, value_at
-
-P = TypeVar("P")
-
-
-def part_at(parts: Mapping[str, Part], designator: str, kind: type[P]) -> P:
-    """The part at ``designator``, which must be a ``kind``."""
-    part = parts[designator]
-    if not isinstance(part, kind):
-        raise TypeError(f"{designator}: expected a {kind.__name__}, got {type(part).__name__}")
-    return part
-
-
-def resistance_at(parts: Mapping[str, Part], designator: str, temp_c: float) -> float:
-    r = part_at(parts, designator, Resistor)
-    return value_at(r.value_ohm, r.tempco_ppm, temp_c)
-
-
-def oscillator_of(design: BoardParts, rails: Rails, temp_c: float = 25.0) -> ClampedOscillator:
-    """The board at ``temp_c`` (°C): resistors and C1 moved by their tempcos, the zeners by
-    theirs (``circuits.diode.diode_at``)."""
-    parts = design.parts()
-    cap = part_at(parts, "C1", Capacitor)
-    c_tc = cap.tempco_ppm if cap.tempco_ppm is not None else 0.0
-    return ClampedOscillator(
-        r1=resistance_at(parts, "R1", temp_c),
-        r2=resistance_at(parts, "R2", temp_c),
-        r3=resistance_at(parts, "R3", temp_c),
-        r5=resistance_at(parts, "R5", temp_c),
-        c1=value_at(cap.value_f, c_tc, temp_c),
-        opamp=OpAmpModel.from_part(part_at(parts, "U1", OpAmp)),
-        rails=rails,
-        d1=part_at(parts, "D1", Diode),
-        d2=part_at(parts, "D2", Diode),
-        temp_c=temp_c,
-    )
-
-
-def board_point(design: BoardParts, rails: Rails, temp_c: float) -> ClampPoint:
-    return oscillator_of(design, rails, temp_c).point()
 
 
 def loop_from(osc: ClampedOscillator) -> Loop:

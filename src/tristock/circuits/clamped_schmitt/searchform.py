@@ -1,0 +1,182 @@
+"""The zener-clamped loop's search form: one stage option per usable (U1, zener part for
+D1/D2, series resistor R5).
+
+- U1 as in the op-amp form (``opamp_schmitt.searchform.stocked_opamps``, ``opamp_levels``:
+  ``limits.opamps``, stock for every board, the supply rating, levels both sides of the
+  reference); a zener of the diode table with two pieces a board in stock; R5 from the
+  resistors the search's resistor table holds (its value range, series and stock rules,
+  ``clamp_resistors``); then the stage limits of ``clamplevels`` and Ve = Vos1 + Ib1·R3
+  strictly inside the levels for some R3.
+- The levels are the clamp's (``clamplevels``): ``row_levels`` gives each row's own,
+  ``level_bounds`` and the ``StageLoop`` intervals that hold every row's.
+- ``predict_rows`` is the topology's own ``predict`` at each row's point. Its ``levels`` are
+  the rows' clamp levels (``row_levels``, on the rails the rows are evaluated at); the op
+  amp's output levels behind them are recovered with the clamp's own map Vo(S)
+  (``Clamp.drive_of``, the inverse of ``Clamp.level``), so a row on other rails (a
+  worst-case probe) is the model on those rails.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from tristock.circuits.board import Board
+from tristock.circuits.clamped_schmitt.clamplevels import (
+    ClampStage,
+    LoadRange,
+    candidate_columns,
+    columns,
+    fixed_fields,
+    level_range,
+    row_point,
+    square_levels_at_reference,
+)
+from tristock.circuits.clamped_schmitt.physics import Clamp
+from tristock.circuits.clamped_schmitt.stageoptions import clamp_stages, loads, make_stage
+from tristock.circuits.opampvariant import part_at
+from tristock.circuits.prediction import Prediction
+from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply, square_levels
+from tristock.circuits.searchform import F64, I64, Exclusion, RowModel, SearchForm, StageOption
+from tristock.circuits.topology import BoardParts, Topology
+from tristock.stock.diodes import Diode
+from tristock.stock.parts import OpAmp, Part, Resistor
+
+if TYPE_CHECKING:
+    from tristock.spec.model import Spec
+    from tristock.stock.catalog import Catalog
+
+
+def board_uses(board: BoardParts) -> Counter[str]:
+    """Pieces of each stock code one board takes, as ``board.Design.uses`` counts them: U1's
+    packages per board (two for a single-channel part), one piece per other designator."""
+    uses: Counter[str] = Counter()
+    for name, part in board.parts().items():
+        uses[part.id] += part.packages_per_board if isinstance(part, OpAmp) and name == "U1" else 1
+    return uses
+
+
+def board_cost(board: BoardParts) -> float:
+    """Σ unit_cost x pieces per board (``board.Design.cost_per_board``)."""
+    return sum(
+        p.unit_cost * p.packages_per_board if isinstance(p, OpAmp) else p.unit_cost
+        for p in board.parts().values()
+    )
+
+
+class ClampedSchmittForm(SearchForm):
+    """Rows (U1, D1 = D2, R5, R1, R2, R3, C1); the stage is U1 with the clamp."""
+
+    stage_designators = ("U1", "D1", "D2", "R5")
+
+    def __init__(self, topology: Topology) -> None:
+        self.topology = topology
+
+    def stage_options(
+        self, spec: Spec, catalog: Catalog, r3_values: F64
+    ) -> tuple[list[StageOption], list[Exclusion]]:
+        stages, excl = clamp_stages(spec, catalog, r3_values)
+        return list(stages), excl
+
+    def level_bounds(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails
+    ) -> tuple[F64, F64, F64, F64]:
+        """The clamp's levels on ``rails`` over every row of each stage, its resistors at
+        their tolerance and tempco ends (``ClampStage.spread_load``)."""
+        uniq, back = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
+        cols = columns(stages, uniq)
+        spread = [
+            s.spread_load for s in (stages[n] for n in uniq.tolist()) if isinstance(s, ClampStage)
+        ]
+        load = [np.array([x[f] for x in spread], dtype=float) for f in range(5)]
+        found = level_range(cols, load, rails)
+        return found[0][back], found[1][back], found[2][back], found[3][back]
+
+    def row_levels(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails, values: Mapping[str, F64]
+    ) -> tuple[F64, F64]:
+        """The clamp's levels S_H and -S_L of each row with the triangle at the reference
+        (``clamplevels.square_levels_at_reference``): the model's own."""
+        point = row_point(columns(stages, u), values, rails)
+        return square_levels_at_reference(point, rails.v_ref)
+
+    def predict_rows(
+        self,
+        stages: Sequence[StageOption],
+        u: I64,
+        values: Mapping[str, F64],
+        levels: tuple[F64, F64],
+        *,
+        slew_scale: F64 | float = 1.0,
+        delay_scale: F64 | float = 1.0,
+        centred_offsets: bool = False,
+    ) -> RowModel:
+        """The topology's ``predict`` of each valid row (Ve = Vos1 + Ib1·R3 strictly inside
+        -VL..VH of the clamp levels ``levels``, and a finite period); NaN elsewhere."""
+        n = len(u)
+        if n == 0:
+            empty = np.zeros(0)
+            nothing = Prediction(*(empty for _ in Prediction._fields))
+            return RowModel(nothing, empty, np.zeros(0, dtype=bool), empty, empty)
+        cols = columns(stages, u)
+        vh, vl = (np.asarray(x, dtype=float) for x in levels)
+        net = Clamp.of(row_point(cols, values, (vh, -vl)))
+        out_h, out_l = net.drive_of(vh, np.zeros(n)), -net.drive_of(-vl, np.zeros(n))
+        moved = dict(cols)
+        moved["slew_rise"] = np.broadcast_to(cols["slew_rise"] * slew_scale, (n,))
+        moved["slew_fall"] = np.broadcast_to(cols["slew_fall"] * slew_scale, (n,))
+        moved["delay"] = np.broadcast_to(cols["delay"] * delay_scale, (n,))
+        moved["swing_pos"], moved["swing_neg"] = np.zeros(n), np.zeros(n)
+        if centred_offsets:
+            moved["vos1"], moved["vos2"] = np.zeros(n), np.zeros(n)
+        ve = moved["vos1"] + moved["ib1"] * values["R3"]
+        ok = (vh - ve > 0) & (vl + ve > 0) & (vh > 0) & (vl > 0) & (out_h > 0) & (out_l > 0)
+        out = Prediction(*(np.full(n, np.nan) for _ in Prediction._fields))
+        if ok.any():
+            sub = {k: np.asarray(x)[ok] for k, x in moved.items()}
+            row_values = {k: np.asarray(x)[ok] for k, x in values.items()}
+            point = row_point(sub, row_values, (out_h[ok], -out_l[ok]))
+            pred = self.topology.predict(point, 0.0)
+            for name in Prediction._fields:
+                getattr(out, name)[ok] = np.asarray(getattr(pred, name))
+            finite = np.isfinite(np.asarray(out.period_s)) & (np.asarray(out.period_s) > 0)
+            finite &= np.isfinite(np.asarray(out.amplitude_vpp))
+            ok &= finite & np.isfinite(np.asarray(out.duty_high))
+            for name in Prediction._fields:
+                getattr(out, name)[~ok] = np.nan
+        return RowModel(out, ve, ok, moved["slew_rise"], moved["slew_fall"])
+
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+        """The clamped board (``circuits.board.Board``) of the stage's U1, D1, D2, R5 and
+        ``parts`` (R1, R2, R3, C1)."""
+        found = {**stage.parts, **parts}
+        by = tuple((d, found[d]) for d in self.topology.designators if d in found)
+        return Board(self.topology, by)
+
+    def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
+        """The board's stage on the spec's nominal rails: its own loads (R3, R1 + R2) and the
+        band's largest amplitude, Ve at its own R3 (no stock or limit checks)."""
+        parts = board.parts()
+        u1 = part_at(parts, "U1", OpAmp)
+        r1, r2, r3 = (part_at(parts, d, Resistor) for d in ("R1", "R2", "R3"))
+        model = OpAmpModel.from_part(u1)
+        rails = rails_from_supply(spec.supply)
+        try:
+            outputs = square_levels(rails, model)
+        except ValueError:
+            return "its output cannot swing both sides of the reference on these rails"
+        rl = r1.value_ohm + r2.value_ohm
+        a_max = loads(spec, [r1], np.array([r3.value_ohm]))[0].triangle_v
+        own = LoadRange(r3.value_ohm, r3.value_ohm, rl, rl, a_max)
+        d1, d2 = part_at(parts, "D1", Diode), part_at(parts, "D2", Diode)
+        r5 = part_at(parts, "R5", Resistor)
+        cols = candidate_columns(model, [(d1, d2)], [r5.value_ohm])
+        levels = level_range(cols, own, rails)
+        ve = model.offset_v + model.bias_a * r3.value_ohm
+        found = [float(np.ravel(x)[0]) for x in levels]
+        fixed = fixed_fields(cols, (0, 0))
+        opamp = (u1, model, *outputs)
+        return make_stage(0, opamp, (d1, d2), r5, (own, own), found, (ve, ve), fixed)
