@@ -158,6 +158,15 @@ class SearchForm(ABC):
     capacitor: str = "C1"
     #: The designators a stage option fills (its ``parts``' keys, optional ones included).
     stage_designators: tuple[str, ...]
+    #: Whether ``search.bounds`` is proven for this circuit's timing (its period follows
+    #: ``looptiming.loop_timing`` with the ``StageLoop``'s parameters). False: the engines
+    #: still use the windows, but no answer is called proven optimal.
+    bounds_proven: bool = True
+    #: Whether the worst-case probes (``search.guarantee``: R1, R2, R3, C1 at tolerance ends
+    #: and temperature, slew and delay scaled, rails moved) are points of this circuit's
+    #: spread box. False (stage parts the probes cannot move: a pull-up, zeners, a
+    #: comparator's own spreads): the probes are skipped and the analysis alone decides.
+    probes_in_box: bool = True
 
     @abstractmethod
     def stage_options(

@@ -92,7 +92,11 @@ def searchable(spec: Spec) -> list[Topology]:
                 "(tristock analyse, simulate, export) but not searched yet"
             ]
         )
-    return spec_topologies(spec)
+    topologies = spec_topologies(spec)
+    for t in topologies:
+        if t.search_form() is None:
+            raise SpecError([f"circuit: the {t.name} circuit is modelled but not searched yet"])
+    return topologies
 
 
 def merged(spec: Spec, topologies: list[Topology], results: list[DesignResult]) -> DesignResult:

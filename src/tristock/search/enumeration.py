@@ -179,5 +179,5 @@ def enumerate_top(
             evaluated += scored
             found = best(model, Rows.concat([found, rows]), top)
             theta = int(found.primary[-1])
-    proven &= not model.bounds_violated
+    proven &= model.form.bounds_proven and not model.bounds_violated
     return EngineResult(found, proven, evaluated, time.perf_counter() - t0)

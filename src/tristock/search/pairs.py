@@ -318,7 +318,7 @@ class PairSource:
         )
         u = np.full(len(i1), o.index, dtype=np.int64)
         keep = np.ones(len(i1), dtype=bool)
-        if model.spec.limits.guarantee == "worst_case":
+        if model.spec.limits.guarantee == "worst_case" and model.form.probes_in_box:
             limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
             keep &= limits.keep
             p_lo, p_hi = limits.p_min, limits.p_max

@@ -257,7 +257,7 @@ def evaluate(
 
     _guard_bounds(model, u, rp)
     keep = np.flatnonzero(ok)
-    if spec.limits.guarantee == "worst_case" and len(keep):
+    if spec.limits.guarantee == "worst_case" and model.form.probes_in_box and len(keep):
         probes = probe_extremes(model, *(x[keep] for x in (u, i1, i2, i3, j)))
         (fa, fb), (aa, ab) = model.band_f, model.band_a
         f_t, a_t = spec.target.target_hz, spec.triangle.amplitude_vpp

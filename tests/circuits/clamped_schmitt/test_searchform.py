@@ -20,15 +20,14 @@ from typing import Any
 import numpy as np
 import pytest
 
-from tristock.circuits.board import Design, resolve
+from tristock.circuits.board import Board, Design, resolve
 from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT
 from tristock.circuits.clamped_schmitt.clamplevels import ClampStage
 from tristock.circuits.clamped_schmitt.physics import Clamp
 from tristock.circuits.clamped_schmitt.searchform import (
     ClampedSchmittForm,
-    board_cost,
-    board_uses,
 )
+from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.prediction import Prediction
 from tristock.circuits.rails import Rails, rails_from_supply
 from tristock.circuits.searchform import F64, I64, StageOption
@@ -37,7 +36,7 @@ from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog, load_catalog
 from tristock.stock.diodes import Diode
-from tristock.stock.parts import Part
+from tristock.stock.parts import Capacitor, Part, Resistor
 
 DEMO = load_catalog(demo_catalog_dir())
 RESISTORS = ("R1F-200R", "R1F-2K00", "R1F-10K0", "R1F-22K1", "R1F-100K")
@@ -74,7 +73,15 @@ def spec_at(v: float = 12.0) -> Spec:
 FORM = CLAMPED_SCHMITT.search_form()
 CATALOG = small_catalog()
 SPEC = spec_at()
-R3_VALUES = np.array(sorted(DEMO.get(i).value for i in RESISTORS))
+
+
+def value(part: Part) -> float:
+    """A resistor's or capacitor's value (Ω, F)."""
+    assert isinstance(part, Resistor | Capacitor)
+    return part.value
+
+
+R3_VALUES = np.array(sorted(value(DEMO.get(i)) for i in RESISTORS))
 STAGES, EXCLUSIONS = FORM.stage_options(SPEC, CATALOG, R3_VALUES)
 NAMES = ("R1", "R2", "R3", "C1")
 
@@ -87,7 +94,7 @@ def rows() -> tuple[I64, dict[str, F64], list[dict[str, Part]]]:
     for n, r1, r2, r3, c1 in itertools.product(range(len(STAGES)), res, res, res, caps):
         u.append(n)
         parts.append({"R1": r1, "R2": r2, "R3": r3, "C1": c1})
-    values = {d: np.array([p[d].value for p in parts], dtype=float) for d in NAMES}
+    values = {d: np.array([value(p[d]) for p in parts], dtype=np.float64) for d in NAMES}
     return np.array(u, dtype=np.int64), values, parts
 
 
@@ -211,14 +218,14 @@ def test_the_levels_along_every_cycle_that_can_meet_the_band_lie_inside_the_inte
 def test_stock_cost_and_lines_are_the_boards() -> None:
     for stage, parts in itertools.islice(zip(itertools.cycle(STAGES), PARTS[::7]), 200):
         board = FORM.board(stage, parts)
-        uses = board_uses(board)
+        uses = board.uses()
         own = Counter({p.id: 0 for p in parts.values()})
         own.update(p.id for p in parts.values())
         needs = Counter({p.id: n for p, n in stage.stock_needs})
         # reference: circuits.board.Design's counting (U1's packages, a piece per designator)
         assert uses == needs + own
         assert math.isclose(
-            board_cost(board), stage.cost_per_board + sum(p.unit_cost for p in parts.values())
+            board.cost_per_board, stage.cost_per_board + sum(p.unit_cost for p in parts.values())
         )
         assert len(uses) == stage.lines + len({p.id for p in parts.values()} - set(needs))
         assert set(board.parts()) == set(CLAMPED_SCHMITT.designators)
@@ -226,13 +233,14 @@ def test_stock_cost_and_lines_are_the_boards() -> None:
 
 @pytest.mark.parametrize("u1", ["GA-JF2", "GA-RRC1"])
 def test_the_boards_counting_is_designs(u1: str) -> None:
-    """``board_uses``/``board_cost`` count like ``Design`` (a single-channel U1 twice)."""
+    """``Board`` counts like ``Design`` (a single-channel U1 twice, R1 = R2 one line)."""
     ids = {"U1": u1, "R1": "R1F-10K0", "R2": "R1F-10K0", "R3": "R1F-22K1", "C1": "CPPG-4N70"}
     design: Design = resolve(ids, DEMO)
+    board = Board(OPAMP_SCHMITT, tuple(design.parts().items()))
     # reference: circuits.board.Design.uses / cost_per_board / bom_lines
-    assert board_uses(design) == design.uses()
-    assert math.isclose(board_cost(design), design.cost_per_board)
-    assert len(board_uses(design)) == design.bom_lines
+    assert board.uses() == design.uses()
+    assert math.isclose(board.cost_per_board, design.cost_per_board)
+    assert board.bom_lines == design.bom_lines
 
 
 def test_exclusions_name_their_reason() -> None:
@@ -289,7 +297,7 @@ def test_board_stage_round_trips_a_rows_board() -> None:
         levels = FORM.row_levels([back], one, rails, values)
         assert float(back.loop.vh_lo) <= levels[0][0] <= float(back.loop.vh_hi)
         assert float(back.loop.vl_lo) <= levels[1][0] <= float(back.loop.vl_hi)
-        r3 = PARTS[q]["R3"].value
+        r3 = value(PARTS[q]["R3"])
         ve = back.model.offset_v + back.model.bias_a * r3
         assert float(back.loop.ve_lo) == ve == float(back.loop.ve_hi)
         again = FORM.predict_rows([back], one, values, levels)
@@ -297,7 +305,8 @@ def test_board_stage_round_trips_a_rows_board() -> None:
         # reference: the row's prediction through its original stage
         assert again.valid[0] == first.valid[0]
         if first.valid[0]:
-            assert float(again.pred.frequency_hz[0]) == float(first.pred.frequency_hz[0])
+            f_again, f_first = (np.asarray(x.pred.frequency_hz) for x in (again, first))
+            assert float(f_again[0]) == float(f_first[0])
 
 
 def test_board_stage_says_why_an_op_amp_cannot_swing_on_the_rails() -> None:

@@ -31,7 +31,10 @@ at vt = 0 (rd the pair's dynamic resistance there).
   zener) limit); at the lightest load (R3 and R1 + R2 largest, the pair current largest)
   (b) the pair current at least I_b on both sides, (c) the op amp's output current into R5,
   |Vo - S0|/R5, at most its rated output current; at the heaviest load (d) each zener's
-  dissipation I_pair·(|S0| - Vf of the other, catalogued) at most its rating.
+  dissipation I_pair·(|S0| - Vf of the other, catalogued) at most its rating; and a design
+  rule that defines the circuit searched (not a model limit): (e) at the lightest load the
+  pair current within ``DESIGN_CURRENT`` (0.5..2) times each zener's test current, the
+  clamp's design point.
 - **Timing** (``stage_loop``): the clamped model's edges are not ``looptiming.loop_timing``'s
   (U1's output first slews from its level to the clamp's, then moves the square through
   the clamp's static map), so the loop the bounds take is a stand-in: U1's delay plus the
@@ -240,15 +243,23 @@ def clamp_at(cols: Mapping[str, F64], r3: float, rl: float, vh: float, vl: float
 
 
 class LimitVerdict(NamedTuple):
-    """Per candidate: whether some row meets each stage limit (b), (c), (d)."""
+    """Per candidate: whether some row meets each stage limit (b), (c), (d), and whether the
+    stage's zeners run at their design point (e)."""
 
     breaks_down: NDArray[np.bool_]
     current_ok: NDArray[np.bool_]
     power_ok: NDArray[np.bool_]
+    design_point: NDArray[np.bool_]
 
     @property
     def ok(self) -> NDArray[np.bool_]:
-        return np.asarray(self.breaks_down & self.current_ok & self.power_ok)
+        return np.asarray(self.breaks_down & self.current_ok & self.power_ok & self.design_point)
+
+
+#: The design point of the clamp (common practice: a zener's voltage and dynamic resistance
+#: are specified at its test current, and the clamp is designed to run near it): at the
+#: lightest load the pair current lies within these multiples of the test current.
+DESIGN_CURRENT = (0.5, 2.0)
 
 
 def breakdown_current(zeners: Sequence[Diode]) -> F64:
@@ -282,7 +293,14 @@ def clamp_limits(
     vf1, vf2 = col([d.vf_v for d in d1]), col([d.vf_v for d in d2])
     p1, p2 = col([d.power_w for d in d1]), col([d.power_w for d in d2])
     power = (heavy.i_high * (heavy.s_high - vf2) <= p1) & (heavy.i_low * (-heavy.s_low - vf1) <= p2)
-    return LimitVerdict(np.asarray(breaks), np.asarray(current), np.asarray(power))
+    lo, hi = DESIGN_CURRENT
+    iz1 = col([d.iz_test_a or 0.0 for d in d1])
+    iz2 = col([d.iz_test_a or 0.0 for d in d2])
+    design = (light.i_high >= lo * iz1) & (light.i_high <= hi * iz1)
+    design &= (light.i_low >= lo * iz2) & (light.i_low <= hi * iz2)
+    return LimitVerdict(
+        np.asarray(breaks), np.asarray(current), np.asarray(power), np.asarray(design)
+    )
 
 
 def saturation_reasons(

@@ -18,7 +18,6 @@ D1/D2, series resistor R5).
 
 from __future__ import annotations
 
-from collections import Counter
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
@@ -50,27 +49,16 @@ if TYPE_CHECKING:
     from tristock.stock.catalog import Catalog
 
 
-def board_uses(board: BoardParts) -> Counter[str]:
-    """Pieces of each stock code one board takes, as ``board.Design.uses`` counts them: U1's
-    packages per board (two for a single-channel part), one piece per other designator."""
-    uses: Counter[str] = Counter()
-    for name, part in board.parts().items():
-        uses[part.id] += part.packages_per_board if isinstance(part, OpAmp) and name == "U1" else 1
-    return uses
-
-
-def board_cost(board: BoardParts) -> float:
-    """Σ unit_cost x pieces per board (``board.Design.cost_per_board``)."""
-    return sum(
-        p.unit_cost * p.packages_per_board if isinstance(p, OpAmp) else p.unit_cost
-        for p in board.parts().values()
-    )
-
-
 class ClampedSchmittForm(SearchForm):
     """Rows (U1, D1 = D2, R5, R1, R2, R3, C1); the stage is U1 with the clamp."""
 
     stage_designators = ("U1", "D1", "D2", "R5")
+    #: The clamp's square is U1's output slewing from a rail into the clamp, which
+    #: ``looptiming.loop_timing`` does not model: its ``StageLoop`` timing is a stand-in
+    #: (``clamplevels``, "Timing"), so the windows are not proven bounds.
+    bounds_proven = False
+    #: The probes cannot move R5 and the zeners with temperature and tolerance.
+    probes_in_box = False
 
     def __init__(self, topology: Topology) -> None:
         self.topology = topology
@@ -149,7 +137,7 @@ class ClampedSchmittForm(SearchForm):
                 getattr(out, name)[~ok] = np.nan
         return RowModel(out, ve, ok, moved["slew_rise"], moved["slew_fall"])
 
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> Board:
         """The clamped board (``circuits.board.Board``) of the stage's U1, D1, D2, R5 and
         ``parts`` (R1, R2, R3, C1)."""
         found = {**stage.parts, **parts}

@@ -11,6 +11,7 @@ import numpy as np
 
 from tristock.circuits.clamped_schmitt.checks import CLAMP_ERROR
 from tristock.circuits.clamped_schmitt.clamplevels import (
+    DESIGN_CURRENT,
     ClampStage,
     LimitVerdict,
     LoadRange,
@@ -143,6 +144,9 @@ def limit_exclusions(
          f"{format_value(part.output_a, 'A')} rating even at the lightest load"),
         (verdict.power_ok, f"a zener's dissipation exceeds its {zener.power_w:g} W rating even "
          "at the heaviest load"),
+        (verdict.design_point, "the zener current at the lightest load is outside "
+         f"{DESIGN_CURRENT[0]:g}..{DESIGN_CURRENT[1]:g} times its test current (the clamp's "
+         "design point)"),
     )  # fmt: skip
     out = []
     for passed, why in reasons:
