@@ -18,9 +18,14 @@ import numpy as np
 import pytest
 
 from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
+from tristock.circuits.comparator_schmitt.physics import high_level
 from tristock.circuits.comparator_schmitt.searchform import ComparatorSchmittForm
 from tristock.circuits.comparator_schmitt.spread import EDGE_SPREAD
-from tristock.circuits.comparator_schmitt.stagelevels import probe_error_voltage
+from tristock.circuits.comparator_schmitt.stagelevels import (
+    fall_delay_exponent,
+    probe_error_voltage,
+    sources,
+)
 from tristock.circuits.comparator_schmitt.stages import ComparatorStage
 from tristock.circuits.looptiming import loop_timing
 from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
@@ -342,8 +347,6 @@ def high_at(rows: Rows, row: object, rails: Rails, where: str, centred: bool) ->
     """The model's high level (``physics.high_level``: vs0 + γ·vt) with the triangle at the
     bottom threshold (what sets the thresholds' distance) or at its top peak; U1's offset at
     0 V (``centred``) or as catalogued."""
-    from tristock.circuits.comparator_schmitt.physics import high_level
-
     cols = [(s.pull_up_ohm, s.opamp.offset_v, *sources_of(s, rails)) for s in rows.stages]
     r5, vos1, hs = (np.array([c[i] for c in cols])[rows.u] for i in range(3))
     vos1 = vos1 * (not centred)
@@ -354,8 +357,6 @@ def high_at(rows: Rows, row: object, rails: Rails, where: str, centred: bool) ->
 
 
 def sources_of(stage: ComparatorStage, rails: Rails) -> tuple[float]:
-    from tristock.circuits.comparator_schmitt.stagelevels import sources
-
     return (sources(stage.comparator, rails)[0],)
 
 
@@ -407,6 +408,40 @@ def test_row_levels_lie_inside_the_stage_intervals(spec: Spec) -> None:
             assert np.all((bottom + vl >= (lo_h + lo_l) * (1 - REL))[ok])
             assert np.all((bottom - row.ve >= lo_h - ve_hi - 1e-12)[ok])
             assert np.all((top <= hi_h * (1 + REL))[ok])
+
+
+@pytest.mark.parametrize("spec", [SINGLE_5V, SPLIT_12V], ids=["5V", "pm12V"])
+def test_the_fall_delay_exponent_bounds_every_row(spec: Spec, demo: Catalog) -> None:
+    # stagelevels' x_max against each open-drain row's own x = γ·d_f/RC'_hi, with the
+    # model's terms (physics docstring: d_f = td + τi_lo, τi = 1/(ωt·(1 + ε)), RC'_hi =
+    # R3·C1·(1 + 1/(ωt·(R3 + R5 ∥ (R1 + R2))·C1))), on every valid row within the share limit
+    rails = rails_from_supply(spec.supply)
+    checked = 0
+    for rows in (every_row(spec, small_catalog()), sampled_rows(spec, demo, 20000, seed=21)):
+        row = predicted(rows, rails)
+        pred = row.pred
+        open_drain = np.array([s.comparator.is_open_drain for s in rows.stages])[rows.u]
+        share_ok = np.asarray(pred.timing_share) <= spec.limits.max_timing_share
+        n = np.flatnonzero(row.valid & share_ok & open_drain)
+        stages = [rows.stages[i] for i in rows.u[n]]
+        r1, r2, r3, c1 = (rows.values[d][n] for d in ("R1", "R2", "R3", "C1"))
+        r5 = np.array([s.pull_up_ohm for s in stages])
+        wt = 2 * math.pi * np.array([s.opamp.gbw_hz for s in stages])
+        hs = np.array([sources(s.comparator, rails)[0] for s in stages])
+        _, gamma = high_level(r1, r2, r3, hs, r5, np.array([s.opamp.offset_v for s in stages]))
+        d_f = np.array([s.comparator.delay_s for s in stages]) + 1 / (wt * (1 + 1 / (wt * r3 * c1)))
+        r_node = r5 * (r1 + r2) / (r5 + r1 + r2)
+        x = gamma * d_f / (r3 * c1 * (1 + 1 / (wt * (r3 + r_node) * c1)))
+        ve = np.asarray(row.ve)[n]
+        fall = high_at(rows, row, rails, "bottom", False)[n] - ve
+        rise = -np.asarray(pred.square_low_v)[n] + ve
+        bound = [
+            fall_delay_exponent(s.opamp, s.pull_up_ohm, s.load, rails, a, b)
+            for s, a, b in zip(stages, fall, rise, strict=True)
+        ]
+        assert np.all(x <= np.array(bound) * (1 + REL))
+        checked += len(n)
+    assert checked > 1000
 
 
 def test_levels_hold_the_rows_moved_to_the_probes() -> None:

@@ -180,13 +180,22 @@ def open_drain_levels(
     if not (a0 > 0.0 and b0 > 0.0):
         vh_lo = min(ve_hi + tiny, hs)
         return vh_lo, hs, max(min(low, h_min + low - vh_lo), tiny - box_lo), low
-    g12 = 1.0 / (2.0 * box.r_lo)
+    x = delay_margin * fall_delay_exponent(u1, pull_up_ohm, box, rails, a0, b0)
+    mean = -math.expm1(-x) / x if x > 0.0 else 1.0
+    return max(box_hi + a0 * mean, box_hi + tiny), hs, low, low
+
+
+def fall_delay_exponent(
+    u1: OpAmp, pull_up_ohm: float, box: LoadBox, rails: Rails, a0: float, b0: float
+) -> float:
+    """x_max ≥ γ·d_f/RC' of every row within the timing-share limit whose drives are at
+    least ``a0`` (falling, at the bottom threshold) and ``b0`` (rising): s/(1 - s)·γ_max·R_U1·
+    (1/a0 + 1/b0) (module docstring)."""
+    g5, g12 = 1.0 / pull_up_ohm, 1.0 / (2.0 * box.r_lo)
     gamma = g12 / (g5 + g12 + 1.0 / box.r_hi)
     u1_lo, u1_hi = opamp_range(u1, rails)
     s = box.max_share
-    x = delay_margin * s / (1.0 - s) * gamma * max(u1_hi - u1_lo, 0.0) * (1 / a0 + 1 / b0)
-    mean = -math.expm1(-x) / x if x > 0.0 else 1.0
-    return max(box_hi + a0 * mean, box_hi + tiny), hs, low, low
+    return s / (1.0 - s) * gamma * max(u1_hi - u1_lo, 0.0) * (1.0 / a0 + 1.0 / b0)
 
 
 def stage_levels(
