@@ -46,6 +46,10 @@ o = delay - τ/2 + τ·(share of the edge before Ve)/2 (the slope falls linearly
 the edge), plus the lag's slope·τi less its area (``integrator.lag_overshoot_area``).
 Within this model the figures are exact but for the triangle's slope (and the high level)
 held constant through each edge, as in ``opamp_schmitt``.
+
+The loop oscillates where L + Ve > 0, v_high(th_lo) > Ve and th_hi > th_lo (``loop_levels``,
+``oscillates``: what ``predict`` checks before it raises); ``pull_up_source`` inverts
+``high_level``'s vs0 for Hs (the search form carries a row's square level, not its rails).
 """
 
 from __future__ import annotations

@@ -13,7 +13,11 @@ delay td - τe/2, τe = min(rise, fall)/0.8, and U1's GBW as the integrator's, i
   upper bound holds and its lower bound may overstate it by slope·|τr - τf|·(1 - drive/
   span)/2;
 - open drain: the centroid at the span's low end is td and later above it (the period's
-  bounds hold, ``stagelevels``), the overshoot at the strong drive at least the model's.
+  bounds hold, ``stagelevels``); the overshoot at the strong drive is at least the model's
+  (the amplitude's upper bound holds), but at the weak drive it can exceed the model's,
+  whose share of an edge before Ve follows the row's own high level: the amplitude's lower
+  bound is not guaranteed (in 2·10^5 demo rows it overstated by up to 1.5e-3 of the
+  amplitude, only in stages the heaviest loads can stall).
 """
 
 from __future__ import annotations
