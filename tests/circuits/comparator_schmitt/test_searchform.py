@@ -13,6 +13,7 @@ import itertools
 import math
 from collections import Counter, defaultdict
 from collections.abc import Iterator
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -119,7 +120,7 @@ def small_catalog(*extra_comparators: Comparator, extra_opamps: tuple[OpAmp, ...
         capacitor(f"TK-{n}", c) for n, c in (("1N00", 1e-9), ("4N70", 4.7e-9), ("22N0", 22e-9))
     )
     return Catalog(
-        path=__import__("pathlib").Path("hand-made"),
+        path=Path("hand-made"),
         resistors=resistors,
         capacitors=capacitors,
         opamps=opamps,
@@ -347,17 +348,13 @@ def high_at(rows: Rows, row: object, rails: Rails, where: str, centred: bool) ->
     """The model's high level (``physics.high_level``: vs0 + γ·vt) with the triangle at the
     bottom threshold (what sets the thresholds' distance) or at its top peak; U1's offset at
     0 V (``centred``) or as catalogued."""
-    cols = [(s.pull_up_ohm, s.opamp.offset_v, *sources_of(s, rails)) for s in rows.stages]
+    cols = [(s.pull_up_ohm, s.opamp.offset_v, sources(s.comparator, rails)[0]) for s in rows.stages]
     r5, vos1, hs = (np.array([c[i] for c in cols])[rows.u] for i in range(3))
     vos1 = vos1 * (not centred)
     vs0, gamma = high_level(rows.values["R1"], rows.values["R2"], rows.values["R3"], hs, r5, vos1)
     pred = row.pred
     vt = np.asarray(pred.threshold_low_v if where == "bottom" else pred.peak_high_v)
     return np.asarray(vs0 + gamma * vt)
-
-
-def sources_of(stage: ComparatorStage, rails: Rails) -> tuple[float]:
-    return (sources(stage.comparator, rails)[0],)
 
 
 def assert_levels_inside(
