@@ -3,8 +3,9 @@ with hysteresis from R1 and R2 makes the square; an open-drain U2 is pulled up b
 
 Its modules: ``physics`` (the closed-form model), ``point`` (the vectorised point and the
 built oscillator), ``checks``, ``spread`` (the spread box on a spec), ``timedomain`` (the
-loop for the event-driven simulation) and ``netlist`` (ngspice). ``COMPARATOR_SCHMITT`` is
-the topology object.
+loop for the event-driven simulation), ``netlist`` (ngspice), and the search form
+(``searchform``, with ``stages``: the stage options U1 × U2 (× R5), and ``stagelevels``: their
+square levels over every row). ``COMPARATOR_SCHMITT`` is the topology object.
 """
 
 from __future__ import annotations
@@ -22,6 +23,7 @@ from tristock.circuits.comparator_schmitt.point import (
     part_of,
     predict_point,
 )
+from tristock.circuits.comparator_schmitt.searchform import ComparatorSchmittForm
 from tristock.circuits.comparator_schmitt.spread import (
     SENSITIVITY_FIELDS,
     drive_imbalance,
@@ -29,6 +31,7 @@ from tristock.circuits.comparator_schmitt.spread import (
 )
 from tristock.circuits.comparator_schmitt.timedomain import loop_of
 from tristock.circuits.rails import Rails
+from tristock.circuits.searchform import SearchForm
 from tristock.circuits.spreadvars import SpreadBox
 from tristock.circuits.timeloop import Loop
 from tristock.circuits.topology import (
@@ -129,6 +132,11 @@ class ComparatorSchmitt(Topology):
         """``control`` is unused (no pot in this loop)."""
         return drive_imbalance(point, v_ref)
 
+    def search_form(self) -> SearchForm:
+        """Rows (U1, U2[, R5], R1, R2, R3, C1); the stage is U1 + U2 (+ R5)
+        (``comparator_schmitt.searchform``)."""
+        return SEARCH_FORM
+
     def netlist(self, oscillator: Any, *, periods: int = 4) -> str:
         """U1 as today's op-amp macromodel, U2 behavioural (delay, linear edges), R5 and its
         load as they are (``netlist``)."""
@@ -136,5 +144,6 @@ class ComparatorSchmitt(Topology):
 
 
 COMPARATOR_SCHMITT = ComparatorSchmitt()
+SEARCH_FORM = ComparatorSchmittForm(COMPARATOR_SCHMITT)
 
 __all__ = ["COMPARATOR_SCHMITT", "ComparatorOscillator", "ComparatorPoint", "value_at"]

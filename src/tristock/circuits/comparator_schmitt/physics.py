@@ -46,13 +46,19 @@ o = delay - τ/2 + τ·(share of the edge before Ve)/2 (the slope falls linearly
 the edge), plus the lag's slope·τi less its area (``integrator.lag_overshoot_area``).
 Within this model the figures are exact but for the triangle's slope (and the high level)
 held constant through each edge, as in ``opamp_schmitt``.
+
+The loop oscillates where L + Ve > 0, v_high(th_lo) > Ve and th_hi > th_lo (``loop_levels``,
+``oscillates``: what ``predict`` checks before it raises); ``pull_up_source`` inverts
+``high_level``'s vs0 for Hs (the search form carries a row's square level, not its rails).
 """
 
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
+from numpy.typing import NDArray
 
 from tristock.circuits.integrator import lag_overshoot_area
 from tristock.circuits.topology import ArrayLike, FloatArray, Prediction
@@ -74,6 +80,75 @@ def high_level(
     r1a, r2a, r3a, hs, rs, v1 = _arrays(r1, r2, r3, high_v, pull_up, vos1)
     den = 1.0 + rs / (r1a + r2a) + rs / r3a
     return (hs + rs * v1 / r3a) / den, (rs / (r1a + r2a)) / den
+
+
+def pull_up_source(
+    r1: ArrayLike, r2: ArrayLike, r3: ArrayLike, square_v: ArrayLike, pull_up: ArrayLike,
+    vos1: ArrayLike = 0.0,
+) -> FloatArray:  # fmt: skip
+    """The inverse of ``high_level``'s vs0: the high source Hs (V from the reference) behind
+    ``pull_up`` whose square level with the triangle at the reference is ``square_v``:
+    Hs = vs0·den - Rs·Vos1/R3 (den as in ``high_level``); Hs = vs0 for a push-pull output
+    (``pull_up`` = 0)."""
+    r1a, r2a, r3a, vs0, rs, v1 = _arrays(r1, r2, r3, square_v, pull_up, vos1)
+    den = 1.0 + rs / (r1a + r2a) + rs / r3a
+    return np.asarray(vs0 * den - rs * v1 / r3a, dtype=float)
+
+
+class LoopLevels(NamedTuple):
+    """Where the loop turns and what drives it (V from the reference; module docstring):
+    Ve, the high state's vs0 and γ, the thresholds, the rising drive b = L + Ve and the
+    falling drive at the bottom threshold, v_high(th_lo) - Ve (its smallest before the
+    edge)."""
+
+    k: FloatArray
+    ve: FloatArray
+    vs0: FloatArray
+    gamma: FloatArray
+    th_hi: FloatArray
+    th_lo: FloatArray
+    rise_drive: FloatArray
+    fall_drive: FloatArray
+
+    @property
+    def oscillates(self) -> NDArray[np.bool_]:
+        """Both drives reach their thresholds: b > 0, v_high(th_lo) > Ve, th_hi > th_lo."""
+        with np.errstate(invalid="ignore"):
+            return np.asarray(
+                (self.rise_drive > 0.0) & (self.fall_drive > 0.0) & (self.th_hi > self.th_lo)
+            )
+
+
+def loop_levels(
+    r1: FloatArray, r2: FloatArray, r3: FloatArray, high_v: FloatArray, low_v: FloatArray,
+    pull_up: FloatArray, vos1: FloatArray, ib1: FloatArray, vos2: FloatArray, ib2: FloatArray,
+) -> LoopLevels:  # fmt: skip
+    """``LoopLevels`` of broadcast arrays (the arguments as ``predict`` takes them)."""
+    k = r1 / r2
+    ve = vos1 + ib1 * r3
+    vs0, gamma = high_level(r1, r2, r3, high_v, pull_up, vos1)
+    shift = (1.0 + k) * (vos2 + ib2 * r1 * r2 / (r1 + r2))
+    th_lo = (shift - k * vs0) / (1.0 + k * gamma)
+    return LoopLevels(
+        k, ve, vs0, gamma, shift + k * low_v, th_lo, low_v + ve, vs0 + gamma * th_lo - ve
+    )
+
+
+def oscillates(
+    r1: ArrayLike, r2: ArrayLike, r3: ArrayLike, high_v: ArrayLike, low_v: ArrayLike, *,
+    pull_up: ArrayLike = 0.0, vos1: ArrayLike = 0.0, ib1: ArrayLike = 0.0,
+    vos2: ArrayLike = 0.0, ib2: ArrayLike = 0.0,
+) -> NDArray[np.bool_]:  # fmt: skip
+    """Where ``predict`` gives an oscillation rather than raising ValueError: the levels
+    positive and finite and both drives past their thresholds (``LoopLevels.oscillates``);
+    arguments as ``predict``'s (the resistors must be positive)."""
+    R1, R2, R3, HS, L, RS, V1, I1, V2, I2 = _arrays(
+        r1, r2, r3, high_v, low_v, pull_up, vos1, ib1, vos2, ib2
+    )
+    with np.errstate(invalid="ignore", divide="ignore"):
+        levels = loop_levels(R1, R2, R3, HS, L, RS, V1, I1, V2, I2)
+        finite = np.isfinite(HS) & np.isfinite(L) & (HS > 0.0) & (L > 0.0)
+    return np.asarray(finite & levels.oscillates)
 
 
 def _high_ramp(p: FloatArray, q: FloatArray, start: FloatArray, end: FloatArray) -> FloatArray:
@@ -140,9 +215,8 @@ def predict(
             raise ValueError(f"{name}: every value must be > 0 and finite")
     if not (np.all(RS >= 0.0) and np.all(TD >= 0.0) and np.all(TR >= 0.0) and np.all(TF >= 0.0)):
         raise ValueError("pull_up, delay, rise, fall: every value must be >= 0")
-    k = R1 / R2
-    ve = V1 + I1 * R3
-    vs0, gamma = high_level(R1, R2, R3, HS, RS, V1)
+    levels = loop_levels(R1, R2, R3, HS, L, RS, V1, I1, V2, I2)
+    ve, vs0, gamma, th_hi, th_lo = levels.ve, levels.vs0, levels.gamma, levels.th_hi, levels.th_lo
     r_node = np.where(RS > 0.0, RS * (R1 + R2) / np.where(RS > 0.0, RS + R1 + R2, 1.0), 0.0)
     with np.errstate(divide="ignore"):
         wt = 2.0 * math.pi * GBW
@@ -150,12 +224,9 @@ def predict(
         eps_hi = 1.0 / (wt * (R3 + r_node) * C1)
     lag_lo, lag_hi = 1.0 / (wt * (1.0 + eps_lo)), 1.0 / (wt * (1.0 + eps_hi))
     rc_lo, rc_hi = R3 * C1 * (1.0 + eps_lo), R3 * C1 * (1.0 + eps_hi)
-    b = L + ve
+    b = levels.rise_drive
     p, q = (vs0 - ve) / rc_hi, gamma / rc_hi
-    shift = (1.0 + k) * (V2 + I2 * R1 * R2 / (R1 + R2))
-    th_hi = shift + k * L
-    th_lo = (shift - k * vs0) / (1.0 + k * gamma)
-    if not (np.all(b > 0.0) and np.all(p + q * th_lo > 0.0) and np.all(th_hi > th_lo)):
+    if not np.all(levels.oscillates):
         raise ValueError(
             "high_v/low_v: a square level does not drive the triangle past its threshold "
             "(the integrator's error Vos1 + Ib1·R3 or the pull-up's sag is too large)"

@@ -1,0 +1,226 @@
+"""The comparator-IC loop's search form: rows (U1, U2[, R5], R1, R2, R3, C1), the stage being
+U1 + U2 (+ R5) (``stages``: the options and their ``StageLoop``; ``stagelevels``: the square
+levels over every row a stage can be in).
+
+A row is valid where ``physics.oscillates`` (both drives reach their thresholds) and its
+triangle stays inside U1's output range: the model does not clip the integrator, and a board
+whose triangle leaves that range fails its swing check.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from tristock.circuits.comparator_schmitt.physics import (
+    high_level,
+    oscillates,
+    predict,
+    pull_up_source,
+)
+from tristock.circuits.comparator_schmitt.spread import EDGE_SPREAD
+from tristock.circuits.comparator_schmitt.stagelevels import (
+    load_box,
+    probe_error_voltage,
+    sources,
+    stage_levels,
+)
+from tristock.circuits.comparator_schmitt.stages import ComparatorStage, make_stage, stage_options
+from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
+from tristock.circuits.prediction import Prediction
+from tristock.circuits.rails import Rails, rails_from_supply
+from tristock.circuits.searchform import F64, I64, Exclusion, RowModel, SearchForm, StageOption
+from tristock.stock.comparators import Comparator
+from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
+
+if TYPE_CHECKING:
+    from tristock.circuits.topology import BoardParts, Topology
+    from tristock.spec.model import Spec
+    from tristock.stock.catalog import Catalog
+
+
+class ComparatorSchmittForm(SearchForm):
+    """Rows (U1, U2[, R5], R1, R2, R3, C1); ``topology`` is the comparator-IC loop, whose
+    boards ``board`` builds."""
+
+    stage_designators = ("U1", "U2", "R5")
+
+    def __init__(self, topology: Topology) -> None:
+        self.topology = topology
+
+    def stage_options(
+        self, spec: Spec, catalog: Catalog, r3_values: F64
+    ) -> tuple[list[StageOption], list[Exclusion]]:
+        """``stages.stage_options``: U1 × U2 (× R5), each usable on the nominal rails."""
+        found, excl = stage_options(spec, catalog, r3_values)
+        return list(found), excl
+
+    def level_bounds(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails
+    ) -> tuple[F64, F64, F64, F64]:
+        """(vh_lo, vh_hi, vl_lo, vl_hi) on ``rails`` for the worst-case probes
+        (``stagelevels.stage_levels``): the open-drain box widened by the resistors' moves,
+        Ve as the probes take it (Ib1·R3, offsets at 0 V), their delays up to DELAY_SPREAD
+        longer."""
+        found = _stages(stages)
+        distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
+        table = np.array(
+            [
+                stage_levels(
+                    s.opamp,
+                    s.comparator,
+                    s.pull_up_ohm,
+                    s.load.at_probes(),
+                    rails,
+                    probe_error_voltage(s.opamp, s.load),
+                    1.0 + DELAY_SPREAD,
+                )
+                for s in (found[n] for n in distinct)
+            ],
+            dtype=np.float64,
+        ).reshape(-1, 4)[where]
+        return table[:, 0], table[:, 1], table[:, 2], table[:, 3]
+
+    def row_levels(
+        self, stages: Sequence[StageOption], u: I64, rails: Rails, values: Mapping[str, F64]
+    ) -> tuple[F64, F64]:
+        """VH = vs0 of ``physics.high_level``, the high level with the triangle at the
+        reference (Hs for push-pull; through R5 into the row's R1 + R2 and R3 for open
+        drain, U1's offset as catalogued); VL = L (``stagelevels.sources``)."""
+        cols = _columns(stages, u, rails)
+        vs0, _ = high_level(
+            values["R1"], values["R2"], values["R3"], cols["hs"], cols["r5"], cols["vos1"]
+        )
+        return np.asarray(vs0), cols["low"]
+
+    def predict_rows(
+        self,
+        stages: Sequence[StageOption],
+        u: I64,
+        values: Mapping[str, F64],
+        levels: tuple[F64, F64],
+        *,
+        slew_scale: F64 | float = 1.0,
+        delay_scale: F64 | float = 1.0,
+        centred_offsets: bool = False,
+    ) -> RowModel:
+        """``physics.predict`` of each valid row (module docstring); the high source Hs from
+        ``levels`` through ``physics.pull_up_source``, the inverse of ``row_levels``. A
+        probe's slew factor 1 + SLEW_SPREAD·z moves U2's edges to the same end of their
+        spread, ·(1 - EDGE_SPREAD·z); its delay factor scales U2's delay. ``slew_rise`` and
+        ``slew_fall`` are U1's slew rate (the integrator's)."""
+        cols = _columns(stages, u, None)
+        r1, r2, r3, c1 = (np.asarray(values[d], dtype=float) for d in ("R1", "R2", "R3", "C1"))
+        vh, low = (np.asarray(x, dtype=float) for x in levels)
+        hs = pull_up_source(r1, r2, r3, vh, cols["r5"], cols["vos1"])
+        edges = 1.0 - EDGE_SPREAD * (np.asarray(slew_scale, dtype=float) - 1.0) / SLEW_SPREAD
+        zero = np.zeros(len(u))
+        errors = {
+            "pull_up": cols["r5"],
+            "vos1": zero if centred_offsets else cols["vos1"],
+            "ib1": cols["ib1"],
+            "vos2": zero if centred_offsets else cols["vos2"],
+            "ib2": cols["ib2"],
+        }
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ok = oscillates(r1, r2, r3, hs, low, **errors) & np.isfinite(c1) & (c1 > 0.0)
+        out = Prediction(*(np.full(len(u), np.nan) for _ in Prediction._fields))
+        if ok.any():
+            part = predict(
+                *(x[ok] for x in (r1, r2, r3, c1, hs, low)),
+                **{name: x[ok] for name, x in errors.items()},
+                delay=np.broadcast_to(cols["delay"] * delay_scale, (len(u),))[ok],
+                rise=np.broadcast_to(cols["rise"] * edges, (len(u),))[ok],
+                fall=np.broadcast_to(cols["fall"] * edges, (len(u),))[ok],
+                gbw=cols["gbw"][ok],
+            )
+            for name in Prediction._fields:
+                getattr(out, name)[ok] = np.asarray(getattr(part, name))
+            # U1's output range on the rails the levels stand for
+            top = hs + cols["headroom"] - cols["swing_pos"]
+            bottom = cols["swing_neg"] - (low + cols["vol"])
+            with np.errstate(invalid="ignore"):
+                clips = (np.asarray(out.peak_high_v) > top) | (np.asarray(out.peak_low_v) < bottom)
+            for name in Prediction._fields:
+                getattr(out, name)[clips] = np.nan
+            ok &= ~clips
+        ve = errors["vos1"] + cols["ib1"] * r3
+        return RowModel(out, ve, ok, cols["slew1"], cols["slew1"])
+
+    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> BoardParts:
+        """The comparator-IC board: a ``circuits.board.Design`` with U2 (and R5 for an
+        open-drain U2), R1, R2, R3, C1 and this topology."""
+        from tristock.circuits.board import Design  # the board module imports this package
+
+        (s,) = _stages([stage])
+        r1, r2, r3, c1 = (parts[d] for d in ("R1", "R2", "R3", "C1"))
+        assert isinstance(c1, Capacitor)
+        assert isinstance(r1, Resistor) and isinstance(r2, Resistor) and isinstance(r3, Resistor)
+        return Design(
+            u1=s.opamp, r1=r1, r2=r2, r3=r3, c1=c1, topology=self.topology,
+            u2=s.comparator, r5=s.pull_up,
+        )  # fmt: skip
+
+    def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
+        """The stage of the board's U1, U2 (and R5) on the spec's nominal rails (no stock or
+        rating checks): levels over the spec's resistance range widened to hold the board's
+        own R1, R2, R3 (a board built from a stage option gets that option's levels and
+        timing back, but for a stalled open-drain stage, whose vh_lo follows the Ve range),
+        Ve over the board's R3."""
+        parts = board.parts()
+        u1, u2, r3 = parts.get("U1"), parts.get("U2"), parts.get("R3")
+        if not (isinstance(u1, OpAmp) and isinstance(u2, Comparator)):
+            return "U1, U2: a comparator-IC board needs an op amp U1 and a comparator U2"
+        if not isinstance(r3, Resistor):
+            return "R3: a comparator-IC board needs its integrator resistor"
+        r5 = parts.get("R5") if u2.is_open_drain else None
+        if u2.is_open_drain and not isinstance(r5, Resistor):
+            return f"R5: the open-drain U2 {u2.id} needs a pull-up resistor"
+        assert r5 is None or isinstance(r5, Resistor)
+        rails = rails_from_supply(spec.supply)
+        hs, low = sources(u2, rails)
+        if not (hs > 0.0 and low > 0.0):
+            return "its output cannot swing both sides of the reference on these rails"
+        own = [p for d in ("R1", "R2", "R3") if isinstance(p := parts.get(d), Resistor)]
+        box = load_box(spec, np.array([r.value_ohm for r in own]), np.array([r3.value_ohm]), own)
+        ve = u1.offset_v + u1.bias_a * r3.value_ohm
+        return make_stage(0, u1, u2, r5, box, rails, (ve, ve))
+
+
+def _stages(stages: Sequence[StageOption]) -> list[ComparatorStage]:
+    out = []
+    for s in stages:
+        if not isinstance(s, ComparatorStage):
+            raise TypeError(f"U2: stage {s.key} is not a comparator-IC stage")
+        out.append(s)
+    return out
+
+
+def _columns(stages: Sequence[StageOption], u: I64, rails: Rails | None) -> dict[str, F64]:
+    """Each row's stage constants (SI units), and its Hs and L on ``rails`` if given."""
+    found = _stages(stages)
+    distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
+    rows = [found[n] for n in distinct]
+    table: dict[str, list[float]] = {
+        "r5": [s.pull_up_ohm for s in rows],
+        "vos1": [s.opamp.offset_v for s in rows],
+        "ib1": [s.opamp.bias_a for s in rows],
+        "gbw": [s.opamp.gbw_hz for s in rows],
+        "slew1": [s.opamp.slew_v_per_s for s in rows],
+        "swing_pos": [s.opamp.swing_pos_v for s in rows],
+        "swing_neg": [s.opamp.swing_neg_v for s in rows],
+        "vos2": [s.comparator.offset_v for s in rows],
+        "ib2": [s.comparator.bias_a for s in rows],
+        "delay": [s.comparator.delay_s for s in rows],
+        "rise": [s.comparator.rise_s for s in rows],
+        "fall": [s.comparator.fall_s for s in rows],
+        "vol": [s.comparator.vol_v for s in rows],
+        "headroom": [s.comparator.voh_headroom_v or 0.0 for s in rows],
+    }
+    if rails is not None:
+        levels = [sources(s.comparator, rails) for s in rows]
+        table["hs"] = [h for h, _ in levels]
+        table["low"] = [low for _, low in levels]
+    return {name: np.array(x, dtype=np.float64).reshape(-1)[where] for name, x in table.items()}

@@ -1,0 +1,211 @@
+"""The square levels of a comparator-IC stage over every row it can be in: the level intervals
+of its ``StageLoop`` (``searchform``). Volts from the reference node.
+
+U2's low state holds the square at -L, L = Vref - (V- + VOL), for every row. Its high state:
+
+- push-pull: Hs = V+ - headroom - Vref, the same for every row (equal interval ends);
+- open drain: the pull-up R5 from V+ (Hs = V+ - Vref) into the load, R3 to the integrator's
+  input (at Vos1) and R1 + R2 to the triangle vt: the level v_high(vt) = vs0 + γ·vt of
+  ``physics.high_level``, the mean of Hs, Vos1 and vt weighted by 1/R5, 1/R3, 1/(R1 + R2).
+
+The bounds (``search.bounds``) take the span VH + VL and the drives a = VH - Ve, b = VL + Ve
+as independent inputs over boxes. Written out, the open-drain period is T = t1 + d_f + t_L
+(``physics``): the high ramp t1 from the top turn v_top down to the bottom threshold th_lo,
+the fall delay d_f during which the triangle drifts on at the decaying rate
+(v_high(vt) - Ve)/RC', and the low ramp. Term by term against the bounds' period, the
+interval [vh_lo, vh_hi] must hold, for every row:
+
+- the level that sets the thresholds' distance k·(L + H_lo), H_lo = v_high(th_lo) =
+  (Hs/R5 + Vos1/R3 + Vos2/R2 + Ib2·R1/(R1 + R2))/(1/R5 + 1/R3 + 1/R2) (at the trip U2's
+  + input sits at its threshold, so R2 loads the square node to it);
+- the high ramp's drive, from v_high(v_top) - Ve down to H_lo - Ve (vh_hi, vh_lo);
+- the mean drive over d_f, at least (H_lo - Ve)·(1 - e^(-x))/x, x = γ·d_f/RC' (the rate
+  decays as e^(-γ·t/RC') there): vh_lo - Ve_hi must not exceed it.
+
+So vh_hi = Hs: v_high ≤ Hs while vt ≤ Hs, a weighted mean, and a valid row's triangle stays
+inside U1's output range (``searchform``'s rows are invalid otherwise). And vh_lo = Ve_hi +
+(H_lo,min - Ve_hi)·(1 - e^(-x_max))/x_max: H_lo,min over R2, R3 in [r_lo, r_hi] with the
+offsets at 0 V or as catalogued (H_lo is linear-fractional in the conductances and linear in
+the offsets, so its extremes sit at the box's vertices); x_max from the timing-share limit s:
+d_f ≤ T - T_i ≤ T_i·s/(1 - s), T_i ≤ k·span·RC·(1/(H_lo - Ve) + 1/b), and k·span is at most
+the triangle's peak-to-peak, at most U1's output range R_U1, so x ≤ s/(1 - s)·γ_max·R_U1·
+(1/(H_lo,min - Ve_hi) + 1/(L + Ve_lo)), γ_max = g12/(1/R5 + g12 + 1/r_hi) with g12 =
+1/(2·r_lo). A row whose share exceeds s cannot be accepted; the bounds are claimed for rows
+within it. VL's interval is L at both ends.
+
+Ve_lo, Ve_hi here are over R3 in [r_lo, r_hi] with Vos1 at 0 V or as catalogued: they hold
+the Ve range of the stage's ``StageLoop`` and of the probes' loops, so the weak drive those
+give, vh_lo less their Ve_hi, is at most every row's.
+
+Where H_lo,min ≤ Ve_hi (a weak pull-up the heaviest loads can stall; or L + Ve_lo ≤ 0) no
+drive is bounded away from 0 over the box: vh_lo sits a hair (``STALLED_DRIVE``) above the
+Ve_hi the bounds take (the loop's own at nominal, the probes' largest Ib1·R3 at the probes),
+so the weak drive makes the period's upper bound unbounded in effect, and VL's interval
+reaches down to vl_lo = L + H_lo,min - vh_lo so that the span's lower end is L + H_lo,min
+(each drive's interval only widens: b's lower end falls, its upper end stays L + Ve_hi; the
+fall delay's term needs vh_lo - Ve_hi - (L - vl_lo) = H_lo,min - Ve_hi ≤ 0 ≤ the drift). A
+row's VH can then lie below vh_lo; the span and the drives, what the bounds take, hold.
+
+At the probes (``level_bounds``) the box is widened by the resistors' moves and x by the
+probes' longer delays (``DELAY_SPREAD``); their timing share is not limited as the nominal
+row's is, so x_max there is an estimate.
+
+Not covered (second order in the integrator's ε = 1/(2π·GBW·R3·C1); the run-time guard of
+``search.rows`` withdraws a proof if it matters): with the square high, U1's integrator sees
+R3 + R5 ∥ (R1 + R2), so its ramp is faster by (1 + ε_lo)/(1 + ε_hi) and its lag longer than
+the single RC' and lag of ``looptiming.loop_timing``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from itertools import product
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.circuits.rails import Rails
+from tristock.spec.model import Spec
+from tristock.stock.comparators import Comparator
+from tristock.stock.parts import OpAmp, Resistor
+
+F64 = NDArray[np.float64]
+
+#: Where the heaviest load can stall the high ramp, vh_lo sits this share of Hs above Ve_hi.
+STALLED_DRIVE = 1e-9
+
+
+@dataclass(frozen=True)
+class LoadBox:
+    """What an open-drain stage's rows can load R5 with: R2 and R3 each in [r_lo, r_hi] (Ω),
+    R1 + R2 at least 2·r_lo; R3 in [r3_lo, r3_hi] (the integrator resistors a row can take:
+    what Ve = Vos1 + Ib1·R3 spans); ``spread`` the largest fractional move of a resistor at
+    the worst-case probes (tolerance and tempco over the temperature range); ``max_share``
+    the spec's timing-share limit s."""
+
+    r_lo: float
+    r_hi: float
+    r3_lo: float
+    r3_hi: float
+    spread: float
+    max_share: float
+
+    def at_probes(self) -> LoadBox:
+        """The box at the worst-case probes: every resistance moved by up to ``spread``."""
+        up, down = 1.0 + self.spread, 1.0 / (1.0 + self.spread)
+        return LoadBox(
+            self.r_lo * down, self.r_hi * up, self.r3_lo * down, self.r3_hi * up, 0.0,
+            self.max_share,
+        )  # fmt: skip
+
+
+def load_box(spec: Spec, values: F64, r3: F64, resistors: Sequence[Resistor]) -> LoadBox:
+    """The spec's resistance range widened to hold ``values`` (Ω: the eligible values, or a
+    board's own), R3 over ``r3`` (the eligible values, or the board's R3), the largest probe
+    move of ``resistors`` over the spec's temperatures."""
+    lim, env = spec.limits, spec.environment
+    span_t = max(abs(env.temp_min_c - 25.0), abs(env.temp_max_c - 25.0))
+    spread = max(
+        ((1 + r.tolerance_pct / 100) * (1 + abs(r.tempco_ppm) * 1e-6 * span_t) - 1.0
+         for r in resistors),
+        default=0.0,
+    )  # fmt: skip
+    held = np.asarray(values, dtype=float).tolist()
+    return LoadBox(
+        min([lim.resistance_min_ohm, *held]), max([lim.resistance_max_ohm, *held]),
+        float(np.min(r3)), float(np.max(r3)), spread, lim.max_timing_share,
+    )  # fmt: skip
+
+
+def sources(u2: Comparator, rails: Rails) -> tuple[float, float]:
+    """(Hs, L): U2's high source (push-pull V+ - headroom, open drain V+, less Vref) and its
+    low level's distance below the reference, L = Vref - (V- + VOL) (V)."""
+    ref = rails.reference_v
+    return rails.v_pos - (u2.voh_headroom_v or 0.0) - ref, ref - (rails.v_neg + u2.vol_v)
+
+
+def opamp_range(u1: OpAmp, rails: Rails) -> tuple[float, float]:
+    """U1's output range (V from the reference): V- + swing_neg .. V+ - swing_pos."""
+    ref = rails.reference_v
+    return rails.v_neg + u1.swing_neg_v - ref, rails.v_pos - u1.swing_pos_v - ref
+
+
+def threshold_level(
+    hs: F64 | float, g5: float, g3: F64 | float, g2: float, vos1: float, vos2: float,
+    beta_ib2: float,
+) -> F64 | float:  # fmt: skip
+    """H_lo: the open-drain high level as the triangle crosses the bottom threshold (module
+    docstring), from Hs (V) and the conductances 1/R5, 1/R3, 1/R2 (S); ``beta_ib2`` = Ib2·R1/
+    (R1 + R2) (A)."""
+    return (hs * g5 + vos1 * g3 + vos2 * g2 + beta_ib2) / (g5 + g3 + g2)
+
+
+def lowest_threshold_level(hs: float, g5: float, box: LoadBox, u1: OpAmp, u2: Comparator) -> float:
+    """H_lo,min over the box's vertices: R2, R3 at r_lo or r_hi, Vos1, Vos2 at 0 V or as
+    catalogued, Ib2·R1/(R1 + R2) at 0 or Ib2."""
+    g = (1.0 / box.r_hi, 1.0 / box.r_lo)
+    offsets = product(g, g, (0.0, u1.offset_v), (0.0, u2.offset_v), (0.0, u2.bias_a))
+    return min(float(threshold_level(hs, g5, *vertex)) for vertex in offsets)
+
+
+def error_voltage_range(u1: OpAmp, box: LoadBox) -> tuple[float, float]:
+    """Ve = Vos1 + Ib1·R3 over R3 in [r_lo, r_hi], Vos1 at 0 V or as catalogued: a range that
+    holds every Ve the bounds take, at the nominal rails and the probes."""
+    ib = (u1.bias_a * box.r_lo, u1.bias_a * box.r_hi)
+    return min(0.0, u1.offset_v) + min(ib), max(0.0, u1.offset_v) + max(ib)
+
+
+def probe_error_voltage(u1: OpAmp, box: LoadBox) -> float:
+    """The largest Ve the worst-case probes give the bounds: Ib1·R3 (offsets at 0 V) over R3
+    in the probes' box (``search.guarantee.probe_loop``)."""
+    probed = box.at_probes()
+    return max(u1.bias_a * probed.r3_lo, u1.bias_a * probed.r3_hi)
+
+
+def open_drain_levels(
+    u1: OpAmp, u2: Comparator, pull_up_ohm: float, box: LoadBox, rails: Rails,
+    ve_hi: float, delay_margin: float = 1.0,
+) -> tuple[float, float, float, float]:  # fmt: skip
+    """(vh_lo, vh_hi, vl_lo, vl_hi) of an open-drain stage on ``rails`` (module docstring):
+    ``ve_hi`` the Ve upper end the bounds take (a stalled stage's vh_lo sits just above
+    it), ``delay_margin`` how much longer the fall delay may be than at nominal."""
+    hs, low = sources(u2, rails)
+    g5 = 1.0 / pull_up_ohm
+    h_min = lowest_threshold_level(hs, g5, box, u1, u2)
+    box_lo, box_hi = error_voltage_range(u1, box)
+    a0, b0 = h_min - box_hi, low + box_lo
+    tiny = STALLED_DRIVE * abs(hs)
+    if not (a0 > 0.0 and b0 > 0.0):
+        vh_lo = min(ve_hi + tiny, hs)
+        return vh_lo, hs, max(min(low, h_min + low - vh_lo), tiny - box_lo), low
+    x = delay_margin * fall_delay_exponent(u1, pull_up_ohm, box, rails, a0, b0)
+    mean = -math.expm1(-x) / x if x > 0.0 else 1.0
+    return max(box_hi + a0 * mean, box_hi + tiny), hs, low, low
+
+
+def fall_delay_exponent(
+    u1: OpAmp, pull_up_ohm: float, box: LoadBox, rails: Rails, a0: float, b0: float
+) -> float:
+    """x_max ≥ γ·d_f/RC' of every row within the timing-share limit whose drives are at
+    least ``a0`` (falling, at the bottom threshold) and ``b0`` (rising): s/(1 - s)·γ_max·R_U1·
+    (1/a0 + 1/b0) (module docstring)."""
+    g5, g12 = 1.0 / pull_up_ohm, 1.0 / (2.0 * box.r_lo)
+    gamma = g12 / (g5 + g12 + 1.0 / box.r_hi)
+    u1_lo, u1_hi = opamp_range(u1, rails)
+    s = box.max_share
+    return s / (1.0 - s) * gamma * max(u1_hi - u1_lo, 0.0) * (1.0 / a0 + 1.0 / b0)
+
+
+def stage_levels(
+    u1: OpAmp, u2: Comparator, pull_up_ohm: float, box: LoadBox, rails: Rails,
+    ve_hi: float, delay_margin: float = 1.0,
+) -> tuple[float, float, float, float]:  # fmt: skip
+    """(vh_lo, vh_hi, vl_lo, vl_hi) of a stage on ``rails``: push-pull (Hs, Hs, L, L), open
+    drain ``open_drain_levels``. Not checked positive (a stage on rails where a level is not
+    cannot oscillate, and ``searchform``'s rows mark it invalid)."""
+    if not u2.is_open_drain:
+        hs, low = sources(u2, rails)
+        return hs, hs, low, low
+    return open_drain_levels(u1, u2, pull_up_ohm, box, rails, ve_hi, delay_margin)

@@ -1,0 +1,228 @@
+"""The comparator-IC loop's stage options: U1 × U2 (× R5 for an open-drain U2), what makes
+each usable on the spec's rails, and the ``StageLoop`` the search's bounds take.
+
+The loop's timing (``physics``): U2's edges are linear, the whole edge τ = rise/0.8 centred
+on the 50 % delay td, with no GBW build-up (gbw = inf), so an edge acts on the integrator as a
+switch exactly td after the crossing, and the triangle overshoots by its slope times
+td - (τ/2)·(1 - drive/span). ``looptiming.loop_timing`` with one slew SR = span_lo/τe and
+delay td - τe/2, τe = min(rise, fall)/0.8, and U1's GBW as the integrator's, is:
+
+- push-pull with rise = fall: ``physics.predict``'s period, high time and peaks exactly;
+- rise ≠ fall: the period and duty still exactly (an edge's centroid is td whatever its
+  length); each overshoot at least the model's (τe is the shorter edge), so the amplitude's
+  upper bound holds and its lower bound may overstate it by slope·|τr - τf|·(1 - drive/
+  span)/2;
+- open drain: the centroid at the span's low end is td and later above it (the period's
+  bounds hold, ``stagelevels``); the overshoot at the strong drive is at least the model's
+  (the amplitude's upper bound holds), but at the weak drive it can exceed the model's,
+  whose share of an edge before Ve follows the row's own high level: the amplitude's lower
+  bound is not guaranteed (in 2·10^5 demo rows it overstated by up to 1.5e-3 of the
+  amplitude, only in stages the heaviest loads can stall).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, TypeVar
+
+import numpy as np
+
+from tristock.circuits.comparator_schmitt.stagelevels import (
+    LoadBox,
+    load_box,
+    sources,
+    stage_levels,
+    threshold_level,
+)
+from tristock.circuits.opamp_schmitt.searchform import opamp_levels
+from tristock.circuits.rails import Rails, rails_from_supply
+from tristock.circuits.searchform import F64, Exclusion, StageLoop, StageOption
+from tristock.stock.comparators import EDGE_SHARE, Comparator
+from tristock.stock.parts import OpAmp, Part, Resistor
+
+if TYPE_CHECKING:
+    from tristock.spec.model import Spec
+    from tristock.stock.catalog import Catalog
+
+P = TypeVar("P", bound=Part)
+
+
+@dataclass(frozen=True)
+class ComparatorStage(StageOption):
+    """U1 (``opamp``), U2 (``comparator``), R5 (``pull_up``, None for push-pull) and the load
+    box its open-drain level interval is taken over."""
+
+    opamp: OpAmp
+    comparator: Comparator
+    pull_up: Resistor | None
+    load: LoadBox
+
+    @property
+    def pull_up_ohm(self) -> float:
+        """R5 (Ω); 0 for a push-pull U2."""
+        return self.pull_up.value_ohm if self.pull_up is not None else 0.0
+
+
+def stage_loop(
+    u1: OpAmp, u2: Comparator, levels: tuple[float, float, float, float],
+    ve: tuple[float, float],
+) -> StageLoop:  # fmt: skip
+    """The bounds' loop (module docstring): levels (vh_lo, vh_hi, vl_lo, vl_hi), Ve over
+    ``ve``; the slew is the span's low end over the shorter whole edge."""
+    tau = min(u2.rise_s, u2.fall_s) / EDGE_SHARE
+    slew = (levels[0] + levels[2]) / tau if tau > 0.0 else math.inf
+    values = (*levels, slew, slew, u2.delay_s - tau / 2.0, math.inf, u1.gbw_hz, *ve)
+    return StageLoop(*(np.asarray(x, dtype=np.float64) for x in values))
+
+
+def make_stage(
+    index: int, u1: OpAmp, u2: Comparator, r5: Resistor | None, box: LoadBox, rails: Rails,
+    ve: tuple[float, float],
+) -> ComparatorStage:  # fmt: skip
+    """The stage option: one piece of each part per board (U1 one channel, U2 one channel,
+    R5), its loop on ``rails``, Ve over ``ve``; ``levels`` (vh_hi, vl_hi): Hs and L."""
+    levels = stage_levels(u1, u2, r5.value_ohm if r5 else 0.0, box, rails, ve[1])
+    parts: dict[str, Part] = {"U1": u1, "U2": u2}
+    if r5 is not None:
+        parts["R5"] = r5
+    return ComparatorStage(
+        index=index,
+        parts=parts,
+        stock_needs=tuple((p, 1) for p in parts.values()),
+        cost_per_board=sum(p.unit_cost for p in parts.values()),
+        lines=len({p.id for p in parts.values()}),
+        loop=stage_loop(u1, u2, levels, ve),
+        levels=(levels[1], levels[3]),
+        integrator_bias_a=u1.bias_a,
+        opamp=u1,
+        comparator=u2,
+        pull_up=r5,
+        load=box,
+    )
+
+
+def usable_error_voltages(
+    u1: OpAmp, u2: Comparator, r5_ohm: float, box: LoadBox, rails: Rails, r3: F64
+) -> F64:
+    """Ve = Vos1 + Ib1·R3 of each R3 in ``r3`` with which some row can oscillate: L + Ve > 0
+    and the high level at the bottom threshold above Ve at its largest over the box
+    (push-pull: Hs; open drain: R2 at r_lo or r_hi, Ib2·R1/(R1 + R2) at 0 or Ib2, the
+    offsets as catalogued)."""
+    hs, low = sources(u2, rails)
+    ve = u1.offset_v + u1.bias_a * r3
+    high = np.full(len(r3), hs)
+    if r5_ohm > 0.0:
+        high = np.full(len(r3), -math.inf)
+        for g2 in (1.0 / box.r_hi, 1.0 / box.r_lo):
+            for j in (0.0, u2.bias_a):
+                level = threshold_level(hs, 1.0 / r5_ohm, 1.0 / r3, g2, u1.offset_v, u2.offset_v, j)
+                high = np.maximum(high, level)
+    return np.asarray(ve[(high - ve > 0.0) & (low + ve > 0.0)])
+
+
+def comparator_reason(u2: Comparator, spec: Spec) -> str | None:
+    """Why U2 cannot be used on the spec's rails at all (its supply rating over the rails'
+    tolerance, or levels not both sides of the reference), or None."""
+    supply = spec.supply
+    span_lo = supply.span_v * (1 - supply.tolerance_pct / 100)
+    span_hi = supply.span_v * (1 + supply.tolerance_pct / 100)
+    if span_lo < u2.supply_min_v or span_hi > u2.supply_max_v:
+        return (
+            f"supply span {span_lo:g}..{span_hi:g} V is outside its rating "
+            f"{u2.supply_min_v:g}..{u2.supply_max_v:g} V"
+        )
+    hs, low = sources(u2, rails_from_supply(supply))
+    if not (hs > 0.0 and low > 0.0):
+        return "its output cannot swing both sides of the reference on these rails"
+    return None
+
+
+def sink_reason(u2: Comparator, r5: Resistor, rails: Rails) -> str | None:
+    """Why R5 overloads U2 on its own, or None: with U2 low it sinks (V+ - V- - VOL)/R5 on the
+    nominal rails, above U2's output_a (the current its VOL holds at; the topology's
+    load_comparator check adds the load's current to it)."""
+    current = (rails.v_pos - rails.v_neg - u2.vol_v) / r5.value_ohm
+    if current > u2.output_a:
+        return f"with U2 {u2.id} it sinks {current:.3g} A > {u2.output_a:.3g} A (output_a)"
+    return None
+
+
+def stocked(parts: Sequence[P], designator: str, boards: int) -> tuple[list[P], list[Exclusion]]:
+    """The parts with a piece for every board, and the others as exclusions."""
+    kept: list[P] = []
+    excl: list[Exclusion] = []
+    for p in parts:
+        if p.stock < boards:
+            excl.append(Exclusion(designator, p.id, f"stock {p.stock} < {boards} needed"))
+        else:
+            kept.append(p)
+    return kept, excl
+
+
+def stage_options(
+    spec: Spec, catalog: Catalog, r3_values: F64
+) -> tuple[list[ComparatorStage], list[Exclusion]]:
+    """Every usable stage on the spec's nominal rails, in catalog order (U1, then U2, then
+    R5), and why each other candidate was left out: U1 as the spec allows
+    (``limits.opamps``), stocked for every board, its supply rating over the rails'
+    tolerance, its output both sides of the reference; U2 stocked, its own rating, its
+    levels both sides of the reference (the spec has no limit on comparators); R5 for an
+    open-drain U2 stocked and not overloading U2 alone (``sink_reason``); each combination
+    with Ve inside its levels for some R3 (``usable_error_voltages``)."""
+    lim, boards = spec.limits, spec.build.boards
+    rails = rails_from_supply(spec.supply)
+    allowed = tuple(p for p in catalog.opamps if lim.opamps is None or p.id in lim.opamps)
+    u1s, excl = stocked(allowed, "U1", boards)
+    usable_u1: list[OpAmp] = []
+    for u1 in u1s:
+        found = opamp_levels(u1, spec)
+        if isinstance(found, str):
+            excl.append(Exclusion("U1", u1.id, found))
+        else:
+            usable_u1.append(u1)
+    u2s, more = stocked(catalog.comparators, "U2", boards)
+    excl += more
+    usable_u2: list[Comparator] = []
+    for u2 in u2s:
+        reason = comparator_reason(u2, spec)
+        if reason is None:
+            usable_u2.append(u2)
+        else:
+            excl.append(Exclusion("U2", u2.id, reason))
+    pull_ups: list[Resistor] = []
+    if any(u2.is_open_drain for u2 in usable_u2):
+        pull_ups, more = stocked(catalog.resistors, "R5", boards)
+        excl += more
+    for_u2: dict[str, list[Resistor | None]] = {}
+    for u2 in usable_u2:
+        for_u2[u2.id] = [None]
+        if u2.is_open_drain:
+            for_u2[u2.id] = []
+            for pull in pull_ups:
+                reason = sink_reason(u2, pull, rails)
+                if reason is None:
+                    for_u2[u2.id].append(pull)
+                else:
+                    excl.append(Exclusion("R5", pull.id, reason))
+    box = load_box(spec, r3_values, r3_values, catalog.resistors)
+    stages: list[ComparatorStage] = []
+    for u1 in usable_u1:
+        for u2 in usable_u2:
+            for r5 in for_u2[u2.id]:
+                ohm = r5.value_ohm if r5 else 0.0
+                ve = usable_error_voltages(u1, u2, ohm, box, rails, r3_values)
+                if len(ve) == 0:
+                    who = ("R5", r5.id) if r5 else ("U1", u1.id)
+                    excl.append(
+                        Exclusion(
+                            *who,
+                            f"with U1 {u1.id} and U2 {u2.id} the integrator error voltage "
+                            "Vos + Ib·R3 reaches a square level for every R3",
+                        )
+                    )
+                    continue
+                ve_range = (float(ve.min()), float(ve.max()))
+                stages.append(make_stage(len(stages), u1, u2, r5, box, rails, ve_range))
+    return stages, excl
