@@ -2,7 +2,8 @@
 
 Parametrized over the topologies of ``tristock.circuits.TOPOLOGIES`` that have a search form
 (``Topology.search_form()`` not None; the others are not searchable yet). On the bundled demo
-stock room and the bundled demo spec, each topology's search form must: name designators of
+stock room and the bundled demo spec (on the topology's own demo rails), each topology's search
+form must: name designators of
 its topology; offer its demo board's stage among its stage options, with stock and cost taken
 from that stage's parts; give the demo board's row square levels inside that stage's level
 intervals; and predict the demo board's row exactly as the topology's own built oscillator
@@ -51,8 +52,20 @@ def spec() -> Spec:
     return load_spec(example_spec_path("demo"))
 
 
+def on_demo_rails(topology: Topology, spec: Spec) -> Spec:
+    """``spec`` on the topology's demo rails (a 2/5 of the span triangle where they differ)."""
+    vp, vn = topology.demo_rails
+    if (vp, vn) == (spec.supply.positive_v, spec.supply.negative_v):
+        return spec
+    data = spec.model_dump(mode="json")
+    data["supply"].update(positive_v=vp, negative_v=vn)
+    data["triangle"]["amplitude_vpp"] = 0.4 * (vp - vn)
+    return Spec.model_validate(data)
+
+
 def demo_stage(topology: Topology, spec: Spec, demo: Catalog) -> tuple[int, list[StageOption]]:
     form = form_of(topology)
+    spec = on_demo_rails(topology, spec)
     r3 = np.array([demo.get(topology.demo_board[d]).value for d in form.integrator])
     stages, _ = form.stage_options(spec, demo, r3)
     want = {d: topology.demo_board[d] for d in form.stage_designators if d in topology.demo_board}
@@ -93,7 +106,7 @@ def test_the_demo_row_matches_the_built_oscillator(name: str, spec: Spec, demo: 
     topology = TOPOLOGIES[name]
     form = form_of(topology)
     u, stages = demo_stage(topology, spec, demo)
-    rails = rails_from_supply(spec.supply)
+    rails = rails_from_supply(on_demo_rails(topology, spec).supply)
     design = resolve_board(topology, dict(topology.demo_board), demo)
     names = (*form.divider, *form.integrator, form.capacitor)
     values = {d: np.array([demo.get(topology.demo_board[d]).value]) for d in names}

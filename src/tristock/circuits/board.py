@@ -8,6 +8,7 @@ C1 integrator capacitor, U1 the op amp (one dual, or a single-channel part used 
 from __future__ import annotations
 
 from collections import Counter
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -257,6 +258,15 @@ class Board:
 #: A board of any topology: the op-amp Schmitt loop's (and the comparator loop's) named
 #: fields, or the generic designator table of the other variants.
 AnyBoard = Design | Board
+
+
+def board_from(topology: Topology, parts: Mapping[str, Part]) -> AnyBoard:
+    """The board of ``topology`` with ``parts`` (designator -> part): a ``Design`` for the
+    op-amp Schmitt and comparator loops, else a ``Board`` in the topology's BOM order."""
+    if topology in (OPAMP_SCHMITT, COMPARATOR_SCHMITT):
+        named: dict[str, Any] = {d.lower(): p for d, p in parts.items()}
+        return Design(**named, topology=topology)
+    return Board(topology, tuple((d, parts[d]) for d in topology.designators if d in parts))
 
 
 def resolve_board(topology: Topology, ids: dict[str, str], catalog: Catalog) -> Board:

@@ -15,8 +15,8 @@ that a topology declares, through ``Topology.search_form()``:
 - the square levels of rows on given rails (``row_levels``; rows differ when the levels
   depend on the row's resistors, as with an open-drain pull-up or a zener clamp);
 - the full model of rows (``predict_rows``): the topology's own vectorised ``predict``;
-- the board of a row (``board``) and, back, the stage option of a chosen board
-  (``board_stage``), so an answer is re-checked and reported as the topology's own board.
+- the stage option of a board already chosen (``board_stage``), so an answer is re-checked
+  as the topology's own board (``circuits.board.board_from`` builds the board of a row).
 
 A stage's parts may come from the resistor table too (a pull-up or a clamp's series resistor
 R5): ``stock_needs`` names them, and the search counts a stock code that fills a stage position
@@ -37,13 +37,12 @@ from typing import TYPE_CHECKING, NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
+from tristock.circuits.boardparts import BoardParts
 from tristock.circuits.prediction import Prediction
 from tristock.circuits.rails import Rails
 from tristock.stock.parts import Part
 
 if TYPE_CHECKING:
-    from tristock.circuits.board import AnyBoard
-    from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
 
@@ -207,11 +206,6 @@ class SearchForm(ABC):
         (Ω, F by designator) at the square levels ``levels``; slew rates and delays scaled by
         the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
         centre) instead of the catalogued typical values."""
-
-    @abstractmethod
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> AnyBoard:
-        """The board of a row: the stage's parts with ``parts`` (the divider pair, integrator
-        element(s) and capacitor by designator), as the topology's board object."""
 
     @abstractmethod
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:

@@ -44,6 +44,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Protocol
 
+from tristock.circuits.boardparts import BoardParts
 from tristock.circuits.checks import Warning
 from tristock.circuits.prediction import ArrayLike, FloatArray, Prediction, Value
 from tristock.circuits.rails import Rails
@@ -51,7 +52,6 @@ from tristock.circuits.searchform import SearchForm
 from tristock.circuits.spreadvars import SpreadBox
 from tristock.circuits.timeloop import Loop
 from tristock.spec.model import Spec
-from tristock.stock.parts import Part
 
 __all__ = [
     "TABLES",
@@ -83,22 +83,6 @@ class PartRole:
     def __post_init__(self) -> None:
         if self.table not in TABLES:
             raise ValueError(f"table: {self.table!r} is not a catalog table {TABLES}")
-
-
-class BoardParts(Protocol):
-    """What a topology reads of a board (``circuits.board.Design``): one part per designator
-    and the pot's setting (its wiper, how it is wired, the range capacitor in use)."""
-
-    @property
-    def wiper(self) -> float: ...
-
-    @property
-    def control(self) -> str: ...
-
-    @property
-    def selected(self) -> int: ...
-
-    def parts(self) -> dict[str, Part]: ...
 
 
 class BuiltCircuit(Protocol):

@@ -17,9 +17,9 @@ from tristock.analysis.bundle import analyse
 from tristock.analysis.montecarlo import yield_count
 from tristock.analysis.worstcase import worst_case
 from tristock.circuits import spec_topologies
-from tristock.circuits.board import AnyBoard
+from tristock.circuits.board import AnyBoard, board_from
 from tristock.circuits.topology import Topology
-from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds
+from tristock.designs.candidate import CAUTIONS, candidate, guarantee_holds, warnings_for
 from tristock.designs.results import DesignResult, Infeasible, SearchInfo
 from tristock.designs.variants import distinct_top, variant_key, variants_out
 from tristock.search.enumeration import EngineResult, enumerate_top
@@ -43,7 +43,8 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> AnyBoard:
     form = model.form
     chosen = (res[rows.i1[n]], res[rows.i2[n]], res[rows.i3[n]], cap[rows.j[n]])
     names = (*form.divider, *form.integrator, form.capacitor)
-    return form.board(model.stages[rows.u[n]], dict(zip(names, chosen, strict=True)))
+    parts = {**model.stages[rows.u[n]].parts, **dict(zip(names, chosen, strict=True))}
+    return board_from(model.topology, parts)
 
 
 def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
@@ -67,10 +68,13 @@ class _Verdict:
 
 
 def _recheck(spec: Spec, design: AnyBoard, samples: int, seed: int, beat: int) -> _Verdict:
-    """What the guarantee and the ranking need beyond the search's own acceptance. In the
+    """What the guarantee and the ranking need beyond the search's own acceptance (and no
+    check of error severity, ``designs.candidate.warnings_for``). In the
     yield ranking a row must pass more than ``beat`` samples to enter the top; counting
     stops as soon as it cannot (``analysis.yield_count``)."""
     limits = spec.limits
+    if any(w.severity == "error" for w in warnings_for(design, spec)):
+        return _Verdict(False, None)  # a check of error severity: not a design to offer
     if limits.guarantee == "worst_case":
         wc = worst_case(design, spec)
         if not guarantee_holds(spec, wc, None):

@@ -91,14 +91,17 @@ def _with_also(rows: list[str], result: DesignResult, width: int) -> list[str]:
 
 def fixed_table(result: DesignResult, style: TableStyle) -> list[str]:
     wide = style.wide
-    header = [("#", ">"), ("U1", "<"), ("R1", ">"), ("R2", ">"), ("R3", ">"), ("C1", "<")]
+    stage = ["U1", *(["U2"] if any("U2" in c.parts for c in result.candidates) else [])]
+    header = [("#", ">"), *((d, "<") for d in stage)]
+    header += [("R1", ">"), ("R2", ">"), ("R3", ">"), ("C1", "<")]
     header += [("f", ">"), ("err", ">"), ("Vpp", ">")]
     header += [("timing", ">")] if wide else []
     header += [("worst-case f", ">"), ("yield", ">"), ("cost", ">"), ("", "<")]
     rows = []
     for c in result.candidates:
         wc = c.worst_case["frequency_hz"]
-        row = [str(c.rank), c.parts["U1"].id, *(ohms(c, d, wide) for d in ("R1", "R2", "R3"))]
+        row = [str(c.rank), *(c.parts[d].id if d in c.parts else "" for d in stage)]
+        row += [ohms(c, d, wide) for d in ("R1", "R2", "R3")]
         row += [c.parts["C1"].display, format_value(c.predicted.frequency_hz, "Hz", 5)]
         row += [pct(c.error.frequency_pct / 100, 2, sign=True), f"{c.predicted.amplitude_vpp:.3f}"]
         row += [pct(c.predicted.timing_share)] if wide else []

@@ -23,7 +23,6 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from tristock.circuits.board import Board
 from tristock.circuits.clamped_schmitt.clamplevels import (
     ClampStage,
     LoadRange,
@@ -42,7 +41,7 @@ from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply, square
 from tristock.circuits.searchform import F64, I64, Exclusion, RowModel, SearchForm, StageOption
 from tristock.circuits.topology import BoardParts, Topology
 from tristock.stock.diodes import Diode
-from tristock.stock.parts import OpAmp, Part, Resistor
+from tristock.stock.parts import OpAmp, Resistor
 
 if TYPE_CHECKING:
     from tristock.spec.model import Spec
@@ -136,13 +135,6 @@ class ClampedSchmittForm(SearchForm):
             for name in Prediction._fields:
                 getattr(out, name)[~ok] = np.nan
         return RowModel(out, ve, ok, moved["slew_rise"], moved["slew_fall"])
-
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> Board:
-        """The clamped board (``circuits.board.Board``) of the stage's U1, D1, D2, R5 and
-        ``parts`` (R1, R2, R3, C1)."""
-        found = {**stage.parts, **parts}
-        by = tuple((d, found[d]) for d in self.topology.designators if d in found)
-        return Board(self.topology, by)
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The board's stage on the spec's nominal rails: its own loads (R3, R1 + R2) and the

@@ -26,10 +26,9 @@ from tristock.circuits.searchform import (
     StageOption,
     fixed_levels_loop,
 )
-from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
+from tristock.stock.parts import OpAmp, Resistor
 
 if TYPE_CHECKING:
-    from tristock.circuits.board import AnyBoard
     from tristock.circuits.topology import BoardParts
     from tristock.spec.model import Spec
     from tristock.stock.catalog import Catalog
@@ -106,14 +105,6 @@ def opamp_stage(index: int, part: OpAmp, spec: Spec, r3_values: F64) -> OpAmpSta
     if len(ve) == 0:
         return "its integrator error voltage Vos + Ib·R3 reaches a square level for every R3"
     return _stage(index, part, model, (vh, vl), (float(ve.min()), float(ve.max())))
-
-
-def board_stage(part: OpAmp, levels: tuple[float, float]) -> OpAmpStage:
-    """The stage of a board already chosen, at the square levels ``levels``: what
-    ``predict_rows`` needs to evaluate its row (no eligibility checks; the loop's Ve range is
-    the offset alone, for no R3 range is searched)."""
-    model = OpAmpModel.from_part(part)
-    return _stage(0, part, model, levels, (model.offset_v, model.offset_v))
 
 
 def _models(stages: Sequence[StageOption]) -> list[OpAmpModel]:
@@ -231,17 +222,6 @@ class OpAmpSchmittForm(SearchForm):
             for name in Prediction._fields:
                 getattr(out, name)[ok] = np.asarray(getattr(part, name))
         return RowModel(out, ve, ok, slew_rise, slew_fall)
-
-    def board(self, stage: StageOption, parts: Mapping[str, Part]) -> AnyBoard:
-        """The op-amp Schmitt board (``circuits.board.Design``) of U1 and R1, R2, R3, C1."""
-        from tristock.circuits.board import Design  # the board module imports this package
-
-        u1, r1, r2, r3, c1 = (
-            stage.parts["U1"], parts["R1"], parts["R2"], parts["R3"], parts["C1"]
-        )  # fmt: skip
-        assert isinstance(u1, OpAmp) and isinstance(c1, Capacitor)
-        assert all(isinstance(r, Resistor) for r in (r1, r2, r3))
-        return Design(u1=u1, r1=r1, r2=r2, r3=r3, c1=c1)  # type: ignore[arg-type]
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """U1's stage at its saturation levels on the nominal rails (no rating check: the

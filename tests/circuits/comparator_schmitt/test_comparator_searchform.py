@@ -12,12 +12,14 @@ import dataclasses
 import itertools
 import math
 from collections import Counter, defaultdict
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
 
+from tristock.circuits.board import board_from
 from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
 from tristock.circuits.comparator_schmitt.physics import high_level
 from tristock.circuits.comparator_schmitt.searchform import ComparatorSchmittForm
@@ -31,7 +33,7 @@ from tristock.circuits.comparator_schmitt.stages import ComparatorStage
 from tristock.circuits.looptiming import loop_timing
 from tristock.circuits.opamp_schmitt.spread import DELAY_SPREAD, SLEW_SPREAD
 from tristock.circuits.rails import Rails, rails_from_supply
-from tristock.circuits.searchform import StageLoop
+from tristock.circuits.searchform import StageLoop, StageOption
 from tristock.examples import demo_catalog_dir
 from tristock.search.bounds import amplitude_bounds, period_bounds
 from tristock.search.parts import eligible_capacitors, eligible_resistors
@@ -41,7 +43,14 @@ from tristock.stock.comparators import Comparator
 from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
 
 REL = 1e-12  # one formula by two paths (common practice)
-FORM = COMPARATOR_SCHMITT.search_form()
+FORM = ComparatorSchmittForm(COMPARATOR_SCHMITT, open_drain=True)
+
+
+def board_of(stage: StageOption, parts: Mapping[str, Part]) -> Any:
+    """The board of a row: the stage's parts and the row's (``circuits.board.board_from``)."""
+    return board_from(COMPARATOR_SCHMITT, {**stage.parts, **parts})
+
+
 assert isinstance(FORM, ComparatorSchmittForm)
 
 
@@ -160,7 +169,7 @@ class Rows:
 
     def boards(self) -> Iterator[tuple[int, object]]:
         for n, (u, parts) in enumerate(zip(self.u, self.parts, strict=True)):
-            yield n, FORM.board(self.stages[u], parts)
+            yield n, board_of(self.stages[u], parts)
 
 
 def every_row(spec: Spec, catalog: Catalog) -> Rows:
@@ -505,7 +514,7 @@ def test_stock_cost_and_lines_are_the_boards() -> None:
     seen: Counter[tuple[bool, int]] = Counter()
     for stage in stages:
         parts: dict[str, Part] = dict(row)
-        board = FORM.board(stage, parts)
+        board = board_of(stage, parts)
         assert board.topology is COMPARATOR_SCHMITT
         own = Counter(p.id for p in parts.values())
         needs = Counter({p.id: n for p, n in stage.stock_needs})
@@ -521,7 +530,7 @@ def test_stock_cost_and_lines_are_the_boards() -> None:
     assert set(seen) == {(False, 1), (False, 2), (True, 1), (True, 2)}
     # a pull-up whose stock code also fills R1: one piece per position, one BOM line
     stage = next(s for s in stages if "R5" in s.parts and s.parts["R5"].id == "TR-1K00")
-    board = FORM.board(stage, row)
+    board = board_of(stage, row)
     assert board.uses()["TR-1K00"] == 2
     assert board.bom_lines == stage.lines + len({p.id for p in row.values()}) - 1
 
@@ -624,11 +633,12 @@ def test_a_board_that_cannot_work_says_why() -> None:
     row = {"R1": catalog.get("TR-1K00"), "R2": catalog.get("TR-4K70"),
            "R3": catalog.get("TR-10K0"), "C1": catalog.get("TK-1N00")}  # fmt: skip
     stage = options(SPLIT_12V, catalog)[0]
-    lifted = dataclasses.replace(stage, comparator=catalog.get("TC-HR"))
-    board = FORM.board(lifted, row)
+    high = catalog.get("TC-HR")
+    lifted = dataclasses.replace(stage, comparator=high, parts={**stage.parts, "U2": high})
+    board = board_of(lifted, row)
     assert "both sides of the reference" in str(FORM.board_stage(board, SINGLE_5V))
     open_drain = next(s for s in options(SPLIT_12V, catalog) if s.comparator.is_open_drain)
-    bare = dataclasses.replace(FORM.board(open_drain, row), r5=None)
+    bare = dataclasses.replace(board_of(open_drain, row), r5=None)
     why = FORM.board_stage(bare, SPLIT_12V)
     assert why == "R5: the open-drain U2 TC-OD needs a pull-up resistor"
 
@@ -652,8 +662,30 @@ def test_the_demo_board_is_a_row_of_a_stage_option(demo: Catalog) -> None:
     u = np.array([found[0].index], dtype=np.int64)
     vh, vl = FORM.row_levels(stages, u, rails, values)
     row = FORM.predict_rows(stages, u, values, (vh, vl))
-    built = COMPARATOR_SCHMITT.oscillator(FORM.board(found[0], board), rails).prediction()
+    built = COMPARATOR_SCHMITT.oscillator(board_of(found[0], board), rails).prediction()
     for field in ("frequency_hz", "amplitude_vpp", "duty_high", "timing_share", "peak_high_v"):
         assert float(np.asarray(getattr(row.pred, field))[0]) == pytest.approx(
             float(getattr(built, field)), rel=REL
         )
+
+
+def test_the_registered_form_searches_push_pull_comparators_only(demo: Catalog) -> None:
+    """The search takes push-pull U2 only (their bounds are proven); each open-drain part is
+    left out with the reason, and no stage carries a pull-up."""
+    spec = Spec.model_validate(
+        {
+            "supply": {"positive_v": 5.0, "negative_v": 0.0},
+            "frequency": {"target_hz": 50e3, "tolerance_pct": 3.0},
+            "triangle": {"amplitude_vpp": 2.0, "tolerance_pct": 8.0},
+            "build": {"boards": 10},
+        }
+    )
+    form = COMPARATOR_SCHMITT.search_form()
+    stages, excl = form.stage_options(spec, demo, np.array([1e3, 1e5]))
+    assert stages and all("R5" not in s.parts for s in stages)
+    assert [s.index for s in stages] == list(range(len(stages)))
+    od = [c.id for c in demo.comparators if c.is_open_drain]
+    assert od and all(
+        any(e.part_id == c and "not searched yet" in e.reason for e in excl) for c in od
+    )
+    assert form.bounds_proven and not FORM.bounds_proven

@@ -15,13 +15,14 @@ import dataclasses
 import itertools
 import math
 from collections import Counter
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
 import pytest
 
-from tristock.circuits.board import Board, Design, resolve
-from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT
+from tristock.circuits.board import Board, Design, board_from, resolve
+from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT, SEARCH_FORM
 from tristock.circuits.clamped_schmitt.clamplevels import ClampStage
 from tristock.circuits.clamped_schmitt.physics import Clamp
 from tristock.circuits.clamped_schmitt.searchform import (
@@ -70,7 +71,14 @@ def spec_at(v: float = 12.0) -> Spec:
     )
 
 
-FORM = CLAMPED_SCHMITT.search_form()
+FORM = SEARCH_FORM
+
+
+def board_of(stage: StageOption, parts: Mapping[str, Part]) -> Any:
+    """The board of a row: the stage's parts and the row's (``circuits.board.board_from``)."""
+    return board_from(CLAMPED_SCHMITT, {**stage.parts, **parts})
+
+
 CATALOG = small_catalog()
 SPEC = spec_at()
 
@@ -105,7 +113,7 @@ def board_points(rows: I64, rails: Rails) -> Any:
     """The boards of ``rows`` (indices into ``U``/``PARTS``) as the topology's own point on
     ``rails`` at 25 °C: each from ``board_point``, stacked field by field."""
     points = [
-        CLAMPED_SCHMITT.board_point(FORM.board(STAGES[int(U[q])], PARTS[q]), rails, 25.0)
+        CLAMPED_SCHMITT.board_point(board_of(STAGES[int(U[q])], PARTS[q]), rails, 25.0)
         for q in rows.tolist()
     ]
     names = [f.name for f in dataclasses.fields(points[0])]
@@ -217,7 +225,7 @@ def test_the_levels_along_every_cycle_that_can_meet_the_band_lie_inside_the_inte
 
 def test_stock_cost_and_lines_are_the_boards() -> None:
     for stage, parts in itertools.islice(zip(itertools.cycle(STAGES), PARTS[::7]), 200):
-        board = FORM.board(stage, parts)
+        board = board_of(stage, parts)
         uses = board.uses()
         own = Counter({p.id: 0 for p in parts.values()})
         own.update(p.id for p in parts.values())
@@ -287,7 +295,7 @@ def test_board_stage_round_trips_a_rows_board() -> None:
     rails = rails_from_supply(SPEC.supply)
     for q in range(0, len(U), 97):
         stage = STAGES[int(U[q])]
-        board = FORM.board(stage, PARTS[q])
+        board = board_of(stage, PARTS[q])
         back = FORM.board_stage(board, SPEC)
         assert isinstance(back, ClampStage) and back.index == 0
         # reference: the stage the board was built from (the same parts and counts)
@@ -311,7 +319,7 @@ def test_board_stage_round_trips_a_rows_board() -> None:
 
 def test_board_stage_says_why_an_op_amp_cannot_swing_on_the_rails() -> None:
     stage = STAGES[0]
-    board = FORM.board(stage, PARTS[0])
+    board = board_of(stage, PARTS[0])
     single = parse_spec(
         {
             "supply": {"positive_v": 2.0, "negative_v": 0.0},
