@@ -1,0 +1,76 @@
+"""The circuits through the HTTP API: a ``[circuit]`` spec searched, its answers naming their
+topology, a DESIGN body of any circuit analysed (``topology``), and the refusals as 422s
+naming the field."""
+
+from __future__ import annotations
+
+import tomllib
+from collections.abc import Iterator
+
+import pytest
+from fastapi.testclient import TestClient
+from test_api import DEMO, client
+
+from tristock import cli
+from tristock.circuits import TOPOLOGIES
+
+
+@pytest.fixture(scope="module")
+def api() -> Iterator[TestClient]:
+    with client(DEMO) as c:
+        yield c
+
+
+def comparator_spec() -> dict[str, object]:
+    text = cli.example_spec_path("comparator").read_text(encoding="utf-8")
+    return tomllib.loads(text)
+
+
+def test_a_comparator_spec_is_searched_and_its_answers_analysed(api: TestClient) -> None:
+    found = api.post("/v1/design", json={"spec": comparator_spec(), "time_limit_s": 60})
+    assert found.status_code == 200, found.text
+    result = found.json()
+    assert result["search"]["proven_optimal"]
+    first = result["candidates"][0]
+    assert first["topology"] == "comparator_schmitt" and "U2" in first["parts"]
+    # the DESIGN file as it comes, posted back: the same board analysed, the same prediction
+    body = {**first["design_file"], "samples": 500}
+    analysed = api.post("/v1/analyse", json=body)
+    assert analysed.status_code == 200, analysed.text
+    got = analysed.json()["predicted"]["frequency_hz"]
+    assert got == pytest.approx(first["predicted"]["frequency_hz"], rel=1e-12)
+
+
+def test_a_clamped_board_is_analysed_by_its_topology(api: TestClient) -> None:
+    t = TOPOLOGIES["clamped_schmitt"]
+    spec = {
+        "supply": {"positive_v": 12.0, "negative_v": -12.0},
+        "frequency": {"target_hz": 2400.0, "tolerance_pct": 5.0},
+        "triangle": {"amplitude_vpp": 5.0, "tolerance_pct": 10.0},
+    }
+    body = {"spec": spec, "parts": dict(t.demo_board), "topology": t.name, "samples": 500}
+    r = api.post("/v1/analyse", json=body)
+    assert r.status_code == 200, r.text
+    assert "D1" in r.json()["sensitivity"]["frequency"]
+
+
+@pytest.mark.parametrize(
+    ("body", "field"),
+    [
+        ({"topology": "ring_oscillator"}, "topology"),
+        ({"spec_circuit": {"clamp": "zener"}}, "circuit"),
+        ({"spec_circuit": {"duty_pct": 30}}, "circuit.duty_pct"),
+    ],
+)
+def test_what_cannot_be_done_is_a_422_naming_the_field(
+    api: TestClient, body: dict[str, object], field: str
+) -> None:
+    spec = comparator_spec()
+    if "spec_circuit" in body:
+        spec = {**spec, "circuit": body["spec_circuit"]}
+        r = api.post("/v1/design", json={"spec": spec})
+    else:
+        parts = dict(TOPOLOGIES["comparator_schmitt"].demo_board)
+        r = api.post("/v1/analyse", json={"spec": spec, "parts": parts, **body})
+    assert r.status_code == 422, r.text
+    assert any(e["field"].endswith(field) for e in r.json()["errors"]), r.json()
