@@ -20,7 +20,8 @@ differential equation
 with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once per
 process (``transition_table``, about 0.13 s and 20 MB) by a fourth-order rule on the equivalent
 form Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points,
-and read back by B-spline interpolation. For D = 0 the solution is closed:
+and read back by quadratic B-spline interpolation (``gridspline``). For D = 0 the solution is
+closed:
 v(Φ) = -Φ/(1 - μ) + ln(((1 + μ)·e^(2Φ) - 1 + μ)/(2μ))/(1 - μ²) (separable, Y = Φ - μ·v).
 
 What the oscillator needs from a transition that moves the output by L (scaled) is the mean
@@ -58,7 +59,8 @@ SATURATED = 7.0
 #: Grid lines of linear continuation around the table for the spline.
 PAD = 3
 #: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic here and as
-#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v).
+#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v). The
+#: read-back (``gridspline``) is quadratic only.
 SPLINE_ORDER = 2
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
@@ -232,10 +234,9 @@ def _coefficients() -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
 
 
 def _axis(coord: FloatArray, lines: int) -> GridAxis:
-    """Points at fractional grid coordinates ``coord`` of the unpadded table on an axis of
-    ``lines`` padded grid lines, clamped to the unpadded grid. The table is padded by PAD odd
-    reflections (linear continuation) so that the spline has no artificial slope at the
-    edges; the clamped points never reach the padding's outer lines."""
+    """Points at grid coordinates ``coord`` of the table, clamped to it, on an axis of
+    ``lines`` padded lines: PAD odd reflections (linear continuation) on each side give the
+    spline no artificial slope at the edges, and no point reaches their outer lines."""
     return grid_axis(coord + PAD, PAD, lines - 1.0 - PAD)
 
 
@@ -388,10 +389,6 @@ def switch_times(
         linear_mid, linear_over = linear()
         slewed = (linear_mid, linear_mid, linear_over)
         times = [np.where(finite, t, lin) for t, lin in zip(times, slewed, strict=True)]
-    centroid, mid, overshoot = (_full(t, shape) for t in times)
-    return SwitchTimes(centroid, mid, overshoot)
-
-
-def _full(x: FloatArray, shape: tuple[int, ...]) -> FloatArray:
-    """``x`` broadcast to ``shape`` as an array of its own."""
-    return x if x.shape == shape else np.broadcast_to(x, shape).copy()
+    # as arrays of their own, of the broadcast shape of every argument
+    full = [t if t.shape == shape else np.broadcast_to(t, shape).copy() for t in times]
+    return SwitchTimes(*full)
