@@ -154,7 +154,7 @@ def test_yield_count_stops_where_one_chunk_at_a_time_stops(monkeypatch: pytest.M
     spec = make_spec(2.0)
     _, variables = spread_board(DESIGN, spec)
     refused = deviations(np.random.default_rng(2), variables, 4000, "normal")[2400]
-    real = montecarlo.metric_columns
+    real = metric_columns
     seen: list[int] = []
 
     def refusing(board: object, variables: object, z: FloatArray) -> FloatArray:

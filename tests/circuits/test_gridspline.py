@@ -5,15 +5,17 @@ dimensions, with clamping, broadcasting axes and NaN coordinates."""
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
+import numpy.typing as npt
 import pytest
 from scipy.ndimage import map_coordinates
 
 from tristock.circuits.gridspline import grid_axis, spline_value
 
 
-def reference(coeffs: np.ndarray, coords: list[np.ndarray]) -> np.ndarray:
+def reference(coeffs: np.ndarray, coords: Sequence[npt.ArrayLike]) -> np.ndarray:
     """map_coordinates at the points (each coordinate array of the same shape)."""
     flat = np.stack([np.asarray(c, dtype=float).ravel() for c in coords])
     out = map_coordinates(coeffs, flat, order=2, mode="nearest", prefilter=False)
