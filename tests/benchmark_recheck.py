@@ -77,10 +77,10 @@ def monte_carlo_parts(design: Design, spec: Spec, runs: int, samples: int = 100_
     for label, call in (
         ("monte_carlo, 100,000 samples", lambda: monte_carlo(design, spec, samples=samples)),
         (
-            "  drawing the deviations",
+            "  alone: drawing deviations",
             lambda: deviations(np.random.default_rng(0), variables, samples, "normal"),
         ),
-        ("  the model at every sample", lambda: metric_columns(board, variables, z)),
+        ("  alone: the model", lambda: metric_columns(board, variables, z)),
     ):
         wall, cpu = timed(call, runs)
         print(f"  {label:<28} {wall * 1e3:8.1f} ms   (CPU {cpu * 1e3:6.1f} ms)")
