@@ -6,7 +6,10 @@ test): issue 15's targets 1 and 5, measured in one run.
 1. On the bundled demo (default engine, top 10): ``build_model`` + ``enumerate_top`` and the
    whole ``design()`` (search, full-model re-check and analysis of the answers), interleaved
    run by run; medians and their ratio.
-2. ``monte_carlo`` of the demo's rank 1 with 100,000 samples (seed 0), median.
+2. ``monte_carlo`` of the demo's rank 1 with 100,000 samples (seed 0), median wall and CPU
+   time, and its two big parts measured alone: drawing the deviations (``deviations``:
+   uniform numbers, the inverse normal CDF) and the model at every sample
+   (``spread.metric_columns``).
 3. Whole processes: ``tristock --help`` and ``tristock design --example`` (wall and CPU time
    from ``os.wait4``'s resource usage), median.
 """
@@ -19,14 +22,19 @@ import statistics
 import subprocess
 import sys
 import time
+from collections.abc import Callable
 
-from tristock.analysis.montecarlo import monte_carlo
-from tristock.circuits.board import resolve
+import numpy as np
+
+from tristock.analysis.montecarlo import deviations, monte_carlo
+from tristock.analysis.spread import metric_columns, spread_board
+from tristock.circuits.board import Design, resolve
 from tristock.designs import design
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import build_model
 from tristock.spec.loading import load_spec
+from tristock.spec.model import Spec
 from tristock.stock.catalog import load_catalog
 
 _LAUNCHER = (
@@ -50,6 +58,34 @@ def process(argv: list[str], runs: int) -> tuple[float, float]:
     return statistics.median(walls), statistics.median(cpus)
 
 
+def timed(call: Callable[[], object], runs: int) -> tuple[float, float]:
+    """Median wall and CPU (this process) seconds of ``call``, after one warm-up call."""
+    call()
+    walls, cpus = [], []
+    for _ in range(runs):
+        w0, c0 = time.perf_counter(), time.process_time()
+        call()
+        walls.append(time.perf_counter() - w0)
+        cpus.append(time.process_time() - c0)
+    return statistics.median(walls), statistics.median(cpus)
+
+
+def monte_carlo_parts(design: Design, spec: Spec, runs: int, samples: int = 100_000) -> None:
+    """Print the Monte Carlo's median time and that of its two big parts."""
+    board, variables = spread_board(design, spec)
+    z = deviations(np.random.default_rng(0), variables, samples, "normal")
+    for label, call in (
+        ("monte_carlo, 100,000 samples", lambda: monte_carlo(design, spec, samples=samples)),
+        (
+            "  alone: drawing deviations",
+            lambda: deviations(np.random.default_rng(0), variables, samples, "normal"),
+        ),
+        ("  alone: the model", lambda: metric_columns(board, variables, z)),
+    ):
+        wall, cpu = timed(call, runs)
+        print(f"  {label:<28} {wall * 1e3:8.1f} ms   (CPU {cpu * 1e3:6.1f} ms)")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--runs", type=int, default=7)
@@ -70,13 +106,7 @@ def main() -> None:
     print(f"  build_model + enumerate_top  {s * 1e3:8.1f} ms")
     print(f"  design()                     {d * 1e3:8.1f} ms   ({d / s:.2f}x the search)")
     rank1 = resolve(result.candidates[0].design_file.parts, catalog)
-    monte_carlo(rank1, spec, samples=100_000)
-    mc = []
-    for _ in range(args.runs):
-        t0 = time.perf_counter()
-        monte_carlo(rank1, spec, samples=100_000)
-        mc.append(time.perf_counter() - t0)
-    print(f"  monte_carlo, 100,000 samples {statistics.median(mc) * 1e3:8.1f} ms")
+    monte_carlo_parts(rank1, spec, args.runs)
     tristock = [sys.executable, "-m", "tristock"]
     for label, argv in (
         ("tristock --help", [*tristock, "--help"]),

@@ -91,6 +91,29 @@ def evaluate(board: Board, variables: list[SpreadVariable], z: FloatArray) -> Fl
     return metric_table(pred, z.shape[0])
 
 
+#: Rows ``metric_columns`` evaluates at a time: enough that numpy's cost per call is small
+#: against the work, few enough that a batch's arrays stay in the processor's cache (on the
+#: 2-core machine a Monte Carlo of 100,000 samples ran about twice as fast in batches of
+#: 16,384 as in one).
+BATCH_ROWS = 16384
+
+
+def metric_columns(
+    board: Board, variables: list[SpreadVariable], z: FloatArray, batch: int = BATCH_ROWS
+) -> FloatArray:
+    """Metrics (3, rows) at the deviations ``z`` (rows, n), rows as ``METRICS``: ``evaluate``
+    in batches of ``batch`` rows (every row is computed on its own, so the values are the
+    same to the bit). ``z`` is best given with its columns contiguous (Fortran order)."""
+    rows = z.shape[0]
+    out = np.empty((len(METRICS), rows))
+    for start in range(0, rows, batch):
+        part = z[start : start + batch]
+        pred = board.predict(point_at(board, variables, part))
+        for m, metric in enumerate(METRICS):
+            out[m, start : start + part.shape[0]] = getattr(pred, metric)
+    return out
+
+
 def check_inputs(design: object, spec: object) -> None:
     """TypeError naming the argument unless ``design`` is a board (``circuits.board``: a
     Design or a generic Board) and ``spec`` a Spec."""
@@ -104,11 +127,13 @@ def check_inputs(design: object, spec: object) -> None:
 
 
 __all__ = [
+    "BATCH_ROWS",
     "METRICS",
     "Board",
     "SpreadVariable",
     "check_inputs",
     "evaluate",
+    "metric_columns",
     "metric_table",
     "point_at",
     "point_fields",

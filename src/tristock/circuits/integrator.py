@@ -76,16 +76,24 @@ def lag_overshoot_area(
     For a real edge (a build-up, then the slew) the area is that of its linear part; it is
     below SR·τi²/2, about 1 mV of peak for realistic parts, so the approximation is harmless.
     """
+    # each branch is computed only where some value takes it (every value on its own)
+    lagging = lag > 0.0
+    everywhere = bool(np.all(lagging))
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        safe_lag = np.where(lag > 0.0, lag, 1.0)
-        step = after * safe_lag * np.log1p(before / after)
+        safe_lag = lag if everywhere else np.where(lagging, lag, 1.0)
         c = 1.0 + before / (slew * safe_lag)
         x = c + _w0_of_minus_exp(c)
         t_cross = x * safe_lag
         t_end = (before + after) / slew
-        ramp = 0.5 * slew * (t_cross - before / slew) ** 2
-        t_late = t_end + safe_lag * np.log(slew * safe_lag * -np.expm1(-t_end / safe_lag) / after)
-        tail = 0.5 * after**2 / slew + after * (t_late - t_end)
-        finite = np.where(t_cross <= t_end, ramp, tail)
-        area = np.where(np.isinf(slew), step, finite)
-    return np.asarray(np.where(lag > 0.0, area, 0.0), dtype=float)
+        area = 0.5 * slew * (t_cross - before / slew) ** 2
+        early = t_cross <= t_end
+        if not np.all(early):
+            t_late = t_end + safe_lag * np.log(
+                slew * safe_lag * -np.expm1(-t_end / safe_lag) / after
+            )
+            tail = 0.5 * after**2 / slew + after * (t_late - t_end)
+            area = np.where(early, area, tail)
+        stepped = np.isinf(slew)
+        if np.any(stepped):
+            area = np.where(stepped, after * safe_lag * np.log1p(before / after), area)
+    return np.asarray(area if everywhere else np.where(lagging, area, 0.0), dtype=float)

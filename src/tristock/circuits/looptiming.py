@@ -85,7 +85,8 @@ def loop_timing(
     rc_eff = rc * slow
     # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
     drive = np.stack([b, a])
-    edges = switch_times(k, drive / rc_eff, span, drive, np.stack([sr, sf]), gbw, td)
+    slew = np.stack([sr, sf])
+    edges = switch_times(k, drive / rc_eff, span, drive, slew, gbw, td)
     (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
     d_r = c_r + lag
     d_f = c_f + lag
@@ -93,7 +94,7 @@ def loop_timing(
     period = span * (ramp / (a * b) + d_r / a + d_f / b)
     high = (ramp + b * d_r) / a + d_r + m_f - m_r
     ideal = span * k * span * rc / (a * b)
-    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), np.stack([sr, sf]), lag)
+    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), slew, lag)
     return LoopTiming(
         period,
         high,

@@ -81,8 +81,9 @@ class SpreadVariable:
 
     def apply(self, values: PointValues, z: FloatArray) -> None:
         """Move ``values`` (the point's fields by name) in place to the deviation ``z``."""
-        mid, half = self.temperature if self.temperature is not None else (25.0, 0.0)
-        delta_t = mid + half * z - 25.0  # T - 25 °C; used by the tempco laws only
+        if self.temperature is not None:  # T - 25 °C, for the tempco laws
+            mid, half = self.temperature
+            delta_t = mid + half * z - 25.0
         for m in self.moves:
             if m.law == "scale":
                 values[m.field] = values[m.field] * (1.0 + m.amount * z)

@@ -20,7 +20,8 @@ differential equation
 with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once per
 process (``transition_table``, about 0.13 s and 20 MB) by a fourth-order rule on the equivalent
 form Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points,
-and read back by B-spline interpolation. For D = 0 the solution is closed:
+and read back by quadratic B-spline interpolation (``gridspline``). For D = 0 the solution is
+closed:
 v(Φ) = -Φ/(1 - μ) + ln(((1 + μ)·e^(2Φ) - 1 + μ)/(2μ))/(1 - μ²) (separable, Y = Φ - μ·v).
 
 What the oscillator needs from a transition that moves the output by L (scaled) is the mean
@@ -40,8 +41,10 @@ from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
-from scipy.ndimage import map_coordinates, spline_filter
+from scipy.ndimage import spline_filter
 from scipy.special import lambertw
+
+from tristock.circuits.gridspline import GridAxis, grid_axis, spline_value
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -56,7 +59,8 @@ SATURATED = 7.0
 #: Grid lines of linear continuation around the table for the spline.
 PAD = 3
 #: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic here and as
-#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v).
+#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v). The
+#: read-back (``gridspline``) is quadratic only.
 SPLINE_ORDER = 2
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
@@ -229,48 +233,64 @@ def _coefficients() -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     return mean, level, u0, c2
 
 
-def _spline(coeffs: FloatArray, coords: list[FloatArray]) -> FloatArray:
-    """B-spline value at fractional grid coordinates (clamped to the grid). The table is
-    padded by PAD odd reflections (linear continuation) so that the spline has no artificial
-    slope at the edges."""
-    clamped = [
-        np.clip(c, 0.0, n - 1.0 - 2 * PAD) + PAD for c, n in zip(coords, coeffs.shape, strict=False)
-    ]
-    flat = np.stack([c.ravel() for c in clamped])
-    out = map_coordinates(coeffs, flat, order=SPLINE_ORDER, mode="nearest", prefilter=False)
-    return np.asarray(out, dtype=float).reshape(coords[0].shape)
+def _axis(coord: FloatArray, lines: int) -> GridAxis:
+    """Points at grid coordinates ``coord`` of the table, clamped to it, on an axis of
+    ``lines`` padded lines: PAD odd reflections (linear continuation) on each side give the
+    spline no artificial slope at the edges, and no point reaches their outer lines."""
+    return grid_axis(coord + PAD, PAD, lines - 1.0 - PAD)
 
 
-def _extrapolated(coeffs: FloatArray, coords: list[FloatArray]) -> FloatArray:
-    """As ``_spline``, continued linearly below the first grid line of the first axis."""
-    value = _spline(coeffs, coords)
-    below = coords[0] < 0.0
-    if np.any(below):
-        one = [np.ones_like(coords[0]), *coords[1:]]
-        zero = [np.zeros_like(coords[0]), *coords[1:]]
-        slope = _spline(coeffs, one) - _spline(coeffs, zero)
-        value = np.where(below, _spline(coeffs, zero) + coords[0] * slope, value)
+class _Place(NamedTuple):
+    """Points (μ, D) on the table's first two axes, shared by look-ups at several levels:
+    ``x`` the fractional grid coordinate in ln μ, ``below`` where it is under 0 (continued
+    linearly there), None when nowhere."""
+
+    x: FloatArray
+    below: npt.NDArray[np.bool_] | None
+    mu: GridAxis
+    delay: GridAxis
+
+
+def _place(mu: FloatArray, delay: FloatArray) -> _Place:
+    shape = _coefficients()[0].shape
+    x = (np.log(mu) - LN_MU[0]) / (LN_MU[1] - LN_MU[0])
+    y = np.log1p(np.maximum(delay, 0.0)) / (Q_DELAY[1] - Q_DELAY[0])
+    below = x < 0.0
+    return _Place(x, below if np.any(below) else None, _axis(x, shape[0]), _axis(y, shape[1]))
+
+
+def _extrapolated(coeffs: FloatArray, place: _Place, *rest: GridAxis) -> FloatArray:
+    """The B-spline at (μ, D, *rest), continued linearly below the first grid line in ln μ."""
+    value = spline_value(coeffs, (place.mu, place.delay, *rest))
+    if place.below is not None:
+        at_zero = spline_value(coeffs, (_axis(np.zeros(()), coeffs.shape[0]), place.delay, *rest))
+        at_one = spline_value(coeffs, (_axis(np.ones(()), coeffs.shape[0]), place.delay, *rest))
+        value = np.where(place.below, at_zero + place.x * (at_one - at_zero), value)
+    return value
+
+
+def _at_level(kind: int, place: _Place, level: FloatArray) -> FloatArray:
+    """Table ``kind`` (0: G(L) - L/2, 1: v(L) - L) at ``place`` and levels L, the saturated
+    forms past L_max."""
+    coeffs = _coefficients()
+    z = (np.log(np.maximum(level, 1e-300)) - LN_LEVEL[0]) / (LN_LEVEL[1] - LN_LEVEL[0])
+    value = _extrapolated(coeffs[kind], place, _axis(z, coeffs[kind].shape[2]))
+    beyond = level > math.exp(LN_LEVEL[-1])
+    if np.any(beyond):
+        u0 = _extrapolated(coeffs[2], place)
+        tail = (
+            u0 + _extrapolated(coeffs[3], place) / np.where(beyond, level, 1.0) if kind == 0 else u0
+        )
+        value = np.where(beyond, tail, value)
     return value
 
 
 def _lookup(kind: int, mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayLike) -> FloatArray:
-    """Table ``kind`` (0: G(L) - L/2, 1: v(L) - L) at (μ, D, L), saturated forms past L_max."""
+    """``_at_level`` at broadcast (μ, D, L)."""
     mu_a, d_a, l_a = np.broadcast_arrays(
         np.asarray(mu, dtype=float), np.asarray(delay, dtype=float), np.asarray(level, dtype=float)
     )
-    coeffs = _coefficients()
-    x = (np.log(mu_a) - LN_MU[0]) / (LN_MU[1] - LN_MU[0])
-    y = np.log1p(np.maximum(d_a, 0.0)) / (Q_DELAY[1] - Q_DELAY[0])
-    z = (np.log(np.maximum(l_a, 1e-300)) - LN_LEVEL[0]) / (LN_LEVEL[1] - LN_LEVEL[0])
-    value = _extrapolated(coeffs[kind], [x, y, z])
-    beyond = l_a > math.exp(LN_LEVEL[-1])
-    if np.any(beyond):
-        u0 = _extrapolated(coeffs[2], [x, y])
-        tail = (
-            u0 + _extrapolated(coeffs[3], [x, y]) / np.where(beyond, l_a, 1.0) if kind == 0 else u0
-        )
-        value = np.where(beyond, tail, value)
-    return value
+    return _at_level(kind, _place(mu_a, d_a), l_a)
 
 
 def scaled_mean_time(mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayLike) -> FloatArray:
@@ -335,31 +355,40 @@ def switch_times(
     edge is short against the ramp (see the module notes) and μ <= 15 (the triangle's slope
     below 15·k·SR; beyond, μ is clamped: the edge is then a delayed slew almost at once).
     """
-    if np.any(np.isinf(slew) & np.isfinite(gbw)):
+    infinite_slew = np.isinf(slew)
+    if np.any(infinite_slew) and np.any(infinite_slew & np.isfinite(gbw)):
         raise ValueError(
             "slew: a finite gbw needs a finite slew rate (the comparator's input stage "
             "saturates at SR·tanh(2π·GBW·e/SR))"
         )
-    with np.errstate(divide="ignore", invalid="ignore"):
-        linear_mid = delay + 0.5 * span / slew
-        linear_over = delay + 0.5 * drive / slew
-    k, slope, span, drive, slew, gbw, delay = np.broadcast_arrays(
-        k, slope, span, drive, slew, gbw, delay
-    )
+
+    def linear() -> tuple[FloatArray, FloatArray]:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return delay + 0.5 * span / slew, delay + 0.5 * drive / slew
+
+    shape = np.broadcast_shapes(*(np.shape(x) for x in (k, slope, span, drive, slew, gbw, delay)))
     finite = np.isfinite(gbw)
     if not np.any(finite):
+        linear_mid, linear_over = linear()
         return SwitchTimes(linear_mid, linear_mid, linear_over)
-    safe_gbw = np.where(finite, gbw, 1.0)
-    safe_slew = np.where(finite, slew, 1.0)
+    everywhere = bool(np.all(finite))
+    # each value is computed at the shape of its own arguments and broadcast at the end
+    safe_gbw = gbw if everywhere else np.where(finite, gbw, 1.0)
+    safe_slew = slew if everywhere else np.where(finite, slew, 1.0)
     lam = k / (1.0 + k) * 2.0 * math.pi * safe_gbw
     mu = np.minimum(slope / (k * safe_slew), math.exp(LN_MU[-1]))
-    scaled_delay = lam * delay
+    place = _place(mu, lam * delay)
     whole = lam * span / safe_slew
-    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew))
-    g_whole, g_drive = scaled_mean_time(mu[None], scaled_delay[None], levels)
-    v_mid = scaled_level_time(mu, scaled_delay, 0.5 * whole)
-    return SwitchTimes(
-        np.where(finite, delay + g_whole / lam, linear_mid),
-        np.where(finite, delay + v_mid / lam, linear_mid),
-        np.where(finite, delay + g_drive / lam, linear_over),
-    )
+    reach = lam * drive / safe_slew
+    half = 0.5 * whole
+    g_whole = _at_level(0, place, whole) + 0.5 * whole
+    g_drive = _at_level(0, place, reach) + 0.5 * reach
+    v_mid = _at_level(1, place, half) + half
+    times = [delay + g_whole / lam, delay + v_mid / lam, delay + g_drive / lam]
+    if not everywhere:
+        linear_mid, linear_over = linear()
+        slewed = (linear_mid, linear_mid, linear_over)
+        times = [np.where(finite, t, lin) for t, lin in zip(times, slewed, strict=True)]
+    # as arrays of their own, of the broadcast shape of every argument
+    full = [t if t.shape == shape else np.broadcast_to(t, shape).copy() for t in times]
+    return SwitchTimes(*full)

@@ -45,6 +45,10 @@ inf = math.inf
 
 
 def _checked(name: str, x: FloatArray, *, low: float, allow_equal: bool, allow_inf: bool) -> None:
+    if x.size:  # the common case from the extremes alone (NaN makes both NaN, and fail)
+        least, most = x.min(), x.max()
+        if (least >= low if allow_equal else least > low) and (allow_inf or most < inf):
+            return
     ok = x >= low if allow_equal else x > low
     if not allow_inf:
         ok &= np.isfinite(x)
@@ -136,41 +140,43 @@ def predict(
     tanh stage is taken as linear, an error of about ε·(slope/SR)²/3); a real part's delay is
     not constant, use the catalogued comparator-mode delay (what ``delay`` means: DESIGN.md).
     """
-    args = np.broadcast_arrays(
-        *(
-            np.asarray(x, dtype=float)
-            for x in (
-                r1,
-                r2,
-                r3,
-                c1,
-                vh,
-                vl,
-                slew_rise,
-                slew_fall,
-                delay,
-                gbw,
-                vos1,
-                ib1,
-                vos2,
-                ib2,
-                integrator_gbw,
-            )
+    given = [
+        np.asarray(x, dtype=float)
+        for x in (
+            r1,
+            r2,
+            r3,
+            c1,
+            vh,
+            vl,
+            slew_rise,
+            slew_fall,
+            delay,
+            gbw,
+            vos1,
+            ib1,
+            vos2,
+            ib2,
+            integrator_gbw,
         )
+    ]
+    R1, R2, R3, C1, VH, VL, SRr, SRf, TD, GBW, VOS1, IB1, VOS2, IB2, IGBW = np.broadcast_arrays(
+        *given
     )
-    R1, R2, R3, C1, VH, VL, SRr, SRf, TD, GBW, VOS1, IB1, VOS2, IB2, IGBW = args
     scalar = R1.ndim == 0
-    for name, x in (("r1", R1), ("r2", R2), ("r3", R3), ("c1", C1), ("vh", VH), ("vl", VL)):
+    # the checks read the arguments as given: a value broadcast to many rows is read once
+    r1, r2, r3, c1, vh, vl, slew_rise, slew_fall, delay, gbw, vos1, ib1, vos2, ib2, igbw = given
+    for name, x in (("r1", r1), ("r2", r2), ("r3", r3), ("c1", c1), ("vh", vh), ("vl", vl)):
         _checked(name, x, low=0.0, allow_equal=False, allow_inf=False)
     for name, x in (
-        ("slew_rise", SRr),
-        ("slew_fall", SRf),
-        ("gbw", GBW),
-        ("integrator_gbw", IGBW),
+        ("slew_rise", slew_rise),
+        ("slew_fall", slew_fall),
+        ("gbw", gbw),
+        ("integrator_gbw", igbw),
     ):
         _checked(name, x, low=0.0, allow_equal=False, allow_inf=True)
-    _checked("delay", TD, low=0.0, allow_equal=True, allow_inf=False)
-    for name, x in (("vos1", VOS1), ("ib1", IB1), ("vos2", VOS2), ("ib2", IB2)):
+    _checked("delay", delay, low=0.0, allow_equal=True, allow_inf=False)
+    for name, x in (("vos1", vos1), ("ib1", ib1), ("vos2", vos2), ("ib2", ib2)):
         _checked(name, np.abs(x), low=0.0, allow_equal=True, allow_inf=False)
 
     k = R1 / R2
