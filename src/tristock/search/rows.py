@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.searchform import SearchForm, StageOption
-from tristock.search.bounds import amplitude_bounds, period_bounds
+from tristock.search.bounds import point_bounds
 from tristock.search.guarantee import (
     FAST,
     PROBES,
@@ -306,8 +306,7 @@ def _guard_bounds(model: SearchModel, u: I64, rp: RowPrediction) -> None:
         return
     loop = model.loops(u[n])
     k, p = rp.k[n], rp.p[n]
-    t = period_bounds(loop, k, p)
-    a = amplitude_bounds(loop, k, p, p)
+    t, a = point_bounds(loop, k, p)
     period = np.asarray(rp.pred.period_s)[n]
     amp = np.asarray(rp.pred.amplitude_vpp)[n]
     slack = 1e-9
