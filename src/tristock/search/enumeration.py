@@ -167,12 +167,20 @@ class Scoring:
         self.evaluated += len(rows)
         if self.theta < math.inf:
             rows = rows.take(np.flatnonzero(rows.least <= self.theta))
-        rows = rows.take(np.argsort(rows.least))  # the order among equal bounds is immaterial
+        for part in _rising(rows.least):
+            if not self._score_sorted(model, rows.take(part)):
+                return
+
+    def _score_sorted(self, model: SearchModel, rows: Opened) -> bool:
+        """``score`` over rows sorted by their bound; False once the rest cannot enter the
+        top or the deadline has come."""
         start, size = 0, FIRST_SCORE_BATCH
-        while start < len(rows) and rows.least[start] <= self.theta:
+        while start < len(rows):
+            if rows.least[start] > self.theta:
+                return False
             if time.perf_counter() > self.deadline:
                 self.cut = True
-                return
+                return False
             batch = rows.take(np.arange(start, min(start + size, len(rows))))
             got = evaluate(
                 model, batch.u, batch.i1, batch.i2, batch.i3, batch.j, coupled=self.coupled
@@ -183,13 +191,28 @@ class Scoring:
             self.found = best(model, Rows.concat([self.found, got]), self.top)
             start += len(batch)
             size = min(2 * size, MAX_SCORE_BATCH)
+        return True
+
+
+def _rising(least: I64) -> Iterator[I64]:
+    """The indices of ``least`` in rising order (ties in any order), as two sorted parts:
+    the ``SORTED_FIRST`` smallest, then the rest, sorted only if the walk gets there."""
+    if len(least) <= SORTED_FIRST:
+        yield np.argsort(least)
+        return
+    split = np.argpartition(least, SORTED_FIRST)
+    head, tail = split[:SORTED_FIRST], split[SORTED_FIRST:]
+    yield head[np.argsort(least[head])]
+    yield tail[np.argsort(least[tail])]
 
 
 #: Rows listed at once from the windows (memory: about 50 bytes each).
-OPEN_BATCH = 1 << 20
+OPEN_BATCH = 1 << 19
 #: Rows scored by the full model in the first batch; later batches double up to the most.
 FIRST_SCORE_BATCH = 1024
-MAX_SCORE_BATCH = 1 << 15
+MAX_SCORE_BATCH = 1 << 14
+#: Rows sorted by their bound first; the others only when the walk reaches them.
+SORTED_FIRST = 1 << 16
 #: Each new level of part bounds lies this many times further above the lowest one.
 LEVEL_GROWTH = 1.5
 #: Pairs whose windows are opened together once the score bound is known.

@@ -42,7 +42,7 @@ from tristock.search.products import ProductIndex, index_ranges
 #: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
 CHUNK_CANDIDATES = 1 << 20
 #: Ratios whose bounds are computed in one call, between deadline checks.
-RATIO_BATCH = 8192
+RATIO_BATCH = 4096
 
 
 @dataclass
@@ -160,7 +160,12 @@ class PairSource:
         return mine.take(order)
 
     def _build(self, x: float) -> None:
-        todo = [(pos, o, chunk) for pos, o in self.opamps for chunk in self._candidates(o, x)]
+        todo = []
+        for pos, o in self.opamps:
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                return
+            todo += [(pos, o, chunk) for chunk in self._candidates(o, x)]
         if not self._learn_ratios(todo):
             return
         parts = [self.pairs]
