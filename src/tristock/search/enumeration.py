@@ -44,7 +44,7 @@ from tristock.search.bounds import window
 from tristock.search.model import SearchModel
 from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource
 from tristock.search.products import ProductIndex, product_index
-from tristock.search.rows import Rows, best, empty_rows, evaluate
+from tristock.search.rows import Rows, best, coupled_ok, empty_rows, evaluate
 
 I64 = NDArray[np.int64]
 
@@ -167,6 +167,10 @@ class Scoring:
         self.evaluated += len(rows)
         if self.theta < math.inf:
             rows = rows.take(np.flatnonzero(rows.least <= self.theta))
+        if self.coupled:  # rows short of stock or over the cost cap: rejected unscored
+            rows = rows.take(
+                np.flatnonzero(coupled_ok(model, rows.u, rows.i1, rows.i2, rows.i3, rows.j))
+            )
         for part in _rising(rows.least):
             if not self._score_sorted(model, rows.take(part)):
                 return
