@@ -117,30 +117,32 @@ def _open(
     model: SearchModel, index: ProductIndex, pairs: Pairs, theta: int | None
 ) -> Iterator[Opened]:
     """The rows of the pairs' windows that can still score ``theta`` or better, in batches
-    of about ``OPEN_BATCH`` rows (pairs kept whole)."""
+    of about ``OPEN_BATCH`` rows (pairs kept whole), the windows of ``WINDOW_CHUNK`` pairs
+    at a time (the consumer checks the deadline between batches)."""
     if len(pairs.u) == 0 or index.empty:
         return
     credit = model.shared_line_credit()
-    ln_lo, ln_hi = _windows(model, pairs, theta)
-    budget = None if theta is None else theta - pairs.base + credit
-    sizes = index.sizes(ln_lo, ln_hi)
-    ends = np.cumsum(sizes)
-    start = 0
-    while start < len(pairs.u):
-        base = ends[start - 1] if start else 0
-        stop = max(int(np.searchsorted(ends, base + OPEN_BATCH, "right")), start + 1)
-        part = slice(start, stop)
-        got = index.choices(ln_lo[part], ln_hi[part], None if budget is None else budget[part])
-        which = got.which + start
-        yield Opened(
-            pairs.u[which],
-            pairs.i1[which],
-            pairs.i2[which],
-            got.i3,
-            got.j,
-            pairs.base[which] + got.term - credit,
-        )
-        start = stop
+    for first in range(0, len(pairs.u), WINDOW_CHUNK):
+        some = pairs.take(np.arange(first, min(first + WINDOW_CHUNK, len(pairs.u))))
+        ln_lo, ln_hi = _windows(model, some, theta)
+        budget = None if theta is None else theta - some.base + credit
+        ends = np.cumsum(index.sizes(ln_lo, ln_hi))
+        start = 0
+        while start < len(some.u):
+            base = ends[start - 1] if start else 0
+            stop = max(int(np.searchsorted(ends, base + OPEN_BATCH, "right")), start + 1)
+            part = slice(start, stop)
+            got = index.choices(ln_lo[part], ln_hi[part], None if budget is None else budget[part])
+            which = got.which + start
+            yield Opened(
+                some.u[which],
+                some.i1[which],
+                some.i2[which],
+                got.i3,
+                got.j,
+                some.base[which] + got.term - credit,
+            )
+            start = stop
 
 
 @dataclass
@@ -212,9 +214,11 @@ def _rising(least: I64) -> Iterator[I64]:
 
 #: Rows listed at once from the windows (memory: about 50 bytes each).
 OPEN_BATCH = 1 << 19
+#: Pairs whose windows (root searches) are computed at once, between deadline checks.
+WINDOW_CHUNK = 512
 #: Rows scored by the full model in the first batch; later batches double up to the most.
 FIRST_SCORE_BATCH = 1024
-MAX_SCORE_BATCH = 1 << 14
+MAX_SCORE_BATCH = 1 << 13
 #: Rows sorted by their bound first; the others only when the walk reaches them.
 SORTED_FIRST = 1 << 16
 #: Each new level of part bounds lies this many times further above the lowest one.
@@ -235,10 +239,15 @@ def _seed_pairs(source: PairSource, level: float, m: int) -> tuple[Pairs, float]
         level = source.lowest + LEVEL_GROWTH * (level - source.lowest)
 
 
-def _open_all(model: SearchModel, index: ProductIndex, pairs: Pairs, theta: int | None,
-              scoring: Scoring) -> None:  # fmt: skip
+def _open_all(
+    model: SearchModel, index: ProductIndex, pairs: Pairs, theta: int | None, scoring: Scoring
+) -> None:
+    """Open the pairs' rows and score them, until done or the deadline."""
     for rows in _open(model, index, pairs, theta):
-        scoring.score(model, rows)
+        if time.perf_counter() > scoring.deadline:
+            scoring.cut = True
+        else:
+            scoring.score(model, rows)
         if scoring.cut:
             return
 

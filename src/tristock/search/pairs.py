@@ -42,7 +42,7 @@ from tristock.search.products import ProductIndex, index_ranges
 #: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
 CHUNK_CANDIDATES = 1 << 20
 #: Ratios whose bounds are computed in one call, between deadline checks.
-RATIO_BATCH = 4096
+RATIO_BATCH = 2048
 
 
 @dataclass
