@@ -213,7 +213,7 @@ def _rising(least: I64) -> Iterator[I64]:
 
 
 #: Rows listed at once from the windows (memory: about 50 bytes each).
-OPEN_BATCH = 1 << 19
+OPEN_BATCH = 1 << 17
 #: Pairs whose windows (root searches) are computed at once, between deadline checks.
 WINDOW_CHUNK = 512
 #: Rows scored by the full model in the first batch; later batches double up to the most.

@@ -248,6 +248,21 @@ class SearchModel:
             return round(stage.cost_per_board / COST_RESOLUTION)
         return 0
 
+    @cached_property
+    def stage_terms(self) -> NDArray[np.int64]:
+        """``opamp_term`` of every stage option, in the order of ``opamps``."""
+        return np.array([self.opamp_term(o) for o in self.opamps], dtype=np.int64)
+
+    @cached_property
+    def stage_costs(self) -> NDArray[np.float64]:
+        """Cost per board of every stage option, in the order of ``opamps``."""
+        return np.array([o.option.cost_per_board for o in self.opamps], dtype=np.float64)
+
+    @cached_property
+    def stage_lines(self) -> NDArray[np.int64]:
+        """BOM lines of every stage option, in the order of ``opamps``."""
+        return np.array([o.option.lines for o in self.opamps], dtype=np.int64)
+
     def shared_line_credit(self) -> int:
         """Score returned per BOM line saved when one stock code fills two positions."""
         if self.mode == "balanced":

@@ -137,7 +137,7 @@ class PairSource:
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
         line credit a row can gain from repeating its resistor codes."""
-        return self.model.opamp_term(o) - self.model.stage_line_credit(o)
+        return int(self.model.stage_terms[o.index]) - self.model.stage_line_credit(o)
 
     @property
     def everything(self) -> bool:

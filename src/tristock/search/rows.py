@@ -213,7 +213,7 @@ def probe_extremes(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64
 def row_cost(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> F64:
     """Cost per board of each row: the stage option's and every part's."""
     res, cap = model.resistors, model.capacitors
-    u_cost = np.array([st.cost_per_board for st in model.stages])[u]
+    u_cost = model.stage_costs[u]
     return np.asarray(u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j])
 
 
@@ -262,13 +262,7 @@ def evaluate(
         (stage_res >= 0)
         & ((stage_res == i1[:, None]) | (stage_res == i2[:, None]) | (stage_res == i3[:, None]))
     ).sum(axis=1)
-    stages = model.stages
-    lines = (
-        np.array([st.lines for st in stages], dtype=np.int64)[u]
-        + 1
-        + resistor_lines
-        - shared_with_stage
-    )
+    lines = model.stage_lines[u] + 1 + resistor_lines - shared_with_stage
     cost = row_cost(model, u, i1, i2, i3, j)
 
     _guard_bounds(model, u, rp)
@@ -283,7 +277,7 @@ def evaluate(
         inside &= np.all((pa >= aa) & (pa <= ab), axis=1)
         keep = keep[inside]
 
-    u_term = np.array([model.opamp_term(o) for o in model.opamps], dtype=np.int64)[u]
+    u_term = model.stage_terms[u]
     primary = (
         u_term
         + model.resistor_term(i1)
