@@ -3,9 +3,10 @@
 A row's P is k·R3·C1, and a pair (U1, R1, R2) of the engine opens the rows whose ln(R3·C1)
 lies in a window [ln_lo, ln_hi] (``search.enumeration``). Listing every (R3, C1) sorted by
 ln(R3·C1) once would answer each window with two binary searches, but it has |R|·|C| entries
-(9.7 million, about a gigabyte with its index and term arrays, for 7,200 eligible resistors
-and 1,350 capacitors), built before the search can look at its deadline. The index keeps
-instead the eligible R3 sorted by value and the eligible C1 grouped by value; for one window
+(10 million for 7,211 eligible resistors and 1,381 capacitors: with its index and term arrays
+and the sort, most of a 1.8 GB peak), built before the search can look at its deadline.
+The index keeps instead the eligible R3 sorted by value and the eligible C1 grouped by
+value; for one window
 and one capacitor value c, the R3 that fit are one contiguous range of the sorted ln R (the
 sum ln R + c, rounded, never falls as ln R rises), found by binary search of ln_lo - c and
 ln_hi - c widened by ``SEARCH_MARGIN``, then held to the table's own test
