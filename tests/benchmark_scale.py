@@ -1,7 +1,7 @@
 """How the fixed search scales with the catalog (a script, not a test).
 
     python tests/benchmark_scale.py [--sizes 1000 4000 16000] [--capacitors 2000]
-        [--opamps 200] [--time-limit 5] [--runs 1] [--seed 0]
+        [--opamps 200] [--time-limit 5] [--limits 0.25 0.5 1 2] [--runs 1] [--seed 0]
 
 Each size runs in its own process (``--one``) so that its peak RSS (``resource.getrusage``,
 ru_maxrss) is its own. A seeded generator builds the catalog in memory: ``n`` resistors drawn
@@ -11,9 +11,14 @@ parts from the E12/E24 values over 100 pF .. 1 µF, and ``--opamps`` op amps wit
 drawn around the demo stock room's classes (invented codes GA-Snnn). The spec is the bundled
 demo (2.5 kHz ±2 %, 6 Vpp ±5 %, ±12 V, balanced ranking, top 10).
 
-Prints, per size: the search and design() times, whether the top is proven, the rows scored,
-and the peak RSS; then the exponents b of time ∝ R^b and RSS ∝ R^b fitted by least squares in
-log space over the sizes.
+Prints, per size: the search time (``build_model`` + ``enumerate_top``) and the ``design()``
+time under ``--time-limit``, whether the top is proven, the rows opened (``evaluated``) and
+scored by the full model, and the peak RSS (measured before the time-limit runs); then the
+exponents b of time ∝ R^b and RSS ∝ R^b fitted by least squares in log space over the sizes.
+Then, per size and per limit of ``--limits``, a ``design()`` under that limit: its wall time,
+the re-check (the analysis of the answers kept, which runs after the search's deadline: time
+spent in ``designs.fixed.analyse``), the overrun = wall - re-check - limit, and whether the
+answer is proven, how many answers, and whether it (wrongly) reports the spec infeasible.
 """
 
 from __future__ import annotations
@@ -27,6 +32,7 @@ import subprocess
 import sys
 import time
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -129,6 +135,7 @@ def catalog(seed: int, n_res: int, n_cap: int, n_op: int) -> Catalog:
 
 def one(args: argparse.Namespace, n_res: int) -> dict[str, object]:
     """Run one size in this process and return its figures."""
+    import tristock.designs.fixed as fixed
     from tristock.designs import design
     from tristock.examples import example_spec_path
     from tristock.search.enumeration import enumerate_top
@@ -138,7 +145,7 @@ def one(args: argparse.Namespace, n_res: int) -> dict[str, object]:
     spec = load_spec(example_spec_path())
     cat = catalog(args.seed, n_res, args.capacitors, args.opamps)
     searches, designs = [], []
-    proven, rows, answers = False, 0, 0
+    proven, rows, scored, answers = False, 0, 0, 0
     for _ in range(args.runs):
         t0 = time.perf_counter()
         model = build_model(spec, cat)
@@ -147,10 +154,41 @@ def one(args: argparse.Namespace, n_res: int) -> dict[str, object]:
         t0 = time.perf_counter()
         result = design(spec, cat, time_limit_s=args.time_limit)
         designs.append(time.perf_counter() - t0)
-        proven, rows = found.proven_optimal, found.evaluated
+        proven, rows, scored = found.proven_optimal, found.evaluated, found.scored
         answers = len(result.candidates)
         design_proven = result.search.proven_optimal
         infeasible = result.infeasible is not None
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+    recheck = [0.0]
+    analyse = vars(fixed)["analyse"]
+
+    def timed_analyse(*a: Any, **k: Any) -> Any:
+        t = time.perf_counter()
+        try:
+            return analyse(*a, **k)
+        finally:
+            recheck[0] += time.perf_counter() - t
+
+    vars(fixed)["analyse"] = timed_analyse
+    limits = []
+    for limit in args.limits:
+        recheck[0] = 0.0
+        t0 = time.perf_counter()
+        cut = design(spec, cat, time_limit_s=limit)
+        wall = time.perf_counter() - t0
+        limits.append(
+            {
+                "limit_s": limit,
+                "wall_s": wall,
+                "recheck_s": recheck[0],
+                "over_s": wall - recheck[0] - limit,
+                "proven": cut.search.proven_optimal,
+                "answers": len(cut.candidates),
+                "infeasible": cut.infeasible is not None,
+            }
+        )
+    vars(fixed)["analyse"] = analyse
     return {
         "resistors": n_res,
         "search_s": statistics.median(searches),
@@ -158,9 +196,11 @@ def one(args: argparse.Namespace, n_res: int) -> dict[str, object]:
         "proven": proven,
         "design_proven": design_proven,
         "infeasible": infeasible,
-        "rows_scored": rows,
+        "rows_opened": rows,
+        "rows_scored": scored,
         "answers": answers,
-        "peak_rss_mib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+        "peak_rss_mib": peak,
+        "limits": limits,
     }
 
 
@@ -176,6 +216,7 @@ def main() -> None:
     ap.add_argument("--capacitors", type=int, default=2000)
     ap.add_argument("--opamps", type=int, default=200)
     ap.add_argument("--time-limit", type=float, default=5.0)
+    ap.add_argument("--limits", type=float, nargs="*", default=[0.25, 0.5, 1.0, 2.0])
     ap.add_argument("--runs", type=int, default=1)
     ap.add_argument("--seed", type=int, default=0)
     ap.add_argument("--one", type=int, help=argparse.SUPPRESS)
@@ -187,20 +228,23 @@ def main() -> None:
         f"capacitors {args.capacitors}, op amps {args.opamps}, time limit {args.time_limit} s, "
         f"seed {args.seed}, median of {args.runs} run(s)"
     )
-    print(f"{'resistors':>9} {'search':>9} {'design()':>9} {'proven':>7} {'rows':>8} {'RSS':>9}")
+    print(
+        f"{'resistors':>9} {'search':>9} {'design()':>9} {'proven':>7} {'opened':>9} "
+        f"{'scored':>8} {'RSS':>9}"
+    )
     figures = []
     for n in args.sizes:
         cmd = [sys.executable, __file__, "--one", str(n)]
         cmd += ["--capacitors", str(args.capacitors), "--opamps", str(args.opamps)]
         cmd += ["--time-limit", str(args.time_limit), "--runs", str(args.runs)]
-        cmd += ["--seed", str(args.seed)]
+        cmd += ["--seed", str(args.seed), "--limits", *map(str, args.limits)]
         out = subprocess.run(cmd, capture_output=True, text=True, check=True).stdout
         f = json.loads(out.splitlines()[-1])
         figures.append(f)
         note = " (infeasible reported!)" if f["infeasible"] else ""
         print(
             f"{n:>9} {f['search_s'] * 1e3:>7.0f}ms {f['design_s'] * 1e3:>7.0f}ms "
-            f"{'yes' if f['proven'] else 'no':>7} {f['rows_scored']:>8} "
+            f"{'yes' if f['proven'] else 'no':>7} {f['rows_opened']:>9} {f['rows_scored']:>8} "
             f"{f['peak_rss_mib']:>6.0f}MiB{note}"
         )
     if len(figures) >= 2:
@@ -212,6 +256,23 @@ def main() -> None:
             f"fitted exponents over R: search time {b_search:.2f}, design() {b_design:.2f}, "
             f"peak RSS {b_rss:.2f}"
         )
+    if args.limits:
+        print("time limits: design() wall, re-check after the deadline, overrun beyond both")
+        print(
+            f"{'resistors':>9} {'limit':>7} {'wall':>8} {'re-check':>9} {'overrun':>8} "
+            f"{'proven':>7} {'answers':>8} {'infeasible':>10}"
+        )
+        worst = -math.inf
+        for f in figures:
+            for c in f["limits"]:
+                worst = max(worst, c["over_s"] / c["limit_s"])
+                print(
+                    f"{f['resistors']:>9} {c['limit_s']:>6.2f}s {c['wall_s'] * 1e3:>6.0f}ms "
+                    f"{c['recheck_s'] * 1e3:>7.0f}ms {c['over_s'] * 1e3:>+6.0f}ms "
+                    f"{'yes' if c['proven'] else 'no':>7} {c['answers']:>8} "
+                    f"{'YES' if c['infeasible'] else 'no':>10}"
+                )
+        print(f"largest overrun beyond limit and re-check: {worst:+.1%} of the limit")
 
 
 if __name__ == "__main__":

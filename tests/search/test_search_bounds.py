@@ -26,7 +26,11 @@ from tristock.search.bounds import (
     amplitude_bounds,
     claimed,
     overshoot_fraction_cap,
+    p_ceiling,
+    p_floor,
     period_bounds,
+    point_bounds,
+    range_bounds,
     share_p_floor,
     timing_share_floor,
     window,
@@ -188,6 +192,55 @@ def test_window_leaves_out_only_rows_outside_the_band(seed: int, intervals: bool
         assert np.all(above[hi] > t_max[hi])
 
 
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), intervals=st.booleans(), share=st.floats(0.01, 0.4))
+def test_screen_ends_leave_out_only_rows_outside_the_band(
+    seed: int, intervals: bool, share: float
+) -> None:
+    """Brute force over the model: a point whose period is at most t_max has P at most
+    ``p_ceiling`` (wherever that is finite), and a point whose period is at least t_min and
+    whose timing share is at most s has P at least ``p_floor``, at any Ve and levels; and the
+    ceiling is finite wherever a bound is claimed, and never below the window's upper end."""
+    rng = np.random.default_rng(seed)
+    loop, x = random_loops(rng, 2000)
+    if intervals:
+        loop = with_level_intervals(rng, loop)
+    k, p = x["k"], x["p"]
+    pred = full(loop, k, p, rng.uniform(loop.ve_lo, loop.ve_hi), levels_inside(rng, loop))
+    period = np.asarray(pred.period_s)
+    # bands around each point's own period, some ending right at it
+    t_max = period * np.where(rng.random(len(k)) < 0.3, 1.0, 10 ** rng.uniform(0, 1, len(k)))
+    t_min = period * np.where(rng.random(len(k)) < 0.3, 1.0, 10 ** -rng.uniform(0, 1, len(k)))
+    ceiling = p_ceiling(loop, k, t_max)
+    assert np.all(p <= ceiling)
+    ok = claimed(loop, k)
+    assert np.all(np.isfinite(ceiling[ok]))
+    upper = window(loop, k, t_min, t_max).hi
+    assert np.all(ceiling[ok] >= upper[ok])
+    inside = np.asarray(pred.timing_share) <= share
+    floor = p_floor(loop, t_min, share)
+    assert inside.mean() > 0.2
+    assert np.all(p[inside] >= floor[inside])
+
+
+def test_joint_bounds_are_the_separate_ones() -> None:
+    """``point_bounds`` and ``range_bounds`` compute shared timings once: the same numbers as
+    ``period_bounds`` with ``amplitude_bounds`` at one P, and as ``amplitude_bounds`` with
+    ``timing_share_floor`` over a range."""
+    rng = np.random.default_rng(5)
+    loop, x = random_loops(rng, 1000)
+    k, p = x["k"], x["p"]
+    t, a = point_bounds(loop, k, p)
+    separate = (*period_bounds(loop, k, p), *amplitude_bounds(loop, k, p, p))
+    for got, want in zip((*t, *a), separate, strict=True):
+        np.testing.assert_array_equal(got, want)
+    p2 = p * 1.3
+    amp, share = range_bounds(loop, k, p, p2)
+    np.testing.assert_array_equal(amp.lo, amplitude_bounds(loop, k, p, p2).lo)
+    np.testing.assert_array_equal(amp.hi, amplitude_bounds(loop, k, p, p2).hi)
+    np.testing.assert_array_equal(share, timing_share_floor(loop, k, p, p2))
+
+
 def _edge_grid() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(μ, D, L) over the tabulated edge's whole domain and beyond each end (where it is
     continued or clamped), at three times the table's resolution in every axis, for levels
@@ -259,9 +312,9 @@ def test_a_row_outside_its_bounds_withdraws_the_proof(monkeypatch: pytest.Monkey
     )
     assert enumerate_top(build_model(spec, demo), 3, 10.0).proven_optimal
 
-    def too_narrow(loop: StageLoop, k: np.ndarray, p: np.ndarray) -> Bounds:
-        b = period_bounds(loop, k, p)
-        return Bounds(b.lo * 1.01, b.hi * 1.01)
+    def too_narrow(loop: StageLoop, k: np.ndarray, p: np.ndarray) -> tuple[Bounds, Bounds]:
+        b, a = point_bounds(loop, k, p)
+        return Bounds(b.lo * 1.01, b.hi * 1.01), a
 
-    monkeypatch.setattr(search_rows, "period_bounds", too_narrow)
+    monkeypatch.setattr(search_rows, "point_bounds", too_narrow)
     assert not enumerate_top(build_model(spec, demo), 3, 10.0).proven_optimal

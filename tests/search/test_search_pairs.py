@@ -17,10 +17,11 @@ import pytest
 
 from tristock.designs.fixed import design_fixed
 from tristock.examples import demo_catalog_dir, example_spec_path
+from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
 from tristock.search.enumeration import enumerate_top
-from tristock.search.enumeration import product_table as products_of
 from tristock.search.model import build_model
-from tristock.search.pairs import Pairs, PairSource
+from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource
+from tristock.search.products import product_index as products_of
 from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
 
@@ -75,3 +76,54 @@ def test_design_cut_short_never_says_infeasible() -> None:
     result = design_fixed(spec, load_catalog(demo_catalog_dir()), time_limit_s=1e-4)
     assert not result.search.proven_optimal
     assert result.infeasible is None
+
+
+def test_the_ratio_screen_drops_only_pairs_that_fail(demo_model) -> None:  # type: ignore[no-untyped-def]
+    """Reference: every (U1, R1, R2) whose ratio lies in the op amp's ``k_range``, with its
+    window and amplitude and share bounds computed directly (``search.bounds``), no screen:
+    the pairs built must be exactly those it finds able to meet the spec, with the same P
+    ranges (the screen over a wider P range, ``bounds.p_floor``/``p_ceiling``, only saves
+    the root searches of ratios that fail anyway)."""
+    index = products_of(demo_model)
+    everything = PairSource(demo_model, index, math.inf).complete(math.inf)
+    model, res = demo_model, demo_model.resistors
+    spec = model.spec
+    (fa, fb), (aa, ab) = model.band_f, model.band_a
+    t_target = 1.0 / spec.target.target_hz
+    t_min = t_target * math.exp(-fb) * (1 - PERIOD_EDGE)
+    t_max = t_target * math.exp(-fa) * (1 + PERIOD_EDGE)
+    ln_r = res.ln_value
+    want = {}
+    for o in model.opamps:
+        k_lo, k_hi = o.k_range
+        i1, i2 = (x.ravel() for x in np.meshgrid(np.arange(len(res)), np.arange(len(res))))
+        near = (ln_r[i2] >= ln_r[i1] - math.log(k_hi) - 1e-12) & (
+            ln_r[i2] <= ln_r[i1] - math.log(k_lo) + 1e-12
+        )
+        i1, i2 = i1[near], i2[near]
+        k, inv = np.unique(res.value[i1] / res.value[i2], return_inverse=True)
+        loop = model.loops(np.full(len(k), o.index))
+        w = window(loop, k, np.full(len(k), t_min), np.full(len(k), t_max))
+        p_lo = np.maximum(np.maximum(w.lo, k * math.exp(index.ln_min)),
+                          share_p_floor(loop, k, spec.limits.max_timing_share))  # fmt: skip
+        p_hi = np.minimum(w.hi, k * math.exp(index.ln_max))
+        amp = amplitude_bounds(loop, k, p_lo, p_hi)
+        a_t = spec.triangle.amplitude_vpp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ok = (p_lo <= p_hi) & (np.log(amp.hi / a_t) >= aa) & (np.log(amp.lo / a_t) <= ab)
+        ok &= timing_share_floor(loop, k, p_lo, p_hi) <= spec.limits.max_timing_share
+        for n in np.flatnonzero(ok[inv]):
+            want[(o.index, int(i1[n]), int(i2[n]))] = (p_lo[inv[n]], p_hi[inv[n]])
+    built = {
+        (int(u), int(a), int(b)): (lo, hi)
+        for u, a, b, lo, hi in zip(
+            everything.u,
+            everything.i1,
+            everything.i2,
+            everything.p_min,
+            everything.p_max,
+            strict=True,
+        )
+    }
+    assert len(built) > 1000
+    assert built == want

@@ -201,7 +201,8 @@ def design_fixed(
         candidates.append(c)
     infeasible = None
     if not candidates and proven:
-        infeasible = Infeasible(reasons=infeasible_reasons(model, catalog, dropped))
+        reasons = infeasible_reasons(model, catalog, dropped, deadline=deadline)
+        infeasible = Infeasible(reasons=reasons)
     return DesignResult(
         spec=spec,
         candidates=candidates,

@@ -135,15 +135,38 @@ def amplitude_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Bou
     (upper ends, lag areas left out), the smallest with the weakest at the largest P (lower
     ends, whole lags taken off); (M3, M4), claimed where ε ≤ 1 at p_lo (P ≥ k/ωt), else
     (0, inf)."""
-    hi = _timing(loop, k, p_lo, *_strong(loop))
-    lo = _timing(loop, k, p_hi, *_weak(loop))
+    return range_bounds(loop, k, p_lo, p_hi)[0]
+
+
+def range_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> tuple[Bounds, Array]:
+    """``amplitude_bounds`` and ``timing_share_floor`` over [p_lo, p_hi] at once: both take
+    the strongest drives' timing at p_lo and the weakest's at p_hi, computed here once."""
+    strong = _timing(loop, k, p_lo, *_strong(loop))
+    weak = _timing(loop, k, p_hi, *_weak(loop))
+    ok = claimed(loop, k)
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
-    ok = claimed(loop, k) & (np.asarray(p_lo) * wt >= k)
     a = Bounds(
-        k * loop.span_lo + lo.floor_top_v + lo.floor_bottom_v,
-        k * loop.span_hi + hi.reach_top_v + hi.reach_bottom_v,
+        k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
+        k * loop.span_hi + strong.reach_top_v + strong.reach_bottom_v,
     )
-    return _or_unbounded(ok, a)
+    d_min = strong.period_s - strong.ideal_period_s
+    share = np.where(ok, d_min / (weak.ideal_period_s + d_min), 0.0)
+    return _or_unbounded(ok & (np.asarray(p_lo) * wt >= k), a), np.asarray(share)
+
+
+def point_bounds(loop: StageLoop, k: Array, p: Array) -> tuple[Bounds, Bounds]:
+    """``period_bounds(loop, k, p)`` and ``amplitude_bounds(loop, k, p, p)`` at once: both
+    take the strongest and the weakest drives' timing at P, computed here once."""
+    strong = _timing(loop, k, p, *_strong(loop))
+    weak = _timing(loop, k, p, *_weak(loop))
+    ok = claimed(loop, k)
+    wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
+    period = _or_unbounded(ok, Bounds(strong.period_s, weak.period_s))
+    amplitude = Bounds(
+        k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
+        k * loop.span_hi + strong.reach_top_v + strong.reach_bottom_v,
+    )
+    return period, _or_unbounded(ok & (np.asarray(p) * wt >= k), amplitude)
 
 
 def timing_share_floor(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Array:
@@ -152,10 +175,7 @@ def timing_share_floor(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> A
     s = D/(T_i + D) with D = T - T_i = span·(span·k·(RC' - RC)/(a·b) + d_r/a + d_f/b): s rises
     with D and falls with T_i. D is smallest at the smallest P and the strongest drives
     (RC' - RC = 1/ωt is fixed; (M1), (M2)), T_i largest at the largest P and the weakest."""
-    strong = _timing(loop, k, p_lo, *_strong(loop))
-    weak = _timing(loop, k, p_hi, *_weak(loop))
-    d_min = strong.period_s - strong.ideal_period_s
-    return np.asarray(np.where(claimed(loop, k), d_min / (weak.ideal_period_s + d_min), 0.0))
+    return range_bounds(loop, k, p_lo, p_hi)[1]
 
 
 def share_p_floor(loop: StageLoop, k: Array, max_share: float) -> Array:
@@ -173,6 +193,35 @@ def window(loop: StageLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     T_hi(P_a) = t_min and T_lo(P_b) = t_max (``lowest_p``, ``highest_p``).
     """
     return Bounds(lowest_p(loop, k, t_min), highest_p(loop, k, t_max))
+
+
+def p_ceiling(loop: StageLoop, k: Array, t_max: Array | float) -> Array:
+    """A P above which no row's period is at most ``t_max``, found without a root search (an
+    upper end for ``window``'s, cheap enough to screen many ratios first).
+
+    The ideal part of the period, T_i = span²·P/(a·b), is smallest with the strongest drives
+    and the smallest span, where it reaches t_max at P_i = t_max·a·b/span²; the edges' delays
+    lengthen the period, so normally T_lo(P_i·(1 + 1e-6)) > t_max as computed, and then
+    by (M1) every larger P is out. Where that does not hold (or no bound is claimed): inf."""
+    span, a, b = _strong(loop)
+    p = np.asarray(t_max * a * b / (span * span) * (1.0 + 1e-6), dtype=float)
+    p = np.broadcast_to(p, np.shape(k))
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        period = _timing(loop, k, p, span, a, b).period_s
+        verified = claimed(loop, k) & (period > t_max)
+    return np.asarray(np.where(verified, p, np.inf), dtype=float)
+
+
+def p_floor(loop: StageLoop, t_min: Array | float, max_share: float) -> Array:
+    """A P below which no row with its period at least ``t_min`` and its timing share at
+    most s exists (a lower end for ``window``'s, without a root search).
+
+    The share is 1 - T_i/T, so T_i ≥ (1 - s)·T ≥ (1 - s)·t_min; and T_i = span²·P/(a·b) is
+    largest with the weakest drives and the largest span, so P ≥ (1 - s)·t_min·a·b/span²
+    there (narrowed by 1e-6 for rounding). No property of the comparator edge is used."""
+    a, b = loop.weak()
+    span = loop.span_hi
+    return np.asarray((1.0 - max_share) * t_min * a * b / (span * span) * (1.0 - 1e-6))
 
 
 def lowest_p(loop: StageLoop, k: Array, t_min: Array) -> Array:

@@ -7,10 +7,11 @@ catalog offers, and the nearest it comes.
 from __future__ import annotations
 
 import math
+import time
 from collections import Counter
 
 from tristock.circuits.topology import Topology
-from tristock.search.enumeration import enumerate_top
+from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import SearchModel, build_model
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -18,6 +19,32 @@ from tristock.stock.units import format_value
 
 #: The largest timing share the model itself allows (``spec.LimitsSpec.max_timing_share``).
 MODEL_TIMING_LIMIT = 0.4
+#: The most time each search behind a reason may take (s).
+REASON_SEARCH_S = 2.0
+#: The reason given when the deadline stops the searches behind the reasons.
+UNSETTLED = (
+    "no combination meets the spec (the search proved it), but the time limit ran out "
+    "before the constraint that binds was found: a longer time limit names it"
+)
+
+
+class _Searches:
+    """Top-1 searches behind the reasons, each at most REASON_SEARCH_S and all within the
+    deadline (None: no deadline). ``unsettled`` tells a search that found nothing because
+    the time ran out, from which no reason may be drawn."""
+
+    def __init__(self, deadline: float | None) -> None:
+        self.deadline = deadline
+
+    def first(self, model: SearchModel, *, coupled: bool) -> EngineResult:
+        limit = REASON_SEARCH_S
+        if self.deadline is not None:
+            limit = min(limit, max(self.deadline - time.perf_counter(), 0.0))
+        return enumerate_top(model, 1, limit, coupled=coupled)
+
+    @staticmethod
+    def unsettled(found: EngineResult) -> bool:
+        return len(found.rows) == 0 and not found.proven_optimal
 
 
 def _series_text(model: SearchModel) -> str:
@@ -32,7 +59,9 @@ def opamp_exclusions(model: SearchModel) -> str:
     return "; ".join(clauses)
 
 
-def _timing_reason(spec: Spec, catalog: Catalog, topology: Topology) -> str | None:
+def _timing_reason(
+    spec: Spec, catalog: Catalog, searches: _Searches, topology: Topology
+) -> str | None:
     """The reason when only the timing-share limit stands in the way: designs meet the bands
     once op-amp timing may set up to 40 % of the period (the model's own limit)."""
     lim = spec.limits
@@ -41,7 +70,7 @@ def _timing_reason(spec: Spec, catalog: Catalog, topology: Topology) -> str | No
     loose = spec.model_copy(
         update={"limits": lim.model_copy(update={"max_timing_share": MODEL_TIMING_LIMIT})}
     )
-    found = enumerate_top(build_model(loose, catalog, topology), 1, 2.0, coupled=False)
+    found = searches.first(build_model(loose, catalog, topology), coupled=False)
     if len(found.rows) == 0:
         return None
     return (
@@ -52,8 +81,13 @@ def _timing_reason(spec: Spec, catalog: Catalog, topology: Topology) -> str | No
     )
 
 
-def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -> list[str]:
-    """Why ``model`` has no candidate, most basic cause first."""
+def infeasible_reasons(
+    model: SearchModel, catalog: Catalog, dropped: int = 0, *, deadline: float | None = None
+) -> list[str]:
+    """Why ``model`` has no candidate, most basic cause first. The searches behind the
+    reasons stop at ``deadline`` (``time.perf_counter()``; None: none); a reason they could
+    not settle in time is not given (``UNSETTLED`` says so instead)."""
+    searches = _Searches(deadline)
     spec = model.spec
     lim = spec.limits
     boards = spec.build.boards
@@ -119,9 +153,11 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
 
     nominal = spec.model_copy(update={"limits": lim.model_copy(update={"guarantee": "nominal"})})
     topology = model.topology
-    relaxed = enumerate_top(build_model(nominal, catalog, topology), 1, 2.0, coupled=False)
+    relaxed = searches.first(build_model(nominal, catalog, topology), coupled=False)
+    if searches.unsettled(relaxed):
+        return [UNSETTLED]
     if len(relaxed.rows) == 0:
-        timing = _timing_reason(nominal, catalog, topology)
+        timing = _timing_reason(nominal, catalog, searches, topology)
         if timing:
             return [timing]
         return [
@@ -131,7 +167,9 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
             " with any usable op amp and R1/R2 pair"
         ]
     if lim.guarantee != "nominal":
-        strict = enumerate_top(model, 1, 2.0, coupled=False)
+        strict = searches.first(model, coupled=False)
+        if searches.unsettled(strict):
+            return [UNSETTLED]
         if len(strict.rows) == 0:
             what = (
                 "at every corner of tolerance, rails and temperature"
@@ -142,12 +180,14 @@ def infeasible_reasons(model: SearchModel, catalog: Catalog, dropped: int = 0) -
                 f"combinations meet the nominal bands, but none holds them {what}; "
                 "widen the bands, choose tighter parts or relax limits.guarantee"
             ]
-    coupled = enumerate_top(model, 1, 2.0, coupled=True)
+    coupled = searches.first(model, coupled=True)
+    if searches.unsettled(coupled):
+        return [UNSETTLED]
     if len(coupled.rows) == 0:
         by_cost = nominal.model_copy(
             update={"ranking": nominal.ranking.model_copy(update={"by": "cost"})}
         )
-        cheapest_row = enumerate_top(build_model(by_cost, catalog, topology), 1, 2.0, coupled=False)
+        cheapest_row = searches.first(build_model(by_cost, catalog, topology), coupled=False)
         cheapest = float(cheapest_row.rows.cost.min()) if len(cheapest_row.rows) else math.nan
         out = []
         if lim.max_cost is not None:

@@ -77,8 +77,10 @@ class OpAmpTerms:
     k = R1/R2 a row can meet the spec with (see ``_k_range``). ``part``, ``model``, ``vh``,
     ``vl`` and ``target`` are the op-amp Schmitt loop's: its op amp U1, the op amp's terms,
     the square levels, and the constants of the loop linearised at the target, None where
-    the full model cannot meet the target exactly or the topology is another (the trimmed and
-    tuned searches, specific to that loop, use them; ``target_note`` says why not).
+    the full model cannot meet the target exactly or the topology is another (the
+    infeasibility reasons use them; ``target_note`` says why not). The target point is
+    found on first use (a Newton search of about twenty full-model evaluations per stage):
+    the engines never need it, so a big catalog's model does not wait for it.
     """
 
     index: int
@@ -88,9 +90,9 @@ class OpAmpTerms:
     vl: float
     loop: StageLoop
     k_range: tuple[float, float]
-    target: TargetPoint | None
-    target_note: str = ""
     stage: StageOption | None = None
+    #: The spec the target point is taken for (None: no target point).
+    spec: Spec | None = None
 
     @property
     def option(self) -> StageOption:
@@ -98,6 +100,22 @@ class OpAmpTerms:
         if self.stage is None:
             raise ValueError("stage: this OpAmpTerms was not built from a stage option")
         return self.stage
+
+    @cached_property
+    def _target_found(self) -> tuple[TargetPoint | None, str]:
+        if not isinstance(self.stage, OpAmpStage) or self.spec is None:
+            return None, "the trimmed and tuned searches model the op-amp Schmitt loop only"
+        return target_point(self.part, self.spec, self.vh, self.vl)
+
+    @property
+    def target(self) -> TargetPoint | None:
+        """The loop linearised at the target (``search.targetpoint``), or None."""
+        return self._target_found[0]
+
+    @property
+    def target_note(self) -> str:
+        """Why ``target`` is None ("" when it is not)."""
+        return self._target_found[1]
 
 
 @dataclass
@@ -156,12 +174,16 @@ class SearchModel:
         mask = self.allowed.get(designator)
         return np.ones(size, dtype=bool) if mask is None else mask
 
-    def loops(self, u: NDArray[np.int64]) -> StageLoop:
-        """The stages' loop data, one entry per element of ``u``."""
-        table = StageLoop(
+    @cached_property
+    def loop_table(self) -> StageLoop:
+        """The stages' loop data, one entry per stage option."""
+        return StageLoop(
             *(np.array([getattr(o.loop, f) for o in self.opamps]) for f in StageLoop._fields)
         )
-        return table.take(u)
+
+    def loops(self, u: NDArray[np.int64]) -> StageLoop:
+        """The stages' loop data, one entry per element of ``u``."""
+        return self.loop_table.take(u)
 
     # ---- the spec in the model's terms ---------------------------------------------------
     @cached_property
@@ -227,6 +249,21 @@ class SearchModel:
         if self.mode == "cost":
             return round(stage.cost_per_board / COST_RESOLUTION)
         return 0
+
+    @cached_property
+    def stage_terms(self) -> NDArray[np.int64]:
+        """``opamp_term`` of every stage option, in the order of ``opamps``."""
+        return np.array([self.opamp_term(o) for o in self.opamps], dtype=np.int64)
+
+    @cached_property
+    def stage_costs(self) -> NDArray[np.float64]:
+        """Cost per board of every stage option, in the order of ``opamps``."""
+        return np.array([o.option.cost_per_board for o in self.opamps], dtype=np.float64)
+
+    @cached_property
+    def stage_lines(self) -> NDArray[np.int64]:
+        """BOM lines of every stage option, in the order of ``opamps``."""
+        return np.array([o.option.lines for o in self.opamps], dtype=np.int64)
 
     def shared_line_credit(self) -> int:
         """Score returned per BOM line saved when one stock code fills two positions."""
@@ -294,20 +331,13 @@ def _k_range(spec: Spec, loop: StageLoop) -> tuple[float, float]:
 
 
 def _terms(stage: StageOption, spec: Spec) -> OpAmpTerms:
-    """The search's terms of one stage option (the target point for an op-amp stage)."""
+    """The search's terms of one stage option (its target point found on first use)."""
     vh, vl = stage.levels
     k_range = _k_range(spec, stage.loop)
-    if isinstance(stage, OpAmpStage):
-        point, note = target_point(stage.part, spec, vh, vl)
-        return OpAmpTerms(
-            stage.index, stage.part, stage.model, vh, vl, stage.loop, k_range, point, note, stage
-        )
-    u1 = stage.parts["U1"]
+    u1 = stage.part if isinstance(stage, OpAmpStage) else stage.parts["U1"]
     assert isinstance(u1, OpAmp)
-    note = "the trimmed and tuned searches model the op-amp Schmitt loop only"
-    return OpAmpTerms(
-        stage.index, u1, OpAmpModel.from_part(u1), vh, vl, stage.loop, k_range, None, note, stage
-    )
+    model = stage.model if isinstance(stage, OpAmpStage) else OpAmpModel.from_part(u1)
+    return OpAmpTerms(stage.index, u1, model, vh, vl, stage.loop, k_range, stage, spec)
 
 
 def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:

@@ -27,24 +27,22 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
+from tristock.circuits.searchform import StageLoop
+from tristock.search.bounds import (
+    p_ceiling,
+    p_floor,
+    range_bounds,
+    share_p_floor,
+    window,
+)
 from tristock.search.guarantee import pair_limits
 from tristock.search.model import OpAmpTerms, SearchModel
+from tristock.search.products import ProductIndex, index_ranges
 
 #: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
 CHUNK_CANDIDATES = 1 << 20
 #: Ratios whose bounds are computed in one call, between deadline checks.
-RATIO_BATCH = 8192
-
-
-@dataclass
-class Products:
-    """Every (R3, C1) sorted by ln(R3·C1), with its score term."""
-
-    ln: NDArray[np.float64]
-    i3: NDArray[np.int64]
-    j: NDArray[np.int64]
-    term: NDArray[np.int64]
+RATIO_BATCH = 2048
 
 
 @dataclass
@@ -82,16 +80,6 @@ def no_pairs() -> Pairs:
     return Pairs(z, z, z, f, f, f, z, z)
 
 
-def index_ranges(
-    lo: NDArray[np.int64], hi: NDArray[np.int64]
-) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """Flatten index ranges [lo[n], hi[n]): (n for each element, the element's index)."""
-    counts = np.maximum(hi - lo, 0)
-    which = np.repeat(np.arange(len(counts), dtype=np.int64), counts)
-    offsets = np.repeat(np.cumsum(counts) - counts, counts)
-    return which, (np.repeat(lo, counts) + np.arange(len(which)) - offsets).astype(np.int64)
-
-
 @dataclass
 class _RatioFigures:
     """Per op amp, what each distinct k = R1/R2 allows (sorted by k)."""
@@ -108,7 +96,7 @@ class _RatioFigures:
 class PairSource:
     """The pairs of one search model, built on demand (module docstring)."""
 
-    def __init__(self, model: SearchModel, products: Products, deadline: float) -> None:
+    def __init__(self, model: SearchModel, products: ProductIndex, deadline: float) -> None:
         self.model = model
         self.products = products
         self.deadline = deadline
@@ -116,11 +104,11 @@ class PairSource:
         res = model.resistors
         self.r_term = model.resistor_term(np.arange(len(res)))
         self.credit = model.shared_line_credit()
-        self.floor = int(products.term.min()) - self.credit if len(products.term) else 0
+        self.floor = 0 if products.empty else products.min_term - self.credit
         use_u1 = model.allows("U1", len(model.opamps))
         self.use_r1 = model.allows("R1", len(res))
         self.use_r2 = model.allows("R2", len(res))
-        usable = len(products.ln) > 0 and bool(np.any(self.use_r1)) and bool(np.any(self.use_r2))
+        usable = not products.empty and bool(np.any(self.use_r1)) and bool(np.any(self.use_r2))
         self.opamps: list[tuple[int, OpAmpTerms]] = [
             (pos, o) for pos, o in enumerate(model.opamps) if usable and use_u1[o.index]
         ]
@@ -149,7 +137,7 @@ class PairSource:
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
         line credit a row can gain from repeating its resistor codes."""
-        return self.model.opamp_term(o) - self.model.stage_line_credit(o)
+        return int(self.model.stage_terms[o.index]) - self.model.stage_line_credit(o)
 
     @property
     def everything(self) -> bool:
@@ -172,7 +160,12 @@ class PairSource:
         return mine.take(order)
 
     def _build(self, x: float) -> None:
-        todo = [(pos, o, chunk) for pos, o in self.opamps for chunk in self._candidates(o, x)]
+        todo = []
+        for pos, o in self.opamps:
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                return
+            todo += [(pos, o, chunk) for chunk in self._candidates(o, x)]
         if not self._learn_ratios(todo):
             return
         parts = [self.pairs]
@@ -276,28 +269,57 @@ class PairSource:
         return _RatioFigures(*(getattr(known, n)[at] for n in _FIELDS))
 
     def _compute_ratios(self, pos: NDArray[np.int64], uk: NDArray[np.float64]) -> _RatioFigures:
-        """The window, amplitude and share floors of ratio ``uk[n]`` on op amp ``pos[n]``."""
-        model, products = self.model, self.products
+        """The window, amplitude and share floors of ratio ``uk[n]`` on op amp ``pos[n]``.
+
+        A screen comes first: every row's P lies in [floor, ceiling] (the products' range,
+        the timing share's floors ``bounds.share_p_floor`` and ``bounds.p_floor``, and
+        ``bounds.p_ceiling``), and the amplitude and share bounds over that range, two
+        timings per ratio, already rule most ratios out; only the others get their window
+        (a root search at each end) and their figures. A ratio ruled out is not ``ok``."""
+        model = self.model
         spec = model.spec
+        ln_min, ln_max = self.products.ln_min, self.products.ln_max
         (fa, fb), (aa, ab) = model.band_f, model.band_a
         t_target = 1.0 / spec.target.target_hz
-        t_min = t_target * np.exp(-np.array(fb)) * (1 - PERIOD_EDGE)
-        t_max = t_target * np.exp(-np.array(fa)) * (1 + PERIOD_EDGE)
+        t_min = float(t_target * np.exp(-np.array(fb)) * (1 - PERIOD_EDGE))
+        t_max = float(t_target * np.exp(-np.array(fa)) * (1 + PERIOD_EDGE))
         loop = model.loops(self.indices[pos])
-        w = window(loop, uk, np.full(len(uk), t_min), np.full(len(uk), t_max))
-        # P outside what the product table can make is no use either, nor P below the
+        floor = np.maximum(
+            uk * math.exp(ln_min), share_p_floor(loop, uk, spec.limits.max_timing_share)
+        )
+        screen_floor = np.maximum(floor, p_floor(loop, t_min, spec.limits.max_timing_share))
+        ceiling = np.minimum(uk * math.exp(ln_max), p_ceiling(loop, uk, t_max))
+        e_a_lo, e_a_hi, share = self._amplitude_logs(loop, uk, screen_floor, ceiling)
+        with np.errstate(invalid="ignore"):
+            out = (screen_floor > ceiling) | (e_a_hi < aa) | (e_a_lo > ab)
+            out |= share > spec.limits.max_timing_share
+        nan = np.full(len(uk), np.nan)
+        fig = _RatioFigures(uk, nan, nan.copy(), nan.copy(), nan.copy(), nan.copy(), ~out)
+        n = np.flatnonzero(~out)
+        if len(n) == 0:
+            return fig
+        loop, k = loop.take(n), uk[n]
+        w = window(loop, k, np.full(len(k), t_min), np.full(len(k), t_max))
+        # P outside what the products can make is no use either, nor P below the
         # timing-share limit's floor.
-        p_lo = np.maximum(w.lo, uk * math.exp(products.ln[0]))
-        p_lo = np.maximum(p_lo, share_p_floor(loop, uk, spec.limits.max_timing_share))
-        p_hi = np.minimum(w.hi, uk * math.exp(products.ln[-1]))
-        amp = amplitude_bounds(loop, uk, p_lo, p_hi)
-        share = timing_share_floor(loop, uk, p_lo, p_hi)
-        a_t = spec.triangle.amplitude_vpp
-        with np.errstate(invalid="ignore", divide="ignore"):
-            e_a_lo, e_a_hi = np.log(amp.lo / a_t), np.log(amp.hi / a_t)
-        ok = (p_lo <= p_hi) & (e_a_hi >= aa) & (e_a_lo <= ab)
+        p_lo, p_hi = np.maximum(w.lo, floor[n]), np.minimum(w.hi, uk[n] * math.exp(ln_max))
+        lo, hi, share = self._amplitude_logs(loop, k, p_lo, p_hi)
+        ok = (p_lo <= p_hi) & (hi >= aa) & (lo <= ab)
         ok &= share <= spec.limits.max_timing_share
-        return _RatioFigures(uk, p_lo, p_hi, share, e_a_lo, e_a_hi, ok)
+        for name, value in zip(_FIELDS[1:], (p_lo, p_hi, share, lo, hi, ok), strict=True):
+            getattr(fig, name)[n] = value
+        return fig
+
+    def _amplitude_logs(
+        self, loop: StageLoop, k: NDArray[np.float64], p_lo: NDArray[np.float64],
+        p_hi: NDArray[np.float64],
+    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:  # fmt: skip
+        """ln(A/A_target) at the ends of the amplitude bounds over [p_lo, p_hi], and the
+        floor of the timing share there (``bounds.range_bounds``)."""
+        amp, share = range_bounds(loop, k, p_lo, p_hi)
+        a_t = self.model.spec.triangle.amplitude_vpp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.log(amp.lo / a_t), np.log(amp.hi / a_t), share
 
     def _figures(
         self, pos: int, o: OpAmpTerms, i1: NDArray[np.int64], i2: NDArray[np.int64]

@@ -27,7 +27,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.searchform import SearchForm, StageOption
-from tristock.search.bounds import amplitude_bounds, period_bounds
+from tristock.search.bounds import point_bounds
 from tristock.search.guarantee import (
     FAST,
     PROBES,
@@ -210,13 +210,39 @@ def probe_extremes(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64
     return np.stack(out, axis=1)
 
 
+def row_cost(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> F64:
+    """Cost per board of each row: the stage option's and every part's."""
+    res, cap = model.resistors, model.capacitors
+    u_cost = model.stage_costs[u]
+    return np.asarray(u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j])
+
+
+def coupled_ok(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) -> NDArray[np.bool_]:
+    """The constraints that couple positions, which need no circuit model: stock for
+    ``boards`` pieces per position a stock code fills (the stage's resistors, R5, included)
+    and the cost cap ``limits.max_cost``."""
+    res, boards = model.resistors, model.boards
+    same12, same13, same23 = i1 == i2, i1 == i3, i2 == i3
+    stage_res, stage_pieces = (x[u] for x in model.stage_resistors)  # (rows, m)
+
+    def stage_uses(i: I64) -> I64:
+        return np.asarray((stage_pieces * (stage_res == i[:, None])).sum(axis=1))
+
+    ok = res.stock[i1] >= boards * (1 + same12 + same13 + stage_uses(i1))
+    ok &= res.stock[i2] >= boards * (1 + same12 + same23 + stage_uses(i2))
+    ok &= res.stock[i3] >= boards * (1 + same13 + same23 + stage_uses(i3))
+    max_cost = model.spec.limits.max_cost
+    if max_cost is not None:
+        ok &= row_cost(model, u, i1, i2, i3, j) <= max_cost + 1e-12
+    return np.asarray(ok)
+
+
 def evaluate(
     model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64, *, coupled: bool = True
 ) -> Rows:
     """Score combinations with the full model and keep those the spec accepts (module
     docstring). ``coupled=False`` leaves stock and cost to the CP-SAT engine."""
     spec, res, cap = model.spec, model.resistors, model.capacitors
-    boards = model.boards
     rp = RowPrediction.nominal(
         model, u, (res.value[i1], res.value[i2], res.value[i3], cap.value[j])
     )
@@ -226,34 +252,18 @@ def evaluate(
     share = rp.timing_share
     ok = rp.accepted(spec, cap.voltage[j])
 
-    # Stock: every position a stock code fills takes one piece per board, the stage's
-    # resistors (R5) included; a code the stage shares with R1..R3 is one BOM line.
-    same12, same13, same23 = i1 == i2, i1 == i3, i2 == i3
-    stage_res, stage_pieces = (x[u] for x in model.stage_resistors)  # (rows, m)
-
-    def stage_uses(i: I64) -> I64:
-        return np.asarray((stage_pieces * (stage_res == i[:, None])).sum(axis=1))
-
     if coupled:
-        ok &= res.stock[i1] >= boards * (1 + same12 + same13 + stage_uses(i1))
-        ok &= res.stock[i2] >= boards * (1 + same12 + same23 + stage_uses(i2))
-        ok &= res.stock[i3] >= boards * (1 + same13 + same23 + stage_uses(i3))
+        ok &= coupled_ok(model, u, i1, i2, i3, j)
+    # a code the stage shares with R1..R3 is one BOM line
+    same12, same13, same23 = i1 == i2, i1 == i3, i2 == i3
+    stage_res = model.stage_resistors[0][u]  # (rows, m)
     resistor_lines = (1 + ~same12 + (~same13 & ~same23)).astype(np.int64)
     shared_with_stage = (
         (stage_res >= 0)
         & ((stage_res == i1[:, None]) | (stage_res == i2[:, None]) | (stage_res == i3[:, None]))
     ).sum(axis=1)
-    stages = model.stages
-    lines = (
-        np.array([st.lines for st in stages], dtype=np.int64)[u]
-        + 1
-        + resistor_lines
-        - shared_with_stage
-    )
-    u_cost = np.array([st.cost_per_board for st in stages])[u]
-    cost = u_cost + res.cost[i1] + res.cost[i2] + res.cost[i3] + cap.cost[j]
-    if coupled and spec.limits.max_cost is not None:
-        ok &= cost <= spec.limits.max_cost + 1e-12
+    lines = model.stage_lines[u] + 1 + resistor_lines - shared_with_stage
+    cost = row_cost(model, u, i1, i2, i3, j)
 
     _guard_bounds(model, u, rp)
     keep = np.flatnonzero(ok)
@@ -267,7 +277,7 @@ def evaluate(
         inside &= np.all((pa >= aa) & (pa <= ab), axis=1)
         keep = keep[inside]
 
-    u_term = np.array([model.opamp_term(o) for o in model.opamps], dtype=np.int64)[u]
+    u_term = model.stage_terms[u]
     primary = (
         u_term
         + model.resistor_term(i1)
@@ -306,8 +316,7 @@ def _guard_bounds(model: SearchModel, u: I64, rp: RowPrediction) -> None:
         return
     loop = model.loops(u[n])
     k, p = rp.k[n], rp.p[n]
-    t = period_bounds(loop, k, p)
-    a = amplitude_bounds(loop, k, p, p)
+    t, a = point_bounds(loop, k, p)
     period = np.asarray(rp.pred.period_s)[n]
     amp = np.asarray(rp.pred.amplitude_vpp)[n]
     slack = 1e-9
