@@ -13,7 +13,10 @@ from typing import Any, Literal, TypeAlias
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from tristock.circuits import TOPOLOGIES
+from tristock.circuits.board import AnyBoard
+from tristock.export.designfile import design_for
 from tristock.spec.model import RankBy, Spec
+from tristock.stock.catalog import Catalog
 from tristock.stock.parts import Capacitor, OpAmp, Pot, Resistor
 
 from .settings import MAX_PERIODS, MAX_POINTS, MAX_SAMPLES, MAX_STOCK, MAX_TOP
@@ -71,6 +74,17 @@ class DesignBody(_Body):
         description="the circuit (" + ", ".join(TOPOLOGIES) + "); default: the spec's "
         "[circuit], else opamp_schmitt. A DESIGN file names it when it is another",
     )
+
+    def board(self, catalog: Catalog) -> AnyBoard:
+        """The board this body names on ``catalog`` (``export.designfile.design_for``)."""
+        return design_for(
+            self.spec,
+            self.parts,
+            catalog,
+            wiper=self.wiper,
+            selected=self.range,
+            topology=self.topology,
+        )
 
 
 class AnalyseRequest(DesignBody):

@@ -6,7 +6,6 @@ from __future__ import annotations
 from fastapi import APIRouter
 
 from tristock.circuits.board import Design
-from tristock.export.designfile import design_for
 from tristock.report.board import analysis_report, simulation_report
 from tristock.simulate import SimulationError
 
@@ -45,14 +44,7 @@ async def post_analyse(
 ) -> RenderedJSON:
     if body.samples > settings.max_samples:
         raise FieldProblem([(["body", "samples"], f"at most {settings.max_samples}")], "too_large")
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         return RenderedJSON(await slots.run(_analysed, body, d))
 
@@ -70,14 +62,7 @@ async def post_analyse(
 async def post_simulate(
     body: SimulateRequest, catalog: CatalogDep, slots: SlotsDep
 ) -> RenderedJSON:
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         try:
             return RenderedJSON(await slots.run(_simulated, body, d))

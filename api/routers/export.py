@@ -11,7 +11,6 @@ from pydantic import Field
 
 from tristock.circuits.board import Design
 from tristock.export.bom import bill_of_materials, bom_csv
-from tristock.export.designfile import design_for
 from tristock.export.spice import spice_netlist
 from tristock.spec.model import Spec
 
@@ -62,14 +61,7 @@ def _bom(design: Design, boards: int) -> str:
     "a total row.",
 )
 async def post_bom(body: BomRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         text = await slots.run(_bom, d, body.boards or body.spec.build.boards)
     return Response(text.encode("utf-8"), media_type="text/csv; charset=utf-8")
@@ -91,14 +83,7 @@ async def post_bom(body: BomRequest, catalog: CatalogDep, slots: SlotsDep) -> Re
     "their `wiper` and `range` (the pot's divider as the board has it; no `corner`).",
 )
 async def post_spice(body: SpiceRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         text = await slots.run(_netlist, body.spec, d, body.corner)
     return Response(text.encode("utf-8"), media_type="text/plain; charset=utf-8")

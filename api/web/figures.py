@@ -17,7 +17,6 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from tristock.circuits.board import Design
 from tristock.designs.results import SavedDesign, TuningOut
-from tristock.export.designfile import design_for
 from tristock.export.saving import design_document, toml_text
 from tristock.report.figures import dial_law_svg, histograms_svg, waveform_svg
 from tristock.simulate import SimulationError
@@ -71,14 +70,7 @@ def _histograms(body: AnalyseRequest, design: Design) -> str:
 
 @router.post("/figures/waveform.svg")
 async def waveform(body: DesignBody, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         try:
             return _svg(await slots.run(_waveform, body.spec, d))
@@ -88,14 +80,7 @@ async def waveform(body: DesignBody, catalog: CatalogDep, slots: SlotsDep) -> Re
 
 @router.post("/figures/histograms.svg")
 async def histograms(body: AnalyseRequest, catalog: CatalogDep, slots: SlotsDep) -> Response:
-    d = design_for(
-        body.spec,
-        body.parts,
-        catalog,
-        wiper=body.wiper,
-        selected=body.range,
-        topology=body.topology,
-    )
+    d = body.board(catalog)
     with FieldProblem.from_value_errors(["body"]):
         return _svg(await slots.run(_histograms, body, d))
 
