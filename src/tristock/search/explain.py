@@ -52,13 +52,6 @@ def _series_text(model: SearchModel) -> str:
     return "/".join(names) if names else "any series"
 
 
-def opamp_exclusions(model: SearchModel) -> str:
-    """Why each op amp was left out, or cannot meet the target exactly, one clause per part."""
-    clauses = [f"{e.part_id}: {e.reason}" for e in model.exclusions if e.designator == "U1"]
-    clauses += [f"{o.part.id}: {o.target_note}" for o in model.opamps if o.target is None]
-    return "; ".join(clauses)
-
-
 def _timing_reason(
     spec: Spec, catalog: Catalog, searches: _Searches, topology: Topology
 ) -> str | None:
