@@ -146,3 +146,26 @@ def run_lines(
         f".meas tran vtmin MIN v(vt) FROM={td!r} TO={t_stop!r}",
         ".end",
     ]
+
+
+def gm_integrator_lines(gbw_hz: float, slew_v_per_s: float, aol: float, v_ref: float) -> list[str]:
+    """The integrator's amplifier driving node ``vt`` from ``ref1`` - ``inm``: a VCVS of gain
+    1e6 (``gbw_hz`` inf), or a single-pole gm stage into an integrating node (GBW = GM/(2 pi
+    CN), AOL = GM*RN, optional tanh slew limit SR = IMAX/CN) behind a unity buffer."""
+    if math.isinf(gbw_hz):
+        return ["E1 vt 0 ref1 inm 1e6"]
+    cn = 1e-9
+    gm = 2.0 * math.pi * gbw_hz * cn
+    rn = aol / gm
+    if math.isinf(slew_v_per_s):
+        stage = f"Bg1 0 n1 I = {gm!r}*(v(ref1)-v(inm))"
+    else:
+        imax = slew_v_per_s * cn
+        stage = f"Bg1 0 n1 I = {imax!r}*tanh({gm / imax!r}*(v(ref1)-v(inm)))"
+    return [
+        "* single-pole integrator amplifier (gm stage into CN, AOL = GM*RN), buffered",
+        stage,
+        f"Cn1 n1 0 {cn!r} IC={v_ref!r}",
+        f"Rn1 n1 ref {rn!r}",
+        "E1 vt 0 n1 0 1",
+    ]

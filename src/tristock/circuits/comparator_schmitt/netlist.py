@@ -25,6 +25,7 @@ import math
 from dataclasses import dataclass
 
 from tristock.circuits.comparator_schmitt.point import ComparatorOscillator
+from tristock.circuits.spicelines import gm_integrator_lines
 from tristock.stock.comparators import EDGE_SHARE, edge_start_s
 
 #: Measurements every run reports (absolute voltages, s, fraction).
@@ -74,23 +75,8 @@ class ComparatorCase:
 
 
 def _integrator_lines(case: ComparatorCase) -> list[str]:
-    if math.isinf(case.integrator_gbw_hz):
-        return ["E1 vt 0 ref1 inm 1e6"]
-    cn = 1e-9
-    gm = 2.0 * math.pi * case.integrator_gbw_hz * cn
-    rn = case.aol / gm
-    if math.isinf(case.integrator_slew):
-        stage = f"Bg1 0 n1 I = {gm!r}*(v(ref1)-v(inm))"
-    else:
-        imax = case.integrator_slew * cn
-        stage = f"Bg1 0 n1 I = {imax!r}*tanh({gm / imax!r}*(v(ref1)-v(inm)))"
-    return [
-        "* U1: single-pole integrator amplifier (gm stage into CN, AOL = GM*RN), buffered",
-        stage,
-        f"Cn1 n1 0 {cn!r} IC={case.v_ref!r}",
-        f"Rn1 n1 ref {rn!r}",
-        "E1 vt 0 n1 0 1",
-    ]
+    """U1's integrator amplifier (``spicelines.gm_integrator_lines``)."""
+    return gm_integrator_lines(case.integrator_gbw_hz, case.integrator_slew, case.aol, case.v_ref)
 
 
 def _comparator_lines(case: ComparatorCase) -> list[str]:

@@ -30,6 +30,7 @@ from typing import Any, Literal
 
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import square_levels
+from tristock.circuits.spicelines import gm_integrator_lines
 
 Comparator = Literal["ideal", "slew", "macro"]
 
@@ -183,26 +184,8 @@ def _comparator_lines(case: SimCase, vmid: float, vamp: float) -> list[str]:
 
 
 def _integrator_lines(case: SimCase) -> list[str]:
-    """The integrator's amplifier: a VCVS of gain 1e6, or (finite ``integrator_gbw_hz``) a
-    single-pole gm stage into an integrating node (GBW = GM/(2 pi CN), AOL = GM*RN, optional
-    tanh slew limit SR = IMAX/CN, soft clamp at the square's levels) behind a unity buffer."""
-    if math.isinf(case.integrator_gbw_hz):
-        return ["E1 vt 0 ref1 inm 1e6"]
-    cn = 1e-9
-    gm = 2.0 * math.pi * case.integrator_gbw_hz * cn
-    rn = case.aol / gm
-    if math.isinf(case.integrator_slew):
-        stage = f"Bg1 0 n1 I = {gm!r}*(v(ref1)-v(inm))"
-    else:
-        imax = case.integrator_slew * cn
-        stage = f"Bg1 0 n1 I = {imax!r}*tanh({gm / imax!r}*(v(ref1)-v(inm)))"
-    return [
-        "* single-pole integrator amplifier (gm stage into CN, AOL = GM*RN), buffered",
-        stage,
-        f"Cn1 n1 0 {cn!r} IC={case.v_ref!r}",
-        f"Rn1 n1 ref {rn!r}",
-        "E1 vt 0 n1 0 1",
-    ]
+    """U1's integrator amplifier (``spicelines.gm_integrator_lines``)."""
+    return gm_integrator_lines(case.integrator_gbw_hz, case.integrator_slew, case.aol, case.v_ref)
 
 
 def netlist(case: SimCase) -> str:
