@@ -12,7 +12,7 @@ import numpy.typing as npt
 import pytest
 from scipy.ndimage import map_coordinates
 
-from tristock.circuits.gridspline import grid_axis, spline_value
+from tristock.circuits.gridspline import FEW_POINTS, grid_axis, spline_value
 
 
 def reference(coeffs: np.ndarray, coords: Sequence[npt.ArrayLike]) -> np.ndarray:
@@ -22,13 +22,14 @@ def reference(coeffs: np.ndarray, coords: Sequence[npt.ArrayLike]) -> np.ndarray
     return np.asarray(out).reshape(np.shape(coords[0]))
 
 
+@pytest.mark.parametrize("points", [FEW_POINTS, 4000])  # scipy's loop / the numpy passes
 @pytest.mark.parametrize("shape", [(9, 12), (7, 8, 11)])
-def test_equal_to_map_coordinates_bit_for_bit(shape: tuple[int, ...]) -> None:
+def test_equal_to_map_coordinates_bit_for_bit(shape: tuple[int, ...], points: int) -> None:
     rng = np.random.default_rng(len(shape))
     coeffs = rng.normal(size=shape) * 10.0 ** rng.integers(-3, 4, size=shape)
     # inside, on grid lines, on half lines (where n = round(c) rounds), and past both ends;
     # each axis clamped to [1, n - 2], so that the points never reach the edge lines
-    coords = [rng.uniform(-1.0, n + 1.0, 4000) for n in shape]
+    coords = [rng.uniform(-1.0, n + 1.0, points) for n in shape]
     for c, n in zip(coords, shape, strict=True):
         c[:40] = rng.integers(1, n - 1, 40)
         c[40:80] = rng.integers(1, n - 2, 40) + 0.5
@@ -53,10 +54,12 @@ def test_axes_broadcast_like_their_points() -> None:
 def test_nan_coordinates_give_nan_as_map_coordinates_does() -> None:
     coeffs = np.arange(80.0).reshape(8, 10)
     x, y = np.array([2.5, math.nan, 3.0]), np.array([4.0, 5.0, math.nan])
-    got = spline_value(coeffs, (grid_axis(x, 1, 6), grid_axis(y, 1, 8)))
-    want = reference(coeffs, [x, y])
-    assert np.array_equal(got, want, equal_nan=True)
-    assert np.isnan(got[1:]).all() and np.isfinite(got[0])
+    for copies in (1, FEW_POINTS):  # scipy's loop / the numpy passes
+        xs, ys = np.tile(x, copies), np.tile(y, copies)
+        got = spline_value(coeffs, (grid_axis(xs, 1, 6), grid_axis(ys, 1, 8)))
+        want = reference(coeffs, [xs, ys])
+        assert np.array_equal(got, want, equal_nan=True)
+        assert np.isnan(got[1:3]).all() and np.isfinite(got[0])
 
 
 def test_a_table_that_does_not_fit_is_refused() -> None:

@@ -14,6 +14,7 @@ centre the offsets on 0 V, which is what "± typical" means.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -29,7 +30,7 @@ from tristock.analysis.sensitivity import (
     temperature_drift,
 )
 from tristock.analysis.spread import check_inputs
-from tristock.analysis.worstcase import WorstCase, worst_case
+from tristock.analysis.worstcase import WorstCase, worst_cases
 from tristock.circuits.board import AnyBoard
 from tristock.circuits.topology import Prediction
 from tristock.spec.model import Spec
@@ -83,13 +84,37 @@ def analyse(
 ) -> Analysis:
     """Nominal prediction, worst case, Monte Carlo yield, sensitivities and drift of one
     design against one spec (see the functions of the same names)."""
-    check_inputs(design, spec)
-    return Analysis(
-        predicted=nominal_oscillator(design, spec).prediction(),
-        worst_case=worst_case(design, spec),
-        yield_result=monte_carlo(
-            design, spec, samples=samples, seed=seed, distribution=distribution
-        ),
-        sensitivity=sensitivities(design, spec),
-        drift=temperature_drift(design, spec),
+    return analyse_many([design], spec, samples=samples, seed=seed, distribution=distribution)[0]
+
+
+def analyse_many(
+    designs: Sequence[AnyBoard],
+    spec: Spec,
+    *,
+    samples: int = 20000,
+    seed: int = 0,
+    distribution: Distribution = "normal",
+    known: Sequence[WorstCase | None] = (),
+) -> list[Analysis]:
+    """``analyse`` of each design, their worst cases searched together (``worst_cases``: the
+    same answers, fewer and larger model calls); ``known[n]``, where given, is design n's
+    worst case already computed on this spec."""
+    for design in designs:
+        check_inputs(design, spec)
+    given = list(known) + [None] * (len(designs) - len(known))
+    searched = iter(
+        worst_cases([d for d, wc in zip(designs, given, strict=True) if wc is None], spec)
     )
+    found = [wc if wc is not None else next(searched) for wc in given]
+    return [
+        Analysis(
+            predicted=nominal_oscillator(design, spec).prediction(),
+            worst_case=wc,
+            yield_result=monte_carlo(
+                design, spec, samples=samples, seed=seed, distribution=distribution
+            ),
+            sensitivity=sensitivities(design, spec),
+            drift=temperature_drift(design, spec),
+        )
+        for design, wc in zip(designs, found, strict=True)
+    ]

@@ -17,8 +17,9 @@ differential equation
 
     dY/dv = tanh(Y(v - D) + μ·v),   Y(v) = 0 for v <= 0,   D = λ·td,   μ = s/(k·SR),
 
-with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once per
-process (``transition_table``, about 0.13 s and 20 MB) by a fourth-order rule on the equivalent
+with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once
+(``transition_table``, about 0.13 s and 20 MB; ``arraycache`` keeps the spline coefficients
+per machine) by a fourth-order rule on the equivalent
 form Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points,
 and read back by quadratic B-spline interpolation (``gridspline``). For D = 0 the solution is
 closed:
@@ -37,13 +38,16 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import cache
+from pathlib import Path
 from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
+from scipy import __version__ as scipy_version
 from scipy.ndimage import spline_filter
 from scipy.special import lambertw
 
+from tristock.circuits.arraycache import cached_arrays
 from tristock.circuits.gridspline import GridAxis, grid_axis, spline_value
 
 FloatArray = npt.NDArray[np.float64]
@@ -216,21 +220,21 @@ def transition_table() -> TransitionTable:
 
 
 @cache
-def _coefficients() -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter)."""
+def _coefficients() -> tuple[FloatArray, ...]:
+    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter),
+    computed once per machine (``arraycache``, keyed by this module's source and the numpy
+    and scipy versions)."""
+    key = (Path(__file__).read_bytes(), np.__version__, scipy_version)
+    return cached_arrays("transition", key, _filtered_table)
+
+
+def _filtered_table() -> list[FloatArray]:
     tab = transition_table()
-    mean, level, u0, c2 = (
-        np.asarray(
-            spline_filter(
-                np.pad(a, PAD, mode="reflect", reflect_type="odd"),
-                order=SPLINE_ORDER,
-                mode="nearest",
-            ),
-            dtype=float,
-        )
+    padded = (
+        np.pad(a, PAD, mode="reflect", reflect_type="odd")
         for a in (tab.mean_time, tab.level_time, tab.u0, tab.c2)
     )
-    return mean, level, u0, c2
+    return [spline_filter(a, order=SPLINE_ORDER, mode="nearest") for a in padded]
 
 
 def _axis(coord: FloatArray, lines: int) -> GridAxis:

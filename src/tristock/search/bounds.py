@@ -190,9 +190,19 @@ def window(loop: StageLoop, k: Array, t_min: Array, t_max: Array) -> Bounds:
     """The range of P outside which the period cannot lie in [t_min, t_max], for any R3.
 
     By (M1) both period bounds rise with P, so the answer is [P_a, P_b] with
-    T_hi(P_a) = t_min and T_lo(P_b) = t_max (``lowest_p``, ``highest_p``).
+    T_hi(P_a) = t_min and T_lo(P_b) = t_max (``lowest_p``, ``highest_p``), both ends found
+    in one root search (each element's arithmetic is that of its own end alone).
     """
-    return Bounds(lowest_p(loop, k, t_min), highest_p(loop, k, t_max))
+    k, t_min, t_max = np.broadcast_arrays(np.asarray(k, dtype=float), t_min, t_max)
+    n = len(k)
+    both = StageLoop(*(np.tile(np.broadcast_to(x, (n,)), 2) for x in loop))
+    drives = tuple(
+        np.concatenate([np.broadcast_to(w, (n,)), np.broadcast_to(s, (n,))])
+        for w, s in zip(_weak(loop), _strong(loop), strict=True)
+    )
+    side = np.repeat([-1.0, 1.0], n)
+    p = _edge(both, np.tile(k, 2), np.concatenate([t_min, t_max]), drives, side)
+    return Bounds(p[:n], p[n:])
 
 
 def p_ceiling(loop: StageLoop, k: Array, t_max: Array | float) -> Array:
@@ -243,13 +253,15 @@ def highest_p(loop: StageLoop, k: Array, t_max: Array) -> Array:
 
 
 def _edge(
-    loop: StageLoop, k: Array, target: Array, drives: tuple[Array, Array, Array], side: float
+    loop: StageLoop, k: Array, target: Array, drives: tuple[Array, ...], side: Array | float
 ) -> Array:
     """Where the period at ``drives`` crosses ``target``, pushed outwards (side -1: down, the
-    window's low end; +1: up, its high end) until it is strictly past, as computed."""
+    window's low end; +1: up, its high end; one per element or one for all) until it is
+    strictly past, as computed."""
     k, target = np.broadcast_arrays(np.asarray(k, dtype=float), target)
     n = len(k)
     span, a, b = (np.broadcast_to(x, (n,)) for x in drives)
+    down = np.broadcast_to(np.asarray(side) < 0, (n,))
     ok = np.broadcast_to(claimed(loop, k), (n,))
 
     def period(p: Array, sel: NDArray[np.int64]) -> Array:
@@ -262,8 +274,11 @@ def _edge(
         for _ in range(40):  # Newton steps in ln P
             if len(todo) == 0:
                 break
-            t = period(p[todo], todo)
-            slope = (period(p[todo] * (1 + 1e-6), todo) - t) / 1e-6  # dT/d ln P
+            m = len(todo)
+            # T and T at P·(1 + 1e-6) in one call (elementwise: the same values as two)
+            both = period(np.concatenate([p[todo], p[todo] * (1 + 1e-6)]), np.tile(todo, 2))
+            t = both[:m]
+            slope = (both[m:] - t) / 1e-6  # dT/d ln P
             step = np.where(slope > 0, (target[todo] - t) / np.where(slope > 0, slope, 1.0), 0.0)
             step = np.clip(np.where(np.isfinite(step), step, 0.0), -2.0, 2.0)
             p[todo] = p[todo] * np.exp(step)
@@ -272,15 +287,15 @@ def _edge(
         todo = np.flatnonzero(ok)
         for _ in range(60):
             t = period(p[todo], todo)
-            bad = ~(t < target[todo]) if side < 0 else ~(t > target[todo])
+            bad = np.where(down[todo], ~(t < target[todo]), ~(t > target[todo]))
             todo = todo[bad]
             if len(todo) == 0:
                 break
-            p[todo] = p[todo] * (1 + side * push)
+            p[todo] = p[todo] * np.where(down[todo], 1 - push, 1 + push)
             push = min(2 * push, 0.5)
     # Where no push settles it (or nothing is claimed), keep every P on that side: a wider
     # window only costs rows.
-    far = 0.0 if side < 0 else np.inf
+    far = np.where(down, 0.0, np.inf)
     unsettled = np.zeros(n, dtype=bool)
     unsettled[todo] = True
     return np.asarray(np.where(ok & ~unsettled, p, far), dtype=float)

@@ -1,0 +1,56 @@
+"""analysis.worstcase.worst_cases: several boards searched together give each board the
+answer it gets alone, to the bit (the reference is ``worst_case`` of each board by itself;
+every row of the batched Newton search is computed on its own). Boards of different circuits
+or wiring are batched apart."""
+
+from __future__ import annotations
+
+from tristock.analysis.bundle import analyse, analyse_many
+from tristock.analysis.worstcase import WorstCase, worst_case, worst_cases
+from tristock.circuits import spec_topologies
+from tristock.circuits.board import AnyBoard
+from tristock.designs.fixed import design_of, run_engine
+from tristock.examples import demo_catalog_dir, example_spec_path
+from tristock.search.model import build_model
+from tristock.spec.loading import load_spec
+from tristock.spec.model import Spec
+from tristock.stock.catalog import load_catalog
+
+
+def figures(wc: WorstCase) -> tuple[object, ...]:
+    return (wc.to_dict(), wc.deviations)
+
+
+def demo_boards(count: int, example: str = "demo") -> tuple[Spec, list[AnyBoard]]:
+    """An example's spec and the first ``count`` rows its search lists, as boards."""
+    spec = load_spec(example_spec_path(example))
+    model = build_model(spec, load_catalog(demo_catalog_dir()), spec_topologies(spec)[0])
+    rows = run_engine(model, "enumerate", count, 30.0).rows
+    return spec, [design_of(model, rows, n) for n in range(len(rows))]
+
+
+def test_batched_worst_cases_equal_each_alone() -> None:
+    spec, boards = demo_boards(5)
+    assert len(boards) == 5
+    together = worst_cases(boards[:5], spec)
+    alone = [worst_case(b, spec) for b in boards[:5]]
+    assert [figures(w) for w in together] == [figures(w) for w in alone]
+    assert worst_cases([], spec) == []
+
+
+def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:
+    spec, opamp_boards = demo_boards(2)
+    _, comparator_boards = demo_boards(2, "comparator")
+    boards = [opamp_boards[0], comparator_boards[0], opamp_boards[1], comparator_boards[1]]
+    assert {b.topology.name for b in boards} == {"opamp_schmitt", "comparator_schmitt"}
+    together = worst_cases(boards, spec)
+    assert [figures(w) for w in together] == [figures(worst_case(b, spec)) for b in boards]
+
+
+def test_analyse_many_takes_known_worst_cases_and_equals_analyse() -> None:
+    spec, boards = demo_boards(3)
+    first = worst_case(boards[0], spec)
+    many = analyse_many(boards, spec, samples=500, known=[first])
+    assert many[0].worst_case is first
+    for board, got in zip(boards, many, strict=True):
+        assert got.to_dict() == analyse(board, spec, samples=500).to_dict()
