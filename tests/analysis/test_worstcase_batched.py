@@ -1,14 +1,17 @@
 """analysis.worstcase.worst_cases: several boards searched together give each board the
-answer it gets alone, to the bit (the reference is ``worst_case`` of each board by itself;
-every row of the batched Newton search is computed on its own). Boards of different circuits
-or wiring are batched apart."""
+answer it gets alone, to the bit (the reference is ``worst_case`` of each board by itself,
+its memory emptied; every row of the batched Newton search is computed on its own). Boards
+of different circuits are batched apart. The memory answers a board met again under another
+target and never a board whose parts or rails differ."""
 
 from __future__ import annotations
 
+import dataclasses
+
 from tristock.analysis.bundle import analyse, analyse_many
-from tristock.analysis.worstcase import WorstCase, worst_case, worst_cases
+from tristock.analysis.worstcase import WorstCase, forget_worst_cases, worst_case, worst_cases
 from tristock.circuits import spec_topologies
-from tristock.circuits.board import AnyBoard
+from tristock.circuits.board import AnyBoard, Design
 from tristock.designs.fixed import design_of, run_engine
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.model import build_model
@@ -32,8 +35,12 @@ def demo_boards(count: int, example: str = "demo") -> tuple[Spec, list[AnyBoard]
 def test_batched_worst_cases_equal_each_alone() -> None:
     spec, boards = demo_boards(5)
     assert len(boards) == 5
+    forget_worst_cases()
     together = worst_cases(boards[:5], spec)
-    alone = [worst_case(b, spec) for b in boards[:5]]
+    alone = []
+    for b in boards[:5]:
+        forget_worst_cases()
+        alone.append(worst_case(b, spec))
     assert [figures(w) for w in together] == [figures(w) for w in alone]
     assert worst_cases([], spec) == []
 
@@ -43,12 +50,37 @@ def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:
     _, comparator_boards = demo_boards(2, "comparator")
     boards = [opamp_boards[0], comparator_boards[0], opamp_boards[1], comparator_boards[1]]
     assert {b.topology.name for b in boards} == {"opamp_schmitt", "comparator_schmitt"}
+    forget_worst_cases()
     together = worst_cases(boards, spec)
-    assert [figures(w) for w in together] == [figures(worst_case(b, spec)) for b in boards]
+    alone = []
+    for b in boards:
+        forget_worst_cases()
+        alone.append(figures(worst_case(b, spec)))
+    assert [figures(w) for w in together] == alone
+
+
+def test_memory_answers_only_the_same_board_and_box() -> None:
+    spec, boards = demo_boards(1)
+    board = boards[0]
+    forget_worst_cases()
+    first = worst_case(board, spec)
+    assert spec.frequency is not None
+    moved = spec.model_copy(
+        update={"frequency": spec.frequency.model_copy(update={"target_hz": 2600.0})}
+    )
+    assert worst_case(board, moved) is first  # the bands do not enter the box
+    wider = spec.model_copy(
+        update={"supply": spec.supply.model_copy(update={"tolerance_pct": 10.0})}
+    )
+    assert worst_case(board, wider).frequency_hz != first.frequency_hz
+    assert isinstance(board, Design)
+    looser = dataclasses.replace(board, r3=dataclasses.replace(board.r3, tolerance_pct=5.0))
+    assert worst_case(looser, spec).frequency_hz != first.frequency_hz
 
 
 def test_analyse_many_takes_known_worst_cases_and_equals_analyse() -> None:
     spec, boards = demo_boards(3)
+    forget_worst_cases()
     first = worst_case(boards[0], spec)
     many = analyse_many(boards, spec, samples=500, known=[first])
     assert many[0].worst_case is first
