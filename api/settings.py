@@ -31,6 +31,11 @@ MAX_TIME_LIMIT_S: Final[float] = 600.0
 
 ENV_PREFIX: Final[str] = "TRISTOCK_"
 CATALOG_ENV: Final[str] = "TRISTOCK_CATALOG"
+#: Variables the library itself reads (not server settings): the per-machine array cache,
+#: the registry's Dask scheduler and its writer's name.
+LIBRARY_ENV: Final[frozenset[str]] = frozenset(
+    {"TRISTOCK_CACHE_DIR", "TRISTOCK_SCHEDULER", "TRISTOCK_USER"}
+)
 
 
 class SettingsError(ValueError):
@@ -169,6 +174,7 @@ def unknown_env_names(environ: dict[str, str] | None = None) -> list[str]:
     """``TRISTOCK_*`` variables that set no field (likely misspelt), sorted."""
     env = os.environ if environ is None else environ
     known = {env_name(f) for f in Settings.model_fields} | {ENV_PREFIX + "CATALOG_DIR"}
+    known |= LIBRARY_ENV
     return sorted(k for k in env if k.upper().startswith(ENV_PREFIX) and k.upper() not in known)
 
 
