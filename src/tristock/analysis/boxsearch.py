@@ -203,10 +203,14 @@ def _ascend(
     """Projected Newton from every problem's starts in shared batches; per problem and
     objective the best row (k, n) and its metric value (k,)."""
     member = np.concatenate([np.full(len(s.z), d) for d, s in enumerate(starts)])
-    metric, sign, ref = (np.concatenate([getattr(s, f) for s in starts]) for f in _NEWTON_FIELDS)
+    metric = np.concatenate([s.metric for s in starts])
+    sign = np.concatenate([s.sign for s in starts])
+    ref = np.concatenate([s.ref for s in starts])
+    owner = np.concatenate([s.owner for s in starts])
 
     def objective(rows: IntArray, z: FloatArray) -> tuple[FloatArray, FloatArray]:
-        """(sign·ln(y/ref), y) at rows z (R, ..., n) (``_Model.objective``, row by row)."""
+        """(sign·ln(y/ref), y) at rows z (R, ..., n), each start row on its own board with its
+        own metric, sign and start value ref (-inf where the model has no value)."""
         shape = z.shape[:-1]
         flat = z.reshape(-1, z.shape[-1])
         per_row = int(np.prod(shape[1:], dtype=np.int64))
@@ -219,7 +223,6 @@ def _ascend(
 
     z, vals = maximise(objective, np.vstack([s.z for s in starts]), np.zeros(len(ref)), ref)
     out = []
-    owner = np.concatenate([s.owner for s in starts])
     for d in range(len(starts)):
         rows_out, vals_out = [], []
         for o in range(len(objectives)):
@@ -229,9 +232,6 @@ def _ascend(
             vals_out.append(vals[k])
         out.append((np.vstack(rows_out), np.asarray(vals_out)))
     return out
-
-
-_NEWTON_FIELDS = ("metric", "sign", "ref")
 
 
 def search_extremes(
