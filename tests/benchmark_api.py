@@ -134,7 +134,7 @@ def where_the_time_goes(spec_data: dict[str, Any]) -> None:
     """One design in-process: total, and the part spent re-checking candidates (each with
     no worst case remembered from the runs before)."""
     from tristock.analysis.bundle import analyse
-    from tristock.analysis.worstcase import forget_worst_cases
+    from tristock.analysis.memo import forget as forget_remembered
     from tristock.circuits.board import resolve
     from tristock.designs import design
     from tristock.spec.loading import parse_spec
@@ -145,11 +145,11 @@ def where_the_time_goes(spec_data: dict[str, Any]) -> None:
     design(spec, catalog)  # warm caches
     totals, rechecks = [], []
     for _ in range(3):  # best of three: the machine may be busy with other work
-        forget_worst_cases()  # each part measured cold
+        forget_remembered()  # each part measured cold
         t0 = time.perf_counter()
         result = design(spec, catalog)
         totals.append(time.perf_counter() - t0)
-        forget_worst_cases()
+        forget_remembered()
         t0 = time.perf_counter()
         for c in result.candidates:
             d = resolve({k: v.id for k, v in c.parts.items()}, catalog)

@@ -28,9 +28,9 @@ from collections.abc import Callable
 
 import numpy as np
 
+from tristock.analysis.memo import forget as forget_remembered
 from tristock.analysis.montecarlo import deviations, monte_carlo
 from tristock.analysis.spread import metric_columns, spread_board
-from tristock.analysis.worstcase import forget_worst_cases
 from tristock.circuits.board import Design, resolve
 from tristock.designs import design
 from tristock.examples import demo_catalog_dir, example_spec_path
@@ -101,7 +101,7 @@ def main() -> None:
         t0 = time.perf_counter()
         enumerate_top(build_model(spec, catalog), spec.ranking.top, 60.0)
         t1 = time.perf_counter()
-        forget_worst_cases()
+        forget_remembered()
         t2 = time.perf_counter()
         design(spec, catalog)
         t3 = time.perf_counter()

@@ -32,7 +32,8 @@ from tristock.spec.model import Spec
 from tristock.stock.catalog import load_catalog
 
 try:
-    from tristock.analysis.worstcase import box_extremes, forget_worst_cases, worst_case
+    from tristock.analysis.memo import forget as forget_remembered
+    from tristock.analysis.worstcase import box_extremes, worst_case
 
     def coverage_bound(d: Design, spec: Spec) -> dict[str, tuple[float, float]]:
         return box_extremes(d, spec, ["frequency_hz"])
@@ -42,7 +43,7 @@ except ImportError:  # an older tree: corners and an offset/bias refinement
     from tristock.analysis.bundle import corner_extremes as coverage_bound  # type: ignore
     from tristock.analysis.worstcase import worst_case  # type: ignore
 
-    def forget_worst_cases() -> None:  # nothing remembered there
+    def forget_remembered() -> None:  # nothing remembered there
         pass
 
     CODE = "corners (analysis.worst_case, analysis.corner_extremes)"
@@ -52,7 +53,7 @@ REPO = Path(__file__).resolve().parent.parent
 
 def fresh_worst_case(board: Design, spec: Spec) -> Any:
     """``worst_case`` searched, not remembered from the run before."""
-    forget_worst_cases()
+    forget_remembered()
     return worst_case(board, spec)
 
 

@@ -9,7 +9,8 @@ from __future__ import annotations
 import dataclasses
 
 from tristock.analysis.bundle import analyse, analyse_many
-from tristock.analysis.worstcase import WorstCase, forget_worst_cases, worst_case, worst_cases
+from tristock.analysis.memo import forget
+from tristock.analysis.worstcase import REMEMBERED, WorstCase, worst_case, worst_cases
 from tristock.circuits import spec_topologies
 from tristock.circuits.board import AnyBoard, Design
 from tristock.designs.fixed import design_of, run_engine
@@ -35,11 +36,11 @@ def demo_boards(count: int, example: str = "demo") -> tuple[Spec, list[AnyBoard]
 def test_batched_worst_cases_equal_each_alone() -> None:
     spec, boards = demo_boards(5)
     assert len(boards) == 5
-    forget_worst_cases()
+    forget()
     together = worst_cases(boards[:5], spec)
     alone = []
     for b in boards[:5]:
-        forget_worst_cases()
+        forget()
         alone.append(worst_case(b, spec))
     assert [figures(w) for w in together] == [figures(w) for w in alone]
     assert worst_cases([], spec) == []
@@ -50,11 +51,11 @@ def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:
     _, comparator_boards = demo_boards(2, "comparator")
     boards = [opamp_boards[0], comparator_boards[0], opamp_boards[1], comparator_boards[1]]
     assert {b.topology.name for b in boards} == {"opamp_schmitt", "comparator_schmitt"}
-    forget_worst_cases()
+    forget()
     together = worst_cases(boards, spec)
     alone = []
     for b in boards:
-        forget_worst_cases()
+        forget()
         alone.append(figures(worst_case(b, spec)))
     assert [figures(w) for w in together] == alone
 
@@ -62,13 +63,16 @@ def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:
 def test_memory_answers_only_the_same_board_and_box() -> None:
     spec, boards = demo_boards(1)
     board = boards[0]
-    forget_worst_cases()
+    forget()
     first = worst_case(board, spec)
     assert spec.frequency is not None
     moved = spec.model_copy(
         update={"frequency": spec.frequency.model_copy(update={"target_hz": 2600.0})}
     )
-    assert worst_case(board, moved) is first  # the bands do not enter the box
+    again = worst_case(board, moved)  # the bands do not enter the box: remembered
+    assert figures(again) == figures(first) and len(REMEMBERED) == 1
+    again.corners["frequency_hz_lo"].clear()  # a copy: the remembered one is untouched
+    assert figures(worst_case(board, spec)) == figures(first)
     wider = spec.model_copy(
         update={"supply": spec.supply.model_copy(update={"tolerance_pct": 10.0})}
     )
@@ -78,11 +82,10 @@ def test_memory_answers_only_the_same_board_and_box() -> None:
     assert worst_case(looser, spec).frequency_hz != first.frequency_hz
 
 
-def test_analyse_many_takes_known_worst_cases_and_equals_analyse() -> None:
+def test_analyse_many_equals_analyse() -> None:
     spec, boards = demo_boards(3)
-    forget_worst_cases()
-    first = worst_case(boards[0], spec)
-    many = analyse_many(boards, spec, samples=500, known=[first])
-    assert many[0].worst_case is first
+    forget()
+    many = analyse_many(boards, spec, samples=500)
     for board, got in zip(boards, many, strict=True):
+        forget()
         assert got.to_dict() == analyse(board, spec, samples=500).to_dict()

@@ -94,18 +94,11 @@ def analyse_many(
     samples: int = 20000,
     seed: int = 0,
     distribution: Distribution = "normal",
-    known: Sequence[WorstCase | None] = (),
 ) -> list[Analysis]:
     """``analyse`` of each design, their worst cases searched together (``worst_cases``: the
-    same answers, fewer and larger model calls); ``known[n]``, where given, is design n's
-    worst case already computed on this spec."""
+    same answers, fewer and larger model calls)."""
     for design in designs:
         check_inputs(design, spec)
-    given = list(known) + [None] * (len(designs) - len(known))
-    searched = iter(
-        worst_cases([d for d, wc in zip(designs, given, strict=True) if wc is None], spec)
-    )
-    found = [wc if wc is not None else next(searched) for wc in given]
     return [
         Analysis(
             predicted=nominal_oscillator(design, spec).prediction(),
@@ -116,5 +109,5 @@ def analyse_many(
             sensitivity=sensitivities(design, spec),
             drift=temperature_drift(design, spec),
         )
-        for design, wc in zip(designs, found, strict=True)
+        for design, wc in zip(designs, worst_cases(designs, spec), strict=True)
     ]

@@ -12,6 +12,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy import special
 
+from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.spread import (
     BATCH_ROWS,
     METRICS,
@@ -150,7 +151,8 @@ def monte_carlo(
     bound (tolerances, class II band, rails, offsets, bias, slew, delay alike; an offset's σ
     is therefore the catalogued typical/3). ``"uniform"``: uniform over each ± bound.
     Temperature is uniform over the environment range in both. numpy Generator seeded with
-    ``seed``; the same seed gives the same samples.
+    ``seed``; the same seed gives the same samples. The samples' metrics do not depend on the
+    bands and are remembered for the process (``SAMPLED``).
     """
     check_inputs(design, spec)
     if isinstance(samples, bool) or not isinstance(samples, int) or samples < 1:
@@ -159,9 +161,15 @@ def monte_carlo(
         raise ValueError(f"seed: must be an integer >= 0, got {seed!r}")
     if distribution not in ("normal", "uniform"):
         raise ValueError(f"distribution: must be 'normal' or 'uniform', got {distribution!r}")
-    board, variables = spread_board(design, spec)
-    z = deviations(np.random.default_rng(seed), variables, samples, distribution)
-    vals = metric_columns(board, variables, z)
+    key = box_key(design, spec, samples, seed, distribution)
+    remembered = SAMPLED.get(key)
+    if remembered is None:
+        board, variables = spread_board(design, spec)
+        z = deviations(np.random.default_rng(seed), variables, samples, distribution)
+        vals = metric_columns(board, variables, z)
+        remembered = (vals, _percentiles(vals))
+        SAMPLED.put(key, remembered)
+    vals, spread = remembered
     passed = int(np.count_nonzero(_in_bands(vals[0], vals[1], spec)))
     return YieldResult(
         fraction=passed / samples,
@@ -171,8 +179,15 @@ def monte_carlo(
         confidence_interval=wilson_interval(passed, samples, CONFIDENCE),
         seed=seed,
         distribution=distribution,
-        spread=_percentiles(vals),
+        spread={metric: dict(figures) for metric, figures in spread.items()},
     )
+
+
+#: The sampled boards of ``monte_carlo`` (metrics and their percentiles), by board, supply,
+#: environment, samples, seed and distribution (``analysis.memo``): the bands only count them.
+SAMPLED: Memo[tuple[FloatArray, dict[str, dict[str, float]]]] = Memo(
+    max_items=1024, max_bytes=64 << 20, size=lambda entry: int(entry[0].nbytes)
+)
 
 
 def yield_count(

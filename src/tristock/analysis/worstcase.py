@@ -50,9 +50,8 @@ What is proven and what is not:
 
 from __future__ import annotations
 
-import threading
-from collections import OrderedDict
-from collections.abc import Hashable, Sequence
+import dataclasses
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -60,6 +59,7 @@ import numpy as np
 import numpy.typing as npt
 
 from tristock.analysis.boxsearch import search_extremes
+from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.spread import METRICS, SpreadVariable, check_inputs, spread_board
 from tristock.circuits.board import AnyBoard
 from tristock.spec.model import Spec
@@ -125,55 +125,34 @@ def worst_cases(
     answer is the one it gets alone, to the bit).
 
     The box depends on the board (every field of every part) and on the spec's supply and
-    environment only, not on its bands: answers are remembered per (board, supply,
-    environment) for the process (``CACHED_WORST_CASES`` of them, least recently used
-    dropped), so a board met again under another target is not searched again. A returned
-    ``WorstCase`` may be shared: treat it as read-only."""
+    environment only, not on its bands: answers are remembered for the process
+    (``REMEMBERED``, ``analysis.memo``), so a board met again under another target is not
+    searched again."""
     for design in designs:
         check_inputs(design, spec)
     if isinstance(max_corner_variables, bool) or not isinstance(max_corner_variables, int):
         raise TypeError(f"max_corner_variables: expected an int, got {max_corner_variables!r}")
     if max_corner_variables < 0:
         raise ValueError(f"max_corner_variables: must be >= 0, got {max_corner_variables}")
-    box = (spec.supply.model_dump_json(), spec.environment.model_dump_json(), max_corner_variables)
-    keys = [_cache_key(design, box) for design in designs]
-    with _CACHE_LOCK:
-        known = [_CACHE.get(key) if key is not None else None for key in keys]
+    keys = [box_key(design, spec, max_corner_variables) for design in designs]
+    known = [REMEMBERED.get(key) for key in keys]
     todo = [n for n, wc in enumerate(known) if wc is None]
     problems = [spread_board(designs[n], spec) for n in todo]
     found = search_extremes(problems, _OBJECTIVES, max_corner_variables)
-    with _CACHE_LOCK:
-        for n, (_, variables), result in zip(todo, problems, found, strict=True):
-            known[n] = wc = _worst_case_of(variables, *result)
-            if keys[n] is not None:
-                _CACHE[keys[n]] = wc
-        for key in keys:
-            if key in _CACHE:
-                _CACHE.move_to_end(key)
-        while len(_CACHE) > CACHED_WORST_CASES:
-            _CACHE.popitem(last=False)
-    return [wc for wc in known if wc is not None]
+    for n, (_, variables), result in zip(todo, problems, found, strict=True):
+        known[n] = wc = _worst_case_of(variables, *result)
+        REMEMBERED.put(keys[n], wc)
+    return [_copy(wc) for wc in known if wc is not None]
 
 
-#: How many worst cases ``worst_cases`` remembers (a few hundred bytes to a few kB each).
-CACHED_WORST_CASES = 4096
-_CACHE: OrderedDict[Hashable, WorstCase] = OrderedDict()
-_CACHE_LOCK = threading.Lock()
+def _copy(wc: WorstCase) -> WorstCase:
+    """A copy whose dicts the caller may change without touching the remembered one."""
+    corners = {key: dict(setting) for key, setting in wc.corners.items()}
+    return dataclasses.replace(wc, corners=corners, deviations=dict(wc.deviations))
 
 
-def forget_worst_cases() -> None:
-    """Empty ``worst_cases``' memory (tests compare fresh searches with it)."""
-    with _CACHE_LOCK:
-        _CACHE.clear()
-
-
-def _cache_key(design: AnyBoard, box: tuple[str, str, int]) -> Hashable | None:
-    """(board, supply, environment, corner limit), or None for a board that cannot be a key."""
-    try:
-        hash(design)
-    except TypeError:
-        return None
-    return (design, *box)
+#: The worst cases ``worst_cases`` remembers (``analysis.memo``; a few kB each).
+REMEMBERED: Memo[WorstCase] = Memo(max_items=4096, max_bytes=64 << 20)
 
 
 def _worst_case_of(
@@ -217,11 +196,10 @@ def box_extremes(
 
 __all__ = [
     "BOX_CORNER_VARIABLES",
-    "CACHED_WORST_CASES",
     "MAX_CORNER_VARIABLES",
+    "REMEMBERED",
     "WorstCase",
     "box_extremes",
-    "forget_worst_cases",
     "worst_case",
     "worst_cases",
 ]

@@ -15,7 +15,7 @@ from typing import Literal
 
 from tristock.analysis.bundle import analyse_many
 from tristock.analysis.montecarlo import yield_count
-from tristock.analysis.worstcase import WorstCase, worst_case
+from tristock.analysis.worstcase import worst_case
 from tristock.circuits import spec_topologies
 from tristock.circuits.board import AnyBoard, board_from
 from tristock.circuits.topology import Topology
@@ -65,7 +65,6 @@ class _Verdict:
     ok: bool
     passed: int | None
     exact: bool = True
-    worst: WorstCase | None = None  # the worst case the guarantee was checked on
 
 
 def _recheck(spec: Spec, design: AnyBoard, samples: int, seed: int, beat: int) -> _Verdict:
@@ -76,13 +75,12 @@ def _recheck(spec: Spec, design: AnyBoard, samples: int, seed: int, beat: int) -
     limits = spec.limits
     if any(w.severity == "error" for w in warnings_for(design, spec)):
         return _Verdict(False, None)  # a check of error severity: not a design to offer
-    wc = None
     if limits.guarantee == "worst_case":
-        wc = worst_case(design, spec)
+        wc = worst_case(design, spec)  # remembered for the analysis (``analysis.memo``)
         if not guarantee_holds(spec, wc, None):
             return _Verdict(False, None)
     if limits.guarantee != "yield" and spec.ranking.by != "yield":
-        return _Verdict(True, None, worst=wc)
+        return _Verdict(True, None)
     allowed = samples
     if limits.guarantee == "yield":
         allowed = math.floor((1.0 - limits.min_yield) * samples + 1e-9)
@@ -93,7 +91,7 @@ def _recheck(spec: Spec, design: AnyBoard, samples: int, seed: int, beat: int) -
     )
     if limits.guarantee == "yield" and passed < limits.min_yield * samples:
         return _Verdict(False, passed, exact)
-    return _Verdict(True, passed, exact, wc)
+    return _Verdict(True, passed, exact)
 
 
 def _walk(
@@ -196,8 +194,7 @@ def design_fixed(
     else:
         chosen = [(n, []) for n in range(min(top, len(kept)))]
     boards = [kept[n][0] for n, _ in chosen]
-    known = [verdicts[tuple(p.id for p in d.parts().values())].worst for d in boards]
-    analyses = analyse_many(boards, spec, samples=samples, seed=seed, known=known)
+    analyses = analyse_many(boards, spec, samples=samples, seed=seed)
     candidates = []
     for rank, ((n, others), result) in enumerate(zip(chosen, analyses, strict=True), start=1):
         d, score, _ = kept[n]
