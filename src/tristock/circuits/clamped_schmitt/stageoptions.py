@@ -11,17 +11,17 @@ import numpy as np
 
 from tristock.circuits.clamped_schmitt.checks import CLAMP_ERROR
 from tristock.circuits.clamped_schmitt.clamplevels import (
-    DESIGN_CURRENT,
     ClampStage,
     LimitVerdict,
     LoadRange,
     candidate_columns,
     clamp_limits,
     fixed_fields,
-    level_range,
+    rest_levels,
     saturation_reasons,
     stage_loop,
 )
+from tristock.circuits.clamped_schmitt.designpoint import DESIGN_CURRENT, design_levels
 from tristock.circuits.opamp_schmitt.searchform import opamp_levels, stocked_opamps
 from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply
 from tristock.circuits.searchform import F64, Exclusion
@@ -144,9 +144,9 @@ def limit_exclusions(
          f"{format_value(part.output_a, 'A')} rating even at the lightest load"),
         (verdict.power_ok, f"a zener's dissipation exceeds its {zener.power_w:g} W rating even "
          "at the heaviest load"),
-        (verdict.design_point, "the zener current at the lightest load is outside "
-         f"{DESIGN_CURRENT[0]:g}..{DESIGN_CURRENT[1]:g} times its test current (the clamp's "
-         "design point)"),
+        (verdict.design_point, "the zener current cannot lie within "
+         f"{DESIGN_CURRENT[0]:g}..{DESIGN_CURRENT[1]:g} times its test current at any load "
+         "(the clamp's design point)"),
     )  # fmt: skip
     out = []
     for passed, why in reasons:
@@ -181,7 +181,8 @@ def opamp_stages(
     verdict = clamp_limits(cols, load[0], part, (vh, vl), pairs)
     verdict = LimitVerdict(*(x & np.array([w is None for w in why])[:, None] for x in verdict))
     keep_z, keep_r = np.nonzero(verdict.ok)
-    found = level_range({k: v[keep_z, keep_r] for k, v in cols.items()}, load[0], rails)
+    kept = {k: v[keep_z, keep_r] for k, v in cols.items()}
+    found = design_levels(kept, load[0], rest_levels(kept, load[0], rails))
     ve_all = model.offset_v + model.bias_a * np.asarray(r3_values, dtype=float)
     stages: list[ClampStage] = []
     for n, z in enumerate(zeners):

@@ -1,0 +1,113 @@
+"""The zener-clamped loop's design point: a rule of the circuit this package builds, and the
+square levels it leaves a search stage.
+
+**The rule** (common practice: a zener's voltage and dynamic resistance are specified at its
+test current Izt, and a clamp is designed to run near it): over the triangle's range (its
+two thresholds) the zener in breakdown carries between ``DESIGN_CURRENT`` (0.5..2) times its
+test current, on each side of the square. A board outside it is not this circuit: the
+topology's check reports it as an error (``clamp_design_point``) and the exact search's rows
+(``searchform.predict_rows``) are invalid there, both through ``threshold_currents``.
+
+**Levels under the rule** (``design_levels``; notation of ``clamplevels``). The square level
+S with U1's output at Vo solves (Vo - S)·G5 + (Vi - S)·G3 + (vt - S)·Gl = I_pair(S), and
+the pair's voltage is V(I) = v0 + m·ln I + r·I (``circuits.diode``), so S = V(I) exactly.
+With the square high, dS/dvt = g(vt) = Gl/(G5 + G3 + Gl + 1/rd), rd = m/I + r: S rises with
+vt, I with S, so rd falls and g falls: S(vt) is concave, below its tangent at vt = 0, the
+model's S0 + g0·vt; with the square low S(vt) is convex and |S| likewise below |S0 + g0·vt|.
+The model uses the high level over [vt_b, turn_t] and the low over [turn_b, vt_t]
+(``physics``: the turns lie past the thresholds by the edges' overshoots), so for a row that
+meets the rule:
+- lower ends: |S| (exact or linearised) is at least its exact value at the threshold where it
+  is least, V(I) with I ≥ 0.5·Izt: at least V(0.5·Izt) in that direction;
+- upper ends: |S0| = V(I0) with I0 (at vt = 0, between the thresholds) ≤ 2·Izt, and
+  g0 ≤ G = Gl_max/(G5 + G3_min + Gl_max + 1/rd(0.5·Izt)) (g rises with Gl and falls with G3
+  and 1/rd, and I0 ≥ 0.5·Izt), so |S0 + g0·v| ≤ V(2·Izt) + G·X for |v| ≤ X; the exact
+  level lies below the linearised one.
+X bounds the triangle's excursion: a row whose triangle (turn to turn) spans at most twice
+the band's largest amplitude A_max, with its centre at (1 + k)·s2 (s2 = Vos2 + Ib2·(R1 ∥ R2),
+k = R1/R2 ≤ A_max/span_lo, rows with larger k miss the band), stays within
+X = 2·A_max + (1 + A_max/span_lo)·|Vos2| + Ib2·R_max; rows swinging wider are outside the
+amplitude band, and the search's run-time guard (``search.rows``) holds every row it
+evaluates to the bounds regardless.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+from numpy.typing import NDArray
+
+from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint
+from tristock.circuits.topology import FloatArray, Value
+
+#: The clamp's design point: the zener current over the triangle's range within these
+#: multiples of its test current (the rule above).
+DESIGN_CURRENT = (0.5, 2.0)
+
+
+def threshold_currents(
+    net: Clamp, vh: Value, vl: Value, vt_low: Value, vt_high: Value
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """(least, most) pair current with the square high (D1 in breakdown), then (least, most)
+    with it low (D2), over the triangle at its two thresholds ``vt_low`` and ``vt_high`` (V
+    from the reference), U1's output at +``vh`` and -``vl`` (A)."""
+    high = [net.level(vh, vt, True)[1] for vt in (vt_low, vt_high)]
+    low = [net.level(-np.asarray(vl), vt, False)[1] for vt in (vt_low, vt_high)]
+    return (
+        np.minimum(*high),
+        np.maximum(*high),
+        np.minimum(*low),
+        np.maximum(*low),
+    )
+
+
+def at_design_point(
+    currents: tuple[FloatArray, FloatArray, FloatArray, FloatArray], izt1: Value, izt2: Value
+) -> NDArray[np.bool_]:
+    """Whether ``threshold_currents`` lie within ``DESIGN_CURRENT`` times the test currents
+    ``izt1`` (D1, square high) and ``izt2`` (D2, square low)."""
+    lo, hi = DESIGN_CURRENT
+    least_h, most_h, least_l, most_l = currents
+    ok = (least_h >= lo * np.asarray(izt1)) & (most_h <= hi * np.asarray(izt1))
+    ok &= (least_l >= lo * np.asarray(izt2)) & (most_l <= hi * np.asarray(izt2))
+    return np.asarray(ok)
+
+
+def design_levels(
+    cols: Mapping[str, FloatArray],
+    load: Sequence[float | FloatArray],
+    at_rest: Sequence[FloatArray] | None = None,
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """(VH_lo, VH_hi, VL_lo, VL_hi) of every row of each stage that meets the rule (module
+    docstring), from the stage's columns (``clamplevels.candidate_columns`` layout) and its
+    loads (``clamplevels.LoadRange``: R3 and R1 + R2 ranges, A_max). ``at_rest``, when
+    given, is (least, most) |S0| with the square high, then low, over every row of each
+    stage (``clamplevels.rest_levels``): the ends are narrowed to them, the lower ones less
+    G·X (the exact level moves from S0 at a slope at most G while the current stays at least
+    0.5·Izt, which the rule holds from vt = 0 to the thresholds), the upper ones plus it."""
+    c = {k: np.asarray(v, dtype=float) for k, v in cols.items()}
+    _, r3_hi, rl_lo, rl_hi, a_max = (np.asarray(x, dtype=float) for x in load)
+    one = np.ones(np.shape(c["r5"]))
+    point = ClampPoint(
+        r1=0.5 * rl_lo * one, r2=0.5 * rl_lo * one, r3=r3_hi * one, c1=one, v_pos=one,
+        v_neg=-one, **{k: v for k, v in c.items()},
+    )  # fmt: skip
+    net = Clamp.of(point)
+    lo, hi = DESIGN_CURRENT
+    gl, g5, g3 = 1.0 / rl_lo, 1.0 / c["r5"], 1.0 / r3_hi
+    out: list[FloatArray] = []
+    ends = []
+    for chain, izt in ((net.up, c["izt1"]), (net.down, c["izt2"])):
+        floor = chain.voltage(lo * izt)
+        ends.append((floor, chain.voltage(hi * izt), chain.resistance(lo * izt)))
+    span_lo = ends[0][0] + ends[1][0]
+    reach = 2.0 * a_max + (1.0 + a_max / span_lo) * np.abs(c["vos2"]) + np.abs(c["ib2"]) * rl_hi
+    for side, (floor, ceiling, rd_max) in enumerate(ends):
+        g_max = gl / (g5 + g3 + gl + 1.0 / rd_max)
+        if at_rest is not None:
+            least, most = at_rest[2 * side], at_rest[2 * side + 1]
+            floor = np.maximum(floor, least - g_max * reach)
+            ceiling = np.minimum(ceiling, most)
+        out += [np.asarray(floor), np.asarray(np.maximum(ceiling + g_max * reach, floor))]
+    return out[0], out[1], out[2], out[3]
