@@ -119,8 +119,10 @@ def design_point_check(osc: ClampedOscillator) -> list[Warning]:
     p = osc.prediction()
     point = osc.point()
     vh, vl = square_levels(osc.rails, osc.opamp)
+    net = Clamp.of(point)
+    rest = (net.level(vh, 0.0, True)[0], -net.level(-vl, 0.0, False)[0])
     vt = (float(p.threshold_low_v), float(p.threshold_high_v))  # from the reference
-    currents = threshold_currents(Clamp.of(point), vh, vl, *vt)
+    currents = threshold_currents(net, (vh, vl), rest, vt)
     if bool(at_design_point(currents, point.izt1, point.izt2)):
         return []
     lo, hi = DESIGN_CURRENT

@@ -4,9 +4,12 @@ square levels it leaves a search stage.
 **The rule** (common practice: a zener's voltage and dynamic resistance are specified at its
 test current Izt, and a clamp is designed to run near it): over the triangle's range (its
 two thresholds) the zener in breakdown carries between ``DESIGN_CURRENT`` (0.5..2) times its
-test current, on each side of the square. A board outside it is not this circuit: the
-topology's check reports it as an error (``clamp_design_point``) and the exact search's rows
-(``searchform.predict_rows``) are invalid there, both through ``threshold_currents``.
+test current, on each side of the square. The currents are the model's own: with the level
+line S0 + g·vt (``physics``), I(vt) = I0 + vt·(1/Rl - g/Rth), I0 = |E(Vo, 0) - S0|/Rth the
+current with the triangle at the reference (closed form, no root search). A board outside
+it is not this circuit: the topology's check reports it as an error (``clamp_design_point``)
+and the exact search's rows (``searchform.predict_rows``) are invalid there, both through
+``threshold_currents``.
 
 **Levels under the rule** (``design_levels``; notation of ``clamplevels``). The square level
 S with U1's output at Vo solves (Vo - S)·G5 + (Vi - S)·G3 + (vt - S)·Gl = I_pair(S), and
@@ -18,8 +21,10 @@ The model uses the high level over [vt_b, turn_t] and the low over [turn_b, vt_t
 (``physics``: the turns lie past the thresholds by the edges' overshoots), so for a row that
 meets the rule:
 - lower ends: |S| (exact or linearised) is at least its exact value at the threshold where it
-  is least, V(I) with I ≥ 0.5·Izt: at least V(0.5·Izt) in that direction;
-- upper ends: |S0| = V(I0) with I0 (at vt = 0, between the thresholds) ≤ 2·Izt, and
+  is least, V(I) with I at least the line's current there (the exact level lies below the
+  tangent, so it draws more current), itself ≥ 0.5·Izt: at least V(0.5·Izt);
+- upper ends: |S0| = V(I0) with I0 (at vt = 0, between the thresholds, where the linear
+  I(vt) lies between its ends) ≤ 2·Izt, and
   g0 ≤ G = Gl_max/(G5 + G3_min + Gl_max + 1/rd(0.5·Izt)) (g rises with Gl and falls with G3
   and 1/rd, and I0 ≥ 0.5·Izt), so |S0 + g0·v| ≤ V(2·Izt) + G·X for |v| ≤ X; the exact
   level lies below the linearised one.
@@ -47,19 +52,28 @@ DESIGN_CURRENT = (0.5, 2.0)
 
 
 def threshold_currents(
-    net: Clamp, vh: Value, vl: Value, vt_low: Value, vt_high: Value
+    net: Clamp,
+    outputs: tuple[Value, Value],
+    rest: tuple[Value, Value],
+    thresholds: tuple[Value, Value],
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     """(least, most) pair current with the square high (D1 in breakdown), then (least, most)
-    with it low (D2), over the triangle at its two thresholds ``vt_low`` and ``vt_high`` (V
-    from the reference), U1's output at +``vh`` and -``vl`` (A)."""
-    high = [net.level(vh, vt, True)[1] for vt in (vt_low, vt_high)]
-    low = [net.level(-np.asarray(vl), vt, False)[1] for vt in (vt_low, vt_high)]
-    return (
-        np.minimum(*high),
-        np.maximum(*high),
-        np.minimum(*low),
-        np.maximum(*low),
-    )
+    with it low (D2), on the model's level line at the triangle's two thresholds
+    (``thresholds``, V from the reference): U1's output at +VH / -VL (``outputs``), the
+    levels S0 with the triangle at the reference (``rest``: S_H and the magnitude S_L, as
+    ``Clamp.level`` gives them) (A)."""
+    vh, vl = (np.asarray(x, dtype=float) for x in outputs)
+    s_h, s_l = np.asarray(rest[0], dtype=float), -np.asarray(rest[1], dtype=float)
+    out: list[FloatArray] = []
+    for vo, s0, high in ((vh, s_h, True), (-vl, s_l, False)):
+        e0 = net.source(vo, 0.0)
+        i0 = (e0 - s0) / net.rth if high else (s0 - e0) / net.rth
+        g = net.slope(np.maximum(i0, 1e-18), high)  # a pair at rest: rd large, g = Rth/Rl
+        per_volt = 1.0 / net.rl - g / net.rth  # dI/dvt on the line (same sign both sides)
+        ends = [i0 + np.asarray(vt, dtype=float) * (per_volt if high else -per_volt)
+                for vt in thresholds]  # fmt: skip
+        out += [np.minimum(*ends), np.maximum(*ends)]
+    return out[0], out[1], out[2], out[3]
 
 
 def at_design_point(

@@ -133,7 +133,8 @@ class ClampedSchmittForm(SearchForm):
                 getattr(out, name)[ok] = np.asarray(getattr(pred, name))
             with np.errstate(invalid="ignore"):
                 rule = np.zeros(n, dtype=bool)
-                rule[ok] = self.design_point(point, out_h[ok], out_l[ok], pred)
+                rest = (vh[ok], vl[ok])
+                rule[ok] = self.design_point(point, (out_h[ok], out_l[ok]), rest, pred)
             finite = np.isfinite(np.asarray(out.period_s)) & (np.asarray(out.period_s) > 0)
             finite &= np.isfinite(np.asarray(out.amplitude_vpp))
             ok &= finite & np.isfinite(np.asarray(out.duty_high)) & rule
@@ -143,14 +144,15 @@ class ClampedSchmittForm(SearchForm):
 
     @staticmethod
     def design_point(
-        point: ClampPoint, out_h: F64, out_l: F64, pred: Prediction
+        point: ClampPoint, outputs: tuple[F64, F64], rest: tuple[F64, F64], pred: Prediction
     ) -> NDArray[np.bool_]:
-        """Whether rows at ``point`` (U1's output at +``out_h`` / -``out_l``) meet the
-        clamp's design point over their thresholds (``designpoint``, the rule the topology's
-        check holds a board to)."""
+        """Whether rows at ``point`` (U1's output at +VH / -VL, ``outputs``; the clamp
+        levels ``rest`` with the triangle at the reference) meet the clamp's design point
+        over their thresholds (``designpoint``, the rule the topology's check holds a board
+        to)."""
         net = Clamp.of(point)
         vt = (np.asarray(pred.threshold_low_v), np.asarray(pred.threshold_high_v))
-        currents = threshold_currents(net, out_h, out_l, *vt)
+        currents = threshold_currents(net, outputs, rest, vt)
         return at_design_point(currents, point.izt1, point.izt2)
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:

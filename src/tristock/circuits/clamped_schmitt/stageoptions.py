@@ -216,6 +216,8 @@ def clamp_stages(
     opamps, excl = stocked_opamps(spec, catalog, lambda _, part: with_levels(part, spec))
     zeners, zener_excl = stocked_zeners(spec, catalog)
     excl += zener_excl
+    if not zeners:
+        return [], [*excl, Exclusion("D1", None, "no zener of the diode table is stocked")]
     resistors = clamp_resistors(spec, catalog)
     if not resistors or len(r3_values) == 0:
         return [], [*excl, Exclusion("R5", None, "no resistor of the table is eligible")]
