@@ -23,8 +23,17 @@ meets the rule:
 - lower ends: |S| (exact or linearised) is at least its exact value at the threshold where it
   is least, V(I) with I at least the line's current there (the exact level lies below the
   tangent, so it draws more current), itself ≥ 0.5·Izt: at least V(0.5·Izt);
-- upper ends: |S0| = V(I0) with I0 (at vt = 0, between the thresholds, where the linear
-  I(vt) lies between its ends) ≤ 2·Izt, and
+- upper ends, from the rule: along the line, dS/dI = g/(1/Rl - g/Rth) = rd0, so the line is
+  the tangent of the pair's V(I) at I0: S(vt) = V(I0) + rd0·(I(vt) - I0). At the far
+  threshold I(vt) ≤ 2·Izt, and I0 ≥ 0.5·Izt (I0 lies between the thresholds' currents);
+  V is concave in I, so the tangent at I0 taken at 2·Izt falls as I0 grows: S ≤ V(0.5·Izt)
+  + rd(0.5·Izt)·1.5·Izt at both thresholds. Past them, to the turns, the line rises by at
+  most g0·(turn - threshold) ≤ G·``turn_v`` (the caller's bound of the turns' reach past the
+  thresholds: by the timing share s of a row, (a·d_f + b·d_r)/RC' ≤ k·span·s/(1 - s),
+  ``search.bounds.overshoot_fraction_cap`` at the row's own period, so at most
+  2·A_max·s/(1 - s) for the rows claimed);
+- upper ends, from the loads: |S0| = V(I0) with I0 (at vt = 0, between the thresholds, where
+  the linear I(vt) lies between its ends) ≤ 2·Izt, and
   g0 ≤ G = Gl_max/(G5 + G3_min + Gl_max + 1/rd(0.5·Izt)) (g rises with Gl and falls with G3
   and 1/rd, and I0 ≥ 0.5·Izt), so |S0 + g0·v| ≤ V(2·Izt) + G·X for |v| ≤ X; the exact
   level lies below the linearised one.
@@ -92,6 +101,7 @@ def design_levels(
     cols: Mapping[str, FloatArray],
     load: Sequence[float | FloatArray],
     at_rest: Sequence[FloatArray] | None = None,
+    turn_v: float = np.inf,
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     """(VH_lo, VH_hi, VL_lo, VL_hi) of every row of each stage that meets the rule (module
     docstring), from the stage's columns (``clamplevels.candidate_columns`` layout) and its
@@ -99,7 +109,9 @@ def design_levels(
     given, is (least, most) |S0| with the square high, then low, over every row of each
     stage (``clamplevels.rest_levels``): the ends are narrowed to them, the lower ones less
     G·X (the exact level moves from S0 at a slope at most G while the current stays at least
-    0.5·Izt, which the rule holds from vt = 0 to the thresholds), the upper ones plus it."""
+    0.5·Izt, which the rule holds from vt = 0 to the thresholds), the upper ones plus it.
+    ``turn_v`` (V) bounds how far the turns lie past the thresholds (module docstring): the
+    upper ends are then at most the rule's tangent bound plus G·``turn_v``."""
     c = {k: np.asarray(v, dtype=float) for k, v in cols.items()}
     _, r3_hi, rl_lo, rl_hi, a_max = (np.asarray(x, dtype=float) for x in load)
     one = np.ones(np.shape(c["r5"]))
@@ -114,14 +126,16 @@ def design_levels(
     ends = []
     for chain, izt in ((net.up, c["izt1"]), (net.down, c["izt2"])):
         floor = chain.voltage(lo * izt)
-        ends.append((floor, chain.voltage(hi * izt), chain.resistance(lo * izt)))
+        tangent = floor + chain.resistance(lo * izt) * (hi - lo) * izt
+        ends.append((floor, chain.voltage(hi * izt), chain.resistance(lo * izt), tangent))
     span_lo = ends[0][0] + ends[1][0]
     reach = 2.0 * a_max + (1.0 + a_max / span_lo) * np.abs(c["vos2"]) + np.abs(c["ib2"]) * rl_hi
-    for side, (floor, ceiling, rd_max) in enumerate(ends):
+    for side, (floor, ceiling, rd_max, tangent) in enumerate(ends):
         g_max = gl / (g5 + g3 + gl + 1.0 / rd_max)
         if at_rest is not None:
             least, most = at_rest[2 * side], at_rest[2 * side + 1]
             floor = np.maximum(floor, least - g_max * reach)
             ceiling = np.minimum(ceiling, most)
-        out += [np.asarray(floor), np.asarray(np.maximum(ceiling + g_max * reach, floor))]
+        top = np.minimum(ceiling + g_max * reach, tangent + g_max * turn_v)
+        out += [np.asarray(floor), np.asarray(np.maximum(top, floor))]
     return out[0], out[1], out[2], out[3]

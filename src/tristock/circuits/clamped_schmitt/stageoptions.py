@@ -166,6 +166,7 @@ def opamp_stages(
     load: tuple[LoadRange, LoadRange],
     r3_values: F64,
     rails: Rails,
+    turn_v: float,
 ) -> tuple[list[ClampStage], list[Exclusion]]:
     """The stages of one op amp over every zener part (D1 = D2) and R5, zener-major in
     catalog order, and the exclusions of the others."""
@@ -182,7 +183,7 @@ def opamp_stages(
     verdict = LimitVerdict(*(x & np.array([w is None for w in why])[:, None] for x in verdict))
     keep_z, keep_r = np.nonzero(verdict.ok)
     kept = {k: v[keep_z, keep_r] for k, v in cols.items()}
-    found = design_levels(kept, load[0], rest_levels(kept, load[0], rails))
+    found = design_levels(kept, load[0], rest_levels(kept, load[0], rails), turn_v)
     ve_all = model.offset_v + model.bias_a * np.asarray(r3_values, dtype=float)
     stages: list[ClampStage] = []
     for n, z in enumerate(zeners):
@@ -199,6 +200,13 @@ def opamp_stages(
         at, fixed = start + len(stages), fixed_fields(cols, (n, r))
         stages.append(make_stage(at, opamp, pairs[n], resistors[r], load, levels, ve_range, fixed))
     return stages, excl
+
+
+def turn_reach(spec: Spec) -> float:
+    """How far the triangle's turns lie past its thresholds in a row the bounds claim (V):
+    2·A_max·s/(1 - s), s the spec's largest timing share (``designpoint``)."""
+    s = spec.limits.max_timing_share
+    return 2.0 * spec.triangle.amplitude_vpp * (1 + spec.triangle.tolerance_pct / 100) * s / (1 - s)
 
 
 def with_levels(part: OpAmp, spec: Spec) -> OpAmpAt | str:
@@ -225,7 +233,9 @@ def clamp_stages(
     rails = rails_from_supply(spec.supply)
     stages: list[ClampStage] = []
     for opamp in opamps:
-        made, why = opamp_stages(len(stages), opamp, zeners, resistors, load, r3_values, rails)
+        made, why = opamp_stages(
+            len(stages), opamp, zeners, resistors, load, r3_values, rails, turn_reach(spec)
+        )
         stages += made
         excl += why
         if not made:
