@@ -80,7 +80,7 @@ class ClampedSchmitt(OpAmpVariant):
             "R1": "R1F-10K0",
             "R2": "R1F-22K1",
             "R3": "R1F-47K5",
-            "R5": "R1F-2K00",
+            "R5": "R1F-1K50",
             "C1": "CPPG-4N70",
             "D1": "GD-Z5V1-02",
             "D2": "GD-Z5V1-02",
