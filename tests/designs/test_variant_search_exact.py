@@ -2,7 +2,8 @@
 
 Reference, written here and independent of the search forms, windows, bounds and pruning:
 every board of a small catalog (U1 × the stage's own parts: a push-pull comparator U2, the
-comparators the search takes; × R1, R2, R3 × C1)
+comparators the search takes; or a zener part for D1 = D2 and R5 from the resistors, for the
+zener-clamped loop; × R1, R2, R3 × C1)
 built as its topology's board and predicted by the topology's own model at nominal values,
 25 °C and the nominal rails (``board.oscillator(...).prediction()``, itself checked against
 ngspice in tests/circuits), accepted by the spec's rules as the README states them (bands;
@@ -18,6 +19,7 @@ once per line saved). ``topology = "any"`` must give the merge of the circuits' 
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 from pathlib import Path
 from typing import Any
@@ -27,7 +29,7 @@ import pytest
 
 from tristock.analysis.worstcase import worst_case
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import AnyBoard, Design, rails_from_supply
+from tristock.circuits.board import AnyBoard, Design, board_from, rails_from_supply
 from tristock.circuits.rails import OpAmpModel
 from tristock.designs import design
 from tristock.search.model import (
@@ -41,6 +43,7 @@ from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
 from tristock.stock import eseries
 from tristock.stock.comparators import Comparator
+from tristock.stock.diodes import Diode
 from tristock.stock.parts import Capacitor, OpAmp, Part, Resistor
 from tristock.stock.tables import Catalog
 
@@ -51,11 +54,19 @@ def stages(name: str, catalog: Catalog) -> list[dict[str, Part]]:
     for u1 in catalog.opamps:
         if name == "comparator_schmitt":
             out += [{"U1": u1, "U2": u2} for u2 in catalog.comparators if not u2.is_open_drain]
+        if name == "clamped_schmitt":
+            zeners = [d for d in catalog.diodes if d.is_zener]
+            out += [
+                {"U1": u1, "D1": z, "D2": z, "R5": r5}
+                for z, r5 in itertools.product(zeners, catalog.resistors)
+            ]
     return out
 
 
 def board_of(name: str, parts: dict[str, Part]) -> AnyBoard:
     """The board of ``name`` built from its parts by designator (``Design`` for both loops)."""
+    if name == "clamped_schmitt":
+        return board_from(TOPOLOGIES[name], parts)
     named: dict[str, Any] = {k.lower(): p for k, p in parts.items()}
     return Design(**named, topology=TOPOLOGIES[name])
 
@@ -134,9 +145,15 @@ def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...
     boards = spec.build.boards
     keyed = []
     for stage in stages(name, catalog):
-        for r1, r2, r3, c1 in itertools.product(
-            catalog.resistors, catalog.resistors, catalog.resistors, catalog.capacitors
-        ):
+        combos = list(
+            itertools.product(
+                catalog.resistors, catalog.resistors, catalog.resistors, catalog.capacitors
+            )
+        )
+        near = in_bands_nearly(name, spec, stage, combos)
+        for (r1, r2, r3, c1), close in zip(combos, near, strict=True):
+            if not close:
+                continue
             board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
             e = accepted(spec, board)
             if e is None:
@@ -152,6 +169,32 @@ def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...
             keyed.append((score_key(model, spec, board, stage, e), ids))
     keyed.sort()
     return [(key[0], ids) for key, ids in keyed[: spec.ranking.top]]
+
+
+def in_bands_nearly(
+    name: str, spec: Spec, stage: dict[str, Part], combos: list[tuple[Part, ...]]
+) -> list[bool]:
+    """Whether each board of ``stage`` × ``combos`` (R1, R2, R3, C1) can be in the bands: for
+    the zener-clamped loop (3 ms a board one by one) the topology's own ``predict`` at the
+    boards' points all at once (the same function ``accepted`` evaluates, held equal to it
+    at 1e-12 in tests/circuits/clamped_schmitt), bands widened by 1e-6; every board else."""
+    if name != "clamped_schmitt":
+        return [True] * len(combos)
+    topology = TOPOLOGIES[name]
+    rails = rails_from_supply(spec.supply)
+    points = []
+    for r1, r2, r3, c1 in combos:
+        parts = {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1}
+        points.append(topology.board_point(board_from(topology, parts), rails, 25.0))
+    fields = [f.name for f in dataclasses.fields(points[0])]
+    stacked = type(points[0])(**{n: np.array([getattr(x, n) for x in points]) for n in fields})
+    with np.errstate(all="ignore"):
+        p = topology.predict(stacked, rails.v_ref)
+        f, a = np.asarray(p.frequency_hz), np.asarray(p.amplitude_vpp)
+    tf, ta = spec.target.tolerance_pct / 100 + 1e-6, spec.triangle.tolerance_pct / 100 + 1e-6
+    f_t, a_t = spec.target.target_hz, spec.triangle.amplitude_vpp
+    ok = (np.abs(f / f_t - 1) <= tf) & (np.abs(a / a_t - 1) <= ta)
+    return [bool(x) for x in ok]
 
 
 def inside_worst_case(spec: Spec, board: AnyBoard) -> bool:
@@ -203,6 +246,24 @@ def small_catalog(seed: int, n_res: int = 7) -> Catalog:
     return Catalog(Path("<memory>"), res, caps, ops, comparators=comparators)
 
 
+def clamp_catalog(seed: int) -> Catalog:
+    """``small_catalog`` with four resistors (three around the clamp's series resistor) and
+    two zeners (a 2 % 5.1 V and a 5 % 3.9 V, tested at 5 mA): invented test parts."""
+    base = small_catalog(seed, n_res=4)
+    rng = np.random.default_rng(seed + 100)
+    extra = tuple(
+        Resistor(f"TR-S{n}", v, 1.0, 100.0, "E24", 0.25, "0603", float(rng.choice([0.002, 0.01])),
+                 10**4)
+        for n, v in enumerate((1.0e3, 1.5e3, 2.2e3))
+    )  # fmt: skip
+    zeners = (
+        Diode("TZ-Z5V1", "zener", 5.1, 5e-3, 2.0, -0.2, 55.0, 0.72, 0.5, 0.045, 10**4),
+        Diode("TZ-Z3V9", "zener", 3.9, 5e-3, 5.0, -2.0, 85.0, 0.72, 0.5, 0.022, 10**4),
+    )
+    res = tuple(sorted((*base.resistors, *extra), key=lambda r: r.value_ohm))
+    return Catalog(Path("<memory>"), res, base.capacitors, base.opamps[:1], diodes=zeners)
+
+
 def spec_near(name: str, catalog: Catalog, guarantee: str, by: str, pick: int) -> Spec:
     """A spec whose target is one buildable board's nominal prediction (the ``pick``-th of
     them in sorted order), so that several boards meet it."""
@@ -210,7 +271,10 @@ def spec_near(name: str, catalog: Catalog, guarantee: str, by: str, pick: int) -
     rails = rails_from_supply(skeleton.supply)
     made = []
     rng = np.random.default_rng(pick)
-    for stage in stages(name, catalog):
+    clamped = name == "clamped_schmitt"
+    # the clamp's targets from its series resistors under 3 kΩ (the others cannot reach its
+    # design point on these rails), to keep the scan short
+    for stage in [s for s in stages(name, catalog) if not clamped or s["R5"].value < 3e3]:
         for r1, r2, r3, c1 in itertools.product(
             catalog.resistors[::2], catalog.resistors, catalog.resistors[::3], catalog.capacitors
         ):
@@ -221,8 +285,11 @@ def spec_near(name: str, catalog: Catalog, guarantee: str, by: str, pick: int) -
                 p = board.oscillator(rails).prediction()
             except ValueError:
                 continue
-            if np.isfinite(p.frequency_hz) and float(p.timing_share) < 0.1:
-                made.append((float(p.frequency_hz), float(p.amplitude_vpp)))
+            if not (np.isfinite(p.frequency_hz) and float(p.timing_share) < 0.1):
+                continue
+            if clamped and any(w.severity == "error" for w in board.topology.check(board, rails)):
+                continue
+            made.append((float(p.frequency_hz), float(p.amplitude_vpp)))
     assert made, "the test catalog builds nothing"
     made.sort()
     f, a = made[(pick * 7919) % len(made)]
@@ -250,6 +317,10 @@ CASES = [
     ("comparator_schmitt", "worst_case", "balanced", 4),
     ("comparator_schmitt", "worst_case", "frequency_error", 6),
     ("comparator_schmitt", "nominal", "balanced", 7),
+    ("clamped_schmitt", "nominal", "balanced", 1),
+    ("clamped_schmitt", "nominal", "cost", 2),
+    ("clamped_schmitt", "worst_case", "balanced", 3),
+    ("clamped_schmitt", "worst_case", "frequency_error", 4),
 ]
 
 
@@ -257,7 +328,7 @@ CASES = [
 def test_both_engines_return_the_full_model_top_k(
     name: str, guarantee: str, by: str, seed: int
 ) -> None:
-    catalog = small_catalog(seed)
+    catalog = clamp_catalog(seed) if name == "clamped_schmitt" else small_catalog(seed)
     spec = spec_near(name, catalog, guarantee, by, seed)
     expected = reference(name, spec, catalog)
     assert expected, "the spec admits no board: the case tests nothing"
@@ -290,5 +361,9 @@ def test_any_circuit_is_the_merge_of_each_circuits_answers() -> None:
     assert got == want
 
 
-CIRCUIT_OF = {"opamp_schmitt": {}, "comparator_schmitt": {"schmitt": "comparator"}}
+CIRCUIT_OF = {
+    "opamp_schmitt": {},
+    "comparator_schmitt": {"schmitt": "comparator"},
+    "clamped_schmitt": {"clamp": "zener"},
+}
 ORDER = {name: n for n, name in enumerate(TOPOLOGIES)}

@@ -40,7 +40,7 @@ FORWARD_EMISSION = 1.8
 ZENER_FORWARD_TEMPCO_MV_PER_C = -2.0
 #: A small zener's bulk series resistance (Ω; from memory, about 1 Ω for 0.5 W glass parts).
 ZENER_BULK_OHM = 1.0
-#: Bisection steps on ln I in ``chain_current`` (the bracket spans e^-41 .. I_max).
+#: The most Newton steps on ln I in ``Chain.current`` (from I_max down to e^-41).
 BISECTIONS = 90
 
 
@@ -197,18 +197,27 @@ class Chain:
 
     def current(self, source_v: ArrayLike, source_ohm: ArrayLike) -> FloatArray:
         """The chain's current I (A) behind a Thevenin source E = ``source_v`` with series
-        ``source_ohm``: the root of v0 + m·ln I + (r + R)·I = E, by bisection on ln I over
-        [e^-41, I_max] (monotone in I). Where E cannot drive even e^-41 A the result is that
+        ``source_ohm``: the root of f(x) = v0 + m·x + (r + R)·e^x - E in x = ln I over
+        [-41, x_max] (f increasing and convex in x), by Newton's method from a start where
+        f > 0 (the lesser of x_max = ln((|E - v0| + 50·m)/(r + R)) and (E - v0)/m): on a
+        convex increasing f its steps fall monotonically onto the root (never past it), at
+        most ``BISECTIONS`` of them, stopping once none moves x by more than 1e-13·|x| (about
+        the rounding of f near the root). Where E cannot drive even e^-41 A the result is that
         floor: the chain does not conduct."""
         e, rs, v0, m, r = np.broadcast_arrays(
             *(np.asarray(x, dtype=float) for x in (source_v, source_ohm, self.v0, self.m, self.r))
         )
         total = np.maximum(r + rs, 1e-12)
-        lo = np.full(e.shape, -41.0)
-        hi = np.log((np.abs(e - v0) + 50.0 * m) / total + 1e-18)
+        # both starts have f > 0: R·I_max ≥ |E - v0| + 50·m, and at x = (E - v0)/m f = R·e^x
+        with np.errstate(divide="ignore", over="ignore"):
+            x = np.minimum(np.log((np.abs(e - v0) + 50.0 * m) / total + 1e-18), (e - v0) / m)
+        x = np.maximum(x, -41.0)
         for _ in range(BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            over = v0 + m * mid + total * np.exp(mid) > e
-            hi = np.where(over, mid, hi)
-            lo = np.where(over, lo, mid)
-        return np.asarray(np.exp(0.5 * (lo + hi)), dtype=float)
+            grow = total * np.exp(x)
+            step = (v0 + m * x + grow - e) / (m + grow)
+            moved = np.maximum(x - np.maximum(step, 0.0), -41.0)
+            done = not np.any(x - moved > 1e-13 * np.maximum(1.0, np.abs(x)))
+            x = moved
+            if done:
+                break
+        return np.asarray(np.exp(x), dtype=float)

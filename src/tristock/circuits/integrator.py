@@ -76,6 +76,11 @@ def lag_overshoot_area(
     For a real edge (a build-up, then the slew) the area is that of its linear part; it is
     below SR·τi²/2, about 1 mV of peak for realistic parts, so the approximation is harmless.
     """
+    if bool(np.all(np.isinf(slew))):  # steps only: the closed form, no Lambert W
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = np.where(lag > 0.0, after * lag * np.log1p(before / after), 0.0)
+        shape = np.broadcast_shapes(*(np.shape(x) for x in (before, after, slew, lag)))
+        return np.asarray(np.broadcast_to(step, shape), dtype=float)
     # each branch is computed only where some value takes it (every value on its own)
     lagging = lag > 0.0
     everywhere = bool(np.all(lagging))

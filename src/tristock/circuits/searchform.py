@@ -66,7 +66,12 @@ class StageLoop(NamedTuple):
     over every row the stage can be in; ``ve_lo``..``ve_hi`` the integrator error voltage
     Ve = Vos1 + Ib1·R3 over the R3 values eligible. The drives of the falling and rising ramps
     are a = VH - Ve and b = VL + Ve; the span VH + VL is the distance the thresholds scale
-    with and the comparator edge's length."""
+    with and the comparator edge's length.
+
+    ``delay_spread`` (s, default 0) widens the edges' transport delay to an interval
+    [``delay``, ``delay`` + ``delay_spread``] for loops whose edges are not one fixed delay and
+    slew (the zener-clamped square: U1's output slews from a rail into the clamp, over a time
+    that depends on the row); ``search.bounds`` takes the end that makes each bound valid."""
 
     vh_lo: F64
     vh_hi: F64
@@ -79,6 +84,7 @@ class StageLoop(NamedTuple):
     integrator_gbw: F64
     ve_lo: F64
     ve_hi: F64
+    delay_spread: F64 = np.zeros(())
 
     def take(self, idx: I64) -> StageLoop:
         return StageLoop(*(np.asarray(x)[idx] for x in self))
@@ -91,9 +97,17 @@ class StageLoop(NamedTuple):
     def span_hi(self) -> F64:
         return np.asarray(self.vh_hi + self.vl_hi)
 
+    @property
+    def delay_hi(self) -> F64:
+        """The longest transport delay of the stage's edges (s)."""
+        return np.asarray(self.delay + self.delay_spread)
+
     def weak(self) -> tuple[F64, F64]:
-        """The smallest drives: a = VH_lo - Ve_hi, b = VL_lo + Ve_lo."""
-        return np.asarray(self.vh_lo - self.ve_hi), np.asarray(self.vl_lo + self.ve_lo)
+        """The smallest drives: a = VH_lo - Ve_hi, b = VL_lo + Ve_lo, each at least 0 (a row
+        oscillates only with both its drives positive, so 0 stays below them where the
+        intervals' ends alone would not: a weakest drive of 0 bounds nothing above)."""
+        a = np.maximum(self.vh_lo - self.ve_hi, 0.0)
+        return np.asarray(a), np.asarray(np.maximum(self.vl_lo + self.ve_lo, 0.0))
 
     def strong(self) -> tuple[F64, F64]:
         """The largest drives: a = VH_hi - Ve_lo, b = VL_hi + Ve_hi."""

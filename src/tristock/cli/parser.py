@@ -106,7 +106,7 @@ def _design(sub: Subparsers) -> None:
         const=EXAMPLES[0],
         choices=EXAMPLES,
         help="a bundled example spec on the demo catalog: demo (default), trimmed, tuned, "
-        "comparator",
+        "comparator, clamped",
     )
     d.add_argument(
         "--plot", type=text("a file name"), help="tuned designs: rank 1's dial law (.png/.svg)"

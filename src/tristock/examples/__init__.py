@@ -1,5 +1,5 @@
-"""The bundled examples: four specs (``demo``, ``trimmed``, ``tuned``; the variant
-``comparator``) and the demo stock room.
+"""The bundled examples: five specs (``demo``, ``trimmed``, ``tuned``; the variant
+``comparator``, ``clamped``) and the demo stock room.
 
 The demo catalog sits inside the installed package (``tristock/demo_catalog``, put there by the
 wheel build) or, in a source checkout, at ``catalogs/demo``.
@@ -11,7 +11,7 @@ from importlib import resources
 from pathlib import Path
 
 #: Names of the bundled example specs, the first the default.
-EXAMPLES = ("demo", "trimmed", "tuned", "comparator")
+EXAMPLES = ("demo", "trimmed", "tuned", "comparator", "clamped")
 
 
 def demo_catalog_dir() -> Path:

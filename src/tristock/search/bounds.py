@@ -50,6 +50,14 @@ From them:
   (τi/RC' = ε/(1 + ε)² falls for ε < 1; drive·G/(λ·RC') is k·SR·μ·G/λ with μ ∝ 1/RC',
   which falls with P by G2; td·drive/RC' falls) and rise with
   their drive (G2 for μ ∝ drive and G3 for L0 ∝ drive).
+- (M6) a delay interval (``StageLoop.delay_spread`` > 0: the edges' transport delay td is
+  only known to lie in [delay, delay + delay_spread] over the stage's rows, as for the
+  zener-clamped square): for GBW = inf, c = td + span/(2·SR) and o = td + drive/(2·SR) carry
+  td additively, so T, D = T - T_i and both ends of each overshoot rise with td while T_i
+  does not depend on it. The upper ends (period, overshoot reach) take the longest delay,
+  the lower ends (period, overshoot floor, D in the share's floor) the shortest. With a finite
+  GBW, td also enters G through λ·td, where no monotonicity is verified: ``claimed``
+  answers False for a finite GBW with a spread.
 Every row the search evaluates is also held to these bounds at run time
 (``search.rows``), and a violation withdraws the proof.
 """
@@ -74,8 +82,17 @@ class Bounds(NamedTuple):
     hi: Array
 
 
-def _timing(loop: StageLoop, k: Array, p: Array, span: Array, a: Array, b: Array) -> LoopTiming:
-    """The loop's timing at P = k·RC with the span VH + VL and the drives a and b."""
+def _timing(
+    loop: StageLoop,
+    k: Array,
+    p: Array,
+    span: Array,
+    a: Array,
+    b: Array,
+    delay: Array | None = None,
+) -> LoopTiming:
+    """The loop's timing at P = k·RC with the span VH + VL and the drives a and b, the edges'
+    transport delay ``delay`` (the loop's shortest, ``loop.delay``, when not given)."""
     return loop_timing(
         k,
         p / k,
@@ -84,10 +101,23 @@ def _timing(loop: StageLoop, k: Array, p: Array, span: Array, a: Array, b: Array
         b,
         slew_rise=loop.slew_rise,
         slew_fall=loop.slew_fall,
-        delay=loop.delay,
+        delay=loop.delay if delay is None else delay,
         gbw=loop.gbw,
         integrator_gbw=loop.integrator_gbw,
     )
+
+
+def _at_both_delays(
+    loop: StageLoop, k: Array, p: Array, drives: tuple[Array, Array, Array]
+) -> tuple[LoopTiming, LoopTiming]:
+    """The timing at the shortest and at the longest delay of the loop's interval (the same
+    evaluation twice where no stage has a delay spread): every quantity ``loop_timing``
+    gives rises with the delay (d = c + τi and o rise with td), so the lower ends take the
+    first and the upper ends the second."""
+    short = _timing(loop, k, p, *drives)
+    if not np.any(np.asarray(loop.delay_spread) > 0):
+        return short, short
+    return short, _timing(loop, k, p, *drives, delay=loop.delay_hi)
 
 
 def _weak(loop: StageLoop) -> tuple[Array, Array, Array]:
@@ -107,13 +137,14 @@ EDGE_LEVEL_MIN = 0.1
 def claimed(loop: StageLoop, k: Array) -> NDArray[np.bool_]:
     """Where the bounds hold: an ideal comparator (GBW = inf, a linear slew), or every edge's
     levels λ·V/SR at least EDGE_LEVEL_MIN for the smallest drive of the Ve range and the
-    faster slew (the whole edge, λ·span/SR, is longer still)."""
+    faster slew (the whole edge, λ·span/SR, is longer still) and no delay spread (M6)."""
     a, b = loop.weak()
     lam = 2.0 * np.pi * np.asarray(loop.gbw, dtype=float) * k / (1.0 + k)
     fastest = np.maximum(loop.slew_rise, loop.slew_fall)
     with np.errstate(invalid="ignore", over="ignore"):
         level = lam * np.minimum(a, b) / fastest
-    return np.asarray(np.isinf(loop.gbw) | (level >= EDGE_LEVEL_MIN))
+    spread = np.asarray(loop.delay_spread) > 0
+    return np.asarray(np.isinf(loop.gbw) | ((level >= EDGE_LEVEL_MIN) & ~spread))
 
 
 def _or_unbounded(ok: NDArray[np.bool_], bounds: Bounds) -> Bounds:
@@ -124,7 +155,8 @@ def period_bounds(loop: StageLoop, k: Array, p: Array) -> Bounds:
     """Bounds of the period at (k, P) over the Ve range (s): by (M2) the weakest drives give
     the longest period and the strongest the shortest; (0, inf) where no bound is claimed."""
     t = Bounds(
-        _timing(loop, k, p, *_strong(loop)).period_s, _timing(loop, k, p, *_weak(loop)).period_s
+        _timing(loop, k, p, *_strong(loop)).period_s,
+        _timing(loop, k, p, *_weak(loop), delay=loop.delay_hi).period_s,
     )
     return _or_unbounded(claimed(loop, k), t)
 
@@ -141,13 +173,13 @@ def amplitude_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Bou
 def range_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> tuple[Bounds, Array]:
     """``amplitude_bounds`` and ``timing_share_floor`` over [p_lo, p_hi] at once: both take
     the strongest drives' timing at p_lo and the weakest's at p_hi, computed here once."""
-    strong = _timing(loop, k, p_lo, *_strong(loop))
+    strong, strong_late = _at_both_delays(loop, k, p_lo, _strong(loop))
     weak = _timing(loop, k, p_hi, *_weak(loop))
     ok = claimed(loop, k)
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
     a = Bounds(
         k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
-        k * loop.span_hi + strong.reach_top_v + strong.reach_bottom_v,
+        k * loop.span_hi + strong_late.reach_top_v + strong_late.reach_bottom_v,
     )
     d_min = strong.period_s - strong.ideal_period_s
     share = np.where(ok, d_min / (weak.ideal_period_s + d_min), 0.0)
@@ -157,14 +189,14 @@ def range_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> tuple[B
 def point_bounds(loop: StageLoop, k: Array, p: Array) -> tuple[Bounds, Bounds]:
     """``period_bounds(loop, k, p)`` and ``amplitude_bounds(loop, k, p, p)`` at once: both
     take the strongest and the weakest drives' timing at P, computed here once."""
-    strong = _timing(loop, k, p, *_strong(loop))
-    weak = _timing(loop, k, p, *_weak(loop))
+    strong, strong_late = _at_both_delays(loop, k, p, _strong(loop))
+    weak, weak_late = _at_both_delays(loop, k, p, _weak(loop))
     ok = claimed(loop, k)
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
-    period = _or_unbounded(ok, Bounds(strong.period_s, weak.period_s))
+    period = _or_unbounded(ok, Bounds(strong.period_s, weak_late.period_s))
     amplitude = Bounds(
         k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
-        k * loop.span_hi + strong.reach_top_v + strong.reach_bottom_v,
+        k * loop.span_hi + strong_late.reach_top_v + strong_late.reach_bottom_v,
     )
     return period, _or_unbounded(ok & (np.asarray(p) * wt >= k), amplitude)
 
@@ -256,8 +288,8 @@ def _edge(
     loop: StageLoop, k: Array, target: Array, drives: tuple[Array, ...], side: Array | float
 ) -> Array:
     """Where the period at ``drives`` crosses ``target``, pushed outwards (side -1: down, the
-    window's low end; +1: up, its high end; one per element or one for all) until it is
-    strictly past, as computed."""
+    window's low end, at the loop's longest delay; +1: up, its high end, at its shortest; one
+    side per element or one for all) until it is strictly past, as computed."""
     k, target = np.broadcast_arrays(np.asarray(k, dtype=float), target)
     n = len(k)
     span, a, b = (np.broadcast_to(x, (n,)) for x in drives)
@@ -266,7 +298,8 @@ def _edge(
 
     def period(p: Array, sel: NDArray[np.int64]) -> Array:
         sub = StageLoop(*(np.broadcast_to(x, (n,))[sel] for x in loop))
-        return _timing(sub, k[sel], p, span[sel], a[sel], b[sel]).period_s
+        delay = np.where(down[sel], sub.delay_hi, sub.delay)
+        return _timing(sub, k[sel], p, span[sel], a[sel], b[sel], delay=delay).period_s
 
     p = np.maximum(target * a * b / (span * span), 1e-30)  # the ideal switch's P (too large)
     todo = np.flatnonzero(ok)

@@ -168,6 +168,7 @@ def probe_loop(model: SearchModel, u: I64, probe: Probe, temp: F64) -> StageLoop
         loop.integrator_gbw,
         np.minimum(ve_a, ve_b),
         np.maximum(ve_a, ve_b),
+        delay_spread=loop.delay_spread * delay,
     )
 
 

@@ -26,6 +26,7 @@ from tristock.circuits.clamped_schmitt.spread import (
 )
 from tristock.circuits.clamped_schmitt.timedomain import loop_from
 from tristock.circuits.opampvariant import OpAmpVariant, VariantFunctions
+from tristock.circuits.searchform import SearchForm
 from tristock.circuits.topology import PartRole
 
 SKETCH = r"""
@@ -79,7 +80,7 @@ class ClampedSchmitt(OpAmpVariant):
             "R1": "R1F-10K0",
             "R2": "R1F-22K1",
             "R3": "R1F-47K5",
-            "R5": "R1F-2K00",
+            "R5": "R1F-1K50",
             "C1": "CPPG-4N70",
             "D1": "GD-Z5V1-02",
             "D2": "GD-Z5V1-02",
@@ -99,13 +100,11 @@ class ClampedSchmitt(OpAmpVariant):
     )
     diode_keyword = "zeners"
 
-    def search_form(self) -> None:
-        """Not searchable yet: its search form (``searchform.SEARCH_FORM``, each row equal to
-        this model, tested) is built, but its stages (U1 × zener × R5, thousands on a stock
-        room) carry level intervals over every load, too wide for the windows to prune (the
-        bundled clamped example ran for minutes), and ``search.bounds`` is not proven for its
-        timing. Until per-pair level bounds exist, the exact search refuses this circuit."""
-        return None
+    def search_form(self) -> SearchForm:
+        """The exact search's form (``searchform.SEARCH_FORM``): stages U1 × zener × R5 at the
+        clamp's design point (``designpoint``), its timing bounded through a delay interval
+        (``clamplevels``, "Timing")."""
+        return SEARCH_FORM
 
 
 CLAMPED_SCHMITT = ClampedSchmitt()

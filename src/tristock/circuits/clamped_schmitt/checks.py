@@ -1,10 +1,13 @@
-"""Design checks of the zener-clamped loop. Codes: clamp_not_clamping, zener_power,
+"""Design checks of the zener-clamped loop. Codes: clamp_not_clamping, clamp_design_point,
+zener_power,
 load_comparator, resistor_power, supply_range, slew_integrator, comparator_buildup and the
 capacitor's (``circuits.checks.capacitor_checks``).
 
 The margins are common practice, not from a standard: the zener current at least
 ``CLAMP_ERROR`` (error) and ``CLAMP_CAUTION`` (caution) of its test current, or the level
-rides on the op amp's swing; 50 % of a current or power rating; 2x slew
+rides on the op amp's swing; the zener current within ``designpoint.DESIGN_CURRENT`` of its
+test current over the triangle's range (error: the rule of this circuit); 50 % of a current or
+power rating; 2x slew
 (``opampvariant.SLEW_MARGIN``); the comparator's GBW build-up (not in the model) under
 ``BUILDUP_CAUTION`` of the period.
 """
@@ -22,6 +25,11 @@ from tristock.circuits.checks import (
     percent,
     supply_range,
     volts,
+)
+from tristock.circuits.clamped_schmitt.designpoint import (
+    DESIGN_CURRENT,
+    at_design_point,
+    threshold_currents,
 )
 from tristock.circuits.clamped_schmitt.oscillator import ClampedOscillator
 from tristock.circuits.clamped_schmitt.physics import Clamp
@@ -67,6 +75,7 @@ def check(
     p = osc.prediction()
     found += supply_range(osc.rails.span_v, opamp.supply_min_v, opamp.supply_max_v)
     sides = clamp_currents(osc)
+    found += design_point_check(osc)
     worst_out = 0.0
     for side, designator, other in (("high", "D1", "D2"), ("low", "D2", "D1")):
         least, out_a, level = sides[side]
@@ -102,6 +111,32 @@ def check(
     found += buildup_check(osc)
     found += integrator_capacitor(p, osc.opamp, capacitor)
     return found
+
+
+def design_point_check(osc: ClampedOscillator) -> list[Warning]:
+    """Error when the zener current leaves ``DESIGN_CURRENT`` times its test current over the
+    triangle's thresholds (``designpoint``: the same function the search's rows use)."""
+    p = osc.prediction()
+    point = osc.point()
+    vh, vl = square_levels(osc.rails, osc.opamp)
+    net = Clamp.of(point)
+    rest = (net.level(vh, 0.0, True)[0], -net.level(-vl, 0.0, False)[0])
+    vt = (float(p.threshold_low_v), float(p.threshold_high_v))  # from the reference
+    currents = threshold_currents(net, (vh, vl), rest, vt)
+    if bool(at_design_point(currents, point.izt1, point.izt2)):
+        return []
+    lo, hi = DESIGN_CURRENT
+    least = min(float(currents[0]) / float(point.izt1), float(currents[2]) / float(point.izt2))
+    most = max(float(currents[1]) / float(point.izt1), float(currents[3]) / float(point.izt2))
+    return [
+        Warning(
+            "clamp_design_point",
+            "error",
+            f"the zener current runs from {percent(least)} to {percent(most)} of its test "
+            f"current over the triangle, outside {lo:g}..{hi:g} times it (the clamp's design "
+            "point, where its voltage is specified): change R5",
+        )
+    ]
 
 
 def buildup_check(osc: ClampedOscillator) -> list[Warning]:

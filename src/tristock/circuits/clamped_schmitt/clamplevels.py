@@ -21,9 +21,8 @@ at vt = 0 (rd the pair's dynamic resistance there).
   within ±(A_max + σ) (a threshold is -k·S + (1 + k)·s2, the other side's within A_max), so
   the intervals [S0_min - g_max·(A_max + σ), S0_max + g_max·(A_max + σ)] hold the level the
   model uses at every point of its cycle, thresholds and turns included. The lower ends are
-  raised to at least |Vos1| + Ib1·R3_max (and ``LEVEL_FLOOR_V``), so the bounds' weakest
-  drives are never negative: where a stage's heaviest loads barely clamp, its weakest
-  drives are 0 and the period bounds claim no upper end for it.
+  at least ``LEVEL_FLOOR_V``; where a stage's heaviest loads barely clamp its weakest drives
+  are 0 (``StageLoop.weak``) and the period bounds claim no upper end for it.
 - **Stage limits** (``clamp_limits``), each leaving a stage out only when no row of it meets
   the limit, so none cuts a row that does (the search stays exact over the rows it admits;
   each row's own verdict is in the topology's checks): (a) the op amp's output level beyond
@@ -31,17 +30,41 @@ at vt = 0 (rd the pair's dynamic resistance there).
   zener) limit); at the lightest load (R3 and R1 + R2 largest, the pair current largest)
   (b) the pair current at least I_b on both sides, (c) the op amp's output current into R5,
   |Vo - S0|/R5, at most its rated output current; at the heaviest load (d) each zener's
-  dissipation I_pair·(|S0| - Vf of the other, catalogued) at most its rating; and a design
-  rule that defines the circuit searched (not a model limit): (e) at the lightest load the
-  pair current within ``DESIGN_CURRENT`` (0.5..2) times each zener's test current, the
-  clamp's design point.
+  dissipation I_pair·(|S0| - Vf of the other, catalogued) at most its rating; and the
+  design rule that defines the circuit searched (``designpoint``: each row's zener current
+  within ``DESIGN_CURRENT`` (0.5..2) times its test current): (e) the current at the lightest
+  load at least 0.5 and at the heaviest at most 2 times it (a row's current at vt = 0 lies
+  between those, and between its currents at the thresholds).
 - **Timing** (``stage_loop``): the clamped model's edges are not ``looptiming.loop_timing``'s
-  (U1's output first slews from its level to the clamp's, then moves the square through
-  the clamp's static map), so the loop the bounds take is a stand-in: U1's delay plus the
-  shortest such slew, (V_out - V_hi)/SR over the two edges, then U1's slew rates; an ideal
-  comparator gain-bandwidth (its build-up is not in the clamped model) and U1's for the
-  integrator. The bounds of ``search.bounds`` are proven for ``loop_timing``, not for this
-  stand-in: the search's run-time guard (``search.rows``) is what catches a row outside them.
+  (U1's output slews from its level Vout at SR, the square follows it through the clamp's
+  static map), so each edge is written as a transport delay known only to an interval: an
+  instant step (slew inf, GBW inf) after td + [0, (Vout_H + Vout_L)/SR_min], U1's GBW for
+  the integrator (``StageLoop.delay_spread``; ``search.bounds``, (M6)). Proof that every row
+  of the stage lies inside the bounds taken at that loop (tests/circuits/clamped_schmitt/
+  test_clamped_bounds.py checks it on random rows of the demo's parts):
+  (T1) Edge times. With t(s) = td + |Vo(s) - Vo_start|/SR the time S passes s (``physics``),
+  Vo increasing in s from -Vout_L to Vout_H over the square's swing, each edge's centroid c
+  (the mean of t over the swing) lies in [td, td + (Vout_H + Vout_L)/SR], and so does its
+  overshoot time o = (1/drive)·∫ t ds over the part of the swing between the start and Ve
+  (a mean of t over a sub-range).
+  (T2) Thresholds. vt_b = (1 + k)·s2 - k·S_H(vt_b), vt_t = (1 + k)·s2 + k·S_L(vt_t) (the
+  comparator's balance with the level at the threshold), so their distance is
+  k·(S_H(vt_b) + S_L(vt_t)) ∈ [k·span_lo, k·span_hi] when the level intervals hold the
+  levels (above).
+  (T3) Period. T = d_f + t_up + d_r + t_down with t_up = RC'·∫ dv/(Ve + S_L(v)) from the
+  bottom turn vt_b - a·d_f/RC' to vt_t (a = S_H(vt_b) - Ve): so t_up + d_f lies between
+  k·span_lo·RC'/b_hi + d_f·(1 + a/b_hi) and k·span_hi·RC'/b_lo + d_f·(1 + a/b_lo), the row's
+  own Ve in both; likewise t_down + d_r. Against ``loop_timing``'s
+  span·(span·k·RC'/(a·b) + d_r/a + d_f/b) at the weakest corner (span_hi, a_lo, b_lo,
+  longest delay) the upper end holds because a_lo + b_lo ≤ span_hi and
+  VL_lo + VH_hi ≤ span_hi with Ve ≥ Ve_lo; the lower end at the strongest corner (span_lo,
+  a_hi, b_hi, shortest delay) because a_hi + b_hi ≥ span_lo. The ideal period T_i (instant
+  edges, RC) takes the same ends, and D = T - T_i ≥ (RC' - RC)·(ramps) + d_f + d_r plus the
+  ramps' extension past the thresholds, so the timing share's floor holds too.
+  (T4) Amplitude. Peak to peak = (T2) + each overshoot (∫ t ds + drive·τi - A)/RC' with the
+  lag area 0 ≤ A ≤ drive·τi (``integrator.lag_overshoot_area``): between drive·td/RC' and
+  drive·(td + spread + τi)/RC' by (T1), ``loop_timing``'s floor at the shortest and reach at
+  the longest delay.
 """
 
 from __future__ import annotations
@@ -54,6 +77,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.clamped_schmitt.checks import CLAMP_ERROR
+from tristock.circuits.clamped_schmitt.designpoint import DESIGN_CURRENT
 from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint, output_levels
 from tristock.circuits.diode import diode_at, thermal_voltage
 from tristock.circuits.rails import OpAmpModel, Rails
@@ -194,14 +218,13 @@ def level_range(
 ) -> tuple[F64, F64, F64, F64]:
     """(VH_lo, VH_hi, VL_lo, VL_hi) over the rows of each stage on ``rails`` (module
     docstring): the corners' S0 on each side widened by g_max·(A_max + σ), the lower ends at
-    least |Vos1| + Ib1·R3_max and ``LEVEL_FLOOR_V``."""
+    least ``LEVEL_FLOOR_V``."""
     point = corners(cols, load, rails)
     vh, vl = output_levels(point, rails.v_ref)
     net = Clamp.of(point)
     r3_hi, rl_lo, rl_hi, a_max = (np.asarray(load[n], dtype=float) for n in (1, 2, 3, 4))
     c = {k: np.asarray(v, dtype=float) for k, v in cols.items()}
     sigma = np.abs(c["vos2"]) + np.abs(c["ib2"]) * 0.25 * rl_hi
-    ve_abs = np.abs(c["vos1"]) + np.abs(c["ib1"]) * r3_hi
     out: list[F64] = []
     for vo, high in ((vh, True), (-vl, False)):
         s, i = net.level(vo, 0.0, high)
@@ -209,9 +232,24 @@ def level_range(
         rd_max = np.max((net.up if high else net.down).resistance(i), axis=-1)
         g_max = (1.0 / rl_lo) / (1.0 / c["r5"] + 1.0 / r3_hi + 1.0 / rl_lo + 1.0 / rd_max)
         reach = g_max * (a_max + sigma)
-        low = np.maximum(np.min(level, axis=-1) - reach, np.maximum(ve_abs, LEVEL_FLOOR_V))
+        low = np.maximum(np.min(level, axis=-1) - reach, LEVEL_FLOOR_V)
         out += [low, np.maximum(np.max(level, axis=-1) + reach, low)]
     return out[0], out[1], out[2], out[3]
+
+
+def rest_levels(
+    cols: Mapping[str, F64], load: LoadRange | Sequence[F64], rails: Rails
+) -> tuple[F64, F64, F64, F64]:
+    """(least, most) |S0| with the square high, then low, over every row of each stage on
+    ``rails``: the triangle at the reference, the 8 corners of the loads (the monotonicity
+    above)."""
+    point = corners(cols, load, rails)
+    vh, vl = output_levels(point, rails.v_ref)
+    net = Clamp.of(point)
+    s_h, _ = net.level(vh, 0.0, True)
+    s_l, _ = net.level(-vl, 0.0, False)
+    return (np.min(s_h, axis=-1), np.max(s_h, axis=-1), np.min(-s_l, axis=-1),
+            np.max(-s_l, axis=-1))  # fmt: skip
 
 
 # ---- the stage limits ----------------------------------------------------------------------
@@ -256,12 +294,6 @@ class LimitVerdict(NamedTuple):
         return np.asarray(self.breaks_down & self.current_ok & self.power_ok & self.design_point)
 
 
-#: The design point of the clamp (common practice: a zener's voltage and dynamic resistance
-#: are specified at its test current, and the clamp is designed to run near it): at the
-#: lightest load the pair current lies within these multiples of the test current.
-DESIGN_CURRENT = (0.5, 2.0)
-
-
 def breakdown_current(zeners: Sequence[Diode]) -> F64:
     """I_b = ``CLAMP_ERROR``·iz_test of each zener (A): below it the clamp does not clamp."""
     return np.array([CLAMP_ERROR * (d.iz_test_a or 0.0) for d in zeners], dtype=np.float64)
@@ -296,8 +328,8 @@ def clamp_limits(
     lo, hi = DESIGN_CURRENT
     iz1 = col([d.iz_test_a or 0.0 for d in d1])
     iz2 = col([d.iz_test_a or 0.0 for d in d2])
-    design = (light.i_high >= lo * iz1) & (light.i_high <= hi * iz1)
-    design &= (light.i_low >= lo * iz2) & (light.i_low <= hi * iz2)
+    design = (light.i_high >= lo * iz1) & (heavy.i_high <= hi * iz1)
+    design &= (light.i_low >= lo * iz2) & (heavy.i_low <= hi * iz2)
     return LimitVerdict(
         np.asarray(breaks), np.asarray(current), np.asarray(power), np.asarray(design)
     )
@@ -329,20 +361,11 @@ def stage_loop(
     outputs: tuple[float, float],
     ve: tuple[float, float],
 ) -> StageLoop:
-    """The loop of one stage (module docstring, "Timing"): the level intervals ``levels``;
-    U1's delay plus the shortest slew from its output levels ``outputs`` (VH, VL of U1 on the
-    rails) to the clamp's upper ends, max(0, min((VH - VH_hi)/SR_fall, (VL - VL_hi)/SR_rise));
-    U1's slew rates; GBW inf for the comparator, U1's for the integrator; Ve over ``ve``."""
-    fall = (outputs[0] - levels[1]) / model.slew_fall_v_per_s
-    rise = (outputs[1] - levels[3]) / model.slew_rise_v_per_s
-    values = (
-        *levels,
-        model.slew_rise_v_per_s,
-        model.slew_fall_v_per_s,
-        model.delay_s + max(0.0, min(fall, rise)),
-        np.inf,
-        model.gbw_hz,
-        ve[0],
-        ve[1],
-    )
-    return StageLoop(*(np.asarray(x, dtype=np.float64) for x in values))
+    """The loop of one stage (module docstring, "Timing", (T1)): the level intervals
+    ``levels``; instant edges (slew and GBW inf) after U1's delay td plus a spread of
+    (VH + VL)/SR_min, U1's whole output swing (``outputs``: VH, VL of U1 on the rails) at its
+    slower slew; U1's GBW for the integrator; Ve over ``ve``."""
+    slowest = min(model.slew_rise_v_per_s, model.slew_fall_v_per_s)
+    spread = (outputs[0] + outputs[1]) / slowest
+    values = (*levels, np.inf, np.inf, model.delay_s, np.inf, model.gbw_hz, *ve, spread)
+    return StageLoop._make(np.asarray(x, dtype=np.float64) for x in values)

@@ -22,6 +22,7 @@ from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
+from numpy.typing import NDArray
 
 from tristock.circuits.clamped_schmitt.clamplevels import (
     ClampStage,
@@ -33,7 +34,8 @@ from tristock.circuits.clamped_schmitt.clamplevels import (
     row_point,
     square_levels_at_reference,
 )
-from tristock.circuits.clamped_schmitt.physics import Clamp
+from tristock.circuits.clamped_schmitt.designpoint import at_design_point, threshold_currents
+from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint
 from tristock.circuits.clamped_schmitt.stageoptions import clamp_stages, loads, make_stage
 from tristock.circuits.opampvariant import part_at
 from tristock.circuits.prediction import Prediction
@@ -52,10 +54,9 @@ class ClampedSchmittForm(SearchForm):
     """Rows (U1, D1 = D2, R5, R1, R2, R3, C1); the stage is U1 with the clamp."""
 
     stage_designators = ("U1", "D1", "D2", "R5")
-    #: The clamp's square is U1's output slewing from a rail into the clamp, which
-    #: ``looptiming.loop_timing`` does not model: its ``StageLoop`` timing is a stand-in
-    #: (``clamplevels``, "Timing"), so the windows are not proven bounds.
-    bounds_proven = False
+    #: The clamp's edges enter the bounds as a delay interval (``clamplevels``, "Timing",
+    #: (T1)-(T4)) and its levels as the design point's intervals (``designpoint``).
+    bounds_proven = True
     #: The probes cannot move R5 and the zeners with temperature and tolerance.
     probes_in_box = False
 
@@ -102,7 +103,8 @@ class ClampedSchmittForm(SearchForm):
         centred_offsets: bool = False,
     ) -> RowModel:
         """The topology's ``predict`` of each valid row (Ve = Vos1 + Ib1·R3 strictly inside
-        -VL..VH of the clamp levels ``levels``, and a finite period); NaN elsewhere."""
+        -VL..VH of the clamp levels ``levels``, a finite period, and the clamp at its design
+        point, ``designpoint``); NaN elsewhere."""
         n = len(u)
         if n == 0:
             empty = np.zeros(0)
@@ -129,12 +131,29 @@ class ClampedSchmittForm(SearchForm):
             pred = self.topology.predict(point, 0.0)
             for name in Prediction._fields:
                 getattr(out, name)[ok] = np.asarray(getattr(pred, name))
+            with np.errstate(invalid="ignore"):
+                rule = np.zeros(n, dtype=bool)
+                rest = (vh[ok], vl[ok])
+                rule[ok] = self.design_point(point, (out_h[ok], out_l[ok]), rest, pred)
             finite = np.isfinite(np.asarray(out.period_s)) & (np.asarray(out.period_s) > 0)
             finite &= np.isfinite(np.asarray(out.amplitude_vpp))
-            ok &= finite & np.isfinite(np.asarray(out.duty_high))
+            ok &= finite & np.isfinite(np.asarray(out.duty_high)) & rule
             for name in Prediction._fields:
                 getattr(out, name)[~ok] = np.nan
         return RowModel(out, ve, ok, moved["slew_rise"], moved["slew_fall"])
+
+    @staticmethod
+    def design_point(
+        point: ClampPoint, outputs: tuple[F64, F64], rest: tuple[F64, F64], pred: Prediction
+    ) -> NDArray[np.bool_]:
+        """Whether rows at ``point`` (U1's output at +VH / -VL, ``outputs``; the clamp
+        levels ``rest`` with the triangle at the reference) meet the clamp's design point
+        over their thresholds (``designpoint``, the rule the topology's check holds a board
+        to)."""
+        net = Clamp.of(point)
+        vt = (np.asarray(pred.threshold_low_v), np.asarray(pred.threshold_high_v))
+        currents = threshold_currents(net, outputs, rest, vt)
+        return at_design_point(currents, point.izt1, point.izt2)
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The board's stage on the spec's nominal rails: its own loads (R3, R1 + R2) and the

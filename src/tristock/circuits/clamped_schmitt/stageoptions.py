@@ -11,17 +11,17 @@ import numpy as np
 
 from tristock.circuits.clamped_schmitt.checks import CLAMP_ERROR
 from tristock.circuits.clamped_schmitt.clamplevels import (
-    DESIGN_CURRENT,
     ClampStage,
     LimitVerdict,
     LoadRange,
     candidate_columns,
     clamp_limits,
     fixed_fields,
-    level_range,
+    rest_levels,
     saturation_reasons,
     stage_loop,
 )
+from tristock.circuits.clamped_schmitt.designpoint import DESIGN_CURRENT, design_levels
 from tristock.circuits.opamp_schmitt.searchform import opamp_levels, stocked_opamps
 from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply
 from tristock.circuits.searchform import F64, Exclusion
@@ -144,9 +144,9 @@ def limit_exclusions(
          f"{format_value(part.output_a, 'A')} rating even at the lightest load"),
         (verdict.power_ok, f"a zener's dissipation exceeds its {zener.power_w:g} W rating even "
          "at the heaviest load"),
-        (verdict.design_point, "the zener current at the lightest load is outside "
-         f"{DESIGN_CURRENT[0]:g}..{DESIGN_CURRENT[1]:g} times its test current (the clamp's "
-         "design point)"),
+        (verdict.design_point, "the zener current cannot lie within "
+         f"{DESIGN_CURRENT[0]:g}..{DESIGN_CURRENT[1]:g} times its test current at any load "
+         "(the clamp's design point)"),
     )  # fmt: skip
     out = []
     for passed, why in reasons:
@@ -166,6 +166,7 @@ def opamp_stages(
     load: tuple[LoadRange, LoadRange],
     r3_values: F64,
     rails: Rails,
+    turn_v: float,
 ) -> tuple[list[ClampStage], list[Exclusion]]:
     """The stages of one op amp over every zener part (D1 = D2) and R5, zener-major in
     catalog order, and the exclusions of the others."""
@@ -181,7 +182,8 @@ def opamp_stages(
     verdict = clamp_limits(cols, load[0], part, (vh, vl), pairs)
     verdict = LimitVerdict(*(x & np.array([w is None for w in why])[:, None] for x in verdict))
     keep_z, keep_r = np.nonzero(verdict.ok)
-    found = level_range({k: v[keep_z, keep_r] for k, v in cols.items()}, load[0], rails)
+    kept = {k: v[keep_z, keep_r] for k, v in cols.items()}
+    found = design_levels(kept, load[0], rest_levels(kept, load[0], rails), turn_v)
     ve_all = model.offset_v + model.bias_a * np.asarray(r3_values, dtype=float)
     stages: list[ClampStage] = []
     for n, z in enumerate(zeners):
@@ -200,6 +202,13 @@ def opamp_stages(
     return stages, excl
 
 
+def turn_reach(spec: Spec) -> float:
+    """How far the triangle's turns lie past its thresholds in a row the bounds claim (V):
+    2·A_max·s/(1 - s), s the spec's largest timing share (``designpoint``)."""
+    s = spec.limits.max_timing_share
+    return 2.0 * spec.triangle.amplitude_vpp * (1 + spec.triangle.tolerance_pct / 100) * s / (1 - s)
+
+
 def with_levels(part: OpAmp, spec: Spec) -> OpAmpAt | str:
     """The op amp with its model and output levels on the nominal rails
     (``opamp_levels``), or why it cannot be used."""
@@ -215,6 +224,8 @@ def clamp_stages(
     opamps, excl = stocked_opamps(spec, catalog, lambda _, part: with_levels(part, spec))
     zeners, zener_excl = stocked_zeners(spec, catalog)
     excl += zener_excl
+    if not zeners:
+        return [], [*excl, Exclusion("D1", None, "no zener of the diode table is stocked")]
     resistors = clamp_resistors(spec, catalog)
     if not resistors or len(r3_values) == 0:
         return [], [*excl, Exclusion("R5", None, "no resistor of the table is eligible")]
@@ -222,7 +233,9 @@ def clamp_stages(
     rails = rails_from_supply(spec.supply)
     stages: list[ClampStage] = []
     for opamp in opamps:
-        made, why = opamp_stages(len(stages), opamp, zeners, resistors, load, r3_values, rails)
+        made, why = opamp_stages(
+            len(stages), opamp, zeners, resistors, load, r3_values, rails, turn_reach(spec)
+        )
         stages += made
         excl += why
         if not made:
