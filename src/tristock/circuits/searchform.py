@@ -66,7 +66,11 @@ class StageLoop(NamedTuple):
     over every row the stage can be in; ``ve_lo``..``ve_hi`` the integrator error voltage
     Ve = Vos1 + Ib1·R3 over the R3 values eligible. The drives of the falling and rising ramps
     are a = VH - Ve and b = VL + Ve; the span VH + VL is the distance the thresholds scale
-    with and the comparator edge's length."""
+    with and the comparator edge's length. ``overshoot_time_min``: where the loop's own slew
+    and delay do not give a lower end of each edge's overshoot time o over the stage's rows
+    (a comparator's unequal edges, an open-drain high level), one that does (s), which the
+    amplitude's lower bound takes instead (``search.bounds.overshoot_floors``); NaN: the
+    loop's own."""
 
     vh_lo: F64
     vh_hi: F64
@@ -79,6 +83,7 @@ class StageLoop(NamedTuple):
     integrator_gbw: F64
     ve_lo: F64
     ve_hi: F64
+    overshoot_time_min: F64 = np.asarray(np.nan)
 
     def take(self, idx: I64) -> StageLoop:
         return StageLoop(*(np.asarray(x)[idx] for x in self))
