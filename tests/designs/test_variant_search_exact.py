@@ -7,8 +7,9 @@ built as its topology's board and predicted by the topology's own model at nomin
 25 °C and the nominal rails (``board.oscillator(...).prediction()``, itself checked against
 ngspice in tests/circuits), accepted by the spec's rules as the README states them (bands;
 the integrator error voltage inside the square levels; the triangle's peaks inside the
-levels; the integrator's slew at least each ramp's slope; timing share within
-``max_timing_share``; C1's rating over the largest peak with the amplitude margin; stock for
+levels, an open-drain U2's inside U1's output swing; the integrator's slew at least each
+ramp's slope; timing share within ``max_timing_share``; C1's rating over the largest peak
+with the amplitude margin; stock for
 every piece; cost; no check of error severity, the topology's own ``check``, which holds the
 open-drain stiffness rule R5·(1/R3 + 1/R2) ≤ 0.1 as pull_up_load), then by the
 worst case over the spread box (``analysis.worst_case``)
@@ -91,7 +92,13 @@ def accepted(spec: Spec, board: AnyBoard) -> tuple[float, float, float] | None:
     e_a = float(np.log(a / spec.triangle.amplitude_vpp))
     ok = np.log1p(-tf) <= e_f <= np.log1p(tf) and np.log1p(-ta) <= e_a <= np.log1p(ta)
     ok = ok and vh - ve > 0 and vl + ve > 0
-    ok = ok and top < vh and bottom > -vl
+    # the peaks inside the square levels, but for an open-drain U2, whose high level
+    # follows the triangle: there U1's output swing bounds them (the model's ground)
+    if "R5" in board.parts():
+        swing = (rails.v_neg + u1.swing_neg_v - ref, rails.v_pos - u1.swing_pos_v - ref)
+        ok = ok and swing[0] <= bottom and top <= swing[1]
+    else:
+        ok = ok and top < vh and bottom > -vl
     ok = ok and (vl + ve) <= m.slew_rise_v_per_s * rc and (vh - ve) <= m.slew_fall_v_per_s * rc
     ok = ok and float(p.timing_share) <= spec.limits.max_timing_share
     ok = ok and c1.voltage_v >= max(abs(top), abs(bottom)) * (1 + ta)

@@ -212,6 +212,14 @@ class SearchForm(ABC):
         the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
         centre) instead of the catalogued typical values."""
 
+    def peak_limits(
+        self, stages: Sequence[StageOption], u: I64, levels: tuple[F64, F64]
+    ) -> tuple[F64, F64]:
+        """(top, bottom): the model's ground holds a row's triangle peaks strictly inside
+        (-bottom, top) (V from the reference); by default the square levels ``levels`` (VH,
+        VL) themselves."""
+        return levels
+
     @abstractmethod
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The stage option (index 0) of a board already chosen, on the spec's nominal rails,

@@ -172,6 +172,16 @@ class ComparatorSchmittForm(SearchForm):
         ve = errors["vos1"] + cols["ib1"] * r3
         return RowModel(out, ve, ok, cols["slew1"], cols["slew1"])
 
+    def peak_limits(
+        self, stages: Sequence[StageOption], u: I64, levels: tuple[F64, F64]
+    ) -> tuple[F64, F64]:
+        """The square levels for push-pull rows; none (inf) for open-drain rows, whose high
+        level follows the triangle (the model's ground there is U1's output range, which
+        ``predict_rows``' validity holds)."""
+        pulled = _columns(stages, u, None)["r5"] > 0.0
+        top, bottom = (np.asarray(x, dtype=float) for x in levels)
+        return np.where(pulled, np.inf, top), np.where(pulled, np.inf, bottom)
+
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The stage of the board's U1, U2 (and R5) on the spec's nominal rails (no stock or
         rating checks): levels over the spec's resistance range widened to hold the board's
