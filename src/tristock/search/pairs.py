@@ -20,6 +20,7 @@ a deadline checked between chunks stops the building (``PairSource.cut``).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from dataclasses import dataclass
@@ -136,6 +137,7 @@ class PairSource:
         #: figures depend on the loop alone), e.g. one U1 and U2 with any pull-up R5
         self.ratios: dict[int, _RatioFigures] = {}
         self.loop_class, self.class_position = loop_classes(model.loops(self.indices))
+        self.groups = self._stage_groups()
 
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
@@ -162,21 +164,40 @@ class PairSource:
         order = np.lexsort((mine.i2, mine.i1, self.position[mine.u], mine.bound))
         return mine.take(order)
 
+    def _stage_groups(self) -> list[list[tuple[int, OpAmpTerms]]]:
+        """The stage options whose pairs are the same but for U1's index: equal loops (so
+        equal ratio figures and k ranges) and equal ``stage_term`` (e.g. one U1 and U2 with
+        pull-ups R5 of equal cost), unless the worst-case probes, which follow each stage,
+        filter the pairs (then one stage a group)."""
+        if self.model.spec.limits.guarantee == "worst_case" and self.model.form.probes_in_box:
+            return [[member] for member in self.opamps]
+        groups: dict[tuple[int, int], list[tuple[int, OpAmpTerms]]] = {}
+        for pos, o in self.opamps:
+            key = (int(self.loop_class[pos]), self.stage_term(o))
+            groups.setdefault(key, []).append((pos, o))
+        return list(groups.values())
+
     def _build(self, x: float) -> None:
         todo = []
-        for pos, o in self.opamps:
+        for group in self.groups:
             if time.perf_counter() > self.deadline:
                 self.cut = True
                 return
-            todo += [(pos, o, chunk) for chunk in self._candidates(o, x)]
-        if not self._learn_ratios(todo):
+            pos, o = group[0]
+            todo += [(pos, o, chunk, group) for chunk in self._candidates(o, x)]
+        if not self._learn_ratios([(pos, o, chunk) for pos, o, chunk, _ in todo]):
             return
         parts = [self.pairs]
-        for pos, o, (i1, i2) in todo:
+        for pos, o, (i1, i2), group in todo:
             if time.perf_counter() > self.deadline:
                 self.cut = True
                 break
-            parts.append(self._figures(pos, o, i1, i2))
+            found = self._figures(pos, o, i1, i2)
+            parts.append(found)
+            for _, other in group[1:]:
+                parts.append(
+                    dataclasses.replace(found, u=np.full(len(found), other.index, np.int64))
+                )
         self.pairs = Pairs.concat(parts)
         if not self.cut:
             self.built_to = x
