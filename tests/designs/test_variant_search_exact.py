@@ -1,16 +1,18 @@
 """The variants' searches against brute force over each circuit's FULL model.
 
 Reference, written here and independent of the search forms, windows, bounds and pruning:
-every board of a small catalog (U1 × the stage's own parts: a push-pull comparator U2, the
-comparators the search takes; or a zener part for D1 = D2 and R5 from the resistors, for the
-zener-clamped loop; × R1, R2, R3 × C1)
+every board of a small catalog (U1 × the stage's own parts: a push-pull comparator U2, or an
+open-drain one with each resistor as its pull-up R5; or a zener part for D1 = D2 and R5 from
+the resistors, for the zener-clamped loop; × R1, R2, R3 × C1)
 built as its topology's board and predicted by the topology's own model at nominal values,
 25 °C and the nominal rails (``board.oscillator(...).prediction()``, itself checked against
 ngspice in tests/circuits), accepted by the spec's rules as the README states them (bands;
 the integrator error voltage inside the square levels; the triangle's peaks inside the
-levels; the integrator's slew at least each ramp's slope; timing share within
-``max_timing_share``; C1's rating over the largest peak with the amplitude margin; stock for
-every piece; cost; no check of error severity, the topology's own ``check``), then by the
+levels, an open-drain U2's inside U1's output swing; the integrator's slew at least each
+ramp's slope; timing share within ``max_timing_share``; C1's rating over the largest peak
+with the amplitude margin; stock for
+every piece; cost; no check of error severity, the topology's own ``check``, which holds the
+open-drain stiffness rule R5·(1/R3 + 1/R2) ≤ 0.1 as pull_up_load), then by the
 worst case over the spread box (``analysis.worst_case``)
 under that guarantee, and ranked by the documented score (README, "Ranking": the stage's cost
 and lines as one term, each resistor and capacitor its own, a shared stock code credited
@@ -49,11 +51,16 @@ from tristock.stock.tables import Catalog
 
 
 def stages(name: str, catalog: Catalog) -> list[dict[str, Part]]:
-    """Every stage a board of ``name`` can have from ``catalog`` (no eligibility applied)."""
+    """Every stage a board of ``name`` can have from ``catalog`` (no eligibility applied): an
+    open-drain U2 with every resistor as R5."""
     out: list[dict[str, Part]] = []
     for u1 in catalog.opamps:
         if name == "comparator_schmitt":
-            out += [{"U1": u1, "U2": u2} for u2 in catalog.comparators if not u2.is_open_drain]
+            for u2 in catalog.comparators:
+                if u2.is_open_drain:
+                    out += [{"U1": u1, "U2": u2, "R5": r5} for r5 in catalog.resistors]
+                else:
+                    out.append({"U1": u1, "U2": u2})
         if name == "clamped_schmitt":
             zeners = [d for d in catalog.diodes if d.is_zener]
             out += [
@@ -95,7 +102,13 @@ def accepted(spec: Spec, board: AnyBoard) -> tuple[float, float, float] | None:
     e_a = float(np.log(a / spec.triangle.amplitude_vpp))
     ok = np.log1p(-tf) <= e_f <= np.log1p(tf) and np.log1p(-ta) <= e_a <= np.log1p(ta)
     ok = ok and vh - ve > 0 and vl + ve > 0
-    ok = ok and top < vh and bottom > -vl
+    # the peaks inside the square levels, but for an open-drain U2, whose high level
+    # follows the triangle: there U1's output swing bounds them (the model's ground)
+    if "R5" in board.parts():
+        swing = (rails.v_neg + u1.swing_neg_v - ref, rails.v_pos - u1.swing_pos_v - ref)
+        ok = ok and swing[0] <= bottom and top <= swing[1]
+    else:
+        ok = ok and top < vh and bottom > -vl
     ok = ok and (vl + ve) <= m.slew_rise_v_per_s * rc and (vh - ve) <= m.slew_fall_v_per_s * rc
     ok = ok and float(p.timing_share) <= spec.limits.max_timing_share
     ok = ok and c1.voltage_v >= max(abs(top), abs(bottom)) * (1 + ta)
@@ -214,11 +227,14 @@ def inside_worst_case(spec: Spec, board: AnyBoard) -> bool:
 # Small seeded catalogs
 
 
-def small_catalog(seed: int, n_res: int = 7) -> Catalog:
+def small_catalog(seed: int, n_res: int = 7, open_drain: bool = False) -> Catalog:
     """Resistors around the values these loops use, a few capacitors, one fast and one slow
-    op amp, two push-pull comparators and an open-drain one: invented test parts."""
+    op amp, two push-pull comparators and an open-drain one: invented test parts. With
+    ``open_drain`` the open-drain comparator alone (its edges unequal, its sink rating 20 mA)
+    and resistors of 1-680 kΩ, so that pull-ups of a few kΩ meet the stiffness rule with the
+    larger R2, R3."""
     rng = np.random.default_rng(seed)
-    pool = eseries.values("E24", 1e3, 2e5)
+    pool = eseries.values("E24", 1e3, 6.8e5) if open_drain else eseries.values("E24", 1e3, 2e5)
     values = sorted(rng.choice(pool, n_res, replace=False))
     res = tuple(
         Resistor(f"TR-{n}", float(v), float(rng.choice([1.0, 0.1, 5.0])), 100.0, "E24", 0.25,
@@ -243,6 +259,8 @@ def small_catalog(seed: int, n_res: int = 7) -> Catalog:
         Comparator("TK-OD", 2, "open-drain", 2.0, 36.0, 3e-7, 1e-7, 5e-8, 0.25, None, 2e-3,
                    25e-9, 0.006, -0.3, 1.5, 0.2, 10**4),
     )  # fmt: skip
+    if open_drain:  # a stronger sink: pull-ups from 1.2 kΩ on the 24 V span
+        comparators = tuple(dataclasses.replace(c, output_a=0.02) for c in comparators[2:])
     return Catalog(Path("<memory>"), res, caps, ops, comparators=comparators)
 
 
@@ -272,28 +290,42 @@ def spec_near(name: str, catalog: Catalog, guarantee: str, by: str, pick: int) -
     made = []
     rng = np.random.default_rng(pick)
     clamped = name == "clamped_schmitt"
+    # an open-drain stage needs R2 and R3 large against R5 (the stiffness rule): every R3
+    open_drain = bool(catalog.comparators) and all(c.is_open_drain for c in catalog.comparators)
+    r3s = catalog.resistors[:: 1 if open_drain else 3]
     # the clamp's targets from its series resistors under 3 kΩ (the others cannot reach its
     # design point on these rails), to keep the scan short
     for stage in [s for s in stages(name, catalog) if not clamped or s["R5"].value < 3e3]:
+        pull_up = "U2" in stage and "R5" in stage
         for r1, r2, r3, c1 in itertools.product(
-            catalog.resistors[::2], catalog.resistors, catalog.resistors[::3], catalog.capacitors
+            catalog.resistors[::2], catalog.resistors, r3s, catalog.capacitors
         ):
             if r1.value_ohm >= 0.8 * r2.value_ohm:
                 continue
             board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
+            if pull_up and not stiff(stage["R5"], r2, r3):
+                continue
             try:
                 p = board.oscillator(rails).prediction()
             except ValueError:
                 continue
             if not (np.isfinite(p.frequency_hz) and float(p.timing_share) < 0.1):
                 continue
-            if clamped and any(w.severity == "error" for w in board.topology.check(board, rails)):
+            if "R5" in stage and any(  # a pull-up overloading U2, a clamp off its design point
+                w.severity == "error" for w in board.topology.check(board, rails)
+            ):
                 continue
             made.append((float(p.frequency_hz), float(p.amplitude_vpp)))
     assert made, "the test catalog builds nothing"
     made.sort()
     f, a = made[(pick * 7919) % len(made)]
     return parse_spec(spec_data(name, f * rng.uniform(0.99, 1.01), a, guarantee, by))
+
+
+def stiff(r5: Part, r2: Resistor, r3: Resistor) -> bool:
+    """The stiffness rule R5·(1/R3 + 1/R2) ≤ 0.1 (README, the comparator IC)."""
+    assert isinstance(r5, Resistor)
+    return r5.value_ohm * (1 / r3.value_ohm + 1 / r2.value_ohm) <= 0.1
 
 
 def spec_data(name: str, f: float, a: float, guarantee: str, by: str) -> dict[str, object]:
@@ -311,24 +343,32 @@ def spec_data(name: str, f: float, a: float, guarantee: str, by: str) -> dict[st
 
 
 CASES = [
-    ("comparator_schmitt", "nominal", "balanced", 1),
-    ("comparator_schmitt", "nominal", "frequency_error", 2),
-    ("comparator_schmitt", "nominal", "cost", 3),
-    ("comparator_schmitt", "worst_case", "balanced", 4),
-    ("comparator_schmitt", "worst_case", "frequency_error", 6),
-    ("comparator_schmitt", "nominal", "balanced", 7),
-    ("clamped_schmitt", "nominal", "balanced", 1),
-    ("clamped_schmitt", "nominal", "cost", 2),
-    ("clamped_schmitt", "worst_case", "balanced", 3),
-    ("clamped_schmitt", "worst_case", "frequency_error", 4),
+    ("comparator_schmitt", "nominal", "balanced", 1, False),
+    ("comparator_schmitt", "nominal", "frequency_error", 2, False),
+    ("comparator_schmitt", "nominal", "cost", 3, False),
+    ("comparator_schmitt", "worst_case", "balanced", 4, False),
+    ("comparator_schmitt", "worst_case", "frequency_error", 6, False),
+    ("comparator_schmitt", "nominal", "balanced", 7, False),
+    # open-drain U2 (unequal edges) with a pull-up R5 from the resistors
+    ("comparator_schmitt", "nominal", "balanced", 15, True),
+    ("comparator_schmitt", "nominal", "frequency_error", 12, True),
+    ("comparator_schmitt", "worst_case", "balanced", 18, True),
+    ("comparator_schmitt", "worst_case", "cost", 17, True),
+    ("clamped_schmitt", "nominal", "balanced", 1, False),
+    ("clamped_schmitt", "nominal", "cost", 2, False),
+    ("clamped_schmitt", "worst_case", "balanced", 3, False),
+    ("clamped_schmitt", "worst_case", "frequency_error", 4, False),
 ]
 
 
-@pytest.mark.parametrize(("name", "guarantee", "by", "seed"), CASES)
+@pytest.mark.parametrize(("name", "guarantee", "by", "seed", "open_drain"), CASES)
 def test_both_engines_return_the_full_model_top_k(
-    name: str, guarantee: str, by: str, seed: int
+    name: str, guarantee: str, by: str, seed: int, open_drain: bool
 ) -> None:
-    catalog = clamp_catalog(seed) if name == "clamped_schmitt" else small_catalog(seed)
+    if name == "clamped_schmitt":
+        catalog = clamp_catalog(seed)
+    else:
+        catalog = small_catalog(seed, open_drain=open_drain)
     spec = spec_near(name, catalog, guarantee, by, seed)
     expected = reference(name, spec, catalog)
     assert expected, "the spec admits no board: the case tests nothing"
@@ -338,6 +378,7 @@ def test_both_engines_return_the_full_model_top_k(
         got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
         assert got == expected, engine
         assert all(c.topology == name for c in result.candidates)
+        assert all(("R5" in c.parts) == open_drain for c in result.candidates)
 
 
 def test_any_circuit_is_the_merge_of_each_circuits_answers() -> None:

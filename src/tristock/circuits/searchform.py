@@ -71,7 +71,13 @@ class StageLoop(NamedTuple):
     ``delay_spread`` (s, default 0) widens the edges' transport delay to an interval
     [``delay``, ``delay`` + ``delay_spread``] for loops whose edges are not one fixed delay and
     slew (the zener-clamped square: U1's output slews from a rail into the clamp, over a time
-    that depends on the row); ``search.bounds`` takes the end that makes each bound valid."""
+    that depends on the row); ``search.bounds`` takes the end that makes each bound valid.
+
+    ``overshoot_time_min``: where the loop's own slew
+    and delay do not give a lower end of each edge's overshoot time o over the stage's rows
+    (a comparator's unequal edges, an open-drain high level), one that does (s), which the
+    amplitude's lower bound takes instead (``search.bounds.overshoot_floors``); NaN: the
+    loop's own."""
 
     vh_lo: F64
     vh_hi: F64
@@ -85,6 +91,7 @@ class StageLoop(NamedTuple):
     ve_lo: F64
     ve_hi: F64
     delay_spread: F64 = np.zeros(())
+    overshoot_time_min: F64 = np.asarray(np.nan)
 
     def take(self, idx: I64) -> StageLoop:
         return StageLoop(*(np.asarray(x)[idx] for x in self))
@@ -220,6 +227,14 @@ class SearchForm(ABC):
         (Ω, F by designator) at the square levels ``levels``; slew rates and delays scaled by
         the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
         centre) instead of the catalogued typical values."""
+
+    def peak_limits(
+        self, stages: Sequence[StageOption], u: I64, levels: tuple[F64, F64]
+    ) -> tuple[F64, F64]:
+        """(top, bottom): the model's ground holds a row's triangle peaks strictly inside
+        (-bottom, top) (V from the reference); by default the square levels ``levels`` (VH,
+        VL) themselves."""
+        return levels
 
     @abstractmethod
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:

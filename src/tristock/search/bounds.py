@@ -178,7 +178,7 @@ def range_bounds(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> tuple[B
     ok = claimed(loop, k)
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
     a = Bounds(
-        k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
+        k * loop.span_lo + overshoot_floors(loop, weak),
         k * loop.span_hi + strong_late.reach_top_v + strong_late.reach_bottom_v,
     )
     d_min = strong.period_s - strong.ideal_period_s
@@ -195,10 +195,30 @@ def point_bounds(loop: StageLoop, k: Array, p: Array) -> tuple[Bounds, Bounds]:
     wt = 2.0 * np.pi * np.asarray(loop.integrator_gbw, dtype=float)
     period = _or_unbounded(ok, Bounds(strong.period_s, weak_late.period_s))
     amplitude = Bounds(
-        k * loop.span_lo + weak.floor_top_v + weak.floor_bottom_v,
+        k * loop.span_lo + overshoot_floors(loop, weak),
         k * loop.span_hi + strong_late.reach_top_v + strong_late.reach_bottom_v,
     )
     return period, _or_unbounded(ok & (np.asarray(p) * wt >= k), amplitude)
+
+
+def overshoot_floors(loop: StageLoop, weak: LoopTiming) -> Array:
+    """The lower end of the two overshoots together (V), from the weakest drives' timing
+    ``weak`` at the largest P: its own floors (lags taken off) where
+    ``loop.overshoot_time_min`` is NaN, else (a_lo + b_lo)·o_min/RC'.
+
+    The second holds for a loop whose rows' overshoots are at least drive·o/RC'_row with
+    o ≥ o_min ≥ 0 and drive ≥ the loop's weakest (the lag's part drive·τi less its area is
+    ≥ 0, as for the floors above): RC' = P/k + 1/ωt at the largest P is at least every
+    row's RC'. A floor that needs no property of the edge's shape (a comparator's unequal
+    edges, an open drain's level-dependent share of an edge; ``comparator_schmitt.stages``).
+    """
+    a, b = loop.weak()
+    o_min = np.asarray(loop.overshoot_time_min, dtype=float)
+    with np.errstate(invalid="ignore"):
+        taken = (a + b) * o_min / weak.rc_eff_s
+    return np.asarray(
+        np.where(np.isnan(o_min), weak.floor_top_v + weak.floor_bottom_v, taken), dtype=float
+    )
 
 
 def timing_share_floor(loop: StageLoop, k: Array, p_lo: Array, p_hi: Array) -> Array:

@@ -140,9 +140,10 @@ class SearchModel:
     #: The circuit searched (``form`` is its search form).
     topology: Topology = OPAMP_SCHMITT
 
-    @property
+    @cached_property
     def stages(self) -> list[StageOption]:
-        """The stage options, in the order of ``opamps``."""
+        """The stage options, in the order of ``opamps`` (built once: the engines ask for
+        them with every batch of rows)."""
         return [o.option for o in self.opamps]
 
     @cached_property

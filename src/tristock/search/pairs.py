@@ -20,6 +20,7 @@ a deadline checked between chunks stops the building (``PairSource.cut``).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from dataclasses import dataclass
@@ -132,7 +133,11 @@ class PairSource:
             self.lowest, self.highest = min(op_terms) + least, max(op_terms) + most
         self.built_to = -np.inf  # every pair with part bound <= built_to is in ``pairs``
         self.pairs = no_pairs()
+        #: figures by loop class: stage options with equal ``StageLoop`` share them (the
+        #: figures depend on the loop alone), e.g. one U1 and U2 with any pull-up R5
         self.ratios: dict[int, _RatioFigures] = {}
+        self.loop_class, self.class_position = loop_classes(model.loops(self.indices))
+        self.groups = self._stage_groups()
 
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
@@ -159,21 +164,40 @@ class PairSource:
         order = np.lexsort((mine.i2, mine.i1, self.position[mine.u], mine.bound))
         return mine.take(order)
 
+    def _stage_groups(self) -> list[list[tuple[int, OpAmpTerms]]]:
+        """The stage options whose pairs are the same but for U1's index: equal loops (so
+        equal ratio figures and k ranges) and equal ``stage_term`` (e.g. one U1 and U2 with
+        pull-ups R5 of equal cost), unless the worst-case probes, which follow each stage,
+        filter the pairs (then one stage a group)."""
+        if self.model.spec.limits.guarantee == "worst_case" and self.model.form.probes_in_box:
+            return [[member] for member in self.opamps]
+        groups: dict[tuple[int, int], list[tuple[int, OpAmpTerms]]] = {}
+        for pos, o in self.opamps:
+            key = (int(self.loop_class[pos]), self.stage_term(o))
+            groups.setdefault(key, []).append((pos, o))
+        return list(groups.values())
+
     def _build(self, x: float) -> None:
         todo = []
-        for pos, o in self.opamps:
+        for group in self.groups:
             if time.perf_counter() > self.deadline:
                 self.cut = True
                 return
-            todo += [(pos, o, chunk) for chunk in self._candidates(o, x)]
-        if not self._learn_ratios(todo):
+            pos, o = group[0]
+            todo += [(pos, o, chunk, group) for chunk in self._candidates(o, x)]
+        if not self._learn_ratios([(pos, o, chunk) for pos, o, chunk, _ in todo]):
             return
         parts = [self.pairs]
-        for pos, o, (i1, i2) in todo:
+        for pos, o, (i1, i2), group in todo:
             if time.perf_counter() > self.deadline:
                 self.cut = True
                 break
-            parts.append(self._figures(pos, o, i1, i2))
+            found = self._figures(pos, o, i1, i2)
+            parts.append(found)
+            for _, other in group[1:]:
+                parts.append(
+                    dataclasses.replace(found, u=np.full(len(found), other.index, np.int64))
+                )
         self.pairs = Pairs.concat(parts)
         if not self.cut:
             self.built_to = x
@@ -187,15 +211,15 @@ class PairSource:
         value = self.model.resistors.value
         wanted: dict[int, list[NDArray[np.float64]]] = {}
         for pos, _, (i1, i2) in todo:
-            wanted.setdefault(pos, []).append(value[i1] / value[i2])
+            wanted.setdefault(int(self.loop_class[pos]), []).append(value[i1] / value[i2])
         us, ks = [], []
-        for pos, parts in wanted.items():
+        for cls, parts in wanted.items():
             uk = np.unique(np.concatenate(parts))
-            known = self.ratios.get(pos)
+            known = self.ratios.get(cls)
             if known is not None and len(known.k):
                 at = np.minimum(np.searchsorted(known.k, uk), len(known.k) - 1)
                 uk = uk[known.k[at] != uk]
-            us.append(np.full(len(uk), pos, dtype=np.int64))
+            us.append(np.full(len(uk), cls, dtype=np.int64))
             ks.append(uk)
         if not us:
             return True
@@ -206,7 +230,7 @@ class PairSource:
                 self.cut = True
                 return False
             part = slice(start, start + RATIO_BATCH)
-            fresh.append(self._compute_ratios(u_all[part], k_all[part]))
+            fresh.append(self._compute_ratios(self.class_position[u_all[part]], k_all[part]))
         if not fresh:
             return True
         merged = _RatioFigures(*(np.concatenate([getattr(f, n) for f in fresh]) for n in _FIELDS))
@@ -264,7 +288,7 @@ class PairSource:
 
     def _ratio_figures(self, pos: int, uk: NDArray[np.float64]) -> _RatioFigures:
         """The kept figures of each k in ``uk`` (sorted, distinct) for op amp ``pos``."""
-        known = self.ratios[pos]
+        known = self.ratios[int(self.loop_class[pos])]
         at = np.searchsorted(known.k, uk)
         return _RatioFigures(*(getattr(known, n)[at] for n in _FIELDS))
 
@@ -354,6 +378,19 @@ class PairSource:
             + model.share_term(np.maximum(share, 0.0))
         )
         return Pairs(u, i1, i2, k, p_lo, p_hi, base, base + self.floor).take(keep)
+
+
+def loop_classes(loops: StageLoop) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """The class of each loop (equal loops, every field bit for bit, NaN equal to NaN, share
+    one) and one position of each class."""
+    fields = [np.asarray(f, dtype=np.float64) for f in loops]
+    n = max((len(f) for f in fields if f.ndim), default=0)
+    if n == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    columns = [np.broadcast_to(f, (n,)) for f in fields]
+    key = np.stack([np.nan_to_num(c, nan=0.0) for c in columns] + [np.isnan(c) for c in columns])
+    _, first, inverse = np.unique(key.T, axis=0, return_index=True, return_inverse=True)
+    return np.asarray(inverse, dtype=np.int64).reshape(-1), np.asarray(first, dtype=np.int64)
 
 
 _FIELDS = tuple(_RatioFigures.__dataclass_fields__)

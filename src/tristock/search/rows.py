@@ -6,8 +6,9 @@ same prediction the analysis of an answer reports. A row is accepted when
 
 - its frequency and triangle amplitude lie in the spec's bands;
 - the loop is inside the model's ground: the triangle's peaks inside the integrator's output
-  swing, the integrator's slew rate at least the triangle's slope on each ramp, and the share
-  of the period set by op-amp timing (1 - T_ideal/T) at most ``limits.max_timing_share``;
+  swing (the square levels, or the form's ``peak_limits``), the integrator's slew rate at
+  least the triangle's slope on each ramp, and the share of the period set by op-amp timing
+  (1 - T_ideal/T) at most ``limits.max_timing_share``;
 - C1's voltage rating covers the largest |triangle peak| with the amplitude margin;
 - (coupled) stock covers boards x uses and the cost is within ``limits.max_cost``;
 - under ``guarantee = "worst_case"``, the full model at five points of the spread box of
@@ -119,6 +120,7 @@ class RowPrediction:
         r1, r2 = (by_name[d] for d in form.divider)
         rc = by_name[form.integrator[0]] * by_name[form.capacitor]
         self.vh, self.vl = vh, vl
+        self.top, self.bottom = form.peak_limits(stages, u, (vh, vl))
         row = form.predict_rows(
             stages,
             u,
@@ -174,7 +176,9 @@ class RowPrediction:
             slew_ok = (self.vl + self.ve <= self.slew_rise * rc) & (
                 self.vh - self.ve <= self.slew_fall * rc
             )
-            swing_ok = (np.asarray(p.peak_high_v) < self.vh) & (np.asarray(p.peak_low_v) > -self.vl)
+            swing_ok = (np.asarray(p.peak_high_v) < self.top) & (
+                np.asarray(p.peak_low_v) > -self.bottom
+            )
             share_ok = self.timing_share <= max_share
         return np.asarray(self.valid & slew_ok & swing_ok & share_ok)
 

@@ -1,10 +1,11 @@
 """Design checks of the comparator-IC loop: supply ranges, input common-mode ranges, output
 currents, the pull-up's power, the integrator's swing and slew, C1, and edges against the
 period. Codes: supply_range, input_common_mode, load_comparator, load_integrator,
-resistor_power, swing_integrator, slew_integrator, transition_time and C1's own
-(``checks.capacitor_checks``). The margins (50 % of a current or power rating, 2x slew, 2 % of
-the period) are common practice; currents and voltages come from Ohm's law on the model's
-levels and peaks.
+resistor_power, pull_up_load (open drain: the stiffness rule of ``stagelevels.
+PULL_UP_LOAD_SHARE``, a design rule), swing_integrator, slew_integrator, transition_time and
+C1's own (``checks.capacitor_checks``). The margins (50 % of a current or power rating, 2x
+slew, 2 % of the period) are common practice; currents and voltages come from Ohm's law on
+the model's levels and peaks.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ from tristock.circuits.checks import (
     volts,
 )
 from tristock.circuits.comparator_schmitt.point import ComparatorOscillator
+from tristock.circuits.comparator_schmitt.stagelevels import PULL_UP_LOAD_SHARE
 from tristock.stock.comparators import EDGE_SHARE
 from tristock.stock.parts import Capacitor, OpAmp, Resistor
 
@@ -73,6 +75,17 @@ def load_checks(osc: ComparatorOscillator, u1: OpAmp, r5: Resistor | None) -> li
     if u2.is_open_drain:
         pull = (rails.v_pos - (rails.reference_v + low)) / osc.r5
         sink += pull
+        load = osc.r5 * (1.0 / osc.r3 + 1.0 / osc.r2)
+        if load > PULL_UP_LOAD_SHARE:
+            out.append(
+                Warning(
+                    "pull_up_load",
+                    "error",
+                    f"R5·(1/R3 + 1/R2) = {load:.3g} > {PULL_UP_LOAD_SHARE:g}: the load takes "
+                    "too much of the pull-up's current (the stiffness rule of the circuit "
+                    "designed)",
+                )
+            )
         found = [
             load_limit(
                 "load_comparator",

@@ -2,9 +2,11 @@
 U1 + U2 (+ R5) (``stages``: the options and their ``StageLoop``; ``stagelevels``: the square
 levels over every row a stage can be in).
 
-A row is valid where ``physics.oscillates`` (both drives reach their thresholds) and its
-triangle stays inside U1's output range: the model does not clip the integrator, and a board
-whose triangle leaves that range fails its swing check.
+A row is valid where ``physics.oscillates`` (both drives reach their thresholds), an
+open-drain row meets the stiffness rule (``stagelevels.PULL_UP_LOAD_SHARE``: R5·(1/R3 +
+1/R2) ≤ ρ, a design rule of the circuit searched) and its triangle stays inside U1's output
+range: the model does not clip the integrator, and a board whose triangle leaves that range
+fails its swing check.
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ from tristock.circuits.comparator_schmitt.physics import (
 from tristock.circuits.comparator_schmitt.spread import EDGE_SPREAD
 from tristock.circuits.comparator_schmitt.stagelevels import (
     load_box,
+    meets_pull_up_rule,
     probe_error_voltage,
     sources,
     stage_levels,
@@ -46,21 +49,20 @@ class ComparatorSchmittForm(SearchForm):
     """Rows (U1, U2[, R5], R1, R2, R3, C1); ``topology`` is the comparator-IC loop.
 
     ``open_drain``: whether open-drain comparators (with a pull-up R5 from the resistor
-    table) are stage options. The registered form leaves them out, with the reason: their
-    high level follows the row's load, so a stage's level interval spans the whole resistor
-    range and the windows hardly prune (a search of the demo stock room runs for minutes),
-    and with unequal edges the amplitude's lower bound is not proven. Push-pull stages have
-    fixed levels and the loop ``looptiming.loop_timing`` models (to 1e-12, tested): their
-    bounds are proven."""
+    table) are stage options (the registered form: yes). Push-pull stages have fixed levels
+    and the loop ``looptiming.loop_timing`` models (to 1e-12, tested); an open-drain stage's
+    high level follows the row's load, held by the stiffness rule (``stagelevels.
+    PULL_UP_LOAD_SHARE``, part of the acceptance: a row that breaks it is not valid) to an
+    interval about ρ/(1 + ρ) wide; the amplitude's lower end takes the overshoot time's
+    lower end (``stages``). Both are proven (``bounds_proven``)."""
 
     stage_designators = ("U1", "U2", "R5")
     #: The probes scale slew in V/s; a comparator's edges are times (kept out: exact).
     probes_in_box = False
 
-    def __init__(self, topology: Topology, *, open_drain: bool = False) -> None:
+    def __init__(self, topology: Topology, *, open_drain: bool = True) -> None:
         self.topology = topology
         self.open_drain = open_drain
-        self.bounds_proven = not open_drain
 
     def stage_options(
         self, spec: Spec, catalog: Catalog, r3_values: F64
@@ -85,7 +87,6 @@ class ComparatorSchmittForm(SearchForm):
         (``stagelevels.stage_levels``): the open-drain box widened by the resistors' moves,
         Ve as the probes take it (Ib1·R3, offsets at 0 V), their delays up to DELAY_SPREAD
         longer."""
-        found = _stages(stages)
         distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
         table = np.array(
             [
@@ -98,7 +99,7 @@ class ComparatorSchmittForm(SearchForm):
                     probe_error_voltage(s.opamp, s.load),
                     1.0 + DELAY_SPREAD,
                 )
-                for s in (found[n] for n in distinct)
+                for s in _stages(stages, distinct)
             ],
             dtype=np.float64,
         ).reshape(-1, 4)[where]
@@ -147,6 +148,7 @@ class ComparatorSchmittForm(SearchForm):
         }
         with np.errstate(invalid="ignore", divide="ignore"):
             ok = oscillates(r1, r2, r3, hs, low, **errors) & np.isfinite(c1) & (c1 > 0.0)
+        ok &= meets_pull_up_rule(cols["r5"], r2, r3)
         out = Prediction(*(np.full(len(u), np.nan) for _ in Prediction._fields))
         if ok.any():
             part = predict(
@@ -169,6 +171,16 @@ class ComparatorSchmittForm(SearchForm):
             ok &= ~clips
         ve = errors["vos1"] + cols["ib1"] * r3
         return RowModel(out, ve, ok, cols["slew1"], cols["slew1"])
+
+    def peak_limits(
+        self, stages: Sequence[StageOption], u: I64, levels: tuple[F64, F64]
+    ) -> tuple[F64, F64]:
+        """The square levels for push-pull rows; none (inf) for open-drain rows, whose high
+        level follows the triangle (the model's ground there is U1's output range, which
+        ``predict_rows``' validity holds)."""
+        pulled = _columns(stages, u, None)["r5"] > 0.0
+        top, bottom = (np.asarray(x, dtype=float) for x in levels)
+        return np.where(pulled, np.inf, top), np.where(pulled, np.inf, bottom)
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The stage of the board's U1, U2 (and R5) on the spec's nominal rails (no stock or
@@ -196,9 +208,10 @@ class ComparatorSchmittForm(SearchForm):
         return make_stage(0, u1, u2, r5, box, rails, (ve, ve))
 
 
-def _stages(stages: Sequence[StageOption]) -> list[ComparatorStage]:
+def _stages(stages: Sequence[StageOption], picked: I64) -> list[ComparatorStage]:
+    """The stage options ``stages[n]`` for n in ``picked``, checked to be comparator-IC ones."""
     out = []
-    for s in stages:
+    for s in (stages[n] for n in picked):
         if not isinstance(s, ComparatorStage):
             raise TypeError(f"U2: stage {s.key} is not a comparator-IC stage")
         out.append(s)
@@ -207,9 +220,8 @@ def _stages(stages: Sequence[StageOption]) -> list[ComparatorStage]:
 
 def _columns(stages: Sequence[StageOption], u: I64, rails: Rails | None) -> dict[str, F64]:
     """Each row's stage constants (SI units), and its Hs and L on ``rails`` if given."""
-    found = _stages(stages)
     distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
-    rows = [found[n] for n in distinct]
+    rows = _stages(stages, distinct)
     table: dict[str, list[float]] = {
         "r5": [s.pull_up_ohm for s in rows],
         "vos1": [s.opamp.offset_v for s in rows],

@@ -50,10 +50,17 @@ At the probes (``level_bounds``) the box is widened by the resistors' moves and 
 probes' longer delays (``DELAY_SPREAD``); their timing share is not limited as the nominal
 row's is, so x_max there is an estimate.
 
-Not covered (second order in the integrator's ε = 1/(2π·GBW·R3·C1); the run-time guard of
-``search.rows`` withdraws a proof if it matters): with the square high, U1's integrator sees
-R3 + R5 ∥ (R1 + R2), so its ramp is faster by (1 + ε_lo)/(1 + ε_hi) and its lag longer than
-the single RC' and lag of ``looptiming.loop_timing``.
+The stiffness rule (``PULL_UP_LOAD_SHARE`` ρ, part of the rows' acceptance) bounds the
+load: g3 + g2 ≤ ρ·g5, so H_lo ≥ (Hs + ρ·min(0, Vos1, Vos2))/(1 + ρ) whatever R5
+(``stiff_threshold_level``) and γ < ρ; a stage's interval is then about ρ/(1 + ρ) of Hs wide
+and equal for every R5 of one U1 and U2 (the search shares their pair figures).
+
+With the square high, U1's integrator sees R3 + R5 ∥ (R1 + R2), so its ramp is faster by
+(1 + ε_lo)/(1 + ε_hi) and its lag longer than the single RC' and lag of
+``looptiming.loop_timing`` (ε = 1/(2π·GBW·R3·C1)): under the rule ``high_state_factors``
+folds both into the intervals (vh_hi up, vh_lo's drive down, vl_hi up). Without the rule
+(ρ = inf: the form's tests of the bare model) they are not covered; the run-time guard of
+``search.rows`` withdraws a proof if they matter.
 """
 
 from __future__ import annotations
@@ -76,6 +83,22 @@ F64 = NDArray[np.float64]
 #: Where the heaviest load can stall the high ramp, vh_lo sits this share of Hs above Ve_hi.
 STALLED_DRIVE = 1e-9
 
+#: The open-drain stiffness rule ρ, a design rule that defines the circuit searched (common
+#: practice for a stiff pull-up, not a model limit): R5·(1/R3 + 1/R2) ≤ ρ, i.e. R5 at most ρ
+#: times R3 ∥ R2, the load on the square node as U2 trips (R3 to the integrator's input and R2
+#: to U2's + input, both at the reference then). The load then draws at most ρ of the
+#: pull-up's current into a short, Hs/R5, and the high level stays within about ρ/(1 + ρ) of
+#: Hs. A row that breaks it is not accepted (``searchform``, the check ``pull_up_load``).
+PULL_UP_LOAD_SHARE = 0.1
+
+
+def meets_pull_up_rule(r5: F64 | float, r2: F64 | float, r3: F64 | float) -> NDArray[np.bool_]:
+    """Whether rows with pull-up ``r5`` (Ω; 0: push-pull, always True), R2 and R3 meet the
+    stiffness rule R5·(1/R3 + 1/R2) ≤ ``PULL_UP_LOAD_SHARE``."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        load = np.asarray(r5) * (1.0 / np.asarray(r3) + 1.0 / np.asarray(r2))
+    return np.asarray(load <= PULL_UP_LOAD_SHARE)
+
 
 @dataclass(frozen=True)
 class LoadBox:
@@ -83,7 +106,8 @@ class LoadBox:
     R1 + R2 at least 2·r_lo; R3 in [r3_lo, r3_hi] (the integrator resistors a row can take:
     what Ve = Vos1 + Ib1·R3 spans); ``spread`` the largest fractional move of a resistor at
     the worst-case probes (tolerance and tempco over the temperature range); ``max_share``
-    the spec's timing-share limit s."""
+    the spec's timing-share limit s; ``max_load`` the largest R5·(1/R3 + 1/R2) a row can
+    have (the stiffness rule's ρ at nominal values; inf: no rule)."""
 
     r_lo: float
     r_hi: float
@@ -91,13 +115,15 @@ class LoadBox:
     r3_hi: float
     spread: float
     max_share: float
+    max_load: float = math.inf
 
     def at_probes(self) -> LoadBox:
-        """The box at the worst-case probes: every resistance moved by up to ``spread``."""
+        """The box at the worst-case probes: every resistance moved by up to ``spread`` (R5
+        down while R2, R3 go up, or the reverse: ρ by up to (1 + spread)²)."""
         up, down = 1.0 + self.spread, 1.0 / (1.0 + self.spread)
         return LoadBox(
             self.r_lo * down, self.r_hi * up, self.r3_lo * down, self.r3_hi * up, 0.0,
-            self.max_share,
+            self.max_share, self.max_load * up * up,
         )  # fmt: skip
 
 
@@ -115,7 +141,7 @@ def load_box(spec: Spec, values: F64, r3: F64, resistors: Sequence[Resistor]) ->
     held = np.asarray(values, dtype=float).tolist()
     return LoadBox(
         min([lim.resistance_min_ohm, *held]), max([lim.resistance_max_ohm, *held]),
-        float(np.min(r3)), float(np.max(r3)), spread, lim.max_timing_share,
+        float(np.min(r3)), float(np.max(r3)), spread, lim.max_timing_share, PULL_UP_LOAD_SHARE,
     )  # fmt: skip
 
 
@@ -142,12 +168,37 @@ def threshold_level(
     return (hs * g5 + vos1 * g3 + vos2 * g2 + beta_ib2) / (g5 + g3 + g2)
 
 
+def load_vertices(g5: float, box: LoadBox) -> list[tuple[float, float]]:
+    """The corners (1/R3, 1/R2) of the loads a row can put on the square node: R2, R3 in
+    [r_lo, r_hi] cut by the stiffness rule g3 + g2 ≤ ρ·g5 (``LoadBox.max_load``); empty when
+    no row meets the rule."""
+    lo, hi, cap = 1.0 / box.r_hi, 1.0 / box.r_lo, box.max_load * g5
+    corners = [(g3, g2) for g3 in (lo, hi) for g2 in (lo, hi) if g3 + g2 <= cap]
+    corners += [(g, cap - g) for g in (lo, hi) if lo <= cap - g <= hi]
+    corners += [(cap - g, g) for g in (lo, hi) if lo <= cap - g <= hi]
+    return corners
+
+
 def lowest_threshold_level(hs: float, g5: float, box: LoadBox, u1: OpAmp, u2: Comparator) -> float:
-    """H_lo,min over the box's vertices: R2, R3 at r_lo or r_hi, Vos1, Vos2 at 0 V or as
-    catalogued, Ib2·R1/(R1 + R2) at 0 or Ib2."""
-    g = (1.0 / box.r_hi, 1.0 / box.r_lo)
-    offsets = product(g, g, (0.0, u1.offset_v), (0.0, u2.offset_v), (0.0, u2.bias_a))
-    return min(float(threshold_level(hs, g5, *vertex)) for vertex in offsets)
+    """H_lo,min over the vertices of the loads (``load_vertices``: H_lo is linear-fractional
+    in the conductances with a positive denominator, so its extremes over a polygon sit at
+    its corners) and the offsets: Vos1, Vos2 at 0 V or as catalogued, Ib2·R1/(R1 + R2) at 0 or
+    Ib2; inf where no row meets the rule."""
+    loads = load_vertices(g5, box)
+    offsets = product(loads, (0.0, u1.offset_v), (0.0, u2.offset_v), (0.0, u2.bias_a))
+    return min(
+        (float(threshold_level(hs, g5, *g, *rest)) for g, *rest in offsets), default=math.inf
+    )
+
+
+def stiff_threshold_level(hs: float, rho: float, u1: OpAmp, u2: Comparator) -> float:
+    """A lower end of H_lo over every row that meets the stiffness rule g3 + g2 ≤ ρ·g5,
+    whatever R5 (so the open-drain stages of one U1 and U2 share their loop):
+    (Hs + ρ·m)/(1 + ρ), m = min(0, Vos1, Vos2) (V). With w = (g3 + g2)/g5 ≤ ρ, Ib2 ≥ 0
+    (β ≥ 0) and Vos1·g3 + Vos2·g2 ≥ m·(g3 + g2), H_lo ≥ (Hs + m·w)/(1 + w), which falls
+    with w while Hs > m."""
+    m = min(0.0, u1.offset_v, u2.offset_v)
+    return (hs + rho * m) / (1.0 + rho)
 
 
 def error_voltage_range(u1: OpAmp, box: LoadBox) -> tuple[float, float]:
@@ -173,7 +224,10 @@ def open_drain_levels(
     it), ``delay_margin`` how much longer the fall delay may be than at nominal."""
     hs, low = sources(u2, rails)
     g5 = 1.0 / pull_up_ohm
-    h_min = lowest_threshold_level(hs, g5, box, u1, u2)
+    if math.isfinite(box.max_load) and u2.bias_a >= 0.0:
+        h_min = stiff_threshold_level(hs, box.max_load, u1, u2)
+    else:
+        h_min = lowest_threshold_level(hs, g5, box, u1, u2)
     box_lo, box_hi = error_voltage_range(u1, box)
     a0, b0 = h_min - box_hi, low + box_lo
     tiny = STALLED_DRIVE * abs(hs)
@@ -182,7 +236,38 @@ def open_drain_levels(
         return vh_lo, hs, max(min(low, h_min + low - vh_lo), tiny - box_lo), low
     x = delay_margin * fall_delay_exponent(u1, pull_up_ohm, box, rails, a0, b0)
     mean = -math.expm1(-x) / x if x > 0.0 else 1.0
-    return max(box_hi + a0 * mean, box_hi + tiny), hs, low, low
+    vh_lo = max(box_hi + a0 * mean, box_hi + tiny)
+    if not math.isfinite(box.max_load):
+        return vh_lo, hs, low, low
+    ramp, lag, weak = high_state_factors(u1, u2, box)
+    return (
+        box_hi + (vh_lo - box_hi) / weak, box_lo + (hs - box_lo) * ramp, low,
+        (low + box_hi) * lag - box_hi,
+    )  # fmt: skip
+
+
+def high_state_factors(u1: OpAmp, u2: Comparator, box: LoadBox) -> tuple[float, float, float]:
+    """(f_ramp, f_lag, f_weak) ≥ 1 that fold the integrator's high state into the single RC'
+    and lag of ``looptiming.loop_timing`` (module docstring), for rows that meet the
+    stiffness rule (w = R5·(1/R3 + 1/R2) ≤ ρ) within the timing-share limit (ε ≤ ε_m =
+    s/(1 - s)), whatever R5.
+
+    With the square high U1 sees R3 + r_node, r_node = R5 ∥ (R1 + R2) ≤ w·R3, so ε_hi ≥
+    ε/(1 + w): RC'_lo/RC'_hi = (1 + ε)/(1 + ε_hi) ≤ (1 + ε_m)(1 + ρ)/(1 + ρ + ε_m) =
+    f_ramp (rising in ε and w), and the lag τi_hi = 1/(ωt·(1 + ε_hi)) exceeds τi_lo by
+    Δ ≤ ε_m·ρ/((1 + ρ)·ωt). The high ramp at drive a over RC'_hi is the ramp at a·f_ramp
+    over RC'_lo, so vh_hi moves to Ve_lo + (Hs - Ve_lo)·f_ramp; the top overshoot
+    b·(o + τi_hi)/RC'_lo is at most b·f_lag·(o + τi_lo)/RC'_lo with f_lag = 1 + Δ/τi_min,
+    τi_min = 1/(ωt·(1 + ε_m)), so vl_hi moves to (L + Ve_hi)·f_lag - Ve_hi; the period's
+    term d_r/a, d_r = td + τi_hi, is at most (td + τi_lo)/(a/f_weak) with f_weak = 1 +
+    Δ/(td + τi_min), so the weak drive vh_lo - Ve_hi is divided by f_weak. Each move only
+    widens an interval the bounds take."""
+    rho, eps = box.max_load, box.max_share / (1.0 - box.max_share)
+    wt = 2.0 * math.pi * u1.gbw_hz
+    ramp = (1.0 + eps) * (1.0 + rho) / (1.0 + rho + eps)
+    extra_lag = eps * rho / ((1.0 + rho) * wt)
+    lag_min = 1.0 / (wt * (1.0 + eps))
+    return ramp, 1.0 + extra_lag / lag_min, 1.0 + extra_lag / (u2.delay_s + lag_min)
 
 
 def fall_delay_exponent(
@@ -193,6 +278,10 @@ def fall_delay_exponent(
     (1/a0 + 1/b0) (module docstring)."""
     g5, g12 = 1.0 / pull_up_ohm, 1.0 / (2.0 * box.r_lo)
     gamma = g12 / (g5 + g12 + 1.0 / box.r_hi)
+    if math.isfinite(box.max_load):
+        # under the stiffness rule g12 < g2 ≤ ρ·g5, so γ = g12/(g5 + g3 + g12) < ρ (taken
+        # whatever R5, so the stages of one U1 and U2 share their loop)
+        gamma = box.max_load
     u1_lo, u1_hi = opamp_range(u1, rails)
     s = box.max_share
     return s / (1.0 - s) * gamma * max(u1_hi - u1_lo, 0.0) * (1.0 / a0 + 1.0 / b0)

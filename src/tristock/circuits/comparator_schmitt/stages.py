@@ -10,14 +10,19 @@ delay td - τe/2, τe = min(rise, fall)/0.8, and U1's GBW as the integrator's, i
 - push-pull with rise = fall: ``physics.predict``'s period, high time and peaks exactly;
 - rise ≠ fall: the period and duty still exactly (an edge's centroid is td whatever its
   length); each overshoot at least the model's (τe is the shorter edge), so the amplitude's
-  upper bound holds and its lower bound may overstate it by slope·|τr - τf|·(1 - drive/
-  span)/2;
+  upper bound holds, but the loop's own lower end may overstate it by slope·|τr - τf|·
+  (1 - drive/span)/2;
 - open drain: the centroid at the span's low end is td and later above it (the period's
   bounds hold, ``stagelevels``); the overshoot at the strong drive is at least the model's
-  (the amplitude's upper bound holds), but at the weak drive it can exceed the model's,
-  whose share of an edge before Ve follows the row's own high level: the amplitude's lower
-  bound is not guaranteed (in 2·10^5 demo rows it overstated by up to 1.5e-3 of the
-  amplitude, only in stages the heaviest loads can stall).
+  (the amplitude's upper bound holds), but at the weak drive the loop's own can exceed the
+  model's, whose share of an edge before Ve follows the row's own high level.
+
+So for those two the amplitude's lower end takes ``StageLoop.overshoot_time_min`` = td -
+τ_max/2 instead (``search.bounds.overshoot_floors``): the model's overshoot time is
+o = td - (τ/2)·(L + Ve)/(H + L) on either edge (H the high level as the edge happens), at
+least td - τ_max/2 since 0 < L + Ve < H + L in an oscillating row; and each overshoot is at
+least its drive times o over the row's RC' (``physics``: the lag's part less its area is
+≥ 0, the falling edge's slope (H_lo - Ve)/RC'_hi with H_lo ≥ vh_lo, RC'_hi ≤ RC'_lo).
 """
 
 from __future__ import annotations
@@ -32,6 +37,7 @@ import numpy as np
 from tristock.circuits.comparator_schmitt.stagelevels import (
     LoadBox,
     load_box,
+    load_vertices,
     sources,
     stage_levels,
     threshold_level,
@@ -70,10 +76,15 @@ def stage_loop(
     ve: tuple[float, float],
 ) -> StageLoop:  # fmt: skip
     """The bounds' loop (module docstring): levels (vh_lo, vh_hi, vl_lo, vl_hi), Ve over
-    ``ve``; the slew is the span's low end over the shorter whole edge."""
+    ``ve``; the slew is the span's low end over the shorter whole edge; the overshoot time's
+    lower end td - τ_max/2 (≥ 0: ``edge_start_s``) where the loop's own is not one (unequal
+    edges or an open drain), else NaN."""
     tau = min(u2.rise_s, u2.fall_s) / EDGE_SHARE
     slew = (levels[0] + levels[2]) / tau if tau > 0.0 else math.inf
-    values = (*levels, slew, slew, u2.delay_s - tau / 2.0, math.inf, u1.gbw_hz, *ve)
+    o_min = math.nan
+    if u2.is_open_drain or u2.rise_s != u2.fall_s:
+        o_min = u2.delay_s - max(u2.rise_s, u2.fall_s) / EDGE_SHARE / 2.0
+    values = (*levels, slew, slew, u2.delay_s - tau / 2.0, math.inf, u1.gbw_hz, *ve, 0.0, o_min)
     return StageLoop(*(np.asarray(x, dtype=np.float64) for x in values))
 
 
@@ -149,6 +160,17 @@ def sink_reason(u2: Comparator, r5: Resistor, rails: Rails) -> str | None:
     return None
 
 
+def stiffness_reason(r5: Resistor, box: LoadBox) -> str | None:
+    """Why no row can meet the stiffness rule with pull-up R5 (``stagelevels.
+    PULL_UP_LOAD_SHARE``: R5·(1/R3 + 1/R2) ≤ ρ, at least 2·R5/r_hi), or None."""
+    if load_vertices(1.0 / r5.value_ohm, box):
+        return None
+    return (
+        f"the stiffness rule R5 <= {box.max_load:g} x (R3 || R2) fails for every R2, R3 up to "
+        f"{box.r_hi:.4g} ohm"
+    )
+
+
 def stocked(parts: Sequence[P], designator: str, boards: int) -> tuple[list[P], list[Exclusion]]:
     """The parts with a piece for every board, and the others as exclusions."""
     kept: list[P] = []
@@ -169,7 +191,8 @@ def stage_options(
     (``limits.opamps``), stocked for every board, its supply rating over the rails'
     tolerance, its output both sides of the reference; U2 stocked, its own rating, its
     levels both sides of the reference (the spec has no limit on comparators); R5 for an
-    open-drain U2 stocked and not overloading U2 alone (``sink_reason``); each combination
+    open-drain U2 stocked, not overloading U2 alone (``sink_reason``) and light enough for
+    the stiffness rule with some R2, R3 (``stiffness_reason``); each combination
     with Ve inside its levels for some R3 (``usable_error_voltages``)."""
     lim, boards = spec.limits, spec.build.boards
     rails = rails_from_supply(spec.supply)
@@ -195,18 +218,18 @@ def stage_options(
     if any(u2.is_open_drain for u2 in usable_u2):
         pull_ups, more = stocked(catalog.resistors, "R5", boards)
         excl += more
+    box = load_box(spec, r3_values, r3_values, catalog.resistors)
     for_u2: dict[str, list[Resistor | None]] = {}
     for u2 in usable_u2:
         for_u2[u2.id] = [None]
         if u2.is_open_drain:
             for_u2[u2.id] = []
             for pull in pull_ups:
-                reason = sink_reason(u2, pull, rails)
+                reason = sink_reason(u2, pull, rails) or stiffness_reason(pull, box)
                 if reason is None:
                     for_u2[u2.id].append(pull)
                 else:
                     excl.append(Exclusion("R5", pull.id, reason))
-    box = load_box(spec, r3_values, r3_values, catalog.resistors)
     stages: list[ComparatorStage] = []
     for u1 in usable_u1:
         for u2 in usable_u2:
