@@ -378,7 +378,8 @@ def test_both_engines_return_the_full_model_top_k(
         got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
         assert got == expected, engine
         assert all(c.topology == name for c in result.candidates)
-        assert all(("R5" in c.parts) == open_drain for c in result.candidates)
+        if name == "comparator_schmitt":  # a pull-up exactly where U2 is open drain
+            assert all(("R5" in c.parts) == open_drain for c in result.candidates)
 
 
 def test_any_circuit_is_the_merge_of_each_circuits_answers() -> None:

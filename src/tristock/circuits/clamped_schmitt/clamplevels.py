@@ -364,8 +364,9 @@ def stage_loop(
     """The loop of one stage (module docstring, "Timing", (T1)): the level intervals
     ``levels``; instant edges (slew and GBW inf) after U1's delay td plus a spread of
     (VH + VL)/SR_min, U1's whole output swing (``outputs``: VH, VL of U1 on the rails) at its
-    slower slew; U1's GBW for the integrator; Ve over ``ve``."""
+    slower slew; U1's GBW for the integrator; Ve over ``ve``; the overshoot times the
+    loop's own (``overshoot_time_min`` NaN)."""
     slowest = min(model.slew_rise_v_per_s, model.slew_fall_v_per_s)
     spread = (outputs[0] + outputs[1]) / slowest
-    values = (*levels, np.inf, np.inf, model.delay_s, np.inf, model.gbw_hz, *ve, spread)
+    values = (*levels, np.inf, np.inf, model.delay_s, np.inf, model.gbw_hz, *ve, spread, np.nan)
     return StageLoop._make(np.asarray(x, dtype=np.float64) for x in values)
