@@ -73,12 +73,18 @@ def timed(call: Callable[[], object], runs: int) -> tuple[float, float]:
     return statistics.median(walls), statistics.median(cpus)
 
 
+def fresh_monte_carlo(design: Design, spec: Spec, samples: int) -> object:
+    """``monte_carlo`` sampled afresh (its remembered samples forgotten, ``analysis.memo``)."""
+    forget_remembered()
+    return monte_carlo(design, spec, samples=samples)
+
+
 def monte_carlo_parts(design: Design, spec: Spec, runs: int, samples: int = 100_000) -> None:
     """Print the Monte Carlo's median time and that of its two big parts."""
     board, variables = spread_board(design, spec)
     z = deviations(np.random.default_rng(0), variables, samples, "normal")
     for label, call in (
-        ("monte_carlo, 100,000 samples", lambda: monte_carlo(design, spec, samples=samples)),
+        ("monte_carlo, 100,000 samples", lambda: fresh_monte_carlo(design, spec, samples)),
         (
             "  alone: drawing deviations",
             lambda: deviations(np.random.default_rng(0), variables, samples, "normal"),
