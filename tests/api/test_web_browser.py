@@ -245,6 +245,28 @@ def test_stock_edit_needs_the_token(page: tuple[Any, Watch], base: str) -> None:
     assert kept == [TOKEN, 0, ""]
 
 
+def test_a_slow_earlier_stock_load_never_replaces_the_chosen_table(
+    page: tuple[Any, Watch], base: str
+) -> None:
+    """Opening the tab loads resistors; choosing diodes meanwhile must win even when the
+    resistor pages arrive last (the two loads overlapped and the later one lost once)."""
+    pg, _ = page
+    held: list[Any] = []
+    pg.route("**/v1/catalog/resistors?*", lambda route: held.append(route))
+    pg.goto(base + "/#stock")
+    pg.select_option("#stock-kind", "diodes")
+    pg.wait_for_selector("#stock-table tbody tr")
+    diodes = pg.text_content("#stock-count")
+    assert held, "the resistor load was never held back"
+    for route in held:
+        route.continue_()
+    pg.unroute("**/v1/catalog/resistors?*")
+    pg.wait_for_timeout(500)
+    assert pg.text_content("#stock-count") == diodes
+    kinds = pg.eval_on_selector_all("#stock-kind option", "os => os.map(o => o.value)")
+    assert {"comparators", "diodes"} <= set(kinds)
+
+
 def test_docs_page_is_served_from_here(page: tuple[Any, Watch], base: str) -> None:
     pg, _ = page
     pg.goto(base + "/docs")

@@ -426,13 +426,15 @@ async function downloadExport(c, what) {
 }
 
 // ---- stock -------------------------------------------------------------------------------
-const stock = { kind: null, items: [], editing: null };
+const stock = { kind: null, items: [], editing: null, loading: 0 };
 
 async function loadStock() {
   const kind = $("#stock-kind").value;
+  const ticket = ++stock.loading;  // a later load (the kind changed meanwhile) wins
   const items = [];
   for (let offset = 0; ; ) {
     const res = await call("GET", `/v1/catalog/${kind}?limit=500&offset=${offset}`);
+    if (ticket !== stock.loading) return;
     if (!res.ok) { $("#stock-result").textContent = problemText(res.data); return; }
     items.push(...res.data.items);
     offset += res.data.items.length;
