@@ -13,7 +13,6 @@ terms of the resolution bound (``trim.cells``).
 from __future__ import annotations
 
 import math
-import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -21,6 +20,7 @@ from numpy.typing import NDArray
 
 from tristock.circuits.searchform import StageLoop
 from tristock.designs.trimmed.context import F64, I64, TrimContext
+from tristock.designs.trimmed.pacing import Paced
 from tristock.designs.trimmed.probes import SLACK, pair_windows
 from tristock.search.bounds import (
     amplitude_bounds,
@@ -33,6 +33,12 @@ from tristock.search.bounds import (
 EDGE = 1e-9
 #: Pairs whose windows are sought in one vectorised step (the deadline is checked between).
 PAIR_CHUNK = 2048
+#: The first step's size when little time is left (``pacing``): a step of ``PAIR_CHUNK``
+#: takes 0.1-0.3 s on the demo, mostly per step, and would overrun a short limit.
+FIRST_PAIR_CHUNK = 256
+#: Pairs screened (amplitude and share over the catalog-wide P range) in one step.
+SCREEN_CHUNK = 8192
+FIRST_SCREEN_CHUNK = 1024
 
 
 @dataclass
@@ -145,13 +151,22 @@ def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
         k * (res.value.max() + (1 - m) * pots.value.max()) * cap.value.max(),
         t_t * largest_drive_product(loop) / span**2 * (1 + EDGE),
     )
-    sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))
+    screen = Paced(len(k), deadline, full=SCREEN_CHUNK, first=FIRST_SCREEN_CHUNK)
+    kept = [
+        s.start + np.flatnonzero(_amplitude_and_share(ctx, loop.take(np.arange(s.start, s.stop)),
+                                                      k[s], p_lo[s], p_hi[s]))
+        for s in screen
+    ]  # fmt: skip
+    if screen.cut:
+        return _no_pairs(), False
+    sel = np.concatenate(kept) if kept else np.zeros(0, dtype=np.int64)
     parts: list[Pairs] = []
-    for start in range(0, len(sel), PAIR_CHUNK):
-        if time.perf_counter() > deadline:
-            return _no_pairs(), False
-        n = sel[start : start + PAIR_CHUNK]
+    steps = Paced(len(sel), deadline, full=PAIR_CHUNK, first=FIRST_PAIR_CHUNK)
+    for step in steps:
+        n = sel[step]
         parts.append(_windowed(ctx, loop.take(n), u[n], i1[n], i2[n], k[n], p_lo[n], p_hi[n]))
+    if steps.cut:
+        return _no_pairs(), False
     if not parts:
         return _no_pairs(), True
     return Pairs(

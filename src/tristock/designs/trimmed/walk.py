@@ -13,7 +13,8 @@ settled: no row not yet opened can rank before it, so settled candidates are che
 order by the full model's coverage over the spread box (``trim.checks.covers``). The walk
 stops when ``top`` have passed (proven), when every search is exhausted (proven: fewer
 exist), or at the deadline (not proven; what passed so far is returned, in order, and never
-reported as infeasible).
+reported as infeasible): a batch or a coverage check that would end past it, judged by the
+last of its kind, is not begun.
 """
 
 from __future__ import annotations
@@ -146,16 +147,21 @@ def walk(
     pool: list[tuple[int, int, int, tuple[object, ...], tuple[str, ...], int, int, int, TrimRows]]
     pool = []
     seq = 0
+    # the last coverage check's and batch's times: a step that would end past the deadline
+    # is not begun (the walk is cut a step early rather than overrunning by one)
+    check_s = batch_s = 0.0
     while True:
         bound = min((s.bound_q() for s in searches), default=EXHAUSTED)
         while pool and pool[0][0] < bound:
-            if time.perf_counter() > deadline:
+            now = time.perf_counter()
+            if now + check_s > deadline:
                 return _cut(out)
             *_, si, n, rows = heapq.heappop(pool)
             ctx = searches[si].ctx
             row = rows.take(np.array([n], dtype=np.int64))
             d = row_design(ctx, row, 0)
             ok, reach = covers(d, ctx.spec)
+            check_s = time.perf_counter() - now
             if not ok:
                 out.dropped += 1
                 continue
@@ -165,11 +171,13 @@ def walk(
                 return _finish(out, searches)
         if bound >= EXHAUSTED:
             return _finish(out, searches)
-        if time.perf_counter() > deadline:
+        now = time.perf_counter()
+        if now + batch_s > deadline:
             return _cut(out)
         si = min(range(len(searches)), key=lambda x: searches[x].bound_q())
         s = searches[si]
         rows = s.advance()
+        batch_s = time.perf_counter() - now
         extra = tiebreak(si)
         for n in range(len(rows)):
             item = (int(rows.res_q[n]), int(rows.drift_q[n]), int(rows.cost_q[n]), extra,
