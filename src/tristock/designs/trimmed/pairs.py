@@ -21,7 +21,7 @@ from numpy.typing import NDArray
 from tristock.circuits.searchform import StageLoop
 from tristock.designs.trimmed.context import F64, I64, TrimContext
 from tristock.designs.trimmed.pacing import Paced
-from tristock.designs.trimmed.probes import SLACK, pair_windows
+from tristock.designs.trimmed.probes import SLACK, PairProbes, distinct_rows, pair_windows
 from tristock.search.bounds import (
     amplitude_bounds,
     claimed,
@@ -151,44 +151,24 @@ def build_pairs(ctx: TrimContext, deadline: float) -> tuple[Pairs, bool]:
         k * (res.value.max() + (1 - m) * pots.value.max()) * cap.value.max(),
         t_t * largest_drive_product(loop) / span**2 * (1 + EDGE),
     )
-    screen = Paced(len(k), deadline, full=SCREEN_CHUNK, first=FIRST_SCREEN_CHUNK)
-    kept = [
-        s.start + np.flatnonzero(_amplitude_and_share(ctx, loop.take(np.arange(s.start, s.stop)),
-                                                      k[s], p_lo[s], p_hi[s]))
-        for s in screen
-    ]  # fmt: skip
-    if screen.cut:
+    # Pairs of one op amp and one ratio share every P bound below: work on the distinct ones.
+    first, inv = distinct_rows(u.astype(np.float64), k)
+    ok, p_lo, p_hi = _ratio_windows(ctx, loop.take(first), k[first], p_lo[first], p_hi[first],
+                                    deadline)  # fmt: skip
+    if ok is None:
         return _no_pairs(), False
-    sel = np.concatenate(kept) if kept else np.zeros(0, dtype=np.int64)
-    parts: list[Pairs] = []
+    sel = np.flatnonzero(ok[inv])
+    u, i1, i2, k, cls = u[sel], i1[sel], i2[sel], k[sel], inv[sel]
     steps = Paced(len(sel), deadline, full=PAIR_CHUNK, first=FIRST_PAIR_CHUNK)
-    for step in steps:
-        n = sel[step]
-        parts.append(_windowed(ctx, loop.take(n), u[n], i1[n], i2[n], k[n], p_lo[n], p_hi[n]))
+    parts = [pair_windows(ctx, u[step], i1[step], i2[step]) for step in steps]
     if steps.cut:
         return _no_pairs(), False
-    if not parts:
-        return _no_pairs(), True
-    return Pairs(
-        **{f: np.concatenate([getattr(p, f) for p in parts]) for f in Pairs.__dataclass_fields__}
-    ), True
-
-
-def _windowed(
-    ctx: TrimContext, loop: StageLoop, u: I64, i1: I64, i2: I64, k: F64, p_lo: F64, p_hi: F64
-) -> Pairs:
-    """The pairs whose exact window at the target keeps the amplitude and the timing share
-    possible, with their probe bounds."""
-    model = ctx.model
-    res = model.resistors
-    t_t = ctx.target_period_s
-    w = window(loop, k, np.full(len(u), t_t * (1 - SLACK)), np.full(len(u), t_t * (1 + SLACK)))
-    p_lo, p_hi = np.maximum(p_lo, w.lo), np.minimum(p_hi, w.hi)
-    sel = np.flatnonzero(_amplitude_and_share(ctx, loop, k, p_lo, p_hi))
-    u, i1, i2 = u[sel], i1[sel], i2[sel]
-    k, p_lo, p_hi = k[sel], p_lo[sel], p_hi[sel]
-    loop = loop.take(sel)
-    probes = pair_windows(ctx, u, i1, i2)
+    probes = (
+        PairProbes(*(np.concatenate(f) for f in zip(*parts, strict=True)))
+        if parts
+        else PairProbes(*(np.zeros(0) for _ in PairProbes._fields))
+    )
+    model, loop = ctx.model, loop.take(sel)
     u_cost = np.array([o.part.cost_per_board for o in model.opamps])[u]
     bias = np.abs(np.array([o.model.bias_a for o in model.opamps])[u])
     return Pairs(
@@ -196,8 +176,8 @@ def _windowed(
         i1,
         i2,
         k,
-        p_lo,
-        p_hi,
+        p_lo[cls],
+        p_hi[cls],
         *probes,
         span=np.asarray(loop.span_lo, dtype=np.float64),
         # the resolution bound rests on the edge's monotone mean time (search.bounds): where
@@ -205,7 +185,36 @@ def _windowed(
         ab_max=np.where(claimed(loop, k), largest_drive_product(loop), np.inf),
         bias=bias,
         cost=u_cost + res.cost[i1] + res.cost[i2],
-    )
+    ), True
+
+
+def _ratio_windows(
+    ctx: TrimContext, loop: StageLoop, k: F64, p_lo: F64, p_hi: F64, deadline: float
+) -> tuple[NDArray[np.bool_] | None, F64, F64]:
+    """For each (op amp, ratio): whether the amplitude and share can be met over the tables'
+    P range, then over the exact window at the target, and that window (cut to the tables'
+    range); None when the deadline came first. In paced steps (``pacing``)."""
+    ok = np.zeros(len(k), dtype=bool)
+    screen = Paced(len(k), deadline, full=SCREEN_CHUNK, first=FIRST_SCREEN_CHUNK)
+    for s in screen:
+        n = np.arange(s.start, s.stop)
+        ok[n] = _amplitude_and_share(ctx, loop.take(n), k[n], p_lo[n], p_hi[n])
+    if screen.cut:
+        return None, p_lo, p_hi
+    sel = np.flatnonzero(ok)
+    p_lo, p_hi = p_lo.copy(), p_hi.copy()
+    t_t = ctx.target_period_s
+    steps = Paced(len(sel), deadline, full=PAIR_CHUNK, first=FIRST_PAIR_CHUNK)
+    for step in steps:
+        n = sel[step]
+        part = loop.take(n)
+        w = window(part, k[n], np.full(len(n), t_t * (1 - SLACK)),
+                   np.full(len(n), t_t * (1 + SLACK)))  # fmt: skip
+        p_lo[n], p_hi[n] = np.maximum(p_lo[n], w.lo), np.minimum(p_hi[n], w.hi)
+        ok[n] = _amplitude_and_share(ctx, part, k[n], p_lo[n], p_hi[n])
+    if steps.cut:
+        return None, p_lo, p_hi
+    return ok, p_lo, p_hi
 
 
 def _amplitude_and_share(

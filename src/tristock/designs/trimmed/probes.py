@@ -199,6 +199,17 @@ def probe_loop(ctx: TrimContext, u: I64, probe: TrimProbe, temp: F64) -> StageLo
     )
 
 
+def distinct_rows(*columns: F64) -> tuple[I64, I64]:
+    """One position of each distinct row of the columns (bit for bit) and the row's class at
+    every position: ``first[inverse]`` picks, for each position, a row equal to its own."""
+    if len(columns[0]) == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    _, first, inverse = np.unique(
+        np.stack(columns).T, axis=0, return_index=True, return_inverse=True
+    )
+    return np.asarray(first, dtype=np.int64), np.asarray(inverse, dtype=np.int64).reshape(-1)
+
+
 def pair_windows(ctx: TrimContext, u: I64, i1: I64, i2: I64) -> PairProbes:
     """P bounds at the slow and fast corners for every row through each (U1, R1, R2) pair.
 
@@ -215,16 +226,18 @@ def pair_windows(ctx: TrimContext, u: I64, i1: I64, i2: I64) -> PairProbes:
         r1 = res.value[i1] * factor(res.tol[i1], p0.z1, res.tempco[i1], temp)
         r2 = res.value[i2] * factor(res.tol[i2], p0.z2, res.tempco[i2], temp)
         kp = r1 / r2
-        target = np.full(len(u), t_target)
+        # the bounds depend on (U1, k at the corner, temperature) only: each distinct once
+        first, inv = distinct_rows(u.astype(np.float64), kp, temp)
+        target = np.full(len(first), t_target)
         bounds = []
         for probe in probes:
-            loop = probe_loop(ctx, u, probe, temp)
+            loop = probe_loop(ctx, u[first], probe, temp[first])
             if k_up:
-                bounds.append(highest_p(loop, kp, target * (1 + SLACK)))
+                bounds.append(highest_p(loop, kp[first], target * (1 + SLACK)))
             else:
-                bounds.append(lowest_p(loop, kp, target * (1 - SLACK)))
+                bounds.append(lowest_p(loop, kp[first], target * (1 - SLACK)))
         p = np.minimum(*bounds) if k_up else np.maximum(*bounds)
-        out.append((kp, temp, np.asarray(p, dtype=np.float64)))
+        out.append((kp, temp, np.asarray(p, dtype=np.float64)[inv]))
     (k_s, t_s, p_s), (k_f, t_f, p_f) = out
     return PairProbes(k_s, t_s, p_s, k_f, t_f, p_f)
 
