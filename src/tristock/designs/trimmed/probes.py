@@ -254,10 +254,11 @@ def row_reach(
     model, pots = ctx.model, ctx.pots
     res, cap = model.resistors, model.capacitors
     m = ctx.margin
-    slow = np.full(len(u), np.inf)
-    fast = np.full(len(u), -np.inf)
-    corners = [(vz, bz, corner_stages(model, vz, bz)) for vz, bz in _corners(model)]
-    for probes, wiper, is_slow in ((SLOW_PROBES, m, True), (FAST_PROBES, 1 - m, False)):
+    n = len(u)
+    # every (probe, temperature) of both kinds stacked along the rows, one model call a corner
+    blocks: list[tuple[F64, ...]] = []
+    is_slow: list[bool] = []
+    for probes, wiper, slow_kind in ((SLOW_PROBES, m, True), (FAST_PROBES, 1 - m, False)):
         for probe in probes:
             vh, vl = rail_levels(model, u, probe)
             slew, delay = probe_scales(Probe(0, 0, 0, 0, 0, 0, probe.slew, probe.delay, False))
@@ -269,17 +270,24 @@ def row_reach(
                 c = cap.value[j] * factor(
                     cap.tol[j], probe.zc, cap.tempco[j], temp, cap.extra_band[j]
                 )
-                values = (r1, r2, r3 + wiper * rv, c)
-                for _, _, stages in corners:
-                    rp = RowPrediction(
-                        model.form, stages, u, values, vh, vl, slew_scale=slew, delay_scale=delay
-                    )
-                    f = np.asarray(rp.pred.frequency_hz, dtype=np.float64)
-                    if is_slow:
-                        slow = np.fmin(slow, np.where(rp.valid, f, -np.inf))
-                    else:
-                        fast = np.fmax(fast, np.where(rp.valid, f, np.inf))
-    return slow, fast
+                scales = (np.full(n, slew), np.full(n, delay))
+                blocks.append((r1, r2, r3 + wiper * rv, c, vh, vl, *scales))
+                is_slow.append(slow_kind)
+    stacked = (np.concatenate(x) for x in zip(*blocks, strict=True))
+    r1, r2, r_eff, c, vh, vl, slew_s, delay_s = stacked
+    uu = np.tile(u, len(blocks))
+    slow_rows = np.repeat(np.asarray(is_slow), n)
+    slow = np.full(len(uu), np.inf)
+    fast = np.full(len(uu), -np.inf)
+    for vz, bz in _corners(model):
+        rp = RowPrediction(model.form, corner_stages(model, vz, bz), uu, (r1, r2, r_eff, c),
+                           vh, vl, slew_scale=slew_s, delay_scale=delay_s)  # fmt: skip
+        f = np.asarray(rp.pred.frequency_hz, dtype=np.float64)
+        slow = np.fmin(slow, np.where(rp.valid, f, -np.inf))
+        fast = np.fmax(fast, np.where(rp.valid, f, np.inf))
+    lowest = np.fmin.reduce(np.where(slow_rows, slow, np.inf).reshape(len(blocks), n))
+    highest = np.fmax.reduce(np.where(slow_rows, -np.inf, fast).reshape(len(blocks), n))
+    return lowest, highest
 
 
 def probes_pass(ctx: TrimContext, slow: F64, fast: F64) -> np.ndarray:
