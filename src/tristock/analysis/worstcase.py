@@ -183,15 +183,27 @@ def box_extremes(
     """(min, max) over the spread box of each of ``metrics`` (frequency_hz, amplitude_vpp,
     duty_high): the search of ``worst_case`` with every corner up to ``BOX_CORNER_VARIABLES``
     variables. The coverage bound of trimmed and tuned designs."""
-    check_inputs(design, spec)
+    (found,) = box_extremes_many([(design, spec)], metrics)
+    return found
+
+
+def box_extremes_many(
+    boards: Sequence[tuple[AnyBoard, Spec]], metrics: Sequence[str] = METRICS
+) -> list[dict[str, tuple[float, float]]]:
+    """``box_extremes`` of several (board, spec), their searches sharing the model's calls
+    (``boxsearch.search_extremes``: each gets the answer it gets alone)."""
+    for design, spec in boards:
+        check_inputs(design, spec)
     unknown = [m for m in metrics if m not in METRICS]
     if unknown or not metrics:
         raise ValueError(f"metrics: expected some of {', '.join(METRICS)}, got {list(metrics)}")
-    board, variables = spread_board(design, spec)
+    problems = [spread_board(design, spec) for design, spec in boards]
     wanted = [METRICS.index(m) for m in dict.fromkeys(metrics)]
     objectives = [(m, s) for m in wanted for s in (-1.0, 1.0)]
-    ((_, vals, _, _),) = search_extremes([(board, variables)], objectives, BOX_CORNER_VARIABLES)
-    return {METRICS[m]: (float(vals[2 * i]), float(vals[2 * i + 1])) for i, m in enumerate(wanted)}
+    return [
+        {METRICS[m]: (float(vals[2 * i]), float(vals[2 * i + 1])) for i, m in enumerate(wanted)}
+        for _, vals, _, _ in search_extremes(problems, objectives, BOX_CORNER_VARIABLES)
+    ]
 
 
 __all__ = [
@@ -200,6 +212,7 @@ __all__ = [
     "REMEMBERED",
     "WorstCase",
     "box_extremes",
+    "box_extremes_many",
     "worst_case",
     "worst_cases",
 ]

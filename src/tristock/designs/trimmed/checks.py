@@ -1,6 +1,6 @@
 """The full model's last word on one trimmed design: coverage over the spread box, drift.
 
-``frequency_box`` is the one place the trimmed search asks the analysis for the extremes of
+``covers_many`` is the one place the trimmed search asks the analysis for the extremes of
 the frequency over its spread box (every tolerance, each rail, temperature, op-amp offsets,
 bias, slew and delay): ``worstcase.box_extremes`` (every corner, the balanced-rail points and
 a bounded search inside the box). The search's probes are corners of that box, so they are
@@ -11,42 +11,57 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Sequence
 
 from scipy.optimize import brentq
 
-from tristock.analysis.worstcase import box_extremes
+from tristock.analysis.worstcase import box_extremes_many
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.spec.model import Spec
-
-
-def frequency_box(design: Design, spec: Spec) -> tuple[float, float]:
-    """(lowest, highest) frequency (Hz) of ``design`` over the analysis's spread box.
-
-    Raises ValueError when some board of the box cannot oscillate (the integrator's error
-    voltage reaches a square level)."""
-    return box_extremes(design, spec, ("frequency_hz",))["frequency_hz"]
 
 
 def coverage(design: Design, spec: Spec) -> tuple[float, float]:
     """(highest f any board of the box has at wiper 1 - m, lowest f any has at wiper m), Hz.
     Every board can be trimmed to the target inside the margins when the first is at or below
     the target and the second at or above it (f is continuous in the wiper)."""
-    assert spec.trim is not None
-    m = spec.trim.margin_pct / 100
-    near = frequency_box(dataclasses.replace(design, wiper=m), spec)
-    far = frequency_box(dataclasses.replace(design, wiper=1 - m), spec)
-    return far[1], near[0]
+    ((reach, _),) = covers_many([(design, spec)])
+    if math.isnan(reach[0]):
+        raise ValueError("some board of the spread box cannot oscillate")
+    return reach
 
 
 def covers(design: Design, spec: Spec) -> tuple[bool, tuple[float, float]]:
     """Whether every board of the box reaches the target inside the margins, and the reach
     (``coverage``; NaN where a board of the box cannot oscillate, which fails)."""
+    ((reach, ok),) = covers_many([(design, spec)])
+    return ok, reach
+
+
+def covers_many(
+    designs: Sequence[tuple[Design, Spec]],
+) -> list[tuple[tuple[float, float], bool]]:
+    """(reach, whether it covers the target) of each (design, spec), as ``covers`` gives it:
+    the box searches at both wipers of every design share the model's calls
+    (``worstcase.box_extremes_many``, each the answer it gets alone). A batch in which some
+    board cannot oscillate is redone a design at a time, so only that design fails."""
+    wipers = []
+    for design, spec in designs:
+        assert spec.trim is not None
+        m = spec.trim.margin_pct / 100
+        wipers += [(dataclasses.replace(design, wiper=1 - m), spec),
+                   (dataclasses.replace(design, wiper=m), spec)]  # fmt: skip
     try:
-        reach = coverage(design, spec)
+        boxes = box_extremes_many(wipers, ("frequency_hz",))
     except ValueError:
-        return False, (math.nan, math.nan)
-    target = spec.target.target_hz
-    return reach[0] <= target <= reach[1], reach
+        if len(designs) == 1:
+            return [((math.nan, math.nan), False)]
+        return [found for one in designs for found in covers_many([one])]
+    out = []
+    for n, (_, spec) in enumerate(designs):
+        reach = (boxes[2 * n]["frequency_hz"][1], boxes[2 * n + 1]["frequency_hz"][0])
+        target = spec.target.target_hz
+        out.append((reach, reach[0] <= target <= reach[1]))
+    return out
 
 
 def drift_after_trim(design: Design, spec: Spec) -> float:

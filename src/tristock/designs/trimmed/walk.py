@@ -10,8 +10,9 @@ of U1, R1, R2, R3, C1 and RV1.
 ``walk`` merges one or more searches (re-optimisation runs one per set of changed
 designators). A candidate whose resolution key is below every search's ``bound_q`` is
 settled: no row not yet opened can rank before it, so settled candidates are checked in key
-order by the full model's coverage over the spread box (``trim.checks.covers``). The walk
-stops when ``top`` have passed (proven), when every search is exhausted (proven: fewer
+order by the full model's coverage over the spread box (``trim.checks.covers_many``: the
+settled candidates that could still be needed are checked together, then taken in order).
+The walk stops when ``top`` have passed (proven), when every search is exhausted (proven: fewer
 exist), or at the deadline (not proven; what passed so far is returned, in order, and never
 reported as infeasible): a batch or a coverage check that would end past it, judged by the
 last of its kind, is not begun.
@@ -28,7 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from tristock.designs.trimmed.cells import Cells, CellSource, expand, no_cells
-from tristock.designs.trimmed.checks import covers
+from tristock.designs.trimmed.checks import covers_many
 from tristock.designs.trimmed.context import TrimContext, quantise_score
 from tristock.designs.trimmed.pairs import build_pairs
 from tristock.designs.trimmed.rows import BOUND_SLACK, RowStats, TrimRows, evaluate, row_design
@@ -147,28 +148,35 @@ def walk(
     pool: list[tuple[int, int, int, tuple[object, ...], tuple[str, ...], int, int, int, TrimRows]]
     pool = []
     seq = 0
-    # the last coverage check's and batch's times: a step that would end past the deadline
-    # is not begun (the walk is cut a step early rather than overrunning by one)
+    # the time per coverage check and the last batch's: a step that would end past the
+    # deadline is not begun (the walk is cut a step early rather than overrunning by one)
     check_s = batch_s = 0.0
     while True:
         bound = min((s.bound_q() for s in searches), default=EXHAUSTED)
         while pool and pool[0][0] < bound:
+            # settled candidates, checked together, never more than could still be needed
             now = time.perf_counter()
-            if now + check_s > deadline:
+            room = top - len(classes)
+            if check_s > 0.0:
+                room = min(room, int((deadline - now) / check_s))
+            if room < 1 or now > deadline:
                 return _cut(out)
-            *_, si, n, rows = heapq.heappop(pool)
-            ctx = searches[si].ctx
-            row = rows.take(np.array([n], dtype=np.int64))
-            d = row_design(ctx, row, 0)
-            ok, reach = covers(d, ctx.spec)
-            check_s = time.perf_counter() - now
-            if not ok:
-                out.dropped += 1
-                continue
-            out.accepted.append(Accepted(si, row, reach))
-            classes.add(classify(out.accepted[-1]) if classify else len(out.accepted))
-            if len(classes) >= top:
-                return _finish(out, searches)
+            settled: list[tuple[int, TrimRows]] = []
+            while pool and pool[0][0] < bound and len(settled) < room:
+                *_, si, n, rows = heapq.heappop(pool)
+                settled.append((si, rows.take(np.array([n], dtype=np.int64))))
+            designs = [(row_design(searches[si].ctx, row, 0), searches[si].ctx.spec)
+                       for si, row in settled]  # fmt: skip
+            checked = covers_many(designs)
+            check_s = (time.perf_counter() - now) / len(settled)
+            for (si, row), (reach, ok) in zip(settled, checked, strict=True):
+                if not ok:
+                    out.dropped += 1
+                    continue
+                out.accepted.append(Accepted(si, row, reach))
+                classes.add(classify(out.accepted[-1]) if classify else len(out.accepted))
+                if len(classes) >= top:
+                    return _finish(out, searches)
         if bound >= EXHAUSTED:
             return _finish(out, searches)
         now = time.perf_counter()
