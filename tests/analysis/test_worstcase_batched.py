@@ -10,7 +10,14 @@ import dataclasses
 
 from tristock.analysis.bundle import analyse, analyse_many
 from tristock.analysis.memo import forget
-from tristock.analysis.worstcase import REMEMBERED, WorstCase, worst_case, worst_cases
+from tristock.analysis.worstcase import (
+    REMEMBERED,
+    WorstCase,
+    box_extremes,
+    box_extremes_many,
+    worst_case,
+    worst_cases,
+)
 from tristock.circuits import spec_topologies
 from tristock.circuits.board import AnyBoard, Design
 from tristock.designs.fixed import design_of, run_engine
@@ -44,6 +51,15 @@ def test_batched_worst_cases_equal_each_alone() -> None:
         alone.append(worst_case(b, spec))
     assert [figures(w) for w in together] == [figures(w) for w in alone]
     assert worst_cases([], spec) == []
+
+
+def test_box_extremes_of_several_boards_equal_each_alone() -> None:
+    """The coverage bound of trimmed designs checks settled candidates together."""
+    spec, boards = demo_boards(4)
+    _, comparator = demo_boards(1, "comparator")
+    pairs = [(b, spec) for b in [*boards, *comparator]]
+    together = box_extremes_many(pairs, ("frequency_hz", "duty_high"))
+    assert together == [box_extremes(b, s, ("frequency_hz", "duty_high")) for b, s in pairs]
 
 
 def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:
