@@ -36,8 +36,9 @@ from tristock.designs.trimmed.rows import BOUND_SLACK, RowStats, TrimRows, evalu
 
 #: The bound of a search with nothing left to open.
 EXHAUSTED = 1 << 62
-#: Rows evaluated in the first batch; each later batch doubles, up to ``MAX_BATCH``.
+#: Rows evaluated in the first batch; each later batch grows this much, up to ``MAX_BATCH``.
 FIRST_BATCH = 256
+BATCH_GROWTH = 2
 MAX_BATCH = 1 << 12
 
 
@@ -96,7 +97,7 @@ class TrimSearch:
         stop = min(stop, len(self.cells))
         u, i1, i2, i3, j, v, cell = expand(self.ctx, self.cells, self.next, stop)
         self.next = stop
-        self.batch = min(self.batch * 2, MAX_BATCH)
+        self.batch = min(self.batch * BATCH_GROWTH, MAX_BATCH)
         rows, held = evaluate(self.ctx, (u, i1, i2, i3, j, v), self.cells.res_lb[cell], self.stats)
         self.bounds_held &= held
         return rows
@@ -180,7 +181,7 @@ def walk(
         if bound >= EXHAUSTED:
             return _finish(out, searches)
         now = time.perf_counter()
-        if now + batch_s > deadline:
+        if now + BATCH_GROWTH * batch_s > deadline:  # the next batch is up to twice as big
             return _cut(out)
         si = min(range(len(searches)), key=lambda x: searches[x].bound_q())
         s = searches[si]
