@@ -73,10 +73,10 @@ def case(name: str, guarantee: str, seed: int, open_drain: bool) -> tuple[Spec, 
 @cache
 def accepted_boards(
     name: str, guarantee: str, seed: int, open_drain: bool
-) -> list[tuple[tuple[object, ...], Board]]:
-    """Every board of the case's catalog the brute force accepts: (score key and stage key,
-    the board), the score from the full catalog's model (each part's term is its own, so the
-    same in a model without other parts)."""
+) -> list[tuple[int, tuple[object, ...], Board]]:
+    """Every board of the case's catalog the brute force accepts: (primary score, the rank
+    key: score, secondary, stage key, R1, R2, R3, C1; the board), the scores from the full
+    catalog's model (each part's term is its own, so the same without other parts)."""
     spec, catalog = case(name, guarantee, seed, open_drain)
     model = build_model(spec, catalog, TOPOLOGIES[name])
     out = []
@@ -101,7 +101,7 @@ def accepted_boards(
             key = score_key(model, spec, board, stage, e)
             stage_key = "+".join(stage[d].id for d in sorted(stage))
             ids = tuple((d, p.id) for d, p in board.parts().items())
-            out.append(((*key, stage_key, r1.id, r2.id, r3.id, c1.id), ids))
+            out.append((int(key[0]), (*key, stage_key, r1.id, r2.id, r3.id, c1.id), ids))
     return out
 
 
@@ -115,20 +115,20 @@ def fewest_changes(
     """(fewest changes, the best ``top`` (score, board) with that many) of the brute force on
     the catalog without ``without``; None when no board is accepted there."""
     gone = set(without)
-    ranked = []
-    for rank, board in accepted_boards(name, *key):
+    ranked: list[tuple[tuple[object, ...], int, Board]] = []
+    for score, rank, board in accepted_boards(name, *key):
         if any(code in gone for _, code in board):
             continue
         ids = dict(board)
         changed = {d for d in POSITIONS[name] if ids.get(d) != current.get(d)}
         stage_changes = len(changed & set(STAGE[name]))
         order = (len(changed), *rank[:2], stage_changes, "C1" in changed, *rank[2:])
-        ranked.append((order, int(rank[0]), board))
+        ranked.append((order, score, board))
     if not ranked:
         return None
     ranked.sort(key=lambda item: item[0])
-    fewest = ranked[0][0][0]
-    return fewest, [(score, b) for order, score, b in ranked if order[0] == fewest][:top]
+    fewest = len({d for d in POSITIONS[name] if dict(ranked[0][2]).get(d) != current.get(d)})
+    return fewest, [(s, b) for order, s, b in ranked if order[0] == fewest][:top]
 
 
 #: (circuit, guarantee, seed, open drain, withdrawn): a push-pull comparator loop, an
@@ -150,8 +150,8 @@ CASES = [
 
 
 def current_board(name: str, key: tuple[str, int, bool]) -> dict[str, str]:
-    best = min(accepted_boards(name, *key), key=lambda item: item[0])
-    return dict(best[1])
+    best = min(accepted_boards(name, *key), key=lambda item: item[1])
+    return dict(best[2])
 
 
 @pytest.mark.parametrize(("name", "guarantee", "seed", "open_drain", "withdrawn"), CASES)
