@@ -134,6 +134,7 @@ def reoptimise(
     evaluated = 0
     kept: list[ReoptimisedCandidate] = []
     verdicts: dict[tuple[str, ...], Analysis | None] = {}
+    deadline = t0 + time_limit_s
     for n in range(len(positions.names) + 1):
         want = spec.ranking.top * 2 + 5
         while True:
@@ -155,18 +156,22 @@ def reoptimise(
                     batches.append((frozenset(changed), found.rows))
             model.allowed = {}
             why = {**shared, **blocked}
-            kept, consumed = _finish(
-                spec, model, positions, batches, current, why, outside, samples, verdicts
-            )
+            kept, consumed, cut = _finish(
+                spec, model, positions, batches, current, why, outside, (samples, deadline),
+                verdicts,
+            )  # fmt: skip
             # A capped set's unseen rows rank after its want-th row; they can matter only if
             # the full model dropped so many rows that the merge went that deep.
             thin = len(kept) < spec.ranking.top or consumed > want
-            if not (capped and thin) or time.perf_counter() - t0 > time_limit_s:
-                if capped and thin:
+            if cut or not (capped and thin) or time.perf_counter() > deadline:
+                if cut or (capped and thin):
                     proven = False
                 break
             want *= 4
-        if kept or time.perf_counter() - t0 > time_limit_s:
+        if kept:
+            break
+        if time.perf_counter() > deadline:  # larger counts not searched: no proof of none
+            proven &= n == len(positions.names)
             break
 
     # The original passes when it is itself the 0-change answer: the full model alone does not
@@ -181,8 +186,8 @@ def reoptimise(
             )
 
     infeasible = None
-    if not kept:
-        infeasible = Infeasible(reasons=infeasible_reasons(model, reduced))
+    if not kept and proven:  # a cut search proves no absence
+        infeasible = Infeasible(reasons=infeasible_reasons(model, reduced, deadline=deadline))
     return ReoptimiseResult(
         spec=spec,
         original=OriginalDesign(
@@ -241,13 +246,15 @@ def _finish(
     current: dict[str, str],
     blocked: dict[str, str],
     outside: set[str],
-    samples: int,
+    budget: tuple[int, float],
     verdicts: dict[tuple[str, ...], Analysis | None],
-) -> tuple[list[ReoptimisedCandidate], int]:
+) -> tuple[list[ReoptimisedCandidate], int, bool]:
     """Merge the batches of one change count in rank order (ties: fewer stage positions
     changed, then the capacitor kept, then stock codes); keep those the full model passes.
-    Also returns how many merged rows were consumed (kept or dropped). ``verdicts``
-    remembers each board's verdict (stock codes -> analysis or None) across calls."""
+    Also returns how many merged rows were consumed (kept or dropped), and whether the
+    deadline cut the merge. ``budget``: the analysis's Monte Carlo samples and the deadline
+    (``time.perf_counter()``); ``verdicts`` remembers each board's verdict (stock codes ->
+    analysis or None) across calls."""
     ranked = []
     capacitor = positions.form.capacitor
     for changed, rows in batches:
@@ -257,11 +264,14 @@ def _finish(
             tie = (stage_changes, capacitor in changed)
             ranked.append(((key[0], key[1], *tie, *key[2:]), changed, rows, n))
     ranked.sort(key=lambda item: item[0])
+    samples, deadline = budget
     out: list[ReoptimisedCandidate] = []
     consumed = 0
     for _, changed, rows, n in ranked:
         if len(out) >= spec.ranking.top:
             break
+        if consumed and time.perf_counter() > deadline:
+            return out, consumed, True
         consumed += 1
         d = design_of(model, rows, n)
         ids = tuple(p.id for p in d.parts().values())
@@ -275,4 +285,4 @@ def _finish(
         new_ids = {k: v.id for k, v in base.parts.items()}
         changes = changes_of(names, current, new_ids, blocked, outside)
         out.append(ReoptimisedCandidate(**base.model_dump(), changed=names, changes=changes))
-    return out, consumed
+    return out, consumed, False

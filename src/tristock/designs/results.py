@@ -157,8 +157,8 @@ class DesignResult(_Out):
 
 
 class Change(_Out):
-    """One changed position: its stock code before and after (None: no part there, as a
-    pull-up R5 added to or taken from a comparator board) and why it changed."""
+    """One changed position: its stock code before and after (null: no part there, as a
+    pull-up R5 added to or taken from a comparator-IC board) and why it changed."""
 
     designator: str
     from_id: str | None
