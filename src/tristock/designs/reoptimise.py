@@ -22,6 +22,7 @@ from typing import Any
 from tristock.analysis.bundle import Analysis, analyse
 from tristock.analysis.worstcase import worst_case
 from tristock.circuits.board import AnyBoard
+from tristock.circuits.checks import Warning
 from tristock.designs.candidate import accepts, candidate, guarantee_holds, passes, warnings_for
 from tristock.designs.changes import (
     blocked_positions,
@@ -116,7 +117,7 @@ def reoptimise(
             p = figures["predicted"]
             predicted = Predicted(**p)
             before = {k: figures[k] for k in ("yield_fraction", "worst_case")}
-            if meets(spec, original, result):
+            if passes(spec, original, result):
                 full_model_passes = True
             else:
                 reasons.append(
@@ -133,7 +134,7 @@ def reoptimise(
     proven = True
     evaluated = 0
     kept: list[ReoptimisedCandidate] = []
-    verdicts: dict[tuple[str, ...], Analysis | None] = {}
+    verdicts: dict[tuple[str, ...], tuple[Analysis, list[Warning]] | None] = {}
     deadline = t0 + time_limit_s
     for n in range(len(positions.names) + 1):
         want = spec.ranking.top * 2 + 5
@@ -179,7 +180,10 @@ def reoptimise(
     original_passes = bool(kept) and not kept[0].changed
     if full_model_passes and not original_passes and not blocked and not shared:
         reasons += [f"{current[d]} is outside the spec's limits or stock" for d in sorted(outside)]
-        if not outside:
+        errors = [w.code for w in warnings_for(original, spec) if w.severity == "error"]
+        if errors:
+            reasons.append(f"a check of error severity fails: {', '.join(errors)}")
+        elif not outside:
             reasons.append(
                 "the search model rejects this combination (cost cap, capacitor voltage, or "
                 "its tolerance estimate under the spec's guarantee)"
@@ -213,29 +217,25 @@ def reoptimise(
     )
 
 
-def meets(spec: Spec, design: AnyBoard, result: Analysis) -> bool:
-    """The full model's verdict as the fixed search gives it: ``passes`` (the acceptance and
-    the guarantee) and no check of error severity (``designs.candidate.warnings_for``)."""
-    if not passes(spec, design, result):
-        return False
-    return not any(w.severity == "error" for w in warnings_for(design, spec))
-
-
-def verdict(spec: Spec, design: AnyBoard, samples: int) -> Analysis | None:
-    """``design``'s analysis when it ``meets`` the spec, else None; the cheap checks first
-    (the acceptance, the checks, then under a worst-case guarantee the worst case alone,
-    which the analysis remembers), so a rejected row costs no Monte Carlo run. Same verdict
-    as ``meets`` of the full analysis."""
+def verdict(spec: Spec, design: AnyBoard, samples: int) -> tuple[Analysis, list[Warning]] | None:
+    """``design``'s analysis and checks when it meets the spec as the fixed search's re-check
+    decides (``passes``: the acceptance and the guarantee, and no check of error severity,
+    ``designs.candidate.warnings_for``), else None. The cheap checks come first (the
+    acceptance, the checks, then under a worst-case guarantee the worst case alone, which the
+    analysis remembers), so a rejected row costs no Monte Carlo run."""
     if not accepts(spec, design):
         return None
-    if any(w.severity == "error" for w in warnings_for(design, spec)):
+    warnings = warnings_for(design, spec)
+    if any(w.severity == "error" for w in warnings):
         return None
     if spec.limits.guarantee == "worst_case" and not guarantee_holds(
         spec, worst_case(design, spec), None
     ):
         return None
     result = analyse(design, spec, samples=samples)
-    return result if meets(spec, design, result) else None
+    if not guarantee_holds(spec, result.worst_case, result.yield_result):
+        return None
+    return result, warnings
 
 
 def _finish(
@@ -247,14 +247,14 @@ def _finish(
     blocked: dict[str, str],
     outside: set[str],
     budget: tuple[int, float],
-    verdicts: dict[tuple[str, ...], Analysis | None],
+    verdicts: dict[tuple[str, ...], tuple[Analysis, list[Warning]] | None],
 ) -> tuple[list[ReoptimisedCandidate], int, bool]:
     """Merge the batches of one change count in rank order (ties: fewer stage positions
     changed, then the capacitor kept, then stock codes); keep those the full model passes.
     Also returns how many merged rows were consumed (kept or dropped), and whether the
     deadline cut the merge. ``budget``: the analysis's Monte Carlo samples and the deadline
     (``time.perf_counter()``); ``verdicts`` remembers each board's verdict (stock codes ->
-    analysis or None) across calls."""
+    analysis and checks, or None) across calls."""
     ranked = []
     capacitor = positions.form.capacitor
     for changed, rows in batches:
@@ -277,10 +277,11 @@ def _finish(
         ids = tuple(p.id for p in d.parts().values())
         if ids not in verdicts:
             verdicts[ids] = verdict(spec, d, samples)
-        result = verdicts[ids]
-        if result is None:
+        found = verdicts[ids]
+        if found is None:
             continue
-        base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]))
+        result, warnings = found
+        base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]), warnings)
         names = [x for x in positions.names if x in changed]
         new_ids = {k: v.id for k, v in base.parts.items()}
         changes = changes_of(names, current, new_ids, blocked, outside)
