@@ -16,6 +16,7 @@ answers in the same order.
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 from collections.abc import Sequence
 from functools import cache
@@ -54,14 +55,20 @@ TIME_LIMIT_S = 120.0
 Board = tuple[tuple[str, str], ...]  # (designator, stock code) in BOM order
 
 
-def catalog_of(name: str, seed: int, open_drain: bool) -> Catalog:
+def catalog_of(name: str, seed: int, open_drain: bool | str) -> Catalog:
+    """The case's small catalog; ``open_drain`` "mixed": the open-drain catalog with the
+    push-pull TK-PP beside its open-drain comparator."""
     if name == "clamped_schmitt":
         return clamp_catalog(seed)
-    return small_catalog(seed, open_drain=open_drain)
+    if open_drain == "mixed":
+        base = small_catalog(seed, open_drain=True)
+        push_pull = small_catalog(seed).comparators[:1]
+        return dataclasses.replace(base, comparators=(*push_pull, *base.comparators))
+    return small_catalog(seed, open_drain=bool(open_drain))
 
 
 @cache
-def case(name: str, guarantee: str, seed: int, open_drain: bool) -> tuple[Spec, Catalog]:
+def case(name: str, guarantee: str, seed: int, open_drain: bool | str) -> tuple[Spec, Catalog]:
     """The catalog and a spec near one of its boards (``spec_near``), its bands widened to
     ±BAND_PCT so that several boards meet it and answers can change more than one part."""
     catalog = catalog_of(name, seed, open_drain)
@@ -72,7 +79,7 @@ def case(name: str, guarantee: str, seed: int, open_drain: bool) -> tuple[Spec, 
 
 @cache
 def accepted_boards(
-    name: str, guarantee: str, seed: int, open_drain: bool
+    name: str, guarantee: str, seed: int, open_drain: bool | str
 ) -> list[tuple[int, tuple[object, ...], Board]]:
     """Every board of the case's catalog the brute force accepts: (primary score, the rank
     key: score, secondary, stage key, R1, R2, R3, C1; the board), the scores from the full
@@ -107,7 +114,7 @@ def accepted_boards(
 
 def fewest_changes(
     name: str,
-    key: tuple[str, int, bool],
+    key: tuple[str, int, bool | str],
     current: dict[str, str],
     without: Sequence[str],
     top: int,
@@ -142,6 +149,8 @@ CASES = [
     ("comparator_schmitt", "worst_case", 7, False, ("U2",)),
     ("comparator_schmitt", "nominal", 15, True, ("R5",)),
     ("comparator_schmitt", "nominal", 15, True, ("R3",)),
+    # push-pull TK-PP withdrawn, only the open-drain U2 left: U2, R2 and a pull-up R5 added
+    ("comparator_schmitt", "nominal", 12, "mixed", ("U2",)),
     ("clamped_schmitt", "nominal", 5, False, ("D1",)),  # four changes
     ("clamped_schmitt", "nominal", 5, False, ("R5",)),
     ("clamped_schmitt", "nominal", 4, False, ("D1",)),  # five changes
@@ -149,14 +158,14 @@ CASES = [
 ]
 
 
-def current_board(name: str, key: tuple[str, int, bool]) -> dict[str, str]:
+def current_board(name: str, key: tuple[str, int, bool | str]) -> dict[str, str]:
     best = min(accepted_boards(name, *key), key=lambda item: item[1])
     return dict(best[2])
 
 
 @pytest.mark.parametrize(("name", "guarantee", "seed", "open_drain", "withdrawn"), CASES)
 def test_fewest_changes_and_answers_match_brute_force(
-    name: str, guarantee: str, seed: int, open_drain: bool, withdrawn: tuple[str, ...]
+    name: str, guarantee: str, seed: int, open_drain: bool | str, withdrawn: tuple[str, ...]
 ) -> None:
     key = (guarantee, seed, open_drain)
     spec, catalog = case(name, *key)
@@ -183,6 +192,11 @@ def test_fewest_changes_and_answers_match_brute_force(
         # a withdrawn part's position always changes (and so every position holding its code)
         assert {d for d, code in current.items() if code in without} <= moved
         assert [ch.designator for ch in c.changes] == c.changed
+        # from and to as the boards have them (None: no part there, as R5 before it is added)
+        assert all(
+            (ch.from_id, ch.to_id) == (current.get(ch.designator), ids.get(ch.designator))
+            for ch in c.changes
+        )
     if not withdrawn:  # nothing withdrawn: the brute force's best is itself, 0 changes
         assert fewest == 0 and result.original.passes
 

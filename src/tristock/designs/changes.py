@@ -105,10 +105,11 @@ def changes_of(
             why = (
                 f"{was} is outside the spec's limits or stock"
                 if was is not None
-                else "no usable stage leaves it empty"
+                else "added: every usable stage has a part here"
             )
         else:
             others = ", ".join(o for o in names if o != x) or "nothing else"
-            why = f"re-chosen with {others} to bring the design back into spec"
+            done = "taken away" if new_ids.get(x) is None else "re-chosen"
+            why = f"{done} with {others} to bring the design back into spec"
         changes.append(Change(designator=x, from_id=was, to_id=new_ids.get(x), why=why))
     return changes

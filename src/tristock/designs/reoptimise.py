@@ -179,7 +179,12 @@ def reoptimise(
     # see the spec's limits, the cost cap or the stock.
     original_passes = bool(kept) and not kept[0].changed
     if full_model_passes and not original_passes and not blocked and not shared:
-        reasons += [f"{current[d]} is outside the spec's limits or stock" for d in sorted(outside)]
+        reasons += [
+            f"{current[d]} is outside the spec's limits or stock"
+            if d in current
+            else f"{d}: none on the board, and every usable stage has one"
+            for d in sorted(outside)
+        ]
         errors = [w.code for w in warnings_for(original, spec) if w.severity == "error"]
         if errors:
             reasons.append(f"a check of error severity fails: {', '.join(errors)}")
