@@ -8,10 +8,11 @@ from typing import Any
 
 from fastapi import APIRouter
 
-from tristock.circuits.board import part_ids
 from tristock.designs import design
+from tristock.designs.positions import reoptimisable
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import DesignResult, ReoptimiseResult
+from tristock.export.designfile import design_ids
 from tristock.spec.model import Spec
 
 from ..compute import Parcel
@@ -110,6 +111,7 @@ def _reoptimised(
         boards=body.boards,
         top=body.top,
         time_limit_s=limit,
+        topology=body.topology,
     )
     data = result.model_dump(mode="json")
     return data, to_json_bytes(data)
@@ -126,7 +128,8 @@ def _reoptimised(
 async def post_reoptimise(
     body: ReoptimiseRequest, settings: SettingsDep, catalog: CatalogDep, slots: SlotsDep
 ) -> RenderedJSON:
-    current = part_ids(body.parts)
+    current, _ = design_ids(body.spec, body.parts, body.topology)
+    reoptimisable(body.spec, current, body.topology)  # a 422 naming the field, before any work
     top = body.top if body.top is not None else body.spec.ranking.top
     where = ["body", "top"] if body.top is not None else ["body", "spec", "ranking", "top"]
     _check_top(settings, top, where)

@@ -1,6 +1,6 @@
 """The circuits through the HTTP API: a ``[circuit]`` spec searched, its answers naming their
-topology, a DESIGN body of any circuit analysed (``topology``), and the refusals as 422s
-naming the field."""
+topology, a DESIGN body of any circuit analysed (``topology``) and a variant's re-optimised,
+and the refusals as 422s naming the field."""
 
 from __future__ import annotations
 
@@ -74,3 +74,37 @@ def test_what_cannot_be_done_is_a_422_naming_the_field(
         r = api.post("/v1/analyse", json={"spec": spec, "parts": parts, **body})
     assert r.status_code == 422, r.text
     assert any(e["field"].endswith(field) for e in r.json()["errors"]), r.json()
+
+
+def test_a_clamped_board_is_reoptimised_without_its_zener(api: TestClient) -> None:
+    """A DESIGN body of the zener clamp (``topology``) re-optimised with its zener withdrawn:
+    D1 and D2 change together (one zener part, ``clamped_schmitt``'s stage options), each
+    answer a board of the same circuit, proven (the fewest count's brute-force check is in
+    tests/designs/test_reoptimise_variants.py)."""
+    t = TOPOLOGIES["clamped_schmitt"]
+    spec = {
+        "supply": {"positive_v": 12.0, "negative_v": -12.0},
+        "frequency": {"target_hz": 2400.0, "tolerance_pct": 5.0},
+        "triangle": {"amplitude_vpp": 5.0, "tolerance_pct": 10.0},
+    }
+    zener = t.demo_board["D1"]
+    body = {
+        "spec": spec, "parts": dict(t.demo_board), "topology": t.name, "without": [zener],
+        "time_limit_s": 30, "top": 2,
+    }  # fmt: skip
+    r = api.post("/v1/reoptimise", json=body)
+    assert r.status_code == 200, r.text
+    result = r.json()
+    assert result["search"]["proven_optimal"]
+    assert result["candidates"], result["infeasible"]
+    for c in result["candidates"]:
+        assert c["topology"] == t.name and {"D1", "D2"} <= set(c["changed"])
+        assert c["parts"]["D1"]["id"] == c["parts"]["D2"]["id"] != zener
+
+
+def test_a_set_duty_board_is_not_reoptimised(api: TestClient) -> None:
+    t = TOPOLOGIES["duty_schmitt"]
+    body = {"spec": comparator_spec(), "parts": dict(t.demo_board), "topology": t.name}
+    r = api.post("/v1/reoptimise", json=body)
+    assert r.status_code == 422, r.text
+    assert "duty_schmitt has no exact search" in r.json()["detail"]

@@ -1,6 +1,7 @@
 """The variants through the CLI: DESIGN files of every circuit (``topology`` key) analysed,
-simulated and exported, the bundled comparator example searched and read back, and the plain
-refusals (circuits not searched yet, re-optimised variants) as one line with exit 2."""
+simulated and exported, the bundled comparator example searched, read back and re-optimised,
+and the plain refusals (circuits not searched yet, so not re-optimised either) as one line with
+exit 2."""
 
 from __future__ import annotations
 
@@ -97,8 +98,35 @@ def test_what_is_not_searched_is_refused_in_one_line(
     assert len(done.err.strip().splitlines()) == 1
 
 
-def test_a_variant_board_is_not_reoptimised(tmp_path: Path) -> None:
-    path = design_file(tmp_path, "clamped_schmitt")
+def test_the_set_duty_board_is_not_reoptimised(tmp_path: Path) -> None:
+    """The set-duty loop has no exact search, so no fewest-changes answer can be proven."""
+    path = design_file(tmp_path, "duty_schmitt")
     done = run("reoptimise", path, "--catalog", DEMO_CATALOG)
     assert done.code == 2
-    assert "re-optimisation is built for the op-amp Schmitt loop only" in done.err
+    assert "duty_schmitt has no exact search" in done.err and str(path) in done.err
+    assert len(done.err.strip().splitlines()) == 1
+
+
+def test_a_saved_comparator_answer_is_reoptimised_without_its_r3(tmp_path: Path) -> None:
+    """The comparator example's rank 1 saved as a DESIGN file (``topology`` key), its R3
+    withdrawn: the answers change R3 alone (one position can change: the others keep their
+    parts, each answer is a board of the same circuit), proven."""
+    target = tmp_path / "rank1.toml"
+    saved = run("design", "--example", "comparator", "--save", "1", target, "--quiet")
+    assert saved.code == 0, saved.err
+    before = run("analyse", target, "--catalog", DEMO_CATALOG, "--samples", "200", "--json")
+    parts = json.loads(before.out)["parts"]
+    gone = parts["R3"]["id"]
+    done = run(
+        "reoptimise", target, "--catalog", DEMO_CATALOG, "--without", gone, "--json", "--quiet"
+    )
+    assert done.code == 0, done.err
+    result = json.loads(done.out)
+    assert result["search"]["proven_optimal"]
+    assert not result["original"]["passes"]
+    assert result["candidates"]
+    for c in result["candidates"]:
+        assert c["topology"] == "comparator_schmitt" and c["changed"] == ["R3"]
+        assert c["parts"]["R3"]["id"] != gone
+        kept = {d: p["id"] for d, p in c["parts"].items() if d != "R3"}
+        assert kept == {d: p["id"] for d, p in parts.items() if d != "R3"}

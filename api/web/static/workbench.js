@@ -526,7 +526,7 @@ async function runReopt(event) {
     r.infeasible ? el("ul", {}, r.infeasible.reasons.map((x) => el("li", { text: x }))) : "",
     el("table", { id: "reopt-table" }, el("thead", {}, el("tr", {}, ["rank", "changed", "changes", "f (Hz)", "A (Vpp)", "yield", "cost", ""].map((h) => el("th", { scope: "col", text: h })))),
       el("tbody", {}, r.candidates.map((c) => el("tr", {}, el("td", { text: c.rank }), el("td", { text: c.changed.join(", ") || "none" }),
-        el("td", {}, c.changes.map((x) => el("div", { text: `${x.designator}: ${x.from_id} → ${x.to_id} (${x.why})` }))),
+        el("td", {}, c.changes.map((x) => el("div", { text: `${x.designator}: ${x.from_id ?? "(none)"} → ${x.to_id ?? "(none)"} (${x.why})` }))),
         el("td", { class: "num", text: fmt(c.predicted.frequency_hz, 6) }), el("td", { class: "num", text: fmt(c.predicted.amplitude_vpp, 5) }),
         el("td", { class: "num", text: pct(c.yield_fraction) }), el("td", { class: "num", text: fmt(c.cost, 4) }),
         el("td", {}, c.design_file ? el("button", { type: "button", onclick: () => openDesign(c) }, "open") : ""))))));

@@ -11,17 +11,18 @@ import argparse
 from pathlib import Path
 from typing import Any
 
-from tristock.circuits.board import part_ids
 from tristock.cli import exits
 from tristock.cli.common import catalog_from, parsed_in, read_file
 from tristock.cli.exits import UsageError
 from tristock.cli.output import complain, emit, emit_json
 from tristock.cli.progress import progress
+from tristock.designs.positions import reoptimisable
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import Predicted, ReoptimiseResult
+from tristock.export.designfile import design_ids
 from tristock.report.text import pct, value_range, wrap_all
 from tristock.spec import limits
-from tristock.spec.loading import SpecError, parse_spec
+from tristock.spec.loading import parse_spec
 from tristock.stock.units import format_value
 
 
@@ -64,7 +65,8 @@ def render_reoptimise(result: ReoptimiseResult, *, quiet: bool = False) -> str:
             f"f {pct(c.error.frequency_pct / 100, 2, sign=True)} from the target"
         )
         for ch in c.changes:
-            lines.append(f"      {ch.designator}: {ch.from_id} -> {ch.to_id}  ({ch.why})")
+            was, now = ch.from_id or "(none)", ch.to_id or "(none)"
+            lines.append(f"      {ch.designator}: {was} -> {now}  ({ch.why})")
         names = ("f", "Vpp", "yield", "worst-case f")
         for name, old, new in zip(names, before, after, strict=True):
             lines.append(f"      {name:<13} {old:>16} -> {new}")
@@ -98,11 +100,10 @@ def run(args: argparse.Namespace) -> int:
     path = Path(args.design)
     data = read_file(path)
     spec = parsed_in(path, parse_spec, data.get("spec", {}))
-    if data.get("topology", "opamp_schmitt") != "opamp_schmitt":
-        raise SpecError(
-            [f"{path}: topology: re-optimisation is built for the op-amp Schmitt loop only"]
-        )
-    current = parsed_in(path, part_ids, data.get("parts"))
+    current, topology = parsed_in(
+        path, lambda parts: design_ids(spec, parts, data.get("topology")), data.get("parts")
+    )
+    parsed_in(path, lambda ids: reoptimisable(spec, ids, topology), current)
     catalog = catalog_from(args.catalog)
     with progress("re-optimising", quiet=args.quiet):
         result = reoptimise(
@@ -113,6 +114,7 @@ def run(args: argparse.Namespace) -> int:
             boards=args.boards,
             top=args.top,
             time_limit_s=args.time_limit,
+            topology=topology,
         )
     code = exit_code(result)
     if args.json:

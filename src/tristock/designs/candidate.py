@@ -141,11 +141,20 @@ def guarantee_holds(spec: Spec, wc: WorstCase | None, y: YieldResult | None) -> 
     return True
 
 
-def candidate(spec: Spec, design: AnyBoard, result: Analysis, rank: int, score: int) -> Candidate:
-    """One design as reported: parts, prediction, errors, spread, cost and warnings."""
+def candidate(
+    spec: Spec,
+    design: AnyBoard,
+    result: Analysis,
+    rank: int,
+    score: int,
+    warnings: list[Warning] | None = None,
+) -> Candidate:
+    """One design as reported: parts, prediction, errors, spread, cost and warnings
+    (``warnings``: the design's ``warnings_for`` when the caller has them already)."""
     d = result.to_dict()
     parts = parts_report(design)
-    warnings = warnings_for(design, spec)
+    if warnings is None:
+        warnings = warnings_for(design, spec)
     p = d["predicted"]
     return Candidate(
         rank=rank,

@@ -80,6 +80,8 @@ def without_parts(catalog: Catalog, without: Sequence[str]) -> Catalog:
         capacitors=tuple(c for c in catalog.capacitors if c.id not in gone),
         opamps=tuple(o for o in catalog.opamps if o.id not in gone),
         pots=tuple(p for p in catalog.pots if p.id not in gone),
+        comparators=tuple(c for c in catalog.comparators if c.id not in gone),
+        diodes=tuple(d for d in catalog.diodes if d.id not in gone),
     )
 
 
@@ -91,15 +93,23 @@ def changes_of(
     outside: set[str],
 ) -> list[Change]:
     """What changed at each of ``names`` and why: blocked (the reason), outside the spec's
-    limits or stock, or re-chosen with the others to bring the design back into spec."""
+    limits or stock, or re-chosen with the others to bring the design back into spec. A
+    position empty before or after (a pull-up R5 added or taken away) has no stock code
+    there (None)."""
     changes = []
     for x in names:
+        was = current.get(x)
         if x in blocked:
             why = blocked[x]
         elif x in outside:
-            why = f"{current[x]} is outside the spec's limits or stock"
+            why = (
+                f"{was} is outside the spec's limits or stock"
+                if was is not None
+                else "added: every usable stage has a part here"
+            )
         else:
             others = ", ".join(o for o in names if o != x) or "nothing else"
-            why = f"re-chosen with {others} to bring the design back into spec"
-        changes.append(Change(designator=x, from_id=current[x], to_id=new_ids[x], why=why))
+            done = "taken away" if new_ids.get(x) is None else "re-chosen"
+            why = f"{done} with {others} to bring the design back into spec"
+        changes.append(Change(designator=x, from_id=was, to_id=new_ids.get(x), why=why))
     return changes

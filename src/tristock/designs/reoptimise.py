@@ -1,12 +1,15 @@
 """Re-optimise a released design when stock changes: the fewest changed designators.
 
 Parts named as unavailable, parts whose stock no longer covers boards x uses, and parts the
-spec's limits now exclude cannot stay. For n = 0, 1, ..., 5 changed designators, every set S of
-n designators is searched exactly with the positions outside S pinned to their current part and
-the positions in S forced to a different part. The first n with an answer that passes the full
-model is the minimum (a proof: every smaller n was searched completely and had none). Among the
-answers with n changes the order is the spec's ranking; exact ties keep the op amp, then the
-capacitor (a design that keeps U1 ranks first, then one that keeps C1), then stock codes.
+spec's limits now exclude cannot stay. The positions are the designators the circuit's search
+form fills (``designs.positions``: U1, R1, R2, R3, C1, and the variants' stage parts U2, R5,
+D1, D2). For n = 0, 1, ... changed positions, every set S of n positions is searched exactly
+with the positions outside S pinned to their current part and the positions in S forced to a
+different part (or to a part where there was none, or to none). The first n with an answer
+that passes the full model is the minimum (a proof: every smaller n was searched completely
+and had none). Among the answers with n changes the order is the spec's ranking; exact ties
+keep the stage (a design that changes fewer of U1 and the stage's parts ranks first), then the
+capacitor, then stock codes. A circuit without a search form (the set-duty loop) is refused.
 """
 
 from __future__ import annotations
@@ -16,12 +19,11 @@ from collections.abc import Sequence
 from itertools import combinations
 from typing import Any
 
-import numpy as np
-
-from tristock.analysis.bundle import analyse
-from tristock.circuits.board import DESIGNATORS, resolve
-from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
-from tristock.designs.candidate import candidate, passes
+from tristock.analysis.bundle import Analysis, analyse
+from tristock.analysis.worstcase import worst_case
+from tristock.circuits.board import AnyBoard
+from tristock.circuits.checks import Warning
+from tristock.designs.candidate import accepts, candidate, guarantee_holds, passes, warnings_for
 from tristock.designs.changes import (
     blocked_positions,
     changes_of,
@@ -30,6 +32,12 @@ from tristock.designs.changes import (
     without_parts,
 )
 from tristock.designs.fixed import design_of, search_space
+from tristock.designs.positions import (
+    Positions,
+    positions_of,
+    reoptimisable,
+    resolve_current,
+)
 from tristock.designs.results import (
     Infeasible,
     OriginalDesign,
@@ -44,30 +52,8 @@ from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.rows import Rows, rank_key
 from tristock.spec.limits import default_time_limit_s
-from tristock.spec.loading import SpecError
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-
-_POSITION_TABLE = {
-    "U1": "opamps",
-    "R1": "resistors",
-    "R2": "resistors",
-    "R3": "resistors",
-    "C1": "capacitors",
-}
-
-
-def _index_of(model: SearchModel, designator: str, part_id: str) -> int | None:
-    if designator == "U1":
-        return next((o.index for o in model.opamps if o.part.id == part_id), None)
-    table = getattr(model, _POSITION_TABLE[designator])
-    return next((n for n, p in enumerate(table.parts) if p.id == part_id), None)
-
-
-def _size(model: SearchModel, designator: str) -> int:
-    if designator == "U1":
-        return len(model.opamps)
-    return len(getattr(model, _POSITION_TABLE[designator]))
 
 
 def reoptimise(
@@ -80,9 +66,14 @@ def reoptimise(
     top: int | None = None,
     time_limit_s: float | None = None,
     samples: int = 4000,
+    topology: str | None = None,
 ) -> ReoptimiseResult:
     """Designs meeting ``spec`` that change the fewest designators of ``current``.
-    ``time_limit_s``: None takes the default of the spec's job (``spec.limits``)."""
+    ``time_limit_s``: None takes the default of the spec's job (``spec.limits``);
+    ``topology``: the board's circuit by name (a DESIGN file's ``topology``; None: the spec's
+    ``[circuit]``, or with ``topology = "any"`` the circuit whose designators the board has,
+    ``designs.positions.board_topology``)."""
+    circuit = reoptimisable(spec, current, topology)
     if time_limit_s is None:
         time_limit_s = default_time_limit_s(spec.tuning is not None)
     if spec.tuning is not None:
@@ -94,24 +85,13 @@ def reoptimise(
         )  # fmt: skip
     t0 = time.perf_counter()
     spec = with_build(spec, boards, top)
-    if spec.circuit.topology_name != "opamp_schmitt" or set(current) - set(
-        OPAMP_SCHMITT.designators
-    ):
-        raise SpecError(
-            [
-                "circuit: re-optimisation is built for the op-amp Schmitt loop only; search "
-                "the variant again with the part withdrawn (limits or stock)"
-            ]
-        )
     if spec.trimmed:
         from tristock.designs.trimmed.reoptimise import reoptimise_trimmed
 
         return reoptimise_trimmed(
             spec, catalog, current, without=without, time_limit_s=time_limit_s, samples=samples
         )
-    missing = [d for d in DESIGNATORS if d not in current]
-    if missing:
-        raise SpecError([f"parts.{d}: missing" for d in missing])
+    positions = positions_of(circuit)
     check_withdrawn(catalog, without)
     n_boards = spec.build.boards
 
@@ -119,7 +99,7 @@ def reoptimise(
     # Short only because the code fills several positions: one position may keep it, and the
     # search's shared-stock constraint decides which (so these positions are not forced).
     blocked, shared = blocked_positions(
-        catalog, current, without, short, n_boards, list(current), DESIGNATORS
+        catalog, current, without, short, n_boards, list(current), list(current)
     )
 
     reasons = list(dict.fromkeys([*blocked.values(), *shared.values()]))
@@ -127,7 +107,7 @@ def reoptimise(
     before: dict[str, Any] = {}  # the original's yield and worst case, when analysed
     full_model_passes = False
     if all(pid in catalog for pid in current.values()):
-        original = resolve(current, catalog)
+        original = resolve_current(circuit, current, catalog)
         try:
             result = analyse(original, spec, samples=samples)
         except ValueError as err:  # it cannot even be built on these rails
@@ -146,23 +126,28 @@ def reoptimise(
                 )
 
     reduced = without_parts(catalog, without)
-    model = build_model(spec, reduced)
-    pinned = {d: _index_of(model, d, current[d]) for d in DESIGNATORS}
-    must_change = {d for d in DESIGNATORS if d in blocked or pinned[d] is None}
+    model = build_model(spec, reduced, circuit)
+    must_change = set(positions.names) - positions.keepable(model, current)
+    must_change |= set(blocked)
     outside = {d for d in must_change if d not in blocked}
 
     proven = True
     evaluated = 0
     kept: list[ReoptimisedCandidate] = []
-    for n in range(len(DESIGNATORS) + 1):
+    verdicts: dict[tuple[str, ...], tuple[Analysis, list[Warning]] | None] = {}
+    deadline = t0 + time_limit_s
+    for n in range(len(positions.names) + 1):
         want = spec.ranking.top * 2 + 5
         while True:
             batches: list[tuple[frozenset[str], Rows]] = []
             capped = False
-            for changed in combinations(DESIGNATORS, n):
+            for changed in combinations(positions.names, n):
                 if not must_change <= set(changed):
                     continue
-                model.allowed = _masks(model, changed, pinned)
+                masks = positions.masks(model, changed, current)
+                if masks is None:  # no stage option keeps and changes these: no row can
+                    continue
+                model.allowed = masks
                 remaining = max(time_limit_s - (time.perf_counter() - t0), 0.0)
                 found = enumerate_top(model, want, remaining)
                 proven &= found.proven_optimal
@@ -171,34 +156,47 @@ def reoptimise(
                 if len(found.rows):
                     batches.append((frozenset(changed), found.rows))
             model.allowed = {}
-            kept, consumed = _finish(
-                spec, model, batches, current, {**shared, **blocked}, outside, samples
-            )
+            why = {**shared, **blocked}
+            kept, consumed, cut = _finish(
+                spec, model, positions, batches, current, why, outside, (samples, deadline),
+                verdicts,
+            )  # fmt: skip
             # A capped set's unseen rows rank after its want-th row; they can matter only if
             # the full model dropped so many rows that the merge went that deep.
             thin = len(kept) < spec.ranking.top or consumed > want
-            if not (capped and thin) or time.perf_counter() - t0 > time_limit_s:
-                if capped and thin:
+            if cut or not (capped and thin) or time.perf_counter() > deadline:
+                if cut or (capped and thin):
                     proven = False
                 break
             want *= 4
-        if kept or time.perf_counter() - t0 > time_limit_s:
+        if kept:
+            break
+        if time.perf_counter() > deadline:  # larger counts not searched: no proof of none
+            proven &= n == len(positions.names)
             break
 
     # The original passes when it is itself the 0-change answer: the full model alone does not
     # see the spec's limits, the cost cap or the stock.
     original_passes = bool(kept) and not kept[0].changed
     if full_model_passes and not original_passes and not blocked and not shared:
-        reasons += [f"{current[d]} is outside the spec's limits or stock" for d in sorted(outside)]
-        if not outside:
+        reasons += [
+            f"{current[d]} is outside the spec's limits or stock"
+            if d in current
+            else f"{d}: none on the board, and every usable stage has one"
+            for d in sorted(outside)
+        ]
+        errors = [w.code for w in warnings_for(original, spec) if w.severity == "error"]
+        if errors:
+            reasons.append(f"a check of error severity fails: {', '.join(errors)}")
+        elif not outside:
             reasons.append(
                 "the search model rejects this combination (cost cap, capacitor voltage, or "
                 "its tolerance estimate under the spec's guarantee)"
             )
 
     infeasible = None
-    if not kept:
-        infeasible = Infeasible(reasons=infeasible_reasons(model, reduced))
+    if not kept and proven:  # a cut search proves no absence
+        infeasible = Infeasible(reasons=infeasible_reasons(model, reduced, deadline=deadline))
     return ReoptimiseResult(
         spec=spec,
         original=OriginalDesign(
@@ -224,55 +222,73 @@ def reoptimise(
     )
 
 
-def _masks(
-    model: SearchModel, changed: tuple[str, ...], pinned: dict[str, int | None]
-) -> dict[str, np.ndarray]:
-    """Positions outside ``changed`` keep their part; positions in it must take another."""
-    masks = {}
-    for d in DESIGNATORS:
-        mask = np.zeros(_size(model, d), dtype=bool)
-        if d in changed:
-            mask[:] = True
-            if pinned[d] is not None:
-                mask[pinned[d]] = False
-        else:
-            mask[pinned[d]] = True
-        masks[d] = mask
-    return masks
+def verdict(spec: Spec, design: AnyBoard, samples: int) -> tuple[Analysis, list[Warning]] | None:
+    """``design``'s analysis and checks when it meets the spec as the fixed search's re-check
+    decides (``passes``: the acceptance and the guarantee, and no check of error severity,
+    ``designs.candidate.warnings_for``), else None. The cheap checks come first (the
+    acceptance, the checks, then under a worst-case guarantee the worst case alone, which the
+    analysis remembers), so a rejected row costs no Monte Carlo run."""
+    if not accepts(spec, design):
+        return None
+    warnings = warnings_for(design, spec)
+    if any(w.severity == "error" for w in warnings):
+        return None
+    if spec.limits.guarantee == "worst_case" and not guarantee_holds(
+        spec, worst_case(design, spec), None
+    ):
+        return None
+    result = analyse(design, spec, samples=samples)
+    if not guarantee_holds(spec, result.worst_case, result.yield_result):
+        return None
+    return result, warnings
 
 
 def _finish(
     spec: Spec,
     model: SearchModel,
+    positions: Positions,
     batches: list[tuple[frozenset[str], Rows]],
     current: dict[str, str],
     blocked: dict[str, str],
     outside: set[str],
-    samples: int,
-) -> tuple[list[ReoptimisedCandidate], int]:
-    """Merge the batches of one change count in rank order; keep those the full model passes.
-    Also returns how many merged rows were consumed (kept or dropped)."""
+    budget: tuple[int, float],
+    verdicts: dict[tuple[str, ...], tuple[Analysis, list[Warning]] | None],
+) -> tuple[list[ReoptimisedCandidate], int, bool]:
+    """Merge the batches of one change count in rank order (ties: fewer stage positions
+    changed, then the capacitor kept, then stock codes); keep those the full model passes.
+    Also returns how many merged rows were consumed (kept or dropped), and whether the
+    deadline cut the merge. ``budget``: the analysis's Monte Carlo samples and the deadline
+    (``time.perf_counter()``); ``verdicts`` remembers each board's verdict (stock codes ->
+    analysis and checks, or None) across calls."""
     ranked = []
+    capacitor = positions.form.capacitor
     for changed, rows in batches:
+        stage_changes = sum(d in changed for d in positions.stage)
         for n in range(len(rows)):
             key = rank_key(model, rows, n)
-            ranked.append(
-                ((key[0], key[1], "U1" in changed, "C1" in changed, *key[2:]), changed, rows, n)
-            )
+            tie = (stage_changes, capacitor in changed)
+            ranked.append(((key[0], key[1], *tie, *key[2:]), changed, rows, n))
     ranked.sort(key=lambda item: item[0])
+    samples, deadline = budget
     out: list[ReoptimisedCandidate] = []
     consumed = 0
     for _, changed, rows, n in ranked:
         if len(out) >= spec.ranking.top:
             break
+        if consumed and time.perf_counter() > deadline:
+            return out, consumed, True
         consumed += 1
         d = design_of(model, rows, n)
-        result = analyse(d, spec, samples=samples)
-        if not passes(spec, d, result):
+        ids = tuple(p.id for p in d.parts().values())
+        if ids not in verdicts:
+            verdicts[ids] = verdict(spec, d, samples)
+        found = verdicts[ids]
+        if found is None:
             continue
-        base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]))
-        names = [x for x in ("U1", "R1", "R2", "R3", "C1") if x in changed]
+        result, warnings = found
+        base = candidate(spec, d, result, len(out) + 1, int(rows.primary[n]), warnings)
+        names = [x for x in positions.names if x in changed]
         new_ids = {k: v.id for k, v in base.parts.items()}
         changes = changes_of(names, current, new_ids, blocked, outside)
         out.append(ReoptimisedCandidate(**base.model_dump(), changed=names, changes=changes))
-    return out, consumed
+    return out, consumed, False

@@ -157,9 +157,12 @@ class DesignResult(_Out):
 
 
 class Change(_Out):
+    """One changed position: its stock code before and after (null: no part there, as a
+    pull-up R5 added to or taken from a comparator-IC board) and why it changed."""
+
     designator: str
-    from_id: str
-    to_id: str
+    from_id: str | None
+    to_id: str | None
     why: str
 
 

@@ -16,7 +16,14 @@ from pathlib import Path
 from typing import Any
 
 from tristock.circuits import TOPOLOGIES
-from tristock.circuits.board import AnyBoard, part_ids, resolve, resolve_board
+from tristock.circuits.board import (
+    DESIGNATORS,
+    OPTIONAL,
+    AnyBoard,
+    part_ids,
+    resolve,
+    resolve_board,
+)
 from tristock.spec.loading import SpecError, parse_spec, read_mapping
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
@@ -77,6 +84,25 @@ def parse_design(data: dict[str, Any], catalog: Catalog) -> tuple[Spec, AnyBoard
         topology=data.get("topology"),
     )
     return spec, design
+
+
+def design_ids(spec: Spec, parts: Any, topology: Any = None) -> tuple[dict[str, str], str | None]:
+    """A DESIGN file's ``parts`` as designator -> stock code, and its ``topology`` (a name, or
+    None: the spec's ``[circuit]``), for a job that takes stock codes (``reoptimise``): the
+    op-amp Schmitt and comparator loops' designators are checked by name (``part_ids``); any
+    other circuit's, and designators beyond those under ``topology = "any"``, are taken as
+    given (the job checks them against the circuit). Errors name the field."""
+    if topology is not None and (not isinstance(topology, str) or topology not in TOPOLOGIES):
+        known = ", ".join(TOPOLOGIES)
+        raise SpecError([f"topology: {topology!r} is not a circuit tristock knows ({known})"])
+    name = topology
+    if name is None and spec.circuit.topology != "any":
+        name = spec.circuit.topology_name
+    named = set(DESIGNATORS) | set(OPTIONAL)
+    beyond = isinstance(parts, dict) and not set(parts) <= named
+    if name in ("opamp_schmitt", "comparator_schmitt") or (name is None and not beyond):
+        return part_ids(parts), topology
+    return part_ids_of(parts), topology
 
 
 def part_ids_of(parts: Any) -> dict[str, str]:

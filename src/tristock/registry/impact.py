@@ -310,6 +310,8 @@ def _proposed(rev: RevisionOut, option: Option) -> ProposedDesign:
         after["wiper"] = rev.design["wiper"]
     if "range" in rev.design:
         after["range"] = rev.design["range"]
+    if "topology" in rev.design:
+        after["topology"] = rev.design["topology"]
     return ProposedDesign(
         name=rev.name,
         revision=rev.revision,

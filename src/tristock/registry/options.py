@@ -94,10 +94,13 @@ class DesignOptions:
 
 
 def _pieces(parts: dict[str, str], catalog: Catalog) -> dict[str, int]:
+    """Pieces per board of each stock code: one per designator, but an op amp U1 doing both
+    jobs (no comparator IC U2) takes its ``packages_per_board``."""
     out: dict[str, int] = {}
     for designator, part_id in parts.items():
         part = catalog.get(part_id) if part_id in catalog else None
-        n = getattr(part, "packages_per_board", 1) if designator == "U1" else 1
+        both = designator == "U1" and "U2" not in parts
+        n = getattr(part, "packages_per_board", 1) if both else 1
         out[part_id] = out.get(part_id, 0) + n
     return out
 
@@ -152,6 +155,7 @@ def design_options(task: OptionTask, residual: Catalog) -> DesignOptions:
             boards=task.boards,
             top=task.top,
             time_limit_s=task.time_limit_s,
+            topology=task.design.get("topology"),
         )
         searches += 1
         finished = result.search.proven_optimal
@@ -203,6 +207,7 @@ def more_options(task: OptionTask, residual: Catalog) -> DesignOptions:
         boards=task.boards,
         top=task.top,
         time_limit_s=task.time_limit_s,
+        topology=task.design.get("topology"),
     )
     found = tuple(_option(c, residual) for c in result.candidates)
     return DesignOptions(

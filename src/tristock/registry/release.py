@@ -55,6 +55,7 @@ def with_stock(catalog: Catalog, stock: dict[str, int]) -> Catalog:
         capacitors=fix(catalog.capacitors),
         opamps=fix(catalog.opamps),
         pots=fix(catalog.pots),
+        comparators=fix(catalog.comparators),
         diodes=fix(catalog.diodes),
     )
 
@@ -67,6 +68,7 @@ def ample(catalog: Catalog) -> Catalog:
         capacitors=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.capacitors),
         opamps=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.opamps),
         pots=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.pots),
+        comparators=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.comparators),
         diodes=tuple(dataclasses.replace(p, stock=STOCK[1]) for p in catalog.diodes),
     )
 
@@ -118,12 +120,15 @@ def draft_from(
         top=1,
         time_limit_s=CHECK_TIME_LIMIT_S,
         samples=SNAPSHOT_SAMPLES,
+        topology=design.topology.name,
     )
     if not (result.original.passes and result.candidates and not result.candidates[0].changed):
         raise ReleaseRefused(name, result.original.reasons or ["the full model rejects it"])
     uses = design.uses()
     pieces = {d: (uses[part_id] if d == "U1" else 1) for d, part_id in ids.items()}
     layout: dict[str, Any] = {"parts": ids}
+    if design.topology.name != "opamp_schmitt":  # a variant's board names its circuit
+        layout["topology"] = design.topology.name
     if "RV1" in ids:
         layout["wiper"] = design.wiper
     if "C2" in ids:
