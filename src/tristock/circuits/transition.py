@@ -220,9 +220,8 @@ def transition_table() -> TransitionTable:
 
 @cache
 def _coefficients() -> tuple[FloatArray, ...]:
-    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter),
-    computed once per machine (``arraycache``, keyed by this module's source and the numpy
-    and scipy versions)."""
+    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
+    per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions)."""
     from scipy import __version__ as scipy_version  # the package only, not scipy.ndimage
 
     key = (Path(__file__).read_bytes(), np.__version__, scipy_version)
