@@ -120,7 +120,9 @@ def _gathered(
     shape = first.shape
     term = flat.take(first.reshape(shape + (1,) * d) + _term_offsets(steps), mode="clip")
     for n, axis in enumerate(axes):
-        weights = np.stack(np.broadcast_arrays(*axis.weights), axis=-1)
+        weights = np.empty((*np.shape(axis.first), 3))  # an axis's weights share its shape
+        for o in range(3):
+            weights[..., o] = axis.weights[o]
         term *= weights.reshape(weights.shape[:-1] + (1,) * n + (3,) + (1,) * (d - 1 - n))
     total: FloatArray = np.cumsum(term.reshape((*shape, -1)), axis=-1)[..., -1] + 0.0
     return total
