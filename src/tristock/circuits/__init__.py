@@ -22,19 +22,19 @@ from tristock.spec.model import Spec
 
 
 def _comparator_schmitt() -> Topology:
-    from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
+    from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT  # on first use
 
     return COMPARATOR_SCHMITT
 
 
 def _clamped_schmitt() -> Topology:
-    from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT
+    from tristock.circuits.clamped_schmitt import CLAMPED_SCHMITT  # on first use
 
     return CLAMPED_SCHMITT
 
 
 def _duty_schmitt() -> Topology:
-    from tristock.circuits.duty_schmitt import DUTY_SCHMITT
+    from tristock.circuits.duty_schmitt import DUTY_SCHMITT  # on first use
 
     return DUTY_SCHMITT
 
