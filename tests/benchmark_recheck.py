@@ -13,7 +13,10 @@ test): issue 15's targets 1 and 5, measured in one run.
    uniform numbers, the inverse normal CDF) and the model at every sample
    (``spread.metric_columns``).
 3. Whole processes: ``tristock --help`` and ``tristock design --example`` (wall and CPU time
-   from ``os.wait4``'s resource usage), median.
+   from ``os.wait4``'s resource usage), median; with the modules' bytecode cached (as after
+   ``pip install``: ``PYTHONPYCACHEPREFIX`` a fresh folder, filled by one run not counted), and
+   in this shell's environment (where ``PYTHONDONTWRITEBYTECODE=1`` and no ``__pycache__``
+   beside the sources, every process compiles the library's sources again).
 """
 
 from __future__ import annotations
@@ -23,6 +26,7 @@ import os
 import statistics
 import subprocess
 import sys
+import tempfile
 import time
 from collections.abc import Callable
 
@@ -49,12 +53,16 @@ _LAUNCHER = (
 )
 
 
-def process(argv: list[str], runs: int) -> tuple[float, float]:
-    """Median wall and CPU seconds of a whole process."""
+def process(argv: list[str], runs: int, env: dict[str, str] | None = None) -> tuple[float, float]:
+    """Median wall and CPU seconds of a whole process (``env``: its environment)."""
     walls, cpus = [], []
     for _ in range(runs):
         out = subprocess.run(
-            [sys.executable, "-c", _LAUNCHER, *argv], capture_output=True, text=True, check=True
+            [sys.executable, "-c", _LAUNCHER, *argv],
+            capture_output=True,
+            text=True,
+            check=True,
+            env=env,
         ).stdout.split()
         walls.append(float(out[0]))
         cpus.append(float(out[1]))
@@ -124,12 +132,17 @@ def main() -> None:
     rank1 = resolve(result.candidates[0].design_file.parts, catalog)
     monte_carlo_parts(rank1, spec, args.runs)
     tristock = [sys.executable, "-m", "tristock"]
-    for label, argv in (
-        ("tristock --help", [*tristock, "--help"]),
-        ("tristock design --example", [*tristock, "design", "--example"]),
-    ):
-        wall, cpu = process(argv, args.runs)
-        print(f"  {label:<28} wall {wall:6.2f} s   CPU {cpu:6.2f} s")
+    with tempfile.TemporaryDirectory() as prefix:
+        cached = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+        cached["PYTHONPYCACHEPREFIX"] = prefix
+        for label, argv in (
+            ("tristock --help", [*tristock, "--help"]),
+            ("tristock design --example", [*tristock, "design", "--example"]),
+        ):
+            process(argv, 1, cached)  # writes the bytecode
+            for how, env in (("bytecode cached", cached), ("this environment", None)):
+                wall, cpu = process(argv, args.runs, env)
+                print(f"  {label:<26} {how:<18} wall {wall:6.2f} s   CPU {cpu:6.2f} s")
     print(f"load average at the end: {', '.join(f'{x:.1f}' for x in os.getloadavg())}")
 
 

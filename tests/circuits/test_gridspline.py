@@ -22,7 +22,7 @@ def reference(coeffs: np.ndarray, coords: Sequence[npt.ArrayLike]) -> np.ndarray
     return np.asarray(out).reshape(np.shape(coords[0]))
 
 
-@pytest.mark.parametrize("points", [FEW_POINTS, 4000])  # scipy's loop / the numpy passes
+@pytest.mark.parametrize("points", [FEW_POINTS, 4000])  # the gathered terms / one pass per term
 @pytest.mark.parametrize("shape", [(9, 12), (7, 8, 11)])
 def test_equal_to_map_coordinates_bit_for_bit(shape: tuple[int, ...], points: int) -> None:
     rng = np.random.default_rng(len(shape))
@@ -54,7 +54,7 @@ def test_axes_broadcast_like_their_points() -> None:
 def test_nan_coordinates_give_nan_as_map_coordinates_does() -> None:
     coeffs = np.arange(80.0).reshape(8, 10)
     x, y = np.array([2.5, math.nan, 3.0]), np.array([4.0, 5.0, math.nan])
-    for copies in (1, FEW_POINTS):  # scipy's loop / the numpy passes
+    for copies in (1, FEW_POINTS):  # the gathered terms / one pass per term
         xs, ys = np.tile(x, copies), np.tile(y, copies)
         got = spline_value(coeffs, (grid_axis(xs, 1, 6), grid_axis(ys, 1, 8)))
         want = reference(coeffs, [xs, ys])

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from decimal import Decimal
 
 import eseries as reference
 import pytest
@@ -18,6 +19,24 @@ from tristock.stock.units import format_code, format_value, parse_value
 def test_plain_numbers_match_python_float(text: str) -> None:
     # source: Python's float() (correctly rounded decimal conversion)
     assert parse_value(text) == float(text)
+
+
+@settings(max_examples=300)
+@given(
+    whole=st.integers(min_value=0, max_value=10**12),
+    fraction=st.text("0123456789", max_size=8),
+    point=st.booleans(),
+    sign=st.sampled_from(["", "+", "-"]),
+)
+def test_short_decimals_take_the_same_value_as_the_decimal_steps(
+    whole: int, fraction: str, point: bool, sign: str
+) -> None:
+    # source: Python's decimal module (exact below its 28 digits), then float(); the short
+    # plain decimals (most table cells) skip those steps and must give the same bits
+    text = sign + str(whole) + ("." + fraction if point else "")
+    expected = float(Decimal(text))
+    got = parse_value(text, allow_negative=True)
+    assert got == expected and math.copysign(1.0, got) == math.copysign(1.0, expected)
 
 
 # SI prefixes, SI Brochure (BIPM), from memory; "meg" is the circuit-simulator spelling of mega

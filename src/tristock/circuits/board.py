@@ -12,7 +12,6 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
-from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
 from tristock.circuits.opamp_schmitt.physics import Oscillator
 from tristock.circuits.rails import Rails
@@ -186,6 +185,8 @@ def resolve(
         raise SpecError(errors)
     range_caps = tuple(found.pop(c.lower()) for c in _RANGE_CAPS if c.lower() in found)
     if "u2" in found:
+        from tristock.circuits.comparator_schmitt import COMPARATOR_SCHMITT  # a U2: that loop's
+
         found["topology"] = COMPARATOR_SCHMITT
     try:
         return Design(
@@ -263,7 +264,7 @@ AnyBoard = Design | Board
 def board_from(topology: Topology, parts: Mapping[str, Part]) -> AnyBoard:
     """The board of ``topology`` with ``parts`` (designator -> part): a ``Design`` for the
     op-amp Schmitt and comparator loops, else a ``Board`` in the topology's BOM order."""
-    if topology in (OPAMP_SCHMITT, COMPARATOR_SCHMITT):
+    if topology is OPAMP_SCHMITT or topology.name == "comparator_schmitt":
         named: dict[str, Any] = {d.lower(): p for d, p in parts.items()}
         return Design(**named, topology=topology)
     return Board(topology, tuple((d, parts[d]) for d in topology.designators if d in parts))

@@ -43,9 +43,6 @@ from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
-from scipy import __version__ as scipy_version
-from scipy.ndimage import spline_filter
-from scipy.special import lambertw
 
 from tristock.circuits.arraycache import cached_arrays
 from tristock.circuits.gridspline import GridAxis, grid_axis, spline_value
@@ -90,6 +87,8 @@ def growth_rate(delay: float) -> float:
     principal branch of Lambert's W); r(0) = 1."""
     if delay == 0.0:
         return 1.0
+    from scipy.special import lambertw  # here: only the table's first computation needs it
+
     return float(np.real(lambertw(delay))) / delay
 
 
@@ -221,14 +220,17 @@ def transition_table() -> TransitionTable:
 
 @cache
 def _coefficients() -> tuple[FloatArray, ...]:
-    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter),
-    computed once per machine (``arraycache``, keyed by this module's source and the numpy
-    and scipy versions)."""
+    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
+    per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions)."""
+    from scipy import __version__ as scipy_version  # the package only, not scipy.ndimage
+
     key = (Path(__file__).read_bytes(), np.__version__, scipy_version)
     return cached_arrays("transition", key, _filtered_table)
 
 
 def _filtered_table() -> list[FloatArray]:
+    from scipy.ndimage import spline_filter  # here: a cache miss only (about 50 ms to import)
+
     tab = transition_table()
     padded = (
         np.pad(a, PAD, mode="reflect", reflect_type="odd")

@@ -19,8 +19,6 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Final
 
-import filelock
-
 from tristock.stock.errors import CatalogBusy
 
 LOCK_NAME: Final[str] = ".tristock.lock"
@@ -73,6 +71,8 @@ def catalog_lock(
         path.parent.mkdir(parents=True, exist_ok=True)
     deadline = time.monotonic() + timeout_s
     thread_lock = _thread_lock(path)
+    import filelock  # here, not at the top: only writers lock, and reads should start fast
+
     if not thread_lock.acquire(timeout=timeout_s):
         raise _busy(catalog_dir, timeout_s)
     try:

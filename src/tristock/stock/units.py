@@ -55,6 +55,10 @@ _PLAIN = re.compile(
     rf"(?P<num>{_NUMBER})(?P<exp>[eE][+-]?\d+)?(?P<space> ?)(?P<pre>meg|Meg|MEG|[{_LETTERS}])?"
 )
 _CODE = re.compile(rf"(?P<int>\d*)(?P<letter>[{_LETTERS}])(?P<frac>\d+)")
+#: A plain decimal of at most ``_SHORT`` characters: Decimal would hold it exactly (fewer than
+#: its 28 digits), so float() of the text is the same value, without the Decimal steps.
+_DECIMAL = re.compile(r"\d+\.?\d*|\.\d+")
+_SHORT = 20
 _EXPONENT = re.compile(r"\d[eE][+-]?\d")
 
 
@@ -130,6 +134,8 @@ def parse_value(text: str, *, allow_negative: bool = False) -> float:
                 raise _fail(text, "negative values are not allowed here")
             sign = -1
         body = body[1:]
+    if len(body) <= _SHORT and _DECIMAL.fullmatch(body) and float(body) != 0.0:
+        return sign * float(body)  # most table cells; a zero takes the checks below
     core, unit = _split_unit(body)
 
     plain = _PLAIN.fullmatch(core)
