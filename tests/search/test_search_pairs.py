@@ -20,7 +20,8 @@ from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import build_model
-from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource
+from tristock.search.pairfigures import PERIOD_EDGE
+from tristock.search.pairs import Pairs, PairSource
 from tristock.search.products import product_index as products_of
 from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
