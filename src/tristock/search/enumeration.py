@@ -15,7 +15,9 @@ value (no table of every R3·C1), and the engine walks:
    smallest R3 + C1 term (an R3 that repeats R1 or R2 credited).
    The pairs are built on demand (``search.pairs``): only those whose part terms alone
    leave them a chance under the level the walk needs, in chunks, the deadline checked
-   between chunks, so a big catalog never holds its R² pairs;
+   between chunks, so a big catalog never holds its R² pairs; where the search form
+   narrows the square levels by pair (``SearchForm.pair_levels``), each pair's window and
+   bounds, and the rows' run-time guard, take the pair's own loop;
 2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|,
    which narrows the period band and so the P window (binary searches again);
 3. rows: the rows of a few most promising pairs give θ (the ``top``-th score found); then

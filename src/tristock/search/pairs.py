@@ -14,8 +14,13 @@ builds, in chunks of R1 and per op amp, only the pairs whose part bound is at mo
 drawn from the resistors whose own term leaves room, by binary search in value order), and
 returns every pair with ``bound`` <= x: a complete prefix of the pairs in the order (bound,
 U1, R1, R2), the order in which the engine opens them. The window of each distinct ratio
-k = R1/R2 is computed once per op amp and kept. Levels rise as the engine needs more pairs;
-a deadline checked between chunks stops the building (``PairSource.cut``).
+k = R1/R2 is computed once per loop class and kept (``pairfigures.RatioTable``). Where the
+search form narrows the levels by pair (``SearchForm.levels_by_pair``: the zener-clamped
+loop, whose load R1 + R2 the pair fixes), the pairs its ratio lets through get their own
+level intervals and figures (``pairfigures.pair_levels``, ``narrowed``), all stages' pairs
+in batches, and carry their levels (``Pairs.levels``) to the engine's windows and the rows'
+run-time guard. Levels rise as the engine needs more pairs; a deadline checked between
+chunks (and batches) stops the building (``PairSource.cut``).
 """
 
 from __future__ import annotations
