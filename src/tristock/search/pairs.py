@@ -273,10 +273,10 @@ class PairSource:
         k = res.value[i1] / res.value[i2]
         # Pairs of equal ratio share the ratio's figures: work on the distinct k.
         uk, inv = np.unique(k, return_inverse=True)
-        fig = self.ratios.lookup(int(self.loop_class[pos]), uk).take(inv)
-        keep = fig.ok
+        fig = self.ratios.lookup(int(self.loop_class[pos]), uk)
+        keep = fig.ok[inv]  # most candidates fail here: gather the figures of the rest only
         u = np.full(int(np.sum(keep)), o.index, dtype=np.int64)
-        return Screened(u, i1[keep], i2[keep], fig.take(keep), np.zeros((len(u), 0)))
+        return Screened(u, i1[keep], i2[keep], fig.take(inv[keep]), np.zeros((len(u), 0)))
 
     def _pairs(self, found: Screened) -> Pairs:
         """The screened pairs that can meet the spec, with their bounds."""
