@@ -123,3 +123,28 @@ def test_the_demo_row_matches_the_built_oscillator(name: str, spec: Spec, demo: 
     for field in ("frequency_hz", "amplitude_vpp", "duty_high", "timing_share", "peak_high_v"):
         got = float(np.asarray(getattr(row.pred, field))[0])
         assert math.isclose(got, float(getattr(built, field)), rel_tol=1e-12), field
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_the_demo_pairs_levels_lie_inside_the_stages(name: str, spec: Spec, demo: Catalog) -> None:
+    """``pair_levels`` of the demo board's pair: inside the stage's intervals and holding the
+    demo row's levels; the stage's own where the form does not narrow by pair."""
+    topology = TOPOLOGIES[name]
+    form = form_of(topology)
+    u, stages = demo_stage(topology, spec, demo)
+    rails = rails_from_supply(on_demo_rails(topology, spec).supply)
+    names = (*form.divider, *form.integrator, form.capacitor)
+    values = {d: np.array([demo.get(topology.demo_board[d]).value]) for d in names}
+    rows = np.array([u], dtype=np.int64)
+    r1, r2 = (values[d] for d in form.divider)
+    r3 = float(values[form.integrator[0]][0])
+    got = [float(x[0]) for x in form.pair_levels(stages, rows, r1, r2, (r3, r3), rails)]
+    loop = stages[u].loop
+    own = [float(loop.vh_lo), float(loop.vh_hi), float(loop.vl_lo), float(loop.vl_hi)]
+    if not form.levels_by_pair:
+        assert got == own
+    assert own[0] <= got[0] <= got[1] <= own[1] and own[2] <= got[2] <= got[3] <= own[3]
+    vh, vl = form.row_levels(stages, rows, rails, values)
+    assert got[0] <= vh[0] <= got[1] and got[2] <= vl[0] <= got[3]
+    narrowed = form.pair_loop(loop, tuple(np.array([x]) for x in got))  # type: ignore[arg-type]
+    assert [float(x[0]) for x in narrowed[:4]] == got

@@ -4,7 +4,9 @@ Reference: the same ``PairSource`` asked for every pair in one go (``complete(in
 here by bound. Built in steps of rising levels, each level must return exactly those pairs
 (same pairs, same bounds and windows, same opening order), since the engine's answer and
 its count of scored rows follow from that order; and a search stopped by its deadline while
-building must not call itself proven (nor report the spec infeasible).
+building must not call itself proven (nor report the spec infeasible). The same holds where
+the form narrows the levels by pair (the zener-clamped loop), whose pairs are also held to
+their stage's loop.
 """
 
 from __future__ import annotations
@@ -15,12 +17,14 @@ import time
 import numpy as np
 import pytest
 
+from tristock.circuits import TOPOLOGIES
 from tristock.designs.fixed import design_fixed
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
 from tristock.search.enumeration import enumerate_top
 from tristock.search.model import build_model
-from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource
+from tristock.search.pairfigures import PERIOD_EDGE, figures
+from tristock.search.pairs import Pairs, PairSource
 from tristock.search.products import product_index as products_of
 from tristock.spec.loading import load_spec
 from tristock.stock.catalog import load_catalog
@@ -127,3 +131,36 @@ def test_the_ratio_screen_drops_only_pairs_that_fail(demo_model) -> None:  # typ
     }
     assert len(built) > 1000
     assert built == want
+
+
+@pytest.fixture(scope="module")
+def clamped_model():  # type: ignore[no-untyped-def]
+    spec = load_spec(example_spec_path("clamped"))
+    return build_model(spec, load_catalog(demo_catalog_dir()), TOPOLOGIES["clamped_schmitt"])
+
+
+def test_pairs_narrowed_by_pair_keep_the_order_and_their_stages_bounds(clamped_model) -> None:  # type: ignore[no-untyped-def]
+    """The zener-clamped form narrows the levels by pair: built in steps, each level still
+    returns exactly the pairs of one build (the same bounds, windows and levels); each pair's
+    levels lie inside its stage's, its P range inside its ratio's (the stage loop's
+    window) and its bound at least the ratio's (reference: ``pairfigures.figures`` on the
+    stage's loop, computed here)."""
+    model = clamped_model
+    assert model.form.levels_by_pair
+    products = products_of(model)
+    top = PairSource(model, products, math.inf)
+    level = top.lowest + 40 * (top.first_level() - top.lowest)
+    everything = top.complete(level)
+    assert len(everything) > 1000 and everything.levels.shape == (len(everything), 4)
+    stepped = PairSource(model, products, math.inf)
+    for x in np.quantile(everything.bound, [0.05, 0.3, 1.0]).tolist():
+        assert same(stepped.complete(x), everything.take(everything.bound <= x))
+    stage = model.loops(everything.u)
+    lv = everything.levels
+    assert np.all((stage.vh_lo <= lv[:, 0]) & (lv[:, 1] <= stage.vh_hi))
+    assert np.all((stage.vl_lo <= lv[:, 2]) & (lv[:, 3] <= stage.vl_hi))
+    assert np.mean(lv[:, 1] - lv[:, 0]) < 0.8 * np.mean(stage.vh_hi - stage.vh_lo)
+    wide = figures(model, products, stage, everything.k)
+    assert np.all(wide.ok)
+    assert np.all((everything.p_min >= wide.p_lo) & (everything.p_max <= wide.p_hi))
+    assert np.mean(everything.p_max / everything.p_min) < np.mean(wide.p_hi / wide.p_lo)

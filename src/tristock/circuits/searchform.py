@@ -13,7 +13,9 @@ that a topology declares, through ``Topology.search_form()``:
 - the designators of its divider pair, integrator element and capacitor (``divider``,
   ``integrator``, ``capacitor``), whose parts come from the resistor and capacitor tables;
 - the square levels of rows on given rails (``row_levels``; rows differ when the levels
-  depend on the row's resistors, as with an open-drain pull-up or a zener clamp);
+  depend on the row's resistors, as with an open-drain pull-up or a zener clamp), and, where
+  the divider pair already narrows them, the level intervals of a (stage, R1/R2 pair) over
+  the integrator elements left unknown (``pair_levels``, ``levels_by_pair``);
 - the full model of rows (``predict_rows``): the topology's own vectorised ``predict``;
 - the stage option of a board already chosen (``board_stage``), so an answer is re-checked
   as the topology's own board (``circuits.board.board_from`` builds the board of a row).
@@ -203,6 +205,41 @@ class SearchForm(ABC):
         """(VH_lo, VH_hi, VL_lo, VL_hi) of stage ``u`` on ``rails`` over every row the stage
         can be in (every eligible divider pair, integrator element and load): the level
         intervals of a ``StageLoop`` at other rails (the worst-case probes use them)."""
+
+    #: Whether ``pair_levels`` narrows the stage's level intervals once the divider pair is
+    #: known (False: it answers the stage's own, and the search shares pair figures between
+    #: stages of equal loops).
+    levels_by_pair: bool = False
+
+    def pair_levels(
+        self,
+        stages: Sequence[StageOption],
+        u: I64,
+        r1: F64,
+        r2: F64,
+        r3_range: tuple[float, float],
+        rails: Rails,
+    ) -> tuple[F64, F64, F64, F64]:
+        """(VH_lo, VH_hi, VL_lo, VL_hi) of stage ``u[n]`` with the divider pair (``r1[n]``,
+        ``r2[n]``, Ω) on the spec's nominal ``rails`` (those the stage options were made on),
+        over every row through that pair: its integrator element anywhere in ``r3_range``
+        (Ω, the eligible values' ends). Each interval must hold what the stage's own holds
+        for those rows (the bounds of ``search.bounds`` take them as a ``StageLoop``'s, see
+        ``pair_loop``). By default the stage's own intervals (``StageOption.loop``)."""
+        distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
+        names = ("vh_lo", "vh_hi", "vl_lo", "vl_hi")
+        table = np.array(
+            [[float(getattr(stages[n].loop, f)) for f in names] for n in distinct.tolist()],
+            dtype=np.float64,
+        ).reshape(-1, 4)[np.asarray(where).reshape(-1)]
+        return table[:, 0], table[:, 1], table[:, 2], table[:, 3]
+
+    def pair_loop(self, loop: StageLoop, levels: tuple[F64, F64, F64, F64]) -> StageLoop:
+        """The stages' ``loop`` (arrays over pairs) with the pairs' level intervals
+        ``levels`` (``pair_levels``). A form whose loop's other fields follow its levels
+        overrides this; by default only the levels change."""
+        vh_lo, vh_hi, vl_lo, vl_hi = (np.asarray(x, dtype=np.float64) for x in levels)
+        return loop._replace(vh_lo=vh_lo, vh_hi=vh_hi, vl_lo=vl_lo, vl_hi=vl_hi)
 
     @abstractmethod
     def row_levels(

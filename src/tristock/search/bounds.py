@@ -9,8 +9,9 @@ loop's timing written with the two integrator drives a and b as separate inputs
 integrator error voltage Ve = Vos1 + Ib1·R3 (R3 unknown before the row is chosen) and of
 the square levels VH, VL (a topology's ``StageLoop`` gives them as intervals over the rows a
 stage can be in: equal ends for the op-amp Schmitt loop, a range where the levels depend on
-the row's resistors) each quantity is monotone in each input, so its extremes sit at the ends
-of the ranges. The levels enter in two ways, taken as independent inputs: through the span
+the row's resistors; or over the rows of one (stage, R1/R2 pair), ``SearchForm.pair_levels``)
+each quantity is monotone in each input, so its extremes sit at the ends of the ranges. The
+levels enter in two ways, taken as independent inputs: through the span
 VH + VL in [VH_lo + VL_lo, VH_hi + VL_hi] and through the drives a = VH - Ve in
 [VH_lo - Ve_hi, VH_hi - Ve_lo] and b = VL + Ve in [VL_lo + Ve_lo, VL_hi + Ve_hi]; a box that
 holds every (span, a, b) of a row, so extremes over it bound the row.

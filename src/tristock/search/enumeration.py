@@ -15,7 +15,9 @@ value (no table of every R3·C1), and the engine walks:
    smallest R3 + C1 term (an R3 that repeats R1 or R2 credited).
    The pairs are built on demand (``search.pairs``): only those whose part terms alone
    leave them a chance under the level the walk needs, in chunks, the deadline checked
-   between chunks, so a big catalog never holds its R² pairs;
+   between chunks, so a big catalog never holds its R² pairs; where the search form
+   narrows the square levels by pair (``SearchForm.pair_levels``), each pair's window and
+   bounds, and the rows' run-time guard, take the pair's own loop;
 2. windows: the frequency term a pair can still afford under a score bound θ caps |e_f|,
    which narrows the period band and so the P window (binary searches again);
 3. rows: the rows of a few most promising pairs give θ (the ``top``-th score found); then
@@ -42,11 +44,13 @@ from numpy.typing import NDArray
 
 from tristock.search.bounds import window
 from tristock.search.model import SearchModel
-from tristock.search.pairs import PERIOD_EDGE, Pairs, PairSource
+from tristock.search.pairfigures import PERIOD_EDGE
+from tristock.search.pairs import Pairs, PairSource
 from tristock.search.products import ProductIndex, product_index
 from tristock.search.rows import Rows, best, coupled_ok, empty_rows, evaluate
 
 I64 = NDArray[np.int64]
+F64 = NDArray[np.float64]
 
 
 @dataclass
@@ -84,6 +88,7 @@ class Opened:
     i3: I64
     j: I64
     least: I64
+    levels: F64  # the pair's level intervals, (n, 4), or (n, 0) (``Pairs.levels``)
 
     def __len__(self) -> int:
         return len(self.u)
@@ -105,7 +110,7 @@ def _windows(
     e_hi = np.minimum(fb, e_max)
     e_lo = np.maximum(fa, -e_max)
     t_min, t_max = _period_band(model, e_lo, e_hi)
-    w = window(model.loops(pairs.u), pairs.k, t_min, t_max)
+    w = window(pairs.loops(model), pairs.k, t_min, t_max)
     ln_k = np.log(pairs.k)
     with np.errstate(divide="ignore"):
         ln_lo = np.log(np.maximum(w.lo, pairs.p_min)) - ln_k
@@ -141,6 +146,7 @@ def _open(
                 got.i3,
                 got.j,
                 some.base[which] + got.term - credit,
+                some.levels[which],
             )
             start = stop
 
@@ -189,7 +195,14 @@ class Scoring:
                 return False
             batch = rows.take(np.arange(start, min(start + size, len(rows))))
             got = evaluate(
-                model, batch.u, batch.i1, batch.i2, batch.i3, batch.j, coupled=self.coupled
+                model,
+                batch.u,
+                batch.i1,
+                batch.i2,
+                batch.i3,
+                batch.j,
+                coupled=self.coupled,
+                levels=batch.levels if batch.levels.shape[1] else None,
             )
             self.scored += len(batch)
             if self.theta < math.inf:  # a row scoring above the top-th cannot enter

@@ -14,8 +14,13 @@ builds, in chunks of R1 and per op amp, only the pairs whose part bound is at mo
 drawn from the resistors whose own term leaves room, by binary search in value order), and
 returns every pair with ``bound`` <= x: a complete prefix of the pairs in the order (bound,
 U1, R1, R2), the order in which the engine opens them. The window of each distinct ratio
-k = R1/R2 is computed once per op amp and kept. Levels rise as the engine needs more pairs;
-a deadline checked between chunks stops the building (``PairSource.cut``).
+k = R1/R2 is computed once per loop class and kept (``pairfigures.RatioTable``). Where the
+search form narrows the levels by pair (``SearchForm.levels_by_pair``: the zener-clamped
+loop, whose load R1 + R2 the pair fixes), the pairs its ratio lets through get their own
+level intervals and figures (``pairfigures.pair_levels``, ``narrowed``), all stages' pairs
+in batches, and carry their levels (``Pairs.levels``) to the engine's windows and the rows'
+run-time guard. Levels rise as the engine needs more pairs; a deadline checked between
+chunks (and batches) stops the building (``PairSource.cut``).
 """
 
 from __future__ import annotations
@@ -29,21 +34,24 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.searchform import StageLoop
-from tristock.search.bounds import (
-    p_ceiling,
-    p_floor,
-    range_bounds,
-    share_p_floor,
-    window,
-)
 from tristock.search.guarantee import pair_limits
 from tristock.search.model import OpAmpTerms, SearchModel
+from tristock.search.pairfigures import (
+    Figures,
+    RatioTable,
+    figures,
+    loop_classes,
+    narrowed,
+    pair_levels,
+    pair_loops,
+)
 from tristock.search.products import ProductIndex, index_ranges
 
 #: Candidate (R1, R2) index pairs generated at once (memory: about 100 bytes each).
 CHUNK_CANDIDATES = 1 << 20
-#: Ratios whose bounds are computed in one call, between deadline checks.
-RATIO_BATCH = 2048
+
+I64 = NDArray[np.int64]
+F64 = NDArray[np.float64]
 
 
 @dataclass
@@ -56,6 +64,9 @@ class Pairs:
     p_max: NDArray[np.float64]
     base: NDArray[np.int64]  # score terms of U1, R1, R2 and floors of the amplitude and share
     bound: NDArray[np.int64]  # base + the best (R3, C1) term
+    #: the pair's level intervals (vh_lo, vh_hi, vl_lo, vl_hi) as an (n, 4) array where the
+    #: form narrows them by pair (``SearchForm.levels_by_pair``), else (n, 0): the stage's
+    levels: NDArray[np.float64]
 
     def take(self, sel: NDArray[np.int64] | NDArray[np.bool_]) -> Pairs:
         return Pairs(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
@@ -74,24 +85,16 @@ class Pairs:
             }
         )
 
+    def loops(self, model: SearchModel) -> StageLoop:
+        """Each pair's loop: its stage's with the pair's level intervals (``levels``)."""
+        return pair_loops(model, self.u, self.levels)
 
-def no_pairs() -> Pairs:
+
+def no_pairs(width: int = 0) -> Pairs:
+    """No pairs; ``width`` the columns of ``levels`` (4 where the form narrows by pair)."""
     z = np.zeros(0, dtype=np.int64)
     f = np.zeros(0)
-    return Pairs(z, z, z, f, f, f, z, z)
-
-
-@dataclass
-class _RatioFigures:
-    """Per op amp, what each distinct k = R1/R2 allows (sorted by k)."""
-
-    k: NDArray[np.float64]
-    p_lo: NDArray[np.float64]
-    p_hi: NDArray[np.float64]
-    share: NDArray[np.float64]
-    e_a_lo: NDArray[np.float64]
-    e_a_hi: NDArray[np.float64]
-    ok: NDArray[np.bool_]
+    return Pairs(z, z, z, f, f, f, z, z, np.zeros((0, width)))
 
 
 class PairSource:
@@ -132,12 +135,18 @@ class PairSource:
             most = int(self.r1_terms[-1] + self.r2_terms[-1]) + self.floor
             self.lowest, self.highest = min(op_terms) + least, max(op_terms) + most
         self.built_to = -np.inf  # every pair with part bound <= built_to is in ``pairs``
-        self.pairs = no_pairs()
-        #: figures by loop class: stage options with equal ``StageLoop`` share them (the
-        #: figures depend on the loop alone), e.g. one U1 and U2 with any pull-up R5
-        self.ratios: dict[int, _RatioFigures] = {}
-        self.loop_class, self.class_position = loop_classes(model.loops(self.indices))
+        self.by_pair = model.form.levels_by_pair
+        self.pairs = no_pairs(4 if self.by_pair else 0)
+        loops = model.loops(self.indices)
+        self.loop_class, class_position = loop_classes(loops)
+        #: the figures of each ratio by loop class (shared by stages of equal loops): the
+        #: pairs' own where the levels do not depend on the pair, else a first screen
+        self.ratios = RatioTable(model, products, loops.take(class_position))
         self.groups = self._stage_groups()
+        #: ``stage_term`` of every stage option by its index
+        self.stage_terms = np.zeros(len(self.position), dtype=np.int64)
+        for o in model.opamps:
+            self.stage_terms[o.index] = self.stage_term(o)
 
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
@@ -168,8 +177,12 @@ class PairSource:
         """The stage options whose pairs are the same but for U1's index: equal loops (so
         equal ratio figures and k ranges) and equal ``stage_term`` (e.g. one U1 and U2 with
         pull-ups R5 of equal cost), unless the worst-case probes, which follow each stage,
-        filter the pairs (then one stage a group)."""
-        if self.model.spec.limits.guarantee == "worst_case" and self.model.form.probes_in_box:
+        filter the pairs, or the pairs' levels follow the stage's own parts
+        (``levels_by_pair``): then one stage a group."""
+        model = self.model
+        if self.by_pair or (
+            model.spec.limits.guarantee == "worst_case" and model.form.probes_in_box
+        ):
             return [[member] for member in self.opamps]
         groups: dict[tuple[int, int], list[tuple[int, OpAmpTerms]]] = {}
         for pos, o in self.opamps:
@@ -185,66 +198,32 @@ class PairSource:
                 return
             pos, o = group[0]
             todo += [(pos, o, chunk, group) for chunk in self._candidates(o, x)]
-        if not self._learn_ratios([(pos, o, chunk) for pos, o, chunk, _ in todo]):
+        value = self.model.resistors.value
+        ratios = [
+            (int(self.loop_class[pos]), value[i1] / value[i2]) for pos, _, (i1, i2), _ in todo
+        ]
+        if not self.ratios.learn(ratios, self.deadline):
+            self.cut = True
             return
-        parts = [self.pairs]
+        screened: list[tuple[Screened, list[tuple[int, OpAmpTerms]]]] = []
         for pos, o, (i1, i2), group in todo:
             if time.perf_counter() > self.deadline:
                 self.cut = True
                 break
-            found = self._figures(pos, o, i1, i2)
-            parts.append(found)
+            screened.append((self._screen(pos, o, i1, i2), group))
+        if self.by_pair:  # every stage its own group: one narrowing over all of them
+            screened = [(self._narrowed(Screened.concat([s for s, _ in screened])), [])]
+        parts = [self.pairs]
+        for found, group in screened:
+            pairs = self._pairs(found)
+            parts.append(pairs)
             for _, other in group[1:]:
                 parts.append(
-                    dataclasses.replace(found, u=np.full(len(found), other.index, np.int64))
+                    dataclasses.replace(pairs, u=np.full(len(pairs), other.index, np.int64))
                 )
         self.pairs = Pairs.concat(parts)
         if not self.cut:
             self.built_to = x
-
-    def _learn_ratios(
-        self, todo: list[tuple[int, OpAmpTerms, tuple[NDArray[np.int64], NDArray[np.int64]]]]
-    ) -> bool:
-        """Compute the figures of every ratio the new pairs have and no kept one does, all
-        op amps together (the bounds are vectorised over op amps too), in batches between
-        deadline checks; False if the deadline came first."""
-        value = self.model.resistors.value
-        wanted: dict[int, list[NDArray[np.float64]]] = {}
-        for pos, _, (i1, i2) in todo:
-            wanted.setdefault(int(self.loop_class[pos]), []).append(value[i1] / value[i2])
-        us, ks = [], []
-        for cls, parts in wanted.items():
-            uk = np.unique(np.concatenate(parts))
-            known = self.ratios.get(cls)
-            if known is not None and len(known.k):
-                at = np.minimum(np.searchsorted(known.k, uk), len(known.k) - 1)
-                uk = uk[known.k[at] != uk]
-            us.append(np.full(len(uk), cls, dtype=np.int64))
-            ks.append(uk)
-        if not us:
-            return True
-        u_all, k_all = np.concatenate(us), np.concatenate(ks)
-        fresh: list[_RatioFigures] = []
-        for start in range(0, len(k_all), RATIO_BATCH):
-            if time.perf_counter() > self.deadline:
-                self.cut = True
-                return False
-            part = slice(start, start + RATIO_BATCH)
-            fresh.append(self._compute_ratios(self.class_position[u_all[part]], k_all[part]))
-        if not fresh:
-            return True
-        merged = _RatioFigures(*(np.concatenate([getattr(f, n) for f in fresh]) for n in _FIELDS))
-        for pos in np.unique(u_all):
-            mine = u_all == pos
-            new = _RatioFigures(*(getattr(merged, n)[mine] for n in _FIELDS))
-            known = self.ratios.get(int(pos))
-            if known is not None:
-                new = _RatioFigures(
-                    *(np.concatenate([getattr(known, n), getattr(new, n)]) for n in _FIELDS)
-                )
-            order = np.argsort(new.k, kind="stable")
-            self.ratios[int(pos)] = _RatioFigures(*(getattr(new, n)[order] for n in _FIELDS))
-        return True
 
     def _candidates(
         self, o: OpAmpTerms, x: float
@@ -286,114 +265,87 @@ class PairSource:
             start = stop
         return out
 
-    def _ratio_figures(self, pos: int, uk: NDArray[np.float64]) -> _RatioFigures:
-        """The kept figures of each k in ``uk`` (sorted, distinct) for op amp ``pos``."""
-        known = self.ratios[int(self.loop_class[pos])]
-        at = np.searchsorted(known.k, uk)
-        return _RatioFigures(*(getattr(known, n)[at] for n in _FIELDS))
-
-    def _compute_ratios(self, pos: NDArray[np.int64], uk: NDArray[np.float64]) -> _RatioFigures:
-        """The window, amplitude and share floors of ratio ``uk[n]`` on op amp ``pos[n]``.
-
-        A screen comes first: every row's P lies in [floor, ceiling] (the products' range,
-        the timing share's floors ``bounds.share_p_floor`` and ``bounds.p_floor``, and
-        ``bounds.p_ceiling``), and the amplitude and share bounds over that range, two
-        timings per ratio, already rule most ratios out; only the others get their window
-        (a root search at each end) and their figures. A ratio ruled out is not ``ok``."""
-        model = self.model
-        spec = model.spec
-        ln_min, ln_max = self.products.ln_min, self.products.ln_max
-        (fa, fb), (aa, ab) = model.band_f, model.band_a
-        t_target = 1.0 / spec.target.target_hz
-        t_min = float(t_target * np.exp(-np.array(fb)) * (1 - PERIOD_EDGE))
-        t_max = float(t_target * np.exp(-np.array(fa)) * (1 + PERIOD_EDGE))
-        loop = model.loops(self.indices[pos])
-        floor = np.maximum(
-            uk * math.exp(ln_min), share_p_floor(loop, uk, spec.limits.max_timing_share)
-        )
-        screen_floor = np.maximum(floor, p_floor(loop, t_min, spec.limits.max_timing_share))
-        ceiling = np.minimum(uk * math.exp(ln_max), p_ceiling(loop, uk, t_max))
-        e_a_lo, e_a_hi, share = self._amplitude_logs(loop, uk, screen_floor, ceiling)
-        with np.errstate(invalid="ignore"):
-            out = (screen_floor > ceiling) | (e_a_hi < aa) | (e_a_lo > ab)
-            out |= share > spec.limits.max_timing_share
-        nan = np.full(len(uk), np.nan)
-        fig = _RatioFigures(uk, nan, nan.copy(), nan.copy(), nan.copy(), nan.copy(), ~out)
-        n = np.flatnonzero(~out)
-        if len(n) == 0:
-            return fig
-        loop, k = loop.take(n), uk[n]
-        w = window(loop, k, np.full(len(k), t_min), np.full(len(k), t_max))
-        # P outside what the products can make is no use either, nor P below the
-        # timing-share limit's floor.
-        p_lo, p_hi = np.maximum(w.lo, floor[n]), np.minimum(w.hi, uk[n] * math.exp(ln_max))
-        lo, hi, share = self._amplitude_logs(loop, k, p_lo, p_hi)
-        ok = (p_lo <= p_hi) & (hi >= aa) & (lo <= ab)
-        ok &= share <= spec.limits.max_timing_share
-        for name, value in zip(_FIELDS[1:], (p_lo, p_hi, share, lo, hi, ok), strict=True):
-            getattr(fig, name)[n] = value
-        return fig
-
-    def _amplitude_logs(
-        self, loop: StageLoop, k: NDArray[np.float64], p_lo: NDArray[np.float64],
-        p_hi: NDArray[np.float64],
-    ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:  # fmt: skip
-        """ln(A/A_target) at the ends of the amplitude bounds over [p_lo, p_hi], and the
-        floor of the timing share there (``bounds.range_bounds``)."""
-        amp, share = range_bounds(loop, k, p_lo, p_hi)
-        a_t = self.model.spec.triangle.amplitude_vpp
-        with np.errstate(invalid="ignore", divide="ignore"):
-            return np.log(amp.lo / a_t), np.log(amp.hi / a_t), share
-
-    def _figures(
-        self, pos: int, o: OpAmpTerms, i1: NDArray[np.int64], i2: NDArray[np.int64]
-    ) -> Pairs:
-        """The pairs (i1, i2) of op amp ``o`` that can meet the spec, with their bounds."""
-        model = self.model
+    def _screen(self, pos: int, o: OpAmpTerms, i1: I64, i2: I64) -> Screened:
+        """The pairs (i1, i2) of stage ``o`` whose ratio's figures let them meet the spec."""
         if len(i1) == 0:
-            return no_pairs()
-        res = model.resistors
+            return Screened(i1, i2, i1, Figures.empty(), np.zeros((0, 0)))
+        res = self.model.resistors
         k = res.value[i1] / res.value[i2]
-        # Pairs of equal ratio share everything below: work on the distinct k.
+        # Pairs of equal ratio share the ratio's figures: work on the distinct k.
         uk, inv = np.unique(k, return_inverse=True)
-        fig = self._ratio_figures(pos, uk)
-        keep = fig.ok[inv]
-        i1, i2, k, inv = i1[keep], i2[keep], k[keep], inv[keep]
-        p_lo, p_hi, share, e_a_lo, e_a_hi = (
-            x[inv] for x in (fig.p_lo, fig.p_hi, fig.share, fig.e_a_lo, fig.e_a_hi)
-        )
-        u = np.full(len(i1), o.index, dtype=np.int64)
+        fig = self.ratios.lookup(int(self.loop_class[pos]), uk)
+        keep = fig.ok[inv]  # most candidates fail here: gather the figures of the rest only
+        u = np.full(int(np.sum(keep)), o.index, dtype=np.int64)
+        return Screened(u, i1[keep], i2[keep], fig.take(inv[keep]), np.zeros((len(u), 0)))
+
+    def _pairs(self, found: Screened) -> Pairs:
+        """The screened pairs that can meet the spec, with their bounds."""
+        model = self.model
+        u, i1, i2, fig = found.u, found.i1, found.i2, found.fig
+        p_lo, p_hi = fig.p_lo, fig.p_hi
         keep = np.ones(len(i1), dtype=bool)
         if model.spec.limits.guarantee == "worst_case" and model.form.probes_in_box:
             limits = pair_limits(model, u, i1, i2, p_lo, p_hi)
             keep &= limits.keep
             p_lo, p_hi = limits.p_min, limits.p_max
-        e_a_gap = np.maximum(0.0, np.maximum(e_a_lo, -e_a_hi))  # |e_a| ≥ this
+        e_a_gap = np.maximum(0.0, np.maximum(fig.e_a_lo, -fig.e_a_hi))  # |e_a| ≥ this
         base = (
-            self.stage_term(o)
+            self.stage_terms[u]
             + self.r_term[i1]
             + self.r_term[i2]
             - self.credit * (i1 == i2)
             + model.amplitude_term(e_a_gap)
-            + model.share_term(np.maximum(share, 0.0))
+            + model.share_term(np.maximum(fig.share, 0.0))
         )
-        return Pairs(u, i1, i2, k, p_lo, p_hi, base, base + self.floor).take(keep)
+        levels = found.levels if self.by_pair else np.zeros((len(u), 0))
+        return Pairs(u, i1, i2, fig.k, p_lo, p_hi, base, base + self.floor, levels).take(keep)
+
+    def _narrowed(self, found: Screened) -> Screened:
+        """The pairs that can still meet the spec with their own level intervals
+        (``pairfigures.pair_levels``), their figures narrowed to the pair's loop
+        (``pairfigures.narrowed``: the ratio's and the pair's both hold every row through
+        the pair) and their levels; in batches of every stage's pairs together, between
+        deadline checks (``cut`` and the pairs done so far when it comes)."""
+        model = self.model
+        done: list[Screened] = []
+        for start in range(0, len(found.u), PAIR_BATCH):
+            if time.perf_counter() > self.deadline:
+                self.cut = True
+                break
+            part = found.take(np.arange(start, min(start + PAIR_BATCH, len(found.u))))
+            levels = pair_levels(model, part.u, part.i1, part.i2)
+            loop = pair_loops(model, part.u, levels)
+            fig = narrowed(part.fig, figures(model, self.products, loop, part.fig.k))
+            keep = np.flatnonzero(fig.ok)
+            done.append(Screened(part.u, part.i1, part.i2, fig, levels).take(keep))
+        return Screened.concat(done)
 
 
-def loop_classes(loops: StageLoop) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
-    """The class of each loop (equal loops, every field bit for bit, NaN equal to NaN, share
-    one) and one position of each class."""
-    fields = [np.asarray(f, dtype=np.float64) for f in loops]
-    n = max((len(f) for f in fields if f.ndim), default=0)
-    if n == 0:
-        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    columns = [np.broadcast_to(f, (n,)) for f in fields]
-    key = np.stack([np.nan_to_num(c, nan=0.0) for c in columns] + [np.isnan(c) for c in columns])
-    _, first, inverse = np.unique(key.T, axis=0, return_index=True, return_inverse=True)
-    return np.asarray(inverse, dtype=np.int64).reshape(-1), np.asarray(first, dtype=np.int64)
+@dataclass
+class Screened:
+    """Pairs (stage ``u``, R1 ``i1``, R2 ``i2``) with their figures so far and their level
+    intervals ((n, 4); (n, 0) before ``PairSource._narrowed``)."""
+
+    u: I64
+    i1: I64
+    i2: I64
+    fig: Figures
+    levels: F64
+
+    def take(self, sel: I64) -> Screened:
+        return Screened(self.u[sel], self.i1[sel], self.i2[sel], self.fig.take(sel),
+                        self.levels[sel])  # fmt: skip
+
+    @staticmethod
+    def concat(parts: list[Screened]) -> Screened:
+        if not parts:
+            z = np.zeros(0, dtype=np.int64)
+            return Screened(z, z, z, Figures.empty(), np.zeros((0, 4)))
+        u, i1, i2 = (np.concatenate([getattr(p, n) for p in parts]) for n in ("u", "i1", "i2"))
+        fig = Figures.concat([p.fig for p in parts])
+        return Screened(u, i1, i2, fig, np.concatenate([p.levels for p in parts]))
 
 
-_FIELDS = tuple(_RatioFigures.__dataclass_fields__)
-#: The period band is widened by this relative amount before windows are taken, so a row on
-#: the band's edge whose computed period rounds differently from the bounds' stays inside.
-PERIOD_EDGE = 1e-12
+#: Pairs whose own levels and figures are computed in one call (all stages together),
+#: between deadline checks.
+PAIR_BATCH = 8192

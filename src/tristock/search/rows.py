@@ -39,6 +39,7 @@ from tristock.search.guarantee import (
     probe_values,
 )
 from tristock.search.model import SECONDARY_SPAN, SearchModel
+from tristock.search.pairfigures import pair_levels, pair_loops
 from tristock.spec.model import Spec
 
 I64 = NDArray[np.int64]
@@ -242,10 +243,20 @@ def coupled_ok(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64) ->
 
 
 def evaluate(
-    model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, j: I64, *, coupled: bool = True
+    model: SearchModel,
+    u: I64,
+    i1: I64,
+    i2: I64,
+    i3: I64,
+    j: I64,
+    *,
+    coupled: bool = True,
+    levels: F64 | None = None,
 ) -> Rows:
     """Score combinations with the full model and keep those the spec accepts (module
-    docstring). ``coupled=False`` leaves stock and cost to the CP-SAT engine."""
+    docstring). ``coupled=False`` leaves stock and cost to the CP-SAT engine. ``levels``:
+    each row's pair level intervals where the caller has them (``search.pairs.Pairs``),
+    else they are found again for the run-time guard."""
     spec, res, cap = model.spec, model.resistors, model.capacitors
     rp = RowPrediction.nominal(
         model, u, (res.value[i1], res.value[i2], res.value[i3], cap.value[j])
@@ -269,7 +280,7 @@ def evaluate(
     lines = model.stage_lines[u] + 1 + resistor_lines - shared_with_stage
     cost = row_cost(model, u, i1, i2, i3, j)
 
-    _guard_bounds(model, u, rp)
+    _guard_bounds(model, u, i1, i2, rp, levels)
     keep = np.flatnonzero(ok)
     if spec.limits.guarantee == "worst_case" and model.form.probes_in_box and len(keep):
         probes = probe_extremes(model, *(x[keep] for x in (u, i1, i2, i3, j)))
@@ -309,16 +320,23 @@ def evaluate(
     return rows.take(keep)
 
 
-def _guard_bounds(model: SearchModel, u: I64, rp: RowPrediction) -> None:
-    """Hold every row the full model evaluated to the bounds that windowed it: if one falls
-    outside, the completeness argument has failed and ``model.bounds_violated`` withdraws
-    every proof (cheap insurance against a model change that breaks a monotonicity)."""
+def _guard_bounds(
+    model: SearchModel, u: I64, i1: I64, i2: I64, rp: RowPrediction, levels: F64 | None
+) -> None:
+    """Hold every row the full model evaluated to the bounds that windowed it (its pair's
+    loop, ``pairfigures.pair_loops``, where the form narrows the levels by pair): if one
+    falls outside, the completeness argument has failed and ``model.bounds_violated``
+    withdraws every proof (cheap insurance against a model change that breaks a
+    monotonicity)."""
     # the bounds are claimed where a row can be accepted: the timing share within the limit
     with np.errstate(invalid="ignore"):
         n = np.flatnonzero(rp.valid & (rp.timing_share <= model.spec.limits.max_timing_share))
     if len(n) == 0:
         return
     loop = model.loops(u[n])
+    if model.form.levels_by_pair:
+        found = pair_levels(model, u[n], i1[n], i2[n]) if levels is None else levels[n]
+        loop = pair_loops(model, u[n], found)
     k, p = rp.k[n], rp.p[n]
     t, a = point_bounds(loop, k, p)
     period = np.asarray(rp.pred.period_s)[n]

@@ -8,7 +8,9 @@ table and C1 over four decades. Each row's frequency, amplitude and timing share
 topology's own model (``predict_rows`` = ``CLAMPED_SCHMITT.predict``, itself checked against
 ngspice in tests/circuits); the reference is the claim itself: the model's values inside the
 bounds the engines prune with, over the rows the bounds claim (a valid row with its timing
-share within the limit and its swing at most twice the band's largest amplitude).
+share within the limit and its swing at most twice the band's largest amplitude). The same
+holds for the loop of each row's (stage, R1/R2 pair), whose level intervals the form narrows
+with R1 + R2 known (``ClampedSchmittForm.pair_levels``), and those lie inside the stage's.
 """
 
 from __future__ import annotations
@@ -49,8 +51,13 @@ def test_the_clamped_form_claims_proven_bounds() -> None:
     assert SEARCH_FORM.bounds_proven
 
 
+@pytest.mark.parametrize("by_pair", [False, True], ids=["stage", "pair"])
 @pytest.mark.parametrize(("v", "amplitude", "f"), CASES)
-def test_every_row_lies_inside_the_bounds(v: float, amplitude: float, f: float) -> None:
+def test_every_row_lies_inside_the_bounds(
+    v: float, amplitude: float, f: float, by_pair: bool
+) -> None:
+    """The stage's loop, and the loop of each row's (stage, R1/R2 pair) with the intervals of
+    ``pair_levels`` (R3 anywhere in the values drawn), must both bound every row."""
     spec = spec_at(v, amplitude, f)
     values = np.array(sorted({r.value_ohm for r in DEMO.resistors if r.value_ohm >= 100.0}))
     stages, _ = SEARCH_FORM.stage_options(spec, DEMO, values)
@@ -74,6 +81,19 @@ def test_every_row_lies_inside_the_bounds(v: float, amplitude: float, f: float) 
     loop = StageLoop(
         *(np.array([getattr(stages[i].loop, f) for i in u[n]]) for f in StageLoop._fields)
     )
+    if by_pair:
+        stage_loop = loop
+        found = SEARCH_FORM.pair_levels(
+            stages, u[n], r1[n], r2[n], (float(values.min()), float(values.max())), rails
+        )
+        loop = SEARCH_FORM.pair_loop(stage_loop, found)
+        # inside the stage's intervals, and narrower on the whole (the pair fixes R1 + R2)
+        assert np.all((stage_loop.vh_lo <= loop.vh_lo) & (loop.vh_hi <= stage_loop.vh_hi))
+        assert np.all((stage_loop.vl_lo <= loop.vl_lo) & (loop.vl_hi <= stage_loop.vl_hi))
+        width = np.sum(loop.vh_hi - loop.vh_lo + loop.vl_hi - loop.vl_lo)
+        assert width < 0.9 * np.sum(
+            stage_loop.vh_hi - stage_loop.vh_lo + stage_loop.vl_hi - stage_loop.vl_lo
+        )
     k = r1[n] / r2[n]
     p = k * r3[n] * rows["C1"][n]
     with np.errstate(divide="ignore", invalid="ignore"):  # a weakest drive of 0: no upper end

@@ -114,7 +114,8 @@ class ClampStage(StageOption):
     (the loop's intervals), ``spread_load`` the same with each resistor at its tolerance and
     tempco ends over the spec's temperatures (``level_bounds`` at the worst-case probes);
     ``fixed`` the point fields the stage fixes (``candidate_columns``), kept so that rows
-    are evaluated without rebuilding them."""
+    are evaluated without rebuilding them; ``turn_v`` the bound of the turns' reach past the
+    thresholds its intervals were taken with (``designpoint.design_levels``)."""
 
     part: OpAmp
     model: OpAmpModel
@@ -124,6 +125,7 @@ class ClampStage(StageOption):
     load: LoadRange
     spread_load: LoadRange
     fixed: Mapping[str, float]
+    turn_v: float = float("inf")
 
 
 def candidate_columns(

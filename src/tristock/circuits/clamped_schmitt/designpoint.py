@@ -101,7 +101,7 @@ def design_levels(
     cols: Mapping[str, FloatArray],
     load: Sequence[float | FloatArray],
     at_rest: Sequence[FloatArray] | None = None,
-    turn_v: float = np.inf,
+    turn_v: float | FloatArray = np.inf,
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     """(VH_lo, VH_hi, VL_lo, VL_hi) of every row of each stage that meets the rule (module
     docstring), from the stage's columns (``clamplevels.candidate_columns`` layout) and its

@@ -31,12 +31,22 @@ from tristock.circuits.clamped_schmitt.clamplevels import (
     columns,
     fixed_fields,
     level_range,
+    rest_levels,
     row_point,
     square_levels_at_reference,
 )
-from tristock.circuits.clamped_schmitt.designpoint import at_design_point, threshold_currents
+from tristock.circuits.clamped_schmitt.designpoint import (
+    at_design_point,
+    design_levels,
+    threshold_currents,
+)
 from tristock.circuits.clamped_schmitt.physics import Clamp, ClampPoint
-from tristock.circuits.clamped_schmitt.stageoptions import clamp_stages, loads, make_stage
+from tristock.circuits.clamped_schmitt.stageoptions import (
+    clamp_stages,
+    loads,
+    make_stage,
+    turn_reach,
+)
 from tristock.circuits.opampvariant import part_at
 from tristock.circuits.prediction import Prediction
 from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply, square_levels
@@ -82,6 +92,59 @@ class ClampedSchmittForm(SearchForm):
         load = [np.array([x[f] for x in spread], dtype=float) for f in range(5)]
         found = level_range(cols, load, rails)
         return found[0][back], found[1][back], found[2][back], found[3][back]
+
+    #: The divider pair fixes the load R1 + R2: ``pair_levels`` narrows the intervals.
+    levels_by_pair = True
+
+    def pair_levels(
+        self,
+        stages: Sequence[StageOption],
+        u: I64,
+        r1: F64,
+        r2: F64,
+        r3_range: tuple[float, float],
+        rails: Rails,
+    ) -> tuple[F64, F64, F64, F64]:
+        """The stage's intervals taken again over the rows through the pair: the same
+        design-point rule and load corners (``designpoint.design_levels`` over
+        ``clamplevels.rest_levels``, the stage's ``turn_v``) with the loads
+        R1 + R2 = r1 + r2 exactly (``LoadRange`` rl_lo = rl_hi) and R3 in the stage's range
+        cut to ``r3_range``, then intersected with the stage's own intervals.
+
+        Proof that each holds every row through the pair: the stage's argument
+        (``designpoint``, ``clamplevels``) bounds the level of every row whose R3 and
+        R1 + R2 lie in a ``LoadRange`` (the corners' S0 by its monotonicity in G3 and Gl,
+        g_max by Gl_max and G3_min, the reach X by A_max, R_max and span_lo), for any such
+        range; the pair's rows have R1 + R2 = r1 + r2 and R3 in both ranges, so they lie in
+        this one (the triangle bound A_max and the design rule are the stage's). Each of the
+        two intervals then holds every level such a row's model uses, and so does their
+        intersection. The bounds (``search.bounds``) take a loop's intervals as given, so
+        a pair's loop (the stage's with these levels, ``pair_loop``) bounds its rows."""
+        uniq, back = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
+        picked = [stages[n] for n in uniq.tolist()]
+        if not all(isinstance(s, ClampStage) for s in picked):
+            raise TypeError("U1: a stage is not a zener-clamped stage")
+        clamps = [s for s in picked if isinstance(s, ClampStage)]
+        back = np.asarray(back).reshape(-1)
+
+        def per_stage(values: list[float]) -> F64:
+            return np.array(values, dtype=np.float64)[back]
+
+        cols = columns(stages, u)
+        rl = np.asarray(r1, dtype=float) + np.asarray(r2, dtype=float)
+        load = (
+            np.maximum(per_stage([s.load.r3_lo for s in clamps]), r3_range[0]),
+            np.minimum(per_stage([s.load.r3_hi for s in clamps]), r3_range[1]),
+            rl,
+            rl,
+            per_stage([s.load.triangle_v for s in clamps]),
+        )
+        turn_v = per_stage([s.turn_v for s in clamps])
+        found = design_levels(cols, load, rest_levels(cols, load, rails), turn_v)
+        own = [per_stage([float(getattr(s.loop, f)) for s in clamps]) for f in _LEVELS]
+        lo_h, hi_h = np.maximum(found[0], own[0]), np.minimum(found[1], own[1])
+        lo_l, hi_l = np.maximum(found[2], own[2]), np.minimum(found[3], own[3])
+        return lo_h, np.maximum(hi_h, lo_h), lo_l, np.maximum(hi_l, lo_l)
 
     def row_levels(
         self, stages: Sequence[StageOption], u: I64, rails: Rails, values: Mapping[str, F64]
@@ -178,4 +241,8 @@ class ClampedSchmittForm(SearchForm):
         found = [float(np.ravel(x)[0]) for x in levels]
         fixed = fixed_fields(cols, (0, 0))
         opamp = (u1, model, *outputs)
-        return make_stage(0, opamp, (d1, d2), r5, (own, own), found, (ve, ve), fixed)
+        reach = turn_reach(spec)
+        return make_stage(0, opamp, (d1, d2), r5, (own, own), found, (ve, ve), fixed, reach)
+
+
+_LEVELS = ("vh_lo", "vh_hi", "vl_lo", "vl_hi")

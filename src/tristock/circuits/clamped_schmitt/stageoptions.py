@@ -101,12 +101,14 @@ def make_stage(
     levels: Sequence[float],
     ve: tuple[float, float],
     fixed: Mapping[str, float],
+    turn_v: float = float("inf"),
 ) -> ClampStage:
     """The stage option: U1's packages, D1 and D2 (two pieces of one code, or one each), R5;
     its cost and lines; the loop with the level intervals ``levels`` (VH_lo, VH_hi, VL_lo,
     VL_hi) and Ve over ``ve``; ``levels`` the intervals' middles. ``opamp`` is U1 with its
     model and output levels (VH, VL) on the nominal rails; ``fixed`` the point fields the
-    stage fixes (``clamplevels.fixed_fields``)."""
+    stage fixes (``clamplevels.fixed_fields``); ``turn_v`` the turns' reach the levels were
+    taken with (``turn_reach``)."""
     part, model, out_h, out_l = opamp
     d1, d2 = zeners
     diodes: tuple[tuple[Part, int], ...] = ((d1, 2),) if d1 == d2 else ((d1, 1), (d2, 1))
@@ -129,6 +131,7 @@ def make_stage(
         load=load[0],
         spread_load=load[1],
         fixed=fixed,
+        turn_v=turn_v,
     )
 
 
@@ -198,7 +201,9 @@ def opamp_stages(
         levels = [float(x[j]) for x in found]
         ve_range = (float(ve.min()), float(ve.max()))
         at, fixed = start + len(stages), fixed_fields(cols, (n, r))
-        stages.append(make_stage(at, opamp, pairs[n], resistors[r], load, levels, ve_range, fixed))
+        stages.append(
+            make_stage(at, opamp, pairs[n], resistors[r], load, levels, ve_range, fixed, turn_v)
+        )
     return stages, excl
 
 
