@@ -93,10 +93,11 @@ def accepted(spec: Spec, board: AnyBoard) -> tuple[float, float, float] | None:
     assert isinstance(u1, OpAmp) and isinstance(r3, Resistor) and isinstance(c1, Capacitor)
     m = OpAmpModel.from_part(u1)
     ref = rails.reference_v
-    vh, vl = float(p.square_high_v) - ref, ref - float(p.square_low_v)
+    # the prediction's voltages are from the reference node (``physics``)
+    vh, vl = float(p.square_high_v), -float(p.square_low_v)
     ve = m.offset_v + m.bias_a * r3.value_ohm
     rc = r3.value_ohm * c1.value_f
-    top, bottom = float(p.peak_high_v) - ref, float(p.peak_low_v) - ref
+    top, bottom = float(p.peak_high_v), float(p.peak_low_v)
     tf, ta = spec.target.tolerance_pct / 100, spec.triangle.tolerance_pct / 100
     e_f = float(np.log(f / spec.target.target_hz))
     e_a = float(np.log(a / spec.triangle.amplitude_vpp))
@@ -409,3 +410,69 @@ CIRCUIT_OF = {
     "clamped_schmitt": {"clamp": "zener"},
 }
 ORDER = {name: n for n, name in enumerate(TOPOLOGIES)}
+
+
+def common_mode_spec(catalog: Catalog) -> tuple[Spec, int]:
+    """A 5 V single-supply comparator spec whose target lies between a board the rules accept
+    and the board of the same U1, R1, R2, R3 and C1 with the other U2 that only U2's input
+    common-mode range rules out (the topology's check input_common_mode), and how many boards
+    in the bands that range alone rules out."""
+    data = spec_data("comparator_schmitt", 1e3, 1.0, "nominal", "balanced")
+    data["supply"] = {"positive_v": 5.0, "negative_v": 0.0, "tolerance_pct": 5.0}
+    rails = rails_from_supply(parse_spec(data).supply)
+    ok: dict[tuple[str, ...], tuple[float, float]] = {}
+    only_cm: dict[tuple[str, ...], tuple[float, float]] = {}
+    for stage in stages("comparator_schmitt", catalog):
+        for r1, r2, r3, c1 in itertools.product(
+            catalog.resistors, catalog.resistors, catalog.resistors[::2], catalog.capacitors
+        ):
+            if r1.value_ohm >= 0.8 * r2.value_ohm:
+                continue
+            board = board_of(
+                "comparator_schmitt", {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1}
+            )
+            try:
+                p = board.oscillator(rails).prediction()
+            except ValueError:
+                continue
+            if float(p.timing_share) >= 0.1:
+                continue
+            errors = {w.code for w in board.topology.check(board, rails) if w.severity == "error"}
+            key = (stage["U1"].id, r1.id, r2.id, r3.id, c1.id)
+            figures = (float(p.frequency_hz), float(p.amplitude_vpp))
+            if not errors:
+                ok[key] = figures
+            elif errors == {"input_common_mode"}:
+                only_cm[key] = figures
+    both = sorted(set(ok) & set(only_cm), key=lambda k: -ok[k][1])
+    assert both, "the common-mode range rules out no board: the case tests nothing"
+    (f1, a1), (f2, a2) = ok[both[0]], only_cm[both[0]]
+    f, a = float(np.sqrt(f1 * f2)), float(np.sqrt(a1 * a2))  # the target between the two
+    data["frequency"] = {"target_hz": f, "tolerance_pct": 5.0}
+    data["triangle"] = {"amplitude_vpp": a, "tolerance_pct": 10.0}
+    near = sum(
+        np.log(0.95) <= np.log(g / f) <= np.log(1.05)
+        and np.log(0.9) <= np.log(b / a) <= np.log(1.1)
+        for g, b in only_cm.values()
+    )
+    return parse_spec(data), near
+
+
+@pytest.mark.parametrize("seed", [2, 5, 7])
+def test_the_common_mode_limit_binds_and_both_engines_agree(seed: int) -> None:
+    """On a 5 V single supply U2's + input range (1.5 V below V+ on the test comparators)
+    rules out boards near the target: the brute force rejects them by the topology's check,
+    the search by its acceptance (and its k ceiling); both engines return the brute force's
+    top."""
+    catalog = small_catalog(seed)
+    catalog = dataclasses.replace(catalog, comparators=catalog.comparators[:2])  # push-pull
+    spec, ruled_out = common_mode_spec(catalog)
+    assert ruled_out > 0
+    expected = reference("comparator_schmitt", spec, catalog)
+    assert expected, "the spec admits no board: the case tests nothing"
+    for engine in ("enumerate", "cpsat"):
+        result = design(spec, catalog, engine=engine, time_limit_s=60.0, samples=200)
+        assert result.search.proven_optimal, engine
+        got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
+        assert got == expected, engine
+        assert result.search.dropped_by_full_model == 0, engine  # none proposed, none dropped

@@ -31,6 +31,7 @@ and falls with each drive, the overshoots do not depend on the span).
 
 from __future__ import annotations
 
+import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -264,6 +265,13 @@ class SearchForm(ABC):
         (Ω, F by designator) at the square levels ``levels``; slew rates and delays scaled by
         the factors given; ``centred_offsets`` puts the offsets at 0 V (the analysis box's
         centre) instead of the catalogued typical values."""
+
+    def divider_limit(self, stage: StageOption) -> tuple[float, Exclusion | None]:
+        """(k_max, exclusion): no row of ``stage`` with k = R1/R2 above k_max can be
+        accepted, by a condition of the form's own acceptance that ``predict_rows`` applies
+        (the comparator loop: U2's input common-mode range), and the exclusion that says so
+        when no k of the stage's window is left; by default none (inf, None)."""
+        return math.inf, None
 
     def peak_limits(
         self, stages: Sequence[StageOption], u: I64, levels: tuple[F64, F64]

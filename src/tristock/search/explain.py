@@ -12,7 +12,7 @@ from collections import Counter
 
 from tristock.circuits.topology import Topology
 from tristock.search.enumeration import EngineResult, enumerate_top
-from tristock.search.model import SearchModel, build_model
+from tristock.search.model import OpAmpTerms, SearchModel, build_model
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 from tristock.stock.units import format_value
@@ -71,6 +71,35 @@ def _timing_reason(
         f"{lim.max_timing_share:.0%} of the period (limits.max_timing_share; the best-ranked "
         f"sets {float(found.rows.share[0]):.0%}): such a frequency follows part-to-part timing "
         "spread; choose a faster op amp, a lower frequency or a larger limit (at most 0.4)"
+    )
+
+
+def _divider_cuts(model: SearchModel) -> list[str]:
+    """The stages whose k window a condition of the form's acceptance emptied or cut
+    (``SearchForm.divider_limit``: a comparator's input common-mode range), each in its
+    words with the k the amplitude band alone would allow."""
+    found = [
+        f"{e.designator} {e.part_id or ''}: {e.reason}, below the k its amplitude band "
+        "needs".replace(" :", ":")
+        for e in model.divider_cuts
+    ]
+    found += [
+        f"{o.k_cut.designator} {o.k_cut.part_id or ''}: {o.k_cut.reason}, where the amplitude "
+        f"band alone allows k up to {_amplitude_k_max(model, o):.4g}".replace(" :", ":")
+        for o in model.opamps
+        if o.k_cut is not None
+    ]
+    return list(dict.fromkeys(found))
+
+
+def _amplitude_k_max(model: SearchModel, o: OpAmpTerms) -> float:
+    """The k window's upper end from the amplitude band alone: A_max over the span's low
+    end (``search.model``)."""
+    spec = model.spec
+    return (
+        spec.triangle.amplitude_vpp
+        * (1 + spec.triangle.tolerance_pct / 100)
+        / float(o.loop.span_lo)
     )
 
 
@@ -154,10 +183,11 @@ def infeasible_reasons(
         if timing:
             return [timing]
         return [
+            *_divider_cuts(model),
             f"no R3·C1 product from {_series_text(model)} resistors ({r_lo}..{r_hi}) and "
             f"{'/'.join(lim.dielectrics)} capacitors puts the frequency within "
             f"±{spec.target.tolerance_pct:g} % of {format_value(spec.target.target_hz, 'Hz')}"
-            " with any usable op amp and R1/R2 pair"
+            " with any usable op amp and R1/R2 pair",
         ]
     if lim.guarantee != "nominal":
         strict = searches.first(model, coupled=False)

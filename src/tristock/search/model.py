@@ -14,7 +14,7 @@ that is 1 ppm of frequency), so both engines and brute force compare exactly.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 
 import numpy as np
@@ -93,6 +93,9 @@ class OpAmpTerms:
     stage: StageOption | None = None
     #: The spec the target point is taken for (None: no target point).
     spec: Spec | None = None
+    #: Where the form's ``divider_limit`` cut ``k_range``'s upper end: the limit's words
+    #: (the infeasibility reasons name it), else None.
+    k_cut: Exclusion | None = None
 
     @property
     def option(self) -> StageOption:
@@ -139,6 +142,9 @@ class SearchModel:
     form: SearchForm = field(default_factory=OPAMP_SCHMITT.search_form)
     #: The circuit searched (``form`` is its search form).
     topology: Topology = OPAMP_SCHMITT
+    #: Stage options dropped because the form's ``divider_limit`` left no k of their window
+    #: (also among ``exclusions``; the infeasibility reasons name them).
+    divider_cuts: list[Exclusion] = field(default_factory=list)
 
     @cached_property
     def stages(self) -> list[StageOption]:
@@ -331,14 +337,37 @@ def _k_range(spec: Spec, loop: StageLoop) -> tuple[float, float]:
     return a_t * (1 - ta) / (span_hi * (1 + eps)), a_t * (1 + ta) / span_lo
 
 
-def _terms(stage: StageOption, spec: Spec) -> OpAmpTerms:
+def _terms(
+    stage: StageOption, spec: Spec, k_range: tuple[float, float], k_cut: Exclusion | None
+) -> OpAmpTerms:
     """The search's terms of one stage option (its target point found on first use)."""
     vh, vl = stage.levels
-    k_range = _k_range(spec, stage.loop)
     u1 = stage.part if isinstance(stage, OpAmpStage) else stage.parts["U1"]
     assert isinstance(u1, OpAmp)
     model = stage.model if isinstance(stage, OpAmpStage) else OpAmpModel.from_part(u1)
-    return OpAmpTerms(stage.index, u1, model, vh, vl, stage.loop, k_range, stage, spec)
+    return OpAmpTerms(stage.index, u1, model, vh, vl, stage.loop, k_range, stage, spec, k_cut)
+
+
+def _windowed(
+    form: SearchForm, stages: list[StageOption], spec: Spec
+) -> tuple[list[OpAmpTerms], list[Exclusion]]:
+    """Each stage's terms with its k window (``_k_range``) cut at the form's
+    ``divider_limit``; a stage with no k left is dropped (its exclusion says why) and the
+    others renumbered in order."""
+    kept: list[tuple[StageOption, tuple[float, float], Exclusion | None]] = []
+    excl: list[Exclusion] = []
+    for stage in stages:
+        k_lo, k_hi = _k_range(spec, stage.loop)
+        k_max, why = form.divider_limit(stage)
+        if k_max < k_lo:
+            if why is not None:
+                excl.append(why)
+            continue
+        kept.append((stage, (k_lo, min(k_hi, k_max)), why if k_max < k_hi else None))
+    return [
+        _terms(replace(s, index=n) if s.index != n else s, spec, k, cut)
+        for n, (s, k, cut) in enumerate(kept)
+    ], excl
 
 
 def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:
@@ -352,7 +381,8 @@ def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT
 
     stages, stage_excl = form.stage_options(spec, catalog, res_table.value)
     excl += stage_excl
-    opamps = [_terms(stage, spec) for stage in stages]
+    opamps, cut = _windowed(form, stages, spec)
+    excl += cut
 
     cap_table, cap_excl = eligible_capacitors(spec, catalog, "C1")
     excl += cap_excl
@@ -365,4 +395,5 @@ def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT
         exclusions=excl,
         form=form,
         topology=topology,
+        divider_cuts=cut,
     )

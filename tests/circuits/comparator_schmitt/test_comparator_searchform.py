@@ -210,7 +210,8 @@ def breaks_the_stiffness_rule(board: Any) -> bool:
 def reference(board: object, rails: Rails) -> tuple[float, float, float] | None:
     """The topology's own model of the board at 25 °C on ``rails``: (f, A, duty), or None
     where it does not oscillate, where its triangle leaves U1's output swing (what its
-    swing_integrator check calls an error) or where it breaks the stiffness rule."""
+    swing_integrator check calls an error), where it breaks the stiffness rule or where an
+    input leaves its common-mode range (the check input_common_mode, an error)."""
     if breaks_the_stiffness_rule(board):
         return None
     point = COMPARATOR_SCHMITT.board_point(board, rails, 25.0)
@@ -224,7 +225,17 @@ def reference(board: object, rails: Rails) -> tuple[float, float, float] | None:
         return None
     if ref + float(p.peak_low_v) < rails.v_neg + u1.swing_neg_v:
         return None
+    if common_mode_error(board, rails):
+        return None
     return float(p.frequency_hz), float(p.amplitude_vpp), float(p.duty_high)
+
+
+def common_mode_error(board: object, rails: Rails) -> bool:
+    """The topology's own check calls an input's common-mode range an error."""
+    return any(
+        w.code == "input_common_mode" and w.severity == "error"
+        for w in COMPARATOR_SCHMITT.check(board, rails)
+    )
 
 
 FIGURES = ("frequency_hz", "amplitude_vpp", "duty_high")
@@ -254,8 +265,9 @@ def assert_rows_match(rows: Rows, rails: Rails) -> Counter[str]:
 
 
 def kind_of(board: object, rails: Rails) -> str:
-    """Why the reference has no figures: no oscillation, or the triangle clips in U1 (then
-    the topology's own check says so: swing_integrator, an error)."""
+    """Why the reference has no figures: no oscillation, the triangle clips in U1 (then
+    the topology's own check says so: swing_integrator, an error), or an input leaves its
+    common-mode range (input_common_mode, an error)."""
     point = COMPARATOR_SCHMITT.board_point(board, rails, 25.0)
     try:
         COMPARATOR_SCHMITT.predict(point, rails.v_ref)
@@ -266,8 +278,10 @@ def kind_of(board: object, rails: Rails) -> str:
         assert ("pull_up_load", "error") in codes
         return "stiffness"
     codes = {(w.code, w.severity) for w in COMPARATOR_SCHMITT.check(board, rails)}
-    assert ("swing_integrator", "error") in codes
-    return "clips"
+    if ("swing_integrator", "error") in codes:
+        return "clips"
+    assert ("input_common_mode", "error") in codes
+    return "common_mode"
 
 
 # ---- (1) every row is the topology's own model ------------------------------------------

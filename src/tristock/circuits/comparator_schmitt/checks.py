@@ -20,6 +20,7 @@ from tristock.circuits.checks import (
     supply_range,
     volts,
 )
+from tristock.circuits.comparator_schmitt.commonmode import plus_input_swing
 from tristock.circuits.comparator_schmitt.point import ComparatorOscillator
 from tristock.circuits.comparator_schmitt.stagelevels import PULL_UP_LOAD_SHARE
 from tristock.stock.comparators import EDGE_SHARE
@@ -44,14 +45,14 @@ def _levels(osc: ComparatorOscillator) -> tuple[float, float, float, float, floa
 
 
 def input_checks(osc: ComparatorOscillator, u1: OpAmp) -> list[Warning]:
-    """U2's + input, (R2·vt + R1·vs)/(R1 + R2), widest just after each switch; U2's - input
-    and U1's inputs at the reference (plus the offsets)."""
+    """U2's + input, (R2·vt + R1·vs)/(R1 + R2), widest just after each switch
+    (``commonmode.plus_input_swing``, the numbers the search's acceptance takes); U2's -
+    input and U1's inputs at the reference (plus the offsets)."""
     rails, u2 = osc.rails, osc.comparator
     ref = rails.reference_v
-    hi, lo, h_top, _, low = _levels(osc)
-    r12 = osc.r1 + osc.r2
-    top = ref + (osc.r2 * hi + osc.r1 * h_top) / r12
-    bottom = ref + (osc.r2 * lo + osc.r1 * low) / r12
+    r5 = osc.r5 if u2.is_open_drain else 0.0
+    bottom_rel, top_rel = plus_input_swing(osc.prediction(), osc.r1, osc.r2, osc.r3, r5)
+    top, bottom = ref + float(top_rel), ref + float(bottom_rel)
     on = (rails.v_pos, rails.v_neg)
     cm2 = common_mode_range(rails.v_pos, rails.v_neg, u2.input_cm_neg_v, u2.input_cm_pos_headroom_v)
     cm1 = common_mode_range(rails.v_pos, rails.v_neg, u1.input_cm_neg_v, u1.input_cm_pos_headroom_v)

@@ -6,17 +6,23 @@ A row is valid where ``physics.oscillates`` (both drives reach their thresholds)
 open-drain row meets the stiffness rule (``stagelevels.PULL_UP_LOAD_SHARE``: R5·(1/R3 +
 1/R2) ≤ ρ, a design rule of the circuit searched) and its triangle stays inside U1's output
 range: the model does not clip the integrator, and a board whose triangle leaves that range
-fails its swing check.
+fails its swing check. A valid row's inputs also stay inside their common-mode ranges, with
+the numbers of the check ``checks.input_checks`` (``commonmode``: U2's + input just after
+each switch, its - input and U1's inputs at the reference), and no stage lists a divider
+pair above its ``k_ceiling`` (``divider_limit``: the search's k windows stop there).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import math
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
+from numpy.typing import NDArray
 
+from tristock.circuits.comparator_schmitt.commonmode import inside_common_mode
 from tristock.circuits.comparator_schmitt.physics import (
     high_level,
     oscillates,
@@ -60,9 +66,21 @@ class ComparatorSchmittForm(SearchForm):
     #: The probes scale slew in V/s; a comparator's edges are times (kept out: exact).
     probes_in_box = False
 
-    def __init__(self, topology: Topology, *, open_drain: bool = True) -> None:
+    def __init__(
+        self, topology: Topology, *, open_drain: bool = True, common_mode: bool = True
+    ) -> None:
         self.topology = topology
         self.open_drain = open_drain
+        self.common_mode = common_mode
+
+    def divider_limit(self, stage: StageOption) -> tuple[float, Exclusion | None]:
+        """The stage's ``k_ceiling`` (``commonmode.divider_ceiling``: above it U2's + input
+        leaves its common-mode range in every row), with the exclusion naming U2; none
+        (inf) without the common-mode condition (``common_mode`` False)."""
+        if not (self.common_mode and isinstance(stage, ComparatorStage)):
+            return math.inf, None
+        k_max, words = stage.k_ceiling
+        return k_max, Exclusion("U2", stage.comparator.id, words)
 
     def stage_options(
         self, spec: Spec, catalog: Catalog, r3_values: F64
@@ -169,6 +187,11 @@ class ComparatorSchmittForm(SearchForm):
             for name in Prediction._fields:
                 getattr(out, name)[clips] = np.nan
             ok &= ~clips
+            if self.common_mode:  # the check's input common-mode ranges (``commonmode``)
+                outside = ok & ~_inside_common_mode(out, ok, (r1, r2, r3, hs, low), cols)
+                for name in Prediction._fields:
+                    getattr(out, name)[outside] = np.nan
+                ok &= ~outside
         ve = errors["vos1"] + cols["ib1"] * r3
         return RowModel(out, ve, ok, cols["slew1"], cols["slew1"])
 
@@ -218,6 +241,26 @@ def _stages(stages: Sequence[StageOption], picked: I64) -> list[ComparatorStage]
     return out
 
 
+def _inside_common_mode(
+    pred: Prediction, ok: NDArray[np.bool_], row: tuple[F64, F64, F64, F64, F64],
+    cols: dict[str, F64],
+) -> NDArray[np.bool_]:  # fmt: skip
+    """``commonmode.inside_common_mode`` of the rows where ``ok`` (False elsewhere); ``row``
+    holds each row's R1, R2, R3, Hs and L."""
+    inside = np.zeros(len(ok), dtype=bool)
+    r1, r2, r3, hs, low = (x[ok] for x in row)
+    inside[ok] = inside_common_mode(
+        Prediction(*(np.asarray(getattr(pred, f))[ok] for f in Prediction._fields)),
+        r1, r2, r3, cols["r5"][ok], hs, low, {name: x[ok] for name, x in cols.items()},
+    )  # fmt: skip
+    return inside
+
+
+def _cm(value: float | None) -> float:
+    """A common-mode limit as a column value: NaN for a blank (the input reaches its rail)."""
+    return math.nan if value is None else value
+
+
 def _columns(stages: Sequence[StageOption], u: I64, rails: Rails | None) -> dict[str, F64]:
     """Each row's stage constants (SI units), and its Hs and L on ``rails`` if given."""
     distinct, where = np.unique(np.asarray(u, dtype=np.int64), return_inverse=True)
@@ -237,6 +280,10 @@ def _columns(stages: Sequence[StageOption], u: I64, rails: Rails | None) -> dict
         "fall": [s.comparator.fall_s for s in rows],
         "vol": [s.comparator.vol_v for s in rows],
         "headroom": [s.comparator.voh_headroom_v or 0.0 for s in rows],
+        "cm_neg2": [_cm(s.comparator.input_cm_neg_v) for s in rows],
+        "cm_head2": [_cm(s.comparator.input_cm_pos_headroom_v) for s in rows],
+        "cm_neg1": [_cm(s.opamp.input_cm_neg_v) for s in rows],
+        "cm_head1": [_cm(s.opamp.input_cm_pos_headroom_v) for s in rows],
     }
     if rails is not None:
         levels = [sources(s.comparator, rails) for s in rows]

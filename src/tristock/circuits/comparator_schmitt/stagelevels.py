@@ -215,6 +215,21 @@ def probe_error_voltage(u1: OpAmp, box: LoadBox) -> float:
     return max(u1.bias_a * probed.r3_lo, u1.bias_a * probed.r3_hi)
 
 
+def threshold_level_floor(
+    u1: OpAmp, u2: Comparator, pull_up_ohm: float, box: LoadBox, rails: Rails
+) -> float:
+    """H_lo,min: a lower end of the high level at the bottom threshold over every row of the
+    stage (V from the reference): Hs for push-pull (``pull_up_ohm`` 0); open drain
+    ``stiff_threshold_level`` under the stiffness rule (Ib2 ≥ 0), else
+    ``lowest_threshold_level``."""
+    hs, _ = sources(u2, rails)
+    if not pull_up_ohm > 0.0:
+        return hs
+    if math.isfinite(box.max_load) and u2.bias_a >= 0.0:
+        return stiff_threshold_level(hs, box.max_load, u1, u2)
+    return lowest_threshold_level(hs, 1.0 / pull_up_ohm, box, u1, u2)
+
+
 def open_drain_levels(
     u1: OpAmp, u2: Comparator, pull_up_ohm: float, box: LoadBox, rails: Rails,
     ve_hi: float, delay_margin: float = 1.0,
@@ -223,11 +238,7 @@ def open_drain_levels(
     ``ve_hi`` the Ve upper end the bounds take (a stalled stage's vh_lo sits just above
     it), ``delay_margin`` how much longer the fall delay may be than at nominal."""
     hs, low = sources(u2, rails)
-    g5 = 1.0 / pull_up_ohm
-    if math.isfinite(box.max_load) and u2.bias_a >= 0.0:
-        h_min = stiff_threshold_level(hs, box.max_load, u1, u2)
-    else:
-        h_min = lowest_threshold_level(hs, g5, box, u1, u2)
+    h_min = threshold_level_floor(u1, u2, pull_up_ohm, box, rails)
     box_lo, box_hi = error_voltage_range(u1, box)
     a0, b0 = h_min - box_hi, low + box_lo
     tiny = STALLED_DRIVE * abs(hs)

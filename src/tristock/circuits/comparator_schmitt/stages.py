@@ -34,6 +34,11 @@ from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
 
+from tristock.circuits.comparator_schmitt.commonmode import (
+    divider_ceiling,
+    opamp_input_reason,
+    reference_reason,
+)
 from tristock.circuits.comparator_schmitt.stagelevels import (
     LoadBox,
     load_box,
@@ -41,6 +46,7 @@ from tristock.circuits.comparator_schmitt.stagelevels import (
     sources,
     stage_levels,
     threshold_level,
+    threshold_level_floor,
 )
 from tristock.circuits.opamp_schmitt.searchform import opamp_levels
 from tristock.circuits.rails import Rails, rails_from_supply
@@ -58,12 +64,15 @@ P = TypeVar("P", bound=Part)
 @dataclass(frozen=True)
 class ComparatorStage(StageOption):
     """U1 (``opamp``), U2 (``comparator``), R5 (``pull_up``, None for push-pull) and the load
-    box its open-drain level interval is taken over."""
+    box its open-drain level interval is taken over; ``k_ceiling`` (k_max, words): no row
+    with k = R1/R2 above k_max keeps U2's + input inside its common-mode range
+    (``commonmode.divider_ceiling``; inf: no ceiling)."""
 
     opamp: OpAmp
     comparator: Comparator
     pull_up: Resistor | None
     load: LoadBox
+    k_ceiling: tuple[float, str]
 
     @property
     def pull_up_ohm(self) -> float:
@@ -94,7 +103,9 @@ def make_stage(
 ) -> ComparatorStage:  # fmt: skip
     """The stage option: one piece of each part per board (U1 one channel, U2 one channel,
     R5), its loop on ``rails``, Ve over ``ve``; ``levels`` (vh_hi, vl_hi): Hs and L."""
-    levels = stage_levels(u1, u2, r5.value_ohm if r5 else 0.0, box, rails, ve[1])
+    ohm = r5.value_ohm if r5 else 0.0
+    levels = stage_levels(u1, u2, ohm, box, rails, ve[1])
+    h_min = threshold_level_floor(u1, u2, ohm, box, rails)
     parts: dict[str, Part] = {"U1": u1, "U2": u2}
     if r5 is not None:
         parts["R5"] = r5
@@ -111,6 +122,7 @@ def make_stage(
         comparator=u2,
         pull_up=r5,
         load=box,
+        k_ceiling=divider_ceiling(u2, rails, h_min, box.r_hi),
     )
 
 
@@ -135,7 +147,8 @@ def usable_error_voltages(
 
 def comparator_reason(u2: Comparator, spec: Spec) -> str | None:
     """Why U2 cannot be used on the spec's rails at all (its supply rating over the rails'
-    tolerance, or levels not both sides of the reference), or None."""
+    tolerance, levels not both sides of the reference, or its - input, at the reference,
+    outside its common-mode range), or None."""
     supply = spec.supply
     span_lo = supply.span_v * (1 - supply.tolerance_pct / 100)
     span_hi = supply.span_v * (1 + supply.tolerance_pct / 100)
@@ -144,10 +157,11 @@ def comparator_reason(u2: Comparator, spec: Spec) -> str | None:
             f"supply span {span_lo:g}..{span_hi:g} V is outside its rating "
             f"{u2.supply_min_v:g}..{u2.supply_max_v:g} V"
         )
-    hs, low = sources(u2, rails_from_supply(supply))
+    rails = rails_from_supply(supply)
+    hs, low = sources(u2, rails)
     if not (hs > 0.0 and low > 0.0):
         return "its output cannot swing both sides of the reference on these rails"
-    return None
+    return reference_reason(u2, rails)
 
 
 def sink_reason(u2: Comparator, r5: Resistor, rails: Rails) -> str | None:
@@ -189,8 +203,10 @@ def stage_options(
     """Every usable stage on the spec's nominal rails, in catalog order (U1, then U2, then
     R5), and why each other candidate was left out: U1 as the spec allows
     (``limits.opamps``), stocked for every board, its supply rating over the rails'
-    tolerance, its output both sides of the reference; U2 stocked, its own rating, its
-    levels both sides of the reference (the spec has no limit on comparators); R5 for an
+    tolerance, its output both sides of the reference, its inputs (the reference plus its
+    offset) inside its common-mode range; U2 stocked, its own rating, its levels both sides
+    of the reference, its - input (the reference) inside its common-mode range (the spec has
+    no limit on comparators); R5 for an
     open-drain U2 stocked, not overloading U2 alone (``sink_reason``) and light enough for
     the stiffness rule with some R2, R3 (``stiffness_reason``); each combination
     with Ve inside its levels for some R3 (``usable_error_voltages``)."""
@@ -201,8 +217,9 @@ def stage_options(
     usable_u1: list[OpAmp] = []
     for u1 in u1s:
         found = opamp_levels(u1, spec)
-        if isinstance(found, str):
-            excl.append(Exclusion("U1", u1.id, found))
+        reason = found if isinstance(found, str) else opamp_input_reason(u1, rails)
+        if reason is not None:
+            excl.append(Exclusion("U1", u1.id, reason))
         else:
             usable_u1.append(u1)
     u2s, more = stocked(catalog.comparators, "U2", boards)
