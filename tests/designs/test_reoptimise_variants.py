@@ -17,21 +17,16 @@ answers in the same order.
 from __future__ import annotations
 
 import dataclasses
-import itertools
 from collections.abc import Sequence
 from functools import cache
 
 import pytest
 from test_variant_search_exact import (
-    accepted,
-    board_of,
+    accepted_boards_of,
     clamp_catalog,
-    in_bands_nearly,
-    inside_worst_case,
     score_key,
     small_catalog,
     spec_near,
-    stages,
 )
 
 from tristock.circuits import TOPOLOGIES
@@ -87,28 +82,11 @@ def accepted_boards(
     spec, catalog = case(name, guarantee, seed, open_drain)
     model = build_model(spec, catalog, TOPOLOGIES[name])
     out = []
-    for stage in stages(name, catalog):
-        combos = list(
-            itertools.product(
-                catalog.resistors, catalog.resistors, catalog.resistors, catalog.capacitors
-            )
-        )
-        near = in_bands_nearly(name, spec, stage, combos)
-        for (r1, r2, r3, c1), close in zip(combos, near, strict=True):
-            if not close:
-                continue
-            board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
-            e = accepted(spec, board)
-            if e is None:
-                continue
-            if any(catalog.get(p).stock < spec.build.boards * n for p, n in board.uses().items()):
-                continue
-            if spec.limits.guarantee == "worst_case" and not inside_worst_case(spec, board):
-                continue
-            key = score_key(model, spec, board, stage, e)
-            stage_key = "+".join(stage[d].id for d in sorted(stage))
-            ids = tuple((d, p.id) for d, p in board.parts().items())
-            out.append((int(key[0]), (*key, stage_key, r1.id, r2.id, r3.id, c1.id), ids))
+    for stage, (r1, r2, r3, c1), board, e in accepted_boards_of(name, spec, catalog):
+        key = score_key(model, spec, board, stage, e)
+        stage_key = "+".join(stage[d].id for d in sorted(stage))
+        ids = tuple((d, p.id) for d, p in board.parts().items())
+        out.append((int(key[0]), (*key, stage_key, r1.id, r2.id, r3.id, c1.id), ids))
     return out
 
 

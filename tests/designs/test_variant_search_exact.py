@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import dataclasses
 import itertools
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -152,12 +153,13 @@ def score_key(
     return (primary, secondary)
 
 
-def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...]]:
-    """(score, stock codes by designator) of the brute force's top ``spec.ranking.top``,
-    the codes in the board's BOM order."""
-    model = build_model(spec, catalog, TOPOLOGIES[name])
-    boards = spec.build.boards
-    keyed = []
+def accepted_boards_of(
+    name: str, spec: Spec, catalog: Catalog
+) -> Iterator[tuple[dict[str, Part], tuple[Part, ...], AnyBoard, Any]]:
+    """Every board of ``catalog`` the brute force accepts: (its stage, (R1, R2, R3, C1), the
+    board, ``accepted``'s figures), by the full model, the stock for ``spec.build.boards``,
+    ``limits.max_cost`` and, under a worst-case guarantee, the whole spread box."""
+    lim = spec.limits
     for stage in stages(name, catalog):
         combos = list(
             itertools.product(
@@ -165,22 +167,32 @@ def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...
             )
         )
         near = in_bands_nearly(name, spec, stage, combos)
-        for (r1, r2, r3, c1), close in zip(combos, near, strict=True):
+        for combo, close in zip(combos, near, strict=True):
             if not close:
                 continue
+            r1, r2, r3, c1 = combo
             board = board_of(name, {**stage, "R1": r1, "R2": r2, "R3": r3, "C1": c1})
             e = accepted(spec, board)
             if e is None:
                 continue
-            if any(catalog.get(pid).stock < boards * n for pid, n in board.uses().items()):
+            uses = board.uses().items()
+            if any(catalog.get(pid).stock < spec.build.boards * n for pid, n in uses):
                 continue
-            lim = spec.limits
             if lim.max_cost is not None and board.cost_per_board > lim.max_cost + 1e-12:
                 continue
             if lim.guarantee == "worst_case" and not inside_worst_case(spec, board):
                 continue
-            ids = tuple(p.id for p in board.parts().values())
-            keyed.append((score_key(model, spec, board, stage, e), ids))
+            yield stage, combo, board, e
+
+
+def reference(name: str, spec: Spec, catalog: Catalog) -> list[tuple[object, ...]]:
+    """(score, stock codes by designator) of the brute force's top ``spec.ranking.top``,
+    the codes in the board's BOM order."""
+    model = build_model(spec, catalog, TOPOLOGIES[name])
+    keyed = [
+        (score_key(model, spec, board, stage, e), tuple(p.id for p in board.parts().values()))
+        for stage, _, board, e in accepted_boards_of(name, spec, catalog)
+    ]
     keyed.sort()
     return [(key[0], ids) for key, ids in keyed[: spec.ranking.top]]
 
@@ -371,16 +383,27 @@ def test_both_engines_return_the_full_model_top_k(
     else:
         catalog = small_catalog(seed, open_drain=open_drain)
     spec = spec_near(name, catalog, guarantee, by, seed)
+    for engine, result in both_engines_equal_the_brute_force(name, spec, catalog):
+        assert all(c.topology == name for c in result.candidates), engine
+        if name == "comparator_schmitt":  # a pull-up exactly where U2 is open drain
+            assert all(("R5" in c.parts) == open_drain for c in result.candidates), engine
+
+
+def both_engines_equal_the_brute_force(
+    name: str, spec: Spec, catalog: Catalog
+) -> list[tuple[str, Any]]:
+    """Each engine's proven top equals ``reference`` (score and stock codes, in order); the
+    results, by engine, for further checks."""
     expected = reference(name, spec, catalog)
     assert expected, "the spec admits no board: the case tests nothing"
+    out = []
     for engine in ("enumerate", "cpsat"):
         result = design(spec, catalog, engine=engine, time_limit_s=60.0, samples=200)
         assert result.search.proven_optimal, engine
         got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
         assert got == expected, engine
-        assert all(c.topology == name for c in result.candidates)
-        if name == "comparator_schmitt":  # a pull-up exactly where U2 is open drain
-            assert all(("R5" in c.parts) == open_drain for c in result.candidates)
+        out.append((engine, result))
+    return out
 
 
 def test_any_circuit_is_the_merge_of_each_circuits_answers() -> None:
@@ -468,11 +491,5 @@ def test_the_common_mode_limit_binds_and_both_engines_agree(seed: int) -> None:
     catalog = dataclasses.replace(catalog, comparators=catalog.comparators[:2])  # push-pull
     spec, ruled_out = common_mode_spec(catalog)
     assert ruled_out > 0
-    expected = reference("comparator_schmitt", spec, catalog)
-    assert expected, "the spec admits no board: the case tests nothing"
-    for engine in ("enumerate", "cpsat"):
-        result = design(spec, catalog, engine=engine, time_limit_s=60.0, samples=200)
-        assert result.search.proven_optimal, engine
-        got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
-        assert got == expected, engine
+    for engine, result in both_engines_equal_the_brute_force("comparator_schmitt", spec, catalog):
         assert result.search.dropped_by_full_model == 0, engine  # none proposed, none dropped
