@@ -71,10 +71,13 @@ DEFAULT_TOPOLOGY: Topology = OPAMP_SCHMITT
 
 def spec_topologies(spec: Spec) -> list[Topology]:
     """The topologies the spec's ``[circuit]`` asks for: the one it names, or with
-    ``topology = "any"`` every searchable one (``Topology.search_form`` not None)."""
+    ``topology = "any"`` every searchable one (``Topology.search_form`` not None) but the
+    set-duty loop (``Topology.sets_duty``: an "any" spec cannot set a duty)."""
     name = spec.circuit.topology_name
     if name == "any":
-        return [t for t in TOPOLOGIES.values() if t.search_form() is not None]
+        return [
+            t for t in TOPOLOGIES.values() if t.search_form() is not None and not t.sets_duty
+        ]
     return [TOPOLOGIES[name]]
 
 

@@ -133,6 +133,10 @@ class Topology(ABC):
     def time_domain(self, oscillator: Any) -> Loop:
         """The loop's parameters for ``tristock.simulate`` (events, levels, rates)."""
 
+    #: Whether the circuit sets its duty cycle (searched only for a spec that sets one, and
+    #: left out of ``topology = "any"``, whose spec cannot).
+    sets_duty: bool = False
+
     def search_form(self) -> SearchForm | None:
         """What the exact search needs of this circuit (``circuits.searchform``): its stage
         options, divider/integrator/capacitor designators, row levels and row model; None

@@ -63,6 +63,9 @@ PAD = 3
 #: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v). The
 #: read-back (``gridspline``) is quadratic only.
 SPLINE_ORDER = 2
+#: The smallest scaled edge level λ·V/SR at which the read-back's monotonicity is verified
+#: (``search.bounds`` (G1)-(G3), the set-duty search's (L1)); below it the spline rings.
+EDGE_LEVEL_MIN = 0.1
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 

@@ -82,14 +82,13 @@ def design(
 
 def searchable(spec: Spec) -> list[Topology]:
     """The circuits the spec's ``[circuit]`` asks to search; SpecError naming the field for
-    one the exact search does not cover yet (and for a duty band, which it does not search)."""
+    one the exact search does not cover yet (and for a duty band on a 50 % circuit)."""
     c = spec.circuit
-    if c.duty_tolerance_pct is not None or c.set_duty:
-        field = "duty_pct" if c.set_duty else "duty_tolerance_pct"
+    if c.duty_tolerance_pct is not None and not c.set_duty:
         raise SpecError(
             [
-                f"circuit.{field}: the set-duty circuit is modelled, checked and simulated "
-                "(tristock analyse, simulate, export) but not searched yet"
+                "circuit.duty_tolerance_pct: a duty band is searched for a set duty "
+                "(duty_pct other than 50) only; the 50 % circuits' duty is reported, not searched"
             ]
         )
     topologies = spec_topologies(spec)

@@ -48,6 +48,12 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> AnyBoard:
 
 
 def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
+    """The engine's best ``top`` rows. A form with two integrator elements (the set-duty
+    loop) has one exact lister, ``search.branches``, whichever engine is named."""
+    if len(model.form.integrator) == 2:
+        from tristock.search.branches import branch_top
+
+        return branch_top(model, top, time_limit_s)
     if engine == "cpsat":
         # Loaded on use: OR-Tools (and the pandas it pulls in) is most of a process's start-up.
         from tristock.search.cpsat import cpsat_top

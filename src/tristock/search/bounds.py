@@ -72,6 +72,7 @@ from numpy.typing import NDArray
 
 from tristock.circuits.looptiming import LoopTiming, loop_timing
 from tristock.circuits.searchform import StageLoop
+from tristock.circuits.transition import EDGE_LEVEL_MIN
 
 Array = NDArray[np.float64]
 
@@ -130,9 +131,6 @@ def _strong(loop: StageLoop) -> tuple[Array, Array, Array]:
     """The shortest period's inputs: the smallest span and the largest drives."""
     return (loop.span_lo, *loop.strong())
 
-
-#: The smallest scaled edge level λ·V/SR at which (G1)-(G3) are verified (module docstring).
-EDGE_LEVEL_MIN = 0.1
 
 
 def claimed(loop: StageLoop, k: Array) -> NDArray[np.bool_]:

@@ -33,18 +33,9 @@ from tristock.stock.catalog import Catalog
 from tristock.stock.parts import OpAmp
 
 __all__ = [
-    "BALANCED_WEIGHTS",
-    "COST_RESOLUTION",
-    "SCORE_RESOLUTION",
-    "SECONDARY_SPAN",
-    "Exclusion",
-    "OpAmpTerms",
-    "PartTable",
-    "SearchModel",
-    "build_model",
-    "in_series",
-    "quantise",
-]
+    "BALANCED_WEIGHTS", "COST_RESOLUTION", "SCORE_RESOLUTION", "SECONDARY_SPAN", "Exclusion",
+    "OpAmpTerms", "PartTable", "SearchModel", "build_model", "in_series", "quantise",
+]  # fmt: skip
 
 SCORE_RESOLUTION = 1e-6
 #: Secondary keys (tie-breakers) are packed below the primary score: primary·SECONDARY_SPAN + s.
@@ -59,6 +50,7 @@ BALANCED_WEIGHTS = {
     "cost": 0.25,  # cost per board / cost scale
     "bom_lines": 0.02,  # per distinct stock code
     "sensitivity": 0.25,  # share of the period set by op-amp timing
+    "duty_error": 0.5,  # |e_d| / half the duty band (set-duty loop only)
 }
 
 

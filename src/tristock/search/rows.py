@@ -72,8 +72,12 @@ class Rows:
     def __len__(self) -> int:
         return len(self.u)
 
+    def integrator_indices(self, n: int) -> tuple[int, ...]:
+        """Row ``n``'s integrator element(s), in the form's ``integrator`` order."""
+        return (int(self.i3[n]),)
+
     def take(self, mask: NDArray[np.bool_] | I64) -> Rows:
-        return Rows(**{name: getattr(self, name)[mask] for name in self.__dataclass_fields__})
+        return type(self)(**{n: getattr(self, n)[mask] for n in self.__dataclass_fields__})
 
     @staticmethod
     def concat(parts: list[Rows]) -> Rows:

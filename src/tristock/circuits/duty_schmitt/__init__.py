@@ -5,7 +5,8 @@ high share is about R3A/(R3A + R3B), and a ramp or sawtooth follows from unequal
 
 Its modules: ``physics`` (the vectorised model), ``oscillator`` (the built circuit: a board
 at a temperature, its point), ``timedomain`` (its equivalent loop for the simulation),
-``checks``, ``netlist`` (ngspice) and ``spread`` (the spread box on a spec). ``DUTY_SCHMITT``
+``checks``, ``netlist`` (ngspice), ``spread`` (the spread box on a spec) and
+``searchform`` (what the exact search needs). ``DUTY_SCHMITT``
 is the topology object, an ``opampvariant.OpAmpVariant`` delegating to these modules.
 """
 
@@ -17,9 +18,11 @@ from tristock.circuits.duty_schmitt.checks import check
 from tristock.circuits.duty_schmitt.netlist import netlist
 from tristock.circuits.duty_schmitt.oscillator import DutyOscillator
 from tristock.circuits.duty_schmitt.physics import predict_point
+from tristock.circuits.duty_schmitt.searchform import SEARCH_FORM
 from tristock.circuits.duty_schmitt.spread import SENSITIVITY_FIELDS, drive_imbalance, spread_box
 from tristock.circuits.duty_schmitt.timedomain import loop_from
 from tristock.circuits.opampvariant import OpAmpVariant, VariantFunctions
+from tristock.circuits.searchform import SearchForm
 from tristock.circuits.topology import PartRole
 
 SKETCH = r"""
@@ -87,6 +90,12 @@ class DutySchmitt(OpAmpVariant):
         drive_imbalance=drive_imbalance,
         netlist=netlist,
     )
+    sets_duty = True
+
+    def search_form(self) -> SearchForm:
+        """The exact search's form (``searchform.SEARCH_FORM``): stages U1 × signal diode,
+        rows with two integrator elements R3A and R3B (``search.branches``)."""
+        return SEARCH_FORM
 
 
 DUTY_SCHMITT = DutySchmitt()
