@@ -36,7 +36,7 @@ CONFIDENCE = 0.95
 @dataclass(frozen=True)
 class YieldResult:
     """Monte Carlo yield: the share of boards with f inside the spec's frequency band AND the
-    triangle amplitude inside its band.
+    triangle amplitude inside its band (AND, for a set duty, the duty inside its band).
 
     ``confidence_interval`` is the Wilson score interval at ``confidence``:
     (p + z²/2n ± z·sqrt(p(1 - p)/n + z²/4n²))/(1 + z²/n), z the normal quantile.
@@ -107,12 +107,17 @@ def deviations(
     return z.T
 
 
-def _in_bands(f: FloatArray, amp: FloatArray, spec: Spec) -> npt.NDArray[np.bool_]:
-    """Which boards have f inside the spec's frequency band and the amplitude inside its."""
+def _in_bands(vals: FloatArray, spec: Spec) -> npt.NDArray[np.bool_]:
+    """Which boards (columns of ``vals``: f, amplitude, duty) have f inside the spec's
+    frequency band, the amplitude inside its, and the duty inside a set duty's band."""
+    f, amp = vals[0], vals[1]
     ft, tf = spec.target.target_hz, spec.target.tolerance_pct / 100
     at, ta = spec.triangle.amplitude_vpp, spec.triangle.tolerance_pct / 100
     ok = (f >= ft * (1 - tf)) & (f <= ft * (1 + tf)) & (amp >= at * (1 - ta))
     ok &= amp <= at * (1 + ta)
+    duty = spec.circuit.duty_band
+    if duty is not None:
+        ok &= (vals[2] >= duty[0]) & (vals[2] <= duty[1])
     return ok
 
 
@@ -170,7 +175,7 @@ def monte_carlo(
         remembered = (vals, _percentiles(vals))
         SAMPLED.put(key, remembered)
     vals, spread = remembered
-    passed = int(np.count_nonzero(_in_bands(vals[0], vals[1], spec)))
+    passed = int(np.count_nonzero(_in_bands(vals, spec)))
     return YieldResult(
         fraction=passed / samples,
         passed=passed,
@@ -225,7 +230,7 @@ def yield_count(
                 raise
             batch = chunk
             continue
-        failing = ~_in_bands(vals[0], vals[1], spec)
+        failing = ~_in_bands(vals, spec)
         for first in range(start, stop, chunk):
             failed += int(np.count_nonzero(failing[first - start : first - start + chunk]))
             if max_failures is not None and failed > max_failures:

@@ -14,6 +14,7 @@ from tristock.analysis.worstcase import WorstCase
 from tristock.circuits.board import AnyBoard, rails_from_supply
 from tristock.circuits.checks import Warning
 from tristock.designs.results import Candidate, ErrorOut, PartOut, Predicted, WarningOut
+from tristock.search.branchrows import row_figures
 from tristock.search.rows import RowPrediction
 from tristock.spec.model import Spec
 from tristock.stock.comparators import Comparator
@@ -93,7 +94,8 @@ def parts_report(design: AnyBoard) -> dict[str, PartOut]:
 
 
 def accepts(spec: Spec, design: AnyBoard) -> bool:
-    """The search's acceptance of one fixed design at nominal values (``search.rows``): the
+    """The search's acceptance of one fixed design at nominal values (``search.rows``, or
+    ``search.branchrows`` for two integrator elements, duty included): the
     bands, the model's ground (peaks inside the integrator's swing, its slew above the
     triangle's slope, the timing share within the limit) and C1's voltage rating, through
     its topology's search form (a topology without one accepts no design)."""
@@ -108,10 +110,13 @@ def accepts(spec: Spec, design: AnyBoard) -> bool:
     values = tuple(np.array([value_of(parts[d])], dtype=np.float64) for d in names)
     u = np.zeros(1, dtype=np.int64)
     by_name = dict(zip(names, values, strict=True))
-    vh, vl = form.row_levels([stage], u, rails_from_supply(spec.supply), by_name)
-    rp = RowPrediction(form, [stage], u, values, vh, vl)
     c1 = parts[form.capacitor]
     assert isinstance(c1, Capacitor)
+    if len(form.integrator) == 2:
+        fig = row_figures(spec, form, [stage], u, by_name, np.array([c1.voltage_v]))
+        return bool(fig.accepted[0])
+    vh, vl = form.row_levels([stage], u, rails_from_supply(spec.supply), by_name)
+    rp = RowPrediction(form, [stage], u, values, vh, vl)
     return bool(rp.accepted(spec, np.array([c1.voltage_v]))[0])
 
 
@@ -132,6 +137,9 @@ def guarantee_holds(spec: Spec, wc: WorstCase | None, y: YieldResult | None) -> 
 
     if spec.limits.guarantee == "worst_case":
         assert wc is not None
+        duty = spec.circuit.duty_band
+        if duty is not None and not duty[0] <= wc.duty_high[0] <= wc.duty_high[1] <= duty[1]:
+            return False
         return inside(wc.frequency_hz[0], wc.amplitude_vpp[0]) and inside(
             wc.frequency_hz[1], wc.amplitude_vpp[1]
         )

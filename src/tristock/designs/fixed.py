@@ -41,7 +41,8 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> AnyBoard:
     """The board of row ``n`` (indices into the model's tables), as its topology builds it."""
     res, cap = model.resistors.parts, model.capacitors.parts
     form = model.form
-    chosen = (res[rows.i1[n]], res[rows.i2[n]], res[rows.i3[n]], cap[rows.j[n]])
+    integrators = (res[i] for i in rows.integrator_indices(n))
+    chosen = (res[rows.i1[n]], res[rows.i2[n]], *integrators, cap[rows.j[n]])
     names = (*form.divider, *form.integrator, form.capacitor)
     parts = {**model.stages[rows.u[n]].parts, **dict(zip(names, chosen, strict=True))}
     return board_from(model.topology, parts)
@@ -231,8 +232,9 @@ def design_fixed(
 
 
 def search_space(model: SearchModel) -> int:
-    """Combinations of eligible parts: |U1| x |R|³ x |C1|."""
-    return len(model.opamps) * len(model.resistors) ** 3 * len(model.capacitors)
+    """Combinations of eligible parts: |stages| x |R|^(2 + integrator elements) x |C1|."""
+    resistors = len(model.resistors) ** (2 + len(model.form.integrator))
+    return len(model.opamps) * resistors * len(model.capacitors)
 
 
 __all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design_fixed"]

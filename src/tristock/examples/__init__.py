@@ -1,5 +1,5 @@
-"""The bundled examples: five specs (``demo``, ``trimmed``, ``tuned``; the variant
-``comparator``, ``clamped``) and the demo stock room.
+"""The bundled examples: six specs (``demo``, ``trimmed``, ``tuned``; the variants
+``comparator``, ``clamped``, ``duty``) and the demo stock room.
 
 The demo catalog sits inside the installed package (``tristock/demo_catalog``, put there by the
 wheel build) or, in a source checkout, at ``catalogs/demo``.
@@ -11,7 +11,7 @@ from importlib import resources
 from pathlib import Path
 
 #: Names of the bundled example specs, the first the default.
-EXAMPLES = ("demo", "trimmed", "tuned", "comparator", "clamped")
+EXAMPLES = ("demo", "trimmed", "tuned", "comparator", "clamped", "duty")
 
 
 def demo_catalog_dir() -> Path:

@@ -93,17 +93,23 @@ def fixed_table(result: DesignResult, style: TableStyle) -> list[str]:
     wide = style.wide
     stage = ["U1", *(["U2"] if any("U2" in c.parts for c in result.candidates) else [])]
     header = [("#", ">"), *((d, "<") for d in stage)]
-    header += [("R1", ">"), ("R2", ">"), ("R3", ">"), ("C1", "<")]
+    resistors = [
+        d for d in ("R1", "R2", "R3", "R3A", "R3B") if any(d in c.parts for c in result.candidates)
+    ]
+    duty = result.spec.circuit.duty_band is not None
+    header += [*((d, ">") for d in resistors), ("C1", "<")]
     header += [("f", ">"), ("err", ">"), ("Vpp", ">")]
+    header += [("duty", ">")] if duty else []
     header += [("timing", ">")] if wide else []
     header += [("worst-case f", ">"), ("yield", ">"), ("cost", ">"), ("", "<")]
     rows = []
     for c in result.candidates:
         wc = c.worst_case["frequency_hz"]
         row = [str(c.rank), *(c.parts[d].id if d in c.parts else "" for d in stage)]
-        row += [ohms(c, d, wide) for d in ("R1", "R2", "R3")]
+        row += [ohms(c, d, wide) if d in c.parts else "" for d in resistors]
         row += [c.parts["C1"].display, format_value(c.predicted.frequency_hz, "Hz", 5)]
         row += [pct(c.error.frequency_pct / 100, 2, sign=True), f"{c.predicted.amplitude_vpp:.3f}"]
+        row += [pct(c.predicted.duty_high, 2)] if duty else []
         row += [pct(c.predicted.timing_share)] if wide else []
         row += [value_range(wc[0], wc[1], "Hz", 4 if wide else 3), pct(c.yield_fraction)]
         row += [f"{c.cost:.3f}", flag(c)]
@@ -188,14 +194,16 @@ def legend(result: DesignResult, style: TableStyle) -> list[str]:
         ]
     else:
         timing = ["timing: share of the period set by op-amp delay, slew and GBW"]
+        duty = result.spec.circuit.duty_band is not None
         items = [
             *resist,
             "f: full model at nominal values, rails and 25 °C",
             "err: f against the target",
             "Vpp: triangle peak to peak, V",
+            *(["duty: share of the period the square is high"] if duty else []),
             *(timing if style.wide else []),
             "worst-case f: lowest-highest over tolerances, rails and temperature",
-            f"yield: boards into both bands, {n}",
+            f"yield: boards into {'the three' if duty else 'both'} bands, {n}",
         ]
     return wrap_items("legend:", [*items, *tail], WIDTH)
 

@@ -60,7 +60,7 @@ I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]
 
 #: Rows gathered before one batch of full-model evaluations.
-OPEN_BATCH = 40_000
+OPEN_BATCH = 20_000
 #: Relative slack of the run-time guard (rounding in the model's sums).
 GUARD_SLACK = 1e-9
 
@@ -143,12 +143,14 @@ class _Walk:
         live = np.flatnonzero(least <= theta) if theta is not None else np.arange(len(u))
         self.evaluated += len(u)
         self.scored += len(live)
+        if time.perf_counter() > self.deadline:
+            self.cut = True
+        if len(live) == 0:
+            return
         sel = (x[live] for x in (u, i1, i2, i3, i4, j))
         found, figures = evaluate(self.model, *sel, coupled=self.coupled)
         _guard(self.model, figures, bounds[live])
         self.kept = best(self.model, concat([self.kept, found]), self.top)
-        if time.perf_counter() > self.deadline:
-            self.cut = True
 
 
 def _guard(model: SearchModel, figures: F64, bounds: F64) -> None:
@@ -215,6 +217,9 @@ def branch_top(
         ga, gb = a_sorted[1], b_sorted[1]
         least_parts = model.stage_terms[u] + pair_terms[pairs.index] + a_sorted[2] + b_sorted[2]
         for j in caps.tolist():
+            if time.perf_counter() > walk.deadline:
+                walk.cut = True
+                break
             theta = walk.theta
             c1 = float(cap.value[j])
             base = least_parts + int(model.capacitor_term(np.array([j]))[0]) - credit

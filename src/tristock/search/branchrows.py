@@ -20,11 +20,16 @@ probe here: the analysis's worst case decides it in the re-check, duty included.
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 from numpy.typing import NDArray
 
+from tristock.circuits.prediction import Prediction
+from tristock.circuits.rails import rails_from_supply
+from tristock.circuits.searchform import SearchForm, StageOption
 from tristock.search.model import BALANCED_WEIGHTS, SECONDARY_SPAN, SearchModel, quantise
 from tristock.search.rows import Rows
 from tristock.spec.model import Spec
@@ -108,53 +113,82 @@ def row_cost(model: SearchModel, u: I64, idx: I64, j: I64) -> F64:
     return np.asarray(model.stage_costs[u] + res.cost[idx].sum(axis=1) + cap.cost[j])
 
 
+class RowFigures(NamedTuple):
+    """The full model of rows and the search's acceptance of each (module docstring, the
+    coupled limits aside)."""
+
+    pred: Prediction
+    accepted: NDArray[np.bool_]
+    e_f: F64
+    e_a: F64
+    e_d: F64
+
+
+def row_figures(
+    spec: Spec,
+    form: SearchForm,
+    stages: Sequence[StageOption],
+    u: I64,
+    values: Mapping[str, F64],
+    cap_voltage: F64,
+) -> RowFigures:
+    """Rows of stage ``u`` with the part values ``values`` (by designator) on the spec's
+    nominal rails: the topology's prediction and the acceptance (bands, duty, the model's
+    ground, C1's rating)."""
+    rails = rails_from_supply(spec.supply)
+    vh, vl = form.row_levels(stages, u, rails, values)
+    row = form.predict_rows(stages, u, values, (vh, vl))
+    p = row.pred
+    target, d_lo, d_hi = duty_target(spec)
+    (fa, fb), (aa, ab) = spec.frequency_band_ln, spec.amplitude_band_ln
+    duty = np.asarray(p.duty_high)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        e_f = np.log(np.asarray(p.frequency_hz) / spec.target.target_hz)
+        e_a = np.log(np.asarray(p.amplitude_vpp) / spec.triangle.amplitude_vpp)
+        peak = np.fmax(np.abs(np.asarray(p.peak_high_v)), np.abs(np.asarray(p.peak_low_v)))
+        ok = row.valid & (e_f >= fa) & (e_f <= fb) & (e_a >= aa) & (e_a <= ab)
+        ok &= (duty >= d_lo) & (duty <= d_hi)
+        ok &= (np.asarray(p.peak_high_v) < vh) & (np.asarray(p.peak_low_v) > -vl)
+        ok &= np.asarray(p.slope_v_per_s) <= np.minimum(row.slew_rise, row.slew_fall)
+        ok &= np.asarray(p.timing_share) <= spec.limits.max_timing_share
+        ok &= cap_voltage >= peak * (1 + spec.triangle.tolerance_pct / 100)
+    return RowFigures(p, np.asarray(ok), e_f, e_a, duty - target)
+
+
 def evaluate(
     model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, i4: I64, j: I64, *, coupled: bool = True
 ) -> tuple[BranchRows, F64]:
     """Score rows with the full model and keep those the spec accepts (module docstring);
     also the full model's period, high time and amplitude of every row given (NaN where it
     does not oscillate), for the caller's run-time guard of its bounds."""
-    spec, res, cap, form = model.spec, model.resistors, model.capacitors, model.form
+    res, cap, form = model.resistors, model.capacitors, model.form
     values = dict(zip(
         (*form.divider, *form.integrator, form.capacitor),
         (res.value[i1], res.value[i2], res.value[i3], res.value[i4], cap.value[j]),
         strict=True,
     ))  # fmt: skip
-    vh, vl = form.row_levels(model.stages, u, model.rails, values)
-    row = form.predict_rows(model.stages, u, values, (vh, vl))
-    p = row.pred
-    target, d_lo, d_hi = duty_target(spec)
-    (fa, fb), (aa, ab) = model.band_f, model.band_a
-    period, duty = np.asarray(p.period_s), np.asarray(p.duty_high)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        e_f = np.log(np.asarray(p.frequency_hz) / spec.target.target_hz)
-        e_a = np.log(np.asarray(p.amplitude_vpp) / spec.triangle.amplitude_vpp)
-        share = np.asarray(p.timing_share)
-        peak = np.fmax(np.abs(np.asarray(p.peak_high_v)), np.abs(np.asarray(p.peak_low_v)))
-        ok = row.valid & (e_f >= fa) & (e_f <= fb) & (e_a >= aa) & (e_a <= ab)
-        ok &= (duty >= d_lo) & (duty <= d_hi)
-        ok &= (np.asarray(p.peak_high_v) < vh) & (np.asarray(p.peak_low_v) > -vl)
-        ok &= np.asarray(p.slope_v_per_s) <= np.minimum(row.slew_rise, row.slew_fall)
-        ok &= share <= spec.limits.max_timing_share
-        ok &= cap.voltage[j] >= peak * (1 + spec.triangle.tolerance_pct / 100)
+    fig = row_figures(model.spec, form, model.stages, u, values, cap.voltage[j])
+    ok = fig.accepted
     if coupled:
         ok &= coupled_ok(model, u, i1, i2, i3, i4, j)
-    e_d = duty - target
-    clean = (np.nan_to_num(e_f), np.nan_to_num(e_a), np.nan_to_num(share))
+    clean = (np.nan_to_num(fig.e_f), np.nan_to_num(fig.e_a))
+    share = np.asarray(fig.pred.timing_share)
     primary = (
         part_scores(model, u, i1, i2, i3, i4, j)
-        + model.row_term(*clean)
-        + duty_term(model, np.nan_to_num(e_d))
+        + model.row_term(*clean, np.nan_to_num(share))
+        + duty_term(model, np.nan_to_num(fig.e_d))
     )
     cost = row_cost(model, u, np.stack([i1, i2, i3, i4], axis=1), j)
     lines = model.stage_lines[u] + 1 + resistor_lines(i1, i2, i3, i4)
     rows = BranchRows(
         u=u, i1=i1, i2=i2, i3=i3, j=j,
         p=res.value[i1] / res.value[i2] * res.value[i3] * cap.value[j],
-        e_f=e_f, e_a=e_a, share=share, cost=cost, lines=lines, primary=primary,
-        secondary=model.secondary(clean[0], cost), i4=i4, e_d=e_d,
+        e_f=fig.e_f, e_a=fig.e_a, share=share, cost=cost, lines=lines, primary=primary,
+        secondary=model.secondary(clean[0], cost), i4=i4, e_d=fig.e_d,
     )  # fmt: skip
-    figures = np.stack([period, duty * period, np.asarray(p.amplitude_vpp)], axis=1)
+    period = np.asarray(fig.pred.period_s)
+    high = np.asarray(fig.pred.duty_high) * period
+    figures = np.stack([period, high, np.asarray(fig.pred.amplitude_vpp)], axis=1)
     return rows.take(np.flatnonzero(ok)), figures
 
 
