@@ -107,4 +107,4 @@ def test_a_set_duty_board_is_not_reoptimised(api: TestClient) -> None:
     body = {"spec": comparator_spec(), "parts": dict(t.demo_board), "topology": t.name}
     r = api.post("/v1/reoptimise", json=body)
     assert r.status_code == 422, r.text
-    assert "duty_schmitt has no exact search" in r.json()["detail"]
+    assert "duty_schmitt has no exact re-optimisation" in r.json()["detail"]

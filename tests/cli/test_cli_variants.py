@@ -99,11 +99,11 @@ def test_what_is_not_searched_is_refused_in_one_line(
 
 
 def test_the_set_duty_board_is_not_reoptimised(tmp_path: Path) -> None:
-    """The set-duty loop has no exact search, so no fewest-changes answer can be proven."""
+    """The set-duty loop is searched but not re-optimised: no fewest-changes answer is proven."""
     path = design_file(tmp_path, "duty_schmitt")
     done = run("reoptimise", path, "--catalog", DEMO_CATALOG)
     assert done.code == 2
-    assert "duty_schmitt has no exact search" in done.err and str(path) in done.err
+    assert "duty_schmitt has no exact re-optimisation" in done.err and str(path) in done.err
     assert len(done.err.strip().splitlines()) == 1
 
 

@@ -211,8 +211,8 @@ def test_the_set_duty_loop_is_refused_by_name() -> None:
     with pytest.raises(SpecError) as err:
         reoptimise(spec, catalog, dict(topology.demo_board))
     assert err.value.lines == [
-        "circuit: duty_schmitt has no exact search yet, so a fewest-changes answer cannot be "
-        "proven; search it again with the part withdrawn (limits or stock)"
+        "circuit: duty_schmitt has no exact re-optimisation yet, so a fewest-changes answer "
+        "cannot be proven; search it again with the part withdrawn (limits or stock)"
     ]
 
 

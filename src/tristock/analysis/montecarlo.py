@@ -118,7 +118,7 @@ def _in_bands(vals: FloatArray, spec: Spec) -> npt.NDArray[np.bool_]:
     duty = spec.circuit.duty_band
     if duty is not None:
         ok &= (vals[2] >= duty[0]) & (vals[2] <= duty[1])
-    return ok
+    return np.asarray(ok, dtype=bool)
 
 
 def _percentiles(values: FloatArray) -> dict[str, dict[str, float]]:

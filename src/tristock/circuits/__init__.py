@@ -75,9 +75,7 @@ def spec_topologies(spec: Spec) -> list[Topology]:
     set-duty loop (``Topology.sets_duty``: an "any" spec cannot set a duty)."""
     name = spec.circuit.topology_name
     if name == "any":
-        return [
-            t for t in TOPOLOGIES.values() if t.search_form() is not None and not t.sets_duty
-        ]
+        return [t for t in TOPOLOGIES.values() if t.search_form() is not None and not t.sets_duty]
     return [TOPOLOGIES[name]]
 
 

@@ -281,6 +281,21 @@ class SearchForm(ABC):
         VL) themselves."""
         return levels
 
+    # ---- forms with two integrator elements (``search.branches``) ------------------------
+    def ramp_currents(
+        self, stages: Sequence[StageOption], u: I64, r3: F64, rails: Rails
+    ) -> tuple[F64, F64]:
+        """(g_A, g_B) per row (A): the ideal ramps' currents with either integrator element
+        ``r3`` (Ω), each a function of the stage and its own element only."""
+        raise NotImplementedError(f"{type(self).__name__}: one integrator element")
+
+    def mid_swing_spread(
+        self, stages: Sequence[StageOption], u: I64, k: F64, slope_min: F64, rails: Rails
+    ) -> tuple[F64, NDArray[np.bool_]]:
+        """(Δ, claimed) per row: a bound of |m_f - m_r| (s), the edges' mid-swing times,
+        for every triangle slope of at least ``slope_min``; ``claimed`` where it is proven."""
+        raise NotImplementedError(f"{type(self).__name__}: one integrator element")
+
     @abstractmethod
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
         """The stage option (index 0) of a board already chosen, on the spec's nominal rails,

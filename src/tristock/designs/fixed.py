@@ -234,7 +234,7 @@ def design_fixed(
 def search_space(model: SearchModel) -> int:
     """Combinations of eligible parts: |stages| x |R|^(2 + integrator elements) x |C1|."""
     resistors = len(model.resistors) ** (2 + len(model.form.integrator))
-    return len(model.opamps) * resistors * len(model.capacitors)
+    return int(len(model.opamps) * resistors * len(model.capacitors))
 
 
 __all__ = ["DEFAULT_ENGINE", "DEFAULT_TIME_LIMIT_S", "design_fixed"]

@@ -92,13 +92,15 @@ class Positions:
 
 def positions_of(topology: Topology) -> Positions:
     """The positions of ``topology``; SpecError (one line, naming the circuit) when it has no
-    search form: its boards are not searched exactly yet, so no change count is proven."""
+    search form, or one with two integrator elements (the set-duty loop, searched by
+    ``search.branches``, which takes no pinned positions yet): no change count is proven."""
     form = topology.search_form()
-    if form is None:
+    if form is None or len(form.integrator) != 1:
         raise SpecError(
             [
-                f"circuit: {topology.name} has no exact search yet, so a fewest-changes answer "
-                "cannot be proven; search it again with the part withdrawn (limits or stock)"
+                f"circuit: {topology.name} has no exact re-optimisation yet, so a fewest-changes "
+                "answer cannot be proven; search it again with the part withdrawn (limits or "
+                "stock)"
             ]
         )
     table_names = (*form.divider, *form.integrator, form.capacitor)

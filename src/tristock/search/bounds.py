@@ -132,7 +132,6 @@ def _strong(loop: StageLoop) -> tuple[Array, Array, Array]:
     return (loop.span_lo, *loop.strong())
 
 
-
 def claimed(loop: StageLoop, k: Array) -> NDArray[np.bool_]:
     """Where the bounds hold: an ideal comparator (GBW = inf, a linear slew), or every edge's
     levels λ·V/SR at least EDGE_LEVEL_MIN for the smallest drive of the Ve range and the

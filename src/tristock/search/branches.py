@@ -45,7 +45,6 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.search.branchrows import (
-    BranchRows,
     best,
     concat,
     duty_target,
@@ -214,7 +213,7 @@ def branch_top(
         if found is None:
             continue
         pairs, a_sorted, b_sorted = found
-        ga, gb = a_sorted[1], b_sorted[1]
+        ga = a_sorted[1]
         least_parts = model.stage_terms[u] + pair_terms[pairs.index] + a_sorted[2] + b_sorted[2]
         for j in caps.tolist():
             if time.perf_counter() > walk.deadline:

@@ -75,7 +75,7 @@ def duty_term(model: SearchModel, e_d: F64) -> I64:
     ``duty_error``·|e_d|/(half the duty band), else 0."""
     if model.mode != "balanced":
         return np.zeros(np.shape(e_d), dtype=np.int64)
-    target, low, high = duty_target(model.spec)
+    _, low, high = duty_target(model.spec)
     return quantise(BALANCED_WEIGHTS["duty_error"] * np.abs(e_d) / (0.5 * (high - low)))
 
 
@@ -95,7 +95,9 @@ def part_scores(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, i4: I64, 
     )
 
 
-def coupled_ok(model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, i4: I64, j: I64) -> NDArray[np.bool_]:  # fmt: skip
+def coupled_ok(
+    model: SearchModel, u: I64, i1: I64, i2: I64, i3: I64, i4: I64, j: I64
+) -> NDArray[np.bool_]:
     """Stock for ``boards`` pieces per position a resistor code fills, and ``max_cost``."""
     res, boards = model.resistors, model.boards
     idx = np.stack([i1, i2, i3, i4], axis=1)

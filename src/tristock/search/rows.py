@@ -23,6 +23,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import Self
 
 import numpy as np
 from numpy.typing import NDArray
@@ -76,7 +77,7 @@ class Rows:
         """Row ``n``'s integrator element(s), in the form's ``integrator`` order."""
         return (int(self.i3[n]),)
 
-    def take(self, mask: NDArray[np.bool_] | I64) -> Rows:
+    def take(self, mask: NDArray[np.bool_] | I64) -> Self:
         return type(self)(**{n: getattr(self, n)[mask] for n in self.__dataclass_fields__})
 
     @staticmethod

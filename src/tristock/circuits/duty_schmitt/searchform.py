@@ -35,7 +35,6 @@ from tristock.circuits.opamp_schmitt.searchform import opamp_levels, stocked_opa
 from tristock.circuits.opampvariant import part_at
 from tristock.circuits.prediction import Prediction
 from tristock.circuits.rails import OpAmpModel, Rails
-from tristock.circuits.transition import EDGE_LEVEL_MIN
 from tristock.circuits.searchform import (
     F64,
     I64,
@@ -45,6 +44,7 @@ from tristock.circuits.searchform import (
     StageOption,
     fixed_levels_loop,
 )
+from tristock.circuits.transition import EDGE_LEVEL_MIN
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import OpAmp, Part
 
@@ -65,8 +65,12 @@ class DutyStage(StageOption):
 
 
 def duty_stage(
-    index: int, part: OpAmp, model: OpAmpModel, levels: tuple[float, float], diodes: tuple[Diode, Diode]
-) -> DutyStage:  # fmt: skip
+    index: int,
+    part: OpAmp,
+    model: OpAmpModel,
+    levels: tuple[float, float],
+    diodes: tuple[Diode, Diode],
+) -> DutyStage:
     """The stage option: U1's packages and D3, D4 (two pieces of one code, or one each)."""
     d3, d4 = diodes
     steering: tuple[tuple[Part, int], ...] = ((d3, 2),) if d3 == d4 else ((d3, 1), (d4, 1))
@@ -134,6 +138,7 @@ class DutySchmittForm(SearchForm):
         if not diodes:
             excl.append(Exclusion("D3", None, "no signal diode with stock for D3 and D4"))
             return [], excl
+
         def levels(_: int, part: OpAmp) -> tuple[OpAmp, OpAmpModel, float, float] | str:
             found = opamp_levels(part, spec)
             return found if isinstance(found, str) else (part, *found)
@@ -230,7 +235,7 @@ class DutySchmittForm(SearchForm):
             edge = Edge(k, slope_min, span, slew, gbw, np.asarray(point.delay, dtype=float))
             spread = np.maximum(spread, edge.mid_time() - edge.delay)
             finite, lam, _, _ = edge.scales()
-            claimed &= ~finite | (lam * 0.5 * span / slew >= EDGE_LEVEL_MIN)
+            claimed &= np.logical_not(finite) | (lam * 0.5 * span / slew >= EDGE_LEVEL_MIN)
         return spread, claimed
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:

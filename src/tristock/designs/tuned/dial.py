@@ -65,9 +65,9 @@ from numpy.typing import NDArray
 from tristock.circuits.integrator import integrator_terms, lag_overshoot_area
 from tristock.circuits.looptiming import LoopTiming, loop_timing
 from tristock.circuits.timing import timing_network
+from tristock.circuits.transition import EDGE_LEVEL_MIN
 from tristock.designs.tuned.edges import edge_rate, integrator_rate
 from tristock.designs.tuned.network import AtWiper, Board, at_wiper
-from tristock.search.bounds import EDGE_LEVEL_MIN
 from tristock.spec.model import Spec
 
 F64 = NDArray[np.float64]
