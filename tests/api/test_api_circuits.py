@@ -1,6 +1,6 @@
-"""The circuits through the HTTP API: a ``[circuit]`` spec searched, its answers naming their
-topology, a DESIGN body of any circuit analysed (``topology``) and a variant's re-optimised,
-and the refusals as 422s naming the field."""
+"""The circuits through the HTTP API: a ``[circuit]`` spec searched (a set duty too), its
+answers naming their topology, a DESIGN body of any circuit analysed (``topology``) and a
+variant's re-optimised, and the refusals as 422s naming the field."""
 
 from __future__ import annotations
 
@@ -24,6 +24,21 @@ def api() -> Iterator[TestClient]:
 def comparator_spec() -> dict[str, object]:
     text = cli.example_spec_path("comparator").read_text(encoding="utf-8")
     return tomllib.loads(text)
+
+
+def test_a_set_duty_spec_is_searched_and_its_design_file_analysed(api: TestClient) -> None:
+    text = cli.example_spec_path("duty").read_text(encoding="utf-8")
+    found = api.post("/v1/design", json={"spec": tomllib.loads(text), "time_limit_s": 60})
+    assert found.status_code == 200, found.text
+    result = found.json()
+    assert result["search"]["proven_optimal"]
+    first = result["candidates"][0]
+    assert first["topology"] == "duty_schmitt" and {"R3A", "R3B"} <= set(first["parts"])
+    assert 0.18 <= first["predicted"]["duty_high"] <= 0.22
+    analysed = api.post("/v1/analyse", json={**first["design_file"], "samples": 500})
+    assert analysed.status_code == 200, analysed.text
+    got = analysed.json()["predicted"]["duty_high"]
+    assert got == pytest.approx(first["predicted"]["duty_high"], rel=1e-12)
 
 
 def test_a_comparator_spec_is_searched_and_its_answers_analysed(api: TestClient) -> None:
@@ -59,7 +74,6 @@ def test_a_clamped_board_is_analysed_by_its_topology(api: TestClient) -> None:
     [
         ({"topology": "ring_oscillator"}, "topology"),
         ({"spec_circuit": {"duty_tolerance_pct": 2}}, "circuit.duty_tolerance_pct"),
-        ({"spec_circuit": {"duty_pct": 30}}, "circuit.duty_pct"),
     ],
 )
 def test_what_cannot_be_done_is_a_422_naming_the_field(

@@ -79,23 +79,31 @@ def test_a_variant_answer_saved_is_read_back(tmp_path: Path) -> None:
     assert "U2" in analysed.out
 
 
-@pytest.mark.parametrize(
-    ("circuit", "field"),
-    [
-        ("duty_pct = 30", "circuit.duty_pct"),
-        ("duty_tolerance_pct = 3", "circuit.duty_tolerance_pct"),
-    ],
-)
-def test_what_is_not_searched_is_refused_in_one_line(
-    tmp_path: Path, circuit: str, field: str
-) -> None:
+def test_a_duty_band_at_50_percent_is_refused_in_one_line(tmp_path: Path) -> None:
     spec = tmp_path / "spec.toml"
     body = SPEC.replace("[spec.", "[").format(vp=12.0, vn=-12.0)
-    spec.write_text(f"[circuit]\n{circuit}\n{body}")
+    spec.write_text(f"[circuit]\nduty_tolerance_pct = 3\n{body}")
     done = run("design", spec, "--catalog", DEMO_CATALOG)
     assert done.code == 2
-    assert field in done.err and "not searched" in done.err
+    assert "circuit.duty_tolerance_pct" in done.err and "not searched" in done.err
     assert len(done.err.strip().splitlines()) == 1
+
+
+def test_the_duty_example_is_searched_and_proven() -> None:
+    """``--example duty``: R3A, R3B and the duty in the table, every answer inside the duty
+    band (the example's 20 ± 2 %), proven."""
+    done = run("design", "--example", "duty", "--json")
+    assert done.code == 0, done.err
+    result = json.loads(done.out)
+    assert result["search"]["proven_optimal"]
+    assert result["candidates"]
+    for c in result["candidates"]:
+        assert c["topology"] == "duty_schmitt"
+        assert {"R3A", "R3B", "D3", "D4"} <= set(c["parts"])
+        assert 0.18 <= c["predicted"]["duty_high"] <= 0.22
+    table = run("design", "--example", "duty", "--quiet")
+    assert table.code == 0, table.err
+    assert "R3A" in table.out and "duty" in table.out
 
 
 def test_the_set_duty_board_is_not_reoptimised(tmp_path: Path) -> None:

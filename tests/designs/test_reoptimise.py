@@ -34,7 +34,7 @@ from tristock.analysis.bundle import analyse
 from tristock.circuits.board import DESIGNATORS, Design, rails_from_supply, resolve
 from tristock.cli import main
 from tristock.designs import design
-from tristock.designs.candidate import passes
+from tristock.designs.candidate import passes, warnings_for
 from tristock.designs.reoptimise import reoptimise
 from tristock.designs.results import ReoptimiseResult, Shortfall
 from tristock.designs.shortfall import shortfall
@@ -173,7 +173,11 @@ def ids_of(parts: dict[str, Any]) -> Ids:
 
 
 def full_check(spec: Spec, d: Design) -> bool:
-    """The full model's verdict, with the same samples and seed reoptimise uses."""
+    """The full model's verdict, with the same samples and seed reoptimise uses, and no
+    check of error severity (a board that fails one is not offered: README,
+    "Re-optimisation": "no check of error severity, then the guarantee")."""
+    if any(w.severity == "error" for w in warnings_for(d, spec)):
+        return False
     return passes(spec, d, analyse(d, spec, samples=SAMPLES))
 
 

@@ -59,13 +59,10 @@ LN_LEVEL = np.arange(math.log(1e-4), math.log(200.0) + 1e-9, 0.1)
 SATURATED = 7.0
 #: Grid lines of linear continuation around the table for the spline.
 PAD = 3
-#: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic here and as
-#: accurate where it matters (0.007 against 0.002 in G; rounder at the kink of v). The
-#: read-back (``gridspline``) is quadratic only.
+#: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic and as accurate
+#: where it matters (0.007 against 0.002 in G; rounder at v's kink; ``gridspline``: quadratic).
 SPLINE_ORDER = 2
-#: The smallest scaled edge level λ·V/SR at which the read-back's monotonicity is verified
-#: (``search.bounds`` (G1)-(G3), the set-duty search's (L1)); below it the spline rings.
-EDGE_LEVEL_MIN = 0.1
+EDGE_LEVEL_MIN = 0.1  # scaled level λ·V/SR from which (G1)-(G3) and (L1) are verified
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 
