@@ -172,6 +172,28 @@ def test_demo_rank_1_is_the_apis_rank_1(page: tuple[Any, Watch], base: str) -> N
     assert costs == sorted(costs)
 
 
+def test_the_duty_example_shows_both_integrator_resistors_and_the_duty(
+    page: tuple[Any, Watch], base: str
+) -> None:
+    """The set-duty example through the page: rank 1 is the API's, its R3 cell names R3A and
+    R3B, its duty cell is inside the example's 20 ± 2 % band."""
+    pg, _ = page
+    pg.goto(base + "/")
+    pg.get_by_role("button", name="duty", exact=True).click()
+    pg.get_by_role("button", name="Find designs", exact=True).click()
+    pg.wait_for_selector("#answers tbody tr[data-rank='1']")
+    row = "#answers tbody tr[data-rank='1']"
+    spec = tomllib.loads(example_spec_path("duty").read_text(encoding="utf-8"))
+    first = httpx.post(f"{base}/v1/design", json={"spec": spec}, timeout=60).json()
+    first = first["candidates"][0]
+    shown = pg.get_attribute(row, "data-parts")
+    assert shown == " ".join(f"{d}={p['id']}" for d, p in first["parts"].items())
+    r3 = pg.text_content(f"{row} td[data-col='R3']") or ""
+    assert r3 == f"{first['parts']['R3A']['display']} / {first['parts']['R3B']['display']}"
+    duty = float(pg.text_content(f"{row} td[data-col='duty']") or "nan")
+    assert 18.0 <= duty <= 22.0
+
+
 def test_rank_1_figures_and_bom(page: tuple[Any, Watch], base: str) -> None:
     pg, _ = page
     run_demo(pg, base)
