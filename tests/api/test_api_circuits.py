@@ -116,9 +116,19 @@ def test_a_clamped_board_is_reoptimised_without_its_zener(api: TestClient) -> No
         assert c["parts"]["D1"]["id"] == c["parts"]["D2"]["id"] != zener
 
 
-def test_a_set_duty_board_is_not_reoptimised(api: TestClient) -> None:
-    t = TOPOLOGIES["duty_schmitt"]
-    body = {"spec": comparator_spec(), "parts": dict(t.demo_board), "topology": t.name}
+def test_a_set_duty_board_is_reoptimised_without_r3b(api: TestClient) -> None:
+    """The set-duty example's rank 1 with its R3B withdrawn: every answer changes R3B and
+    keeps the circuit, proven (brute force: tests/designs/test_duty_search_exact.py)."""
+    spec = tomllib.loads(cli.example_spec_path("duty").read_text(encoding="utf-8"))
+    found = api.post("/v1/design", json={"spec": spec, "time_limit_s": 60}).json()
+    parts = {d: p["id"] for d, p in found["candidates"][0]["parts"].items()}
+    body = {"spec": spec, "parts": parts, "topology": "duty_schmitt",
+            "without": [parts["R3B"]], "time_limit_s": 60, "top": 2}  # fmt: skip
     r = api.post("/v1/reoptimise", json=body)
-    assert r.status_code == 422, r.text
-    assert "duty_schmitt has no exact re-optimisation" in r.json()["detail"]
+    assert r.status_code == 200, r.text
+    result = r.json()
+    assert result["search"]["proven_optimal"]
+    assert result["candidates"], result["infeasible"]
+    for c in result["candidates"]:
+        assert c["topology"] == "duty_schmitt" and "R3B" in c["changed"]
+        assert c["parts"]["R3B"]["id"] != parts["R3B"]

@@ -1,6 +1,6 @@
 """The variants through the CLI: DESIGN files of every circuit (``topology`` key) analysed,
 simulated and exported, the bundled comparator example searched, read back and re-optimised,
-and the plain refusals (circuits not searched yet, so not re-optimised either) as one line with
+and the plain refusals (what is not searched) as one line with
 exit 2."""
 
 from __future__ import annotations
@@ -106,13 +106,20 @@ def test_the_duty_example_is_searched_and_proven() -> None:
     assert "R3A" in table.out and "duty" in table.out
 
 
-def test_the_set_duty_board_is_not_reoptimised(tmp_path: Path) -> None:
-    """The set-duty loop is searched but not re-optimised: no fewest-changes answer is proven."""
+def test_a_set_duty_board_is_reoptimised_without_its_diode(tmp_path: Path) -> None:
+    """The set-duty demo board with its steering diode withdrawn: D3 and D4 change together
+    (one code, the form's stage options), proven (brute force:
+    tests/designs/test_duty_search_exact.py)."""
     path = design_file(tmp_path, "duty_schmitt")
-    done = run("reoptimise", path, "--catalog", DEMO_CATALOG)
-    assert done.code == 2
-    assert "duty_schmitt has no exact re-optimisation" in done.err and str(path) in done.err
-    assert len(done.err.strip().splitlines()) == 1
+    gone = TOPOLOGIES["duty_schmitt"].demo_board["D3"]
+    done = run("reoptimise", path, "--catalog", DEMO_CATALOG, "--without", gone, "--json")
+    assert done.code == 0, done.err
+    result = json.loads(done.out)
+    assert result["search"]["proven_optimal"]
+    assert result["candidates"], result["infeasible"]
+    for c in result["candidates"]:
+        assert c["topology"] == "duty_schmitt" and {"D3", "D4"} <= set(c["changed"])
+        assert c["parts"]["D3"]["id"] == c["parts"]["D4"]["id"] != gone
 
 
 def test_a_saved_comparator_answer_is_reoptimised_without_its_r3(tmp_path: Path) -> None:

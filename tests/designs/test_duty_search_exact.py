@@ -28,6 +28,7 @@ from tristock.circuits.diode import thermal_voltage
 from tristock.circuits.duty_schmitt.physics import DutyPoint, predict_point
 from tristock.circuits.rails import OpAmpModel
 from tristock.designs import design
+from tristock.designs.reoptimise import reoptimise
 from tristock.search.model import BALANCED_WEIGHTS, COST_RESOLUTION, build_model, quantise
 from tristock.spec.loading import parse_spec
 from tristock.spec.model import Spec
@@ -106,8 +107,8 @@ def predictions(spec: Spec, boards: list[tuple[OpAmp, Diode, tuple[Resistor, ...
     return p, vh, vl, np.minimum(m("slew_rise_v_per_s"), m("slew_fall_v_per_s"))
 
 
-def reference(spec: Spec, catalog: Catalog) -> list[tuple[int, tuple[str, ...]]]:
-    """(score, stock codes in BOM order) of the brute force's top ``spec.ranking.top``."""
+def accepted_boards(spec: Spec, catalog: Catalog) -> list[tuple[tuple[int, int], AnyBoard]]:
+    """Every board the README's rules accept, with its (primary, secondary) score."""
     boards = all_boards(catalog)
     p, vh, vl, slew = predictions(spec, boards)
     tf, ta = spec.target.tolerance_pct / 100, spec.triangle.tolerance_pct / 100
@@ -125,7 +126,7 @@ def reference(spec: Spec, catalog: Catalog) -> list[tuple[int, tuple[str, ...]]]
     model = build_model(spec, catalog, DUTY)
     rails = rails_from_supply(spec.supply)
     lim = spec.limits
-    keyed = []
+    found = []
     for n in np.flatnonzero(ok):
         u1, d, (r1, r2, ra, rb), c1 = boards[n]
         board = board_from(DUTY, {"U1": u1, "R1": r1, "R2": r2, "R3A": ra, "R3B": rb,
@@ -139,9 +140,29 @@ def reference(spec: Spec, catalog: Catalog) -> list[tuple[int, tuple[str, ...]]]
         if lim.guarantee == "worst_case" and not inside_worst_case(spec, board):
             continue
         key = score_key(model, spec, board, (e_f[n], e_a[n], p.timing_share[n], p.duty_high[n]))
-        keyed.append((key, tuple(x.id for x in board.parts().values())))
-    keyed.sort()
-    return [(key[0], ids) for key, ids in keyed[: spec.ranking.top]]
+        found.append((key, board))
+    return found
+
+
+def reference(spec: Spec, catalog: Catalog) -> list[tuple[int, tuple[str, ...]]]:
+    """(score, stock codes in BOM order) of the brute force's top ``spec.ranking.top``, ties
+    by stock codes as the search's rank key (the stage's codes by designator, then R1, R2,
+    R3A, R3B, C1)."""
+    keyed = [(key, codes(board), board) for key, board in accepted_boards(spec, catalog)]
+    keyed.sort(key=lambda item: (item[0], item[1]))
+    return [(key[0], ids_of(board)) for key, _, board in keyed[: spec.ranking.top]]
+
+
+def codes(board: AnyBoard) -> tuple[str, ...]:
+    """The search's tie order of stock codes: the stage's (D3, D4, U1 joined), then R1, R2,
+    R3A, R3B, C1."""
+    parts = board.parts()
+    stage = "+".join(parts[d].id for d in ("D3", "D4", "U1"))
+    return (stage, *(parts[d].id for d in ("R1", "R2", "R3A", "R3B", "C1")))
+
+
+def ids_of(board: AnyBoard) -> tuple[str, ...]:
+    return tuple(p.id for p in board.parts().values())
 
 
 def inside_worst_case(spec: Spec, board: AnyBoard) -> bool:
@@ -192,7 +213,7 @@ def score_key(model, spec: Spec, board: AnyBoard, e: tuple[float, ...]) -> tuple
     return primary, secondary
 
 
-def spec_near(catalog: Catalog, guarantee: str, by: str, pick: int) -> Spec:
+def spec_near(catalog: Catalog, guarantee: str, by: str, pick: int, wide: bool = False) -> Spec:
     """A spec whose target is one board's nominal prediction (a board with a duty of 15-40 %
     and a small timing share, the ``pick``-th of them), so that several boards meet it."""
     probe = parse_spec(spec_data(1e3, 4.0, 25.0, guarantee, by))
@@ -207,13 +228,17 @@ def spec_near(catalog: Catalog, guarantee: str, by: str, pick: int) -> Spec:
     return parse_spec(
         spec_data(
             float(p.frequency_hz[at]), float(p.amplitude_vpp[at]),
-            round(100 * float(p.duty_high[at]), 1), guarantee, by,
+            round(100 * float(p.duty_high[at]), 1), guarantee, by, wide,
         )
     )  # fmt: skip
 
 
-def spec_data(f: float, a: float, duty: float, guarantee: str, by: str) -> dict[str, object]:
-    wide = guarantee != "nominal"
+def spec_data(
+    f: float, a: float, duty: float, guarantee: str, by: str, wide: bool = False
+) -> dict[str, object]:
+    """Bands of ±4 % (f), ±5 % (A) and ±3 points (duty); ±15 %, ±15 % and ±6 points under a
+    guarantee other than nominal, or ``wide``."""
+    wide = wide or guarantee != "nominal"
     return {
         "circuit": {"duty_pct": duty, "duty_tolerance_pct": 6.0 if wide else 3.0},
         "supply": {"positive_v": 12.0, "negative_v": -12.0, "tolerance_pct": 5.0},
@@ -247,3 +272,38 @@ def test_the_duty_search_returns_the_full_model_top_k(guarantee: str, by: str, s
         got = [(c.score, tuple(p.id for p in c.parts.values())) for c in result.candidates]
         assert got == expected, engine
         assert all(c.topology == "duty_schmitt" for c in result.candidates)
+
+
+POSITIONS = ("U1", "R1", "R2", "R3A", "R3B", "C1", "D3", "D4")
+
+
+@pytest.mark.parametrize(("seed", "withdrawn"), [(1, "R3B"), (2, "D3"), (4, "R1")])
+def test_reoptimise_finds_the_fewest_changes(seed: int, withdrawn: str) -> None:
+    """A board of the brute force's top with one part withdrawn: ``reoptimise`` gives the
+    brute force's fewest changed positions and its best answers in order (ties: fewer stage
+    positions changed, C1 kept, then the codes), proven."""
+    catalog = duty_catalog(seed)
+    spec = spec_near(catalog, "nominal", "balanced", seed, wide=True)
+    boards = accepted_boards(spec, catalog)
+    assert boards, "the spec admits no board: the case tests nothing"
+    current_board = min(boards, key=lambda kb: (kb[0], codes(kb[1])))[1]
+    current = {d: p.id for d, p in current_board.parts().items()}
+    gone = current[withdrawn]
+    left = []
+    for key, board in boards:
+        parts = board.parts()
+        if gone in {p.id for p in parts.values()}:
+            continue
+        changed = [d for d in POSITIONS if parts[d].id != current[d]]
+        stage_changes = sum(d in changed for d in ("U1", "D3", "D4"))
+        order = (key[0], key[1], stage_changes, "C1" in changed, *codes(board))
+        left.append((len(changed), order, changed, ids_of(board)))
+    result = reoptimise(spec, catalog, current, without=[gone], time_limit_s=60.0, samples=200)
+    assert result.search.proven_optimal
+    if not left:
+        assert result.candidates == [] and result.infeasible is not None
+        return
+    fewest = min(n for n, *_ in left)
+    expected = sorted(item[1:] for item in left if item[0] == fewest)[: spec.ranking.top]
+    got = [(c.changed, tuple(p.id for p in c.parts.values())) for c in result.candidates]
+    assert got == [(changed, ids) for _, changed, ids in expected]

@@ -1,6 +1,6 @@
 """Re-optimisation of the variants' boards (``designs.reoptimise`` through
 ``designs.positions``): the comparator IC (push-pull, and open drain with its pull-up R5) and
-the zener clamp, against brute force; the set-duty loop refused by name.
+the zener clamp, against brute force (the set-duty loop's: tests/designs/test_duty_search_exact.py).
 
 Reference: the brute force of ``test_variant_search_exact`` (every board of a small catalog,
 each stage × R1, R2, R3 × C1, built as its topology's board, predicted by the topology's own
@@ -195,25 +195,6 @@ def test_a_withdrawn_zener_changes_both_clamp_diodes() -> None:
         assert c.parts["D1"].id == c.parts["D2"].id != current["D1"]
         why = {ch.designator: ch.why for ch in c.changes}
         assert "marked unavailable" in why["D1"] and "marked unavailable" in why["D2"]
-
-
-def test_the_set_duty_loop_is_refused_by_name() -> None:
-    topology = TOPOLOGIES["duty_schmitt"]
-    spec = parse_spec(
-        {
-            "circuit": {"duty_pct": 30.0},
-            "supply": {"positive_v": 12.0, "negative_v": -12.0},
-            "frequency": {"target_hz": 1000.0, "tolerance_pct": 5.0},
-            "triangle": {"amplitude_vpp": 2.0, "tolerance_pct": 10.0},
-        }
-    )
-    _, catalog = case("comparator_schmitt", "nominal", 1, False)
-    with pytest.raises(SpecError) as err:
-        reoptimise(spec, catalog, dict(topology.demo_board))
-    assert err.value.lines == [
-        "circuit: duty_schmitt has no exact re-optimisation yet, so a fewest-changes answer "
-        "cannot be proven; search it again with the part withdrawn (limits or stock)"
-    ]
 
 
 def test_a_board_with_another_circuits_designators_is_refused() -> None:

@@ -30,15 +30,13 @@ from tristock.spec.loading import SpecError
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
-#: The search engines' mask keys of the divider, integrator and capacitor positions.
-ENGINE_KEYS = ("R1", "R2", "R3", "C1")
-
 
 @dataclass(frozen=True)
 class Positions:
     """The positions of ``topology`` (its search form ``form``): ``names`` in BOM order,
     ``stage`` those a stage option fills, ``table`` each other one with the engines' mask
-    key (the divider's R1, R2, the integrator's R3, the capacitor's C1)."""
+    key (its designator: the divider's R1, R2, the integrator's R3, or R3A and R3B, the
+    capacitor's C1)."""
 
     topology: Topology
     form: SearchForm
@@ -92,10 +90,9 @@ class Positions:
 
 def positions_of(topology: Topology) -> Positions:
     """The positions of ``topology``; SpecError (one line, naming the circuit) when it has no
-    search form, or one with two integrator elements (the set-duty loop, searched by
-    ``search.branches``, which takes no pinned positions yet): no change count is proven."""
+    search form: no change count is proven."""
     form = topology.search_form()
-    if form is None or len(form.integrator) != 1:
+    if form is None:
         raise SpecError(
             [
                 f"circuit: {topology.name} has no exact re-optimisation yet, so a fewest-changes "
@@ -104,7 +101,7 @@ def positions_of(topology: Topology) -> Positions:
             ]
         )
     table_names = (*form.divider, *form.integrator, form.capacitor)
-    table = dict(zip(table_names, ENGINE_KEYS, strict=True))
+    table = {d: d for d in table_names}
     names = tuple(d for d in topology.designators if d in table or d in form.stage_designators)
     stage = tuple(d for d in names if d in form.stage_designators)
     return Positions(topology, form, names, stage, table)
@@ -164,7 +161,6 @@ def resolve_current(topology: Topology, current: Mapping[str, str], catalog: Cat
 
 
 __all__ = [
-    "ENGINE_KEYS",
     "Positions",
     "board_topology",
     "check_designators",

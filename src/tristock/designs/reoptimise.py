@@ -2,14 +2,15 @@
 
 Parts named as unavailable, parts whose stock no longer covers boards x uses, and parts the
 spec's limits now exclude cannot stay. The positions are the designators the circuit's search
-form fills (``designs.positions``: U1, R1, R2, R3, C1, and the variants' stage parts U2, R5,
-D1, D2). For n = 0, 1, ... changed positions, every set S of n positions is searched exactly
-with the positions outside S pinned to their current part and the positions in S forced to a
-different part (or to a part where there was none, or to none). The first n with an answer
+form fills (``designs.positions``: U1, R1, R2, R3, C1, and the variants' own: U2, R5, D1,
+D2; R3A, R3B, D3, D4 of the set duty). For n = 0, 1, ... changed positions, every set S of n
+positions is searched exactly with the positions outside S pinned to their current part and
+the positions in S forced to a different part (or to a part where there was none, or to
+none). The first n with an answer
 that passes the full model is the minimum (a proof: every smaller n was searched completely
 and had none). Among the answers with n changes the order is the spec's ranking; exact ties
 keep the stage (a design that changes fewer of U1 and the stage's parts ranks first), then the
-capacitor, then stock codes. A circuit without a search form (the set-duty loop) is refused.
+capacitor, then stock codes. A circuit without a search form is refused.
 """
 
 from __future__ import annotations
@@ -31,7 +32,7 @@ from tristock.designs.changes import (
     with_build,
     without_parts,
 )
-from tristock.designs.fixed import design_of, search_space
+from tristock.designs.fixed import design_of, run_engine, search_space
 from tristock.designs.positions import (
     Positions,
     positions_of,
@@ -47,7 +48,8 @@ from tristock.designs.results import (
     SearchInfo,
 )
 from tristock.designs.shortfall import shortfall
-from tristock.search.enumeration import enumerate_top
+from tristock.search.branchrows import BranchRows
+from tristock.search.branchrows import rank_key as branch_rank_key
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
 from tristock.search.rows import Rows, rank_key
@@ -149,7 +151,7 @@ def reoptimise(
                     continue
                 model.allowed = masks
                 remaining = max(time_limit_s - (time.perf_counter() - t0), 0.0)
-                found = enumerate_top(model, want, remaining)
+                found = run_engine(model, "enumerate", want, remaining)
                 proven &= found.proven_optimal
                 evaluated += found.evaluated
                 capped |= len(found.rows) >= want
@@ -265,7 +267,10 @@ def _finish(
     for changed, rows in batches:
         stage_changes = sum(d in changed for d in positions.stage)
         for n in range(len(rows)):
-            key = rank_key(model, rows, n)
+            if isinstance(rows, BranchRows):
+                key = branch_rank_key(model, rows, n)
+            else:
+                key = rank_key(model, rows, n)
             tie = (stage_changes, capacitor in changed)
             ranked.append(((key[0], key[1], *tie, *key[2:]), changed, rows, n))
     ranked.sort(key=lambda item: item[0])

@@ -51,6 +51,7 @@ from tristock.search.branchrows import (
     empty_branch_rows,
     evaluate,
     part_scores,
+    row_cost,
 )
 from tristock.search.enumeration import EngineResult
 from tristock.search.model import SearchModel
@@ -205,10 +206,13 @@ def branch_top(
     caps = np.flatnonzero(model.allows("C1", len(cap.value)))
     caps = caps[np.argsort(model.capacitor_term(caps), kind="stable")]
     credit = 3 * model.shared_line_credit()
+    stages_allowed = model.allows("U1", len(model.opamps))
     for o in model.opamps:
         if walk.cut:
             break
         u = o.index
+        if not stages_allowed[u]:
+            continue
         found = _stage_rows(model, lim, u, i1, i2, k)
         if found is None:
             continue
@@ -334,6 +338,11 @@ def _open(
     i1, i2 = _pair_codes(walk, pairs.index[sel[n]])
     i3, i4 = a_idx[pa[n]], b_idx[pb[n]]
     jj = np.full(len(n), j, dtype=np.int64)
+    max_cost = model.spec.limits.max_cost
+    if walk.coupled and max_cost is not None:  # the acceptance's cost cap, before scoring
+        cost = row_cost(model, rows, np.stack([i1, i2, i3, i4], axis=1), jj)
+        within = np.flatnonzero(cost <= max_cost + 1e-12)
+        rows, i1, i2, i3, i4, jj, n = (x[within] for x in (rows, i1, i2, i3, i4, jj, n))
     least = part_scores(model, rows, i1, i2, i3, i4, jj)
     least += _least(model, lim, ideal[n], big_h[n], shortest[n])
     f_lo = np.full(len(n), lim.f_lo)

@@ -63,17 +63,17 @@ def concat(parts: list[BranchRows]) -> BranchRows:
 
 
 def duty_target(spec: Spec) -> tuple[float, float, float]:
-    """(target, low, high) of the spec's duty as fractions (its band, ``CircuitSpec``)."""
-    band = spec.circuit.duty_band
-    if band is None:
-        raise ValueError("circuit.duty_pct: the two-branch search needs a duty band")
+    """(target, low, high) of the spec's duty as fractions (its band, ``CircuitSpec``); a
+    spec that sets none (a set-duty board re-optimised under a spec of another circuit)
+    leaves the duty free: (its duty_pct, 0, 1)."""
+    band = spec.circuit.duty_band or (0.0, 1.0)
     return spec.circuit.duty_pct / 100, band[0], band[1]
 
 
 def duty_term(model: SearchModel, e_d: F64) -> I64:
     """Primary-score term of the duty error (integer, additive): in the balanced ranking
-    ``duty_error``·|e_d|/(half the duty band), else 0."""
-    if model.mode != "balanced":
+    ``duty_error``·|e_d|/(half the duty band), else (or with no duty band) 0."""
+    if model.mode != "balanced" or model.spec.circuit.duty_band is None:
         return np.zeros(np.shape(e_d), dtype=np.int64)
     _, low, high = duty_target(model.spec)
     return quantise(BALANCED_WEIGHTS["duty_error"] * np.abs(e_d) / (0.5 * (high - low)))

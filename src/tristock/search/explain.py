@@ -11,6 +11,7 @@ import time
 from collections import Counter
 
 from tristock.circuits.topology import Topology
+from tristock.search.branches import branch_top
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.model import OpAmpTerms, SearchModel, build_model
 from tristock.spec.model import Spec
@@ -40,6 +41,8 @@ class _Searches:
         limit = REASON_SEARCH_S
         if self.deadline is not None:
             limit = min(limit, max(self.deadline - time.perf_counter(), 0.0))
+        if len(model.form.integrator) == 2:  # the set-duty loop's rows: its own lister
+            return branch_top(model, 1, limit, coupled=coupled)
         return enumerate_top(model, 1, limit, coupled=coupled)
 
     @staticmethod
