@@ -1,7 +1,7 @@
 """The set-duty search form's facts that ``search.branches`` rests on.
 
 (L1) the tabulated edge's level time v(L; μ, D) does not rise with μ and is positive, on a grid
-three times finer than its table in every axis and past each end, from EDGE_LEVEL_MIN up (brute
+three times finer than its table in every axis and past each end, from LEVEL_TIME_MIN up (brute
 force over the model's own function, like G1-G3 in tests/search/test_search_bounds.py); the
 ideal ramp currents are the model's (its ideal period); the mid-swing spread bounds the
 model's high time on random rows of the demo's parts (reference: the model itself).
@@ -15,14 +15,14 @@ import numpy as np
 
 from tristock.circuits import TOPOLOGIES
 from tristock.circuits.duty_schmitt.physics import predict_point
-from tristock.circuits.duty_schmitt.searchform import row_point
+from tristock.circuits.duty_schmitt.searchform import LEVEL_TIME_MIN, row_point
 from tristock.circuits.rails import rails_from_supply
 from tristock.circuits.transition import (
-    EDGE_LEVEL_MIN,
     LN_LEVEL,
     LN_MU,
     Q_DELAY,
     scaled_level_time,
+    scaled_mean_time,
 )
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.model import build_model
@@ -34,10 +34,24 @@ def test_the_edge_level_time_does_not_rise_with_the_slope() -> None:
     mu = np.exp(np.arange(LN_MU[0] - 4.0, LN_MU[-1] + 2.0, (LN_MU[1] - LN_MU[0]) / 3))
     delay = np.expm1(np.arange(0.0, Q_DELAY[-1] + 0.3, (Q_DELAY[1] - Q_DELAY[0]) / 3))
     step = (LN_LEVEL[1] - LN_LEVEL[0]) / 3
-    level = np.exp(np.arange(math.log(EDGE_LEVEL_MIN), LN_LEVEL[-1] + 2.0, step))
+    level = np.exp(np.arange(math.log(LEVEL_TIME_MIN), LN_LEVEL[-1] + 2.0, step))
     v = scaled_level_time(mu[:, None, None], delay[None, :, None], level[None, None, :])
     assert np.all(v > 0)
     assert np.all(np.diff(v, axis=0) <= 1e-9 * np.maximum(np.abs(v[:-1]), 1.0)), "L1"
+
+
+def test_the_edge_step_times_are_not_before_the_delay() -> None:
+    """(L2), over the whole table and past each end: the mean passage time G(L) is positive
+    and L·G(L) does not fall with L, so a mean over any band of levels, (b·G(b) - a·G(a))/(b -
+    a), is not negative either: every step time of ``duty_schmitt.physics`` is at least the
+    transport delay (``search.branches`` (B4))."""
+    mu = np.exp(np.arange(LN_MU[0] - 4.0, LN_MU[-1] + 2.0, (LN_MU[1] - LN_MU[0]) / 3))
+    delay = np.expm1(np.arange(0.0, Q_DELAY[-1] + 0.3, (Q_DELAY[1] - Q_DELAY[0]) / 3))
+    step = (LN_LEVEL[1] - LN_LEVEL[0]) / 3
+    level = np.exp(np.arange(LN_LEVEL[0] - 1.0, LN_LEVEL[-1] + 2.0, step))
+    g = scaled_mean_time(mu[:, None, None], delay[None, :, None], level[None, None, :])
+    assert np.all(g > 0)
+    assert np.all(np.diff(level * g, axis=2) >= 0), "L2"
 
 
 def test_ramp_currents_and_the_mid_swing_spread_bound_random_rows() -> None:

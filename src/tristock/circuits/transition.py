@@ -62,7 +62,7 @@ PAD = 3
 #: Order of the interpolating B-spline: quadratic is 2.3x faster than cubic and as accurate
 #: where it matters (0.007 against 0.002 in G; rounder at v's kink; ``gridspline``: quadratic).
 SPLINE_ORDER = 2
-EDGE_LEVEL_MIN = 0.1  # scaled level λ·V/SR from which (G1)-(G3) and (L1) are verified
+EDGE_LEVEL_MIN = 0.1  # scaled level λ·V/SR from which (G1)-(G3) are verified
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 

@@ -17,22 +17,27 @@ the amplitude H + (i_b·t_b2 + i_a·t_a1)/C1. Hence, for every row:
   ≤ g_B·t_top - C1·H = g_B·(t_top - l), and likewise for the bottom;
 - (B3) each ramp's slope is at least H/T (from (B1)'s formulas), so a row with T ≤ 1/f_lo has
   both slopes at least H·f_lo, and its mid-swing times lie between the delay and their value
-  at that slope (L1, ``SearchForm.mid_swing_spread``): |m_f - m_r| ≤ Δ.
+  at that slope (L1, ``SearchForm.mid_swing_spread``): |m_f - m_r| ≤ Δ;
+- (B4) every step time is at least the transport delay td (L2, tests/circuits/
+  test_duty_searchform.py) and i ≥ I/(1 + ε) with ε ≤ 1/(ωt·R·C1), so E ≥ E_lo =
+  td·(i_a + i_b)·(1/g_A + 1/g_B) (``_least_excess``).
 
 An accepted row has T in [1/f_hi, 1/f_lo], a timing share 1 - T_i/T ≤ s (so E ≤ s·T and
 T_i ≤ T ≤ T_i/(1 - s)) and its duty d in [d_lo, d_hi]. With t_bottom = d·T - (m_f - m_r):
 
 - h ≤ t_bottom ≤ d_hi·T + Δ ≤ d_hi·T_i/(1 - s) + Δ, and h ≥ t_bottom - E ≥ (d_lo - s)·T - Δ;
 - l ≤ t_top = (1 - d)·T + (m_f - m_r) ≤ (1 - d_lo)·T_i/(1 - s) + Δ, and l ≥ (1 - d_hi - s)·T - Δ;
-- T_i in [(1 - s)/f_hi, 1/f_lo]; the amplitude's band needs H ≤ A_hi and
+- T_i in [(1 - s)/f_hi, 1/f_lo], E_lo ≤ s·T_i/(1 - s) and T_i + E_lo ≤ 1/f_lo; the
+  amplitude's band needs H ≤ A_hi and
   H·(1 + s·T_i/((1 - s)·min(h, l))) ≥ A_lo.
 
 With T in [1/f_hi, 1/f_lo] these give h and l windows per (stage, pair), so g_A and g_B
 windows per (stage, pair, C1): index ranges of the stage's resistors sorted by g. Every row of
 those ranges meeting the conditions above is scored unless a lower bound of its score (its
-parts' exact terms, the frequency error over T in [T_i, T_i/(1 - s)] and the amplitude error
+parts' exact terms, the frequency error over T in [T_i + E_lo, T_i/(1 - s)] and the amplitude error
 over (B2)'s range) exceeds the ``top``-th score found. Every row scored is held to (B1)-(B3) at
-run time: a violation (or a stage where L1 is not claimed) withdraws the proof.
+run time: a violation withdraws the proof. Where (L1) is not claimed (a scaled mid level
+below ``LEVEL_TIME_MIN``) Δ is the whole period 1/f_lo.
 """
 
 from __future__ import annotations
@@ -155,16 +160,17 @@ class _Walk:
 
 def _guard(model: SearchModel, figures: F64, bounds: F64) -> None:
     """Hold every scored row that the windows' argument covers (it oscillates, its share is
-    within the limit and T ≤ 1/f_lo) to (B1)-(B3); a violation withdraws the proof."""
+    within the limit and T ≤ 1/f_lo) to (B1)-(B4); a violation withdraws the proof."""
     period, high, amp = figures[:, 0], figures[:, 1], figures[:, 2]
-    h, l_, big_h, delta, f_lo = (bounds[:, n] for n in range(5))
+    h, l_, big_h, delta, e_lo = (bounds[:, n] for n in range(5))
     ideal = h + l_
     s = model.spec.limits.max_timing_share
+    f_lo = model.spec.target.target_hz * math.exp(model.band_f[0])
     with np.errstate(invalid="ignore"):
         covered = np.isfinite(period) & (1 - ideal / period <= s) & (period * f_lo <= 1 + 1e-12)
         e = period - ideal
         tol = GUARD_SLACK * period
-        ok = e >= -tol
+        ok = e >= e_lo - tol
         ok &= (high - h >= -delta - tol) & (high - h <= e + delta + tol)
         ok &= (amp >= big_h * (1 - GUARD_SLACK)) & (
             amp <= big_h * (1 + e / np.minimum(h, l_)) * (1 + GUARD_SLACK)
@@ -173,12 +179,14 @@ def _guard(model: SearchModel, figures: F64, bounds: F64) -> None:
         model.bounds_violated = True
 
 
-def _least(model: SearchModel, lim: _Limits, ideal: F64, big_h: F64, shortest: F64) -> I64:
-    """A lower bound of each row's frequency and amplitude terms: T in [T_i, T_i/(1 - s)],
-    the amplitude in [H, H·(1 + s·T_i/((1 - s)·min(h, l)))]."""
+def _least(
+    model: SearchModel, lim: _Limits, ideal: F64, e_lo: F64, big_h: F64, shortest: F64
+) -> I64:
+    """A lower bound of each row's frequency and amplitude terms: T in [T_i + E_lo,
+    T_i/(1 - s)], the amplitude in [H, H·(1 + s·T_i/((1 - s)·min(h, l)))]."""
     s = lim.s
     with np.errstate(divide="ignore"):
-        f_hi, f_lo = 1.0 / ideal, (1 - s) / ideal
+        f_hi, f_lo = 1.0 / (ideal + e_lo), (1 - s) / ideal
         e_f = np.maximum(np.maximum(np.log(f_lo / lim.f_t), -np.log(f_hi / lim.f_t)), 0.0)
         a_top = big_h * (1 + s * ideal / ((1 - s) * shortest))
         e_a = np.maximum(np.maximum(np.log(big_h / lim.a_t), -np.log(a_top / lim.a_t)), 0.0)
@@ -331,6 +339,9 @@ def _open(
     ok &= l_ <= (1 - d_lo) * ideal / (1 - s) + delta
     ok &= l_ >= lim.least_period_share(1 - d_hi, ideal) - delta
     ok &= big_h * (1 + s * ideal / ((1 - s) * shortest)) >= lim.a_lo * (1 - 1e-12)
+    e_lo = _least_excess(model, u, j, (a_idx[pa], ga[pa]), (b_idx[pb], gb[pb]))
+    ok &= e_lo <= s * ideal / (1 - s) * (1 + 1e-12)
+    ok &= ideal + e_lo <= 1 / lim.f_lo * (1 + 1e-12)
     n = np.flatnonzero(ok)
     if len(n) == 0:
         return
@@ -344,9 +355,31 @@ def _open(
         within = np.flatnonzero(cost <= max_cost + 1e-12)
         rows, i1, i2, i3, i4, jj, n = (x[within] for x in (rows, i1, i2, i3, i4, jj, n))
     least = part_scores(model, rows, i1, i2, i3, i4, jj)
-    least += _least(model, lim, ideal[n], big_h[n], shortest[n])
-    f_lo = np.full(len(n), lim.f_lo)
-    walk.add((rows, i1, i2, i3, i4, jj, least, h[n], l_[n], big_h[n], delta[n], f_lo))
+    least += _least(model, lim, ideal[n], e_lo[n], big_h[n], shortest[n])
+    walk.add((rows, i1, i2, i3, i4, jj, least, h[n], l_[n], big_h[n], delta[n], e_lo[n]))
+
+
+def _least_excess(
+    model: SearchModel, u: int, j: int, a: tuple[I64, F64], b: tuple[I64, F64]
+) -> F64:
+    """(B4) E_lo: a lower bound of E = T - T_i per row of stage ``u`` and C1 ``j`` with R3A
+    and R3B (indices, ramp currents g_A, g_B) ``a`` and ``b``: every step time is at least
+    the transport delay td (the edges' times and the integrator's lag are not negative,
+    (L2)), i ≥ I/(1 + ε) with ε ≤ 1/(ωt·R·C1), and i_b + Ib1 ≤ g_B, so t_top - l ≥
+    td·(i_a + i_b)/g_B and t_bottom - h ≥ td·(i_a + i_b)/g_A."""
+    loop = model.stages[u].loop
+    td, gbw = float(loop.delay), float(loop.integrator_gbw)
+    ib1 = model.stages[u].integrator_bias_a
+    c1 = float(model.capacitors.value[j])
+    (ia_idx, g_a), (ib_idx, g_b) = a, b
+    res = model.resistors.value
+    if math.isinf(gbw):
+        slow_a = slow_b = np.ones(len(g_a))
+    else:
+        wt = 2.0 * math.pi * gbw
+        slow_a, slow_b = 1.0 + 1.0 / (wt * res[ia_idx] * c1), 1.0 + 1.0 / (wt * res[ib_idx] * c1)
+    both = (g_a + ib1) / slow_a + (g_b - ib1) / slow_b
+    return np.asarray(td * np.maximum(both, 0.0) * (1.0 / g_a + 1.0 / g_b))
 
 
 def _pair_codes(walk: _Walk, p: I64) -> tuple[I64, I64]:

@@ -44,7 +44,6 @@ from tristock.circuits.searchform import (
     StageOption,
     fixed_levels_loop,
 )
-from tristock.circuits.transition import EDGE_LEVEL_MIN
 from tristock.stock.diodes import Diode
 from tristock.stock.parts import OpAmp, Part
 
@@ -224,7 +223,7 @@ class DutySchmittForm(SearchForm):
         |m_f - m_r| ≤ Δ: for a linear slew m = td + span/(2·SR) exactly; for a finite GBW
         (L1) the scaled level time v(L; μ, D) does not rise with μ and is positive
         (verified beside ``tests/search/test_search_bounds.py``'s G1-G3, on the same grid)
-        wherever the scaled level λ·span/(2·SR) is at least ``EDGE_LEVEL_MIN``; ``claimed``
+        wherever the scaled level λ·span/(2·SR) is at least ``LEVEL_TIME_MIN``; ``claimed``
         is False where it is not."""
         vh, vl = self.row_levels(stages, u, rails, {})
         point = row_point(stages, u, {d: np.ones(len(u)) for d in _VALUES}, (vh, vl))
@@ -235,7 +234,7 @@ class DutySchmittForm(SearchForm):
             edge = Edge(k, slope_min, span, slew, gbw, np.asarray(point.delay, dtype=float))
             spread = np.maximum(spread, edge.mid_time() - edge.delay)
             finite, lam, _, _ = edge.scales()
-            claimed &= np.logical_not(finite) | (lam * 0.5 * span / slew >= EDGE_LEVEL_MIN)
+            claimed &= np.logical_not(finite) | (lam * 0.5 * span / slew >= LEVEL_TIME_MIN)
         return spread, claimed
 
     def board_stage(self, board: BoardParts, spec: Spec) -> StageOption | str:
@@ -291,5 +290,8 @@ def row_point(
 
 
 _VALUES = ("R1", "R2", "R3A", "R3B", "C1")
+#: The scaled level λ·V/SR from which the tabulated edge's level time is verified not to rise
+#: with μ, (L1) (tests/circuits/test_duty_searchform.py).
+LEVEL_TIME_MIN = 0.01
 
 SEARCH_FORM = DutySchmittForm()
