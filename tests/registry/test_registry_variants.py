@@ -1,6 +1,7 @@
 """Released comparator-IC designs across shared stock (``tristock impact``): the release keeps
 the board's circuit, U1 counts one piece a board (the comparator U2 does the comparing), and a
-code short for two planned builds is fixed with one changed designator in total.
+code short for two planned builds is fixed with one changed designator in total; a set-duty
+design whose steering diode runs short is fixed in one design.
 
 References: the minimum is 1 because an over-subscribed code forces at least one change and
 the re-optimisation finds a 1-change answer (its fewest count is checked against brute force
@@ -88,3 +89,44 @@ def test_a_short_code_changes_one_design_by_one_designator(released: list[Revisi
     spec, board = parse_design({"spec": rev.spec, **after}, catalog)
     assert spec == parse_spec(rev.spec)
     assert board.topology is TOPOLOGIES[CIRCUIT] and board.uses()[u1] == 1
+
+
+@pytest.fixture(scope="module")
+def released_duty(tmp_path_factory: pytest.TempPathFactory) -> list[RevisionOut]:
+    """The set-duty example's best board released twice (its spec's 60 boards each)."""
+    spec = load_spec(example_spec_path("duty"))
+    catalog = load_catalog(demo_catalog_dir())
+    best = design(spec, catalog, time_limit_s=TIME_LIMIT_S, samples=500).candidates[0]
+    parts = {d: p.id for d, p in best.parts.items()}
+    reg = Registry.open(url=str(tmp_path_factory.mktemp("duty") / "registry.sqlite"))
+    for name in ("ramp-a", "ramp-b"):
+        data = {"spec": spec.model_dump(mode="json"), "parts": parts, "topology": "duty_schmitt"}
+        reg.write(draft_from(name, data, catalog), source="release")
+    active = reg.active()
+    reg.close()
+    return active
+
+
+def test_a_short_steering_diode_changes_one_set_duty_design(
+    released_duty: list[RevisionOut],
+) -> None:
+    """The diode D3 = D4 (two pieces a board) short for the second build: one design changes
+    its diode pair, and with it whatever the other diode's drop needs (the fewest count is the
+    joint search's proven lower bound; re-optimisation's own against brute force in
+    tests/designs/test_duty_search_exact.py)."""
+    catalog = load_catalog(demo_catalog_dir())
+    rev = released_duty[0]
+    diode = rev.parts["D3"]
+    assert rev.parts["D4"] == diode and rev.pieces[diode] == 2
+    short = with_stock(catalog, {diode: 3 * rev.boards})  # 2 a board: one build and a half
+    settings = ImpactSettings(top=5, time_limit_s=TIME_LIMIT_S, joint_time_limit_s=TIME_LIMIT_S)
+    report = impact(released_duty, short, settings)
+    assert [o.id for o in report.over_subscribed] == [diode]
+    proposal = report.proposal
+    assert proposal is not None and proposal.proven
+    assert proposal.total_changes == proposal.lower_bound
+    changed = [d for d in proposal.designs if d.changed]
+    assert len(changed) == 1 and {"D3", "D4"} <= set(changed[0].changed)
+    after = changed[0].design_after
+    assert after["topology"] == "duty_schmitt"
+    assert after["parts"]["D3"] == after["parts"]["D4"] != diode

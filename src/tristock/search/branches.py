@@ -198,7 +198,7 @@ def branch_top(
     model: SearchModel, top: int, time_limit_s: float, *, coupled: bool = True
 ) -> EngineResult:
     """The ``top`` best rows in rank order, proven when every window was listed in time and
-    every stage's mid-swing bound (L1) is claimed (module docstring)."""
+    no scored row broke the bounds (module docstring)."""
     start = time.perf_counter()
     walk = _Walk(model, top, start + time_limit_s, coupled)
     lim = _Limits(model)
@@ -254,8 +254,8 @@ def branch_top(
 
 
 class _Pairs:
-    """The divider pairs a stage's rows can use: their index into the pair list, H, Δ, the
-    (h, l) windows (4, n) and the smallest (h, l) window end."""
+    """The divider pairs a stage's rows can use: their index into the pair list, H, Δ and the
+    (h, l) windows, (4, n)."""
 
     def __init__(self, index: I64, big_h: F64, delta: F64, windows: F64) -> None:
         self.index, self.big_h, self.delta, self.windows = index, big_h, delta, windows
@@ -272,13 +272,12 @@ def _stage_rows(
     big_h = k * span
     stage = np.full(len(k), u, dtype=np.int64)
     delta, claimed = form.mid_swing_spread(model.stages, stage, k, big_h * lim.f_lo, model.rails)
-    # where (L1) is not claimed, the mid-swing times are only known to lie in the period
+    # where (L1) is not claimed: m_f - m_r = high - t_bottom, both in [0, T], T ≤ 1/f_lo
     delta = np.where(claimed, delta, 1.0 / lim.f_lo)
     windows = np.stack(lim.windows(delta))
     shortest = np.minimum(windows[0], windows[2])
-    reach = np.where(
-        shortest > 0, 1 + lim.s / ((1 - lim.s) * np.maximum(shortest, 1e-300) * lim.f_lo), np.inf
-    )
+    # (B2) with E ≤ s·T ≤ s/f_lo and min(h, l) at least the windows' lower ends
+    reach = np.where(shortest > 0, 1 + lim.s / (np.maximum(shortest, 1e-300) * lim.f_lo), np.inf)
     keep = np.flatnonzero((big_h <= lim.a_hi * (1 + 1e-12)) & (big_h * reach >= lim.a_lo))
     if len(keep) == 0:
         return None

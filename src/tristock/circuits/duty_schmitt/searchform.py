@@ -17,7 +17,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -263,8 +263,7 @@ def row_point(
     values, the levels as rails (V+ = VH, V- = -VL, no swing, reference 0)."""
     picked = _stages(stages)
 
-    def col(get: object) -> F64:
-        assert callable(get)
+    def col(get: Callable[[DutyStage], float]) -> F64:
         return np.array([get(s) for s in picked], dtype=np.float64)[u]
 
     n = len(u)
