@@ -85,12 +85,15 @@ class _Limits:
 
     def windows(self, delta: F64) -> tuple[F64, F64, F64, F64]:
         """(h_lo, h_hi, l_lo, l_hi) over T in [1/f_hi, 1/f_lo], with Δ = ``delta``."""
-        s, f_lo, f_hi = self.s, self.f_lo, self.f_hi
+
+        def least(d: float) -> float:  # (d - s)·T at its smallest
+            return (d - self.s) / (self.f_hi if d >= self.s else self.f_lo)
+
         return (
-            (self.d_lo - s) / f_hi - delta,
-            self.d_hi / f_lo + delta,
-            (1 - self.d_hi - s) / f_hi - delta,
-            (1 - self.d_lo) / f_lo + delta,
+            least(self.d_lo) - delta,
+            self.d_hi / self.f_lo + delta,
+            least(1 - self.d_hi) - delta,
+            (1 - self.d_lo) / self.f_lo + delta,
         )
 
     def least_period_share(self, d: float, ideal: F64) -> F64:
