@@ -19,7 +19,7 @@ from tristock.cli.progress import progress
 from tristock.designs.candidate import CAUTIONS
 from tristock.report.board import analysis_report
 from tristock.report.explain import SHOWN_SENSITIVITY
-from tristock.report.text import pct, value_range, wrap_all
+from tristock.report.text import bands_phrase, pct, value_range, wrap_all
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
@@ -64,7 +64,7 @@ def render_analysis(spec: Spec, d: AnyBoard, data: dict[str, Any], *, quiet: boo
         f"duty {pct(p['duty_high'], 2)}, offset {format_value(p['offset_v'], 'V')}",
         f"worst case  f {value_range(f0, f1, 'Hz', 4)}, A {value_range(a0, a1, 'V', 4)}pp "
         f"({wc['method']})",
-        f"yield       {pct(data['yield_fraction'], 2)} into both bands "
+        f"yield       {pct(data['yield_fraction'], 2)} into {bands_phrase(spec.circuit.duty_band)} "
         f"({y.get('samples')} samples, {y.get('distribution')}, seed {y.get('seed')})",
         f"drift       f {data['drift']['frequency_ppm_per_c']:+.1f} ppm/°C, "
         f"A {data['drift']['amplitude_ppm_per_c']:+.1f} ppm/°C",

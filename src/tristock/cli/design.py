@@ -95,7 +95,7 @@ def _explained(result: DesignResult, rank: int | None, catalog: Catalog) -> list
         )
     c = result.candidates[rank - 1]
     assert c.design_file is not None
-    return explain(c, TOPOLOGIES[c.topology].sketch)
+    return explain(c, TOPOLOGIES[c.topology].sketch, result.spec.circuit.duty_band)
 
 
 def _style(args: argparse.Namespace, catalog: Catalog) -> TableStyle:

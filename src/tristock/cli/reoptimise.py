@@ -27,18 +27,19 @@ from tristock.stock.units import format_value
 
 
 def _figures(predicted: Predicted | None, yield_fraction: float | None, wc: Any) -> list[str]:
-    """f, Vpp, yield and worst-case f of one design ("-" where not analysed)."""
+    """f, Vpp, yield, worst-case f and duty of one design ("-" where not analysed)."""
     f = format_value(predicted.frequency_hz, "Hz", 5) if predicted else "-"
     a = f"{predicted.amplitude_vpp:.4g} Vpp" if predicted else "- Vpp"
     y = pct(yield_fraction) if yield_fraction is not None else "-"
     band = wc.get("frequency_hz") if isinstance(wc, dict) else None
     w = value_range(band[0], band[1], "Hz", 4) if band else "-"
-    return [f, a, y, w]
+    d = pct(predicted.duty_high, 2) if predicted else "-"
+    return [f, a, y, w, d]
 
 
 def render_reoptimise(result: ReoptimiseResult, *, quiet: bool = False) -> str:
     """The original design, each answer's changes, and the figures before and after: f, Vpp,
-    yield into both bands and worst-case f."""
+    yield into the spec's bands and worst-case f (and the duty, for a set duty)."""
     o = result.original
     before = _figures(o.predicted, o.yield_fraction, o.worst_case)
     lines = [] if quiet else [
@@ -67,8 +68,9 @@ def render_reoptimise(result: ReoptimiseResult, *, quiet: bool = False) -> str:
         for ch in c.changes:
             was, now = ch.from_id or "(none)", ch.to_id or "(none)"
             lines.append(f"      {ch.designator}: {was} -> {now}  ({ch.why})")
-        names = ("f", "Vpp", "yield", "worst-case f")
-        for name, old, new in zip(names, before, after, strict=True):
+        names = ["f", "Vpp", "yield", "worst-case f"]
+        names += ["duty"] if result.spec.circuit.duty_band is not None else []
+        for name, old, new in zip(names, before, after, strict=False):
             lines.append(f"      {name:<13} {old:>16} -> {new}")
     if quiet:
         return "\n".join(wrap_all(lines))

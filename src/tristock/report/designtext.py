@@ -12,7 +12,7 @@ from tristock.report.designtable import (
     trim_table,
     tuning_table,
 )
-from tristock.report.text import WIDTH, pct, wrap_all
+from tristock.report.text import WIDTH, bands_phrase, pct, wrap_all
 from tristock.spec.model import Spec
 from tristock.stock.units import format_value
 
@@ -68,7 +68,8 @@ def _count_and_yield_notes(result: DesignResult) -> list[str]:
     fixed = result.spec.tuning is None and not result.spec.trimmed
     if fixed and best.yield_fraction < LOW_YIELD and result.spec.limits.guarantee == "nominal":
         notes.append(
-            f"note: rank 1 puts {pct(best.yield_fraction)} of boards into both bands; "
+            f"note: rank 1 puts {pct(best.yield_fraction)} of boards into "
+            f"{bands_phrase(result.spec.circuit.duty_band)}; "
             'guarantee = "yield" (with min_yield) ranks by it, or a [trim] section adds a trimmer'
         )
     return notes

@@ -4,7 +4,7 @@ finding, the sensitivities and the topology's sketch naming each designator."""
 from __future__ import annotations
 
 from tristock.designs.results import Candidate
-from tristock.report.text import pct, value_range
+from tristock.report.text import bands_phrase, pct, value_range
 from tristock.stock.units import format_value
 
 #: Sensitivities smaller than this (in both f and Vpp) are left out of the list.
@@ -35,8 +35,9 @@ def sensitivity_lines(c: Candidate) -> list[str]:
     return lines
 
 
-def explain(c: Candidate, sketch: str) -> list[str]:
-    """The explanation of candidate ``c`` (lines, to be wrapped at 100 columns)."""
+def explain(c: Candidate, sketch: str, duty_band: tuple[float, float] | None = None) -> list[str]:
+    """The explanation of candidate ``c`` (lines, to be wrapped at 100 columns);
+    ``duty_band``: the spec's set-duty band, whose worst case and yield are then shown."""
     p = c.predicted
     wc = c.worst_case
     lines = [f"Design {c.rank} explained", "  parts:", *part_lines(c)]
@@ -50,15 +51,19 @@ def explain(c: Candidate, sketch: str) -> list[str]:
     if "frequency_hz" in wc and "amplitude_vpp" in wc:
         f0, f1 = wc["frequency_hz"]
         a0, a1 = wc["amplitude_vpp"]
+        duty = ""
+        if duty_band is not None and "duty_high" in wc:
+            duty = f", duty {pct(wc['duty_high'][0], 2)}-{pct(wc['duty_high'][1], 2)}"
         lines.append(
-            f"  worst case: {value_range(f0, f1, 'Hz', 4)}, {value_range(a0, a1, 'V', 4)}pp "
-            f"(over tolerances, rails and temperature; {wc.get('method', '')})"
+            f"  worst case: {value_range(f0, f1, 'Hz', 4)}, {value_range(a0, a1, 'V', 4)}pp"
+            f"{duty} (over tolerances, rails and temperature; {wc.get('method', '')})"
         )
     samples = c.yield_detail.get("samples")
     if samples:
         before = " untrimmed (wiper at its nominal point)" if c.trim is not None else ""
         lines.append(
-            f"  yield: {pct(c.yield_fraction)} of {samples:,} boards into both bands{before}"
+            f"  yield: {pct(c.yield_fraction)} of {samples:,} boards into "
+            f"{bands_phrase(duty_band)}{before}"
         )
     drift = c.drift
     if "frequency_ppm_per_c" in drift:

@@ -24,6 +24,11 @@ def pct(fraction: float, digits: int = 1, *, sign: bool = False) -> str:
     return f"{100 * fraction:{'+' if sign else ''}.{digits}f} %"
 
 
+def bands_phrase(duty_band: tuple[float, float] | None) -> str:
+    """What the yield counts boards into: both bands, or with a set duty's band the three."""
+    return "both bands" if duty_band is None else "the three bands (f, Vpp, duty)"
+
+
 def value_range(low: float, high: float, unit: str, digits: int = 3) -> str:
     """Two values with one prefix and unit: (2382, 2616, "Hz") -> "2.38-2.62 kHz"; the
     prefix and the decimals are those of the larger magnitude at ``digits`` significant
