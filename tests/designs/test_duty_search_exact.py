@@ -277,7 +277,12 @@ def test_the_duty_search_returns_the_full_model_top_k(guarantee: str, by: str, s
 POSITIONS = ("U1", "R1", "R2", "R3A", "R3B", "C1", "D3", "D4")
 
 
-@pytest.mark.parametrize(("seed", "withdrawn"), [(1, "R3B"), (2, "D3"), (4, "R1")])
+#: Answers of 1 to 5 changes (a diode pair with R3B; U1 changed in one answer, R3A in the
+#: next), and a case with none (every board left is outside the bands).
+REOPTIMISE_CASES = [(4, "R3B"), (6, "R1"), (7, "R3B"), (7, "C1"), (2, "D3"), (1, "R3B")]
+
+
+@pytest.mark.parametrize(("seed", "withdrawn"), REOPTIMISE_CASES)
 def test_reoptimise_finds_the_fewest_changes(seed: int, withdrawn: str) -> None:
     """A board of the brute force's top with one part withdrawn: ``reoptimise`` gives the
     brute force's fewest changed positions and its best answers in order (ties: fewer stage
