@@ -19,7 +19,7 @@ MAX_LINES = 400
 #: Each layer imports only its own and lower ones (lowest first). Package prefixes; a module
 #: belongs to the longest prefix that names it.
 LAYERS: tuple[tuple[str, ...], ...] = (
-    ("tristock",),  # the root package: __version__ and the allocator's setting
+    ("tristock",),  # the root package: __version__ and the runtime's settings
     ("tristock.stock",),
     ("tristock.spec", "tristock.examples"),
     ("tristock.circuits",),

@@ -6,12 +6,13 @@ specs and demo stock room), ``circuits`` (one package per topology: physics, che
 spread boxes, search forms), ``analysis`` and ``simulate`` (worst case, yield, sensitivities;
 time-domain runs), ``search`` (the exact engines), ``designs`` (fixed, trimmed, tuned,
 re-optimised), ``export``, ``report`` and ``registry`` (files, text, released designs), and
-``cli``, ``serve`` and the HTTP API on top. ``allocator`` sets the C heap's padding once per
-process (large numpy batches run 15-20 % faster).
+``cli``, ``serve`` and the HTTP API on top. ``runtime`` makes two process-wide settings at import
+(the C heap's padding, one BLAS thread; faster, no value changes).
 """
 
-from tristock.allocator import keep_heap_pad
+from tristock.runtime import keep_heap_pad, one_blas_thread
 
 __version__ = "0.1.0"
 
 keep_heap_pad()
+one_blas_thread()
