@@ -10,7 +10,6 @@ from typing import Any, Literal
 
 import numpy as np
 import numpy.typing as npt
-from scipy import special
 
 from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.spread import (
@@ -23,6 +22,7 @@ from tristock.analysis.spread import (
 )
 from tristock.circuits.board import AnyBoard
 from tristock.spec.model import Spec
+from tristock.special import normal_quantile
 
 FloatArray = npt.NDArray[np.float64]
 Distribution = Literal["normal", "uniform"]
@@ -75,7 +75,7 @@ def wilson_interval(
         raise ValueError(f"passed: must be between 0 and samples ({samples}), got {passed}")
     if not 0 < confidence < 1:
         raise ValueError(f"confidence: must be between 0 and 1, got {confidence}")
-    z = float(special.ndtri(0.5 + confidence / 2))  # the normal quantile
+    z = float(normal_quantile(np.array(0.5 + confidence / 2)))
     p = passed / samples
     denom = 1 + z * z / samples
     centre = (p + z * z / (2 * samples)) / denom
@@ -93,7 +93,7 @@ def deviations(
     samples) draw holds what the i-th of n draws of ``samples`` would); the result is that
     array transposed, so that each variable's column is contiguous."""
     z = rng.random((len(variables), samples))
-    edge = float(special.ndtr(-NORMAL_SIGMAS))
+    edge = 0.5 * math.erfc(NORMAL_SIGMAS / math.sqrt(2.0))  # Φ(-NORMAL_SIGMAS)
     for i, var in enumerate(variables):
         row = z[i]
         if var.temperature is not None or distribution == "uniform":
@@ -102,7 +102,7 @@ def deviations(
         else:
             row *= 1.0 - 2.0 * edge
             row += edge
-            special.ndtri(row, out=row)
+            normal_quantile(row, out=row)
             row /= NORMAL_SIGMAS
     return z.T
 

@@ -13,7 +13,8 @@ from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
-from scipy.special import lambertw
+
+from tristock.special import lambert_w0
 
 FloatArray = npt.NDArray[np.float64]
 
@@ -50,13 +51,13 @@ def integrator_terms(rc: FloatArray, gbw: FloatArray) -> IntegratorTerms:
 def _w0_of_minus_exp(c: FloatArray) -> FloatArray:
     """W0(-e^(-c)) for c >= 1 (principal branch of Lambert's W): its series
     z - z² + 3z³/2 - 8z⁴/3 + 125z⁵/24 in z = -e^(-c) from c = 4 on (the next term, 54z⁶/5,
-    is below 4e-10), scipy's lambertw below."""
+    is below 4e-10), ``tristock.special.lambert_w0`` below."""
     c = np.asarray(c, dtype=float)
     z = np.maximum(-np.exp(-np.minimum(c, 700.0)), -math.exp(-1.0))  # the branch point
     out = z * (1.0 - z * (1.0 - z * (1.5 - z * (8.0 / 3.0 - z * 125.0 / 24.0))))
     near = c < 4.0
     if np.any(near):
-        out = np.where(near, np.real(lambertw(np.where(near, z, 0.0))), out)
+        out = np.where(near, lambert_w0(np.where(near, z, -0.1)), out)
     return np.asarray(out, dtype=float)
 
 
