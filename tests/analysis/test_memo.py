@@ -1,7 +1,7 @@
 """analysis.memo and what remembers through it: the least recently used entries go first
 within the count and byte budgets (common practice for an LRU memory), and the Monte Carlo
-remembers its samples, never its bands (the reference is the same call with the memory
-emptied)."""
+remembers its samples, never its bands, as the checks and the temperature drift remember
+theirs per board and supply (the reference is the same call with the memory emptied)."""
 
 from __future__ import annotations
 
@@ -9,6 +9,8 @@ import numpy as np
 
 from tristock.analysis.memo import Memo, forget
 from tristock.analysis.montecarlo import SAMPLED, monte_carlo
+from tristock.analysis.sensitivity import DRIFTS, temperature_drift
+from tristock.designs.candidate import CHECKED, warnings_for
 from tristock.designs.fixed import design_of, run_engine
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.model import build_model
@@ -49,3 +51,25 @@ def test_monte_carlo_remembers_samples_not_bands() -> None:
     assert remembered.passed < first.passed
     remembered.spread["frequency_hz"].clear()  # a copy: the remembered one is untouched
     assert monte_carlo(board, narrow, samples=2000, seed=3) == fresh
+
+
+def test_checks_and_drift_are_remembered_per_board_and_supply() -> None:
+    spec = load_spec(example_spec_path("demo"))
+    model = build_model(spec, load_catalog(demo_catalog_dir()))
+    board = design_of(model, run_engine(model, "enumerate", 1, 30.0).rows, 0)
+    forget()
+    checks, drift = warnings_for(board, spec), temperature_drift(board, spec)
+    assert len(CHECKED) == 1 and len(DRIFTS) == 1
+    checks.clear()  # a copy: the remembered list is untouched
+    assert warnings_for(board, spec) == warnings_for(board, spec) != []
+    assert temperature_drift(board, spec) is drift
+    assert len(CHECKED) == 1 and len(DRIFTS) == 1
+    # another supply or environment is another entry, computed afresh (the reference: the
+    # same call with the memory emptied)
+    hot = spec.model_copy(
+        update={"environment": spec.environment.model_copy(update={"temp_max_c": 85.0})}
+    )
+    warm_drift = temperature_drift(board, hot)
+    assert len(DRIFTS) == 2
+    forget()
+    assert temperature_drift(board, hot) == warm_drift != drift

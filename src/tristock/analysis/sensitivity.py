@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.spread import Board, check_inputs, metric_table, point_fields
 from tristock.circuits.board import AnyBoard
 from tristock.circuits.rails import rails_from_supply
@@ -109,8 +110,22 @@ def temperature_drift(design: AnyBoard, spec: Spec) -> Drift:
     Values move by their tempcos (``Design.oscillator``); R1 and R2 share the temperature, so
     with equal tempcos k = R1/R2 is constant and they add no amplitude drift. A class II
     capacitor has no linear tempco and adds nothing here (its band is in the worst case).
+    Remembered per board, supply and environment (``DRIFTS``).
     """
     check_inputs(design, spec)
+    key = box_key(design, spec)
+    found = DRIFTS.get(key)
+    if found is None:
+        found = _drift(design, spec)
+        DRIFTS.put(key, found)
+    return found
+
+
+#: The drifts of boards met before in this process (``analysis.memo``).
+DRIFTS: Memo[Drift] = Memo(max_items=4096, max_bytes=1 << 30)
+
+
+def _drift(design: AnyBoard, spec: Spec) -> Drift:
     env = spec.environment
     lo, hi = env.temp_min_c, env.temp_max_c
     if hi == lo:

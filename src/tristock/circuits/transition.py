@@ -38,6 +38,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import cache
+from importlib import metadata
 from pathlib import Path
 from typing import NamedTuple
 
@@ -222,9 +223,8 @@ def transition_table() -> TransitionTable:
 def _coefficients() -> tuple[FloatArray, ...]:
     """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
     per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions)."""
-    from scipy import __version__ as scipy_version  # the package only, not scipy.ndimage
-
-    key = (Path(__file__).read_bytes(), np.__version__, scipy_version)
+    # scipy's version from its metadata: importing even the bare package costs about 20 ms
+    key = (Path(__file__).read_bytes(), np.__version__, metadata.version("scipy"))
     return cached_arrays("transition", key, _filtered_table)
 
 

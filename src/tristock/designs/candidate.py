@@ -9,6 +9,7 @@ import math
 import numpy as np
 
 from tristock.analysis.bundle import Analysis
+from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.montecarlo import YieldResult
 from tristock.analysis.worstcase import WorstCase
 from tristock.circuits.board import AnyBoard, rails_from_supply
@@ -79,8 +80,18 @@ def value_of(part: Part) -> float:
 
 def warnings_for(design: AnyBoard, spec: Spec) -> list[Warning]:
     """Every design check of ``design`` on the spec's nominal rails (its topology's
-    ``check``)."""
-    return design.topology.check(design, rails_from_supply(spec.supply))
+    ``check``), remembered per board and supply (``CHECKED``)."""
+    key = box_key(design, spec)
+    found = CHECKED.get(key)
+    if found is None:
+        found = tuple(design.topology.check(design, rails_from_supply(spec.supply)))
+        CHECKED.put(key, found)
+    return list(found)
+
+
+#: The checks of boards met before in this process: they depend on the board and the rails,
+#: not on the bands (``analysis.memo``).
+CHECKED: Memo[tuple[Warning, ...]] = Memo(max_items=4096, max_bytes=1 << 30)
 
 
 def parts_report(design: AnyBoard) -> dict[str, PartOut]:
