@@ -36,7 +36,10 @@ F64 = NDArray[np.float64]
 #: Cores expanded into combinations at a time (each with up to every pair of its op amp).
 CHUNK = 64
 #: Combinations whose bound is tightened at a time (between two looks at the clock).
-TIGHTEN_BATCH = 8192
+TIGHTEN_BATCH = 2048
+#: Cores whose shared bounds are computed at a time (between two looks at the clock; every
+#: core's bounds are its own, so the size changes no value).
+CORE_BATCH = 16384
 #: Width of a bin of k = R1/R2 (in ln k) for the chain floor.
 BIN_WIDTH = 0.01
 MAX_BINS = 1 << 12
@@ -316,19 +319,21 @@ def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
         top3 = use3[top_feasible(model, u3, use3, window_factors(model, u3))]
         if len(top3) == 0:
             continue
+        i4_all = np.repeat(use4, len(top3)).astype(np.int64)
+        i3_all = np.tile(top3, len(use4)).astype(np.int64)
         for v in np.flatnonzero(use_v):
-            if time.perf_counter() > deadline:
-                return None
-            i4 = np.repeat(use4, len(top3)).astype(np.int64)
-            i3 = np.tile(top3, len(use4)).astype(np.int64)
-            u = np.full(len(i3), o.index, dtype=np.int64)
-            vv = np.full(len(i3), v, dtype=np.int64)
-            b, _ = shared_bounds(model, u, i3, i4, vv, window_factors(model, u), top_checked=True)
-            keep = b.feasible
-            cost = (
-                o.cost + pot_cost[v] + r_cost[i3] + np.where(i4 >= 0, r_cost[np.maximum(i4, 0)], 0)
-            )
-            blocks.append((u[keep], vv[keep], i3[keep], i4[keep], cost[keep], b, keep))
+            for start in range(0, len(i3_all), CORE_BATCH):
+                if time.perf_counter() > deadline:
+                    return None
+                i3, i4 = i3_all[start : start + CORE_BATCH], i4_all[start : start + CORE_BATCH]
+                u = np.full(len(i3), o.index, dtype=np.int64)
+                vv = np.full(len(i3), v, dtype=np.int64)
+                kf = window_factors(model, u)
+                b, _ = shared_bounds(model, u, i3, i4, vv, kf, top_checked=True)
+                keep = b.feasible
+                cost = o.cost + pot_cost[v] + r_cost[i3]
+                cost = cost + np.where(i4 >= 0, r_cost[np.maximum(i4, 0)], 0)
+                blocks.append((u[keep], vv[keep], i3[keep], i4[keep], cost[keep], b, keep))
     caps = CapCosts.of(model)
     bins = {o.index: Bins.of(model, o.index, pairs[o.index], o.k_lo, o.k_hi) for o in model.opamps}
     if not blocks:
