@@ -12,6 +12,7 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from tristock.circuits.transition import (
+    LN_MU,
     growth_rate,
     scaled_level_time,
     scaled_mean_time,
@@ -118,3 +119,29 @@ def test_switch_times_limits() -> None:
     assert float(wide.centroid) == pytest.approx(21.0 / (2 * slew), rel=2e-3)
     with pytest.raises(ValueError, match="slew"):
         switch_times(k, slope, span, drive, np.array(inf), np.array(3e6), np.array(0.0))
+
+
+def test_switch_times_are_the_tables_definitions_to_the_bit() -> None:
+    # centroid = td + G(λ·span/SR)/λ, mid = td + v(λ·span/(2·SR))/λ, overshoot =
+    # td + G(λ·drive/SR)/λ with λ = β·2π·GBW, μ = slope/(k·SR) clamped at the table's top and
+    # D = λ·td (the docstring), each table read on its own: however switch_times batches its
+    # look-ups, every value is the same to the bit, past the table's top level and below its
+    # first μ line too.
+    rng = np.random.default_rng(11)
+    n = 700  # two edges of 700 rows: past the few-points look-up as well
+    k = rng.uniform(0.05, 2.0, n)
+    slope = 10.0 ** rng.uniform(1, 7, n)
+    span = rng.uniform(0.5, 30.0, n)
+    drive = span * rng.uniform(0.05, 1.0, n)
+    slew = 10.0 ** rng.uniform(5, 8, n)
+    gbw = 10.0 ** rng.uniform(4, 8, n)
+    td = rng.uniform(0.0, 2e-6, n)
+    got = switch_times(k, slope, span, drive, slew, gbw, td)
+    lam = k / (1.0 + k) * 2.0 * math.pi * gbw
+    mu = np.minimum(slope / (k * slew), float(np.exp(LN_MU[-1])))
+    d = lam * td
+    whole = lam * span / slew
+    assert np.array_equal(got.centroid, td + scaled_mean_time(mu, d, whole) / lam)
+    assert np.array_equal(got.mid, td + scaled_level_time(mu, d, 0.5 * whole) / lam)
+    assert np.array_equal(got.overshoot, td + scaled_mean_time(mu, d, lam * drive / slew) / lam)
+    assert np.any(whole > 200.0) and np.any(mu < 1e-6)  # both continuations were read

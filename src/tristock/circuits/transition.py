@@ -387,8 +387,9 @@ def switch_times(
     whole = lam * span / safe_slew
     reach = lam * drive / safe_slew
     half = 0.5 * whole
-    g_whole = _at_level(0, place, whole) + 0.5 * whole
-    g_drive = _at_level(0, place, reach) + 0.5 * reach
+    # both levels of table 0 in one look-up (each point's value is computed on its own)
+    levels = np.stack(np.broadcast_arrays(whole, reach))
+    g_whole, g_drive = _at_level(0, place, levels) + 0.5 * levels
     v_mid = _at_level(1, place, half) + half
     times = [delay + g_whole / lam, delay + v_mid / lam, delay + g_drive / lam]
     if not everywhere:
