@@ -12,7 +12,7 @@ sets ``MALLOC_TOP_PAD_`` keeps its own setting.
 **One BLAS thread.** The only linear algebra is the worst-case search's eigen-decompositions of
 Hessians of 12 x 12 to 19 x 19 (one row per spread variable; ``analysis.boxnewton``), too small
 for threads to help; OpenBLAS's worker threads (numpy's and scipy's, one per extra core) spin
-between calls and burned about 0.2 s of CPU per ``tristock design --example`` on a 2-core
+between calls and burned about 0.16 s of CPU per ``tristock design --example`` on a 2-core
 machine, and slowed the main thread when the cores were shared. ``OPENBLAS_NUM_THREADS`` is set
 to 1 unless the environment sets it; it takes effect only when numpy is first imported after
 tristock (as in the CLI and the server), so a program that imports numpy first sets it itself.

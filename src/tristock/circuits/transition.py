@@ -223,7 +223,7 @@ def transition_table() -> TransitionTable:
 def _coefficients() -> tuple[FloatArray, ...]:
     """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
     per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions)."""
-    # scipy's version from its metadata: importing even the bare package costs about 20 ms
+    # scipy's version from its metadata: importing even the bare package costs about 12 ms
     key = (Path(__file__).read_bytes(), np.__version__, metadata.version("scipy"))
     return cached_arrays("transition", key, _filtered_table)
 

@@ -80,7 +80,7 @@ def value_of(part: Part) -> float:
 
 def warnings_for(design: AnyBoard, spec: Spec) -> list[Warning]:
     """Every design check of ``design`` on the spec's nominal rails (its topology's
-    ``check``), remembered per board and supply (``CHECKED``)."""
+    ``check``), remembered per board, supply and environment (``CHECKED``)."""
     key = box_key(design, spec)
     found = CHECKED.get(key)
     if found is None:
@@ -90,7 +90,7 @@ def warnings_for(design: AnyBoard, spec: Spec) -> list[Warning]:
 
 
 #: The checks of boards met before in this process: they depend on the board and the rails,
-#: not on the bands (``analysis.memo``).
+#: not on the bands (``analysis.memo``; its key holds the environment too).
 CHECKED: Memo[tuple[Warning, ...]] = Memo(max_items=4096, max_bytes=1 << 30)
 
 
