@@ -1,8 +1,9 @@
-"""analysis.worstcase.worst_cases: several boards searched together give each board the
-answer it gets alone, to the bit (the reference is ``worst_case`` of each board by itself,
-its memory emptied; every row of the batched Newton search is computed on its own). Boards
-of different circuits are batched apart. The memory answers a board met again under another
-target and never a board whose parts or rails differ."""
+"""analysis.worstcase.worst_cases and analysis.montecarlo.monte_carlo_many: several boards
+searched or sampled together give each board the answer it gets alone, to the bit (the
+reference is ``worst_case`` or ``monte_carlo`` of each board by itself, its memory emptied;
+every row of a batched model call is computed on its own). Boards of different circuits are
+batched apart. The memory answers a board met again under another target and never a board
+whose parts or rails differ."""
 
 from __future__ import annotations
 
@@ -10,6 +11,7 @@ import dataclasses
 
 from tristock.analysis.bundle import analyse, analyse_many
 from tristock.analysis.memo import forget
+from tristock.analysis.montecarlo import monte_carlo, monte_carlo_many
 from tristock.analysis.worstcase import (
     REMEMBERED,
     WorstCase,
@@ -105,3 +107,22 @@ def test_analyse_many_equals_analyse() -> None:
     for board, got in zip(boards, many, strict=True):
         forget()
         assert got.to_dict() == analyse(board, spec, samples=500).to_dict()
+
+
+def test_monte_carlo_of_several_boards_equals_each_alone() -> None:
+    # two circuits interleaved (sampled apart), three boards of one circuit sharing the model's
+    # calls over more than one batch (16,384 // 3 rows of each at a time), one remembered
+    spec, opamp_boards = demo_boards(3)
+    _, comparator_boards = demo_boards(1, "comparator")
+    boards = [opamp_boards[0], comparator_boards[0], opamp_boards[1], opamp_boards[2]]
+    forget()
+    remembered = monte_carlo(opamp_boards[1], spec, samples=6000, seed=5)
+    together = monte_carlo_many(boards, spec, samples=6000, seed=5)
+    assert together[2] == remembered
+    alone = []
+    for b in boards:
+        forget()
+        alone.append(monte_carlo(b, spec, samples=6000, seed=5))
+    assert together == alone
+    assert len({r.passed for r in alone}) > 1  # the boards differ, each got its own
+    assert monte_carlo_many([], spec) == []

@@ -21,9 +21,9 @@ from tristock.analysis.spread import (
     Board,
     SpreadVariable,
     evaluate,
+    joint_point,
     metric_table,
     point_at,
-    point_fields,
 )
 
 FloatArray = npt.NDArray[np.float64]
@@ -184,14 +184,8 @@ def _joint_metrics(models: Sequence[_Model], member: IntArray, z: FloatArray) ->
     for model, rows in zip(models, groups, strict=True):
         model.evaluations += len(rows)
         points.append(point_at(model.board, model.variables, z[rows]))
-    sizes = [len(rows) for rows in groups]
-    fields = {
-        f: np.concatenate(
-            [np.broadcast_to(getattr(p, f), (n,)) for p, n in zip(points, sizes, strict=True)]
-        )
-        for f in point_fields(points[0])
-    }
-    table = metric_table(models[0].board.predict(type(points[0])(**fields)), len(z))
+    point = joint_point(points, [len(rows) for rows in groups])
+    table = metric_table(models[0].board.predict(point), len(z))
     out = np.empty_like(table)
     out[np.concatenate(groups)] = table
     return out

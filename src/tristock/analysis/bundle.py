@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from tristock.analysis.montecarlo import Distribution, YieldResult, monte_carlo
+from tristock.analysis.montecarlo import Distribution, YieldResult, monte_carlo_many
 from tristock.analysis.sensitivity import (
     Drift,
     Sensitivity,
@@ -95,19 +95,23 @@ def analyse_many(
     seed: int = 0,
     distribution: Distribution = "normal",
 ) -> list[Analysis]:
-    """``analyse`` of each design, their worst cases searched together (``worst_cases``: the
-    same answers, fewer and larger model calls)."""
+    """``analyse`` of each design, their worst cases searched together (``worst_cases``) and
+    their Monte Carlo samples drawn together (``monte_carlo_many``): the same answers, fewer
+    and larger model calls."""
     for design in designs:
         check_inputs(design, spec)
     return [
         Analysis(
             predicted=nominal_oscillator(design, spec).prediction(),
             worst_case=wc,
-            yield_result=monte_carlo(
-                design, spec, samples=samples, seed=seed, distribution=distribution
-            ),
+            yield_result=result,
             sensitivity=sensitivities(design, spec),
             drift=temperature_drift(design, spec),
         )
-        for design, wc in zip(designs, worst_cases(designs, spec), strict=True)
+        for design, wc, result in zip(
+            designs,
+            worst_cases(designs, spec),
+            monte_carlo_many(designs, spec, samples=samples, seed=seed, distribution=distribution),
+            strict=True,
+        )
     ]

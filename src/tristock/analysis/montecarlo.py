@@ -5,6 +5,7 @@ temperature uniform, counted against the spec's bands, with a Wilson score inter
 from __future__ import annotations
 
 import math
+from collections.abc import Hashable, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -15,8 +16,10 @@ from tristock.analysis.memo import Memo, box_key
 from tristock.analysis.spread import (
     BATCH_ROWS,
     METRICS,
+    Board,
     SpreadVariable,
     check_inputs,
+    joint_metric_columns,
     metric_columns,
     spread_board,
 )
@@ -159,22 +162,60 @@ def monte_carlo(
     ``seed``; the same seed gives the same samples. The samples' metrics do not depend on the
     bands and are remembered for the process (``SAMPLED``).
     """
-    check_inputs(design, spec)
+    return monte_carlo_many([design], spec, samples=samples, seed=seed, distribution=distribution)[
+        0
+    ]
+
+
+def monte_carlo_many(
+    designs: Sequence[AnyBoard],
+    spec: Spec,
+    *,
+    samples: int = 20000,
+    seed: int = 0,
+    distribution: Distribution = "normal",
+) -> list[YieldResult]:
+    """``monte_carlo`` of each design. Boards not remembered are sampled together: boards of
+    one topology, wiring and variable list draw the same deviations (the same seed) and share
+    the model's calls (``spread.joint_metric_columns``), so each gets the samples it gets
+    alone, to the bit."""
+    for design in designs:
+        check_inputs(design, spec)
     if isinstance(samples, bool) or not isinstance(samples, int) or samples < 1:
         raise ValueError(f"samples: must be an integer >= 1, got {samples!r}")
     if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise ValueError(f"seed: must be an integer >= 0, got {seed!r}")
     if distribution not in ("normal", "uniform"):
         raise ValueError(f"distribution: must be 'normal' or 'uniform', got {distribution!r}")
-    key = box_key(design, spec, samples, seed, distribution)
-    remembered = SAMPLED.get(key)
-    if remembered is None:
-        board, variables = spread_board(design, spec)
+    keys = [box_key(design, spec, samples, seed, distribution) for design in designs]
+    found = [SAMPLED.get(key) for key in keys]
+    groups: dict[Hashable, list[tuple[int, Board, list[SpreadVariable]]]] = {}
+    for n, known in enumerate(found):
+        if known is None:
+            board, variables = spread_board(designs[n], spec)
+            kinds = tuple((v.name, v.temperature is not None) for v in variables)
+            shared = (board.topology.name, board.v_ref, board.control, type(board.point), kinds)
+            groups.setdefault(shared, []).append((n, board, variables))
+    for members in groups.values():
+        variables = members[0][2]
         z = deviations(np.random.default_rng(seed), variables, samples, distribution)
-        vals = metric_columns(board, variables, z)
-        remembered = (vals, _percentiles(vals))
-        SAMPLED.put(key, remembered)
-    vals, spread = remembered
+        columns = joint_metric_columns([(board, own) for _, board, own in members], z)
+        for (n, _, _), vals in zip(members, columns, strict=True):
+            entry = (vals, _percentiles(vals))
+            found[n] = entry
+            SAMPLED.put(keys[n], entry)
+    return [_yield_of(spec, entry, seed, distribution) for entry in found if entry is not None]
+
+
+def _yield_of(
+    spec: Spec,
+    entry: tuple[FloatArray, dict[str, dict[str, float]]],
+    seed: int,
+    distribution: str,
+) -> YieldResult:
+    """The yield of remembered samples under the spec's bands (the spread copied)."""
+    vals, spread = entry
+    samples = vals.shape[1]
     passed = int(np.count_nonzero(_in_bands(vals, spec)))
     return YieldResult(
         fraction=passed / samples,

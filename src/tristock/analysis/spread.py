@@ -12,6 +12,7 @@ variables of a topology, their ranges and units are listed in its own spread mod
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -114,6 +115,42 @@ def metric_columns(
     return out
 
 
+def joint_point(points: Sequence[Any], sizes: Sequence[int]) -> Any:
+    """One point of the same type holding ``points`` one after another (``sizes[i]`` rows of
+    each; a field a point holds as a scalar is repeated), for one model call over several
+    boards of one topology and wiring (every row is computed on its own)."""
+    fields = {
+        f: np.concatenate(
+            [np.broadcast_to(getattr(p, f), (n,)) for p, n in zip(points, sizes, strict=True)]
+        )
+        for f in point_fields(points[0])
+    }
+    return type(points[0])(**fields)
+
+
+def joint_metric_columns(
+    problems: Sequence[tuple[Board, list[SpreadVariable]]], z: FloatArray, batch: int = BATCH_ROWS
+) -> list[FloatArray]:
+    """``metric_columns`` of each (board, its variables) at the same deviations ``z``, the
+    boards of one topology and wiring and their variables of the same names in the same order
+    (each with its own bounds): one model call for all the boards' rows, about ``batch`` rows
+    at a time (each board's columns are the ones it gets alone, to the bit)."""
+    rows = z.shape[0]
+    step = max(1, batch // len(problems))
+    out = [np.empty((len(METRICS), rows)) for _ in problems]
+    for start in range(0, rows, step):
+        part = z[start : start + step]
+        n = part.shape[0]
+        points = [point_at(board, variables, part) for board, variables in problems]
+        pred = problems[0][0].predict(joint_point(points, [n] * len(problems)))
+        for m, metric in enumerate(METRICS):
+            value = np.asarray(getattr(pred, metric), dtype=float)
+            column = np.broadcast_to(value, (n * len(problems),))
+            for i, columns in enumerate(out):
+                columns[m, start : start + n] = column[i * n : (i + 1) * n]
+    return out
+
+
 def check_inputs(design: object, spec: object) -> None:
     """TypeError naming the argument unless ``design`` is a board (``circuits.board``: a
     Design or a generic Board) and ``spec`` a Spec."""
@@ -133,6 +170,8 @@ __all__ = [
     "SpreadVariable",
     "check_inputs",
     "evaluate",
+    "joint_metric_columns",
+    "joint_point",
     "metric_columns",
     "metric_table",
     "point_at",
