@@ -385,10 +385,9 @@ def switch_times(
     mu = np.minimum(slope / (k * safe_slew), math.exp(LN_MU[-1]))
     place = _place(mu, lam * delay)
     whole = lam * span / safe_slew
-    reach = lam * drive / safe_slew
     half = 0.5 * whole
     # both levels of table 0 in one look-up (each point's value is computed on its own)
-    levels = np.stack(np.broadcast_arrays(whole, reach))
+    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew))
     g_whole, g_drive = _at_level(0, place, levels) + 0.5 * levels
     v_mid = _at_level(1, place, half) + half
     times = [delay + g_whole / lam, delay + v_mid / lam, delay + g_drive / lam]
