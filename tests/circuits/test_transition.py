@@ -13,6 +13,7 @@ from scipy.integrate import solve_ivp
 
 from tristock.circuits.transition import (
     LN_MU,
+    MERGED_LOOKUP_POINTS,
     growth_rate,
     scaled_level_time,
     scaled_mean_time,
@@ -121,14 +122,14 @@ def test_switch_times_limits() -> None:
         switch_times(k, slope, span, drive, np.array(inf), np.array(3e6), np.array(0.0))
 
 
-def test_switch_times_are_the_tables_definitions_to_the_bit() -> None:
+@pytest.mark.parametrize("n", [700, MERGED_LOOKUP_POINTS + 1])
+def test_switch_times_are_the_tables_definitions_to_the_bit(n: int) -> None:
     # centroid = td + G(λ·span/SR)/λ, mid = td + v(λ·span/(2·SR))/λ, overshoot =
     # td + G(λ·drive/SR)/λ with λ = β·2π·GBW, μ = slope/(k·SR) clamped at the table's top and
     # D = λ·td (the docstring), each table read on its own: however switch_times batches its
-    # look-ups, every value is the same to the bit, past the table's top level and below its
-    # first μ line too.
+    # look-ups (both levels in one up to MERGED_LOOKUP_POINTS, one each above), every value is
+    # the same to the bit, past the table's top level and below its first μ line too.
     rng = np.random.default_rng(11)
-    n = 700  # two edges of 700 rows: past the few-points look-up as well
     k = rng.uniform(0.05, 2.0, n)
     slope = 10.0 ** rng.uniform(1, 7, n)
     span = rng.uniform(0.5, 30.0, n)

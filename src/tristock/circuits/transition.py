@@ -19,11 +19,10 @@ differential equation
 
 with k = R1/R2 (μ = σ/(β·SR)). It has two parameters, so its solutions are tabulated once
 (``transition_table``, about 0.13 s and 20 MB; ``arraycache`` keeps the spline coefficients
-per machine) by a fourth-order rule on the equivalent
-form Φ' = μ + tanh(Φ(v - D)), Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points,
-and read back by quadratic B-spline interpolation (``gridspline``). For D = 0 the solution is
-closed:
-v(Φ) = -Φ/(1 - μ) + ln(((1 + μ)·e^(2Φ) - 1 + μ)/(2μ))/(1 - μ²) (separable, Y = Φ - μ·v).
+per machine) by a fourth-order rule on the equivalent form Φ' = μ + tanh(Φ(v - D)),
+Φ(v) = Y(v - D) + μ·v, whose delayed term falls on grid points, and read back by quadratic
+B-spline interpolation (``gridspline``). For D = 0 the solution is closed: v(Φ) = -Φ/(1 - μ)
++ ln(((1 + μ)·e^(2Φ) - 1 + μ)/(2μ))/(1 - μ²) (separable, Y = Φ - μ·v).
 
 What the oscillator needs from a transition that moves the output by L (scaled) is the mean
 time at which it passes each level on the way, G(L) = (1/L)·∫_0^L v(Y) dY: the transition acts
@@ -64,6 +63,8 @@ PAD = 3
 #: where it matters (0.007 against 0.002 in G; rounder at v's kink; ``gridspline``: quadratic).
 SPLINE_ORDER = 2
 EDGE_LEVEL_MIN = 0.1  # scaled level λ·V/SR from which (G1)-(G3) are verified
+#: Up to this many points ``switch_times`` reads both levels of table 0 in one look-up.
+MERGED_LOOKUP_POINTS = 8192
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 
@@ -222,8 +223,8 @@ def transition_table() -> TransitionTable:
 @cache
 def _coefficients() -> tuple[FloatArray, ...]:
     """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
-    per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions)."""
-    # scipy's version from its metadata: importing even the bare package costs about 12 ms
+    per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions;
+    scipy's read from its metadata: importing even the bare package costs about 12 ms)."""
     key = (Path(__file__).read_bytes(), np.__version__, metadata.version("scipy"))
     return cached_arrays("transition", key, _filtered_table)
 
@@ -247,9 +248,8 @@ def _axis(coord: FloatArray, lines: int) -> GridAxis:
 
 
 class _Place(NamedTuple):
-    """Points (μ, D) on the table's first two axes, shared by look-ups at several levels:
-    ``x`` the fractional grid coordinate in ln μ, ``below`` where it is under 0 (continued
-    linearly there), None when nowhere."""
+    """Points (μ, D) on the table's first two axes, shared by look-ups at several levels: ``x``
+    the grid coordinate in ln μ, ``below`` where it is under 0 (linear there), None: nowhere."""
 
     x: FloatArray
     below: npt.NDArray[np.bool_] | None
@@ -284,10 +284,9 @@ def _at_level(kind: int, place: _Place, level: FloatArray) -> FloatArray:
     beyond = level > math.exp(LN_LEVEL[-1])
     if np.any(beyond):
         u0 = _extrapolated(coeffs[2], place)
-        tail = (
-            u0 + _extrapolated(coeffs[3], place) / np.where(beyond, level, 1.0) if kind == 0 else u0
-        )
-        value = np.where(beyond, tail, value)
+        if kind == 0:
+            u0 = u0 + _extrapolated(coeffs[3], place) / np.where(beyond, level, 1.0)
+        value = np.where(beyond, u0, value)
     return value
 
 
@@ -357,9 +356,9 @@ def switch_times(
     td + drive/(2·SR). Finite GBW (SR must be finite): with λ = β·2π·GBW, β = k/(1 + k),
     D = λ·td, μ = slope/(k·SR): centroid = td + G(W)/λ with W = λ·span/SR, mid = td +
     v(W/2)/λ, overshoot = td + G(λ·drive/SR)/λ (G and v from ``scaled_mean_time`` and
-    ``scaled_level_time``). Valid while the
-    edge is short against the ramp (see the module notes) and μ <= 15 (the triangle's slope
-    below 15·k·SR; beyond, μ is clamped: the edge is then a delayed slew almost at once).
+    ``scaled_level_time``). Valid while the edge is short against the ramp (see the module
+    notes) and μ <= 15 (the triangle's slope below 15·k·SR; beyond, μ is clamped: the edge is
+    then a delayed slew almost at once).
     """
     infinite_slew = np.isinf(slew)
     if np.any(infinite_slew) and np.any(infinite_slew & np.isfinite(gbw)):
@@ -378,7 +377,7 @@ def switch_times(
         linear_mid, linear_over = linear()
         return SwitchTimes(linear_mid, linear_mid, linear_over)
     everywhere = bool(np.all(finite))
-    # each value is computed at the shape of its own arguments and broadcast at the end
+    # each value is computed at the shape of its own arguments, broadcast (copied) at the end
     safe_gbw = gbw if everywhere else np.where(finite, gbw, 1.0)
     safe_slew = slew if everywhere else np.where(finite, slew, 1.0)
     lam = k / (1.0 + k) * 2.0 * math.pi * safe_gbw
@@ -386,15 +385,16 @@ def switch_times(
     place = _place(mu, lam * delay)
     whole = lam * span / safe_slew
     half = 0.5 * whole
-    # both levels of table 0 in one look-up (each point's value is computed on its own)
     levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew))
-    g_whole, g_drive = _at_level(0, place, levels) + 0.5 * levels
+    if whole.size <= MERGED_LOOKUP_POINTS:  # one look-up for both levels (same values)
+        g_whole, g_drive = _at_level(0, place, levels) + 0.5 * levels
+    else:
+        g_whole, g_drive = (_at_level(0, place, x) + 0.5 * x for x in levels)
     v_mid = _at_level(1, place, half) + half
     times = [delay + g_whole / lam, delay + v_mid / lam, delay + g_drive / lam]
     if not everywhere:
         linear_mid, linear_over = linear()
         slewed = (linear_mid, linear_mid, linear_over)
         times = [np.where(finite, t, lin) for t, lin in zip(times, slewed, strict=True)]
-    # as arrays of their own, of the broadcast shape of every argument
     full = [t if t.shape == shape else np.broadcast_to(t, shape).copy() for t in times]
     return SwitchTimes(*full)
