@@ -162,9 +162,10 @@ def monte_carlo(
     ``seed``; the same seed gives the same samples. The samples' metrics do not depend on the
     bands and are remembered for the process (``SAMPLED``).
     """
-    return monte_carlo_many([design], spec, samples=samples, seed=seed, distribution=distribution)[
-        0
-    ]
+    (result,) = monte_carlo_many(
+        [design], spec, samples=samples, seed=seed, distribution=distribution
+    )
+    return result
 
 
 def monte_carlo_many(
