@@ -105,14 +105,7 @@ def metric_columns(
     """Metrics (3, rows) at the deviations ``z`` (rows, n), rows as ``METRICS``: ``evaluate``
     in batches of ``batch`` rows (every row is computed on its own, so the values are the
     same to the bit). ``z`` is best given with its columns contiguous (Fortran order)."""
-    rows = z.shape[0]
-    out = np.empty((len(METRICS), rows))
-    for start in range(0, rows, batch):
-        part = z[start : start + batch]
-        pred = board.predict(point_at(board, variables, part))
-        for m, metric in enumerate(METRICS):
-            out[m, start : start + part.shape[0]] = getattr(pred, metric)
-    return out
+    return joint_metric_columns([(board, variables)], z, batch)[0]
 
 
 def joint_point(points: Sequence[Any], sizes: Sequence[int]) -> Any:
@@ -142,7 +135,8 @@ def joint_metric_columns(
         part = z[start : start + step]
         n = part.shape[0]
         points = [point_at(board, variables, part) for board, variables in problems]
-        pred = problems[0][0].predict(joint_point(points, [n] * len(problems)))
+        point = points[0] if len(points) == 1 else joint_point(points, [n] * len(points))
+        pred = problems[0][0].predict(point)
         for m, metric in enumerate(METRICS):
             value = np.asarray(getattr(pred, metric), dtype=float)
             column = np.broadcast_to(value, (n * len(problems),))
