@@ -49,10 +49,10 @@ def test_derivatives_are_the_quadratics_where_the_step_reads_them() -> None:
     assert np.allclose(grad, exact_grad, atol=1e-6, rtol=0)
     free = ~held_variables(z, grad)
     both = free[:, :, None] & free[:, None, :]
-    diag = np.eye(5, dtype=bool)[None]
-    assert np.allclose(np.where(both | diag, hess, 0.0), np.where(both | diag, -f.a, 0.0), atol=1e-6)
+    read = both | np.eye(5, dtype=bool)[None]
+    assert np.allclose(np.where(read, hess, 0.0), np.where(read, -f.a, 0.0), atol=1e-6)
     # a cross term with a held variable is never read (``newton_direction``): not evaluated
-    assert np.all(hess[~both & ~diag] == 0.0)
+    assert np.all(hess[~read] == 0.0)
 
 
 def test_a_row_with_one_free_variable_costs_the_gradients_points_only() -> None:
