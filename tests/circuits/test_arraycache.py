@@ -12,7 +12,7 @@ import numpy.typing as npt
 import pytest
 
 from tristock.circuits import transition
-from tristock.circuits.arraycache import cache_dir, cached_arrays
+from tristock.circuits.arraycache import cache_dir, cached_arrays, package_stamp
 
 
 def counted(calls: list[int]) -> Callable[[], list[npt.NDArray[np.float64]]]:
@@ -86,3 +86,23 @@ def test_transition_coefficients_from_the_cache_equal_the_computed(
     assert len(list(tmp_path.glob("transition-*.npz"))) == 1
     for a, b, c in zip(computed, written, read, strict=True):
         assert np.array_equal(a, b) and np.array_equal(a, c)
+
+
+def test_package_stamp_names_the_installed_build_without_importing_it() -> None:
+    """scipy's stamp holds its installed version (importlib.metadata, the packaging
+    standard's record), and reading it imports no scipy module."""
+    import subprocess
+    import sys
+    from importlib import metadata
+
+    probe = (
+        "import sys; from tristock.circuits.arraycache import package_stamp; "
+        "s = package_stamp('scipy'); print(s.decode()); "
+        "print(any(m == 'scipy' or m.startswith('scipy.') for m in sys.modules))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", probe], capture_output=True, text=True, check=True
+    ).stdout
+    assert metadata.version("scipy") in out
+    assert out.rstrip().endswith("False")
+    assert package_stamp("no_such_package_here") == b""

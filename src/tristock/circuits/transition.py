@@ -37,14 +37,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import cache
-from importlib import metadata
 from pathlib import Path
 from typing import NamedTuple
 
 import numpy as np
 import numpy.typing as npt
 
-from tristock.circuits.arraycache import cached_arrays
+from tristock.circuits.arraycache import cached_arrays, package_stamp
 from tristock.circuits.gridspline import GridAxis, grid_axis, spline_value
 
 FloatArray = npt.NDArray[np.float64]
@@ -223,9 +222,9 @@ def transition_table() -> TransitionTable:
 @cache
 def _coefficients() -> tuple[FloatArray, ...]:
     """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
-    per machine (``arraycache``, keyed by this module's source and the numpy, scipy versions;
-    scipy's read from its metadata: importing even the bare package costs about 12 ms)."""
-    key = (Path(__file__).read_bytes(), np.__version__, metadata.version("scipy"))
+    per machine (``arraycache``, keyed by this module's source, the numpy version and scipy's
+    build, read without importing it: even the bare package costs about 12 ms)."""
+    key = (Path(__file__).read_bytes(), np.__version__, package_stamp("scipy"))
     return cached_arrays("transition", key, _filtered_table)
 
 
