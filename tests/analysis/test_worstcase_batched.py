@@ -9,9 +9,13 @@ from __future__ import annotations
 
 import dataclasses
 
+import numpy as np
+import pytest
+
 from tristock.analysis.bundle import analyse, analyse_many
 from tristock.analysis.memo import forget
 from tristock.analysis.montecarlo import monte_carlo, monte_carlo_many
+from tristock.analysis.spread import joint_point_at, point_at, point_fields, spread_board
 from tristock.analysis.worstcase import (
     REMEMBERED,
     WorstCase,
@@ -22,6 +26,7 @@ from tristock.analysis.worstcase import (
 )
 from tristock.circuits import spec_topologies
 from tristock.circuits.board import AnyBoard, Design
+from tristock.circuits.spreadvars import apply_joint
 from tristock.designs.fixed import design_of, run_engine
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.model import build_model
@@ -126,3 +131,22 @@ def test_monte_carlo_of_several_boards_equals_each_alone() -> None:
     assert together == alone
     assert len({r.passed for r in alone}) > 1  # the boards differ, each got its own
     assert monte_carlo_many([], spec) == []
+
+
+def test_one_point_for_several_boards_is_each_boards_point_to_the_bit() -> None:
+    """``joint_point_at`` with rows of three boards in mixed order (each board's own parts,
+    tolerances and tempcos) equals ``point_at`` of each board, field by field."""
+    spec, boards = demo_boards(3)
+    problems = [spread_board(b, spec) for b in boards]
+    n = len(problems[0][1])
+    z = np.random.default_rng(7).uniform(-1.0, 1.0, size=(40, n))
+    member = np.arange(40) % 3
+    joint = joint_point_at(problems, member, z)
+    for d, (board, variables) in enumerate(problems):
+        own = point_at(board, variables, z[member == d])
+        for f in point_fields(own):
+            alone = np.broadcast_to(getattr(own, f), ((member == d).sum(),))
+            assert np.array_equal(getattr(joint, f)[member == d], alone), f
+    other = dataclasses.replace(problems[1][1][0], moves=problems[1][1][1].moves)
+    with pytest.raises(ValueError, match="different fields or laws"):
+        apply_joint([problems[0][1][0], other], {}, z[:2, 0], np.arange(2))

@@ -21,7 +21,7 @@ from tristock.analysis.spread import (
     Board,
     SpreadVariable,
     evaluate,
-    joint_point,
+    joint_point_at,
     metric_table,
     point_at,
 )
@@ -179,16 +179,10 @@ def _joint_metrics(models: Sequence[_Model], member: IntArray, z: FloatArray) ->
     one call of the topology's model (the models share topology, wiring and variables)."""
     if len(models) == 1:
         return models[0](z)
-    groups = [np.flatnonzero(member == d) for d in range(len(models))]
-    points = []
-    for model, rows in zip(models, groups, strict=True):
-        model.evaluations += len(rows)
-        points.append(point_at(model.board, model.variables, z[rows]))
-    point = joint_point(points, [len(rows) for rows in groups])
-    table = metric_table(models[0].board.predict(point), len(z))
-    out = np.empty_like(table)
-    out[np.concatenate(groups)] = table
-    return out
+    for model, count in zip(models, np.bincount(member, minlength=len(models)), strict=True):
+        model.evaluations += int(count)
+    point = joint_point_at([(model.board, model.variables) for model in models], member, z)
+    return metric_table(models[0].board.predict(point), len(z))
 
 
 def _ascend(

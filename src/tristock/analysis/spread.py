@@ -22,7 +22,7 @@ import numpy.typing as npt
 from tristock.circuits.board import AnyBoard, Design
 from tristock.circuits.board import Board as GenericBoard
 from tristock.circuits.rails import Rails, rails_from_supply
-from tristock.circuits.spreadvars import PointValues, SpreadVariable
+from tristock.circuits.spreadvars import PointValues, SpreadVariable, apply_joint
 from tristock.circuits.topology import Prediction, Topology
 from tristock.spec.model import Spec
 
@@ -108,17 +108,23 @@ def metric_columns(
     return joint_metric_columns([(board, variables)], z, batch)[0]
 
 
-def joint_point(points: Sequence[Any], sizes: Sequence[int]) -> Any:
-    """One point of the same type holding ``points`` one after another (``sizes[i]`` rows of
-    each; a field a point holds as a scalar is repeated), for one model call over several
-    boards of one topology and wiring (every row is computed on its own)."""
-    fields = {
-        f: np.concatenate(
-            [np.broadcast_to(getattr(p, f), (n,)) for p, n in zip(points, sizes, strict=True)]
-        )
-        for f in point_fields(points[0])
+def joint_point_at(
+    problems: Sequence[tuple[Board, list[SpreadVariable]]],
+    member: npt.NDArray[np.intp],
+    z: FloatArray,
+) -> Any:
+    """One point whose row r is ``point_at`` of board ``problems[member[r]]`` at deviations
+    ``z[r]`` (rows, n): boards of one topology and wiring, variables of the same names, fields
+    and laws in the same order, each board with its own centre and bounds
+    (``spreadvars.apply_joint``); every row the same to the bit as ``point_at`` gives it."""
+    boards = [board for board, _ in problems]
+    values: PointValues = {
+        f: np.array([getattr(b.point, f) for b in boards], dtype=float)[member]
+        for f in point_fields(boards[0].point)
     }
-    return type(points[0])(**fields)
+    for i in range(z.shape[1]):
+        apply_joint([variables[i] for _, variables in problems], values, z[:, i], member)
+    return type(boards[0].point)(**values)
 
 
 def joint_metric_columns(
@@ -134,8 +140,11 @@ def joint_metric_columns(
     for start in range(0, rows, step):
         part = z[start : start + step]
         n = part.shape[0]
-        points = [point_at(board, variables, part) for board, variables in problems]
-        point = points[0] if len(points) == 1 else joint_point(points, [n] * len(points))
+        if len(problems) == 1:
+            point = point_at(*problems[0], part)
+        else:
+            member = np.repeat(np.arange(len(problems)), n)
+            point = joint_point_at(problems, member, np.tile(part, (len(problems), 1)))
         pred = problems[0][0].predict(point)
         for m, metric in enumerate(METRICS):
             value = np.asarray(getattr(pred, metric), dtype=float)
@@ -165,7 +174,7 @@ __all__ = [
     "check_inputs",
     "evaluate",
     "joint_metric_columns",
-    "joint_point",
+    "joint_point_at",
     "metric_columns",
     "metric_table",
     "point_at",

@@ -25,7 +25,7 @@ differentiates that box through the topology's ``predict`` and nothing else. The
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -81,18 +81,54 @@ class SpreadVariable:
 
     def apply(self, values: PointValues, z: FloatArray) -> None:
         """Move ``values`` (the point's fields by name) in place to the deviation ``z``."""
-        if self.temperature is not None:  # T - 25 °C, for the tempco laws
-            mid, half = self.temperature
-            delta_t = mid + half * z - 25.0
-        for m in self.moves:
-            if m.law == "scale":
-                values[m.field] = values[m.field] * (1.0 + m.amount * z)
-            elif m.law == "add":
-                values[m.field] = values[m.field] + m.amount * z
-            elif m.law == "tempco":
-                values[m.field] = values[m.field] * (1.0 + m.amount * 1e-6 * delta_t)
-            else:
-                values[m.field] = values[m.field] + m.amount * delta_t
+        _move(values, self.moves, [m.amount for m in self.moves], self.temperature, z)
+
+
+def apply_joint(
+    variables: Sequence[SpreadVariable],
+    values: PointValues,
+    z: FloatArray,
+    member: npt.NDArray[np.intp],
+) -> None:
+    """Move ``values`` (fields with one entry per row) in place as ``variables[member[r]]``
+    moves row r to ``z[r]``: one variable of several boards, the same fields and laws, each
+    with its own amounts and temperature range. The operations are ``apply``'s on the same
+    numbers, so every row comes out as ``apply`` gives it, to the bit."""
+    first = variables[0]
+    laws = [(m.field, m.law) for m in first.moves]
+    if any([(m.field, m.law) for m in v.moves] != laws for v in variables):
+        raise ValueError(f"{first.name}: the boards' variables move different fields or laws")
+    amounts = [np.array([v.moves[k].amount for v in variables])[member] for k in range(len(laws))]
+    ranges = [v.temperature for v in variables]
+    temperature = None
+    if first.temperature is not None:
+        if any(r is None for r in ranges):
+            raise ValueError(f"{first.name}: a temperature range on some boards only")
+        mid, half = np.array(ranges, dtype=float).T
+        temperature = (mid[member], half[member])
+    _move(values, first.moves, amounts, temperature, z)
+
+
+def _move(
+    values: PointValues,
+    moves: Sequence[FieldMove],
+    amounts: Sequence[float | FloatArray],
+    temperature: tuple[float | FloatArray, float | FloatArray] | None,
+    z: FloatArray,
+) -> None:
+    """Each move's law (module docstring) with its amount; T = mid + half·z."""
+    if temperature is not None:  # T - 25 °C, for the tempco laws
+        mid, half = temperature
+        delta_t = mid + half * z - 25.0
+    for m, amount in zip(moves, amounts, strict=True):
+        if m.law == "scale":
+            values[m.field] = values[m.field] * (1.0 + amount * z)
+        elif m.law == "add":
+            values[m.field] = values[m.field] + amount * z
+        elif m.law == "tempco":
+            values[m.field] = values[m.field] * (1.0 + amount * 1e-6 * delta_t)
+        else:
+            values[m.field] = values[m.field] + amount * delta_t
 
 
 @dataclass(frozen=True)
