@@ -163,11 +163,14 @@ class SearchModel:
                 index[n, slot], pieces[n, slot] = i, count
         return index, pieces
 
-    def stage_line_credit(self, o: OpAmpTerms) -> int:
-        """The most a row can gain in BOM-line credit from repeating the stage's resistor
-        codes in the divider or integrator: one line per such code. The pair bounds take it
-        off the stage's term, so they stay below every row's score."""
-        return self.shared_line_credit() * int(np.sum(self.stage_resistors[0][o.index] >= 0))
+    @cached_property
+    def stage_line_credits(self) -> NDArray[np.int64]:
+        """Per stage option (by its index), the most a row can gain in BOM-line credit from
+        repeating the stage's resistor codes in the divider or integrator: one line per such
+        code. The pair bounds take it off the stage's term, so they stay below every row's
+        score."""
+        codes = np.sum(self.stage_resistors[0] >= 0, axis=1)
+        return np.asarray(self.shared_line_credit() * codes, dtype=np.int64)
 
     def allows(self, designator: str, size: int) -> NDArray[np.bool_]:
         mask = self.allowed.get(designator)

@@ -127,6 +127,10 @@ class PairSource:
         r1 = np.flatnonzero(self.use_r1)
         self.r1_by_term = r1[np.argsort(self.r_term[r1], kind="stable")]
         self.r1_terms = self.r_term[self.r1_by_term]
+        #: ``stage_term`` of every stage option by its index
+        self.stage_terms = np.zeros(len(self.position), dtype=np.int64)
+        at = self.indices
+        self.stage_terms[at] = model.stage_terms[at] - model.stage_line_credits[at]
         self.lowest = np.inf
         self.highest = -np.inf
         if self.opamps:
@@ -143,15 +147,11 @@ class PairSource:
         #: pairs' own where the levels do not depend on the pair, else a first screen
         self.ratios = RatioTable(model, products, loops.take(class_position))
         self.groups = self._stage_groups()
-        #: ``stage_term`` of every stage option by its index
-        self.stage_terms = np.zeros(len(self.position), dtype=np.int64)
-        for o in model.opamps:
-            self.stage_terms[o.index] = self.stage_term(o)
 
     def stage_term(self, o: OpAmpTerms) -> int:
         """A lower bound of stage ``o``'s share of a row's score: its own term less the
         line credit a row can gain from repeating its resistor codes."""
-        return int(self.model.stage_terms[o.index]) - self.model.stage_line_credit(o)
+        return int(self.stage_terms[o.index])
 
     @property
     def everything(self) -> bool:
