@@ -17,7 +17,7 @@ import time
 import numpy as np
 import pytest
 
-from tristock.circuits import TOPOLOGIES
+from tristock.circuits import TOPOLOGIES, spec_topologies
 from tristock.designs.fixed import design_fixed
 from tristock.examples import demo_catalog_dir, example_spec_path
 from tristock.search.bounds import amplitude_bounds, share_p_floor, timing_share_floor, window
@@ -78,6 +78,25 @@ def test_deadline_while_building_is_not_proven(demo_model) -> None:  # type: ign
 def test_design_cut_short_never_says_infeasible() -> None:
     spec = load_spec(example_spec_path())
     result = design_fixed(spec, load_catalog(demo_catalog_dir()), time_limit_s=1e-4)
+    assert not result.search.proven_optimal
+    assert result.infeasible is None
+
+
+@pytest.mark.parametrize("example", ["clamped", "comparator"])
+def test_a_deadline_while_the_stage_options_are_made_cuts_the_model(example: str) -> None:
+    """The forms whose stage options grow with the resistor table (a clamp or pull-up R5)
+    stop making them at the deadline; the model says it is cut, the engines do not search
+    it, and the design is neither proven nor infeasible (common practice: a search cut
+    short knows nothing of what it did not build)."""
+    spec = load_spec(example_spec_path(example))
+    catalog = load_catalog(demo_catalog_dir())
+    topology = spec_topologies(spec)[0]
+    whole = build_model(spec, catalog, topology)
+    assert not whole.cut and whole.opamps
+    cut = build_model(spec, catalog, topology, deadline=time.perf_counter())
+    assert cut.cut and len(cut.opamps) < len(whole.opamps)
+    assert not any("clamp its square" in e.reason for e in cut.exclusions)
+    result = design_fixed(spec, catalog, time_limit_s=1e-4)
     assert not result.search.proven_optimal
     assert result.infeasible is None
 

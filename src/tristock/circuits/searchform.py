@@ -193,11 +193,14 @@ class SearchForm(ABC):
 
     @abstractmethod
     def stage_options(
-        self, spec: Spec, catalog: Catalog, r3_values: F64
+        self, spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
     ) -> tuple[list[StageOption], list[Exclusion]]:
         """Every usable stage on the spec's nominal rails (stock for ``spec.build.boards``,
         supply rating, levels both sides of the reference, Ve inside the levels for some R3
-        of ``r3_values``), and why each other candidate was left out."""
+        of ``r3_values``), and why each other candidate was left out. A form whose options
+        grow with the resistor table (a clamp or pull-up resistor in the stage) stops once
+        ``time.perf_counter()`` passes ``deadline`` and returns those made so far: the
+        caller sees the deadline passed and knows the list may be short."""
 
     @abstractmethod
     def level_bounds(

@@ -25,7 +25,7 @@ from tristock.designs.variants import distinct_top, variant_key, variants_out
 from tristock.search.enumeration import EngineResult, enumerate_top
 from tristock.search.explain import infeasible_reasons
 from tristock.search.model import SCORE_RESOLUTION, SearchModel, build_model
-from tristock.search.rows import Rows
+from tristock.search.rows import Rows, empty_rows
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
 
@@ -50,7 +50,10 @@ def design_of(model: SearchModel, rows: Rows, n: int) -> AnyBoard:
 
 def run_engine(model: SearchModel, engine: Engine, top: int, time_limit_s: float) -> EngineResult:
     """The engine's best ``top`` rows. A form with two integrator elements (the set-duty
-    loop) has one exact lister, ``search.branches``, whichever engine is named."""
+    loop) has one exact lister, ``search.branches``, whichever engine is named. A model the
+    deadline cut (``SearchModel.cut``) is not searched: no rows, nothing proven."""
+    if model.cut:
+        return EngineResult(empty_rows(), False, 0, 0.0)
     if len(model.form.integrator) == 2:
         from tristock.search.branches import branch_top
 
@@ -177,7 +180,7 @@ def design_fixed(
     """
     t0 = time.perf_counter()
     deadline = t0 + time_limit_s
-    model = build_model(spec, catalog, topology or spec_topologies(spec)[0])
+    model = build_model(spec, catalog, topology or spec_topologies(spec)[0], deadline=deadline)
     top = spec.ranking.top
     want = 2 * top if distinct else top  # distinct: variants take places in the row list
     verdicts: dict[tuple[str, ...], _Verdict] = {}  # a retry re-uses the re-checks done

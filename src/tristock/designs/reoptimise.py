@@ -128,7 +128,7 @@ def reoptimise(
                 )
 
     reduced = without_parts(catalog, without)
-    model = build_model(spec, reduced, circuit)
+    model = build_model(spec, reduced, circuit, deadline=t0 + time_limit_s)  # cut: not searched
     must_change = set(positions.names) - positions.keepable(model, current)
     must_change |= set(blocked)
     outside = {d for d in must_change if d not in blocked}

@@ -14,6 +14,8 @@ that is 1 ppm of frequency), so both engines and brute force compare exactly.
 
 from __future__ import annotations
 
+import math
+import time
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 
@@ -21,16 +23,14 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.opamp_schmitt import OPAMP_SCHMITT
-from tristock.circuits.opamp_schmitt.searchform import OpAmpStage
-from tristock.circuits.rails import OpAmpModel, Rails, rails_from_supply
+from tristock.circuits.rails import Rails, rails_from_supply
 from tristock.circuits.searchform import Exclusion, SearchForm, StageLoop, StageOption
 from tristock.circuits.topology import Topology
 from tristock.search.bounds import overshoot_fraction_cap
 from tristock.search.parts import PartTable, eligible_capacitors, eligible_resistors, in_series
-from tristock.search.targetpoint import TargetPoint, target_point
+from tristock.search.stageterms import OpAmpTerms, stage_terms_of
 from tristock.spec.model import Spec
 from tristock.stock.catalog import Catalog
-from tristock.stock.parts import OpAmp
 
 __all__ = [
     "BALANCED_WEIGHTS", "COST_RESOLUTION", "SCORE_RESOLUTION", "SECONDARY_SPAN", "Exclusion",
@@ -59,60 +59,6 @@ def quantise(x: NDArray[np.float64] | float) -> NDArray[np.int64]:
     return np.rint(np.asarray(x, dtype=np.float64) / SCORE_RESOLUTION).astype(np.int64)
 
 
-@dataclass(frozen=True)
-class OpAmpTerms:
-    """One stage option of the topology's search form, with what the search adds to it.
-
-    ``stage`` is the form's ``StageOption`` (its parts, stock, cost and ``loop``, what the
-    bounds need: the timing parameters, the square levels and the integrator error voltage
-    Ve = Vos1 + Ib1·R3 over the R3 values eligible, as intervals); ``k_range`` holds every
-    k = R1/R2 a row can meet the spec with (see ``_k_range``). ``part``, ``model``, ``vh``,
-    ``vl`` and ``target`` are the op-amp Schmitt loop's: its op amp U1, the op amp's terms,
-    the square levels, and the constants of the loop linearised at the target, None where
-    the full model cannot meet the target exactly or the topology is another (the
-    infeasibility reasons use them; ``target_note`` says why not). The target point is
-    found on first use (a Newton search of about twenty full-model evaluations per stage):
-    the engines never need it, so a big catalog's model does not wait for it.
-    """
-
-    index: int
-    part: OpAmp
-    model: OpAmpModel
-    vh: float
-    vl: float
-    loop: StageLoop
-    k_range: tuple[float, float]
-    stage: StageOption | None = None
-    #: The spec the target point is taken for (None: no target point).
-    spec: Spec | None = None
-    #: Where the form's ``divider_limit`` cut ``k_range``'s upper end: the limit's words
-    #: (the infeasibility reasons name it), else None.
-    k_cut: Exclusion | None = None
-
-    @property
-    def option(self) -> StageOption:
-        """The stage option (always set by ``build_model``)."""
-        if self.stage is None:
-            raise ValueError("stage: this OpAmpTerms was not built from a stage option")
-        return self.stage
-
-    @cached_property
-    def _target_found(self) -> tuple[TargetPoint | None, str]:
-        if not isinstance(self.stage, OpAmpStage) or self.spec is None:
-            return None, "the trimmed and tuned searches model the op-amp Schmitt loop only"
-        return target_point(self.part, self.spec, self.vh, self.vl)
-
-    @property
-    def target(self) -> TargetPoint | None:
-        """The loop linearised at the target (``search.targetpoint``), or None."""
-        return self._target_found[0]
-
-    @property
-    def target_note(self) -> str:
-        """Why ``target`` is None ("" when it is not)."""
-        return self._target_found[1]
-
-
 @dataclass
 class SearchModel:
     """Everything both engines need: eligible parts, op-amp loops, scoring."""
@@ -137,6 +83,9 @@ class SearchModel:
     #: Stage options dropped because the form's ``divider_limit`` left no k of their window
     #: (also among ``exclusions``; the infeasibility reasons name them).
     divider_cuts: list[Exclusion] = field(default_factory=list)
+    #: Set when the deadline stopped ``build_model`` before every stage option was made:
+    #: the model lacks some, so no search over it may be called proven or infeasible.
+    cut: bool = False
 
     @cached_property
     def stages(self) -> list[StageOption]:
@@ -165,11 +114,10 @@ class SearchModel:
 
     @cached_property
     def stage_line_credits(self) -> NDArray[np.int64]:
-        """Per stage option (by its index), the most a row can gain in BOM-line credit from
-        repeating the stage's resistor codes in the divider or integrator: one line per such
-        code. The pair bounds take it off the stage's term, so they stay below every row's
-        score."""
-        codes = np.sum(self.stage_resistors[0] >= 0, axis=1)
+        """Per stage option, the most a row gains in BOM-line credit by repeating the stage's
+        resistor codes in the divider or integrator (one line per code): the pair bounds take
+        it off the stage's term, so they stay below every row's score."""
+        codes = np.count_nonzero(self.stage_resistors[0] >= 0, axis=1)
         return np.asarray(self.shared_line_credit() * codes, dtype=np.int64)
 
     def allows(self, designator: str, size: int) -> NDArray[np.bool_]:
@@ -332,26 +280,17 @@ def _k_range(spec: Spec, loop: StageLoop) -> tuple[float, float]:
     return a_t * (1 - ta) / (span_hi * (1 + eps)), a_t * (1 + ta) / span_lo
 
 
-def _terms(
-    stage: StageOption, spec: Spec, k_range: tuple[float, float], k_cut: Exclusion | None
-) -> OpAmpTerms:
-    """The search's terms of one stage option (its target point found on first use)."""
-    vh, vl = stage.levels
-    u1 = stage.part if isinstance(stage, OpAmpStage) else stage.parts["U1"]
-    assert isinstance(u1, OpAmp)
-    model = stage.model if isinstance(stage, OpAmpStage) else OpAmpModel.from_part(u1)
-    return OpAmpTerms(stage.index, u1, model, vh, vl, stage.loop, k_range, stage, spec, k_cut)
-
-
 def _windowed(
-    form: SearchForm, stages: list[StageOption], spec: Spec
+    form: SearchForm, stages: list[StageOption], spec: Spec, deadline: float = math.inf
 ) -> tuple[list[OpAmpTerms], list[Exclusion]]:
     """Each stage's terms with its k window (``_k_range``) cut at the form's
     ``divider_limit``; a stage with no k left is dropped (its exclusion says why) and the
-    others renumbered in order."""
+    others renumbered in order. Stops at ``deadline`` (``time.perf_counter()``)."""
     kept: list[tuple[StageOption, tuple[float, float], Exclusion | None]] = []
     excl: list[Exclusion] = []
-    for stage in stages:
+    for n, stage in enumerate(stages):
+        if n % 256 == 0 and time.perf_counter() > deadline:
+            break
         k_lo, k_hi = _k_range(spec, stage.loop)
         k_max, why = form.divider_limit(stage)
         if k_max < k_lo:
@@ -360,24 +299,28 @@ def _windowed(
             continue
         kept.append((stage, (k_lo, min(k_hi, k_max)), why if k_max < k_hi else None))
     return [
-        _terms(replace(s, index=n) if s.index != n else s, spec, k, cut)
+        stage_terms_of(replace(s, index=n) if s.index != n else s, spec, k, cut)
         for n, (s, k, cut) in enumerate(kept)
     ], excl
 
 
-def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT) -> SearchModel:
+def build_model(
+    spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT, *, deadline: float = math.inf
+) -> SearchModel:
     """Eligible parts and the stage options of ``topology``'s search form for ``spec``;
     exclusions say why parts dropped. A topology without a search form (``search_form()``
-    None) raises ValueError naming it."""
+    None) raises ValueError naming it. Where ``time.perf_counter()`` passes ``deadline``
+    while the stage options are made, the model is ``cut``."""
     form = topology.search_form()
     if form is None:
         raise ValueError(f"topology: {topology.name} has no search form yet (not searchable)")
     res_table, excl = eligible_resistors(spec, catalog)
 
-    stages, stage_excl = form.stage_options(spec, catalog, res_table.value)
+    stages, stage_excl = form.stage_options(spec, catalog, res_table.value, deadline)
     excl += stage_excl
-    opamps, cut = _windowed(form, stages, spec)
-    excl += cut
+    opamps, divider_cuts = _windowed(form, stages, spec, deadline)
+    excl += divider_cuts
+    cut = time.perf_counter() > deadline
 
     cap_table, cap_excl = eligible_capacitors(spec, catalog, "C1")
     excl += cap_excl
@@ -390,5 +333,6 @@ def build_model(spec: Spec, catalog: Catalog, topology: Topology = OPAMP_SCHMITT
         exclusions=excl,
         form=form,
         topology=topology,
-        divider_cuts=cut,
+        divider_cuts=divider_cuts,
+        cut=cut,
     )

@@ -18,6 +18,7 @@ D1/D2, series resistor R5).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
@@ -74,9 +75,10 @@ class ClampedSchmittForm(SearchForm):
         self.topology = topology
 
     def stage_options(
-        self, spec: Spec, catalog: Catalog, r3_values: F64
+        self, spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
     ) -> tuple[list[StageOption], list[Exclusion]]:
-        stages, excl = clamp_stages(spec, catalog, r3_values)
+        """``clamp_stages``: U1 × zener × R5, paced by ``deadline``."""
+        stages, excl = clamp_stages(spec, catalog, r3_values, deadline)
         return list(stages), excl
 
     def level_bounds(

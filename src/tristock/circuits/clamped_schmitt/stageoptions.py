@@ -4,6 +4,8 @@ the stage limits)."""
 
 from __future__ import annotations
 
+import math
+import time
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
@@ -35,6 +37,10 @@ if TYPE_CHECKING:
     from tristock.stock.catalog import Catalog
 
 OpAmpAt = tuple[OpAmp, OpAmpModel, float, float]
+
+
+#: Stage options made between two looks at the clock (about 2 ms of work).
+PACE = 128
 
 
 def clamp_resistors(spec: Spec, catalog: Catalog) -> list[Resistor]:
@@ -170,9 +176,11 @@ def opamp_stages(
     r3_values: F64,
     rails: Rails,
     turn_v: float,
+    deadline: float = math.inf,
 ) -> tuple[list[ClampStage], list[Exclusion]]:
     """The stages of one op amp over every zener part (D1 = D2) and R5, zener-major in
-    catalog order, and the exclusions of the others."""
+    catalog order, and the exclusions of the others; those made before ``deadline``
+    (``time.perf_counter()``) only."""
     part, model, vh, vl = opamp
     pairs = [(z, z) for z in zeners]
     cols = candidate_columns(model, pairs, [r.value_ohm for r in resistors])
@@ -193,6 +201,8 @@ def opamp_stages(
         if why[n] is None:
             excl += limit_exclusions(part, z, resistors, LimitVerdict(*(x[n] for x in verdict)))
     for j, (n, r) in enumerate(zip(keep_z.tolist(), keep_r.tolist(), strict=True)):
+        if j % PACE == 0 and time.perf_counter() > deadline:
+            break
         ve = ve_all[(found[1][j] - ve_all > 0) & (found[3][j] + ve_all > 0)]
         if len(ve) == 0:
             reason = f"with U1 {part.id}: its Vos + Ib·R3 reaches a clamp level for every R3"
@@ -222,10 +232,11 @@ def with_levels(part: OpAmp, spec: Spec) -> OpAmpAt | str:
 
 
 def clamp_stages(
-    spec: Spec, catalog: Catalog, r3_values: F64
+    spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
 ) -> tuple[list[ClampStage], list[Exclusion]]:
     """Every usable stage in catalog order (op amp, zener, R5) and why each other candidate
-    was left out (``searchform`` module docstring)."""
+    was left out (``searchform`` module docstring); those made before ``deadline`` only
+    (``SearchForm.stage_options``)."""
     opamps, excl = stocked_opamps(spec, catalog, lambda _, part: with_levels(part, spec))
     zeners, zener_excl = stocked_zeners(spec, catalog)
     excl += zener_excl
@@ -238,12 +249,15 @@ def clamp_stages(
     rails = rails_from_supply(spec.supply)
     stages: list[ClampStage] = []
     for opamp in opamps:
+        if time.perf_counter() > deadline:
+            break
         made, why = opamp_stages(
-            len(stages), opamp, zeners, resistors, load, r3_values, rails, turn_reach(spec)
-        )
+            len(stages), opamp, zeners, resistors, load, r3_values, rails, turn_reach(spec),
+            deadline,
+        )  # fmt: skip
         stages += made
         excl += why
-        if not made:
+        if not made and time.perf_counter() <= deadline:  # not cut short
             reason = "no zener and R5 of the catalog clamp its square within the limits"
             excl.append(Exclusion("U1", opamp[0].id, reason))
     return stages, excl

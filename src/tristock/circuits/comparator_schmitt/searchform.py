@@ -83,10 +83,10 @@ class ComparatorSchmittForm(SearchForm):
         return k_max, Exclusion("U2", stage.comparator.id, words)
 
     def stage_options(
-        self, spec: Spec, catalog: Catalog, r3_values: F64
+        self, spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
     ) -> tuple[list[StageOption], list[Exclusion]]:
         """``stages.stage_options``: U1 × U2 (× R5), each usable on the nominal rails."""
-        found, excl = stage_options(spec, catalog, r3_values)
+        found, excl = stage_options(spec, catalog, r3_values, deadline)
         if self.open_drain:
             return list(found), excl
         why = (

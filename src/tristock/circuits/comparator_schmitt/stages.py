@@ -28,6 +28,7 @@ least its drive times o over the row's RC' (``physics``: the lag's part less its
 from __future__ import annotations
 
 import math
+import time
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, TypeVar
@@ -198,7 +199,7 @@ def stocked(parts: Sequence[P], designator: str, boards: int) -> tuple[list[P], 
 
 
 def stage_options(
-    spec: Spec, catalog: Catalog, r3_values: F64
+    spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
 ) -> tuple[list[ComparatorStage], list[Exclusion]]:
     """Every usable stage on the spec's nominal rails, in catalog order (U1, then U2, then
     R5), and why each other candidate was left out: U1 as the spec allows
@@ -209,7 +210,8 @@ def stage_options(
     no limit on comparators); R5 for an
     open-drain U2 stocked, not overloading U2 alone (``sink_reason``) and light enough for
     the stiffness rule with some R2, R3 (``stiffness_reason``); each combination
-    with Ve inside its levels for some R3 (``usable_error_voltages``)."""
+    with Ve inside its levels for some R3 (``usable_error_voltages``). Those made before
+    ``deadline`` (``time.perf_counter()``) only: ``SearchForm.stage_options``."""
     lim, boards = spec.limits, spec.build.boards
     rails = rails_from_supply(spec.supply)
     allowed = tuple(p for p in catalog.opamps if lim.opamps is None or p.id in lim.opamps)
@@ -242,6 +244,8 @@ def stage_options(
         if u2.is_open_drain:
             for_u2[u2.id] = []
             for pull in pull_ups:
+                if time.perf_counter() > deadline:
+                    return [], excl
                 reason = sink_reason(u2, pull, rails) or stiffness_reason(pull, box)
                 if reason is None:
                     for_u2[u2.id].append(pull)
@@ -251,6 +255,8 @@ def stage_options(
     for u1 in usable_u1:
         for u2 in usable_u2:
             for r5 in for_u2[u2.id]:
+                if time.perf_counter() > deadline:
+                    return stages, excl
                 ohm = r5.value_ohm if r5 else 0.0
                 ve = usable_error_voltages(u1, u2, ohm, box, rails, r3_values)
                 if len(ve) == 0:

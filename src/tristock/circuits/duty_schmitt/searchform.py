@@ -17,6 +17,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
@@ -131,8 +132,9 @@ class DutySchmittForm(SearchForm):
     probes_in_box = False
 
     def stage_options(
-        self, spec: Spec, catalog: Catalog, r3_values: F64
+        self, spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
     ) -> tuple[list[StageOption], list[Exclusion]]:
+        """``SearchForm.stage_options`` (op amps x signal diodes: few, not paced)."""
         diodes, excl = stocked_signal_diodes(spec, catalog)
         if not diodes:
             excl.append(Exclusion("D3", None, "no signal diode with stock for D3 and D4"))

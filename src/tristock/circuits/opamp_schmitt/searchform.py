@@ -8,6 +8,7 @@ intervals have equal ends.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, TypeVar
@@ -147,8 +148,9 @@ class OpAmpSchmittForm(SearchForm):
     stage_designators = ("U1",)
 
     def stage_options(
-        self, spec: Spec, catalog: Catalog, r3_values: F64
+        self, spec: Spec, catalog: Catalog, r3_values: F64, deadline: float = math.inf
     ) -> tuple[list[StageOption], list[Exclusion]]:
+        """``SearchForm.stage_options`` (one option per op amp: few, not paced)."""
         made, excl = stocked_opamps(
             spec, catalog, lambda index, part: opamp_stage(index, part, spec, r3_values)
         )
