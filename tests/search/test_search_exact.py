@@ -139,7 +139,7 @@ def score_key(
     idx = np.array([res[d.r1.id], res[d.r2.id], res[d.r3.id]])
     lines = d.bom_lines
     primary = (
-        model.opamp_term(ops[d.u1.id])
+        int(model.stage_terms[ops[d.u1.id].index])
         + int(model.resistor_term(idx).sum())
         + int(model.capacitor_term(np.array([cap[d.c1.id]]))[0])
         + int(model.row_term(np.array([e_f]), np.array([e_a]), np.array([share]))[0])

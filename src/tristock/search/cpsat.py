@@ -112,7 +112,7 @@ def _build(model: SearchModel, table: _Table) -> tuple[cp_model.CpModel, list[cp
     saved_lines = slots - cp_model.LinearExpr.sum(list(resistor_line.values()))
     primary = (
         cp_model.LinearExpr.weighted_sum(choose_row, [int(e) for e in row_term])
-        + sum(model.opamp_term(model.opamps[o]) * e for o, e in use_u1.items())
+        + sum(int(model.stage_terms[o]) * e for o, e in use_u1.items())
         + sum(int(r_term[i]) * e for i, e in use_r1.items())
         + sum(int(r_term[i]) * e for i, e in use_r2.items())
         + sum(int(r_term[i]) * e for i, e in use_r3.items())

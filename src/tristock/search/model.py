@@ -185,25 +185,17 @@ class SearchModel:
             return np.rint(cost / COST_RESOLUTION).astype(np.int64)
         return np.zeros(np.shape(tol), dtype=np.int64)
 
-    def opamp_term(self, u: OpAmpTerms) -> int:
-        """Primary-score term of a stage option: its cost per board and BOM lines."""
-        stage = u.option
-        if self.mode == "balanced":
-            w = BALANCED_WEIGHTS
-            return int(
-                quantise(
-                    w["cost"] * stage.cost_per_board / self.cost_scale
-                    + w["bom_lines"] * stage.lines
-                )
-            )
-        if self.mode == "cost":
-            return round(stage.cost_per_board / COST_RESOLUTION)
-        return 0
-
     @cached_property
     def stage_terms(self) -> NDArray[np.int64]:
-        """``opamp_term`` of every stage option, in the order of ``opamps``."""
-        return np.array([self.opamp_term(o) for o in self.opamps], dtype=np.int64)
+        """Primary-score term of every stage option, in the order of ``opamps``: its cost per
+        board and BOM lines."""
+        if self.mode == "balanced":
+            w = BALANCED_WEIGHTS
+            cost = w["cost"] * self.stage_costs / self.cost_scale
+            return quantise(cost + w["bom_lines"] * self.stage_lines)
+        if self.mode == "cost":
+            return np.rint(self.stage_costs / COST_RESOLUTION).astype(np.int64)
+        return np.zeros(len(self.opamps), dtype=np.int64)
 
     @cached_property
     def stage_costs(self) -> NDArray[np.float64]:
