@@ -101,7 +101,7 @@ def apply_joint(
     amounts = [np.array([v.moves[k].amount for v in variables])[member] for k in range(len(laws))]
     ranges = [v.temperature for v in variables]
     temperature = None
-    if first.temperature is not None:
+    if any(r is not None for r in ranges):
         if any(r is None for r in ranges):
             raise ValueError(f"{first.name}: a temperature range on some boards only")
         mid, half = np.array(ranges, dtype=float).T

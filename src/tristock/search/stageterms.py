@@ -22,8 +22,8 @@ class OpAmpTerms:
     ``stage`` is the form's ``StageOption`` (its parts, stock, cost and ``loop``, what the
     bounds need: the timing parameters, the square levels and the integrator error voltage
     Ve = Vos1 + Ib1·R3 over the R3 values eligible, as intervals); ``k_range`` holds every
-    k = R1/R2 a row can meet the spec with (see ``_k_range``). ``part``, ``model``, ``vh``,
-    ``vl`` and ``target`` are the op-amp Schmitt loop's: its op amp U1, the op amp's terms,
+    k = R1/R2 a row can meet the spec with (``search.model._k_range``). ``part``, ``model``,
+    ``vh``, ``vl`` and ``target`` are the op-amp Schmitt loop's: its op amp U1, its terms,
     the square levels, and the constants of the loop linearised at the target, None where
     the full model cannot meet the target exactly or the topology is another (the
     infeasibility reasons use them; ``target_note`` says why not). The target point is
