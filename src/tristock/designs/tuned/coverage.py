@@ -19,10 +19,11 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from tristock.analysis.montecarlo import yield_count
-from tristock.analysis.worstcase import box_extremes as spread_box_extremes
+from tristock.analysis.worstcase import box_extremes_many
 from tristock.circuits.board import Design, rails_from_supply
 from tristock.designs.tuned.network import dial_ends
 from tristock.spec.model import FrequencySpec, Spec
@@ -38,17 +39,23 @@ class EndExtremes:
     a_hi: float
 
 
-def box_extremes(design: Design, spec: Spec) -> EndExtremes | None:
-    """The analysis's extremes over its spread box at the design's wiper and range (None when
-    some board of the box cannot oscillate). The single place the box method is chosen."""
+def box_extremes(designs: Sequence[Design], spec: Spec) -> list[EndExtremes] | None:
+    """The analysis's extremes over the spread box of each design at its wiper and range,
+    searched together (``worstcase.box_extremes_many``: each the answer it gets alone); None
+    when some board of some box cannot oscillate (the model then refuses the whole call, as
+    it refuses the one end alone). The single place the box method is chosen."""
+    metrics = ("frequency_hz", "amplitude_vpp")
     try:
-        ext = spread_box_extremes(design, spec, ("frequency_hz", "amplitude_vpp"))
+        found = box_extremes_many([(d, spec) for d in designs], metrics)
     except ValueError:
         return None
-    (f_lo, f_hi), (a_lo, a_hi) = ext["frequency_hz"], ext["amplitude_vpp"]
-    if not all(math.isfinite(x) for x in (f_lo, f_hi, a_lo, a_hi)):
-        return None
-    return EndExtremes(f_lo, f_hi, a_lo, a_hi)
+    ends = []
+    for ext in found:
+        (f_lo, f_hi), (a_lo, a_hi) = ext["frequency_hz"], ext["amplitude_vpp"]
+        if not all(math.isfinite(x) for x in (f_lo, f_hi, a_lo, a_hi)):
+            return None
+        ends.append(EndExtremes(f_lo, f_hi, a_lo, a_hi))
+    return ends
 
 
 @dataclass(frozen=True)
@@ -72,10 +79,10 @@ def range_verdict(
     assert spec.tuning is not None
     bottom, top = dial_ends(spec.tuning.control)
     at = dataclasses.replace(design, selected=selected)
-    lo = box_extremes(dataclasses.replace(at, wiper=bottom), spec)
-    hi = box_extremes(dataclasses.replace(at, wiper=top), spec)
-    if lo is None or hi is None:
+    ends = box_extremes([dataclasses.replace(at, wiper=w) for w in (bottom, top)], spec)
+    if ends is None:
         return RangeVerdict(math.inf, 0.0, math.nan, math.nan, False)
+    lo, hi = ends
     f_bottom, f_top, a_big, a_small = probes
     gl = max(lo.f_hi, f_bottom) if math.isfinite(f_bottom) else lo.f_hi
     gh = min(hi.f_lo, f_top) if math.isfinite(f_top) else hi.f_lo
