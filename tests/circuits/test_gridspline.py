@@ -22,17 +22,18 @@ def reference(coeffs: np.ndarray, coords: Sequence[npt.ArrayLike]) -> np.ndarray
     return np.asarray(out).reshape(np.shape(coords[0]))
 
 
-@pytest.mark.parametrize("points", [FEW_POINTS, 4000])  # the gathered terms / one pass per term
+# the gathered terms (a single point, two, a few, the most), one pass per term (above)
+@pytest.mark.parametrize("points", [1, 2, 3, 27, 160, FEW_POINTS, FEW_POINTS + 1, 4000])
 @pytest.mark.parametrize("shape", [(9, 12), (7, 8, 11)])
 def test_equal_to_map_coordinates_bit_for_bit(shape: tuple[int, ...], points: int) -> None:
-    rng = np.random.default_rng(len(shape))
+    rng = np.random.default_rng(len(shape) + points)
     coeffs = rng.normal(size=shape) * 10.0 ** rng.integers(-3, 4, size=shape)
     # inside, on grid lines, on half lines (where n = round(c) rounds), and past both ends;
     # each axis clamped to [1, n - 2], so that the points never reach the edge lines
     coords = [rng.uniform(-1.0, n + 1.0, points) for n in shape]
     for c, n in zip(coords, shape, strict=True):
-        c[:40] = rng.integers(1, n - 1, 40)
-        c[40:80] = rng.integers(1, n - 2, 40) + 0.5
+        c[: points // 4] = rng.integers(1, n - 1, points // 4)
+        c[points // 4 : points // 2] = rng.integers(1, n - 2, points // 2 - points // 4) + 0.5
     axes = tuple(grid_axis(c, 1.0, n - 2.0) for c, n in zip(coords, shape, strict=True))
     clamped = [np.clip(c, 1.0, n - 2.0) for c, n in zip(coords, shape, strict=True)]
     assert np.array_equal(spline_value(coeffs, axes), reference(coeffs, clamped))
@@ -62,8 +63,26 @@ def test_nan_coordinates_give_nan_as_map_coordinates_does() -> None:
         assert np.isnan(got[1:3]).all() and np.isfinite(got[0])
 
 
+@pytest.mark.parametrize("points", [1, 5, FEW_POINTS + 7])
+def test_stacked_tables_read_as_one_call_per_table(points: int) -> None:
+    """Each point reads the table it names, to the bit as a call on that table alone (and as
+    map_coordinates on it)."""
+    rng = np.random.default_rng(points)
+    tables = rng.normal(size=(3, 7, 8, 11))
+    coords = [rng.uniform(1.0, n - 2.0, points) for n in (7, 8, 11)]
+    which = rng.integers(0, 3, points)
+    axes = tuple(grid_axis(c, 1.0, n - 2.0) for c, n in zip(coords, (7, 8, 11), strict=True))
+    got = spline_value(tables, axes, table=which)
+    for t in range(3):
+        alone = spline_value(np.ascontiguousarray(tables[t]), axes)
+        assert np.array_equal(got[which == t], alone[which == t])
+        assert np.array_equal(alone, reference(tables[t], coords))
+
+
 def test_a_table_that_does_not_fit_is_refused() -> None:
     with pytest.raises(ValueError, match="coeffs"):
         spline_value(np.zeros((4, 4)), (grid_axis(1.0, 1, 2),))
     with pytest.raises(ValueError, match="coeffs"):
         spline_value(np.zeros((4, 6))[:, ::2], (grid_axis(1.0, 1, 2), grid_axis(1.0, 1, 1)))
+    with pytest.raises(ValueError, match="coeffs"):  # a table index but one table only
+        spline_value(np.zeros((4, 4)), (grid_axis(1.0, 1, 2), grid_axis(1.0, 1, 2)), table=0)

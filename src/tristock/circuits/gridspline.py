@@ -19,11 +19,17 @@ Coordinates are clamped to [low, high]; the caller pads its table so that the cl
 never reach its outer lines (``map_coordinates`` would then apply its boundary mode). A NaN
 coordinate gives NaN, as it does in ``map_coordinates``.
 
-Up to ``FEW_POINTS`` points the 3^d coefficients of every point are gathered in one array and
-weighted axis by axis through broadcasting, and the terms summed in order by a cumulative sum
-(a handful of numpy calls, whatever d); above, one pass per term (3^d passes, faster for many
-points sharing axes). Both give the same bits, so the switch does not change any value; scipy
-is not imported (its ``ndimage`` costs about 50 ms of start-up).
+Several tables of one shape stacked along a first axis are read in one call, each point from
+its own (``table``): the same terms in the same order as one call per table.
+
+Up to ``FEW_POINTS`` points the 3^d coefficients of every point are gathered in one array,
+terms first (3^d, points), weighted axis by axis through broadcasting and summed over the
+first axis by ``np.add.reduce``, which adds row after row in order when that axis is not the
+fast one in memory (numpy sums pairwise only along the fast axis: at least two points are
+evaluated so that it never is); a dozen numpy calls whatever d. Above, one pass per term (3^d
+passes over arrays the size of the points, which stay in the cache). Both give the same bits,
+so the switch does not change any value; scipy is not imported (its ``ndimage`` costs about
+50 ms of start-up).
 """
 
 from __future__ import annotations
@@ -49,8 +55,10 @@ class GridAxis(NamedTuple):
     weights: tuple[FloatArray, FloatArray, FloatArray]
 
 
-#: Up to this many points ``spline_value`` gathers every term at once (module docstring).
-FEW_POINTS = 256
+#: Up to this many points ``spline_value`` gathers every term at once (module docstring):
+#: measured 2-3x faster than the passes from 64 to 1,024 points, even at 2,048, slower
+#: from 4,096 (``python tests/benchmark_recheck.py``'s machine, 3-d table).
+FEW_POINTS = 2048
 
 
 def grid_axis(coord: npt.ArrayLike, low: float, high: float) -> GridAxis:
@@ -67,31 +75,39 @@ def grid_axis(coord: npt.ArrayLike, low: float, high: float) -> GridAxis:
     return GridAxis(c, nearest, (w0, w1, w2))
 
 
-def spline_value(coeffs: FloatArray, axes: tuple[GridAxis, ...]) -> FloatArray:
+def spline_value(
+    coeffs: FloatArray, axes: tuple[GridAxis, ...], table: npt.ArrayLike | None = None
+) -> FloatArray:
     """The quadratic B-spline with coefficients ``coeffs`` (a C-contiguous table, one
-    ``GridAxis`` per dimension) at the points, shaped as the axes broadcast together."""
-    if len(axes) != coeffs.ndim or not coeffs.flags.c_contiguous:
+    ``GridAxis`` per dimension) at the points, shaped as the axes broadcast together.
+
+    ``table``: ``coeffs`` holds several tables of one shape along a first axis, and each point
+    reads the table of this index (whole numbers, broadcast with the axes)."""
+    stacked = table is not None
+    if len(axes) + stacked != coeffs.ndim or not coeffs.flags.c_contiguous:
         raise ValueError("coeffs: expected a C-contiguous table with one axis per dimension")
-    shape = np.broadcast_shapes(*(np.shape(axis.first) for axis in axes))
     flat = coeffs.ravel()
     steps = [stride // coeffs.itemsize for stride in coeffs.strides]
-    start = np.atleast_1d(sum(axis.first * step for axis, step in zip(axes, steps, strict=True)))
+    start = sum(axis.first * step for axis, step in zip(axes, steps[stacked:], strict=True))
+    if stacked:  # whole numbers far below 2^53: the sum is exact
+        start = start + np.asarray(table, dtype=float) * steps[0]
+    shape = np.shape(start)
+    start = np.atleast_1d(start)
     missing = np.isnan(start)
     has_missing = bool(np.any(missing))
     first = np.where(missing, 0.0, start).astype(np.intp) if has_missing else start.astype(np.intp)
-    if math.prod(shape) <= FEW_POINTS:
-        total = _gathered(flat, tuple(steps), axes, first.reshape(shape))
-        if has_missing:
-            total[missing.reshape(shape)] = math.nan
-        return total
-    total = np.zeros(first.shape)
-    term = np.empty(first.shape)
-    for offsets in itertools.product(range(3), repeat=len(axes)):
-        shift = sum(o * step for o, step in zip(offsets, steps, strict=True))
-        flat[shift:].take(first, out=term, mode="clip")
-        for axis, o in zip(axes, offsets, strict=True):
-            term *= axis.weights[o]
-        total += term
+    grid_steps = tuple(steps[stacked:])
+    if first.size <= FEW_POINTS:
+        total = _gathered(flat, grid_steps, axes, first)
+    else:
+        total = np.zeros(first.shape)
+        term = np.empty(first.shape)
+        for offsets in itertools.product(range(3), repeat=len(axes)):
+            shift = sum(o * step for o, step in zip(offsets, grid_steps, strict=True))
+            flat[shift:].take(first, out=term, mode="clip")
+            for axis, o in zip(axes, offsets, strict=True):
+                term *= axis.weights[o]
+            total += term
     if has_missing:
         total[missing] = math.nan
     return total.reshape(shape)
@@ -99,12 +115,12 @@ def spline_value(coeffs: FloatArray, axes: tuple[GridAxis, ...]) -> FloatArray:
 
 @functools.cache
 def _term_offsets(steps: tuple[int, ...]) -> npt.NDArray[np.intp]:
-    """Flat offsets of the 3^d terms from a point's first coefficient, shaped (3,)*d: term
-    (o1, ..., od) at index (o1, ..., od), so that C order is the order of the sum."""
+    """Flat offsets of the 3^d terms from a point's first coefficient, a column (3^d, 1) in C
+    order of the terms (o1, ..., od), the order of the sum."""
     offsets = np.zeros((3,) * len(steps), dtype=np.intp)
     for axis, step in enumerate(steps):
         offsets += (np.arange(3) * step).reshape((3,) + (1,) * (len(steps) - 1 - axis))
-    return offsets
+    return offsets.reshape(-1, 1)
 
 
 def _gathered(
@@ -113,19 +129,22 @@ def _gathered(
     axes: tuple[GridAxis, ...],
     first: npt.NDArray[np.intp],
 ) -> FloatArray:
-    """``spline_value`` at few points: every point's 3^d coefficients in one array (points'
-    shape + (3,)*d), multiplied by each axis's weights in turn, summed in C order of the terms
-    (``cumsum`` adds one by one, as the passes do; + 0.0 as their sum starts from 0.0)."""
+    """``spline_value`` at few points: every point's 3^d coefficients in one array (3,)*d +
+    (points,), multiplied by each axis's weights in turn, summed over the terms in C order
+    (module docstring: a single point is evaluated twice so that the terms are never the fast
+    axis; + 0.0 as the passes' sum starts from 0.0)."""
     d = len(axes)
-    shape = first.shape
-    term = flat.take(first.reshape(shape + (1,) * d) + _term_offsets(steps), mode="clip")
+    size = first.size
+    points = max(size, 2)
+    index = np.broadcast_to(first.reshape(-1), (points,))
+    term = flat.take(_term_offsets(steps) + index, mode="clip").reshape((3,) * d + (points,))
     for n, axis in enumerate(axes):
-        weights = np.empty((*np.shape(axis.first), 3))  # an axis's weights share its shape
+        weights = np.empty((3, *first.shape))  # each axis's weights broadcast to the points
         for o in range(3):
-            weights[..., o] = axis.weights[o]
-        term *= weights.reshape(weights.shape[:-1] + (1,) * n + (3,) + (1,) * (d - 1 - n))
-    total: FloatArray = np.cumsum(term.reshape((*shape, -1)), axis=-1)[..., -1] + 0.0
-    return total
+            weights[o] = axis.weights[o]
+        term *= weights.reshape((1,) * n + (3,) + (1,) * (d - 1 - n) + (size,))
+    total: FloatArray = np.add.reduce(term.reshape(3**d, points), axis=0)[:size] + 0.0
+    return total.reshape(first.shape)
 
 
 __all__ = ["GridAxis", "grid_axis", "spline_value"]

@@ -62,8 +62,12 @@ PAD = 3
 #: where it matters (0.007 against 0.002 in G; rounder at v's kink; ``gridspline``: quadratic).
 SPLINE_ORDER = 2
 EDGE_LEVEL_MIN = 0.1  # scaled level λ·V/SR from which (G1)-(G3) are verified
-#: Up to this many points ``switch_times`` reads both levels of table 0 in one look-up.
+#: Up to this many points ``switch_times`` reads its three levels in one look-up.
 MERGED_LOOKUP_POINTS = 8192
+#: ``switch_times``'s three levels (whole edge, drive, half edge): their level tables (0: G(L) -
+#: L/2, 1: v(L) - L) and what turns a table's value into G or v (+ 0.5·L, + L).
+_LEVEL_KINDS = np.array([0.0, 0.0, 1.0])
+_LEVEL_SHIFTS = np.array([0.5, 0.5, 1.0])
 #: Integration step per growth time 1/r(D) of the linear regime.
 STEP_PER_GROWTH = 0.03
 
@@ -219,24 +223,36 @@ def transition_table() -> TransitionTable:
     return TransitionTable(mean, level, u0, c2)
 
 
+class _Coefficients(NamedTuple):
+    """B-spline coefficients of the padded table: ``levels`` the two level tables stacked
+    (index 0: G(L) - L/2, 1: v(L) - L; read in one look-up, ``gridspline``'s ``table``),
+    ``u0`` and ``c2`` on (ln μ, ln(1 + D))."""
+
+    levels: FloatArray
+    u0: FloatArray
+    c2: FloatArray
+
+
 @cache
-def _coefficients() -> tuple[FloatArray, ...]:
-    """B-spline coefficients of the table's four arrays (scipy.ndimage's spline_filter), once
-    per machine (``arraycache``, keyed by this module's source, the numpy version and scipy's
+def _coefficients() -> _Coefficients:
+    """B-spline coefficients of the table's arrays (scipy.ndimage's spline_filter), once per
+    machine (``arraycache``, keyed by this module's source, the numpy version and scipy's
     build, read without importing it: even the bare package costs about 12 ms)."""
     key = (Path(__file__).read_bytes(), np.__version__, package_stamp("scipy"))
-    return cached_arrays("transition", key, _filtered_table)
+    return _Coefficients(*cached_arrays("transition", key, _filtered_table))
 
 
 def _filtered_table() -> list[FloatArray]:
     from scipy.ndimage import spline_filter  # here: a cache miss only (about 50 ms to import)
 
     tab = transition_table()
-    padded = (
-        np.pad(a, PAD, mode="reflect", reflect_type="odd")
+    mean, level, u0, c2 = (
+        spline_filter(
+            np.pad(a, PAD, mode="reflect", reflect_type="odd"), SPLINE_ORDER, mode="nearest"
+        )
         for a in (tab.mean_time, tab.level_time, tab.u0, tab.c2)
     )
-    return [spline_filter(a, order=SPLINE_ORDER, mode="nearest") for a in padded]
+    return [np.stack([mean, level]), u0, c2]
 
 
 def _axis(coord: FloatArray, lines: int) -> GridAxis:
@@ -257,35 +273,38 @@ class _Place(NamedTuple):
 
 
 def _place(mu: FloatArray, delay: FloatArray) -> _Place:
-    shape = _coefficients()[0].shape
+    shape = _coefficients().u0.shape
     x = (np.log(mu) - LN_MU[0]) / (LN_MU[1] - LN_MU[0])
     y = np.log1p(np.maximum(delay, 0.0)) / (Q_DELAY[1] - Q_DELAY[0])
     below = x < 0.0
     return _Place(x, below if np.any(below) else None, _axis(x, shape[0]), _axis(y, shape[1]))
 
 
-def _extrapolated(coeffs: FloatArray, place: _Place, *rest: GridAxis) -> FloatArray:
-    """The B-spline at (μ, D, *rest), continued linearly below the first grid line in ln μ."""
-    value = spline_value(coeffs, (place.mu, place.delay, *rest))
+def _extrapolated(
+    coeffs: FloatArray, place: _Place, *rest: GridAxis, table: FloatArray | None = None
+) -> FloatArray:
+    """The B-spline at (μ, D, *rest), continued linearly below the first grid line in ln μ
+    (``table``: which of the stacked tables each point reads)."""
+    value = spline_value(coeffs, (place.mu, place.delay, *rest), table)
     if place.below is not None:
-        at_zero = spline_value(coeffs, (_axis(np.zeros(()), coeffs.shape[0]), place.delay, *rest))
-        at_one = spline_value(coeffs, (_axis(np.ones(()), coeffs.shape[0]), place.delay, *rest))
+        lines = coeffs.shape[-2 - len(rest)]  # the μ axis
+        at_zero = spline_value(coeffs, (_axis(np.zeros(()), lines), place.delay, *rest), table)
+        at_one = spline_value(coeffs, (_axis(np.ones(()), lines), place.delay, *rest), table)
         value = np.where(place.below, at_zero + place.x * (at_one - at_zero), value)
     return value
 
 
-def _at_level(kind: int, place: _Place, level: FloatArray) -> FloatArray:
-    """Table ``kind`` (0: G(L) - L/2, 1: v(L) - L) at ``place`` and levels L, the saturated
-    forms past L_max."""
+def _at_level(kind: FloatArray, place: _Place, level: FloatArray) -> FloatArray:
+    """The level tables ``kind`` (0: G(L) - L/2, 1: v(L) - L; whole numbers broadcast with the
+    levels) at ``place`` and levels L, the saturated forms past L_max, in one look-up."""
     coeffs = _coefficients()
     z = (np.log(np.maximum(level, 1e-300)) - LN_LEVEL[0]) / (LN_LEVEL[1] - LN_LEVEL[0])
-    value = _extrapolated(coeffs[kind], place, _axis(z, coeffs[kind].shape[2]))
+    value = _extrapolated(coeffs.levels, place, _axis(z, coeffs.levels.shape[3]), table=kind)
     beyond = level > math.exp(LN_LEVEL[-1])
     if np.any(beyond):
-        u0 = _extrapolated(coeffs[2], place)
-        if kind == 0:
-            u0 = u0 + _extrapolated(coeffs[3], place) / np.where(beyond, level, 1.0)
-        value = np.where(beyond, u0, value)
+        u0 = _extrapolated(coeffs.u0, place)
+        mean = u0 + _extrapolated(coeffs.c2, place) / np.where(beyond, level, 1.0)
+        value = np.where(beyond, np.where(kind == 0, mean, u0), value)
     return value
 
 
@@ -294,7 +313,7 @@ def _lookup(kind: int, mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.Array
     mu_a, d_a, l_a = np.broadcast_arrays(
         np.asarray(mu, dtype=float), np.asarray(delay, dtype=float), np.asarray(level, dtype=float)
     )
-    return _at_level(kind, _place(mu_a, d_a), l_a)
+    return _at_level(np.full(l_a.shape, float(kind)), _place(mu_a, d_a), l_a)
 
 
 def scaled_mean_time(mu: npt.ArrayLike, delay: npt.ArrayLike, level: npt.ArrayLike) -> FloatArray:
@@ -384,12 +403,15 @@ def switch_times(
     place = _place(mu, lam * delay)
     whole = lam * span / safe_slew
     half = 0.5 * whole
-    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew))
-    if whole.size <= MERGED_LOOKUP_POINTS:  # one look-up for both levels (same values)
-        g_whole, g_drive = _at_level(0, place, levels) + 0.5 * levels
+    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew, half))
+    if whole.size <= MERGED_LOOKUP_POINTS:  # one look-up for all three levels (same values)
+        found = _at_level(_LEVEL_KINDS.reshape((3,) + (1,) * whole.ndim), place, levels)
+        g_whole, g_drive, v_mid = found + _LEVEL_SHIFTS.reshape((3,) + (1,) * whole.ndim) * levels
     else:
-        g_whole, g_drive = (_at_level(0, place, x) + 0.5 * x for x in levels)
-    v_mid = _at_level(1, place, half) + half
+        g_whole, g_drive, v_mid = (
+            _at_level(np.full((), kind), place, x) + shift * x
+            for kind, shift, x in zip(_LEVEL_KINDS, _LEVEL_SHIFTS, levels, strict=True)
+        )
     times = [delay + g_whole / lam, delay + v_mid / lam, delay + g_drive / lam]
     if not everywhere:
         linear_mid, linear_over = linear()
