@@ -94,7 +94,7 @@ def spline_value(
     shape = np.shape(start)
     start = np.atleast_1d(start)
     missing = np.isnan(start)
-    has_missing = bool(np.any(missing))
+    has_missing = bool(missing.any())
     first = np.where(missing, 0.0, start).astype(np.intp) if has_missing else start.astype(np.intp)
     grid_steps = tuple(steps[stacked:])
     if first.size <= FEW_POINTS:
@@ -135,15 +135,15 @@ def _gathered(
     axis; + 0.0 as the passes' sum starts from 0.0)."""
     d = len(axes)
     size = first.size
-    points = max(size, 2)
-    index = np.broadcast_to(first.reshape(-1), (points,))
-    term = flat.take(_term_offsets(steps) + index, mode="clip").reshape((3,) * d + (points,))
+    index = first.reshape(1, -1) if size > 1 else np.repeat(first.reshape(1, 1), 2, axis=1)
+    points = first.shape if size > 1 else (2,)
+    term = flat.take(_term_offsets(steps) + index, mode="clip").reshape((3,) * d + points)
     for n, axis in enumerate(axes):
-        weights = np.empty((3, *first.shape))  # each axis's weights broadcast to the points
-        for o in range(3):
-            weights[o] = axis.weights[o]
-        term *= weights.reshape((1,) * n + (3,) + (1,) * (d - 1 - n) + (size,))
-    total: FloatArray = np.add.reduce(term.reshape(3**d, points), axis=0)[:size] + 0.0
+        weights = np.array(axis.weights)  # (3, the axis's shape), which broadcasts to the points'
+        lead = (1,) * n + (3,) + (1,) * (d - 1 - n)
+        tail = weights.shape[1:] if size > 1 else ()
+        term *= weights.reshape(lead + (1,) * (len(points) - len(tail)) + tail)
+    total: FloatArray = np.add.reduce(term.reshape(3**d, -1), axis=0)[:size] + 0.0
     return total.reshape(first.shape)
 
 

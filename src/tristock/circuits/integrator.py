@@ -43,8 +43,9 @@ def integrator_terms(rc: FloatArray, gbw: FloatArray) -> IntegratorTerms:
     """
     with np.errstate(divide="ignore"):
         wt = 2.0 * math.pi * gbw
-        eps = np.where(np.isinf(gbw), 0.0, 1.0 / (wt * rc))
-        lag = np.where(np.isinf(gbw), 0.0, 1.0 / (wt * (1.0 + eps)))
+        ideal = np.isinf(gbw)
+        eps = np.where(ideal, 0.0, 1.0 / (wt * rc))
+        lag = np.where(ideal, 0.0, 1.0 / (wt * (1.0 + eps)))
     return IntegratorTerms(1.0 + eps, lag)
 
 
@@ -56,7 +57,7 @@ def _w0_of_minus_exp(c: FloatArray) -> FloatArray:
     z = np.maximum(-np.exp(-np.minimum(c, 700.0)), -math.exp(-1.0))  # the branch point
     out = z * (1.0 - z * (1.0 - z * (1.5 - z * (8.0 / 3.0 - z * 125.0 / 24.0))))
     near = c < 4.0
-    if np.any(near):
+    if near.any():
         out = np.where(near, lambert_w0(np.where(near, z, -0.1)), out)
     return np.asarray(out, dtype=float)
 
@@ -77,7 +78,7 @@ def lag_overshoot_area(
     For a real edge (a build-up, then the slew) the area is that of its linear part; it is
     below SR·τi²/2, about 1 mV of peak for realistic parts, so the approximation is harmless.
     """
-    if bool(np.all(np.isinf(slew))):  # steps only: the closed form, no Lambert W
+    if bool(np.isinf(slew).all()):  # steps only: the closed form, no Lambert W
         with np.errstate(divide="ignore", invalid="ignore"):
             step = np.where(lag > 0.0, after * lag * np.log1p(before / after), 0.0)
         shape = np.broadcast_shapes(*(np.shape(x) for x in (before, after, slew, lag)))
@@ -93,13 +94,13 @@ def lag_overshoot_area(
         t_end = (before + after) / slew
         area = 0.5 * slew * (t_cross - before / slew) ** 2
         early = t_cross <= t_end
-        if not np.all(early):
+        if not early.all():
             t_late = t_end + safe_lag * np.log(
                 slew * safe_lag * -np.expm1(-t_end / safe_lag) / after
             )
             tail = 0.5 * after**2 / slew + after * (t_late - t_end)
             area = np.where(early, area, tail)
         stepped = np.isinf(slew)
-        if np.any(stepped):
+        if stepped.any():
             area = np.where(stepped, after * safe_lag * np.log1p(before / after), area)
     return np.asarray(area if everywhere else np.where(lagging, area, 0.0), dtype=float)

@@ -75,17 +75,19 @@ def loop_timing(
     """``LoopTiming`` of the loop, vectorised over broadcast arguments (see the module
     docstring). ``gbw`` is the comparator's gain-bandwidth, ``integrator_gbw`` the
     integrator's (Hz)."""
-    k, rc, span, a, b, sr, sf, td, gbw, igbw = np.broadcast_arrays(
-        *(
-            np.asarray(x, dtype=float)
-            for x in (k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw)
-        )
-    )
+    values = [
+        np.asarray(x, dtype=float)
+        for x in (k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw)
+    ]
+    shape = np.broadcast(*values).shape
+    if any(v.shape != shape for v in values):
+        values = np.broadcast_arrays(*values)
+    k, rc, span, a, b, sr, sf, td, gbw, igbw = values
     slow, lag = integrator_terms(rc, igbw)
     rc_eff = rc * slow
     # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
-    drive = np.stack([b, a])
-    slew = np.stack([sr, sf])
+    drive = np.array([b, a])  # one shape: the same as np.stack, with less overhead
+    slew = np.array([sr, sf])
     edges = switch_times(k, drive / rc_eff, span, drive, slew, gbw, td)
     (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
     d_r = c_r + lag
@@ -94,7 +96,7 @@ def loop_timing(
     period = span * (ramp / (a * b) + d_r / a + d_f / b)
     high = (ramp + b * d_r) / a + d_r + m_f - m_r
     ideal = span * k * span * rc / (a * b)
-    area_r, area_f = lag_overshoot_area(drive, np.stack([a, b]), slew, lag)
+    area_r, area_f = lag_overshoot_area(drive, np.array([a, b]), slew, lag)
     return LoopTiming(
         period,
         high,

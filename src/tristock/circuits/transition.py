@@ -277,7 +277,7 @@ def _place(mu: FloatArray, delay: FloatArray) -> _Place:
     x = (np.log(mu) - LN_MU[0]) / (LN_MU[1] - LN_MU[0])
     y = np.log1p(np.maximum(delay, 0.0)) / (Q_DELAY[1] - Q_DELAY[0])
     below = x < 0.0
-    return _Place(x, below if np.any(below) else None, _axis(x, shape[0]), _axis(y, shape[1]))
+    return _Place(x, below if below.any() else None, _axis(x, shape[0]), _axis(y, shape[1]))
 
 
 def _extrapolated(
@@ -301,7 +301,7 @@ def _at_level(kind: FloatArray, place: _Place, level: FloatArray) -> FloatArray:
     z = (np.log(np.maximum(level, 1e-300)) - LN_LEVEL[0]) / (LN_LEVEL[1] - LN_LEVEL[0])
     value = _extrapolated(coeffs.levels, place, _axis(z, coeffs.levels.shape[3]), table=kind)
     beyond = level > math.exp(LN_LEVEL[-1])
-    if np.any(beyond):
+    if beyond.any():
         u0 = _extrapolated(coeffs.u0, place)
         mean = u0 + _extrapolated(coeffs.c2, place) / np.where(beyond, level, 1.0)
         value = np.where(beyond, np.where(kind == 0, mean, u0), value)
@@ -379,7 +379,7 @@ def switch_times(
     then a delayed slew almost at once).
     """
     infinite_slew = np.isinf(slew)
-    if np.any(infinite_slew) and np.any(infinite_slew & np.isfinite(gbw)):
+    if infinite_slew.any() and (infinite_slew & np.isfinite(gbw)).any():
         raise ValueError(
             "slew: a finite gbw needs a finite slew rate (the comparator's input stage "
             "saturates at SR·tanh(2π·GBW·e/SR))"
@@ -389,12 +389,12 @@ def switch_times(
         with np.errstate(divide="ignore", invalid="ignore"):
             return delay + 0.5 * span / slew, delay + 0.5 * drive / slew
 
-    shape = np.broadcast_shapes(*(np.shape(x) for x in (k, slope, span, drive, slew, gbw, delay)))
+    shape = np.broadcast(k, slope, span, drive, slew, gbw, delay).shape
     finite = np.isfinite(gbw)
-    if not np.any(finite):
+    if not finite.any():
         linear_mid, linear_over = linear()
         return SwitchTimes(linear_mid, linear_mid, linear_over)
-    everywhere = bool(np.all(finite))
+    everywhere = bool(finite.all())
     # each value is computed at the shape of its own arguments, broadcast (copied) at the end
     safe_gbw = gbw if everywhere else np.where(finite, gbw, 1.0)
     safe_slew = slew if everywhere else np.where(finite, slew, 1.0)
@@ -403,7 +403,11 @@ def switch_times(
     place = _place(mu, lam * delay)
     whole = lam * span / safe_slew
     half = 0.5 * whole
-    levels = np.stack(np.broadcast_arrays(whole, lam * drive / safe_slew, half))
+    drive_level = lam * drive / safe_slew
+    if drive_level.shape == whole.shape:
+        levels = np.array([whole, drive_level, half])  # np.stack's values, less overhead
+    else:
+        levels = np.stack(np.broadcast_arrays(whole, drive_level, half))
     if whole.size <= MERGED_LOOKUP_POINTS:  # one look-up for all three levels (same values)
         found = _at_level(_LEVEL_KINDS.reshape((3,) + (1,) * whole.ndim), place, levels)
         g_whole, g_drive, v_mid = found + _LEVEL_SHIFTS.reshape((3,) + (1,) * whole.ndim) * levels
