@@ -81,7 +81,7 @@ def loop_timing(
     ]
     shape = np.broadcast(*values).shape
     if any(v.shape != shape for v in values):
-        values = np.broadcast_arrays(*values)
+        values = list(np.broadcast_arrays(*values))
     k, rc, span, a, b, sr, sf, td, gbw, igbw = values
     slow, lag = integrator_terms(rc, igbw)
     rc_eff = rc * slow
