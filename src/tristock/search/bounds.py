@@ -314,10 +314,29 @@ def _edge(
     down = np.broadcast_to(np.asarray(side) < 0, (n,))
     ok = np.broadcast_to(claimed(loop, k), (n,))
 
+    # what the period reads of the loop, one array of n each (indexed by each call's rows)
+    sr, sf, gbw, igbw, short, long = (
+        np.broadcast_to(x, (n,))
+        for x in (
+            loop.slew_rise, loop.slew_fall, loop.gbw, loop.integrator_gbw, loop.delay,
+            loop.delay_hi,
+        )
+    )  # fmt: skip
+
     def period(p: Array, sel: NDArray[np.int64]) -> Array:
-        sub = StageLoop(*(np.broadcast_to(x, (n,))[sel] for x in loop))
-        delay = np.where(down[sel], sub.delay_hi, sub.delay)
-        return _timing(sub, k[sel], p, span[sel], a[sel], b[sel], delay=delay).period_s
+        ks = k[sel]
+        return loop_timing(
+            ks,
+            p / ks,
+            span[sel],
+            a[sel],
+            b[sel],
+            slew_rise=sr[sel],
+            slew_fall=sf[sel],
+            delay=np.where(down[sel], long[sel], short[sel]),
+            gbw=gbw[sel],
+            integrator_gbw=igbw[sel],
+        ).period_s
 
     p = np.maximum(target * a * b / (span * span), 1e-30)  # the ideal switch's P (too large)
     todo = np.flatnonzero(ok)
