@@ -12,6 +12,7 @@ import dataclasses
 import numpy as np
 import pytest
 
+from tristock.analysis.boxsearch import all_corners, balanced_points
 from tristock.analysis.bundle import analyse, analyse_many
 from tristock.analysis.memo import forget
 from tristock.analysis.montecarlo import monte_carlo, monte_carlo_many
@@ -150,3 +151,19 @@ def test_one_point_for_several_boards_is_each_boards_point_to_the_bit() -> None:
     other = dataclasses.replace(problems[1][1][0], moves=problems[1][1][1].moves)
     with pytest.raises(ValueError, match="different fields or laws"):
         apply_joint([problems[0][1][0], other], {}, z[:2, 0], np.arange(2))
+
+
+@pytest.mark.parametrize("example", ["demo", "duty"])
+def test_balanced_points_of_rows_together_equal_each_row_alone(example: str) -> None:
+    """``boxsearch.balanced_points`` computes each point from its own row: the rows of several
+    objectives passed at once give, row by row, the points each row gives alone (to the bit),
+    with the index of the row each point came from."""
+    spec, boards = demo_boards(1, example)
+    board, variables = spread_board(boards[0], spec)
+    rows = all_corners(len(variables))[::97][:12]
+    together, source = balanced_points(board, variables, rows)
+    assert len(together) > 0 and np.all(np.abs(together) <= 1.0)
+    for r in range(len(rows)):
+        alone, from_row = balanced_points(board, variables, rows[r : r + 1])
+        assert np.array_equal(from_row, np.zeros(len(alone), dtype=np.int64))
+        assert np.array_equal(together[source == r], alone)

@@ -101,12 +101,16 @@ def _corner_starts(
     return [z[k] for k in order], [vals[k] for k in order], "corners"
 
 
-def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatArray) -> FloatArray:
+def balanced_points(
+    board: Board, variables: list[SpreadVariable], rows: FloatArray
+) -> tuple[FloatArray, IntArray]:
     """From each row, each rail moved alone (the other rail at -1 and at +1) to where the
-    integrator's drives balance (``Topology.drive_imbalance`` = 0), where that lies in [-1, 1].
+    integrator's drives balance (``Topology.drive_imbalance`` = 0), where that lies in [-1, 1];
+    and the index of the row each point comes from.
 
     The imbalance is affine in a rail's z (VH and VL are; Ve does not depend on the rails), so
-    the root from its values at z = -1 and z = +1 is exact. (k, n), k <= 4·len(rows)."""
+    the root from its values at z = -1 and z = +1 is exact. (k, n), k <= 4·len(rows); every
+    point is computed from its row alone, so rows may be passed together or apart."""
     rails = [i for i, v in enumerate(variables) if v.rail]
     bases: list[tuple[int, FloatArray]] = []
     for r in rails:
@@ -119,10 +123,11 @@ def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatAr
                 base[:, o] = end
                 bases.append((r, base))
     if not bases:
-        return np.empty((0, rows.shape[1]))
+        return np.empty((0, rows.shape[1])), np.empty(0, dtype=np.int64)
     lo = np.vstack([b for _, b in bases])
     hi = lo.copy()
     column = np.repeat([r for r, _ in bases], rows.shape[0])
+    source = np.tile(np.arange(rows.shape[0], dtype=np.int64), len(bases))
     at = np.arange(len(lo))
     lo[at, column], hi[at, column] = -1.0, 1.0
     i_lo = board.drive_imbalance(point_at(board, variables, lo))
@@ -132,7 +137,7 @@ def balanced_points(board: Board, variables: list[SpreadVariable], rows: FloatAr
     root = lo[ok]
     root[np.arange(len(root)), column[ok]] = -1.0 + 2.0 * i_lo[ok] / (i_lo[ok] - i_hi[ok])
     clipped: npt.NDArray[np.float64] = np.clip(root, -1.0, 1.0)
-    return clipped
+    return clipped, source[ok]
 
 
 class _Starts(NamedTuple):
@@ -154,7 +159,12 @@ def _starts(
 ) -> _Starts:
     """Per objective its best corners and its best balanced-swing points."""
     board, variables = model.board, model.variables
-    balanced = [np.unique(balanced_points(board, variables, rows), axis=0) for rows in corner_rows]
+    # every objective's corners in one call, then each objective's points apart
+    points, source = balanced_points(board, variables, np.vstack(corner_rows))
+    objective_of = np.repeat(np.arange(len(corner_rows)), [len(rows) for rows in corner_rows])
+    balanced = [
+        np.unique(points[objective_of[source] == o], axis=0) for o in range(len(corner_rows))
+    ]
     stacked = np.vstack(balanced)
     balanced_vals = model(stacked) if len(stacked) else np.empty((0, len(METRICS)))
     starts, start_vals, owner, first_row = [], [], [], 0
