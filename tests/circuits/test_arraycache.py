@@ -11,7 +11,7 @@ import numpy as np
 import numpy.typing as npt
 import pytest
 
-from tristock.circuits import transition
+from tristock.circuits import edgetable
 from tristock.circuits.arraycache import cache_dir, cached_arrays, package_stamp
 
 
@@ -75,14 +75,14 @@ def test_transition_coefficients_from_the_cache_equal_the_computed(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     monkeypatch.setenv("TRISTOCK_CACHE_DIR", str(tmp_path))
-    computed = [np.asarray(a) for a in transition._filtered_table()]
-    transition._coefficients.cache_clear()
+    computed = [np.asarray(a) for a in edgetable._filtered_table()]
+    edgetable.coefficients.cache_clear()
     try:
-        written = transition._coefficients()  # computes and stores
-        transition._coefficients.cache_clear()
-        read = transition._coefficients()  # reads the file back
+        written = edgetable.coefficients()  # computes and stores
+        edgetable.coefficients.cache_clear()
+        read = edgetable.coefficients()  # reads the file back
     finally:
-        transition._coefficients.cache_clear()
+        edgetable.coefficients.cache_clear()
     assert len(list(tmp_path.glob("transition-*.npz"))) == 1
     for a, b, c in zip(computed, written, read, strict=True):
         assert np.array_equal(a, b) and np.array_equal(a, c)

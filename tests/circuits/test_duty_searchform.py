@@ -16,11 +16,9 @@ import numpy as np
 from tristock.circuits import TOPOLOGIES
 from tristock.circuits.duty_schmitt.physics import predict_point
 from tristock.circuits.duty_schmitt.searchform import LEVEL_TIME_MIN, row_point
+from tristock.circuits.edgetable import LN_LEVEL, LN_MU, Q_DELAY
 from tristock.circuits.rails import rails_from_supply
 from tristock.circuits.transition import (
-    LN_LEVEL,
-    LN_MU,
-    Q_DELAY,
     scaled_level_time,
     scaled_mean_time,
 )

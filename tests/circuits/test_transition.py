@@ -11,10 +11,9 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
+from tristock.circuits.edgetable import LN_MU, growth_rate
 from tristock.circuits.transition import (
-    LN_MU,
     MERGED_LOOKUP_POINTS,
-    growth_rate,
     scaled_level_time,
     scaled_mean_time,
     switch_times,

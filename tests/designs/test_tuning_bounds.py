@@ -16,9 +16,10 @@ import numpy as np
 import pytest
 from numpy.typing import NDArray
 
+from tristock.circuits.edgetable import LN_LEVEL, LN_MU, Q_DELAY
 from tristock.circuits.integrator import lag_overshoot_area
 from tristock.circuits.looptiming import LoopTiming, loop_timing
-from tristock.circuits.transition import LN_LEVEL, LN_MU, Q_DELAY, scaled_mean_time
+from tristock.circuits.transition import scaled_mean_time
 from tristock.designs.tuned.dial import AREA_ROUNDING
 from tristock.designs.tuned.edges import OVERSHOOT_EXCESS, EdgeTables
 from tristock.designs.tuned.loopbounds import (

@@ -17,10 +17,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from tristock.circuits.edgetable import LN_LEVEL, LN_MU, Q_DELAY
 from tristock.circuits.looptiming import loop_timing
 from tristock.circuits.opamp_schmitt.physics import predict
 from tristock.circuits.searchform import StageLoop
-from tristock.circuits.transition import LN_LEVEL, LN_MU, Q_DELAY, scaled_mean_time
+from tristock.circuits.transition import scaled_mean_time
 from tristock.search.bounds import (
     EDGE_LEVEL_MIN,
     amplitude_bounds,

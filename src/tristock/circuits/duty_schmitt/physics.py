@@ -41,9 +41,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from tristock.circuits.diode import forward_chain, saturation_current
+from tristock.circuits.edgetable import LN_MU
 from tristock.circuits.integrator import integrator_terms
 from tristock.circuits.topology import FloatArray, Prediction, Value
-from tristock.circuits.transition import LN_MU, scaled_level_time, scaled_mean_time
+from tristock.circuits.transition import scaled_level_time, scaled_mean_time
 
 
 @dataclass(frozen=True)

@@ -54,7 +54,8 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.transition import EDGE_LEVEL_MIN, LN_MU, scaled_mean_time
+from tristock.circuits.edgetable import LN_MU
+from tristock.circuits.transition import EDGE_LEVEL_MIN, scaled_mean_time
 
 F64 = NDArray[np.float64]
 I64 = NDArray[np.int64]
