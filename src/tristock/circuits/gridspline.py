@@ -56,8 +56,8 @@ class GridAxis(NamedTuple):
 
 
 #: Up to this many points ``spline_value`` gathers every term at once (module docstring):
-#: measured 2-3x faster than the passes from 64 to 1,024 points, even at 2,048, slower
-#: from 4,096 (``python tests/benchmark_recheck.py``'s machine, 3-d table).
+#: 1.5-4x faster than the passes from 8 to 1,024 points, still ahead at 2,048, behind from
+#: 4,096 on the edge's 3-d table (``python tests/benchmark_spline.py``).
 FEW_POINTS = 2048
 
 
