@@ -12,8 +12,10 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from tristock.circuits.edgetable import LN_MU, growth_rate
+from tristock.circuits.looptiming import loop_period, loop_timing
 from tristock.circuits.transition import (
     MERGED_LOOKUP_POINTS,
+    centroid_times,
     scaled_level_time,
     scaled_mean_time,
     switch_times,
@@ -145,3 +147,30 @@ def test_switch_times_are_the_tables_definitions_to_the_bit(n: int) -> None:
     assert np.array_equal(got.mid, td + scaled_level_time(mu, d, 0.5 * whole) / lam)
     assert np.array_equal(got.overshoot, td + scaled_mean_time(mu, d, lam * drive / slew) / lam)
     assert np.any(whole > 200.0) and np.any(mu < 1e-6)  # both continuations were read
+
+
+@pytest.mark.parametrize("n", [1, 5, 700, MERGED_LOOKUP_POINTS + 1])
+def test_centroids_alone_and_the_period_alone_are_the_full_models_to_the_bit(n: int) -> None:
+    # centroid_times is switch_times' centroid, and loop_period loop_timing's period, however
+    # either batches its look-ups (every value is computed on its own): ideal comparators
+    # (GBW = inf, a linear slew) mixed in, past the table's top level and below its first μ.
+    rng = np.random.default_rng(n)
+    k = rng.uniform(0.05, 2.0, n)
+    rc = 10.0 ** rng.uniform(-6, -2, n)
+    span = rng.uniform(0.5, 30.0, n)
+    a, b = span * rng.uniform(0.05, 0.95, (2, n))
+    slew = 10.0 ** rng.uniform(5, 8, (2, n))
+    gbw = 10.0 ** rng.uniform(4, 8, n)
+    gbw[::4] = inf
+    td = rng.uniform(0.0, 2e-6, n)
+    edges = dict(slew_rise=slew[0], slew_fall=slew[1], delay=td, gbw=gbw, integrator_gbw=gbw)
+    full = loop_timing(k, rc, span, a, b, **edges)
+    assert np.array_equal(loop_period(k, rc, span, a, b, **edges), full.period_s)
+    slope = np.array([b, a]) / rc
+    got = centroid_times(k, slope, span, slew, gbw, td)
+    assert np.array_equal(
+        got, switch_times(k, slope, span, np.array([b, a]), slew, gbw, td).centroid
+    )
+    one = dict(slew_rise=1e6, slew_fall=2e6, delay=1e-7, gbw=3e6, integrator_gbw=inf)
+    single = loop_timing(1.0, 1e-4, 10.0, 5.0, 5.0, **one).period_s
+    assert np.array_equal(loop_period(1.0, 1e-4, 10.0, 5.0, 5.0, **one), single)

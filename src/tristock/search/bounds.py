@@ -70,7 +70,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.circuits.looptiming import LoopTiming, loop_timing
+from tristock.circuits.looptiming import LoopTiming, loop_period, loop_timing
 from tristock.circuits.searchform import StageLoop
 from tristock.circuits.transition import EDGE_LEVEL_MIN
 
@@ -84,29 +84,31 @@ class Bounds(NamedTuple):
     hi: Array
 
 
+def _edges(loop: StageLoop, delay: Array | None) -> dict[str, Array]:
+    """The loop's edge and op-amp arguments of ``loop_timing``, with the edges' transport
+    delay ``delay`` (the loop's shortest, ``loop.delay``, when not given)."""
+    return {
+        "slew_rise": loop.slew_rise,
+        "slew_fall": loop.slew_fall,
+        "delay": loop.delay if delay is None else delay,
+        "gbw": loop.gbw,
+        "integrator_gbw": loop.integrator_gbw,
+    }
+
+
 def _timing(
-    loop: StageLoop,
-    k: Array,
-    p: Array,
-    span: Array,
-    a: Array,
-    b: Array,
-    delay: Array | None = None,
+    loop: StageLoop, k: Array, p: Array, span: Array, a: Array, b: Array, delay: Array | None = None
 ) -> LoopTiming:
     """The loop's timing at P = k·RC with the span VH + VL and the drives a and b, the edges'
-    transport delay ``delay`` (the loop's shortest, ``loop.delay``, when not given)."""
-    return loop_timing(
-        k,
-        p / k,
-        span,
-        a,
-        b,
-        slew_rise=loop.slew_rise,
-        slew_fall=loop.slew_fall,
-        delay=loop.delay if delay is None else delay,
-        gbw=loop.gbw,
-        integrator_gbw=loop.integrator_gbw,
-    )
+    transport delay ``delay`` (``_edges``)."""
+    return loop_timing(k, p / k, span, a, b, **_edges(loop, delay))
+
+
+def _period(
+    loop: StageLoop, k: Array, p: Array, span: Array, a: Array, b: Array, delay: Array | None = None
+) -> Array:
+    """``_timing(...).period_s`` alone, the same to the bit (``looptiming.loop_period``)."""
+    return loop_period(k, p / k, span, a, b, **_edges(loop, delay))
 
 
 def _at_both_delays(
@@ -153,8 +155,8 @@ def period_bounds(loop: StageLoop, k: Array, p: Array) -> Bounds:
     """Bounds of the period at (k, P) over the Ve range (s): by (M2) the weakest drives give
     the longest period and the strongest the shortest; (0, inf) where no bound is claimed."""
     t = Bounds(
-        _timing(loop, k, p, *_strong(loop)).period_s,
-        _timing(loop, k, p, *_weak(loop), delay=loop.delay_hi).period_s,
+        _period(loop, k, p, *_strong(loop)),
+        _period(loop, k, p, *_weak(loop), delay=loop.delay_hi),
     )
     return _or_unbounded(claimed(loop, k), t)
 
@@ -267,7 +269,7 @@ def p_ceiling(loop: StageLoop, k: Array, t_max: Array | float) -> Array:
     p = np.asarray(t_max * a * b / (span * span) * (1.0 + 1e-6), dtype=float)
     p = np.broadcast_to(p, np.shape(k))
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-        period = _timing(loop, k, p, span, a, b).period_s
+        period = _period(loop, k, p, span, a, b)
         verified = claimed(loop, k) & (period > t_max)
     return np.asarray(np.where(verified, p, np.inf), dtype=float)
 
@@ -325,7 +327,7 @@ def _edge(
 
     def period(p: Array, sel: NDArray[np.int64]) -> Array:
         ks = k[sel]
-        return loop_timing(
+        return loop_period(
             ks,
             p / ks,
             span[sel],
@@ -336,7 +338,7 @@ def _edge(
             delay=np.where(down[sel], long[sel], short[sel]),
             gbw=gbw[sel],
             integrator_gbw=igbw[sel],
-        ).period_s
+        )
 
     p = np.maximum(target * a * b / (span * span), 1e-30)  # the ideal switch's P (too large)
     todo = np.flatnonzero(ok)
