@@ -59,13 +59,47 @@ class LoopTiming(NamedTuple):
         return np.asarray(1.0 - self.ideal_period_s / self.period_s)
 
 
-def _broadcast(*args: ArrayLike) -> list[FloatArray]:
-    """The arguments as float arrays of one shape (views, not copies, where they have it)."""
+class _Loop(NamedTuple):
+    """The arguments of ``loop_timing`` as float arrays of one shape, with the integrator's
+    terms and both edges' drives and slews stacked along a first axis (rising: the top turn,
+    drive b; falling: drive a)."""
+
+    k: FloatArray
+    rc: FloatArray
+    span: FloatArray
+    a: FloatArray
+    b: FloatArray
+    delay: FloatArray
+    gbw: FloatArray
+    rc_eff: FloatArray
+    lag: FloatArray
+    drive: FloatArray
+    slew: FloatArray
+
+    @property
+    def ramp(self) -> FloatArray:
+        """k·span·RC' (V·s)."""
+        return self.k * self.span * self.rc_eff
+
+
+def _loop(*args: ArrayLike) -> _Loop:
+    """``_Loop`` of (k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw),
+    broadcast together (views, not copies, where they have the shape already)."""
     values = [np.asarray(x, dtype=float) for x in args]
     shape = np.broadcast(*values).shape
     if any(v.shape != shape for v in values):
         values = list(np.broadcast_arrays(*values))
-    return values
+    k, rc, span, a, b, sr, sf, td, gbw, igbw = values
+    slow, lag = integrator_terms(rc, igbw)
+    # one shape: np.array gives np.stack's values with less overhead
+    return _Loop(k, rc, span, a, b, td, gbw, rc * slow, lag, np.array([b, a]), np.array([sr, sf]))
+
+
+def _period(lp: _Loop, ramp: FloatArray, d_r: FloatArray, d_f: FloatArray) -> FloatArray:
+    """T = span·(ramp/(a·b) + d_r/a + d_f/b) (s), ramp = k·span·RC' (``_Loop.ramp``): the one
+    formula both callers use."""
+    period: FloatArray = lp.span * (ramp / (lp.a * lp.b) + d_r / lp.a + d_f / lp.b)
+    return period
 
 
 def loop_timing(
@@ -84,25 +118,18 @@ def loop_timing(
     """``LoopTiming`` of the loop, vectorised over broadcast arguments (see the module
     docstring). ``gbw`` is the comparator's gain-bandwidth, ``integrator_gbw`` the
     integrator's (Hz)."""
-    k, rc, span, a, b, sr, sf, td, gbw, igbw = _broadcast(
-        k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw
-    )
-    slow, lag = integrator_terms(rc, igbw)
-    rc_eff = rc * slow
-    # both edges at once, along a first axis: rising (top turn, drive b), falling (drive a)
-    drive = np.array([b, a])  # one shape: the same as np.stack, with less overhead
-    slew = np.array([sr, sf])
-    edges = switch_times(k, drive / rc_eff, span, drive, slew, gbw, td)
+    lp = _loop(k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw)
+    k, rc, span, a, b = lp.k, lp.rc, lp.span, lp.a, lp.b
+    rc_eff, lag, drive, ramp = lp.rc_eff, lp.lag, lp.drive, lp.ramp
+    edges = switch_times(k, drive / rc_eff, span, drive, lp.slew, lp.gbw, lp.delay)
     (c_r, c_f), (m_r, m_f), (o_r, o_f) = edges
     d_r = c_r + lag
     d_f = c_f + lag
-    ramp = k * span * rc_eff
-    period = span * (ramp / (a * b) + d_r / a + d_f / b)
     high = (ramp + b * d_r) / a + d_r + m_f - m_r
     ideal = span * k * span * rc / (a * b)
-    area_r, area_f = lag_overshoot_area(drive, np.array([a, b]), slew, lag)
+    area_r, area_f = lag_overshoot_area(drive, np.array([a, b]), lp.slew, lag)
     return LoopTiming(
-        period,
+        _period(lp, ramp, d_r, d_f),
         high,
         ideal,
         (b * (o_r + lag) - area_r) / rc_eff,
@@ -133,13 +160,7 @@ def loop_period(
     """``loop_timing(...).period_s`` alone, the same to the bit: only the edges' centroids
     are read from the edge table (``transition.centroid_times``), one look-up a point instead
     of three, and no lag area is computed."""
-    k, rc, span, a, b, sr, sf, td, gbw, igbw = _broadcast(
-        k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw
-    )
-    slow, lag = integrator_terms(rc, igbw)
-    rc_eff = rc * slow
-    drive = np.array([b, a])
-    c_r, c_f = centroid_times(k, drive / rc_eff, span, np.array([sr, sf]), gbw, td)
-    ramp = k * span * rc_eff
-    period: FloatArray = span * (ramp / (a * b) + (c_r + lag) / a + (c_f + lag) / b)
-    return period
+    lp = _loop(k, rc, span, a, b, slew_rise, slew_fall, delay, gbw, integrator_gbw)
+    slope = lp.drive / lp.rc_eff
+    c_r, c_f = centroid_times(lp.k, slope, lp.span, lp.slew, lp.gbw, lp.delay)
+    return _period(lp, lp.ramp, c_r + lp.lag, c_f + lp.lag)
