@@ -9,9 +9,9 @@ C1, largest Cn). The cost of any design with n ranges through the core is then a
     chain(n) = cheapest capacitor ≥ C1min + cheapest ≤ Cnmax + (n - 2)·cheapest capacitor
 
 (for n = 1 the larger of the first two). ``Cores.select`` lists every combination whose bound
-(with its own pair's cost) is at most a threshold θ, for designs with n ranges; the same
-bounds with the pair's exact k and tolerances (``pair_factors``) then tighten each one.
-Nothing is left out that could cost θ or less.
+(with its own pair's cost) is at most a threshold θ, for designs with n ranges; ``tighten``
+gives one combination the same bounds with its pair's exact k and tolerances
+(``pair_factors``), when the walk reaches it. Nothing is left out that could cost θ or less.
 """
 
 from __future__ import annotations
@@ -27,7 +27,7 @@ from numpy.typing import NDArray
 from tristock.designs.tuned.bounds import chain_floor, shared_bounds, top_feasible
 from tristock.designs.tuned.chains import INF
 from tristock.designs.tuned.corners import KFactors, corners, pair_factors, window_factors
-from tristock.designs.tuned.keys import IntCache, TimeUp, shared_keys
+from tristock.designs.tuned.keys import IntCache, TimeUp
 from tristock.designs.tuned.model import MAX_RANGES, Pairs, TunedModel
 from tristock.designs.tuned.network import Shared, empty_shared
 
@@ -35,13 +35,13 @@ I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]
 #: Cores expanded into combinations at a time (each with up to every pair of its op amp).
 CHUNK = 64
-#: Combinations whose bound is tightened at a time (between two looks at the clock).
-TIGHTEN_BATCH = 2048
 #: Cores whose shared bounds are computed at a time (between two looks at the clock; every
 #: core's bounds are its own, so the size changes no value).
 CORE_BATCH = 16384
 #: Width of a bin of k = R1/R2 (in ln k) for the chain floor.
 BIN_WIDTH = 0.01
+#: Neighbouring bins whose joint chain floor is asked first (it bounds each of theirs).
+GROUP = 8
 MAX_BINS = 1 << 12
 
 
@@ -119,34 +119,39 @@ class Bins:
         k_b = np.maximum.reduceat(pairs.k, start)
         return cls(pairs, start, end, k_a, k_b, pairs.cost[start], window, k_lo, k_hi)
 
-    def factors(self, rows_bin: I64) -> KFactors:
-        """Every class's k factors, k over each bin's interval."""
+    def factors(self, k_a: F64, k_b: F64) -> KFactors:
+        """The k factors of rows with k over [k_a, k_b] (a bin's interval or a group's)."""
         w = self.window
-        n = len(rows_bin)
+        n = len(k_a)
 
         def wide(x: F64) -> F64:
             return np.repeat(x[:, :1], n, axis=1)
 
         return KFactors(
-            self.k_a[rows_bin],
-            self.k_b[rows_bin],
+            k_a,
+            k_b,
             wide(w.f2_lo),
             wide(w.f2_hi),
             wide(w.f1_lo),
             wide(w.f1_hi),
         )
 
-    def expand(self, rows_core: I64, rows_bin: I64, room: I64) -> tuple[I64, I64]:
-        """(core, pair index) for every pair of each row's bin costing at most its room."""
+    def group_k(self) -> tuple[F64, F64]:
+        """The k interval of every group of ``GROUP`` neighbouring bins."""
+        at = np.arange(0, len(self.start), GROUP)
+        return np.minimum.reduceat(self.k_a, at), np.maximum.reduceat(self.k_b, at)
+
+    def expand(self, rows_bin: I64, room: I64) -> tuple[I64, I64]:
+        """(row, pair index) for every pair of each row's bin costing at most its room."""
         big = int(self.pairs.cost.max()) + 1 if len(self.pairs) else 1
         which = np.repeat(np.arange(len(self.start)), self.end - self.start)
         key = which * big + self.pairs.cost
         upto = np.searchsorted(key, rows_bin * big + np.minimum(room, big - 1), side="right")
         counts = np.maximum(upto - self.start[rows_bin], 0)
-        core = np.repeat(rows_core, counts)
+        row = np.repeat(np.arange(len(rows_bin)), counts)
         first = np.repeat(self.start[rows_bin], counts)
-        p = first + np.arange(len(core)) - np.repeat(np.cumsum(counts) - counts, counts)
-        return core, p.astype(np.int64)
+        p = first + np.arange(len(row)) - np.repeat(np.cumsum(counts) - counts, counts)
+        return row, p.astype(np.int64)
 
 
 @dataclass
@@ -165,8 +170,7 @@ class Cores:
     caps: CapCosts
     bins: dict[int, Bins]
     floors: dict[int, IntCache] = field(default_factory=dict)
-    tights: dict[int, IntCache] = field(default_factory=dict)
-    ids: dict[tuple[int, ...], int] = field(default_factory=dict)
+    groups: dict[int, IntCache] = field(default_factory=dict)
 
     def __len__(self) -> int:
         return len(self.u)
@@ -189,15 +193,14 @@ class Cores:
         self, model: TunedModel, n: int, theta: int, deadline: float = math.inf
     ) -> tuple[Shared, I64]:
         """Every combination whose cost bound for n ranges is at most ``theta``, with that
-        bound. Three sieves, each a lower bound of the cost of any design it passes on:
-        the core's (``bound``); per core and bin of k (``Bins``), the chain floor over every
-        k of the bin (``bounds.chain_floor``); per combination, its exact pair
-        (``tighten``). Floors and tightened bounds are kept, so raising ``theta`` costs
-        only what is new."""
+        bound. Two sieves, each a lower bound of the cost of any design it passes on: the
+        core's (``bound``); per core and bin of k (``Bins``), the chain floor over every k
+        of the bin (``bounds.chain_floor``), which with the pair's own cost is the bound
+        returned (``tighten`` is the walk's third, one combination at a time). Floors are
+        kept, so raising ``theta`` costs only what is new."""
         bound = self.bound(n)
         pick = np.flatnonzero(bound <= theta)
         floors = self.floors.setdefault(n, IntCache())
-        tights = self.tights.setdefault(n, IntCache())
         parts = []
         for u in np.unique(self.u[pick]):
             bins = self.bins[int(u)]
@@ -221,14 +224,19 @@ class Cores:
                 keys = rows_core * len(bins) + rows_bin
                 known, floor = floors.get(keys)
                 if not known.all():
+                    live = known | self._group_sieve(model, n, theta, bins, rows_core, rows_bin)
+                    rows_core, rows_bin, base = rows_core[live], rows_bin[live], base[live]
+                    keys, known, floor = keys[live], known[live], floor[live]
                     new = ~known
-                    floor[new] = self.floor(model, rows_core[new], bins, rows_bin[new], n)
+                    k_a, k_b = bins.k_a[rows_bin[new]], bins.k_b[rows_bin[new]]
+                    floor[new] = self.floor(model, rows_core[new], bins, k_a, k_b, n)
                     floors.put(keys[new], floor[new])
                 live = base + floor <= theta
                 rows_core, rows_bin, floor = rows_core[live], rows_bin[live], floor[live]
-                core, p = bins.expand(rows_core, rows_bin, theta - self.cost[rows_core] - floor)
-                if len(core) == 0:
+                row, p = bins.expand(rows_bin, theta - self.cost[rows_core] - floor)
+                if len(row) == 0:
                     continue
+                core = rows_core[row]
                 pairs = bins.pairs
                 sh = Shared(
                     u=self.u[core],
@@ -239,25 +247,32 @@ class Cores:
                     v=self.v[core],
                     cost=self.cost[core] + pairs.cost[p],
                 )
-                sh = sh.take(stock_ok(model, sh))
-                keys = shared_keys(model, sh, self.ids)
-                known, tight = tights.get(keys)
-                fresh = np.flatnonzero(~known)
-                for at in range(0, len(fresh), TIGHTEN_BATCH):
-                    if time.perf_counter() > deadline:
-                        raise TimeUp
-                    part = fresh[at : at + TIGHTEN_BATCH]
-                    tight[part] = tighten(model, sh.take(part), n)
-                    tights.put(keys[part], tight[part])
-                keep = tight <= theta
-                parts.append((sh.take(keep), tight[keep]))
+                ok = stock_ok(model, sh)
+                parts.append((sh.take(ok), (sh.cost + floor[row])[ok]))
         if not parts:
             return empty_shared(), np.zeros(0, dtype=np.int64)
         return Shared.concat([x[0] for x in parts]), np.concatenate([x[1] for x in parts])
 
-    def floor(self, model: TunedModel, rows: I64, bins: Bins, rows_bin: I64, n: int) -> I64:
-        """The chain floor of each (core, bin): ``bounds.chain_floor`` over the bin's k."""
-        kf = bins.factors(rows_bin)
+    def _group_sieve(
+        self, model: TunedModel, n: int, theta: int, bins: Bins, rows_core: I64, rows_bin: I64
+    ) -> NDArray[np.bool_]:
+        """Whether each (core, bin) may still cost ``theta`` or less by its group's chain
+        floor (the floor over the group's k, a lower bound of each of its bins')."""
+        groups = self.groups.setdefault(n, IntCache())
+        g_k_a, g_k_b = bins.group_k()
+        keys = rows_core * len(g_k_a) + rows_bin // GROUP
+        known, floor = groups.get(keys)
+        if not known.all():
+            todo, at = np.unique(keys[~known], return_index=True)
+            core, group = rows_core[~known][at], rows_bin[~known][at] // GROUP
+            found = self.floor(model, core, bins, g_k_a[group], g_k_b[group], n)
+            groups.put(todo, found)
+            _, floor = groups.get(keys)
+        return np.asarray(self.cost[rows_core] + bins.cheapest[rows_bin] + floor <= theta)
+
+    def floor(self, model: TunedModel, rows: I64, bins: Bins, k_a: F64, k_b: F64, n: int) -> I64:
+        """The chain floor of each core for k over [k_a, k_b] (``bounds.chain_floor``)."""
+        kf = bins.factors(k_a, k_b)
         c = corners(model, self.u[rows], self.i3[rows], self.i4[rows], self.v[rows], kf)
         return chain_floor(model, c, kf.k_lo, kf.k_hi, n)
 

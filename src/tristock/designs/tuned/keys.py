@@ -1,12 +1,9 @@
-"""Small shared pieces of the walk: integer caches, combination keys, the clock's signal."""
+"""Small shared pieces of the walk: integer caches, the clock's signal."""
 
 from __future__ import annotations
 
 import numpy as np
 from numpy.typing import NDArray
-
-from tristock.designs.tuned.model import TunedModel
-from tristock.designs.tuned.network import Shared
 
 I64 = NDArray[np.int64]
 
@@ -42,17 +39,3 @@ class IntCache:
         v = np.concatenate([self.values, values])
         order = np.argsort(k, kind="stable")
         self.keys, self.values = k[order], v[order]
-
-
-def shared_keys(model: TunedModel, sh: Shared, ids: dict[tuple[int, ...], int]) -> I64:
-    """One integer per combination: its indices packed, or (when the packed number would not
-    fit in 62 bits) a number given to it in ``ids``."""
-    nr = len(model.resistors) + 1
-    nv = max(len(model.pots), 1)
-    if len(model.opamps) * nr**5 * nv < 1 << 62:
-        key = sh.u * nr + sh.i1
-        key = (key * nr + sh.i2) * nr + sh.i3
-        key = (key * nr + sh.i4 + 1) * nv + sh.v
-        return np.asarray(key, dtype=np.int64)
-    rows = zip(*(x.tolist() for x in (sh.u, sh.i1, sh.i2, sh.i3, sh.i4, sh.v)), strict=True)
-    return np.array([ids.setdefault(r, len(ids)) for r in rows], dtype=np.int64)

@@ -39,7 +39,7 @@ from tristock.designs.tuned.chains import (
     least_cost,
     steps,
 )
-from tristock.designs.tuned.cores import Cores, build_cores
+from tristock.designs.tuned.cores import Cores, build_cores, tighten
 from tristock.designs.tuned.keys import TimeUp
 from tristock.designs.tuned.model import MAX_RANGES, TunedModel
 from tristock.designs.tuned.network import Shared
@@ -47,8 +47,12 @@ from tristock.designs.tuned.ranges import RangeData, evaluate_ranges
 
 I64 = NDArray[np.int64]
 Row = tuple[int, int, int, int, int, int]
+#: A combination waiting: (cost bound, row, shared cost, whether the bound is ``tighten``'s).
+Waiting = tuple[int, Row, int, bool]
 #: Combinations evaluated together (each with every capacitor).
 BATCH = 128
+#: Combinations tightened together: the rough ones among this many first waiting.
+TIGHTEN = 4096
 FIRST_STEP = 4000  # micro-units: the first listing threshold above the least bound
 GROWTH = 1.25  # each later threshold: the least bound + this times the previous distance
 
@@ -132,7 +136,7 @@ class Lister:
         finite = bound[bound < INF]
         self.low = int(finite.min()) if len(finite) else INF
         self.theta = -1
-        self.waiting: list[tuple[int, Row, int]] = []  # (bound, row, shared cost)
+        self.waiting: list[Waiting] = []  # a heap
         self.seen: set[Row] = set()
         self.evaluated: dict[Row, tuple[RangeData, int, int, int]] = {}  # data, at, least, cost
         self.heap: list[tuple[tuple[object, ...], int, Found]] = []
@@ -168,32 +172,33 @@ class Lister:
         step = FIRST_STEP if old < 0 else int((old - self.low) * GROWTH) + 1
         new = self.low + step
         new = min(max(new, old + 1), self.end)
-        sh, tight = self.cores.select(self.model, self.n, new, self.deadline)
-        fresh = []
+        sh, bound = self.cores.select(self.model, self.n, new, self.deadline)
         for i in range(len(sh)):
             r = sh.row(i)
             if r not in self.seen:
                 self.seen.add(r)
-                fresh.append((int(tight[i]), r, int(sh.cost[i])))
-        self.waiting = sorted(self.waiting + fresh)
+                self.waiting.append((int(bound[i]), r, int(sh.cost[i]), False))
+        heapq.heapify(self.waiting)
         self.theta = new
         for r, (data, at, least, cost) in self.evaluated.items():
             if least + cost <= new:
                 self._list(r, data, at, cost, old, new)
 
     def _evaluate_waiting(self) -> None:
-        """Evaluate the waiting combinations with the least bounds (a batch)."""
-        batch = self.waiting[:BATCH]
-        self.waiting = self.waiting[BATCH:]
+        """Evaluate the waiting combinations with the least bounds (a batch), once each has
+        its bound tightened (``tighten``; a tightened one may move back)."""
+        front = self._front(TIGHTEN)
+        if not all(w[3] for w in front[:BATCH]):
+            self._tighten(front)
+            return
+        for w in front[BATCH:]:
+            heapq.heappush(self.waiting, w)
+        batch = front[:BATCH]
         model = self.model
         assert model.spec.tuning is not None
         tu = model.spec.tuning
-        rows = [r for _, r, _ in batch]
-        col = [np.array([r[f] for r in rows], dtype=np.int64) for f in range(6)]
-        sh = Shared(
-            u=col[0], i1=col[1], i2=col[2], i3=col[3], i4=col[4], v=col[5],
-            cost=np.array([c for _, _, c in batch], dtype=np.int64),
-        )  # fmt: skip
+        rows = [r for _, r, _, _ in batch]
+        sh = _shared(batch)
         data = evaluate_ranges(model, sh)
         self.walk.evaluated += int(data.ranges.usable.size)
         self.walk.combinations += len(sh)
@@ -207,6 +212,27 @@ class Lister:
             self.evaluated[r] = (data, i, int(least[i]), cost)
             if int(least[i]) + cost <= self.theta:
                 self._list(r, data, i, cost, -1, self.theta)
+
+    def _tighten(self, front: list[Waiting]) -> None:
+        """Tighten the bounds of these combinations (those not yet) and put them back."""
+        rough = [w for w in front if not w[3]]
+        tight = tighten(self.model, _shared(rough), self.n)
+        for w, t in zip(rough, tight.tolist(), strict=True):
+            if t < INF:
+                heapq.heappush(self.waiting, (t, w[1], w[2], True))
+        for w in front:
+            if w[3]:
+                heapq.heappush(self.waiting, w)
+
+    def _front(self, count: int) -> list[Waiting]:
+        """Take from the heap the first ``count`` combinations with bounds within θ, in
+        order. Once all of them are tightened every other one ranks after them: its bound,
+        or its row when the bounds tie, is larger, and tightening only raises bounds."""
+        front: list[Waiting] = []
+        heap = self.waiting
+        while heap and heap[0][0] <= self.theta and len(front) < count:
+            front.append(heapq.heappop(heap))
+        return front
 
     def _list(self, r: Row, data: RangeData, at: int, cost: int, lo: int, hi: int) -> None:
         """Push the chains of combination ``r`` whose total cost lies in (lo, hi]."""
@@ -228,6 +254,12 @@ class Lister:
             found = Found(r, chain, total, ev, key, data, at, model)
             heapq.heappush(self.heap, (key, self.count, found))
             self.walk.candidates += 1
+
+
+def _shared(waiting: list[Waiting]) -> Shared:
+    col = [np.array([w[1][f] for w in waiting], dtype=np.int64) for f in range(6)]
+    cost = np.array([w[2] for w in waiting], dtype=np.int64)
+    return Shared(u=col[0], i1=col[1], i2=col[2], i3=col[3], i4=col[4], v=col[5], cost=cost)
 
 
 def _one(r: Ranges, at: int) -> Ranges:
