@@ -169,6 +169,7 @@ class Cores:
     pairs: dict[int, Pairs]
     caps: CapCosts
     bins: dict[int, Bins]
+    bounds: dict[int, I64] = field(default_factory=dict)
     floors: dict[int, IntCache] = field(default_factory=dict)
     groups: dict[int, IntCache] = field(default_factory=dict)
 
@@ -180,6 +181,11 @@ class Cores:
 
     def bound(self, n: int) -> I64:
         """Least cost of a design with n ranges through each core (micro-units)."""
+        if n not in self.bounds:
+            self.bounds[n] = self._bound(n)
+        return self.bounds[n]
+
+    def _bound(self, n: int) -> I64:
         pair_min = np.array(
             [int(self.pairs[u].cost[0]) if len(self.pairs[u]) else INF for u in range(_n(self))],
             dtype=np.int64,

@@ -52,7 +52,7 @@ Waiting = tuple[int, Row, int, bool]
 #: Combinations evaluated together (each with every capacitor).
 BATCH = 128
 #: Combinations tightened together: the rough ones among this many first waiting.
-TIGHTEN = 4096
+TIGHTEN = 1024
 FIRST_STEP = 4000  # micro-units: the first listing threshold above the least bound
 GROWTH = 1.25  # each later threshold: the least bound + this times the previous distance
 
