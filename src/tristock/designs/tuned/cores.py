@@ -33,8 +33,10 @@ from tristock.designs.tuned.network import Shared, empty_shared
 
 I64 = NDArray[np.int64]
 F64 = NDArray[np.float64]
-#: Cores expanded into combinations at a time (each with up to every pair of its op amp).
-CHUNK = 64
+#: (core, bin of k) rows sieved at a time (the cores of one op amp, each with every bin).
+ROWS = 1 << 17
+#: Chain floors computed at a time (between two looks at the clock).
+FLOOR_BATCH = 1024
 #: Cores whose shared bounds are computed at a time (between two looks at the clock; every
 #: core's bounds are its own, so the size changes no value).
 CORE_BATCH = 16384
@@ -211,10 +213,11 @@ class Cores:
         for u in np.unique(self.u[pick]):
             bins = self.bins[int(u)]
             mine = pick[self.u[pick] == u]
-            for start in range(0, len(mine), CHUNK):
+            chunk_size = max(1, ROWS // max(len(bins), 1))
+            for start in range(0, len(mine), chunk_size):
                 if time.perf_counter() > deadline:
                     raise TimeUp
-                chunk = mine[start : start + CHUNK]
+                chunk = mine[start : start + chunk_size]
                 rows_core = np.repeat(chunk, len(bins))
                 rows_bin = np.tile(np.arange(len(bins)), len(chunk))
                 crude = self.caps.chain(
@@ -230,12 +233,14 @@ class Cores:
                 keys = rows_core * len(bins) + rows_bin
                 known, floor = floors.get(keys)
                 if not known.all():
-                    live = known | self._group_sieve(model, n, theta, bins, rows_core, rows_bin)
+                    live = known | self._group_sieve(
+                        model, n, theta, bins, rows_core, rows_bin, deadline
+                    )
                     rows_core, rows_bin, base = rows_core[live], rows_bin[live], base[live]
                     keys, known, floor = keys[live], known[live], floor[live]
                     new = ~known
                     k_a, k_b = bins.k_a[rows_bin[new]], bins.k_b[rows_bin[new]]
-                    floor[new] = self.floor(model, rows_core[new], bins, k_a, k_b, n)
+                    floor[new] = self.floor(model, rows_core[new], bins, k_a, k_b, n, deadline)
                     floors.put(keys[new], floor[new])
                 live = base + floor <= theta
                 rows_core, rows_bin, floor = rows_core[live], rows_bin[live], floor[live]
@@ -260,7 +265,14 @@ class Cores:
         return Shared.concat([x[0] for x in parts]), np.concatenate([x[1] for x in parts])
 
     def _group_sieve(
-        self, model: TunedModel, n: int, theta: int, bins: Bins, rows_core: I64, rows_bin: I64
+        self,
+        model: TunedModel,
+        n: int,
+        theta: int,
+        bins: Bins,
+        rows_core: I64,
+        rows_bin: I64,
+        deadline: float,
     ) -> NDArray[np.bool_]:
         """Whether each (core, bin) may still cost ``theta`` or less by its group's chain
         floor (the floor over the group's k, a lower bound of each of its bins')."""
@@ -271,16 +283,25 @@ class Cores:
         if not known.all():
             todo, at = np.unique(keys[~known], return_index=True)
             core, group = rows_core[~known][at], rows_bin[~known][at] // GROUP
-            found = self.floor(model, core, bins, g_k_a[group], g_k_b[group], n)
+            found = self.floor(model, core, bins, g_k_a[group], g_k_b[group], n, deadline)
             groups.put(todo, found)
             _, floor = groups.get(keys)
         return np.asarray(self.cost[rows_core] + bins.cheapest[rows_bin] + floor <= theta)
 
-    def floor(self, model: TunedModel, rows: I64, bins: Bins, k_a: F64, k_b: F64, n: int) -> I64:
+    def floor(
+        self, model: TunedModel, rows: I64, bins: Bins, k_a: F64, k_b: F64, n: int, deadline: float
+    ) -> I64:
         """The chain floor of each core for k over [k_a, k_b] (``bounds.chain_floor``)."""
-        kf = bins.factors(k_a, k_b)
-        c = corners(model, self.u[rows], self.i3[rows], self.i4[rows], self.v[rows], kf)
-        return chain_floor(model, c, kf.k_lo, kf.k_hi, n)
+        out = np.empty(len(rows), dtype=np.int64)
+        for at in range(0, len(rows), FLOOR_BATCH):
+            if time.perf_counter() > deadline:
+                raise TimeUp
+            part = slice(at, at + FLOOR_BATCH)
+            kf = bins.factors(k_a[part], k_b[part])
+            r = rows[part]
+            c = corners(model, self.u[r], self.i3[r], self.i4[r], self.v[r], kf)
+            out[part] = chain_floor(model, c, kf.k_lo, kf.k_hi, n)
+        return out
 
 
 def _n(cores: Cores) -> int:
