@@ -107,10 +107,6 @@ def shared_bounds(
     z2, z1 = c.z2, c.z1
     low, high = np.full(n, 1 / tu.low_hz), np.full(n, 1 / tu.high_hz)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        p2_min = below_root(z2, k2a, k2b, low)
-        c_min = p2_min / (k2b * c.rb2 * cf2)
-        p1_max = above_root(z1, k1a, k1b, high)
-        c_max = np.where(p1_max > 0, p1_max / (k1a * c.r31 * cf1), 0.0)
         lam = (c.kf2_hi / c.kf1_lo) * c.rb2 / c.r31 * (cf2 / cf1)
         x_lo = below_root(z2, k2a, k2b, high) / lam
         x_hi = above_root(z1, k1a, k1b, low)
@@ -118,6 +114,13 @@ def shared_bounds(
         fewest = fewest_ranges(
             np.where(c.valid, r, 0.0), tu.low_hz, tu.high_hz, tu.overlap_pct / 100
         )
+        # The capacitor window only where the span can be covered at all (NaN elsewhere).
+        live = np.flatnonzero(c.valid & (fewest <= MAX_RANGES))
+        p2_min, p1_max = np.full(n, np.nan), np.full(n, np.nan)
+        p2_min[live] = below_root(z2.take(live), k2a[live], k2b[live], low[live])
+        p1_max[live] = above_root(z1.take(live), k1a[live], k1b[live], high[live])
+        c_min = p2_min / (k2b * c.rb2 * cf2)
+        c_max = np.where(p1_max > 0, p1_max / (k1a * c.r31 * cf1), 0.0)
         # Nominal P: the top's k·R3·C with C ≤ P1max/(k·kf1·R3(z1)·cf1), k cancels; the
         # bottom's likewise from C ≥ P2min/(k·kf2·(R_eff/β)(z2)·cf2).
         rv_nom = np.array([p.value_ohm for p in model.pots])[v]

@@ -114,14 +114,14 @@ def span_end_checks(
         beta = np.asarray(beta) * np.ones(n)
         vd = (vos1 + ib1 * r_eff) / beta
         a, b = vh - vd, vl + vd
-        live = (a > 0) & (b > 0) & (p > 0) & np.isfinite(p)
-        p = np.where(live, p, 1.0)
-        rows = CornerRows(tables, u, np.where(live, a, 1.0), np.where(live, b, 1.0))
+        live = np.flatnonzero((a > 0) & (b > 0) & (p > 0) & np.isfinite(p))
+        rows = CornerRows(tables, u[live], a[live], b[live])
+        k = k_lo[live], k_hi[live]
         if alpha == top:
-            good = top_rules_ok(rows, k_lo, k_hi, p, limits, (shift, vl, vh))
+            peak = shift[live], vl[live], vh[live]
+            ok[live] &= top_rules_ok(rows, *k, p[live], limits, peak)
         else:
-            good = bottom_rules_ok(rows, k_lo, k_hi, p, limits)
-        ok &= good | ~live
+            ok[live] &= bottom_rules_ok(rows, *k, p[live], limits)
     return ok
 
 
