@@ -6,6 +6,7 @@ takes nor how much it evaluates."""
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -13,7 +14,9 @@ import pytest
 
 from tristock.designs.tuned import cores as cores_module
 from tristock.designs.tuned import search as search_module
+from tristock.designs.tuned.coverage import range_verdicts
 from tristock.designs.tuned.model import build_tuned_model
+from tristock.designs.tuned.report import design_from
 from tristock.designs.tuned.search import walk
 from tristock.designs.tuned.verdict import Verdicts
 from tristock.examples import demo_catalog_dir, example_spec_path
@@ -39,9 +42,10 @@ def test_cores_do_not_depend_on_the_batch_size(monkeypatch: pytest.MonkeyPatch) 
 def test_sieve_groups_and_tighten_batches_change_no_answer(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
-    """The walk takes the same designs, evaluates the same combinations and lists the same
-    candidates whether each bin's chain floor is asked alone (a group of one bin) and bounds
-    are tightened a batch at a time, or with the default group and tighten sizes."""
+    """The walk takes the same designs with the same range verdicts, evaluates the same
+    combinations and lists the same candidates whether each bin's chain floor is asked alone
+    (a group of one bin), bounds are tightened a batch at a time and candidates decided one
+    at a time, or with the default sizes."""
     spec = load_spec(example_spec_path("tuned"))
     data = spec.model_dump(mode="json", exclude_none=True)
     data["tuning"]["control"] = "series"
@@ -49,11 +53,33 @@ def test_sieve_groups_and_tighten_batches_change_no_answer(
 
     def walked() -> tuple[object, ...]:
         out = walk(model, 3, math.inf, Verdicts(model, 200, 0))
-        found = [(f.row, f.chain, f.cost) for f, _ in out.accepted]
+        found = [(f.row, f.chain, f.cost, detail) for f, detail in out.accepted]
         return found, out.evaluated, out.combinations, out.candidates, out.proven
 
     default = walked()
     monkeypatch.setattr(cores_module, "GROUP", 1)
     monkeypatch.setattr(search_module, "TIGHTEN", search_module.BATCH)
+    monkeypatch.setattr(search_module, "DECIDE_BATCH", 1)
     assert walked() == default
     assert len(default[0]) == 3
+
+
+def test_ranges_decided_together_get_their_own_verdicts() -> None:
+    """``range_verdicts`` of several ranges at once gives each the verdict it gets alone,
+    also when one of them cannot oscillate (R3 so large that the integrator's bias error
+    reaches a square level): that one fails, the others do not."""
+    spec = load_spec(example_spec_path("tuned"))
+    data = spec.model_dump(mode="json", exclude_none=True)
+    data["tuning"]["control"] = "series"
+    spec = parse_spec(data)
+    model = build_tuned_model(spec, load_catalog(demo_catalog_dir()))
+    out = walk(model, 1, math.inf, Verdicts(model, 200, 0))
+    found, _ = out.accepted[0]
+    good = [design_from(model, found.row, (j,)) for j in found.chain]
+    bad = dataclasses.replace(good[0], r3=dataclasses.replace(good[0].r3, value_ohm=1e13))
+    designs = [good[0], bad, good[1]]
+    probes = [(math.nan,) * 4] * 3
+    together = range_verdicts(designs, spec, 0, probes)
+    alone = [range_verdicts([d], spec, 0, probes[:1])[0] for d in designs]
+    assert together == alone
+    assert [v.ok for v in together] == [True, False, True]

@@ -70,19 +70,36 @@ class RangeVerdict:
     ok: bool
 
 
-def range_verdict(
-    design: Design, spec: Spec, selected: int, probes: tuple[float, float, float, float]
-) -> RangeVerdict:
-    """Guaranteed ends of range ``selected``; ``probes`` are the search's corner values
-    (frequency at the bottom corner, at the top corner, amplitude high, amplitude low; NaN
-    when not evaluated), which widen the box's extremes (module docstring)."""
+def range_verdicts(
+    designs: Sequence[Design],
+    spec: Spec,
+    selected: int,
+    probes: Sequence[tuple[float, float, float, float]],
+) -> list[RangeVerdict]:
+    """Guaranteed ends of range ``selected`` of each design, their boxes searched together
+    (each the answer it gets alone; one design at a time when some box cannot oscillate, so
+    that only its own range fails). ``probes`` are the search's corner values (frequency at
+    the bottom corner, at the top corner, amplitude high, amplitude low; NaN when not
+    evaluated), which widen the box's extremes (module docstring)."""
     assert spec.tuning is not None
     bottom, top = dial_ends(spec.tuning.control)
-    at = dataclasses.replace(design, selected=selected)
-    ends = box_extremes([dataclasses.replace(at, wiper=w) for w in (bottom, top)], spec)
+    boards = [
+        dataclasses.replace(d, selected=selected, wiper=w) for d in designs for w in (bottom, top)
+    ]
+    ends = box_extremes(boards, spec)
+    if ends is None and len(designs) > 1:
+        return [
+            range_verdicts([d], spec, selected, [p])[0]
+            for d, p in zip(designs, probes, strict=True)
+        ]
     if ends is None:
-        return RangeVerdict(math.inf, 0.0, math.nan, math.nan, False)
-    lo, hi = ends
+        return [RangeVerdict(math.inf, 0.0, math.nan, math.nan, False)]
+    return [_widened(ends[2 * i], ends[2 * i + 1], p) for i, p in enumerate(probes)]
+
+
+def _widened(
+    lo: EndExtremes, hi: EndExtremes, probes: tuple[float, float, float, float]
+) -> RangeVerdict:
     f_bottom, f_top, a_big, a_small = probes
     gl = max(lo.f_hi, f_bottom) if math.isfinite(f_bottom) else lo.f_hi
     gh = min(hi.f_lo, f_top) if math.isfinite(f_top) else hi.f_lo

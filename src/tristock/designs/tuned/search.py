@@ -22,9 +22,11 @@ A time limit that cuts the walk returns what was accepted, marked unproven.
 from __future__ import annotations
 
 import heapq
+import itertools
 import time
 from collections.abc import Callable, Hashable, Iterator
 from dataclasses import dataclass, field
+from typing import Protocol
 
 import numpy as np
 from numpy.typing import NDArray
@@ -53,6 +55,8 @@ Waiting = tuple[int, Row, int, bool]
 BATCH = 128
 #: Combinations tightened together: the rough ones among this many first waiting.
 TIGHTEN = 1024
+#: Candidates decided together at most (their ranges' boxes searched in one call).
+DECIDE_BATCH = 5
 FIRST_STEP = 4000  # micro-units: the first listing threshold above the least bound
 GROWTH = 1.25  # each later threshold: the least bound + this times the previous distance
 
@@ -286,16 +290,26 @@ def counts(model: TunedModel, cores: Cores) -> list[int]:
     return list(range(max(1, cores.min_fewest()), MAX_RANGES + 1))
 
 
+class Verdict(Protocol):
+    """The full model's verdict (``verdict.Verdicts``): ``prepare`` decides several
+    candidates' ranges at once, ``__call__`` gives one candidate's (accepted, details)."""
+
+    def prepare(self, founds: list[Found]) -> None: ...
+
+    def __call__(self, found: Found) -> tuple[bool, list[object]]: ...
+
+
 def walk(
     model: TunedModel,
     top: int,
     deadline: float,
-    decide: Callable[[Found], tuple[bool, list[object]]],
+    decide: Verdict,
     classify: Callable[[Found], Hashable] | None = None,
 ) -> Walk:
-    """Accepted designs in rank order (module docstring). ``decide(found)`` is the verdict:
-    (accepted, per-range details). With ``classify`` (distinct designs) the walk goes on
-    until the accepted designs fall into ``top`` classes."""
+    """Accepted designs in rank order (module docstring). ``decide`` is the verdict. With
+    ``classify`` (distinct designs) the walk goes on until the accepted designs fall into
+    ``top`` classes. While k more are wanted the next k candidates are all decided (each
+    adds at most one), so they are listed first and decided together."""
     out = Walk()
     classes: set[Hashable] = set()
     cores = build_cores(model, deadline)
@@ -304,19 +318,24 @@ def walk(
         return out
     for n in counts(model, cores):
         lister = Lister(model, cores, n, out, deadline)
-        for f in lister:
-            ok, detail = decide(f)
-            if ok:
-                out.accepted.append((f, detail))
-                out.proven &= certified(f)
-                classes.add(classify(f) if classify else len(out.accepted))
-                if len(classes) >= top:
-                    out.ranges = n
-                    return out
-            else:
-                out.dropped += 1
-            if time.perf_counter() > deadline:
-                lister.cut = True
+        listed = iter(lister)
+        while batch := list(itertools.islice(listed, min(top - len(classes), DECIDE_BATCH))):
+            decide.prepare(batch)
+            for f in batch:
+                ok, detail = decide(f)
+                if ok:
+                    out.accepted.append((f, detail))
+                    out.proven &= certified(f)
+                    classes.add(classify(f) if classify else len(out.accepted))
+                    if len(classes) >= top:
+                        out.ranges = n
+                        return out
+                else:
+                    out.dropped += 1
+                if time.perf_counter() > deadline:
+                    lister.cut = True
+                    break
+            if lister.cut:
                 break
         if lister.cut:
             out.proven = False
