@@ -43,7 +43,7 @@ CORE_BATCH = 16384
 #: Width of a bin of k = R1/R2 (in ln k) for the chain floor.
 BIN_WIDTH = 0.01
 #: Neighbouring bins whose joint chain floor is asked first (it bounds each of theirs).
-GROUP = 8
+GROUP = 16
 MAX_BINS = 1 << 12
 
 

@@ -177,11 +177,11 @@ class Lister:
         new = self.low + step
         new = min(max(new, old + 1), self.end)
         sh, bound = self.cores.select(self.model, self.n, new, self.deadline)
-        for i in range(len(sh)):
-            r = sh.row(i)
+        rows = zip(*(x.tolist() for x in (sh.u, sh.i1, sh.i2, sh.i3, sh.i4, sh.v)), strict=True)
+        for r, b, c in zip(rows, bound.tolist(), sh.cost.tolist(), strict=True):
             if r not in self.seen:
                 self.seen.add(r)
-                self.waiting.append((int(bound[i]), r, int(sh.cost[i]), False))
+                self.waiting.append((b, r, c, False))
         heapq.heapify(self.waiting)
         self.theta = new
         for r, (data, at, least, cost) in self.evaluated.items():
