@@ -12,6 +12,7 @@ import dataclasses
 import numpy as np
 import pytest
 
+from tristock.analysis import boxsearch
 from tristock.analysis.boxsearch import all_corners, balanced_points
 from tristock.analysis.bundle import analyse, analyse_many
 from tristock.analysis.memo import forget
@@ -68,6 +69,19 @@ def test_box_extremes_of_several_boards_equal_each_alone() -> None:
     pairs = [(b, spec) for b in [*boards, *comparator]]
     together = box_extremes_many(pairs, ("frequency_hz", "duty_high"))
     assert together == [box_extremes(b, s, ("frequency_hz", "duty_high")) for b, s in pairs]
+
+
+def test_model_calls_cut_into_row_batches_change_no_extreme(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    """Corners, balanced-swing points and Newton rows of several boards go to the model in
+    calls of at most ``BATCH_ROWS`` rows; batches of 100 (cutting boards apart) give the
+    same extremes as one call."""
+    spec, boards = demo_boards(3)
+    pairs = [(b, spec) for b in boards]
+    whole = box_extremes_many(pairs, ("frequency_hz", "amplitude_vpp"))
+    monkeypatch.setattr(boxsearch, "BATCH_ROWS", 100)
+    assert box_extremes_many(pairs, ("frequency_hz", "amplitude_vpp")) == whole
 
 
 def test_boards_of_two_circuits_batched_apart_equal_each_alone() -> None:

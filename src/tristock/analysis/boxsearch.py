@@ -17,6 +17,7 @@ import numpy.typing as npt
 
 from tristock.analysis.boxnewton import maximise
 from tristock.analysis.spread import (
+    BATCH_ROWS,
     METRICS,
     Board,
     SpreadVariable,
@@ -86,19 +87,28 @@ def _best(values: FloatArray, count: int) -> IntArray:
 
 
 def _corner_starts(
-    model: _Model, objectives: Sequence[tuple[int, float]], max_corner_variables: int
-) -> tuple[list[FloatArray], list[FloatArray], str]:
-    """Per objective its best corners (rows, n) and their metrics (rows, 3), best first; the
-    method's first word."""
-    n = len(model.variables)
+    models: Sequence[_Model], objectives: Sequence[tuple[int, float]], max_corner_variables: int
+) -> list[tuple[list[FloatArray], list[FloatArray], str]]:
+    """Per model (boards of one batch, ``_batch_key``) and objective its best corners (rows,
+    n) and their metrics (rows, 3), best first; the method's first word. Every board's
+    corners are evaluated in one call."""
+    n = len(models[0].variables)
     if n > max_corner_variables:
-        rows = [model.local_search(m, s)[None, :] for m, s in objectives]
-        vals = model(np.vstack(rows))
-        return rows, [vals[o : o + 1] for o in range(len(rows))], "local_search"
+        out = []
+        for model in models:
+            rows = [model.local_search(m, s)[None, :] for m, s in objectives]
+            vals = model(np.vstack(rows))
+            out.append((rows, [vals[o : o + 1] for o in range(len(rows))], "local_search"))
+        return out
     z = all_corners(n)
-    vals = model(z)
-    order = [_best(s * vals[:, m], CORNER_STARTS) for m, s in objectives]
-    return [z[k] for k in order], [vals[k] for k in order], "corners"
+    member = np.repeat(np.arange(len(models)), len(z))
+    every = _joint_metrics(models, member, np.tile(z, (len(models), 1)))
+    out = []
+    for d in range(len(models)):
+        vals = every[d * len(z) : (d + 1) * len(z)]
+        order = [_best(s * vals[:, m], CORNER_STARTS) for m, s in objectives]
+        out.append(([z[k] for k in order], [vals[k] for k in order], "corners"))
+    return out
 
 
 def balanced_points(
@@ -152,41 +162,61 @@ class _Starts(NamedTuple):
 
 
 def _starts(
-    model: _Model,
+    models: Sequence[_Model],
     objectives: Sequence[tuple[int, float]],
-    corner_rows: list[FloatArray],
-    corner_vals: list[FloatArray],
-) -> _Starts:
-    """Per objective its best corners and its best balanced-swing points."""
-    board, variables = model.board, model.variables
-    # every objective's corners in one call, then each objective's points apart
-    points, source = balanced_points(board, variables, np.vstack(corner_rows))
-    objective_of = np.repeat(np.arange(len(corner_rows)), [len(rows) for rows in corner_rows])
-    balanced = [
-        np.unique(points[objective_of[source] == o], axis=0) for o in range(len(corner_rows))
-    ]
-    stacked = np.vstack(balanced)
-    balanced_vals = model(stacked) if len(stacked) else np.empty((0, len(METRICS)))
-    starts, start_vals, owner, first_row = [], [], [], 0
-    for o, (m, s) in enumerate(objectives):
-        mine = slice(first_row, first_row + len(balanced[o]))
-        first_row = mine.stop
-        keep = _best(s * balanced_vals[mine, m], BALANCED_STARTS)
-        starts += [corner_rows[o], balanced[o][keep]]
-        start_vals += [corner_vals[o][:, m], balanced_vals[mine, m][keep]]
-        owner += [o] * (len(corner_rows[o]) + len(keep))
-    return _Starts(
-        np.vstack(starts),
-        np.asarray(owner, dtype=np.int64),
-        np.asarray([objectives[o][0] for o in owner], dtype=np.int64),
-        np.asarray([objectives[o][1] for o in owner], dtype=float),
-        np.concatenate(start_vals),
+    corners: Sequence[tuple[list[FloatArray], list[FloatArray], str]],
+) -> list[_Starts]:
+    """Per model (boards of one batch) and objective its best corners and its best
+    balanced-swing points, every board's points evaluated in one call."""
+    balanced: list[list[FloatArray]] = []
+    for model, (corner_rows, _, _) in zip(models, corners, strict=True):
+        # every objective's corners in one call, then each objective's points apart
+        points, source = balanced_points(model.board, model.variables, np.vstack(corner_rows))
+        objective_of = np.repeat(np.arange(len(corner_rows)), [len(r) for r in corner_rows])
+        balanced.append(
+            [np.unique(points[objective_of[source] == o], axis=0) for o in range(len(corner_rows))]
+        )
+    stacked = [np.vstack(b) for b in balanced]
+    member = np.repeat(np.arange(len(models)), [len(x) for x in stacked])
+    every = (
+        _joint_metrics(models, member, np.vstack(stacked))
+        if len(member)
+        else np.empty((0, len(METRICS)))
     )
+    out, first_row = [], 0
+    for own, (corner_rows, corner_vals, _) in zip(balanced, corners, strict=True):
+        starts, start_vals, owner = [], [], []
+        for o, (m, s) in enumerate(objectives):
+            mine = slice(first_row, first_row + len(own[o]))
+            first_row = mine.stop
+            keep = _best(s * every[mine, m], BALANCED_STARTS)
+            starts += [corner_rows[o], own[o][keep]]
+            start_vals += [corner_vals[o][:, m], every[mine, m][keep]]
+            owner += [o] * (len(corner_rows[o]) + len(keep))
+        out.append(
+            _Starts(
+                np.vstack(starts),
+                np.asarray(owner, dtype=np.int64),
+                np.asarray([objectives[o][0] for o in owner], dtype=np.int64),
+                np.asarray([objectives[o][1] for o in owner], dtype=float),
+                np.concatenate(start_vals),
+            )
+        )
+    return out
 
 
 def _joint_metrics(models: Sequence[_Model], member: IntArray, z: FloatArray) -> FloatArray:
     """Metrics (rows, 3) at deviations z (rows, n), row r on ``models[member[r]]``'s board, in
-    one call of the topology's model (the models share topology, wiring and variables)."""
+    calls of the topology's model of up to ``BATCH_ROWS`` rows (the models share topology,
+    wiring and variables; every row is computed on its own)."""
+    if len(z) > BATCH_ROWS:
+        parts = range(0, len(z), BATCH_ROWS)
+        return np.vstack(
+            [
+                _joint_metrics(models, member[i : i + BATCH_ROWS], z[i : i + BATCH_ROWS])
+                for i in parts
+            ]
+        )
     if len(models) == 1:
         return models[0](z)
     for model, count in zip(models, np.bincount(member, minlength=len(models)), strict=True):
@@ -239,33 +269,38 @@ def search_extremes(
 ) -> list[tuple[FloatArray, FloatArray, str, int]]:
     """Per problem (board, variables) and objective the extreme's row (k, n) and metric value
     (k,); method; evaluations. Problems of one topology, wiring and variable list share the
-    Newton batches: every row is computed on its own, so each problem gets the answer it
-    gets alone, in fewer and larger calls of the model."""
+    calls of the corners, the balanced-swing points and the Newton batches: every row is
+    computed on its own, so each problem gets the answer it gets alone, in fewer and larger
+    calls of the model."""
     models = [_Model(board, variables) for board, variables in problems]
-    firsts: list[str] = []
-    found: dict[int, tuple[FloatArray, FloatArray]] = {}
-    batches: dict[tuple[object, ...], list[tuple[int, _Starts]]] = {}
+    batches: dict[tuple[object, ...], list[int]] = {}
     for d, model in enumerate(models):
-        corner_rows, corner_vals, first = _corner_starts(model, objectives, max_corner_variables)
-        firsts.append(first)
-        if not model.variables:
-            vals = np.array([corner_vals[o][0, m] for o, (m, _) in enumerate(objectives)])
-            found[d] = (np.zeros((len(objectives), 0)), vals)
-            continue
-        board = model.board
-        names = tuple(v.name for v in model.variables)
-        key = (board.topology.name, board.v_ref, board.control, type(board.point), names)
-        batches.setdefault(key, []).append(
-            (d, _starts(model, objectives, corner_rows, corner_vals))
-        )
+        batches.setdefault(_batch_key(model), []).append(d)
+    firsts: dict[int, str] = {}
+    found: dict[int, tuple[FloatArray, FloatArray]] = {}
     for members in batches.values():
-        results = _ascend([models[d] for d, _ in members], [s for _, s in members], objectives)
-        for (d, _), result in zip(members, results, strict=True):
-            found[d] = result
+        group = [models[d] for d in members]
+        corners = _corner_starts(group, objectives, max_corner_variables)
+        for d, (_, _, first) in zip(members, corners, strict=True):
+            firsts[d] = first
+        if not group[0].variables:
+            for d, (_, corner_vals, _) in zip(members, corners, strict=True):
+                vals = np.array([corner_vals[o][0, m] for o, (m, _) in enumerate(objectives)])
+                found[d] = (np.zeros((len(objectives), 0)), vals)
+            continue
+        results = _ascend(group, _starts(group, objectives, corners), objectives)
+        found.update(zip(members, results, strict=True))
     return [
-        (*found[d], first if not model.variables else f"{first}+box", model.evaluations)
-        for d, (model, first) in enumerate(zip(models, firsts, strict=True))
+        (*found[d], firsts[d] if not model.variables else f"{firsts[d]}+box", model.evaluations)
+        for d, model in enumerate(models)
     ]
+
+
+def _batch_key(model: _Model) -> tuple[object, ...]:
+    """Boards with equal keys (topology, wiring, variable names) share model calls."""
+    board = model.board
+    names = tuple(v.name for v in model.variables)
+    return (board.topology.name, board.v_ref, board.control, type(board.point), names)
 
 
 __all__ = ["BALANCED_STARTS", "CORNER_STARTS", "all_corners", "balanced_points", "search_extremes"]
