@@ -88,11 +88,18 @@ def _k_ranges(c: Corners, k_lo: F64, k_hi: F64) -> tuple[F64, F64, F64, F64]:
 
 
 def shared_bounds(
-    model: TunedModel, u: I64, i3: I64, i4: I64, v: I64, kf: KFactors, *, top_checked: bool = False
+    model: TunedModel,
+    u: I64,
+    i3: I64,
+    i4: I64,
+    v: I64,
+    kf: KFactors,
+    *,
+    top: TopRoots | None = None,
 ) -> tuple[CoreBounds, Corners]:
     """``CoreBounds`` of combinations (module docstring); ``kf`` says which k they allow.
-    ``top_checked``: ``top_feasible`` already passed these op amps and R3 with the same k,
-    so the top of the span is not checked again."""
+    ``top``: each row's ``top_roots`` (passed, with the same k), so the top of the span is
+    neither checked nor its roots sought again."""
     spec = model.spec
     assert spec.tuning is not None
     tu = spec.tuning
@@ -109,7 +116,7 @@ def shared_bounds(
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         lam = (c.kf2_hi / c.kf1_lo) * c.rb2 / c.r31 * (cf2 / cf1)
         x_lo = below_root(z2, k2a, k2b, high) / lam
-        x_hi = above_root(z1, k1a, k1b, low)
+        x_hi = above_root(z1, k1a, k1b, low) if top is None else top.x_hi
         r = range_ratio(z2, z1, lam, x_lo, x_hi, (k2a, k2b), (k1a, k1b))
         fewest = fewest_ranges(
             np.where(c.valid, r, 0.0), tu.low_hz, tu.high_hz, tu.overlap_pct / 100
@@ -118,7 +125,11 @@ def shared_bounds(
         live = np.flatnonzero(c.valid & (fewest <= MAX_RANGES))
         p2_min, p1_max = np.full(n, np.nan), np.full(n, np.nan)
         p2_min[live] = below_root(z2.take(live), k2a[live], k2b[live], low[live])
-        p1_max[live] = above_root(z1.take(live), k1a[live], k1b[live], high[live])
+        p1_max[live] = (
+            above_root(z1.take(live), k1a[live], k1b[live], high[live])
+            if top is None
+            else top.p1_max[live]
+        )
         c_min = p2_min / (k2b * c.rb2 * cf2)
         c_max = np.where(p1_max > 0, p1_max / (k1a * c.r31 * cf1), 0.0)
         # Nominal P: the top's k·R3·C with C ≤ P1max/(k·kf1·R3(z1)·cf1), k cancels; the
@@ -129,7 +140,7 @@ def shared_bounds(
         p_top = p1_max * res.value[i3] / (c.kf1_lo * c.r31 * cf1)
         p_bottom = p2_min * (np.asarray(reff_n) / np.asarray(beta_n)) / (c.kf2_hi * c.rb2 * cf2)
     feasible = c.valid & (p1_max > 0) & (fewest <= MAX_RANGES)
-    top_p = np.full(n, np.nan) if top_checked else p_top * (1 + 1e-9)
+    top_p = p_top * (1 + 1e-9) if top is None else np.full(n, np.nan)
     live = np.flatnonzero(feasible)  # the span's ends only where anything is left
     feasible[live] = span_end_checks(
         model, u[live], kf.k_lo[live], kf.k_hi[live], i3[live], i4[live], v[live],
@@ -163,10 +174,21 @@ def range_ratio(
     return np.asarray(np.where(x_lo > x_hi, 0.0, r))
 
 
-def top_feasible(model: TunedModel, u: I64, i3: I64, kf: KFactors) -> NDArray[np.bool_]:
-    """Whether an op amp and R3 can make the top of the span at all (the top of the dial
-    does not involve RV1 or R4): the delays leave room below 1/high_hz at z1 and the nominal
-    rules can hold at the largest P the top can have (``span_end_checks``)."""
+@dataclass
+class TopRoots:
+    """Per (op amp, R3) row, with k over the op amp's window: whether the top of the span can
+    be made at all (the delays leave room below 1/high_hz at z1 and the nominal rules can
+    hold at the largest P the top can have, ``span_end_checks``), and the upper brackets of P1 at 1/low (``x_hi``) and
+    at 1/high (``p1_max``) that every core through it shares: the top of the dial involves
+    neither RV1 nor R4 (both networks give R_eff = R3 and β = 1 there, exactly)."""
+
+    ok: NDArray[np.bool_]
+    x_hi: F64
+    p1_max: F64
+
+
+def top_roots(model: TunedModel, u: I64, i3: I64, kf: KFactors) -> TopRoots:
+    """``TopRoots`` of rows (op amp, R3) with k factors ``kf`` (the op amp's window)."""
     n = len(u)
     assert model.spec.tuning is not None
     tu = model.spec.tuning
@@ -175,14 +197,15 @@ def top_feasible(model: TunedModel, u: I64, i3: I64, kf: KFactors) -> NDArray[np
     c = corners(model, u, i3, i4, v, kf)
     cf1 = cap_factors(model, 1).min(axis=1)[c.t1]
     _, _, k1a, k1b = _k_ranges(c, kf.k_lo, kf.k_hi)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         p1_max = above_root(c.z1, k1a, k1b, np.full(n, 1 / tu.high_hz))
+        x_hi = above_root(c.z1, k1a, k1b, np.full(n, 1 / tu.low_hz))
         p_top = p1_max * model.resistors.value[i3] / (c.kf1_lo * c.r31 * cf1)
     ok = c.valid_top & (p1_max > 0)
     ok &= span_end_checks(
         model, u, kf.k_lo, kf.k_hi, i3, i4, v, p_top * (1 + 1e-9), np.full(n, np.nan)
     )
-    return np.asarray(ok)
+    return TopRoots(np.asarray(ok), x_hi, p1_max)
 
 
 def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> NDArray[np.int64]:

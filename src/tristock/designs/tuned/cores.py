@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.designs.tuned.bounds import chain_floor, shared_bounds, top_feasible
+from tristock.designs.tuned.bounds import TopRoots, chain_floor, shared_bounds, top_roots
 from tristock.designs.tuned.chains import INF
 from tristock.designs.tuned.corners import KFactors, corners, pair_factors, window_factors
 from tristock.designs.tuned.keys import IntCache, TimeUp
@@ -358,11 +358,13 @@ def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
         if len(model.capacitors) == 0 or not model.pots or not use_v.any():
             continue
         u3 = np.full(len(use3), o.index, dtype=np.int64)
-        top3 = use3[top_feasible(model, u3, use3, window_factors(model, u3))]
+        roots = top_roots(model, u3, use3, window_factors(model, u3))
+        top3 = use3[roots.ok]
         if len(top3) == 0:
             continue
         i4_all = np.repeat(use4, len(top3)).astype(np.int64)
         i3_all = np.tile(top3, len(use4)).astype(np.int64)
+        at3 = np.tile(np.flatnonzero(roots.ok), len(use4))
         for v in np.flatnonzero(use_v):
             for start in range(0, len(i3_all), CORE_BATCH):
                 if time.perf_counter() > deadline:
@@ -371,7 +373,9 @@ def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
                 u = np.full(len(i3), o.index, dtype=np.int64)
                 vv = np.full(len(i3), v, dtype=np.int64)
                 kf = window_factors(model, u)
-                b, _ = shared_bounds(model, u, i3, i4, vv, kf, top_checked=True)
+                at = at3[start : start + CORE_BATCH]
+                top = TopRoots(roots.ok[at], roots.x_hi[at], roots.p1_max[at])
+                b, _ = shared_bounds(model, u, i3, i4, vv, kf, top=top)
                 keep = b.feasible
                 cost = o.cost + pot_cost[v] + r_cost[i3]
                 cost = cost + np.where(i4 >= 0, r_cost[np.maximum(i4, 0)], 0)
