@@ -178,9 +178,10 @@ def range_ratio(
 class TopRoots:
     """Per (op amp, R3) row, with k over the op amp's window: whether the top of the span can
     be made at all (the delays leave room below 1/high_hz at z1 and the nominal rules can
-    hold at the largest P the top can have, ``span_end_checks``), and the upper brackets of P1 at 1/low (``x_hi``) and
-    at 1/high (``p1_max``) that every core through it shares: the top of the dial involves
-    neither RV1 nor R4 (both networks give R_eff = R3 and β = 1 there, exactly)."""
+    hold at the largest P the top can have, ``span_end_checks``), and the upper brackets of
+    P1 at 1/low (``x_hi``) and at 1/high (``p1_max``) that every core through it shares: the
+    top of the dial involves neither RV1 nor R4 (both networks give R_eff = R3 and β = 1
+    there, exactly)."""
 
     ok: NDArray[np.bool_]
     x_hi: F64

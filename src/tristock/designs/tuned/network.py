@@ -246,7 +246,16 @@ AMP_LOW = Corner(-1, 1, 1, 1, -1, 1, 1, -1, "small", "k_low", "balanced")
 
 
 def rail_choice(model: TunedModel, mode: str) -> tuple[F64, F64]:
-    """Per op amp, the rail ends (z+, z-) a corner takes (``Corner.rails``)."""
+    """Per op amp, the rail ends (z+, z-) a corner takes (``Corner.rails``); kept in
+    ``model.cache``."""
+    known = model.cache.get(f"rails {mode}")
+    if isinstance(known, tuple):
+        return known
+    model.cache[f"rails {mode}"] = found = _rail_choice(model, mode)
+    return found
+
+
+def _rail_choice(model: TunedModel, mode: str) -> tuple[F64, F64]:
     n = len(model.opamps)
     u = np.arange(n, dtype=np.int64)
     options = [(zp, zn) for zp in (-1.0, 1.0) for zn in (-1.0, 1.0)]
