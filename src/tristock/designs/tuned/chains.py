@@ -121,9 +121,16 @@ def enumerate_chains(
     lies in (budget[0], budget[1]], with their cost (and, with ``changes``, exactly that
     many changed slots)."""
     lo, hi = budget
-    cost = r.cost
-    ok_start = np.flatnonzero(starts(r, low)[row])
-    nexts = [np.flatnonzero(allowed[row, a]) for a in range(len(cost))]
+    cost = r.cost.tolist()
+    rest = [c[row].tolist() for c in comp]  # rest[s][b]: least cost of s + 1 more from b
+    ok_start = np.flatnonzero(starts(r, low)[row]).tolist()
+    after: dict[int, list[int]] = {}
+
+    def nexts(a: int) -> list[int]:
+        if a not in after:
+            after[a] = np.flatnonzero(allowed[row, a]).tolist()
+        return after[a]
+
     old = changes.old if changes is not None else ()
     m = len(old)
     want = changes.count - abs(n - m) if changes is not None else 0
@@ -143,19 +150,19 @@ def enumerate_chains(
                 yield tuple(chain), spent
             return
         depth = len(chain)
-        for b in nexts[chain[-1]]:
-            c = spent + int(cost[b])
+        for b in nexts(chain[-1]):
+            c = spent + cost[b]
             d = differ + int(depth < m and old[depth] != b)
-            if c + int(comp[left - 1][row, b]) <= hi and fits(depth + 1, d):
-                chain.append(int(b))
+            if c + rest[left - 1][b] <= hi and fits(depth + 1, d):
+                chain.append(b)
                 yield from walk(chain, c, d)
                 chain.pop()
 
     for a in ok_start:
-        c = int(cost[a])
+        c = cost[a]
         d = int(m > 0 and old[0] != a)
-        if c + int(comp[n - 1][row, a]) <= hi and fits(1, d):
-            yield from walk([int(a)], c, d)
+        if c + rest[n - 1][a] <= hi and fits(1, d):
+            yield from walk([a], c, d)
 
 
 def evenness(f_top: F64, f_bottom: F64, chain: tuple[int, ...], overlap: float) -> int:
