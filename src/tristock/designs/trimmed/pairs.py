@@ -19,8 +19,8 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.circuits.searchform import StageLoop
+from tristock.designs.pacing import Paced
 from tristock.designs.trimmed.context import F64, I64, TrimContext
-from tristock.designs.trimmed.pacing import Paced
 from tristock.designs.trimmed.probes import SLACK, PairProbes, distinct_rows, pair_windows
 from tristock.search.bounds import (
     amplitude_bounds,

@@ -31,6 +31,7 @@ from typing import Protocol
 import numpy as np
 from numpy.typing import NDArray
 
+from tristock.designs.pacing import step_size
 from tristock.designs.tuned.chains import (
     INF,
     Changes,
@@ -309,7 +310,8 @@ def walk(
     """Accepted designs in rank order (module docstring). ``decide`` is the verdict. With
     ``classify`` (distinct designs) the walk goes on until the accepted designs fall into
     ``top`` classes. While k more are wanted the next k candidates are all decided (each
-    adds at most one), so they are listed first and decided together."""
+    adds at most one), so they are listed first and decided together, as many at a time as
+    the last verdict's rate says fit before the deadline (``pacing``; none: the walk is cut)."""
     out = Walk()
     classes: set[Hashable] = set()
     cores = build_cores(model, deadline)
@@ -319,22 +321,29 @@ def walk(
     for n in counts(model, cores):
         lister = Lister(model, cores, n, out, deadline)
         listed = iter(lister)
+        per_candidate = 0.0  # the last verdict's time per candidate (s)
         while batch := list(itertools.islice(listed, min(top - len(classes), DECIDE_BATCH))):
-            decide.prepare(batch)
-            for f in batch:
-                ok, detail = decide(f)
-                if ok:
-                    out.accepted.append((f, detail))
-                    out.proven &= certified(f)
-                    classes.add(classify(f) if classify else len(out.accepted))
-                    if len(classes) >= top:
-                        out.ranges = n
-                        return out
-                else:
-                    out.dropped += 1
-                if time.perf_counter() > deadline:
+            while batch and not lister.cut:
+                left = deadline - time.perf_counter()
+                size = step_size(left, per_candidate, len(batch), DECIDE_BATCH, 1)
+                if size == 0:
                     lister.cut = True
                     break
+                part, batch = batch[:size], batch[size:]
+                began = time.perf_counter()
+                decide.prepare(part)
+                for f in part:
+                    ok, detail = decide(f)
+                    if ok:
+                        out.accepted.append((f, detail))
+                        out.proven &= certified(f)
+                        classes.add(classify(f) if classify else len(out.accepted))
+                        if len(classes) >= top:
+                            out.ranges = n
+                            return out
+                    else:
+                        out.dropped += 1
+                per_candidate = (time.perf_counter() - began) / len(part)
             if lister.cut:
                 break
         if lister.cut:

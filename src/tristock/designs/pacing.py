@@ -11,6 +11,7 @@ step worth taking (``first``, or what is left) fits, it stops and says ``cut``.
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Iterator
 
@@ -22,7 +23,7 @@ def step_size(remaining_s: float, per_item_s: float, left: int, full: int, first
     """The next step's size (module docstring); 0: stop, the deadline would be overrun."""
     if remaining_s <= 0.0:
         return 0
-    if per_item_s <= 0.0:
+    if per_item_s <= 0.0 or math.isinf(remaining_s):
         return min(full if remaining_s >= SHORT_LIMIT_S else first, left)
     fits = int(remaining_s / per_item_s)
     return min(full, fits, left) if fits >= min(first, left) else 0

@@ -1,13 +1,15 @@
-"""The trimmed search's paced steps (``designs.trimmed.pacing``): sizes from the time left and
-the last step's rate, a stop instead of an overrun, the whole range when time is plenty.
+"""Paced steps (``designs.pacing``: the trimmed pairs, the tuned verdicts): sizes from the
+time left and the last step's rate, a stop instead of an overrun, the whole range when time
+is plenty.
 The rule is the project's own (a search honours its time limit); no clock is read here but
 the one ``Paced`` reads, against deadlines far in the past or future."""
 
 from __future__ import annotations
 
+import math
 import time
 
-from tristock.designs.trimmed.pacing import SHORT_LIMIT_S, Paced, step_size
+from tristock.designs.pacing import SHORT_LIMIT_S, Paced, step_size
 
 
 def test_first_step_is_short_when_little_time_is_left() -> None:
@@ -35,6 +37,14 @@ def test_plenty_of_time_covers_the_range_in_full_steps() -> None:
     slices = list(steps)
     assert [(s.start, s.stop) for s in slices] == [(0, 2048), (2048, 4096), (4096, 5000)]
     assert not steps.cut
+
+
+def test_no_deadline_takes_full_steps() -> None:
+    """A walk without a time limit (deadline infinite) is never paced down."""
+    assert step_size(math.inf, 1e-3, 10_000, full=2048, first=256) == 2048
+    assert step_size(math.inf, 0.0, 100, full=2048, first=256) == 100
+    steps = Paced(5000, math.inf, full=2048, first=256)
+    assert [(s.start, s.stop) for s in steps] == [(0, 2048), (2048, 4096), (4096, 5000)]
 
 
 def test_a_past_deadline_takes_no_step_and_says_cut() -> None:
