@@ -97,6 +97,44 @@ def fewest(r: Ranges, overlap: float, low: float, high: float, most: int) -> I64
     return out
 
 
+@dataclass
+class CapCosts:
+    """Cheapest capacitor at or above / at or below a value (micro-units, ``INF`` if none)."""
+
+    value: F64
+    at_least: I64  # suffix minimum over ascending values
+    at_most: I64  # prefix minimum
+    cheapest: int
+
+    @classmethod
+    def of(cls, cost: I64, value: F64) -> CapCosts:
+        """From each capacitor's cost and value (ascending)."""
+        if len(cost) == 0:
+            z = np.zeros(0, dtype=np.int64)
+            return cls(value, z, z, INF)
+        return cls(
+            value,
+            np.minimum.accumulate(cost[::-1])[::-1],
+            np.minimum.accumulate(cost),
+            int(cost.min()),
+        )
+
+    def chain(self, c_min: F64, c_max: F64, n: int) -> I64:
+        """Lower bound of the capacitors' cost of a chain of n with C1 ≥ c_min and Cn ≤ c_max
+        (``cores``): the cheapest capacitor at or above c_min, plus the cheapest at or below
+        c_max, plus (n - 2) times the cheapest of all (n = 1: the larger of the first two)."""
+        if len(self.value) == 0:
+            return np.full(len(c_min), INF, dtype=np.int64)
+        i = np.searchsorted(self.value, c_min, side="left")
+        first = np.where(
+            i < len(self.value), self.at_least[np.minimum(i, len(self.value) - 1)], INF
+        )
+        k = np.searchsorted(self.value, c_max, side="right") - 1
+        last = np.where(k >= 0, self.at_most[np.maximum(k, 0)], INF)
+        out = np.maximum(first, last) if n == 1 else first + last + (n - 2) * self.cheapest
+        return np.asarray(np.where((first >= INF) | (last >= INF), INF, out), dtype=np.int64)
+
+
 @dataclass(frozen=True)
 class Changes:
     """For re-optimisation: the old chain (capacitor index per slot, -1 where the old part

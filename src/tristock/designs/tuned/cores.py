@@ -25,7 +25,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from tristock.designs.tuned.bounds import TopRoots, chain_floor, shared_bounds, top_roots
-from tristock.designs.tuned.chains import INF
+from tristock.designs.tuned.chains import INF, CapCosts
 from tristock.designs.tuned.corners import KFactors, corners, pair_factors, window_factors
 from tristock.designs.tuned.keys import IntCache, TimeUp
 from tristock.designs.tuned.model import MAX_RANGES, Pairs, TunedModel
@@ -45,43 +45,6 @@ BIN_WIDTH = 0.01
 #: Neighbouring bins whose joint chain floor is asked first (it bounds each of theirs).
 GROUP = 16
 MAX_BINS = 1 << 12
-
-
-@dataclass
-class CapCosts:
-    """Cheapest capacitor at or above / at or below a value (micro-units, ``INF`` if none)."""
-
-    value: F64
-    at_least: I64  # suffix minimum over ascending values
-    at_most: I64  # prefix minimum
-    cheapest: int
-
-    @classmethod
-    def of(cls, model: TunedModel) -> CapCosts:
-        cost = model.capacitor_cost
-        value = model.capacitors.value
-        if len(cost) == 0:
-            z = np.zeros(0, dtype=np.int64)
-            return cls(value, z, z, INF)
-        return cls(
-            value,
-            np.minimum.accumulate(cost[::-1])[::-1],
-            np.minimum.accumulate(cost),
-            int(cost.min()),
-        )
-
-    def chain(self, c_min: F64, c_max: F64, n: int) -> I64:
-        """Lower bound of the capacitors' cost of a chain of n (module docstring)."""
-        if len(self.value) == 0:
-            return np.full(len(c_min), INF, dtype=np.int64)
-        i = np.searchsorted(self.value, c_min, side="left")
-        first = np.where(
-            i < len(self.value), self.at_least[np.minimum(i, len(self.value) - 1)], INF
-        )
-        k = np.searchsorted(self.value, c_max, side="right") - 1
-        last = np.where(k >= 0, self.at_most[np.maximum(k, 0)], INF)
-        out = np.maximum(first, last) if n == 1 else first + last + (n - 2) * self.cheapest
-        return np.asarray(np.where((first >= INF) | (last >= INF), INF, out), dtype=np.int64)
 
 
 @dataclass
@@ -380,7 +343,7 @@ def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:
                 cost = o.cost + pot_cost[v] + r_cost[i3]
                 cost = cost + np.where(i4 >= 0, r_cost[np.maximum(i4, 0)], 0)
                 blocks.append((u[keep], vv[keep], i3[keep], i4[keep], cost[keep], b, keep))
-    caps = CapCosts.of(model)
+    caps = CapCosts.of(model.capacitor_cost, model.capacitors.value)
     bins = {o.index: Bins.of(model, o.index, pairs[o.index], o.k_lo, o.k_hi) for o in model.opamps}
     if not blocks:
         z = np.zeros(0, dtype=np.int64)
