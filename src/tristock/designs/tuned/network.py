@@ -61,16 +61,6 @@ class Shared:
     def take(self, sel: I64 | NDArray[np.bool_]) -> Shared:
         return Shared(**{n: getattr(self, n)[sel] for n in self.__dataclass_fields__})
 
-    def row(self, n: int) -> tuple[int, int, int, int, int, int]:
-        return (
-            int(self.u[n]),
-            int(self.i1[n]),
-            int(self.i2[n]),
-            int(self.i3[n]),
-            int(self.i4[n]),
-            int(self.v[n]),
-        )
-
     @staticmethod
     def concat(parts: list[Shared]) -> Shared:
         return Shared(
