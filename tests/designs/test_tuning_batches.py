@@ -14,8 +14,10 @@ import pytest
 
 from tristock.designs.tuned import cores as cores_module
 from tristock.designs.tuned import search as search_module
+from tristock.designs.tuned.chains import INF
 from tristock.designs.tuned.coverage import range_verdicts
 from tristock.designs.tuned.model import build_tuned_model
+from tristock.designs.tuned.ranges import evaluate_ranges
 from tristock.designs.tuned.report import design_from
 from tristock.designs.tuned.search import walk
 from tristock.designs.tuned.verdict import Verdicts
@@ -83,3 +85,31 @@ def test_ranges_decided_together_get_their_own_verdicts() -> None:
     alone = [range_verdicts([d], spec, 0, probes[:1])[0] for d in designs]
     assert together == alone
     assert [v.ok for v in together] == [True, False, True]
+
+
+@pytest.mark.parametrize("guarantee", ["nominal", "worst_case"])
+def test_ranges_left_out_by_the_bounds_are_never_usable(guarantee: str) -> None:
+    """``evaluate_ranges`` evaluates only the ranges ``tighten``'s bounds allow: every range
+    the full model finds usable with every capacitor evaluated is among them, and the usable
+    ranges and their values come out the same (the tuned example under series control: the
+    first combinations its walk lists, those whose tightened bound is finite)."""
+    spec = load_spec(example_spec_path("tuned"))
+    data = spec.model_dump(mode="json", exclude_none=True)
+    data["tuning"]["control"] = "series"
+    data.setdefault("limits", {})["guarantee"] = guarantee
+    model = build_tuned_model(parse_spec(data), load_catalog(demo_catalog_dir()))
+    cores = cores_module.build_cores(model)
+    assert cores is not None
+    n = cores.min_fewest()
+    sh, _ = cores.select(model, n, int(cores.bound(n).min()) + 200_000)
+    tight, allowed = cores_module.tighten(model, sh.take(np.arange(min(len(sh), 512))), n)
+    keep = np.flatnonzero(tight < INF)  # the walk drops the others unevaluated
+    sh, allowed = sh.take(keep), allowed[keep]
+    assert len(sh) > 100 and 0 < allowed.sum() < allowed.size
+    every = evaluate_ranges(model, sh, np.ones_like(allowed))
+    some = evaluate_ranges(model, sh, allowed)
+    usable = every.ranges.usable
+    assert usable.any() and not (usable & ~allowed).any()
+    assert np.array_equal(some.ranges.usable, usable)
+    for name in ("corner_bottom", "corner_top", "f_bottom", "f_top"):
+        assert np.array_equal(getattr(some, name)[usable], getattr(every, name)[usable]), name

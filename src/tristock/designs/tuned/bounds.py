@@ -216,6 +216,16 @@ def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> ND
     high) and P1 at its smallest (k_a, kf1 low) and the bounds over the k the corners allow
     (both rise with P); the least cost of a chain over those wider ranges
     (``chains.least_cost_envelope``) cannot exceed the true one."""
+    return chain_floor_and_ranges(model, c, k_a, k_b, n)[0]
+
+
+def chain_floor_and_ranges(
+    model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int
+) -> tuple[NDArray[np.int64], NDArray[np.bool_]]:
+    """``chain_floor``, and per (combination, capacitor) whether the widened range can count
+    at all: it reaches into the span and the nominal rules can hold at its ends
+    (``nominal_ends_ok``). A range the full model finds usable at the search's corners
+    (``ranges.evaluate_ranges``: the same corners, the same nominal rules) always can."""
     from tristock.designs.tuned.chains import INF, least_cost_envelope
 
     assert model.spec.tuning is not None
@@ -244,14 +254,14 @@ def chain_floor(model: TunedModel, c: Corners, k_a: F64, k_b: F64, n: int) -> ND
     keep = ok.any(axis=1)
     out = np.full(len(ok), INF, dtype=np.int64)
     if len(cols) == 0 or not keep.any():
-        return out
+        return out, ok
     gl = np.where(ok, gl, np.inf)[np.ix_(keep, cols)]
     gh = np.where(ok, gh, 0.0)[np.ix_(keep, cols)]
     out[keep] = least_cost_envelope(
         gl, gh, model.capacitor_cost[cols], cap.value[cols], n, tu.low_hz, tu.high_hz,
         tu.overlap_pct / 100,
     )  # fmt: skip
-    return out
+    return out, ok
 
 
 def fewest_ranges(ratio: F64, low: float, high: float, overlap: float) -> I64:

@@ -24,7 +24,13 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from tristock.designs.tuned.bounds import TopRoots, chain_floor, shared_bounds, top_roots
+from tristock.designs.tuned.bounds import (
+    TopRoots,
+    chain_floor,
+    chain_floor_and_ranges,
+    shared_bounds,
+    top_roots,
+)
 from tristock.designs.tuned.chains import INF, CapCosts
 from tristock.designs.tuned.corners import KFactors, corners, pair_factors, window_factors
 from tristock.designs.tuned.keys import IntCache, TimeUp
@@ -283,23 +289,25 @@ def stock_ok(model: TunedModel, sh: Shared) -> NDArray[np.bool_]:
     return ok
 
 
-def tighten(model: TunedModel, sh: Shared, n: int) -> I64:
+def tighten(model: TunedModel, sh: Shared, n: int) -> tuple[I64, NDArray[np.bool_]]:
     """The cost bound of each combination with its exact pair (``INF`` when it cannot make a
-    design with n ranges)."""
+    design with n ranges), and per (combination, capacitor) whether that range can count at
+    all (``bounds.chain_floor_and_ranges``)."""
+    ranges = np.zeros((len(sh), len(model.capacitors)), dtype=bool)
     if len(sh) == 0:
-        return np.zeros(0, dtype=np.int64)
+        return np.zeros(0, dtype=np.int64), ranges
     res = model.resistors
     k = res.value[sh.i1] / res.value[sh.i2]
     b, c = shared_bounds(model, sh.u, sh.i3, sh.i4, sh.v, pair_factors(model, sh.i1, sh.i2, k))
     ok = np.flatnonzero(b.feasible & (b.fewest <= n))
     floor = np.full(len(sh), INF, dtype=np.int64)
     if len(ok):
-        floor[ok] = chain_floor(model, c.take(ok), k[ok], k[ok], n)
+        floor[ok], ranges[ok] = chain_floor_and_ranges(model, c.take(ok), k[ok], k[ok], n)
     out = np.where(floor < INF, sh.cost + floor, INF)
     cap = model.spec.limits.max_cost
     if cap is not None:
         out = np.where(out <= round(cap * 1e6), out, INF)
-    return np.asarray(out, dtype=np.int64)
+    return np.asarray(out, dtype=np.int64), ranges
 
 
 def build_cores(model: TunedModel, deadline: float = math.inf) -> Cores | None:

@@ -55,8 +55,10 @@ class RangeData:
     certified: NDArray[np.bool_]
 
 
-def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
-    """Range data of every combination in ``sh`` with every capacitor (module docstring)."""
+def evaluate_ranges(model: TunedModel, sh: Shared, allowed: NDArray[np.bool_]) -> RangeData:
+    """Range data of every combination in ``sh`` with every capacitor (module docstring),
+    evaluated where ``allowed`` (combinations, capacitors) says the range can count at all
+    (``cores.tighten``); the others are unusable, their values NaN."""
     spec = model.spec
     assert spec.tuning is not None
     tu = spec.tuning
@@ -66,8 +68,11 @@ def evaluate_ranges(model: TunedModel, sh: Shared) -> RangeData:
     nb, nc = len(sh), len(cap)
     flat = sh.take(np.repeat(np.arange(nb), nc))
     j = np.tile(np.arange(nc, dtype=np.int64), nb)
-    f_lo = np.asarray(corner_at(model, flat, j, FAST_BOTTOM, bottom, control).pred.frequency_hz)
-    f_hi = np.asarray(corner_at(model, flat, j, SLOW_TOP, top, control).pred.frequency_hz)
+    pair = np.flatnonzero(allowed.reshape(-1))
+    f_lo, f_hi = np.full(nb * nc, np.nan), np.full(nb * nc, np.nan)
+    for f, corner, alpha in ((f_lo, FAST_BOTTOM, bottom), (f_hi, SLOW_TOP, top)):
+        at = corner_at(model, flat.take(pair), j[pair], corner, alpha, control)
+        f[pair] = at.pred.frequency_hz
     with np.errstate(invalid="ignore"):
         gl = f_lo * (1 - SLACK)
         gh = f_hi * (1 + SLACK)

@@ -50,8 +50,9 @@ from tristock.designs.tuned.ranges import RangeData, evaluate_ranges
 
 I64 = NDArray[np.int64]
 Row = tuple[int, int, int, int, int, int]
-#: A combination waiting: (cost bound, row, shared cost, whether the bound is ``tighten``'s).
-Waiting = tuple[int, Row, int, bool]
+#: A combination waiting: (cost bound, row, shared cost, and once ``tighten`` gave the bound,
+#: which capacitors' ranges can count at all; None before).
+Waiting = tuple[int, Row, int, NDArray[np.bool_] | None]
 #: Combinations evaluated together (each with every capacitor).
 BATCH = 128
 #: Combinations tightened together: the rough ones among this many first waiting.
@@ -182,7 +183,7 @@ class Lister:
         for r, b, c in zip(rows, bound.tolist(), sh.cost.tolist(), strict=True):
             if r not in self.seen:
                 self.seen.add(r)
-                self.waiting.append((b, r, c, False))
+                self.waiting.append((b, r, c, None))
         heapq.heapify(self.waiting)
         self.theta = new
         for r, (data, at, least, cost) in self.evaluated.items():
@@ -193,7 +194,7 @@ class Lister:
         """Evaluate the waiting combinations with the least bounds (a batch), once each has
         its bound tightened (``tighten``; a tightened one may move back)."""
         front = self._front(TIGHTEN)
-        if not all(w[3] for w in front[:BATCH]):
+        if any(w[3] is None for w in front[:BATCH]):
             self._tighten(front)
             return
         for w in front[BATCH:]:
@@ -204,7 +205,7 @@ class Lister:
         tu = model.spec.tuning
         rows = [r for _, r, _, _ in batch]
         sh = _shared(batch)
-        data = evaluate_ranges(model, sh)
+        data = evaluate_ranges(model, sh, np.array([w[3] for w in batch]))
         self.walk.evaluated += int(data.ranges.usable.size)
         self.walk.combinations += len(sh)
         allowed = steps(data.ranges, tu.overlap_pct / 100)
@@ -220,13 +221,13 @@ class Lister:
 
     def _tighten(self, front: list[Waiting]) -> None:
         """Tighten the bounds of these combinations (those not yet) and put them back."""
-        rough = [w for w in front if not w[3]]
-        tight = tighten(self.model, _shared(rough), self.n)
-        for w, t in zip(rough, tight.tolist(), strict=True):
+        rough = [w for w in front if w[3] is None]
+        tight, ranges = tighten(self.model, _shared(rough), self.n)
+        for w, t, usable in zip(rough, tight.tolist(), ranges, strict=True):
             if t < INF:
-                heapq.heappush(self.waiting, (t, w[1], w[2], True))
+                heapq.heappush(self.waiting, (t, w[1], w[2], usable))
         for w in front:
-            if w[3]:
+            if w[3] is not None:
                 heapq.heappush(self.waiting, w)
 
     def _front(self, count: int) -> list[Waiting]:
