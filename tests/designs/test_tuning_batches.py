@@ -46,8 +46,9 @@ def test_sieve_groups_and_tighten_batches_change_no_answer(
 ) -> None:
     """The walk takes the same designs with the same range verdicts, evaluates the same
     combinations and lists the same candidates whether each bin's chain floor is asked alone
-    (a group of one bin), bounds are tightened a batch at a time and candidates decided one
-    at a time, or with the default sizes."""
+    (a group of one bin), the sieve takes 1,000 rows and the floors 7 at a time, bounds are
+    tightened a batch at a time and candidates decided one at a time, or with the default
+    sizes."""
     spec = load_spec(example_spec_path("tuned"))
     data = spec.model_dump(mode="json", exclude_none=True)
     data["tuning"]["control"] = "series"
@@ -60,6 +61,8 @@ def test_sieve_groups_and_tighten_batches_change_no_answer(
 
     default = walked()
     monkeypatch.setattr(cores_module, "GROUP", 1)
+    monkeypatch.setattr(cores_module, "ROWS", 1000)
+    monkeypatch.setattr(cores_module, "FLOOR_BATCH", 7)
     monkeypatch.setattr(search_module, "TIGHTEN", search_module.BATCH)
     monkeypatch.setattr(search_module, "DECIDE_BATCH", 1)
     assert walked() == default
